@@ -1,0 +1,568 @@
+//! Stage 0, config: the YAML file as written (`RawConfig`) and the validated, resolved form (`Config`).
+//!
+//! Only this module reads the config file. Paths are resolved against the config file's folder, ranges are
+//! checked with messages that name the key, and unknown keys are rejected with the nearest valid key. The
+//! rest of the program only ever sees [`Config`]. Defaults are written once, in the `Default` impls.
+
+use crate::error::{Error, Result};
+use serde::Deserialize;
+use std::path::{Path, PathBuf};
+
+/// The config file as written. Every struct rejects unknown keys.
+#[derive(Debug, Deserialize, Default)]
+#[serde(deny_unknown_fields, default)]
+pub struct RawConfig {
+    pub fund: RawFund,
+    pub data: RawData,
+    pub quality: QualityOptions,
+    pub scenarios: ScenarioOptions,
+    pub risk: RawRisk,
+    pub limits: RawLimits,
+    pub models: RawModels,
+    pub solver: SolverOptions,
+    pub output: RawOutput,
+}
+
+/// Who the pack is for.
+#[derive(Debug, Deserialize, Default, Clone)]
+#[serde(deny_unknown_fields, default)]
+pub struct RawFund {
+    pub name: String,
+    /// Folder-safe short name; derived from `name` when empty.
+    pub short_name: Option<String>,
+    pub prepared_for: Option<String>,
+    pub prepared_by: Option<String>,
+}
+
+/// Where the input files are.
+#[derive(Debug, Deserialize, Default)]
+#[serde(deny_unknown_fields, default)]
+pub struct RawData {
+    pub prices: Option<PathBuf>,
+    pub layout: Layout,
+    pub assets: Option<PathBuf>,
+    pub holdings: Option<PathBuf>,
+}
+
+/// Shape of the price file.
+#[derive(Debug, Deserialize, Default, Clone, Copy, PartialEq, Eq, serde::Serialize)]
+#[serde(rename_all = "snake_case")]
+pub enum Layout {
+    /// Detect: `date, asset, price` columns mean long, anything else with a `date` column means wide.
+    #[default]
+    Auto,
+    /// One row per (date, asset): columns `date`, `asset`, `price`.
+    Long,
+    /// One row per date: `date` then one column per asset.
+    Wide,
+}
+
+/// Data-quality thresholds and the fill policy.
+#[derive(Debug, Deserialize, Clone, serde::Serialize)]
+#[serde(deny_unknown_fields, default)]
+pub struct QualityOptions {
+    /// Forward-fill a missing price from the last observation for at most this many consecutive
+    /// observations; a longer gap drops the asset with a warning.
+    pub max_fill: usize,
+    /// This many or more consecutive identical prices are flagged as a stale run.
+    pub stale_run: usize,
+    /// A single-period simple return larger than this in absolute value is flagged.
+    pub extreme_move: f64,
+    /// Rule of thumb (common practice, not a theorem): at least this many observations per asset.
+    pub min_obs_per_asset: usize,
+}
+
+impl Default for QualityOptions {
+    fn default() -> Self {
+        QualityOptions { max_fill: 3, stale_run: 10, extreme_move: 0.25, min_obs_per_asset: 10 }
+    }
+}
+
+/// How scenarios are cut from the price history.
+#[derive(Debug, Deserialize, Clone, serde::Serialize)]
+#[serde(deny_unknown_fields, default)]
+pub struct ScenarioOptions {
+    /// Horizon h in observations (21 business days ≈ one month).
+    pub horizon: usize,
+    /// Distance between the starts of consecutive windows.
+    pub step: usize,
+    /// Years of history before as-of used for scenarios.
+    pub lookback_years: u32,
+    /// Half-life of exponentially decaying probabilities, in observations; absent means equal.
+    pub half_life: Option<f64>,
+}
+
+impl Default for ScenarioOptions {
+    fn default() -> Self {
+        ScenarioOptions { horizon: 21, step: 1, lookback_years: 5, half_life: None }
+    }
+}
+
+/// Confidence levels.
+#[derive(Debug, Deserialize)]
+#[serde(deny_unknown_fields, default)]
+pub struct RawRisk {
+    /// Levels reported for every portfolio.
+    pub levels: Vec<f64>,
+    /// The level the models constrain or minimise.
+    pub confidence: f64,
+}
+
+impl Default for RawRisk {
+    fn default() -> Self {
+        RawRisk { levels: vec![0.95, 0.975, 0.99], confidence: 0.95 }
+    }
+}
+
+/// The feasible set shared by all models.
+#[derive(Debug, Deserialize)]
+#[serde(deny_unknown_fields, default)]
+pub struct RawLimits {
+    /// Lower weight bound for assets whose metadata gives none.
+    pub default_min: f64,
+    /// Upper weight bound for assets whose metadata gives none.
+    pub default_max: f64,
+    /// Assets that must get zero weight.
+    pub exclude: Vec<String>,
+    pub groups: Vec<RawGroup>,
+    /// Σ|x − current| ≤ turnover_max; needs current holdings.
+    pub turnover_max: Option<f64>,
+}
+
+impl Default for RawLimits {
+    fn default() -> Self {
+        RawLimits { default_min: 0.0, default_max: 1.0, exclude: vec![], groups: vec![], turnover_max: None }
+    }
+}
+
+/// A group limit: members chosen by a metadata tag (`class:equity`) or listed.
+#[derive(Debug, Deserialize, Default)]
+#[serde(deny_unknown_fields, default)]
+pub struct RawGroup {
+    pub name: String,
+    /// `column:value` against the asset metadata, e.g. `class:equity`.
+    pub tag: Option<String>,
+    /// Explicit member list.
+    pub assets: Option<Vec<String>>,
+    pub min: Option<f64>,
+    pub max: Option<f64>,
+}
+
+/// Model-specific settings.
+#[derive(Debug, Deserialize, Default)]
+#[serde(deny_unknown_fields, default)]
+pub struct RawModels {
+    pub max_return: RawMaxReturn,
+    pub min_cvar: RawMinCvar,
+}
+
+/// Settings of the max-return model.
+#[derive(Debug, Deserialize)]
+#[serde(deny_unknown_fields, default)]
+pub struct RawMaxReturn {
+    pub cvar_cap: RawCap,
+}
+
+impl Default for RawMaxReturn {
+    fn default() -> Self {
+        RawMaxReturn { cvar_cap: RawCap { value: None, times_current: None, times_min: Some(1.5) } }
+    }
+}
+
+/// A CVaR cap: exactly one of the three forms.
+#[derive(Debug, Deserialize, Default)]
+#[serde(deny_unknown_fields, default)]
+pub struct RawCap {
+    /// Absolute cap on CVaR (a loss fraction, 0.05 = 5%).
+    pub value: Option<f64>,
+    /// Cap = this multiple of the current portfolio's CVaR.
+    pub times_current: Option<f64>,
+    /// Cap = this multiple of the minimum attainable CVaR over the feasible set.
+    pub times_min: Option<f64>,
+}
+
+/// Settings of the min-CVaR model.
+#[derive(Debug, Deserialize)]
+#[serde(deny_unknown_fields, default)]
+pub struct RawMinCvar {
+    pub return_floor: RawFloor,
+}
+
+impl Default for RawMinCvar {
+    fn default() -> Self {
+        RawMinCvar { return_floor: RawFloor { value: None, plus_current: Some(0.0) } }
+    }
+}
+
+/// An expected-return floor: exactly one of the two forms.
+#[derive(Debug, Deserialize, Default)]
+#[serde(deny_unknown_fields, default)]
+pub struct RawFloor {
+    /// Absolute floor on expected horizon return.
+    pub value: Option<f64>,
+    /// Floor = current portfolio's expected return plus this.
+    pub plus_current: Option<f64>,
+}
+
+/// Which LP backend solves the models.
+#[derive(Debug, Deserialize, Clone, Copy, PartialEq, Eq, Default, serde::Serialize)]
+#[serde(rename_all = "snake_case")]
+pub enum Backend {
+    /// HiGHS dual simplex (default).
+    #[default]
+    Highs,
+    /// Clarabel interior point (cross-check).
+    Clarabel,
+}
+
+impl std::str::FromStr for Backend {
+    type Err = String;
+    fn from_str(s: &str) -> std::result::Result<Self, String> {
+        match s {
+            "highs" => Ok(Backend::Highs),
+            "clarabel" => Ok(Backend::Clarabel),
+            other => Err(format!("unknown solver backend `{other}`; expected `highs` or `clarabel`")),
+        }
+    }
+}
+
+impl Backend {
+    /// The name used in results and on the command line.
+    pub fn name(self) -> &'static str {
+        match self {
+            Backend::Highs => "highs",
+            Backend::Clarabel => "clarabel",
+        }
+    }
+}
+
+/// Solver settings.
+#[derive(Debug, Deserialize, Clone, Default, serde::Serialize)]
+#[serde(deny_unknown_fields, default)]
+pub struct SolverOptions {
+    pub backend: Backend,
+}
+
+/// Output settings.
+#[derive(Debug, Deserialize, Default)]
+#[serde(deny_unknown_fields, default)]
+pub struct RawOutput {
+    /// Pack root, relative to the config file; default `out` beside the current folder.
+    pub root: Option<PathBuf>,
+}
+
+/// A group limit with its members resolved later against the asset list.
+#[derive(Debug, Clone, serde::Serialize)]
+pub struct GroupSpec {
+    pub name: String,
+    pub selector: GroupSelector,
+    pub min: f64,
+    pub max: f64,
+}
+
+/// How a group's members are chosen.
+#[derive(Debug, Clone, serde::Serialize)]
+pub enum GroupSelector {
+    Tag { column: String, value: String },
+    Assets(Vec<String>),
+}
+
+/// A resolved CVaR cap rule.
+#[derive(Debug, Clone, Copy, serde::Serialize)]
+pub enum CapRule {
+    Value(f64),
+    TimesCurrent(f64),
+    TimesMin(f64),
+}
+
+/// A resolved return floor rule.
+#[derive(Debug, Clone, Copy, serde::Serialize)]
+pub enum FloorRule {
+    Value(f64),
+    PlusCurrent(f64),
+}
+
+/// The validated config every later stage sees.
+#[derive(Debug, Clone)]
+pub struct Config {
+    pub path: PathBuf,
+    pub fund: RawFund,
+    pub short_name: String,
+    pub prices: PathBuf,
+    pub layout: Layout,
+    pub assets: PathBuf,
+    pub holdings: Option<PathBuf>,
+    pub quality: QualityOptions,
+    pub scenarios: ScenarioOptions,
+    pub levels: Vec<f64>,
+    pub confidence: f64,
+    pub default_min: f64,
+    pub default_max: f64,
+    pub exclude: Vec<String>,
+    pub groups: Vec<GroupSpec>,
+    pub turnover_max: Option<f64>,
+    pub cap: CapRule,
+    pub floor: FloorRule,
+    pub backend: Backend,
+    pub out_root: PathBuf,
+}
+
+/// Every top-level and nested key, for suggestions on unknown keys.
+const KNOWN_KEYS: &[&str] = &[
+    "fund", "data", "quality", "scenarios", "risk", "limits", "models", "solver", "output", "name",
+    "short_name", "prepared_for", "prepared_by", "prices", "layout", "assets", "holdings", "max_fill",
+    "stale_run", "extreme_move", "min_obs_per_asset", "horizon", "step", "lookback_years", "half_life",
+    "levels", "confidence", "default_min", "default_max", "exclude", "groups", "turnover_max", "tag", "min",
+    "max", "max_return", "min_cvar", "cvar_cap", "value", "times_current", "times_min", "return_floor",
+    "plus_current", "backend", "root",
+];
+
+/// Reads and validates a config file.
+pub fn load(path: &Path) -> Result<Config> {
+    let text = crate::error::fs::read_to_string(path)?;
+    let raw = parse(path, &text)?;
+    resolve(path, raw)
+}
+
+/// Parses YAML text into the raw config, turning serde errors into messages with line and a suggestion.
+pub fn parse(path: &Path, text: &str) -> Result<RawConfig> {
+    if text.trim().is_empty() {
+        return Err(Error::config(path, "the file is empty; see config-demo/fund.yaml for a complete example"));
+    }
+    serde_yaml_ng::from_str::<RawConfig>(text).map_err(|e| Error::config(path, describe_yaml_error(&e)))
+}
+
+fn describe_yaml_error(e: &serde_yaml_ng::Error) -> String {
+    let msg = e.to_string();
+    let Some(unknown) = between(&msg, "unknown field `", "`") else { return msg };
+    let expected: Vec<&str> = msg.split('`').skip(3).step_by(2).collect();
+    let pool: Vec<&str> = if expected.is_empty() { KNOWN_KEYS.to_vec() } else { expected };
+    match nearest(unknown, &pool) {
+        Some(best) => format!("{msg}; did you mean `{best}`?"),
+        None => msg,
+    }
+}
+
+fn between<'a>(s: &'a str, start: &str, end: &str) -> Option<&'a str> {
+    let from = s.find(start)? + start.len();
+    let len = s[from..].find(end)?;
+    Some(&s[from..from + len])
+}
+
+/// The candidate closest to `word` by edit distance, if it is close enough to be a plausible typo.
+pub fn nearest<'a>(word: &str, candidates: &[&'a str]) -> Option<&'a str> {
+    let (best, dist) = candidates.iter().map(|c| (*c, levenshtein(word, c))).min_by_key(|(_, d)| *d)?;
+    (dist <= word.len().max(3) / 2 + 1).then_some(best)
+}
+
+fn levenshtein(a: &str, b: &str) -> usize {
+    let b: Vec<char> = b.chars().collect();
+    let mut row: Vec<usize> = (0..=b.len()).collect();
+    for (i, ca) in a.chars().enumerate() {
+        let mut prev = row[0];
+        row[0] = i + 1;
+        for (j, cb) in b.iter().enumerate() {
+            let cur = row[j + 1];
+            row[j + 1] = (prev + usize::from(ca != *cb)).min(row[j] + 1).min(cur + 1);
+            prev = cur;
+        }
+    }
+    row[b.len()]
+}
+
+/// Validates ranges and resolves paths; messages name the key.
+pub fn resolve(path: &Path, raw: RawConfig) -> Result<Config> {
+    let bad = |key: &str, why: String| Error::config(path, format!("{key}: {why}"));
+    let base = path.parent().map(Path::to_path_buf).unwrap_or_default();
+    let join = |p: &PathBuf| if p.is_absolute() { p.clone() } else { base.join(p) };
+    if raw.fund.name.trim().is_empty() {
+        return Err(bad("fund.name", "is required (the fund's name, printed on every page)".into()));
+    }
+    let prices = raw.data.prices.as_ref().ok_or_else(|| bad("data.prices", "is required (the price file)".into()))?;
+    let assets = raw.data.assets.as_ref().ok_or_else(|| bad("data.assets", "is required (the asset metadata file)".into()))?;
+    check_scenarios(&raw.scenarios).map_err(|(k, m)| bad(k, m))?;
+    check_quality(&raw.quality).map_err(|(k, m)| bad(k, m))?;
+    check_levels(&raw.risk).map_err(|(k, m)| bad(k, m))?;
+    check_limits(&raw.limits, raw.data.holdings.is_some()).map_err(|(k, m)| bad(k, m))?;
+    let groups = resolve_groups(&raw.limits.groups).map_err(|(k, m)| bad(&k, m))?;
+    let cap = resolve_cap(&raw.models.max_return.cvar_cap).map_err(|m| bad("models.max_return.cvar_cap", m))?;
+    let floor = resolve_floor(&raw.models.min_cvar.return_floor).map_err(|m| bad("models.min_cvar.return_floor", m))?;
+    if raw.data.holdings.is_none() {
+        if matches!(cap, CapRule::TimesCurrent(_)) {
+            return Err(bad("models.max_return.cvar_cap.times_current", NEEDS_HOLDINGS.into()));
+        }
+        if matches!(floor, FloorRule::PlusCurrent(_)) {
+            return Err(bad("models.min_cvar.return_floor.plus_current", NEEDS_HOLDINGS.into()));
+        }
+    }
+    let short_name = match &raw.fund.short_name {
+        Some(s) if !s.trim().is_empty() => slug(s),
+        _ => slug(&raw.fund.name),
+    };
+    if short_name.is_empty() {
+        return Err(bad("fund.short_name", "must contain at least one letter or digit".into()));
+    }
+    let out_root = raw.output.root.as_ref().map(&join).unwrap_or_else(|| PathBuf::from("out"));
+    Ok(Config {
+        path: path.to_path_buf(),
+        short_name,
+        prices: join(prices),
+        layout: raw.data.layout,
+        assets: join(assets),
+        holdings: raw.data.holdings.as_ref().map(&join),
+        quality: raw.quality,
+        scenarios: raw.scenarios,
+        levels: sorted_levels(&raw.risk),
+        confidence: raw.risk.confidence,
+        default_min: raw.limits.default_min,
+        default_max: raw.limits.default_max,
+        exclude: raw.limits.exclude,
+        groups,
+        turnover_max: raw.limits.turnover_max,
+        cap,
+        floor,
+        backend: raw.solver.backend,
+        out_root,
+        fund: raw.fund,
+    })
+}
+
+const NEEDS_HOLDINGS: &str = "is relative to the current portfolio, but data.holdings is not set";
+
+type KeyError = (&'static str, String);
+
+fn check_scenarios(s: &ScenarioOptions) -> std::result::Result<(), KeyError> {
+    if s.horizon == 0 || s.horizon > 260 {
+        return Err(("scenarios.horizon", format!("must be between 1 and 260 observations, got {}", s.horizon)));
+    }
+    if s.step == 0 {
+        return Err(("scenarios.step", "must be at least 1".into()));
+    }
+    if s.lookback_years == 0 || s.lookback_years > 100 {
+        return Err(("scenarios.lookback_years", format!("must be between 1 and 100, got {}", s.lookback_years)));
+    }
+    match s.half_life {
+        Some(h) if !(h.is_finite() && h > 0.0) => Err(("scenarios.half_life", format!("must be a positive number of observations, got {h}"))),
+        _ => Ok(()),
+    }
+}
+
+fn check_quality(q: &QualityOptions) -> std::result::Result<(), KeyError> {
+    if !(q.extreme_move.is_finite() && q.extreme_move > 0.0) {
+        return Err(("quality.extreme_move", format!("must be a positive return, got {}", q.extreme_move)));
+    }
+    if q.stale_run < 2 {
+        return Err(("quality.stale_run", format!("must be at least 2 observations, got {}", q.stale_run)));
+    }
+    Ok(())
+}
+
+fn check_levels(r: &RawRisk) -> std::result::Result<(), KeyError> {
+    let open_unit = |c: f64| c.is_finite() && c > 0.0 && c < 1.0;
+    if !open_unit(r.confidence) {
+        return Err(("risk.confidence", format!("must lie strictly between 0 and 1, got {}", r.confidence)));
+    }
+    if let Some(c) = r.levels.iter().find(|c| !open_unit(**c)) {
+        return Err(("risk.levels", format!("every level must lie strictly between 0 and 1, got {c}")));
+    }
+    Ok(())
+}
+
+fn sorted_levels(r: &RawRisk) -> Vec<f64> {
+    let mut v = r.levels.clone();
+    v.push(r.confidence);
+    v.sort_by(f64::total_cmp);
+    v.dedup();
+    v
+}
+
+fn check_limits(l: &RawLimits, has_holdings: bool) -> std::result::Result<(), KeyError> {
+    if !(l.default_min.is_finite() && l.default_min >= 0.0) {
+        return Err(("limits.default_min", format!("must be ≥ 0 (long-only), got {}", l.default_min)));
+    }
+    if !(l.default_max.is_finite() && l.default_max >= l.default_min && l.default_max <= 1.0) {
+        return Err(("limits.default_max", format!("must lie in [default_min, 1], got {}", l.default_max)));
+    }
+    match l.turnover_max {
+        Some(t) if !(t.is_finite() && (0.0..=2.0).contains(&t)) => {
+            Err(("limits.turnover_max", format!("must lie in [0, 2] (Σ|x − current|), got {t}")))
+        }
+        Some(_) if !has_holdings => Err(("limits.turnover_max", "needs current holdings: set data.holdings".into())),
+        _ => Ok(()),
+    }
+}
+
+fn resolve_groups(raw: &[RawGroup]) -> std::result::Result<Vec<GroupSpec>, (String, String)> {
+    raw.iter().enumerate().map(|(i, g)| resolve_group(i, g)).collect()
+}
+
+fn resolve_group(i: usize, g: &RawGroup) -> std::result::Result<GroupSpec, (String, String)> {
+    let key = |k: &str| format!("limits.groups[{i}].{k}");
+    if g.name.trim().is_empty() {
+        return Err((key("name"), "is required".into()));
+    }
+    let selector = match (&g.tag, &g.assets) {
+        (Some(t), None) => {
+            let (column, value) = t.split_once(':').ok_or_else(|| (key("tag"), format!("must look like `column:value` (e.g. `class:equity`), got `{t}`")))?;
+            GroupSelector::Tag { column: column.trim().to_string(), value: value.trim().to_string() }
+        }
+        (None, Some(a)) if !a.is_empty() => GroupSelector::Assets(a.clone()),
+        _ => return Err((key("tag"), "give exactly one of `tag` or a non-empty `assets` list".into())),
+    };
+    let (min, max) = (g.min.unwrap_or(0.0), g.max.unwrap_or(1.0));
+    if !(min.is_finite() && max.is_finite() && 0.0 <= min && min <= max && max <= 1.0) {
+        return Err((key("min"), format!("need 0 ≤ min ≤ max ≤ 1, got min {min}, max {max}")));
+    }
+    Ok(GroupSpec { name: g.name.clone(), selector, min, max })
+}
+
+fn resolve_cap(c: &RawCap) -> std::result::Result<CapRule, String> {
+    let rule = match (c.value, c.times_current, c.times_min) {
+        (Some(v), None, None) => CapRule::Value(v),
+        (None, Some(v), None) => CapRule::TimesCurrent(v),
+        (None, None, Some(v)) => CapRule::TimesMin(v),
+        _ => return Err("give exactly one of `value`, `times_current`, `times_min`".into()),
+    };
+    let (CapRule::Value(v) | CapRule::TimesCurrent(v) | CapRule::TimesMin(v)) = rule;
+    if !v.is_finite() || (matches!(rule, CapRule::TimesMin(_)) && v < 1.0) || (!matches!(rule, CapRule::Value(_)) && v <= 0.0) {
+        return Err(format!("out of range: {v} (times_min must be ≥ 1, times_current > 0)"));
+    }
+    Ok(rule)
+}
+
+fn resolve_floor(f: &RawFloor) -> std::result::Result<FloorRule, String> {
+    match (f.value, f.plus_current) {
+        (Some(v), None) if v.is_finite() => Ok(FloorRule::Value(v)),
+        (None, Some(v)) if v.is_finite() => Ok(FloorRule::PlusCurrent(v)),
+        _ => Err("give exactly one finite `value` or `plus_current`".into()),
+    }
+}
+
+/// Folder-safe lower-case name: letters and digits kept, everything else becomes single dashes.
+pub fn slug(s: &str) -> String {
+    let mut out = String::new();
+    for c in s.chars() {
+        if c.is_ascii_alphanumeric() {
+            out.push(c.to_ascii_lowercase());
+        } else if !out.ends_with('-') && !out.is_empty() {
+            out.push('-');
+        }
+    }
+    out.trim_end_matches('-').to_string()
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn suggests_nearest_key() {
+        assert_eq!(nearest("horizn", &["horizon", "step"]), Some("horizon"));
+        assert_eq!(nearest("zzzzzzzzz", &["horizon", "step"]), None);
+    }
+
+    #[test]
+    fn slug_is_folder_safe() {
+        assert_eq!(slug("Orrin Hollow (fictional) Fund"), "orrin-hollow-fictional-fund");
+    }
+}

@@ -1,0 +1,100 @@
+//! Typed errors of the library and the exit codes they map to.
+//!
+//! Every error names the file it concerns and, where one exists, the place in it (a config key with its
+//! line, a data row and column). The binary prints them in one place (`main.rs`) with their causes; the
+//! exit code tells a scheduler what kind of failure it was (see README, "Exit codes").
+
+use std::path::{Path, PathBuf};
+
+/// Exit code: the run finished and wrote its pack.
+pub const EXIT_OK: i32 = 0;
+/// Exit code: an unexpected failure (I/O, a solver that could not start, a bug).
+pub const EXIT_FAILURE: i32 = 1;
+/// Exit code: the command line or the config file is wrong.
+pub const EXIT_CONFIG: i32 = 2;
+/// Exit code: the input data failed a blocking data-quality check.
+pub const EXIT_DATA: i32 = 3;
+
+/// Every error the library can return.
+#[derive(Debug, thiserror::Error)]
+pub enum Error {
+    /// A config file that cannot be parsed or whose values are out of range.
+    #[error("config {}: {message}", path.display())]
+    Config { path: PathBuf, message: String },
+    /// An input data file that cannot be read as prices, metadata or holdings.
+    #[error("data {}: {message}", path.display())]
+    Data { path: PathBuf, message: String },
+    /// Data that parsed but failed blocking quality checks; each line names file, place and remedy.
+    #[error("data quality blocks the run:\n  {}", problems.join("\n  "))]
+    Quality { problems: Vec<String> },
+    /// A file-system operation failed.
+    #[error("{action} {}: {source}", path.display())]
+    Io { action: &'static str, path: PathBuf, #[source] source: std::io::Error },
+    /// Anything else that stops a run (e.g. no scenarios could be built).
+    #[error("{0}")]
+    Run(String),
+}
+
+/// Shorthand for results of this library.
+pub type Result<T, E = Error> = std::result::Result<T, E>;
+
+impl Error {
+    /// The documented process exit code for this error.
+    pub fn exit_code(&self) -> i32 {
+        match self {
+            Error::Config { .. } => EXIT_CONFIG,
+            Error::Data { .. } | Error::Quality { .. } => EXIT_DATA,
+            Error::Io { .. } | Error::Run(_) => EXIT_FAILURE,
+        }
+    }
+
+    /// A config error for `path`.
+    pub fn config(path: &Path, message: impl Into<String>) -> Self {
+        Error::Config { path: path.to_path_buf(), message: message.into() }
+    }
+
+    /// A data error for `path`.
+    pub fn data(path: &Path, message: impl Into<String>) -> Self {
+        Error::Data { path: path.to_path_buf(), message: message.into() }
+    }
+}
+
+/// File-system helpers that name the path in every error.
+pub mod fs {
+    use super::{Error, Result};
+    use std::path::Path;
+
+    fn io<'a>(action: &'static str, path: &'a Path) -> impl FnOnce(std::io::Error) -> Error + 'a {
+        move |source| Error::Io { action, path: path.to_path_buf(), source }
+    }
+
+    /// Reads a whole file into bytes.
+    pub fn read(path: &Path) -> Result<Vec<u8>> {
+        std::fs::read(path).map_err(io("cannot read", path))
+    }
+
+    /// Reads a whole file as UTF-8 text.
+    pub fn read_to_string(path: &Path) -> Result<String> {
+        std::fs::read_to_string(path).map_err(io("cannot read", path))
+    }
+
+    /// Writes a whole file.
+    pub fn write(path: &Path, data: impl AsRef<[u8]>) -> Result<()> {
+        std::fs::write(path, data).map_err(io("cannot write", path))
+    }
+
+    /// Creates a folder and its parents.
+    pub fn create_dir_all(path: &Path) -> Result<()> {
+        std::fs::create_dir_all(path).map_err(io("cannot create folder", path))
+    }
+
+    /// Removes a folder and everything in it.
+    pub fn remove_dir_all(path: &Path) -> Result<()> {
+        std::fs::remove_dir_all(path).map_err(io("cannot remove folder", path))
+    }
+
+    /// Renames a file or folder.
+    pub fn rename(from: &Path, to: &Path) -> Result<()> {
+        std::fs::rename(from, to).map_err(io("cannot move into place", to))
+    }
+}

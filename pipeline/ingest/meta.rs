@@ -1,0 +1,115 @@
+//! Asset metadata (class and other tags, per-asset weight bounds) and current holdings.
+
+use super::table::{read_table, TextTable};
+use crate::error::{Error, Result};
+use std::collections::BTreeMap;
+use std::path::Path;
+
+/// Holdings must sum to 1 within this tolerance (stated in README); they are then rescaled to sum exactly 1.
+pub const HOLDINGS_TOLERANCE: f64 = 1e-4;
+
+/// One row of the asset metadata file.
+#[derive(Debug, Clone, serde::Serialize)]
+pub struct AssetMeta {
+    pub asset: String,
+    pub name: String,
+    pub class: String,
+    /// Every other text column, by lower-case column name (e.g. `region`).
+    pub tags: BTreeMap<String, String>,
+    pub min_weight: Option<f64>,
+    pub max_weight: Option<f64>,
+}
+
+impl AssetMeta {
+    /// The value of a tag column (`class` and `name` included).
+    pub fn tag(&self, column: &str) -> Option<&str> {
+        match column {
+            "class" => Some(&self.class),
+            "name" => Some(&self.name),
+            "asset" => Some(&self.asset),
+            other => self.tags.get(other).map(String::as_str),
+        }
+    }
+}
+
+/// Reads the asset metadata file: columns `asset`, `class` required; `name`, `min_weight`, `max_weight` and
+/// any tag columns optional.
+pub fn read_assets(path: &Path) -> Result<Vec<AssetMeta>> {
+    let t = read_table(path)?;
+    let col = |n: &str| t.find(n);
+    let asset = col("asset").ok_or_else(|| Error::data(path, "needs an `asset` column"))?;
+    let class = col("class").ok_or_else(|| Error::data(path, "needs a `class` column (e.g. equity, government, credit, cash)"))?;
+    let mut out: Vec<AssetMeta> = Vec::with_capacity(t.rows());
+    for row in 0..t.rows() {
+        let m = meta_row(path, &t, row, asset, class)?;
+        if out.iter().any(|o| o.asset == m.asset) {
+            return Err(Error::data(path, format!("{}: asset `{}` is listed twice", t.place(row), m.asset)));
+        }
+        out.push(m);
+    }
+    if out.is_empty() {
+        return Err(Error::data(path, "lists no assets"));
+    }
+    Ok(out)
+}
+
+fn meta_row(path: &Path, t: &TextTable, row: usize, asset: usize, class: usize) -> Result<AssetMeta> {
+    let cell = |c: usize| t.columns[c][row].as_deref().map(str::trim).unwrap_or("").to_string();
+    let place = t.place(row);
+    let code = cell(asset);
+    if code.is_empty() {
+        return Err(Error::data(path, format!("{place}, column `asset`: blank asset code")));
+    }
+    let weight = |name: &str| -> Result<Option<f64>> {
+        let Some(c) = t.find(name) else { return Ok(None) };
+        let v = cell(c);
+        if v.is_empty() {
+            return Ok(None);
+        }
+        match v.parse::<f64>() {
+            Ok(w) if w.is_finite() && (0.0..=1.0).contains(&w) => Ok(Some(w)),
+            _ => Err(Error::data(path, format!("{place}, column `{name}`: `{v}` must be a weight between 0 and 1"))),
+        }
+    };
+    let (min_weight, max_weight) = (weight("min_weight")?, weight("max_weight")?);
+    if let (Some(lo), Some(hi)) = (min_weight, max_weight) {
+        if lo > hi {
+            return Err(Error::data(path, format!("{place}: min_weight {lo} is above max_weight {hi} for `{code}`")));
+        }
+    }
+    let reserved = ["asset", "class", "name", "min_weight", "max_weight"];
+    let tags = t.names.iter().enumerate()
+        .filter(|(_, n)| !reserved.contains(&n.trim().to_ascii_lowercase().as_str()))
+        .map(|(c, n)| (n.trim().to_ascii_lowercase(), cell(c)))
+        .collect();
+    let name = t.find("name").map(cell).filter(|n| !n.is_empty()).unwrap_or_else(|| code.clone());
+    Ok(AssetMeta { asset: code, name, class: cell(class).to_ascii_lowercase(), tags, min_weight, max_weight })
+}
+
+/// Reads current holdings (`asset,weight`), checks them against the asset list and returns weights in
+/// `assets` order (absent assets get 0).
+pub fn read_holdings(path: &Path, assets: &[String]) -> Result<Vec<f64>> {
+    let t = read_table(path)?;
+    let a = t.find("asset").ok_or_else(|| Error::data(path, "needs columns `asset,weight`"))?;
+    let w = t.find("weight").ok_or_else(|| Error::data(path, "needs columns `asset,weight`"))?;
+    let mut weights = vec![0.0; assets.len()];
+    let mut seen = vec![false; assets.len()];
+    for row in 0..t.rows() {
+        let place = t.place(row);
+        let code = t.columns[a][row].as_deref().unwrap_or("").trim();
+        let text = t.columns[w][row].as_deref().unwrap_or("").trim();
+        let value: f64 = text.parse().ok().filter(|v: &f64| v.is_finite() && *v >= 0.0)
+            .ok_or_else(|| Error::data(path, format!("{place}, column `weight`: `{text}` must be a non-negative number (long-only holdings)")))?;
+        let i = assets.iter().position(|x| x == code)
+            .ok_or_else(|| Error::data(path, format!("{place}: asset `{code}` is not in the price data (or was dropped by the fill policy)")))?;
+        if std::mem::replace(&mut seen[i], true) {
+            return Err(Error::data(path, format!("{place}: asset `{code}` is listed twice")));
+        }
+        weights[i] = value;
+    }
+    let total: f64 = weights.iter().sum();
+    if (total - 1.0).abs() > HOLDINGS_TOLERANCE {
+        return Err(Error::data(path, format!("weights sum to {total:.6}, not 1 (tolerance {HOLDINGS_TOLERANCE}); fix the file so the holdings are a full portfolio")));
+    }
+    Ok(weights.iter().map(|x| x / total).collect())
+}

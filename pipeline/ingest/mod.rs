@@ -1,0 +1,173 @@
+//! Stage 1, ingest: price history, asset metadata and holdings in; a clean, as-of-cut market data set and
+//! its data-quality report out.
+//!
+//! Rows dated after as-of are removed before any check or computation, so nothing after as-of can reach a
+//! result. This module reads files only through [`table`]; later stages see only [`MarketData`].
+
+pub mod meta;
+pub mod prices;
+pub mod quality;
+pub mod table;
+
+use crate::config::Config;
+use crate::diag::{Check, Level};
+use crate::error::{Error, Result};
+use chrono::{Datelike, Months, NaiveDate, Weekday};
+use meta::AssetMeta;
+use prices::PriceHistory;
+use quality::QualityReport;
+
+/// Fewest scenarios a run accepts: below this a tail quantile is meaningless.
+pub const MIN_SCENARIOS: usize = 20;
+
+/// The market data every later stage works on.
+#[derive(Debug, Clone)]
+pub struct MarketData {
+    pub as_of: NaiveDate,
+    /// First and last observation in the file up to as-of.
+    pub history: (NaiveDate, NaiveDate),
+    /// Dates of the scenario window, ascending, ending at the last observation ≤ as-of.
+    pub dates: Vec<NaiveDate>,
+    /// Assets kept for the run, in price-file order.
+    pub assets: Vec<String>,
+    /// Filled prices of the window, `prices[asset][row]`.
+    pub prices: Vec<Vec<f64>>,
+    /// Metadata aligned with `assets`.
+    pub meta: Vec<AssetMeta>,
+    /// Current holdings aligned with `assets`, if configured.
+    pub holdings: Option<Vec<f64>>,
+    pub quality: QualityReport,
+    pub layout: crate::config::Layout,
+}
+
+/// Reads, cuts at as-of, checks and fills. Blocking quality problems are returned as [`Error::Quality`].
+pub fn load(cfg: &Config, as_of: Option<NaiveDate>) -> Result<MarketData> {
+    let table = table::read_table(&cfg.prices)?;
+    let mut hist = prices::from_table(&cfg.prices, &table, cfg.layout)?;
+    let meta = meta::read_assets(&cfg.assets)?;
+    check_universe(cfg, &hist, &meta)?;
+    let mut findings: Vec<Check> = quality::sort_dates(&mut hist).into_iter().collect();
+    let as_of = resolve_as_of(cfg, &hist, as_of)?;
+    cut_after(&mut hist, as_of);
+    let file = cfg.prices.display().to_string();
+    findings.extend(quality::duplicate_dates(&file, &hist));
+    findings.extend(quality::non_positive(&file, &hist));
+    if quality::worst(&findings) == Level::Fail {
+        return Err(Error::Quality { problems: fails(&findings) });
+    }
+    let data = build(cfg, hist, meta, as_of, findings)?;
+    let problems = data.quality.failures();
+    if !problems.is_empty() {
+        return Err(Error::Quality { problems });
+    }
+    Ok(data)
+}
+
+fn fails(findings: &[Check]) -> Vec<String> {
+    findings.iter().filter(|f| f.level == Level::Fail).map(|f| f.message.clone()).collect()
+}
+
+fn check_universe(cfg: &Config, hist: &PriceHistory, meta: &[AssetMeta]) -> Result<()> {
+    if let Some(a) = hist.assets.iter().find(|a| !meta.iter().any(|m| &m.asset == *a)) {
+        return Err(Error::data(&cfg.assets, format!("has no row for asset `{a}`, which is in the price file {}; every priced asset needs metadata (at least its class)", cfg.prices.display())));
+    }
+    if let Some(m) = meta.iter().find(|m| !hist.assets.contains(&m.asset)) {
+        return Err(Error::data(&cfg.assets, format!("lists asset `{}`, which has no column in the price file {}; remove the row or add its prices", m.asset, cfg.prices.display())));
+    }
+    if let Some(x) = cfg.exclude.iter().find(|x| !hist.assets.contains(x)) {
+        return Err(Error::config(&cfg.path, format!("limits.exclude: unknown asset `{x}`")));
+    }
+    Ok(())
+}
+
+/// As given (must lie within the data), or the latest month-end in the data.
+fn resolve_as_of(cfg: &Config, hist: &PriceHistory, given: Option<NaiveDate>) -> Result<NaiveDate> {
+    let (first, last) = (hist.dates[0], *hist.dates.last().expect("non-empty"));
+    match given {
+        Some(d) if d < first || d > last => Err(Error::config(&cfg.path, format!(
+            "as-of {d} is outside the price data, which runs from {first} to {last} ({})", cfg.prices.display()))),
+        Some(d) => Ok(d),
+        None => Ok(default_as_of(&hist.dates)),
+    }
+}
+
+/// The last observation of the latest complete calendar month: the last date itself when no business day
+/// of its month follows it, otherwise the last observation of the month before.
+pub fn default_as_of(dates: &[NaiveDate]) -> NaiveDate {
+    let last = *dates.last().expect("non-empty");
+    if is_last_business_day(last) {
+        return last;
+    }
+    let month_start = last.with_day(1).expect("day 1 exists");
+    dates.iter().rev().find(|d| **d < month_start).copied().unwrap_or(last)
+}
+
+fn is_last_business_day(d: NaiveDate) -> bool {
+    let mut next = d.succ_opt().expect("date in range");
+    while matches!(next.weekday(), Weekday::Sat | Weekday::Sun) {
+        next = next.succ_opt().expect("date in range");
+    }
+    next.month() != d.month()
+}
+
+fn cut_after(h: &mut PriceHistory, as_of: NaiveDate) {
+    let keep = h.dates.partition_point(|d| *d <= as_of);
+    h.dates.truncate(keep);
+    h.places.truncate(keep);
+    for col in &mut h.values {
+        col.truncate(keep);
+    }
+}
+
+fn build(cfg: &Config, hist: PriceHistory, meta: Vec<AssetMeta>, as_of: NaiveDate, mut findings: Vec<Check>) -> Result<MarketData> {
+    let window_start = as_of.checked_sub_months(Months::new(12 * cfg.scenarios.lookback_years)).unwrap_or(hist.dates[0]);
+    let start = hist.dates.partition_point(|d| *d < window_start);
+    if start == 0 && hist.dates[0] > window_start {
+        findings.push(Check::warn("quality.lookback", format!(
+            "the price history starts on {}, after the lookback start {window_start} ({} years before as-of); all of it is used",
+            hist.dates[0], cfg.scenarios.lookback_years)));
+    }
+    let (mut assets, mut prices, mut metas, mut per_asset) = (vec![], vec![], vec![], vec![]);
+    for (a, series) in hist.assets.iter().zip(&hist.values) {
+        let f = quality::fill_asset(a, series, start, &cfg.quality);
+        findings.extend(f.note);
+        if !f.quality.dropped {
+            assets.push(a.clone());
+            prices.push(f.values);
+            metas.push(meta.iter().find(|m| &m.asset == a).expect("checked").clone());
+        }
+        per_asset.push(f.quality);
+    }
+    let dates = hist.dates[start..].to_vec();
+    findings.extend(quality::series_findings(&per_asset, &cfg.quality));
+    findings.push(window_check(dates.len(), cfg.scenarios.horizon, cfg.scenarios.step));
+    if assets.is_empty() {
+        findings.push(Check::fail("quality.no_assets", "every asset was dropped by the fill policy; nothing to optimise"));
+    } else {
+        findings.push(quality::history_length(dates.len(), assets.len(), cfg.scenarios.horizon, &cfg.quality));
+    }
+    let holdings = match &cfg.holdings {
+        Some(p) if !assets.is_empty() => Some(meta::read_holdings(p, &assets)?),
+        _ => None,
+    };
+    let quality = QualityReport {
+        fill_policy: format!("forward-fill up to {} consecutive missing observations, else drop the asset", cfg.quality.max_fill),
+        window_start: dates.first().copied().unwrap_or(as_of),
+        window_end: dates.last().copied().unwrap_or(as_of),
+        observations: dates.len(),
+        assets: per_asset,
+        findings,
+    };
+    let history = (hist.dates[0], *hist.dates.last().expect("non-empty"));
+    Ok(MarketData { as_of, history, dates, assets, prices, meta: metas, holdings, quality, layout: hist.layout })
+}
+
+fn window_check(rows: usize, horizon: usize, step: usize) -> Check {
+    let scenarios = if rows > horizon { (rows - horizon - 1) / step + 1 } else { 0 };
+    if scenarios < MIN_SCENARIOS {
+        Check::fail("quality.too_few_scenarios", format!(
+            "the window has {rows} observations, giving {scenarios} scenarios of horizon {horizon} (step {step}); at least {MIN_SCENARIOS} are needed: lengthen scenarios.lookback_years, shorten scenarios.horizon or supply more history"))
+    } else {
+        Check::pass("quality.scenario_count", format!("{scenarios} scenarios from {rows} observations (horizon {horizon}, step {step})"))
+    }
+}

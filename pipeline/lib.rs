@@ -1,0 +1,26 @@
+//! tailpack: month-end prices in, a committee-ready CVaR risk and allocation pack out.
+//!
+//! Data flows one way through one module per stage; a stage only reads the outputs of earlier stages:
+//! - [`config`]: the YAML config, validated and resolved (paths, ranges, unknown keys).
+//! - [`ingest`]: price history, asset metadata and holdings; as-of cut; data-quality report and fill policy.
+//! - [`scenarios`]: overlapping horizon windows of returns and their probabilities.
+//! - [`risk`]: VaR, CVaR, component CVaR and other statistics of any weight vector.
+//! - [`models`]: the three CVaR model families as LPs (HiGHS or Clarabel), with their preconditions.
+//! - [`run`]: wires the stages into one run and resolves rules that depend on earlier results.
+//! - [`pack`]: writes the pack folder (scenarios, results, weights, summary).
+//! - [`commands`]: one function per CLI subcommand; the binary is a thin layer over these.
+//!
+//! Cross-cutting: [`error`] (typed errors, exit codes, path-naming file helpers), [`diag`] (findings that
+//! travel with results), [`demo`] (the deterministic generator of the invented demo data).
+
+pub mod commands;
+pub mod config;
+pub mod demo;
+pub mod diag;
+pub mod error;
+pub mod ingest;
+pub mod models;
+pub mod pack;
+pub mod risk;
+pub mod run;
+pub mod scenarios;

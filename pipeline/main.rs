@@ -1,0 +1,70 @@
+//! The `tailpack` binary: parses arguments, calls one library function per subcommand, prints the result
+//! or the error (once, with its causes), and exits with the documented code.
+
+use clap::{Parser, Subcommand};
+use std::path::PathBuf;
+use tailpack::config::Backend;
+use tailpack::run::RunOptions;
+
+#[derive(Parser)]
+#[command(name = "tailpack", version, about = "Monthly CVaR risk and allocation packs for an investment committee")]
+struct Cli {
+    #[command(subcommand)]
+    command: Command,
+}
+
+#[derive(Subcommand)]
+enum Command {
+    /// Build the pack for one month-end: scenarios, the three CVaR models, results and summary.
+    Run {
+        /// The fund's YAML config.
+        config: PathBuf,
+        /// Pack root folder (overrides output.root).
+        #[arg(long)]
+        out: Option<PathBuf>,
+        /// As-of date YYYY-MM-DD (default: the latest month-end in the data).
+        #[arg(long)]
+        as_of: Option<chrono::NaiveDate>,
+        /// LP backend: highs (simplex, default) or clarabel (interior point).
+        #[arg(long)]
+        solver: Option<Backend>,
+        /// No progress output on stderr.
+        #[arg(long)]
+        quiet: bool,
+    },
+    /// Validate the config and data and print the data-quality report; non-zero exit on errors.
+    Check {
+        config: PathBuf,
+        #[arg(long)]
+        as_of: Option<chrono::NaiveDate>,
+    },
+    /// Regenerate the invented demo data (prices, assets, holdings) into a folder.
+    DemoData {
+        /// Target folder, e.g. config-demo/data.
+        dir: PathBuf,
+    },
+}
+
+fn main() {
+    let cli = Cli::parse();
+    let result = match &cli.command {
+        Command::Run { config, out, as_of, solver, quiet } => {
+            let opts = RunOptions { as_of: *as_of, out: out.clone(), backend: *solver };
+            tailpack::commands::run(config, &opts, &tailpack::commands::Progress::new(*quiet))
+        }
+        Command::Check { config, as_of } => tailpack::commands::check(config, &RunOptions { as_of: *as_of, ..Default::default() }),
+        Command::DemoData { dir } => tailpack::commands::demo_data(dir),
+    };
+    match result {
+        Ok(text) => print!("{text}"),
+        Err(e) => {
+            eprintln!("error: {e}");
+            let mut source = std::error::Error::source(&e);
+            while let Some(s) = source {
+                eprintln!("  caused by: {s}");
+                source = s.source();
+            }
+            std::process::exit(e.exit_code());
+        }
+    }
+}

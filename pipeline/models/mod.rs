@@ -1,0 +1,272 @@
+//! Stage 4, models: the three CVaR model families as linear programs on one feasible set X.
+//!
+//! - `max_return`: maximise μ·x subject to x ∈ X and CVaR_c(x) ≤ cap.
+//! - `min_cvar`: minimise CVaR_c(x) subject to x ∈ X and μ·x ≥ floor.
+//! - `max_ratio`: maximise μ·x / CVaR_c(x) over X as one LP by the Charnes & Cooper (1962) change of
+//!   variables t = 1/CVaR, z = t·x applied to the Rockafellar & Uryasev (2000) linearisation: maximise μ·z
+//!   subject to ℓ + 1/(1−c) Σ p_k u_k ≤ 1, u_k ≥ −r_k·z − ℓ, u ≥ 0, and X's rows multiplied through by t.
+//!   Valid only when CVaR > 0 on all of X and some x ∈ X has μ·x > 0 (then the optimal ratio is positive
+//!   and the denominator row binds); both are checked by auxiliary LPs every run.
+//!
+//! Every reported optimum is re-checked against its constraints in code ([`verify`]).
+
+pub mod lp;
+
+use crate::config::Backend;
+use crate::risk;
+use crate::scenarios::ScenarioSet;
+use lp::{Failure, Lp, Solved};
+use serde::Serialize;
+
+/// Tolerance of the post-solve feasibility check on reported portfolios.
+pub const FEASIBILITY_TOLERANCE: f64 = 1e-7;
+/// Below this, a Charnes–Cooper scale t is treated as zero (the ratio would be ill-defined).
+pub const MIN_SCALE: f64 = 1e-9;
+
+/// A group limit with resolved member indices.
+#[derive(Debug, Clone, Serialize)]
+pub struct Group {
+    pub name: String,
+    pub members: Vec<usize>,
+    pub min: f64,
+    pub max: f64,
+}
+
+/// The feasible set X shared by all models.
+#[derive(Debug, Clone)]
+pub struct FeasibleSet {
+    pub lower: Vec<f64>,
+    pub upper: Vec<f64>,
+    pub groups: Vec<Group>,
+    pub turnover_max: Option<f64>,
+    pub current: Option<Vec<f64>>,
+}
+
+/// One problem instance: scenarios, their mean, the model confidence and X.
+pub struct Problem<'a> {
+    pub set: &'a ScenarioSet,
+    pub mu: Vec<f64>,
+    pub confidence: f64,
+    pub feasible: &'a FeasibleSet,
+    pub backend: Backend,
+}
+
+/// How a model run ended.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+#[serde(rename_all = "snake_case")]
+pub enum Status {
+    Optimal,
+    Infeasible,
+    NotApplicable,
+    SolverError,
+}
+
+impl Status {
+    /// The word written to results.json.
+    pub fn word(&self) -> &'static str {
+        match self {
+            Status::Optimal => "optimal",
+            Status::Infeasible => "infeasible",
+            Status::NotApplicable => "not_applicable",
+            Status::SolverError => "solver_error",
+        }
+    }
+}
+
+/// The outcome of one model.
+#[derive(Debug, Clone)]
+pub struct Outcome {
+    pub status: Status,
+    /// Why it is not optimal, or remarks on an optimal solution.
+    pub message: Option<String>,
+    pub weights: Option<Vec<f64>>,
+    /// The LP objective: μ·x, CVaR, or the ratio.
+    pub objective: Option<f64>,
+    /// Charnes–Cooper scale t at the optimum (max_ratio only).
+    pub scale: Option<f64>,
+    /// Largest constraint violation found by the post-solve check.
+    pub max_violation: Option<f64>,
+}
+
+impl Outcome {
+    fn failed(status: Status, message: String) -> Outcome {
+        Outcome { status, message: Some(message), weights: None, objective: None, scale: None, max_violation: None }
+    }
+}
+
+impl Problem<'_> {
+    /// Maximise μ·x over X, with CVaR_c(x) ≤ cap when a cap is given.
+    pub fn max_return(&self, cap: Option<f64>) -> Result<Solved, Failure> {
+        let mut lp = Lp::new(self.feasible, false);
+        if let Some(cap) = cap {
+            let cvar = lp.cvar(self.set, self.confidence);
+            lp.push(cvar.leq(cap));
+        }
+        let obj = lp.expected_return(&self.mu);
+        lp.solve(obj, true, self.backend)
+    }
+
+    /// Minimise CVaR_c(x) over X, with μ·x ≥ floor when a floor is given.
+    pub fn min_cvar(&self, floor: Option<f64>) -> Result<Solved, Failure> {
+        let mut lp = Lp::new(self.feasible, false);
+        if let Some(floor) = floor {
+            let ret = lp.expected_return(&self.mu);
+            lp.push(ret.geq(floor));
+        }
+        let obj = lp.cvar(self.set, self.confidence);
+        lp.solve(obj, false, self.backend)
+    }
+
+    /// The Charnes–Cooper LP: maximise μ·z with the scaled CVaR ≤ 1 and X scaled by t; returns z/t.
+    pub fn max_ratio(&self) -> Result<Solved, Failure> {
+        let mut lp = Lp::new(self.feasible, true);
+        let cvar = lp.cvar(self.set, self.confidence);
+        lp.push(cvar.leq(1.0));
+        let obj = lp.expected_return(&self.mu);
+        let mut solved = lp.solve(obj, true, self.backend)?;
+        let t = solved.scale.unwrap_or(0.0);
+        if t <= MIN_SCALE {
+            return Err(Failure::Solver(format!("Charnes–Cooper scale t = {t:e} is not bounded away from 0")));
+        }
+        solved.weights.iter_mut().for_each(|z| *z /= t);
+        Ok(solved)
+    }
+}
+
+/// The max_ratio preconditions, from the two auxiliary LPs.
+#[derive(Debug, Clone, Serialize)]
+pub struct Preconditions {
+    /// min CVaR_c over X (must be > 0).
+    pub min_cvar: Option<f64>,
+    /// max μ·x over X (must be > 0).
+    pub max_return: Option<f64>,
+    pub holds: bool,
+    pub reason: Option<String>,
+}
+
+/// Checks CVaR > 0 on all of X (via the minimum) and that some x ∈ X has μ·x > 0.
+pub fn preconditions(min_cvar: Option<f64>, max_return: Option<f64>) -> Preconditions {
+    let reason = match (min_cvar, max_return) {
+        (None, _) | (_, None) => Some("the feasible set X is empty, so neither precondition can be established".to_string()),
+        (Some(m), _) if m <= 0.0 => Some(format!(
+            "the minimum CVaR over the feasible set is {m:.6} ≤ 0 (a portfolio with no tail loss exists, e.g. a riskless asset allowed at full weight), so the return/CVaR ratio is unbounded or undefined and the Charnes–Cooper LP does not apply")),
+        (_, Some(r)) if r <= 0.0 => Some(format!(
+            "the maximum expected return over the feasible set is {r:.6} ≤ 0, so no portfolio has a positive return/CVaR ratio and the Charnes–Cooper LP does not apply")),
+        _ => None,
+    };
+    Preconditions { min_cvar, max_return, holds: reason.is_none(), reason }
+}
+
+/// Largest violation of X's constraints (and optional cap/floor) by weights `x`.
+pub fn verify(p: &Problem, x: &[f64], cap: Option<f64>, floor: Option<f64>) -> f64 {
+    let fs = p.feasible;
+    let mut worst = (x.iter().sum::<f64>() - 1.0).abs();
+    for i in 0..x.len() {
+        worst = worst.max(fs.lower[i] - x[i]).max(x[i] - fs.upper[i]);
+    }
+    for g in &fs.groups {
+        let s: f64 = g.members.iter().map(|&i| x[i]).sum();
+        worst = worst.max(g.min - s).max(s - g.max);
+    }
+    if let (Some(tau), Some(cur)) = (fs.turnover_max, &fs.current) {
+        worst = worst.max(turnover(x, cur) - tau);
+    }
+    if let Some(cap) = cap {
+        worst = worst.max(risk::cvar_of(p.set, x, p.confidence) - cap);
+    }
+    if let Some(floor) = floor {
+        worst = worst.max(floor - dot(&p.mu, x));
+    }
+    worst.max(0.0)
+}
+
+/// Σ|x − current|.
+pub fn turnover(x: &[f64], current: &[f64]) -> f64 {
+    x.iter().zip(current).map(|(a, b)| (a - b).abs()).sum()
+}
+
+/// Inner product.
+pub fn dot(a: &[f64], b: &[f64]) -> f64 {
+    a.iter().zip(b).map(|(x, y)| x * y).sum()
+}
+
+/// Removes solver round-off: values within 1e-12 of a bound are set to the bound.
+pub fn tidy(x: &mut [f64], fs: &FeasibleSet) {
+    for (i, w) in x.iter_mut().enumerate() {
+        if (*w - fs.lower[i]).abs() < 1e-12 {
+            *w = fs.lower[i];
+        } else if (*w - fs.upper[i]).abs() < 1e-12 {
+            *w = fs.upper[i];
+        }
+    }
+}
+
+/// Turns an LP result into an outcome, with the post-solve check; `diagnose` explains infeasibility.
+pub fn outcome(p: &Problem, r: Result<Solved, Failure>, cap: Option<f64>, floor: Option<f64>, diagnose: impl FnOnce() -> String) -> Outcome {
+    match r {
+        Ok(mut s) => {
+            tidy(&mut s.weights, p.feasible);
+            let v = verify(p, &s.weights, cap, floor);
+            let message = (v > FEASIBILITY_TOLERANCE).then(|| format!(
+                "the solver's portfolio violates a constraint by {v:.2e} (tolerance {FEASIBILITY_TOLERANCE:e}); treat with care"));
+            Outcome { status: Status::Optimal, message, objective: Some(s.objective), scale: s.scale, weights: Some(s.weights), max_violation: Some(v) }
+        }
+        Err(Failure::Infeasible) => Outcome::failed(Status::Infeasible, diagnose()),
+        Err(Failure::Unbounded) => Outcome::failed(Status::SolverError, "the solver reports the problem unbounded".into()),
+        Err(Failure::Solver(m)) => Outcome::failed(Status::SolverError, format!("solver: {m}")),
+    }
+}
+
+/// Explains why X itself is empty by checking simple sums and then relaxing one constraint family at a
+/// time. Returns `None` when X is not empty.
+pub fn explain_empty(fs: &FeasibleSet, names: &[String], backend: Backend) -> Option<String> {
+    let lo: f64 = fs.lower.iter().sum();
+    let hi: f64 = fs.upper.iter().sum();
+    if lo > 1.0 + 1e-12 {
+        return Some(format!("the per-asset minimum weights sum to {lo:.4} > 1 (budget Σx = 1)"));
+    }
+    if hi < 1.0 - 1e-12 {
+        return Some(format!("the per-asset maximum weights sum to {hi:.4} < 1 (budget Σx = 1); raise limits.default_max or max_weight"));
+    }
+    for g in &fs.groups {
+        let cap: f64 = g.members.iter().map(|&i| fs.upper[i]).sum();
+        let floor: f64 = g.members.iter().map(|&i| fs.lower[i]).sum();
+        if g.min > cap + 1e-12 {
+            return Some(format!("group `{}` needs at least {:.4} but its members' maximum weights sum to {cap:.4}", g.name, g.min));
+        }
+        if g.max < floor - 1e-12 {
+            return Some(format!("group `{}` allows at most {:.4} but its members' minimum weights sum to {floor:.4}", g.name, g.max));
+        }
+    }
+    if is_feasible(fs, backend) {
+        return None;
+    }
+    Some(relaxation_hint(fs, names, backend))
+}
+
+fn is_feasible(fs: &FeasibleSet, backend: Backend) -> bool {
+    let lp = Lp::new(fs, false);
+    lp.solve(Default::default(), false, backend).is_ok()
+}
+
+fn relaxation_hint(fs: &FeasibleSet, _names: &[String], backend: Backend) -> String {
+    let mut culprits = Vec::new();
+    if let Some(tau) = fs.turnover_max {
+        let relaxed = FeasibleSet { turnover_max: None, ..fs.clone() };
+        if is_feasible(&relaxed, backend) {
+            culprits.push(format!("the turnover limit limits.turnover_max = {tau}"));
+        }
+    }
+    for (gi, g) in fs.groups.iter().enumerate() {
+        let mut relaxed = fs.clone();
+        relaxed.groups.remove(gi);
+        if is_feasible(&relaxed, backend) {
+            culprits.push(format!("group `{}` (min {}, max {})", g.name, g.min, g.max));
+        }
+    }
+    if culprits.is_empty() {
+        "the budget, bounds, group limits and turnover limit cannot hold together; no single limit is to blame".into()
+    } else {
+        format!("the constraints cannot hold together; it becomes feasible without {}", culprits.join(", or without "))
+    }
+}

@@ -1,0 +1,296 @@
+//! Stage 5, pack: writes a run's results into its pack folder — `scenarios.csv`, `results.json`,
+//! `weights.csv`, `summary.txt` — and prints the summary.
+//!
+//! The folder layout is a contract read by outside checkers (README, "The pack folder"). The folder is
+//! built under a temporary name beside its final place and renamed into place only when complete, so a
+//! failed or interrupted run never leaves a partial pack behind.
+
+use crate::error::{fs, Result};
+use crate::models::Status;
+use crate::run::{ModelReport, RunResult};
+use serde_json::{json, Map, Value};
+use sha2::{Digest, Sha256};
+use std::fmt::Write as _;
+use std::path::{Path, PathBuf};
+
+/// An input file with its digest.
+#[derive(Debug, Clone, serde::Serialize)]
+pub struct InputFile {
+    pub role: &'static str,
+    pub path: String,
+    pub sha256: String,
+    pub bytes: u64,
+}
+
+/// SHA-256 of a file as lower-case hex, read in blocks.
+pub fn sha256_file(path: &Path) -> Result<(String, u64)> {
+    use std::io::Read;
+    let mut f = std::fs::File::open(path).map_err(|source| crate::error::Error::Io { action: "cannot open", path: path.into(), source })?;
+    let (mut h, mut buf, mut total) = (Sha256::new(), vec![0u8; 1 << 16], 0u64);
+    loop {
+        let n = f.read(&mut buf).map_err(|source| crate::error::Error::Io { action: "cannot read", path: path.into(), source })?;
+        if n == 0 {
+            break;
+        }
+        h.update(&buf[..n]);
+        total += n as u64;
+    }
+    Ok((hex(&h.finalize()), total))
+}
+
+/// Lower-case hex encoding.
+pub fn hex(bytes: &[u8]) -> String {
+    bytes.iter().fold(String::with_capacity(bytes.len() * 2), |mut s, b| {
+        let _ = write!(s, "{b:02x}");
+        s
+    })
+}
+
+/// Digests of every input of the run.
+pub fn inputs(r: &RunResult) -> Result<Vec<InputFile>> {
+    let c = &r.config;
+    let mut list = vec![("config", c.path.clone()), ("prices", c.prices.clone()), ("assets", c.assets.clone())];
+    if let Some(h) = &c.holdings {
+        list.push(("holdings", h.clone()));
+    }
+    list.into_iter().map(|(role, p)| {
+        let (sha256, bytes) = sha256_file(&p)?;
+        Ok(InputFile { role, path: p.display().to_string(), sha256, bytes })
+    }).collect()
+}
+
+/// Provisional pack identifier: SHA-256 over the lines `role sha256` of the inputs, plus the as-of date.
+pub fn pack_id(inputs: &[InputFile], as_of: &str) -> String {
+    let mut h = Sha256::new();
+    for i in inputs {
+        h.update(format!("{} {}\n", i.role, i.sha256).as_bytes());
+    }
+    h.update(format!("as_of {as_of}\n").as_bytes());
+    hex(&h.finalize())
+}
+
+/// `scenarios.csv`: `scenario[,probability],<assets…>`, one row per scenario, round-trip f64 text.
+pub fn scenarios_csv(r: &RunResult) -> String {
+    let s = &r.scenarios;
+    let mut out = String::with_capacity(s.len() * s.width() * 22);
+    out.push_str("scenario");
+    if !s.equal_probabilities {
+        out.push_str(",probability");
+    }
+    for a in &s.assets {
+        out.push(',');
+        out.push_str(a);
+    }
+    out.push('\n');
+    for k in 0..s.len() {
+        out.push_str(&s.label(k));
+        if !s.equal_probabilities {
+            let _ = write!(out, ",{:?}", s.probabilities[k]);
+        }
+        for v in s.row(k) {
+            let _ = write!(out, ",{v:?}");
+        }
+        out.push('\n');
+    }
+    out
+}
+
+/// `weights.csv`: one row per asset; columns current (if any) and each model (blank when not optimal).
+pub fn weights_csv(r: &RunResult) -> String {
+    let mut out = String::from("asset,class");
+    if r.data.holdings.is_some() {
+        out.push_str(",current");
+    }
+    for m in &r.models {
+        let _ = write!(out, ",{}", m.name);
+    }
+    out.push('\n');
+    for (i, a) in r.data.assets.iter().enumerate() {
+        let _ = write!(out, "{a},{}", r.data.meta[i].class);
+        if let Some(h) = &r.data.holdings {
+            let _ = write!(out, ",{:?}", h[i]);
+        }
+        for m in &r.models {
+            match &m.outcome.weights {
+                Some(w) => { let _ = write!(out, ",{:?}", w[i]); }
+                None => out.push(','),
+            }
+        }
+        out.push('\n');
+    }
+    out
+}
+
+fn weight_map(assets: &[String], w: &[f64]) -> Value {
+    Value::Object(assets.iter().zip(w).map(|(a, x)| (a.clone(), json!(x))).collect())
+}
+
+fn model_json(r: &RunResult, m: &ModelReport) -> Value {
+    let c = r.config.confidence;
+    let mut o = Map::new();
+    o.insert("status".into(), json!(m.outcome.status.word()));
+    if let Some(msg) = &m.outcome.message {
+        o.insert("message".into(), json!(msg));
+    }
+    if let (Some(w), Some(pr)) = (&m.outcome.weights, &m.profile) {
+        let t = pr.at(c);
+        o.insert("weights".into(), weight_map(&r.data.assets, w));
+        o.insert("expected_return".into(), json!(pr.expected_return));
+        o.insert("var".into(), json!(t.var));
+        o.insert("cvar".into(), json!(t.cvar));
+        if m.name == "max_ratio" {
+            o.insert("ratio".into(), json!(m.outcome.objective));
+            o.insert("scale_t".into(), json!(m.outcome.scale));
+        }
+        o.insert("objective".into(), json!(m.outcome.objective));
+        o.insert("turnover".into(), json!(m.turnover));
+        o.insert("at_upper_bound".into(), json!(m.at_upper));
+        o.insert("at_lower_bound".into(), json!(m.at_lower));
+        o.insert("max_violation".into(), json!(m.outcome.max_violation));
+        o.insert("risk".into(), risk_json(r, pr));
+    }
+    Value::Object(o)
+}
+
+fn risk_json(r: &RunResult, pr: &crate::risk::RiskProfile) -> Value {
+    let classes: Vec<String> = r.data.meta.iter().map(|m| m.class.clone()).collect();
+    let by_class = crate::risk::by_group(&pr.component_cvar, &classes);
+    json!({
+        "expected_return": pr.expected_return,
+        "volatility": pr.volatility,
+        "levels": pr.tails,
+        "component_cvar": weight_map(&r.data.assets, &pr.component_cvar),
+        "component_cvar_by_class": Value::Object(by_class.into_iter().map(|(k, v)| (k, json!(v))).collect()),
+        "worst_loss": pr.worst_loss,
+        "worst_scenario": pr.worst_scenario,
+        "effective_holdings": pr.effective_holdings,
+    })
+}
+
+fn constraints_json(r: &RunResult) -> Value {
+    let a = &r.data.assets;
+    let fs = &r.feasible;
+    let groups: Vec<Value> = fs.groups.iter().map(|g| json!({
+        "name": g.name, "members": g.members.iter().map(|&i| &a[i]).collect::<Vec<_>>(), "min": g.min, "max": g.max,
+    })).collect();
+    json!({
+        "lower": weight_map(a, &fs.lower),
+        "upper": weight_map(a, &fs.upper),
+        "groups": groups,
+        "turnover_max": fs.turnover_max,
+        "current": fs.current.as_ref().map(|c| weight_map(a, c)),
+        "cvar_cap": r.cvar_cap,
+        "return_floor": r.return_floor,
+        "excluded": r.config.exclude,
+    })
+}
+
+/// The full `results.json` document.
+pub fn results_json(r: &RunResult, inputs: &[InputFile], pack_id: &str) -> Value {
+    let models: Map<String, Value> = r.models.iter().map(|m| (m.name.to_string(), model_json(r, m))).collect();
+    let s = &r.scenarios;
+    json!({
+        "tool": {"name": "tailpack", "version": env!("CARGO_PKG_VERSION")},
+        "pack_id": pack_id,
+        "fund": {"name": r.config.fund.name, "short_name": r.config.short_name,
+                 "prepared_for": r.config.fund.prepared_for, "prepared_by": r.config.fund.prepared_by},
+        "as_of": r.data.as_of.to_string(),
+        "confidence": r.config.confidence,
+        "tail_fraction": 1.0 - r.config.confidence,
+        "levels": r.config.levels,
+        "assets": r.data.assets,
+        "classes": r.data.meta.iter().map(|m| &m.class).collect::<Vec<_>>(),
+        "constraints": constraints_json(r),
+        "preconditions": r.preconditions,
+        "models": models,
+        "current": r.current.as_ref().map(|pr| risk_json(r, pr)),
+        "scenarios": {"count": s.len(), "horizon": s.horizon, "step": s.step, "first_start": s.starts.first().map(|d| d.to_string()),
+                      "last_end": s.ends.last().map(|d| d.to_string()), "equal_probabilities": s.equal_probabilities,
+                      "half_life": r.config.scenarios.half_life, "lookback_years": r.config.scenarios.lookback_years},
+        "data_quality": r.data.quality,
+        "history": {"first": r.data.history.0.to_string(), "last": r.data.history.1.to_string(), "layout": r.data.layout},
+        "checks": r.checks,
+        "solver": {"backend": r.backend.name(), "description": crate::models::lp::backend_description(r.backend)},
+        "inputs": inputs,
+    })
+}
+
+fn pct(x: f64) -> String {
+    format!("{:+.2}%", x * 100.0)
+}
+
+/// The short text summary printed to stdout and kept as `summary.txt`.
+pub fn summary(r: &RunResult, dir: &Path) -> String {
+    let c = r.config.confidence;
+    let mut s = String::new();
+    let _ = writeln!(s, "{} — as of {} — {} scenarios of {} observations, {} assets, CVaR at {:.1}%",
+        r.config.fund.name, r.data.as_of, r.scenarios.len(), r.scenarios.horizon, r.data.assets.len(), c * 100.0);
+    let _ = writeln!(s, "{:<12} {:<15} {:>10} {:>10} {:>10} {:>9} {:>9}", "portfolio", "status", "exp.return", "VaR", "CVaR", "turnover", "eff.hold");
+    if let Some(pr) = &r.current {
+        let t = pr.at(c);
+        let _ = writeln!(s, "{:<12} {:<15} {:>10} {:>10} {:>10} {:>9} {:>9.1}", "current", "-", pct(pr.expected_return), pct(t.var), pct(t.cvar), "-", pr.effective_holdings);
+    }
+    for m in &r.models {
+        match &m.profile {
+            Some(pr) => {
+                let t = pr.at(c);
+                let turn = m.turnover.map_or("-".into(), |v| format!("{:.1}%", v * 100.0));
+                let _ = writeln!(s, "{:<12} {:<15} {:>10} {:>10} {:>10} {:>9} {:>9.1}", m.name, m.outcome.status.word(), pct(pr.expected_return), pct(t.var), pct(t.cvar), turn, pr.effective_holdings);
+            }
+            None => { let _ = writeln!(s, "{:<12} {:<15} {}", m.name, m.outcome.status.word(), m.outcome.message.as_deref().unwrap_or("")); }
+        }
+    }
+    if let Some(m) = r.models.iter().find(|m| m.name == "max_ratio" && m.outcome.status == Status::Optimal) {
+        let _ = writeln!(s, "max_ratio: expected return / CVaR = {:.4}", m.outcome.objective.unwrap_or(f64::NAN));
+    }
+    let warns = r.checks.iter().filter(|c| c.level == crate::diag::Level::Warn).count();
+    let fails = r.checks.iter().filter(|c| c.level == crate::diag::Level::Fail).count();
+    let _ = writeln!(s, "checks: {} pass, {warns} warn, {fails} fail (see results.json \"checks\")", r.checks.len() - warns - fails);
+    for c in r.checks.iter().filter(|c| c.level != crate::diag::Level::Pass) {
+        let _ = writeln!(s, "  {}: {}", c.level.word(), c.message);
+    }
+    let _ = writeln!(s, "pack: {}", dir.display());
+    s
+}
+
+/// Where the pack of this run goes: `<root>/<fund short name>/<as-of>`.
+pub fn pack_dir(r: &RunResult) -> PathBuf {
+    r.config.out_root.join(&r.config.short_name).join(r.data.as_of.to_string())
+}
+
+/// Writes the whole pack atomically and returns its folder and the summary text.
+pub fn write(r: &RunResult) -> Result<(PathBuf, String)> {
+    let dir = pack_dir(r);
+    let parent = dir.parent().expect("pack dir has a parent").to_path_buf();
+    fs::create_dir_all(&parent)?;
+    let tmp = parent.join(format!(".partial-{}-{}", r.data.as_of, std::process::id()));
+    if tmp.exists() {
+        fs::remove_dir_all(&tmp)?;
+    }
+    fs::create_dir_all(&tmp)?;
+    let result = fill(r, &tmp, &dir);
+    if result.is_err() {
+        let _ = std::fs::remove_dir_all(&tmp);
+    }
+    let text = result?;
+    if dir.exists() {
+        fs::remove_dir_all(&dir)?;
+    }
+    fs::rename(&tmp, &dir)?;
+    let shown = std::fs::canonicalize(&dir).unwrap_or(dir.clone());
+    let text = text.replace(&format!("pack: {}", dir.display()), &format!("pack: {}", shown.display()));
+    fs::write(&shown.join("summary.txt"), &text)?;
+    Ok((shown, text))
+}
+
+fn fill(r: &RunResult, tmp: &Path, dir: &Path) -> Result<String> {
+    let inputs = inputs(r)?;
+    let id = pack_id(&inputs, &r.data.as_of.to_string());
+    fs::write(&tmp.join("scenarios.csv"), scenarios_csv(r))?;
+    fs::write(&tmp.join("weights.csv"), weights_csv(r))?;
+    let json = serde_json::to_string_pretty(&results_json(r, &inputs, &id)).expect("results serialise");
+    fs::write(&tmp.join("results.json"), json + "\n")?;
+    let text = summary(r, dir);
+    fs::write(&tmp.join("summary.txt"), &text)?;
+    Ok(text)
+}

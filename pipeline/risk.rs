@@ -1,0 +1,135 @@
+//! Stage 3, risk: tail statistics of any weight vector on a scenario set.
+//!
+//! Definitions (Rockafellar & Uryasev 2002, "Conditional value-at-risk for general loss distributions",
+//! J. Banking & Finance 26; Acerbi & Tasche 2002): for losses L_k with probabilities p_k and level c,
+//! VaR_c = min { ℓ : P(L ≤ ℓ) ≥ c } (the lower c-quantile) and
+//! CVaR_c = VaR_c + 1/(1−c) · Σ_k p_k (L_k − VaR_c)+,
+//! which equals min over ℓ of F_c(ℓ) = ℓ + 1/(1−c) · Σ_k p_k (L_k − ℓ)+ (Rockafellar & Uryasev 2000,
+//! "Optimization of conditional value-at-risk", J. Risk 2(3), Theorem 1) — the form the LPs use.
+
+use crate::scenarios::ScenarioSet;
+use serde::Serialize;
+
+/// Cumulative probabilities within this distance of c count as reaching c (sums of p_k carry rounding).
+const QUANTILE_TOL: f64 = 1e-12;
+
+/// VaR and CVaR of one loss distribution at one level.
+#[derive(Debug, Clone, Copy, Serialize)]
+pub struct Tail {
+    pub level: f64,
+    pub var: f64,
+    pub cvar: f64,
+}
+
+/// Lower c-quantile of the losses (VaR_c) and CVaR_c, by sorting.
+pub fn var_cvar(losses: &[f64], probs: &[f64], c: f64) -> Tail {
+    let order = sorted_order(losses);
+    let var = lower_quantile(losses, probs, &order, c);
+    let excess: f64 = losses.iter().zip(probs).map(|(l, p)| p * (l - var).max(0.0)).sum();
+    Tail { level: c, var, cvar: var + excess / (1.0 - c) }
+}
+
+fn sorted_order(losses: &[f64]) -> Vec<usize> {
+    let mut order: Vec<usize> = (0..losses.len()).collect();
+    order.sort_by(|&a, &b| losses[a].total_cmp(&losses[b]));
+    order
+}
+
+fn lower_quantile(losses: &[f64], probs: &[f64], order: &[usize], c: f64) -> f64 {
+    let mut cum = 0.0;
+    for &k in order {
+        cum += probs[k];
+        if cum >= c - QUANTILE_TOL {
+            return losses[k];
+        }
+    }
+    losses[*order.last().expect("non-empty")]
+}
+
+/// The Rockafellar–Uryasev function F_c(ℓ) = ℓ + 1/(1−c) · Σ p_k (L_k − ℓ)+.
+pub fn ru_objective(losses: &[f64], probs: &[f64], c: f64, ell: f64) -> f64 {
+    ell + losses.iter().zip(probs).map(|(l, p)| p * (l - ell).max(0.0)).sum::<f64>() / (1.0 - c)
+}
+
+/// Tail weights q_k with CVaR_c = Σ q_k L_k: p_k/(1−c) beyond VaR, the remainder of the tail mass on the
+/// scenarios at VaR (shared by probability). These are the weights of the CVaR's subgradient, so
+/// component CVaR_i = Σ_k q_k · (−r_ki x_i) and the components add up to CVaR exactly (Euler allocation,
+/// Tasche 1999, "Risk contributions and performance measurement").
+pub fn tail_weights(losses: &[f64], probs: &[f64], c: f64) -> Vec<f64> {
+    let var = var_cvar(losses, probs, c).var;
+    let beyond: f64 = losses.iter().zip(probs).filter(|(l, _)| **l > var).map(|(_, p)| p).sum();
+    let at: f64 = losses.iter().zip(probs).filter(|(l, _)| **l == var).map(|(_, p)| p).sum();
+    let remainder = ((1.0 - c) - beyond).max(0.0);
+    losses.iter().zip(probs).map(|(l, p)| {
+        if *l > var {
+            p / (1.0 - c)
+        } else if *l == var && at > 0.0 {
+            remainder * (p / at) / (1.0 - c)
+        } else {
+            0.0
+        }
+    }).collect()
+}
+
+/// Everything the pack reports about one portfolio.
+#[derive(Debug, Clone, Serialize)]
+pub struct RiskProfile {
+    pub expected_return: f64,
+    /// Probability-weighted standard deviation of the scenario returns.
+    pub volatility: f64,
+    pub tails: Vec<Tail>,
+    /// CVaR contribution per asset at the model confidence, summing to that CVaR.
+    pub component_cvar: Vec<f64>,
+    pub worst_loss: f64,
+    pub worst_scenario: String,
+    /// 1 / Σ w².
+    pub effective_holdings: f64,
+}
+
+impl RiskProfile {
+    /// The tail entry at level `c` (levels are stored exactly as configured).
+    pub fn at(&self, c: f64) -> Tail {
+        *self.tails.iter().find(|t| (t.level - c).abs() < 1e-12).expect("level was computed")
+    }
+}
+
+/// Computes the full profile of weights `x`; `levels` must contain `confidence`.
+pub fn profile(set: &ScenarioSet, x: &[f64], levels: &[f64], confidence: f64) -> RiskProfile {
+    let returns = set.portfolio_returns(x);
+    let losses: Vec<f64> = returns.iter().map(|r| -r).collect();
+    let p = &set.probabilities;
+    let mean: f64 = returns.iter().zip(p).map(|(r, p)| r * p).sum();
+    let var: f64 = returns.iter().zip(p).map(|(r, p)| p * (r - mean).powi(2)).sum();
+    let q = tail_weights(&losses, p, confidence);
+    let component_cvar = (0..set.width())
+        .map(|i| (0..set.len()).map(|k| -q[k] * set.row(k)[i] * x[i]).sum())
+        .collect();
+    let worst = (0..losses.len()).max_by(|&a, &b| losses[a].total_cmp(&losses[b])).expect("scenarios");
+    RiskProfile {
+        expected_return: mean,
+        volatility: var.max(0.0).sqrt(),
+        tails: levels.iter().map(|&c| var_cvar(&losses, p, c)).collect(),
+        component_cvar,
+        worst_loss: losses[worst],
+        worst_scenario: set.label(worst),
+        effective_holdings: 1.0 / x.iter().map(|w| w * w).sum::<f64>(),
+    }
+}
+
+/// CVaR_c of weights `x` alone (no other statistics).
+pub fn cvar_of(set: &ScenarioSet, x: &[f64], c: f64) -> f64 {
+    let losses: Vec<f64> = set.portfolio_returns(x).iter().map(|r| -r).collect();
+    var_cvar(&losses, &set.probabilities, c).cvar
+}
+
+/// Sums per-asset values by a key (e.g. component CVaR by class), keys in first-seen order.
+pub fn by_group(values: &[f64], keys: &[String]) -> Vec<(String, f64)> {
+    let mut out: Vec<(String, f64)> = Vec::new();
+    for (v, k) in values.iter().zip(keys) {
+        match out.iter_mut().find(|(g, _)| g == k) {
+            Some((_, s)) => *s += v,
+            None => out.push((k.clone(), *v)),
+        }
+    }
+    out
+}

@@ -1,0 +1,121 @@
+//! Stage 2, scenarios: overlapping horizon windows of the price history and their probabilities.
+//!
+//! Scenario k is the simple return over h observations, r_k = P[t_k + h] / P[t_k] − 1, per asset
+//! (historical simulation). Windows are anchored at the last observation (as-of) and step back by `step`,
+//! so the newest scenario always ends at as-of. Probabilities are equal, or decay exponentially with age:
+//! p_k ∝ 2^(−age_k / half_life), age in observations between the window's end and as-of.
+
+use crate::config::ScenarioOptions;
+use crate::error::{Error, Result};
+use crate::ingest::MarketData;
+use chrono::NaiveDate;
+
+/// The scenario set: `returns` is row-major, one row of `assets.len()` returns per scenario.
+#[derive(Debug, Clone)]
+pub struct ScenarioSet {
+    pub assets: Vec<String>,
+    pub starts: Vec<NaiveDate>,
+    pub ends: Vec<NaiveDate>,
+    pub returns: Vec<f64>,
+    pub probabilities: Vec<f64>,
+    pub equal_probabilities: bool,
+    pub horizon: usize,
+    pub step: usize,
+}
+
+impl ScenarioSet {
+    /// Number of scenarios S.
+    pub fn len(&self) -> usize {
+        self.probabilities.len()
+    }
+
+    /// Whether there are no scenarios.
+    pub fn is_empty(&self) -> bool {
+        self.probabilities.is_empty()
+    }
+
+    /// Number of assets N.
+    pub fn width(&self) -> usize {
+        self.assets.len()
+    }
+
+    /// Row k of the return matrix.
+    pub fn row(&self, k: usize) -> &[f64] {
+        let n = self.width();
+        &self.returns[k * n..(k + 1) * n]
+    }
+
+    /// Label of scenario k: `start/end`.
+    pub fn label(&self, k: usize) -> String {
+        format!("{}/{}", self.starts[k], self.ends[k])
+    }
+
+    /// Probability-weighted mean return per asset, μ_i = Σ_k p_k r_ki.
+    pub fn mean(&self) -> Vec<f64> {
+        let mut mu = vec![0.0; self.width()];
+        for k in 0..self.len() {
+            for (m, r) in mu.iter_mut().zip(self.row(k)) {
+                *m += self.probabilities[k] * r;
+            }
+        }
+        mu
+    }
+
+    /// Portfolio returns per scenario, r_k · x.
+    pub fn portfolio_returns(&self, x: &[f64]) -> Vec<f64> {
+        (0..self.len()).map(|k| self.row(k).iter().zip(x).map(|(r, w)| r * w).sum()).collect()
+    }
+
+    /// A scenario set from explicit data (tests, benchmarks); probabilities must be positive and sum to 1.
+    pub fn from_matrix(assets: Vec<String>, returns: Vec<f64>, probabilities: Vec<f64>) -> Result<Self> {
+        let (n, s) = (assets.len(), probabilities.len());
+        if n == 0 || returns.len() != n * s || s == 0 {
+            return Err(Error::Run(format!("scenario matrix shape: {} values for {s} scenarios × {n} assets", returns.len())));
+        }
+        let total: f64 = probabilities.iter().sum();
+        if probabilities.iter().any(|p| !(*p >= 0.0)) || (total - 1.0).abs() > 1e-9 {
+            return Err(Error::Run(format!("scenario probabilities must be ≥ 0 and sum to 1 (sum {total})")));
+        }
+        let day = NaiveDate::from_ymd_opt(2000, 1, 1).expect("valid");
+        let equal = probabilities.iter().all(|p| (p - probabilities[0]).abs() < 1e-15);
+        Ok(ScenarioSet { assets, starts: vec![day; s], ends: vec![day; s], returns, probabilities, equal_probabilities: equal, horizon: 1, step: 1 })
+    }
+}
+
+/// Builds the scenario set from the market data's window.
+pub fn build(data: &MarketData, opts: &ScenarioOptions) -> Result<ScenarioSet> {
+    let rows = data.dates.len();
+    let h = opts.horizon;
+    if rows <= h {
+        return Err(Error::Run(format!("{rows} observations cannot make a {h}-observation scenario")));
+    }
+    let mut ends: Vec<usize> = (h..rows).rev().step_by(opts.step).collect();
+    ends.reverse();
+    let n = data.assets.len();
+    let mut returns = Vec::with_capacity(ends.len() * n);
+    for &e in &ends {
+        returns.extend(data.prices.iter().map(|p| p[e] / p[e - h] - 1.0));
+    }
+    let last = rows - 1;
+    let probabilities = match opts.half_life {
+        None => vec![1.0 / ends.len() as f64; ends.len()],
+        Some(hl) => decayed(ends.iter().map(|&e| (last - e) as f64), hl),
+    };
+    Ok(ScenarioSet {
+        assets: data.assets.clone(),
+        starts: ends.iter().map(|&e| data.dates[e - h]).collect(),
+        ends: ends.iter().map(|&e| data.dates[e]).collect(),
+        returns,
+        probabilities,
+        equal_probabilities: opts.half_life.is_none(),
+        horizon: h,
+        step: opts.step,
+    })
+}
+
+/// Exponentially decaying weights p_k ∝ 2^(−age_k / half_life), normalised to sum to 1.
+pub fn decayed(ages: impl Iterator<Item = f64>, half_life: f64) -> Vec<f64> {
+    let raw: Vec<f64> = ages.map(|a| (-a * std::f64::consts::LN_2 / half_life).exp()).collect();
+    let total: f64 = raw.iter().sum();
+    raw.iter().map(|w| w / total).collect()
+}

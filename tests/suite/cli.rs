@@ -1,0 +1,221 @@
+//! The real binary on fixture folders: the pack-folder contract, no look-ahead, layouts, errors.
+
+use super::common::{config, json, repo, Fixture, Market};
+
+fn pack_dir(ran: &super::common::Ran) -> std::path::PathBuf {
+    assert_eq!(ran.code, 0, "stderr: {}", ran.stderr);
+    std::path::PathBuf::from(ran.stdout.lines().last().expect("stdout has lines"))
+}
+
+fn standard() -> (Fixture, Market) {
+    let f = Fixture::new();
+    let m = Market::new(5, "2021-01-01", "2024-06-28", 42);
+    f.small_fund(&m, &config("limits:\n  turnover_max: 0.8\n  groups:\n    - { name: Equity, tag: \"class:equity\", max: 0.7 }\n"));
+    (f, m)
+}
+
+#[test]
+fn run_writes_the_pack_contract() {
+    let (f, m) = standard();
+    let ran = f.run(&["run", "fund.yaml", "--quiet"]);
+    let dir = pack_dir(&ran);
+    assert!(dir.is_dir(), "last stdout line must be the pack folder: {}", ran.stdout);
+    let csv = std::fs::read_to_string(dir.join("scenarios.csv")).unwrap();
+    assert_eq!(csv.lines().next().unwrap(), "scenario,AS01,AS02,AS03,AS04,AS05");
+    let r = json(&dir.join("results.json"));
+    assert_eq!(r["as_of"], "2024-06-28");
+    assert_eq!(r["confidence"], 0.95);
+    assert_eq!(r["assets"].as_array().unwrap().len(), 5);
+    for key in ["lower", "upper", "groups", "turnover_max", "current", "cvar_cap", "return_floor"] {
+        assert!(r["constraints"].get(key).is_some(), "constraints.{key}");
+    }
+    for name in ["max_return", "min_cvar", "max_ratio"] {
+        let mdl = &r["models"][name];
+        assert_eq!(mdl["status"], "optimal", "{name}: {mdl}");
+        let w: f64 = mdl["weights"].as_object().unwrap().values().map(|v| v.as_f64().unwrap()).sum();
+        assert!((w - 1.0).abs() < 1e-9, "{name} weights sum {w}");
+        assert!(mdl["cvar"].as_f64().unwrap() >= mdl["var"].as_f64().unwrap());
+    }
+    assert!(r["models"]["max_return"]["cvar"].as_f64().unwrap() <= r["constraints"]["cvar_cap"].as_f64().unwrap() + 1e-9);
+    assert!(r["models"]["max_ratio"]["ratio"].as_f64().unwrap() > 0.0);
+    let weights = std::fs::read_to_string(dir.join("weights.csv")).unwrap();
+    assert_eq!(weights.lines().next().unwrap(), "asset,class,current,max_return,min_cvar,max_ratio");
+    assert_eq!(weights.lines().count(), 6);
+    // The first scenario recomputed from the fixture prices: r = P[t+h]/P[t] − 1 with h = 5 (see config()).
+    let rows: Vec<Vec<f64>> = m.wide_csv().lines().skip(1).map(|l| l.split(',').skip(1).map(|v| v.parse().unwrap()).collect()).collect();
+    let dates: Vec<&str> = csv.lines().nth(1).unwrap().split(',').next().unwrap().split('/').collect();
+    let t = m.dates.iter().position(|d| d.to_string() == dates[0]).unwrap();
+    let first: Vec<f64> = csv.lines().nth(1).unwrap().split(',').skip(1).map(|v| v.parse().unwrap()).collect();
+    for (i, v) in first.iter().enumerate() {
+        assert_eq!(*v, rows[t + 5][i] / rows[t][i] - 1.0, "scenario return of asset {i}");
+    }
+    assert_eq!(m.dates[t + 5].to_string(), dates[1]);
+}
+
+fn without_inputs(mut v: serde_json::Value) -> serde_json::Value {
+    let o = v.as_object_mut().unwrap();
+    o.remove("inputs");
+    o.remove("pack_id");
+    o.remove("history");
+    v
+}
+
+#[test]
+fn prices_after_as_of_change_nothing() {
+    let (f, m) = standard();
+    let a = pack_dir(&f.run(&["run", "fund.yaml", "--quiet", "--as-of", "2024-03-28"]));
+    let before = without_inputs(json(&a.join("results.json")));
+    // Rewrite every price after as-of (×1.7, and one negative value) and add later rows.
+    let mut text = String::from("date,AS01,AS02,AS03,AS04,AS05\n");
+    for (d, row) in m.dates.iter().zip(&m.prices) {
+        let later = d.to_string().as_str() > "2024-03-28";
+        let vals: Vec<String> = row.iter().enumerate().map(|(i, v)| if later { if i == 2 { "-5".into() } else { format!("{:.6}", v * 1.7) } } else { format!("{v:.6}") }).collect();
+        text.push_str(&format!("{d},{}\n", vals.join(",")));
+    }
+    text.push_str("2024-07-01,1,1,1,1,1\n");
+    f.write("data/prices.csv", &text);
+    let b = pack_dir(&f.run(&["run", "fund.yaml", "--quiet", "--as-of", "2024-03-28"]));
+    assert_eq!(before, without_inputs(json(&b.join("results.json"))));
+    assert_eq!(std::fs::read(a.join("scenarios.csv")).unwrap().len(), std::fs::read(b.join("scenarios.csv")).unwrap().len());
+}
+
+#[test]
+fn default_as_of_is_the_latest_month_end() {
+    let f = Fixture::new();
+    let m = Market::new(4, "2021-01-01", "2024-06-18", 3);
+    f.small_fund(&m, &config(""));
+    let r = json(&pack_dir(&f.run(&["run", "fund.yaml", "--quiet"])).join("results.json"));
+    assert_eq!(r["as_of"], "2024-05-31");
+}
+
+#[test]
+fn long_and_wide_layouts_give_the_same_results() {
+    let (f, m) = standard();
+    let wide = without_inputs(json(&pack_dir(&f.run(&["run", "fund.yaml", "--quiet"])).join("results.json")));
+    f.write("data/prices.csv", &m.long_csv());
+    let mut long = without_inputs(json(&pack_dir(&f.run(&["run", "fund.yaml", "--quiet"])).join("results.json")));
+    assert_eq!(long["data_quality"]["findings"], wide["data_quality"]["findings"]);
+    long.as_object_mut().unwrap().remove("data_quality");
+    let mut wide = wide;
+    wide.as_object_mut().unwrap().remove("data_quality");
+    assert_eq!(long, wide);
+}
+
+#[test]
+fn decayed_probabilities_add_a_probability_column() {
+    let f = Fixture::new();
+    let m = Market::new(4, "2021-01-01", "2024-06-28", 8);
+    f.small_fund(&m, &config("").replace("  horizon: 5\n", "  horizon: 5\n  half_life: 120\n"));
+    let dir = pack_dir(&f.run(&["run", "fund.yaml", "--quiet"]));
+    let csv = std::fs::read_to_string(dir.join("scenarios.csv")).unwrap();
+    assert!(csv.starts_with("scenario,probability,AS01"));
+    let p: f64 = csv.lines().skip(1).map(|l| l.split(',').nth(1).unwrap().parse::<f64>().unwrap()).sum();
+    assert!((p - 1.0).abs() < 1e-12);
+}
+
+#[test]
+fn riskless_asset_at_full_weight_makes_max_ratio_not_applicable() {
+    let f = Fixture::new();
+    let mut m = Market::new(3, "2021-01-01", "2024-06-28", 4);
+    for (k, row) in m.prices.iter_mut().enumerate() {
+        row[0] = 100.0 * (1.0 + 0.0001f64).powi(k as i32);
+    }
+    m.classes[0] = "cash".into();
+    f.small_fund(&m, &config(""));
+    f.write("data/assets.csv", "asset,class,max_weight\nAS01,cash,1\nAS02,equity,1\nAS03,bond,1\n");
+    let r = json(&pack_dir(&f.run(&["run", "fund.yaml", "--quiet"])).join("results.json"));
+    assert_eq!(r["models"]["max_ratio"]["status"], "not_applicable");
+    assert!(r["models"]["max_ratio"]["message"].as_str().unwrap().contains("minimum CVaR"));
+    assert_eq!(r["models"]["min_cvar"]["status"], "optimal");
+}
+
+#[test]
+fn infeasible_models_name_the_constraint_and_others_still_run() {
+    let (f, _) = standard();
+    f.write("fund.yaml", &config("models:\n  min_cvar:\n    return_floor: { value: 0.5 }\n"));
+    let ran = f.run(&["run", "fund.yaml", "--quiet"]);
+    let r = json(&pack_dir(&ran).join("results.json"));
+    assert_eq!(r["models"]["min_cvar"]["status"], "infeasible");
+    assert!(r["models"]["min_cvar"]["message"].as_str().unwrap().contains("return_floor"));
+    assert_eq!(r["models"]["max_return"]["status"], "optimal");
+    f.write("fund.yaml", &config("limits:\n  default_max: 0.1\n"));
+    f.write("data/assets.csv", "asset,class\nAS01,equity\nAS02,bond\nAS03,equity\nAS04,bond\nAS05,equity\n");
+    let r = json(&pack_dir(&f.run(&["run", "fund.yaml", "--quiet"])).join("results.json"));
+    for name in ["max_return", "min_cvar", "max_ratio"] {
+        assert_eq!(r["models"][name]["status"], "infeasible");
+        assert!(r["models"][name]["message"].as_str().unwrap().contains("maximum weights sum to 0.5000 < 1"), "{}", r["models"][name]);
+    }
+}
+
+#[test]
+fn config_errors_name_key_line_and_suggestion() {
+    let (f, _) = standard();
+    let cases: &[(&str, &str, &[&str])] = &[
+        ("scenarios:\n  horizn: 5\n", "fund.yaml", &["unknown field `horizn`", "line", "did you mean `horizon`?"]),
+        ("risk:\n  confidence: 1.5\n", "fund.yaml", &["risk.confidence", "strictly between 0 and 1"]),
+        ("risk:\n  confidence: high\n", "fund.yaml", &["risk.confidence", "invalid type"]),
+        ("limits:\n  groups:\n    - { name: X, assets: [AS01, NOPE] }\n", "fund.yaml", &["unknown asset `NOPE`"]),
+    ];
+    for (tail, file, needles) in cases {
+        let text = config("").replace("scenarios:\n  horizon: 5\n  lookback_years: 2\n", "") + tail;
+        f.write(file, &text);
+        let ran = f.run(&["run", file, "--quiet"]);
+        assert_eq!(ran.code, 2, "{tail}: {}", ran.stderr);
+        for n in *needles {
+            assert!(ran.stderr.contains(n), "{tail}: `{n}` missing from: {}", ran.stderr);
+        }
+        assert!(ran.stderr.contains("fund.yaml"));
+        assert!(f.entries("out").is_empty(), "no pack folder after an error");
+    }
+}
+
+#[test]
+fn bad_data_names_file_row_and_column_and_leaves_no_pack() {
+    let (f, m) = standard();
+    let mut text = m.wide_csv();
+    text = text.replacen(&format!("{},", m.dates[10]), &format!("{},abc,", m.dates[10]), 1);
+    let text: String = text.lines().map(|l| if l.starts_with(&m.dates[10].to_string()) { let mut p: Vec<&str> = l.split(',').collect(); p.remove(2); p.join(",") } else { l.to_string() }).collect::<Vec<_>>().join("\n") + "\n";
+    f.write("data/prices.csv", &text);
+    let ran = f.run(&["check", "fund.yaml"]);
+    assert_eq!(ran.code, 3, "{}", ran.stderr);
+    assert!(ran.stderr.contains("prices.csv") && ran.stderr.contains("row 11 (line 12)") && ran.stderr.contains("column `AS01`"), "{}", ran.stderr);
+    let mut neg = m.wide_csv();
+    neg = neg.replacen(&format!("{},", m.dates[20]), &format!("{},-1.0,", m.dates[20]), 1);
+    let neg: String = neg.lines().map(|l| if l.starts_with(&m.dates[20].to_string()) { let mut p: Vec<&str> = l.split(',').collect(); p.remove(2); p.join(",") } else { l.to_string() }).collect::<Vec<_>>().join("\n") + "\n";
+    f.write("data/prices.csv", &neg);
+    let ran = f.run(&["run", "fund.yaml", "--quiet"]);
+    assert_eq!(ran.code, 3);
+    assert!(ran.stderr.contains("not positive") && ran.stderr.contains("row 21"), "{}", ran.stderr);
+    assert!(f.entries("out").is_empty());
+}
+
+#[test]
+fn check_reports_data_quality() {
+    let (f, m) = standard();
+    let mut text = m.wide_csv();
+    let line = text.lines().nth(m.dates.len() - 30).unwrap().to_string();
+    let mut parts: Vec<String> = line.split(',').map(String::from).collect();
+    parts[3] = String::new();
+    text = text.replace(&line, &parts.join(","));
+    f.write("data/prices.csv", &text);
+    let ran = f.run(&["check", "fund.yaml"]);
+    assert_eq!(ran.code, 0, "{}", ran.stderr);
+    assert!(ran.stdout.contains("fill policy: forward-fill up to 3"));
+    assert!(ran.stdout.contains("warn: 1 missing price(s) in the scenario window were filled forward"), "{}", ran.stdout);
+}
+
+#[test]
+fn demo_config_builds_a_pack() {
+    let f = Fixture::new();
+    let out = f.path("packs");
+    let cfg = repo().join("config-demo/fund.yaml");
+    let ran = f.run(&["run", cfg.to_str().unwrap(), "--quiet", "--out", out.to_str().unwrap()]);
+    let dir = pack_dir(&ran);
+    let r = json(&dir.join("results.json"));
+    assert_eq!(r["as_of"], "2026-11-30");
+    assert_eq!(r["assets"].as_array().unwrap().len(), 48);
+    for name in ["max_return", "min_cvar", "max_ratio"] {
+        assert_eq!(r["models"][name]["status"], "optimal", "{name}: {}", r["models"][name]);
+    }
+    assert!(ran.stdout.contains("Orrin Hollow"));
+}

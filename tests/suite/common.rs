@@ -1,0 +1,159 @@
+//! Shared helpers: fixture folders with small synthetic markets, and a runner for the real binary.
+
+use rand::{RngExt, SeedableRng};
+use std::path::{Path, PathBuf};
+use std::process::Command;
+
+/// What a binary run returned.
+pub struct Ran {
+    pub code: i32,
+    pub stdout: String,
+    pub stderr: String,
+}
+
+/// A temporary folder holding a config and its data files.
+pub struct Fixture {
+    pub dir: tempfile::TempDir,
+}
+
+impl Fixture {
+    pub fn new() -> Self {
+        Fixture { dir: tempfile::tempdir().expect("tempdir") }
+    }
+
+    pub fn path(&self, name: &str) -> PathBuf {
+        self.dir.path().join(name)
+    }
+
+    /// Writes a file (creating folders) and returns its path.
+    pub fn write(&self, name: &str, text: &str) -> PathBuf {
+        let p = self.path(name);
+        std::fs::create_dir_all(p.parent().unwrap()).unwrap();
+        std::fs::write(&p, text).unwrap();
+        p
+    }
+
+    /// Runs the tailpack binary with `args`, in the fixture folder.
+    pub fn run(&self, args: &[&str]) -> Ran {
+        let out = Command::new(env!("CARGO_BIN_EXE_tailpack")).args(args).current_dir(self.dir.path()).output().expect("binary runs");
+        Ran { code: out.status.code().unwrap_or(-1), stdout: String::from_utf8_lossy(&out.stdout).into(), stderr: String::from_utf8_lossy(&out.stderr).into() }
+    }
+
+    /// A complete small fund: `market` prices, metadata, holdings, and a config with `extra` YAML appended
+    /// under `limits:`-free top-level keys (caller supplies whole sections).
+    pub fn small_fund(&self, market: &Market, config: &str) -> PathBuf {
+        self.write("data/prices.csv", &market.wide_csv());
+        self.write("data/assets.csv", &market.assets_csv());
+        self.write("data/holdings.csv", &market.holdings_csv());
+        self.write("fund.yaml", config)
+    }
+
+    /// Names of the entries of a folder (empty when it does not exist).
+    pub fn entries(&self, rel: &str) -> Vec<String> {
+        match std::fs::read_dir(self.path(rel)) {
+            Ok(rd) => rd.map(|e| e.unwrap().file_name().to_string_lossy().into_owned()).collect(),
+            Err(_) => vec![],
+        }
+    }
+}
+
+/// A minimal config for [`Market`] fixtures; `tail` is appended verbatim.
+pub fn config(tail: &str) -> String {
+    format!("fund:\n  name: Test Fund (fictional)\ndata:\n  prices: data/prices.csv\n  assets: data/assets.csv\n  holdings: data/holdings.csv\nscenarios:\n  horizon: 5\n  lookback_years: 2\noutput:\n  root: out\n{tail}")
+}
+
+/// A synthetic market: business days, correlated random-walk prices, classes and holdings.
+pub struct Market {
+    pub dates: Vec<chrono::NaiveDate>,
+    pub assets: Vec<String>,
+    pub classes: Vec<String>,
+    /// `prices[row][asset]`.
+    pub prices: Vec<Vec<f64>>,
+}
+
+impl Market {
+    /// `n` assets over business days from `start` to `end`, deterministic for `seed`.
+    pub fn new(n: usize, start: &str, end: &str, seed: u64) -> Self {
+        let mut rng = rand::rngs::StdRng::seed_from_u64(seed);
+        let (mut d, end) = (start.parse::<chrono::NaiveDate>().unwrap(), end.parse::<chrono::NaiveDate>().unwrap());
+        let mut dates = vec![];
+        while d <= end {
+            use chrono::Datelike;
+            if d.weekday().num_days_from_monday() < 5 {
+                dates.push(d);
+            }
+            d = d.succ_opt().unwrap();
+        }
+        let assets: Vec<String> = (0..n).map(|i| format!("AS{:02}", i + 1)).collect();
+        let classes: Vec<String> = (0..n).map(|i| if i % 2 == 0 { "equity".into() } else { "bond".into() }).collect();
+        let mut p = vec![100.0; n];
+        let mut prices = Vec::with_capacity(dates.len());
+        for _ in &dates {
+            let common: f64 = normal(&mut rng);
+            for i in 0..n {
+                let vol = 0.004 + 0.002 * i as f64;
+                let drift = 0.0002 + 0.00005 * i as f64;
+                let r = drift + vol * (0.5 * common + 0.85 * normal(&mut rng));
+                p[i] *= 1.0 + r;
+            }
+            prices.push(p.clone());
+        }
+        Market { dates, assets, classes, prices }
+    }
+
+    pub fn wide_csv(&self) -> String {
+        let mut s = format!("date,{}\n", self.assets.join(","));
+        for (d, row) in self.dates.iter().zip(&self.prices) {
+            s.push_str(&d.to_string());
+            for v in row {
+                s.push_str(&format!(",{v:.6}"));
+            }
+            s.push('\n');
+        }
+        s
+    }
+
+    pub fn long_csv(&self) -> String {
+        let mut s = String::from("date,asset,price\n");
+        for (d, row) in self.dates.iter().zip(&self.prices) {
+            for (a, v) in self.assets.iter().zip(row) {
+                s.push_str(&format!("{d},{a},{v:.6}\n"));
+            }
+        }
+        s
+    }
+
+    pub fn assets_csv(&self) -> String {
+        let mut s = String::from("asset,class,max_weight\n");
+        for (a, c) in self.assets.iter().zip(&self.classes) {
+            s.push_str(&format!("{a},{c},0.6\n"));
+        }
+        s
+    }
+
+    pub fn holdings_csv(&self) -> String {
+        let w = 1.0 / self.assets.len() as f64;
+        let mut s = String::from("asset,weight\n");
+        for a in &self.assets {
+            s.push_str(&format!("{a},{w}\n"));
+        }
+        s
+    }
+}
+
+/// Standard normal draw (Box–Muller).
+pub fn normal(rng: &mut rand::rngs::StdRng) -> f64 {
+    let u1: f64 = rng.random::<f64>().max(1e-300);
+    let u2: f64 = rng.random::<f64>();
+    (-2.0 * u1.ln()).sqrt() * (std::f64::consts::TAU * u2).cos()
+}
+
+/// Reads and parses a JSON file.
+pub fn json(path: &Path) -> serde_json::Value {
+    serde_json::from_str(&std::fs::read_to_string(path).unwrap()).unwrap()
+}
+
+/// The repository root.
+pub fn repo() -> PathBuf {
+    PathBuf::from(env!("CARGO_MANIFEST_DIR"))
+}

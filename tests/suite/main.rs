@@ -1,0 +1,7 @@
+//! The integration suite: one test binary, one module per area.
+
+mod cli;
+mod common;
+mod demo;
+mod models;
+mod risk;
