@@ -56,8 +56,8 @@ pub fn check(config: &Path, opts: &RunOptions) -> Result<String> {
     let (cfg, data) = run::prepare(config, opts)?;
     let q = &data.quality;
     let mut out = format!(
-        "config {} is valid\nprices {} ({:?} layout): {} to {}; as-of {}; scenario window {} to {} ({} observations)\nfill policy: {}\n",
-        cfg.path.display(), cfg.prices.display(), data.layout, data.history.0, data.history.1, data.as_of,
+        "config {} is valid\nprices {} ({} layout): {} to {}; as-of {}; scenario window {} to {} ({} observations)\nfill policy: {}\n",
+        cfg.path.display(), cfg.prices.display(), data.layout.word(), data.history.0, data.history.1, data.as_of,
         q.window_start, q.window_end, q.observations, q.fill_policy);
     out.push_str(&format!("{:<14} {:>8} {:>7} {:>12} {:>12} {:>8} {}\n", "asset", "missing", "filled", "longest gap", "stale run", "extreme", "status"));
     for a in &q.assets {

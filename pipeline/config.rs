@@ -57,6 +57,17 @@ pub enum Layout {
     Wide,
 }
 
+impl Layout {
+    /// The word used in config files and messages.
+    pub fn word(self) -> &'static str {
+        match self {
+            Layout::Auto => "auto",
+            Layout::Long => "long",
+            Layout::Wide => "wide",
+        }
+    }
+}
+
 /// Data-quality thresholds and the fill policy.
 #[derive(Debug, Deserialize, Clone, serde::Serialize)]
 #[serde(deny_unknown_fields, default)]
@@ -401,6 +412,14 @@ pub fn resolve(path: &Path, raw: RawConfig) -> Result<Config> {
     };
     if short_name.is_empty() {
         return Err(bad("fund.short_name", "must contain at least one letter or digit".into()));
+    }
+    for (key, file) in [("data.prices", Some(prices)), ("data.assets", Some(assets)), ("data.holdings", raw.data.holdings.as_ref())] {
+        if let Some(f) = file {
+            let full = join(f);
+            if !full.is_file() {
+                return Err(bad(key, format!("file {} does not exist (paths are relative to the config file's folder)", full.display())));
+            }
+        }
     }
     let out_root = raw.output.root.as_ref().map(&join).unwrap_or_else(|| PathBuf::from("out"));
     Ok(Config {

@@ -58,10 +58,14 @@ fn main() {
     match result {
         Ok(text) => print!("{text}"),
         Err(e) => {
-            eprintln!("error: {e}");
+            let text = e.to_string();
+            eprintln!("error: {text}");
             let mut source = std::error::Error::source(&e);
             while let Some(s) = source {
-                eprintln!("  caused by: {s}");
+                let cause = s.to_string();
+                if !text.contains(&cause) {
+                    eprintln!("  caused by: {cause}");
+                }
                 source = s.source();
             }
             std::process::exit(e.exit_code());

@@ -215,8 +215,14 @@ pub fn results_json(r: &RunResult, inputs: &[InputFile], pack_id: &str) -> Value
     })
 }
 
+/// A return with its sign, e.g. `+0.31%`.
 fn pct(x: f64) -> String {
     format!("{:+.2}%", x * 100.0)
+}
+
+/// A loss as a plain percentage, e.g. `5.25%` (a negative value means a gain).
+fn loss(x: f64) -> String {
+    format!("{:.2}%", x * 100.0)
 }
 
 /// The short text summary printed to stdout and kept as `summary.txt`.
@@ -226,16 +232,17 @@ pub fn summary(r: &RunResult, dir: &Path) -> String {
     let _ = writeln!(s, "{} — as of {} — {} scenarios of {} observations, {} assets, CVaR at {:.1}%",
         r.config.fund.name, r.data.as_of, r.scenarios.len(), r.scenarios.horizon, r.data.assets.len(), c * 100.0);
     let _ = writeln!(s, "{:<12} {:<15} {:>10} {:>10} {:>10} {:>9} {:>9}", "portfolio", "status", "exp.return", "VaR", "CVaR", "turnover", "eff.hold");
+    let _ = writeln!(s, "(expected return, VaR and CVaR over the {}-observation horizon; VaR and CVaR as losses at {:.1}%)", r.scenarios.horizon, c * 100.0);
     if let Some(pr) = &r.current {
         let t = pr.at(c);
-        let _ = writeln!(s, "{:<12} {:<15} {:>10} {:>10} {:>10} {:>9} {:>9.1}", "current", "-", pct(pr.expected_return), pct(t.var), pct(t.cvar), "-", pr.effective_holdings);
+        let _ = writeln!(s, "{:<12} {:<15} {:>10} {:>10} {:>10} {:>9} {:>9.1}", "current", "-", pct(pr.expected_return), loss(t.var), loss(t.cvar), "-", pr.effective_holdings);
     }
     for m in &r.models {
         match &m.profile {
             Some(pr) => {
                 let t = pr.at(c);
                 let turn = m.turnover.map_or("-".into(), |v| format!("{:.1}%", v * 100.0));
-                let _ = writeln!(s, "{:<12} {:<15} {:>10} {:>10} {:>10} {:>9} {:>9.1}", m.name, m.outcome.status.word(), pct(pr.expected_return), pct(t.var), pct(t.cvar), turn, pr.effective_holdings);
+                let _ = writeln!(s, "{:<12} {:<15} {:>10} {:>10} {:>10} {:>9} {:>9.1}", m.name, m.outcome.status.word(), pct(pr.expected_return), loss(t.var), loss(t.cvar), turn, pr.effective_holdings);
             }
             None => { let _ = writeln!(s, "{:<12} {:<15} {}", m.name, m.outcome.status.word(), m.outcome.message.as_deref().unwrap_or("")); }
         }

@@ -219,3 +219,43 @@ fn demo_config_builds_a_pack() {
     }
     assert!(ran.stdout.contains("Orrin Hollow"));
 }
+
+/// Writes the market as a wide Parquet file with a Date-typed `date` column and Float64 prices.
+fn write_parquet(m: &Market, path: &std::path::Path) {
+    use polars::prelude::*;
+    let dates: Vec<String> = m.dates.iter().map(|d| d.to_string()).collect();
+    let mut cols = vec![Column::new("date".into(), dates).cast(&DataType::Date).unwrap()];
+    for (i, a) in m.assets.iter().enumerate() {
+        // Rounded like the CSV fixture (6 decimals) so both files hold the same numbers.
+        let v: Vec<f64> = m.prices.iter().map(|r| format!("{:.6}", r[i]).parse().unwrap()).collect();
+        cols.push(Column::new(a.as_str().into(), v));
+    }
+    let mut df = DataFrame::new_infer_height(cols).unwrap();
+    ParquetWriter::new(std::fs::File::create(path).unwrap()).finish(&mut df).unwrap();
+}
+
+#[test]
+fn parquet_prices_give_the_same_results_as_csv() {
+    let (f, m) = standard();
+    let csv = without_inputs(json(&pack_dir(&f.run(&["run", "fund.yaml", "--quiet"])).join("results.json")));
+    write_parquet(&m, &f.path("data/prices.parquet"));
+    f.write("fund.yaml", &std::fs::read_to_string(f.path("fund.yaml")).unwrap().replace("prices.csv", "prices.parquet"));
+    let pq = without_inputs(json(&pack_dir(&f.run(&["run", "fund.yaml", "--quiet"])).join("results.json")));
+    assert_eq!(csv["models"], pq["models"]);
+    assert_eq!(csv["current"], pq["current"]);
+    // A truncated Parquet file is a data error naming the file.
+    let bytes = std::fs::read(f.path("data/prices.parquet")).unwrap();
+    std::fs::write(f.path("data/prices.parquet"), &bytes[..bytes.len() / 2]).unwrap();
+    let ran = f.run(&["run", "fund.yaml", "--quiet"]);
+    assert_eq!(ran.code, 3, "{}", ran.stderr);
+    assert!(ran.stderr.contains("prices.parquet") && ran.stderr.contains("Parquet"), "{}", ran.stderr);
+}
+
+#[test]
+fn missing_input_file_is_a_config_error_naming_the_key() {
+    let (f, _) = standard();
+    std::fs::remove_file(f.path("data/holdings.csv")).unwrap();
+    let ran = f.run(&["check", "fund.yaml"]);
+    assert_eq!(ran.code, 2);
+    assert!(ran.stderr.contains("data.holdings") && ran.stderr.contains("holdings.csv") && ran.stderr.contains("does not exist"), "{}", ran.stderr);
+}
