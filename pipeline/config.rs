@@ -21,6 +21,44 @@ pub struct RawConfig {
     pub models: RawModels,
     pub solver: SolverOptions,
     pub output: RawOutput,
+    pub analysis: AnalysisOptions,
+    pub stress: RawStress,
+}
+
+/// Frontier and walk-forward backtest settings.
+#[derive(Debug, Deserialize, Clone, serde::Serialize)]
+#[serde(deny_unknown_fields, default)]
+pub struct AnalysisOptions {
+    /// Points on the efficient frontier, from the min-CVaR to the max-return portfolio.
+    pub frontier_points: usize,
+    /// Years of month-ends before as-of at which the walk-forward backtest rebalances (0 turns it off).
+    pub backtest_years: u32,
+    /// Also backtest a daily 99% VaR over the last 250 observations (Basel traffic light).
+    pub daily_var_check: bool,
+}
+
+impl Default for AnalysisOptions {
+    fn default() -> Self {
+        AnalysisOptions { frontier_points: 21, backtest_years: 5, daily_var_check: true }
+    }
+}
+
+/// The stress set: a file of named shocks, a loss limit and the number of historical windows replayed.
+#[derive(Debug, Deserialize)]
+#[serde(deny_unknown_fields, default)]
+pub struct RawStress {
+    /// YAML file of named shocks, relative to the config file.
+    pub file: Option<PathBuf>,
+    /// A stress loss above this fraction of portfolio value is flagged as a breach.
+    pub loss_limit: Option<f64>,
+    /// Worst non-overlapping horizon windows of the full history replayed on each portfolio.
+    pub historical_windows: usize,
+}
+
+impl Default for RawStress {
+    fn default() -> Self {
+        RawStress { file: None, loss_limit: None, historical_windows: 3 }
+    }
 }
 
 /// Who the pack is for.
@@ -316,6 +354,61 @@ pub struct Config {
     pub floor: FloorRule,
     pub backend: Backend,
     pub out_root: PathBuf,
+    pub analysis: AnalysisOptions,
+    pub stress_file: Option<PathBuf>,
+    pub stress_loss_limit: Option<f64>,
+    pub stress_windows: usize,
+}
+
+/// A stress file: named instantaneous shocks.
+#[derive(Debug, Deserialize, Clone)]
+#[serde(deny_unknown_fields)]
+pub struct StressFile {
+    pub shocks: Vec<ShockSpec>,
+}
+
+/// One named shock: a return per tag (`class:equity`) and/or per asset; an asset move beats a tag move.
+#[derive(Debug, Deserialize, Clone)]
+#[serde(deny_unknown_fields)]
+pub struct ShockSpec {
+    pub name: String,
+    #[serde(default)]
+    pub description: String,
+    pub moves: Vec<MoveSpec>,
+}
+
+/// One move of a shock: exactly one of `tag` or `asset`, and the instantaneous simple return.
+#[derive(Debug, Deserialize, Clone)]
+#[serde(deny_unknown_fields)]
+pub struct MoveSpec {
+    pub tag: Option<String>,
+    pub asset: Option<String>,
+    #[serde(rename = "return")]
+    pub ret: f64,
+}
+
+/// Reads and checks a stress file (shape and ranges; asset and tag names are checked against the data later).
+pub fn load_stress(path: &Path) -> Result<StressFile> {
+    let text = crate::error::fs::read_to_string(path)?;
+    let file: StressFile = serde_yaml_ng::from_str(&text).map_err(|e| Error::config(path, describe_yaml_error(&e)))?;
+    for (i, s) in file.shocks.iter().enumerate() {
+        if s.name.trim().is_empty() {
+            return Err(Error::config(path, format!("shocks[{i}].name: is required")));
+        }
+        for (j, m) in s.moves.iter().enumerate() {
+            let key = format!("shocks[{i}] `{}` moves[{j}]", s.name);
+            if m.tag.is_some() == m.asset.is_some() {
+                return Err(Error::config(path, format!("{key}: give exactly one of `tag` or `asset`")));
+            }
+            if !(m.ret.is_finite() && m.ret >= -1.0) {
+                return Err(Error::config(path, format!("{key}.return: {} must be a simple return ≥ −1 (−100%)", m.ret)));
+            }
+            if m.tag.as_ref().is_some_and(|t| !t.contains(':')) {
+                return Err(Error::config(path, format!("{key}.tag: must look like `column:value`, e.g. `class:equity`")));
+            }
+        }
+    }
+    Ok(file)
 }
 
 /// Every top-level and nested key, for suggestions on unknown keys.
@@ -325,7 +418,9 @@ const KNOWN_KEYS: &[&str] = &[
     "stale_run", "extreme_move", "min_obs_per_asset", "horizon", "step", "lookback_years", "half_life",
     "levels", "confidence", "default_min", "default_max", "exclude", "groups", "turnover_max", "tag", "min",
     "max", "max_return", "min_cvar", "cvar_cap", "value", "times_current", "times_min", "return_floor",
-    "plus_current", "backend", "root",
+    "plus_current", "backend", "root", "analysis", "stress", "frontier_points", "backtest_years",
+    "daily_var_check", "file", "loss_limit", "historical_windows", "shocks", "description", "moves", "asset",
+    "return",
 ];
 
 /// Reads and validates a config file.
@@ -413,7 +508,8 @@ pub fn resolve(path: &Path, raw: RawConfig) -> Result<Config> {
     if short_name.is_empty() {
         return Err(bad("fund.short_name", "must contain at least one letter or digit".into()));
     }
-    for (key, file) in [("data.prices", Some(prices)), ("data.assets", Some(assets)), ("data.holdings", raw.data.holdings.as_ref())] {
+    check_analysis(&raw.analysis, &raw.stress).map_err(|(k, m)| bad(k, m))?;
+    for (key, file) in [("data.prices", Some(prices)), ("data.assets", Some(assets)), ("data.holdings", raw.data.holdings.as_ref()), ("stress.file", raw.stress.file.as_ref())] {
         if let Some(f) = file {
             let full = join(f);
             if !full.is_file() {
@@ -443,6 +539,10 @@ pub fn resolve(path: &Path, raw: RawConfig) -> Result<Config> {
         backend: raw.solver.backend,
         out_root,
         fund: raw.fund,
+        analysis: raw.analysis,
+        stress_file: raw.stress.file.as_ref().map(&join),
+        stress_loss_limit: raw.stress.loss_limit,
+        stress_windows: raw.stress.historical_windows,
     })
 }
 
@@ -464,6 +564,24 @@ fn check_scenarios(s: &ScenarioOptions) -> std::result::Result<(), KeyError> {
         Some(h) if !(h.is_finite() && h > 0.0) => Err(("scenarios.half_life", format!("must be a positive number of observations, got {h}"))),
         _ => Ok(()),
     }
+}
+
+fn check_analysis(a: &AnalysisOptions, s: &RawStress) -> std::result::Result<(), KeyError> {
+    if a.frontier_points < 2 || a.frontier_points > 500 {
+        return Err(("analysis.frontier_points", format!("must be between 2 and 500, got {}", a.frontier_points)));
+    }
+    if a.backtest_years > 50 {
+        return Err(("analysis.backtest_years", format!("must be between 0 and 50, got {}", a.backtest_years)));
+    }
+    if let Some(l) = s.loss_limit {
+        if !(l.is_finite() && l > 0.0 && l <= 1.0) {
+            return Err(("stress.loss_limit", format!("must be a loss fraction in (0, 1], got {l}")));
+        }
+    }
+    if s.historical_windows > 20 {
+        return Err(("stress.historical_windows", format!("must be between 0 and 20, got {}", s.historical_windows)));
+    }
+    Ok(())
 }
 
 fn check_quality(q: &QualityOptions) -> std::result::Result<(), KeyError> {

@@ -6,6 +6,7 @@
 //! - [`scenarios`]: overlapping horizon windows of returns and their probabilities.
 //! - [`risk`]: VaR, CVaR, component CVaR and other statistics of any weight vector.
 //! - [`models`]: the three CVaR model families as LPs (HiGHS or Clarabel), with their preconditions.
+//! - [`analysis`]: efficient frontier, stress set, walk-forward backtest with VaR backtests.
 //! - [`run`]: wires the stages into one run and resolves rules that depend on earlier results.
 //! - [`pack`]: writes the pack folder (scenarios, results, weights, summary).
 //! - [`commands`]: one function per CLI subcommand; the binary is a thin layer over these.
@@ -13,6 +14,7 @@
 //! Cross-cutting: [`error`] (typed errors, exit codes, path-naming file helpers), [`diag`] (findings that
 //! travel with results), [`demo`] (the deterministic generator of the invented demo data).
 
+pub mod analysis;
 pub mod commands;
 pub mod config;
 pub mod demo;

@@ -212,7 +212,55 @@ pub fn results_json(r: &RunResult, inputs: &[InputFile], pack_id: &str) -> Value
         "checks": r.checks,
         "solver": {"backend": r.backend.name(), "description": crate::models::lp::backend_description(r.backend)},
         "inputs": inputs,
+        "frontier": frontier_json(r),
+        "stress": stress_json(r),
+        "backtest": backtest_json(r),
     })
+}
+
+fn frontier_json(r: &RunResult) -> Value {
+    let Some(f) = &r.analysis.frontier else { return Value::Null };
+    let points: Vec<Value> = f.points.iter().map(|p| json!({
+        "cvar_cap": p.cvar_cap, "status": p.status, "expected_return": p.expected_return, "cvar": p.cvar, "var": p.var,
+        "weights": p.weights.as_ref().map(|w| weight_map(&r.data.assets, w)),
+    })).collect();
+    json!({"confidence": r.config.confidence, "min_cvar": f.min_cvar, "max_return_cvar": f.max_return_cvar, "points": points})
+}
+
+fn stress_json(r: &RunResult) -> Value {
+    let a = &r.analysis;
+    let shocks: Vec<Value> = a.shocks.iter().map(|s| json!({
+        "name": s.name, "kind": s.kind, "description": s.description, "start": s.start.map(|d| d.to_string()),
+        "end": s.end.map(|d| d.to_string()), "returns": weight_map(&r.data.assets, &s.returns), "unshocked": s.unshocked,
+    })).collect();
+    let portfolios: Map<String, Value> = a.stress.iter().map(|p| (p.portfolio.clone(), json!({
+        "pnl": p.pnl,
+        "worst": {"shock": a.shocks.get(p.worst).map(|s| &s.name), "pnl": p.pnl.get(p.worst)},
+        "by_class": p.by_class.iter().map(|c| Value::Object(c.iter().map(|(k, v)| (k.clone(), json!(v))).collect())).collect::<Vec<_>>(),
+        "breaches": p.breaches.iter().map(|&k| &a.shocks[k].name).collect::<Vec<_>>(),
+    }))).collect();
+    json!({"loss_limit": r.config.stress_loss_limit, "shocks": shocks, "portfolios": portfolios})
+}
+
+fn backtest_json(r: &RunResult) -> Value {
+    let Some(b) = &r.analysis.backtest else { return Value::Null };
+    let models: Map<String, Value> = b.tracks.iter().map(|t| (t.model.to_string(), json!({
+        "observations": t.observations, "exceptions": t.exceptions, "expected_exceptions": t.expected_exceptions,
+        "kupiec": t.kupiec, "christoffersen": t.christoffersen, "mean_prediction_error": t.mean_prediction_error,
+        "final_wealth": t.final_wealth, "daily_var_99": t.daily,
+        "months": t.rows.iter().map(|row| json!({
+            "date": row.date.to_string(), "next": row.next.to_string(), "status": row.status,
+            "predicted_return": row.predicted_return, "realised_return": row.realised_return,
+            "predicted_minus_realised": row.predicted_return.zip(row.realised_return).map(|(p, q)| p - q),
+            "predicted_var": row.predicted_var, "predicted_cvar": row.predicted_cvar, "turnover": row.turnover,
+            "wealth": row.wealth, "exception": row.exception,
+            "weights": row.weights.as_ref().map(|w| weight_map(&r.data.assets, w)),
+        })).collect::<Vec<_>>(),
+    }))).collect();
+    json!({"confidence": b.confidence, "rebalances": b.rebalances.len(), "first": b.rebalances.first().map(|d| d.to_string()),
+           "last": b.rebalances.last().map(|d| d.to_string()),
+           "skipped": b.skipped.iter().map(|(d, why)| json!({"date": d.to_string(), "reason": why})).collect::<Vec<_>>(),
+           "models": models})
 }
 
 /// A return with its sign, e.g. `+0.31%`.

@@ -3,7 +3,7 @@
 //! This module wires the stages together and resolves the rules that depend on earlier results (the CVaR
 //! cap "times the minimum", the return floor "plus current"). It computes nothing itself beyond that.
 
-use crate::config::{self, Backend, CapRule, Config, FloorRule, GroupSelector};
+use crate::config::{self, Backend, Config, GroupSelector};
 use crate::diag::{Check, Level};
 use crate::error::{Error, Result};
 use crate::ingest::{self, MarketData};
@@ -50,6 +50,7 @@ pub struct RunResult {
     pub models: Vec<ModelReport>,
     pub checks: Vec<Check>,
     pub backend: Backend,
+    pub analysis: crate::analysis::Analysis,
 }
 
 /// Loads and validates config and data (the `check` command stops here).
@@ -117,26 +118,17 @@ pub fn compute(cfg: Config, data: MarketData) -> Result<RunResult> {
         None => (p.min_cvar(None).ok().map(|s| s.objective), p.max_return(None).ok().map(|s| s.objective)),
     };
     let pre = models::preconditions(min_over_x, max_over_x);
-    let cap = resolve_cap(cfg.cap, min_over_x, current.as_ref().map(|r| r.at(c).cvar));
-    let floor = match cfg.floor {
-        FloorRule::Value(v) => v,
-        FloorRule::PlusCurrent(d) => current.as_ref().map_or(d, |r| r.expected_return + d),
-    };
+    let cap = models::resolve_cap(cfg.cap, min_over_x, current.as_ref().map(|r| r.at(c).cvar));
+    let floor = models::resolve_floor(cfg.floor, current.as_ref().map(|r| r.expected_return));
     let reports = solve_models(&p, &pre, cap, floor, empty.as_deref(), min_over_x, max_over_x, &data, &cfg);
+    let mut portfolios: Vec<(String, Vec<f64>)> = data.holdings.iter().map(|h| ("current".to_string(), h.clone())).collect();
+    portfolios.extend(reports.iter().filter_map(|r| r.outcome.weights.clone().map(|w| (r.name.to_string(), w))));
+    let analysis = crate::analysis::analyse(&cfg, &data, &p, &fs, &portfolios)?;
     let mut checks = data.quality.findings.clone();
     checks.extend(model_checks(&pre, &reports, &cfg));
+    checks.extend(crate::analysis::checks(&analysis, &cfg));
     let backend = cfg.backend;
-    Ok(RunResult { config: cfg, data, scenarios: set, feasible: fs, cvar_cap: cap, return_floor: floor, preconditions: pre, current, models: reports, checks, backend })
-}
-
-/// cap = m · base for a positive base; for a non-positive base, base + (m − 1)·|base| keeps the cap ≥ base.
-fn resolve_cap(rule: CapRule, min_cvar: Option<f64>, current: Option<f64>) -> f64 {
-    let scaled = |base: f64, m: f64| if base > 0.0 { m * base } else { base + (m - 1.0) * base.abs() };
-    match rule {
-        CapRule::Value(v) => v,
-        CapRule::TimesMin(m) => min_cvar.map_or(f64::NAN, |b| scaled(b, m)),
-        CapRule::TimesCurrent(m) => current.map_or(f64::NAN, |b| scaled(b, m)),
-    }
+    Ok(RunResult { config: cfg, data, scenarios: set, feasible: fs, cvar_cap: cap, return_floor: floor, preconditions: pre, current, models: reports, checks, backend, analysis })
 }
 
 #[allow(clippy::too_many_arguments)]

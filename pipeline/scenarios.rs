@@ -84,17 +84,22 @@ impl ScenarioSet {
 
 /// Builds the scenario set from the market data's window.
 pub fn build(data: &MarketData, opts: &ScenarioOptions) -> Result<ScenarioSet> {
-    let rows = data.dates.len();
+    from_prices(&data.assets, &data.dates, &data.prices, opts)
+}
+
+/// Builds a scenario set from dated prices (`prices[asset][row]`, rows ascending, no missing values).
+pub fn from_prices(assets: &[String], dates: &[NaiveDate], prices: &[Vec<f64>], opts: &ScenarioOptions) -> Result<ScenarioSet> {
+    let rows = dates.len();
     let h = opts.horizon;
     if rows <= h {
         return Err(Error::Run(format!("{rows} observations cannot make a {h}-observation scenario")));
     }
     let mut ends: Vec<usize> = (h..rows).rev().step_by(opts.step).collect();
     ends.reverse();
-    let n = data.assets.len();
+    let n = assets.len();
     let mut returns = Vec::with_capacity(ends.len() * n);
     for &e in &ends {
-        returns.extend(data.prices.iter().map(|p| p[e] / p[e - h] - 1.0));
+        returns.extend(prices.iter().map(|p| p[e] / p[e - h] - 1.0));
     }
     let last = rows - 1;
     let probabilities = match opts.half_life {
@@ -102,9 +107,9 @@ pub fn build(data: &MarketData, opts: &ScenarioOptions) -> Result<ScenarioSet> {
         Some(hl) => decayed(ends.iter().map(|&e| (last - e) as f64), hl),
     };
     Ok(ScenarioSet {
-        assets: data.assets.clone(),
-        starts: ends.iter().map(|&e| data.dates[e - h]).collect(),
-        ends: ends.iter().map(|&e| data.dates[e]).collect(),
+        assets: assets.to_vec(),
+        starts: ends.iter().map(|&e| dates[e - h]).collect(),
+        ends: ends.iter().map(|&e| dates[e]).collect(),
         returns,
         probabilities,
         equal_probabilities: opts.half_life.is_none(),

@@ -32,6 +32,11 @@ pub struct MarketData {
     pub assets: Vec<String>,
     /// Filled prices of the window, `prices[asset][row]`.
     pub prices: Vec<Vec<f64>>,
+    /// Every observation date up to as-of (for the backtest and historical stress windows).
+    pub full_dates: Vec<NaiveDate>,
+    /// Prices of the kept assets over `full_dates` after the same fill policy; NaN where a price is
+    /// missing and cannot be filled (before an asset's first price, or inside a long gap).
+    pub full_prices: Vec<Vec<f64>>,
     /// Metadata aligned with `assets`.
     pub meta: Vec<AssetMeta>,
     /// Current holdings aligned with `assets`, if configured.
@@ -127,13 +132,14 @@ fn build(cfg: &Config, hist: PriceHistory, meta: Vec<AssetMeta>, as_of: NaiveDat
             "the price history starts on {}, after the lookback start {window_start} ({} years before as-of); all of it is used",
             hist.dates[0], cfg.scenarios.lookback_years)));
     }
-    let (mut assets, mut prices, mut metas, mut per_asset) = (vec![], vec![], vec![], vec![]);
+    let (mut assets, mut prices, mut metas, mut per_asset, mut full) = (vec![], vec![], vec![], vec![], vec![]);
     for (a, series) in hist.assets.iter().zip(&hist.values) {
         let f = quality::fill_asset(a, series, start, &cfg.quality);
         findings.extend(f.note);
         if !f.quality.dropped {
             assets.push(a.clone());
             prices.push(f.values);
+            full.push(quality::fill_forward(series, cfg.quality.max_fill));
             metas.push(meta.iter().find(|m| &m.asset == a).expect("checked").clone());
         }
         per_asset.push(f.quality);
@@ -159,7 +165,7 @@ fn build(cfg: &Config, hist: PriceHistory, meta: Vec<AssetMeta>, as_of: NaiveDat
         findings,
     };
     let history = (hist.dates[0], *hist.dates.last().expect("non-empty"));
-    Ok(MarketData { as_of, history, dates, assets, prices, meta: metas, holdings, quality, layout: hist.layout })
+    Ok(MarketData { as_of, history, dates, assets, prices, full_dates: hist.dates, full_prices: full, meta: metas, holdings, quality, layout: hist.layout })
 }
 
 fn window_check(rows: usize, horizon: usize, step: usize) -> Check {

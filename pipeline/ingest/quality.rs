@@ -90,6 +90,23 @@ pub fn fill_asset(asset: &str, series: &[Option<f64>], start: usize, opts: &Qual
     Filled { values, quality, note }
 }
 
+/// The fill policy on a whole series: a missing price takes the last observation when the gap so far is at
+/// most `max_fill`; otherwise (and before the first price) it stays NaN.
+pub fn fill_forward(series: &[Option<f64>], max_fill: usize) -> Vec<f64> {
+    let (mut last, mut gap) = (f64::NAN, 0usize);
+    series.iter().map(|v| match v {
+        Some(p) => {
+            last = *p;
+            gap = 0;
+            *p
+        }
+        None => {
+            gap += 1;
+            if gap <= max_fill { last } else { f64::NAN }
+        }
+    }).collect()
+}
+
 fn drop_note(asset: &str, gap: usize, no_start: bool, max_fill: usize) -> Check {
     let why = if no_start {
         "has no price at the start of the scenario window (its history starts later)".to_string()

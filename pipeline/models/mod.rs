@@ -12,7 +12,7 @@
 
 pub mod lp;
 
-use crate::config::Backend;
+use crate::config::{Backend, CapRule, FloorRule};
 use crate::risk;
 use crate::scenarios::ScenarioSet;
 use lp::{Failure, Lp, Solved};
@@ -155,6 +155,25 @@ pub fn preconditions(min_cvar: Option<f64>, max_return: Option<f64>) -> Precondi
         _ => None,
     };
     Preconditions { min_cvar, max_return, holds: reason.is_none(), reason }
+}
+
+/// The CVaR cap of a rule: m · base for a positive base; for a non-positive base, base + (m − 1)·|base|,
+/// which keeps the cap at or above the base. NaN when the base is unknown (empty X, no holdings).
+pub fn resolve_cap(rule: CapRule, min_cvar: Option<f64>, current_cvar: Option<f64>) -> f64 {
+    let scaled = |base: f64, m: f64| if base > 0.0 { m * base } else { base + (m - 1.0) * base.abs() };
+    match rule {
+        CapRule::Value(v) => v,
+        CapRule::TimesMin(m) => min_cvar.map_or(f64::NAN, |b| scaled(b, m)),
+        CapRule::TimesCurrent(m) => current_cvar.map_or(f64::NAN, |b| scaled(b, m)),
+    }
+}
+
+/// The return floor of a rule; `plus_current` needs the current portfolio's expected return.
+pub fn resolve_floor(rule: FloorRule, current_return: Option<f64>) -> f64 {
+    match rule {
+        FloorRule::Value(v) => v,
+        FloorRule::PlusCurrent(d) => current_return.map_or(d, |r| r + d),
+    }
 }
 
 /// Largest violation of X's constraints (and optional cap/floor) by weights `x`.

@@ -1,0 +1,266 @@
+//! Walk-forward (out-of-sample) backtest of the three models.
+//!
+//! At each month-end m in the backtest range, scenarios are rebuilt from prices dated on or before m only
+//! (the same lookback, horizon, step and probabilities as the live run), the three models are solved on
+//! the live run's constraints, and each portfolio is held to the next month-end, where its realised return
+//! is measured. The turnover limit and the rules "times current" / "plus current" refer to the fund's
+//! current holdings as the reference portfolio at every date, so months are independent and are solved in
+//! parallel; the reported turnover is the trading actually implied between consecutive months' weights.
+//! The predicted VaR of each month is then backtested against the realised losses (see `vartest`).
+
+use super::vartest::{self, LrTest, Zone};
+use crate::config::Config;
+use crate::ingest::MarketData;
+use crate::models::{self, FeasibleSet, Problem, Status};
+use crate::risk;
+use crate::run::MODEL_NAMES;
+use crate::scenarios;
+use chrono::{Datelike, Months, NaiveDate};
+use rayon::prelude::*;
+use serde::Serialize;
+
+/// Observations in the daily VaR traffic-light test (Basel Committee 1996: 250 trading days).
+pub const DAILY_OBSERVATIONS: usize = 250;
+/// Level of the daily VaR in the traffic-light test (Basel Committee 1996: 99%).
+pub const DAILY_LEVEL: f64 = 0.99;
+
+/// One model's decision at one month-end and what followed.
+#[derive(Debug, Clone, Serialize)]
+pub struct TrackRow {
+    pub date: NaiveDate,
+    pub next: NaiveDate,
+    pub status: String,
+    pub weights: Option<Vec<f64>>,
+    pub predicted_return: Option<f64>,
+    pub predicted_var: Option<f64>,
+    pub predicted_cvar: Option<f64>,
+    pub realised_return: Option<f64>,
+    /// Σ|w_m − drifted w_{m−1}|; the first month is measured from the reference holdings.
+    pub turnover: Option<f64>,
+    pub wealth: f64,
+    pub exception: Option<bool>,
+}
+
+/// The daily 99% VaR traffic-light test of one model.
+#[derive(Debug, Clone, Serialize)]
+pub struct DailyCheck {
+    pub observations: usize,
+    pub exceptions: usize,
+    pub cumulative_probability: f64,
+    pub zone: Zone,
+    pub start: NaiveDate,
+    pub end: NaiveDate,
+}
+
+/// One model's track record.
+#[derive(Debug, Clone, Serialize)]
+pub struct Track {
+    pub model: &'static str,
+    pub rows: Vec<TrackRow>,
+    pub observations: usize,
+    pub exceptions: usize,
+    pub expected_exceptions: f64,
+    pub kupiec: Option<LrTest>,
+    pub christoffersen: Option<LrTest>,
+    /// Mean of predicted − realised return over the months with both.
+    pub mean_prediction_error: Option<f64>,
+    pub final_wealth: f64,
+    pub daily: Option<DailyCheck>,
+}
+
+/// The backtest of all models.
+#[derive(Debug, Clone, Serialize)]
+pub struct Backtest {
+    pub confidence: f64,
+    pub rebalances: Vec<NaiveDate>,
+    pub skipped: Vec<(NaiveDate, String)>,
+    pub tracks: Vec<Track>,
+}
+
+/// The month-ends of the full history: the last observation of every calendar month.
+pub fn month_ends(dates: &[NaiveDate]) -> Vec<usize> {
+    (0..dates.len()).filter(|&i| i + 1 == dates.len() || dates[i + 1].month() != dates[i].month()).collect()
+}
+
+/// A month's decision: weights and predictions per model, or why the month was skipped.
+struct Month {
+    row: usize,
+    next: usize,
+    decisions: Result<Vec<Decision>, String>,
+}
+
+struct Decision {
+    status: Status,
+    weights: Option<Vec<f64>>,
+    tail: Option<(f64, f64, f64)>,
+}
+
+/// Runs the backtest; `None` when it is switched off or no month-end falls in range.
+pub fn run(cfg: &Config, data: &MarketData, live: &FeasibleSet) -> Option<Backtest> {
+    let years = cfg.analysis.backtest_years;
+    if years == 0 {
+        return None;
+    }
+    let start = data.as_of.checked_sub_months(Months::new(12 * years))?;
+    let ends = month_ends(&data.full_dates);
+    let pairs: Vec<(usize, usize)> = ends.windows(2).map(|w| (w[0], w[1]))
+        .filter(|(m, _)| data.full_dates[*m] >= start).collect();
+    if pairs.is_empty() {
+        return None;
+    }
+    let months: Vec<Month> = pairs.par_iter().map(|&(m, n)| Month { row: m, next: n, decisions: decide(cfg, data, live, m) }).collect();
+    Some(assemble(cfg, data, &months))
+}
+
+/// Solves the three models with data up to row `m` only.
+fn decide(cfg: &Config, data: &MarketData, live: &FeasibleSet, m: usize) -> Result<Vec<Decision>, String> {
+    let (assets, dates, prices, fs) = window(cfg, data, live, m)?;
+    let set = scenarios::from_prices(&assets, &dates, &prices, &cfg.scenarios).map_err(|e| e.to_string())?;
+    if set.len() < crate::ingest::MIN_SCENARIOS {
+        return Err(format!("only {} scenarios", set.len()));
+    }
+    let c = cfg.confidence;
+    let p = Problem { set: &set, mu: set.mean(), confidence: c, feasible: &fs, backend: cfg.backend };
+    let reference = data.holdings.as_ref().map(|h| risk::profile(&set, h, &[c], c));
+    let min_x = p.min_cvar(None).ok().map(|s| s.objective);
+    let max_x = p.max_return(None).ok().map(|s| s.objective);
+    let cap = models::resolve_cap(cfg.cap, min_x, reference.as_ref().map(|r| r.at(c).cvar));
+    let floor = models::resolve_floor(cfg.floor, reference.as_ref().map(|r| r.expected_return));
+    let pre = models::preconditions(min_x, max_x);
+    let outcomes = [
+        models::outcome(&p, p.max_return(Some(cap)), Some(cap), None, String::new),
+        models::outcome(&p, p.min_cvar(Some(floor)), None, Some(floor), String::new),
+        if pre.holds { models::outcome(&p, p.max_ratio(), None, None, String::new) } else {
+            models::Outcome { status: Status::NotApplicable, message: pre.reason, weights: None, objective: None, scale: None, max_violation: None }
+        },
+    ];
+    Ok(outcomes.into_iter().map(|o| {
+        let tail = o.weights.as_ref().map(|w| {
+            let pr = risk::profile(&set, w, &[c], c);
+            (pr.expected_return, pr.at(c).var, pr.at(c).cvar)
+        });
+        Decision { status: o.status, weights: o.weights, tail }
+    }).collect())
+}
+
+type Window = (Vec<String>, Vec<NaiveDate>, Vec<Vec<f64>>, FeasibleSet);
+
+/// The lookback window ending at row `m`; assets without a full price series there get zero weight.
+fn window(cfg: &Config, data: &MarketData, live: &FeasibleSet, m: usize) -> Result<Window, String> {
+    let end = data.full_dates[m];
+    let from = end.checked_sub_months(Months::new(12 * cfg.scenarios.lookback_years)).ok_or("date range")?;
+    let s = data.full_dates.partition_point(|d| *d < from);
+    if m + 1 - s <= cfg.scenarios.horizon + crate::ingest::MIN_SCENARIOS {
+        return Err(format!("history before {end} is too short for a {}-year lookback", cfg.scenarios.lookback_years));
+    }
+    let mut fs = live.clone();
+    let mut prices = Vec::with_capacity(data.assets.len());
+    for (i, p) in data.full_prices.iter().enumerate() {
+        let slice = &p[s..=m];
+        if slice.iter().all(|v| v.is_finite()) {
+            prices.push(slice.to_vec());
+        } else {
+            fs.lower[i] = 0.0;
+            fs.upper[i] = 0.0;
+            prices.push(vec![1.0; slice.len()]);
+        }
+    }
+    Ok((data.assets.clone(), data.full_dates[s..=m].to_vec(), prices, fs))
+}
+
+fn realised(data: &MarketData, w: &[f64], from: usize, to: usize) -> (f64, Vec<f64>) {
+    let r: Vec<f64> = data.full_prices.iter().map(|p| {
+        let v = p[to] / p[from] - 1.0;
+        if v.is_finite() { v } else { 0.0 }
+    }).collect();
+    (models::dot(w, &r), r)
+}
+
+fn assemble(cfg: &Config, data: &MarketData, months: &[Month]) -> Backtest {
+    let skipped = months.iter().filter_map(|m| m.decisions.as_ref().err().map(|e| (data.full_dates[m.row], e.clone()))).collect();
+    let tracks = (0..MODEL_NAMES.len()).map(|k| track(cfg, data, months, k)).collect();
+    Backtest {
+        confidence: cfg.confidence,
+        rebalances: months.iter().map(|m| data.full_dates[m.row]).collect(),
+        skipped,
+        tracks,
+    }
+}
+
+fn track(cfg: &Config, data: &MarketData, months: &[Month], k: usize) -> Track {
+    let mut rows = Vec::with_capacity(months.len());
+    let (mut wealth, mut held): (f64, Option<Vec<f64>>) = (1.0, data.holdings.clone());
+    for m in months {
+        let d = m.decisions.as_ref().ok().map(|v| &v[k]);
+        let (date, next) = (data.full_dates[m.row], data.full_dates[m.next]);
+        let status = d.map_or("skipped".to_string(), |d| d.status.word().to_string());
+        let weights = d.and_then(|d| d.weights.clone());
+        let turnover = match (&weights, &held) { (Some(w), Some(h)) => Some(models::turnover(w, h)), _ => None };
+        let (realised_return, drifted) = match &weights {
+            Some(w) => {
+                let (rp, r) = realised(data, w, m.row, m.next);
+                let drift: Vec<f64> = w.iter().zip(&r).map(|(x, ri)| x * (1.0 + ri) / (1.0 + rp)).collect();
+                (Some(rp), Some(drift))
+            }
+            None => (None, None),
+        };
+        wealth *= 1.0 + realised_return.unwrap_or(0.0);
+        if drifted.is_some() {
+            held = drifted;
+        }
+        let tail = d.and_then(|d| d.tail);
+        let exception = match (tail, realised_return) { (Some((_, var, _)), Some(r)) => Some(-r > var), _ => None };
+        rows.push(TrackRow {
+            date, next, status, weights, predicted_return: tail.map(|t| t.0), predicted_var: tail.map(|t| t.1),
+            predicted_cvar: tail.map(|t| t.2), realised_return, turnover, wealth, exception,
+        });
+    }
+    summarise(cfg, data, MODEL_NAMES[k], rows)
+}
+
+fn summarise(cfg: &Config, data: &MarketData, model: &'static str, rows: Vec<TrackRow>) -> Track {
+    let hits: Vec<bool> = rows.iter().filter_map(|r| r.exception).collect();
+    let exceptions = hits.iter().filter(|h| **h).count();
+    let p = 1.0 - cfg.confidence;
+    let gaps: Vec<f64> = rows.iter().filter_map(|r| Some(r.predicted_return? - r.realised_return?)).collect();
+    let daily = if cfg.analysis.daily_var_check { daily_check(cfg, data, &rows) } else { None };
+    Track {
+        model,
+        observations: hits.len(),
+        exceptions,
+        expected_exceptions: p * hits.len() as f64,
+        kupiec: (!hits.is_empty()).then(|| vartest::kupiec(exceptions, hits.len(), p)),
+        christoffersen: vartest::christoffersen(&hits),
+        mean_prediction_error: (!gaps.is_empty()).then(|| gaps.iter().sum::<f64>() / gaps.len() as f64),
+        final_wealth: rows.last().map_or(1.0, |r| r.wealth),
+        rows,
+        daily,
+    }
+}
+
+/// Daily 99% VaR of the weights in force on each of the last 250 observations, from one-day scenarios of
+/// the lookback window ending the day before, against that day's realised loss (Basel Committee 1996).
+fn daily_check(cfg: &Config, data: &MarketData, rows: &[TrackRow]) -> Option<DailyCheck> {
+    let last = data.full_dates.len() - 1;
+    let first = last.checked_sub(DAILY_OBSERVATIONS - 1)?;
+    let opts = crate::config::ScenarioOptions { horizon: 1, step: 1, ..cfg.scenarios.clone() };
+    let mut exceptions = 0;
+    for day in first..=last {
+        let prev = data.full_dates[day - 1];
+        let w = rows.iter().rev().find(|r| r.date <= prev)?.weights.as_ref()?;
+        let from = prev.checked_sub_months(Months::new(12 * cfg.scenarios.lookback_years))?;
+        let s = data.full_dates.partition_point(|d| *d < from);
+        let prices: Vec<Vec<f64>> = data.full_prices.iter().map(|p| p[s..day].iter().map(|v| if v.is_finite() { *v } else { 1.0 }).collect()).collect();
+        let set = scenarios::from_prices(&data.assets, &data.full_dates[s..day], &prices, &opts).ok()?;
+        let var = risk::var_cvar(&set.portfolio_returns(w).iter().map(|r| -r).collect::<Vec<_>>(), &set.probabilities, DAILY_LEVEL).var;
+        let (r, _) = realised(data, w, day - 1, day);
+        exceptions += usize::from(-r > var);
+    }
+    let p = 1.0 - DAILY_LEVEL;
+    Some(DailyCheck {
+        observations: DAILY_OBSERVATIONS, exceptions,
+        cumulative_probability: vartest::cumulative_probability(exceptions, DAILY_OBSERVATIONS, p),
+        zone: vartest::zone(exceptions, DAILY_OBSERVATIONS, p),
+        start: data.full_dates[first], end: data.full_dates[last],
+    })
+}

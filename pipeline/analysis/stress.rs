@@ -1,0 +1,136 @@
+//! The stress set: named instantaneous shocks from the stress file, plus the worst non-overlapping
+//! horizon windows of the full price history, replayed on every portfolio.
+//!
+//! A shock's P&L for weights w is Σ_i w_i s_i (an instantaneous revaluation of each position by its shock
+//! return); its contribution by class sums the same terms within a class.
+
+use crate::config::{ShockSpec, StressFile};
+use crate::error::{Error, Result};
+use crate::ingest::MarketData;
+use chrono::NaiveDate;
+use serde::Serialize;
+use std::path::Path;
+
+/// One scenario of the stress set with its per-asset returns.
+#[derive(Debug, Clone, Serialize)]
+pub struct Shock {
+    pub name: String,
+    /// `defined` (from the stress file) or `historical` (a window of the price history).
+    pub kind: &'static str,
+    pub description: String,
+    pub start: Option<NaiveDate>,
+    pub end: Option<NaiveDate>,
+    /// Return per asset, in `MarketData::assets` order.
+    pub returns: Vec<f64>,
+    /// Assets the shock does not move (no tag or asset entry; no price in a historical window).
+    pub unshocked: Vec<String>,
+}
+
+/// Resolves the file's shocks against the universe: asset moves first, then the first matching tag move.
+pub fn defined(path: &Path, file: &StressFile, data: &MarketData) -> Result<Vec<Shock>> {
+    file.shocks.iter().map(|s| resolve(path, s, data)).collect()
+}
+
+fn resolve(path: &Path, s: &ShockSpec, data: &MarketData) -> Result<Shock> {
+    let err = |m: String| Error::config(path, format!("shock `{}`: {m}", s.name));
+    for m in &s.moves {
+        if let Some(a) = &m.asset {
+            if !data.assets.contains(a) {
+                return Err(err(format!("unknown asset `{a}` (not in the price data, or dropped by the fill policy)")));
+            }
+        }
+        if let Some(t) = &m.tag {
+            let (col, val) = t.split_once(':').expect("checked when loading");
+            if !data.meta.iter().any(|am| am.tag(&col.trim().to_ascii_lowercase()).is_some_and(|v| v.eq_ignore_ascii_case(val.trim()))) {
+                return Err(err(format!("tag `{t}` matches no asset")));
+            }
+        }
+    }
+    let mut returns = Vec::with_capacity(data.assets.len());
+    let mut unshocked = Vec::new();
+    for (i, a) in data.assets.iter().enumerate() {
+        let by_asset = s.moves.iter().find(|m| m.asset.as_deref() == Some(a.as_str()));
+        let by_tag = || s.moves.iter().find(|m| m.tag.as_ref().is_some_and(|t| tag_matches(t, &data.meta[i])));
+        match by_asset.or_else(by_tag) {
+            Some(m) => returns.push(m.ret),
+            None => {
+                returns.push(0.0);
+                unshocked.push(a.clone());
+            }
+        }
+    }
+    Ok(Shock { name: s.name.clone(), kind: "defined", description: s.description.clone(), start: None, end: None, returns, unshocked })
+}
+
+fn tag_matches(tag: &str, meta: &crate::ingest::meta::AssetMeta) -> bool {
+    let (col, val) = tag.split_once(':').expect("checked when loading");
+    meta.tag(&col.trim().to_ascii_lowercase()).is_some_and(|v| v.eq_ignore_ascii_case(val.trim()))
+}
+
+/// The `count` worst non-overlapping `h`-observation windows of the full history for the reference
+/// weights, as shocks; assets without prices at both ends of a window are left unshocked.
+pub fn historical(data: &MarketData, reference: &[f64], h: usize, count: usize) -> Vec<Shock> {
+    let rows = data.full_dates.len();
+    if rows <= h || count == 0 {
+        return vec![];
+    }
+    let window = |t: usize| -> Vec<f64> {
+        data.full_prices.iter().map(|p| { let r = p[t + h] / p[t] - 1.0; if r.is_finite() { r } else { f64::NAN } }).collect()
+    };
+    let mut scored: Vec<(usize, f64)> = (0..rows - h)
+        .map(|t| (t, window(t).iter().zip(reference).map(|(r, w)| if r.is_nan() { 0.0 } else { r * w }).sum()))
+        .collect();
+    scored.sort_by(|a, b| a.1.total_cmp(&b.1).then(a.0.cmp(&b.0)));
+    let mut picked: Vec<usize> = Vec::new();
+    for (t, _) in scored {
+        if picked.len() == count {
+            break;
+        }
+        if picked.iter().all(|&q| t.abs_diff(q) >= h) {
+            picked.push(t);
+        }
+    }
+    picked.iter().enumerate().map(|(k, &t)| {
+        let r = window(t);
+        let unshocked = data.assets.iter().zip(&r).filter(|(_, v)| v.is_nan()).map(|(a, _)| a.clone()).collect();
+        let (start, end) = (data.full_dates[t], data.full_dates[t + h]);
+        Shock {
+            name: format!("Worst window #{} ({start} to {end})", k + 1),
+            kind: "historical",
+            description: format!("the {}-observation window of the price history with the largest loss for the reference portfolio", h),
+            start: Some(start),
+            end: Some(end),
+            returns: r.iter().map(|v| if v.is_nan() { 0.0 } else { *v }).collect(),
+            unshocked,
+        }
+    }).collect()
+}
+
+/// One portfolio's results over the stress set.
+#[derive(Debug, Clone, Serialize)]
+pub struct StressResult {
+    pub portfolio: String,
+    /// P&L (fraction of portfolio value) per shock, in stress-set order.
+    pub pnl: Vec<f64>,
+    /// Index of the worst shock.
+    pub worst: usize,
+    /// Contributions by class, per shock.
+    pub by_class: Vec<Vec<(String, f64)>>,
+    /// Indices of shocks whose loss exceeds the loss limit.
+    pub breaches: Vec<usize>,
+}
+
+/// Replays every shock on weights `w`.
+pub fn replay(name: &str, w: &[f64], shocks: &[Shock], classes: &[String], loss_limit: Option<f64>) -> StressResult {
+    let pnl: Vec<f64> = shocks.iter().map(|s| s.returns.iter().zip(w).map(|(r, x)| r * x).sum()).collect();
+    let worst = (0..pnl.len()).min_by(|&a, &b| pnl[a].total_cmp(&pnl[b])).unwrap_or(0);
+    let by_class = shocks.iter().map(|s| {
+        let terms: Vec<f64> = s.returns.iter().zip(w).map(|(r, x)| r * x).collect();
+        crate::risk::by_group(&terms, classes)
+    }).collect();
+    let breaches = match loss_limit {
+        Some(l) => (0..pnl.len()).filter(|&k| -pnl[k] > l).collect(),
+        None => vec![],
+    };
+    StressResult { portfolio: name.to_string(), pnl, worst, by_class, breaches }
+}
