@@ -21,6 +21,7 @@ pub struct RawConfig {
     pub models: RawModels,
     pub solver: SolverOptions,
     pub output: RawOutput,
+    pub report: RawReport,
 }
 
 /// Who the pack is for.
@@ -251,6 +252,15 @@ pub struct RawOutput {
     pub root: Option<PathBuf>,
 }
 
+/// Settings of the PDF pack.
+#[derive(Debug, Deserialize, Default)]
+#[serde(deny_unknown_fields, default)]
+pub struct RawReport {
+    /// Folder of custom typst templates, relative to the config file; its files replace the built-in
+    /// templates of the same name, file by file.
+    pub templates: Option<PathBuf>,
+}
+
 /// A group limit with its members resolved later against the asset list.
 #[derive(Debug, Clone, serde::Serialize)]
 pub struct GroupSpec {
@@ -305,6 +315,8 @@ pub struct Config {
     pub floor: FloorRule,
     pub backend: Backend,
     pub out_root: PathBuf,
+    /// Custom template folder (`report.templates`), resolved and checked to be a folder.
+    pub templates: Option<PathBuf>,
 }
 
 /// Every top-level and nested key, for suggestions on unknown keys.
@@ -314,7 +326,7 @@ const KNOWN_KEYS: &[&str] = &[
     "stale_run", "extreme_move", "min_obs_per_asset", "horizon", "step", "lookback_years", "half_life",
     "levels", "confidence", "default_min", "default_max", "exclude", "groups", "turnover_max", "tag", "min",
     "max", "max_return", "min_cvar", "cvar_cap", "value", "times_current", "times_min", "return_floor",
-    "plus_current", "backend", "root",
+    "plus_current", "backend", "root", "report", "templates",
 ];
 
 /// Reads and validates a config file.
@@ -403,6 +415,10 @@ pub fn resolve(path: &Path, raw: RawConfig) -> Result<Config> {
         return Err(bad("fund.short_name", "must contain at least one letter or digit".into()));
     }
     let out_root = raw.output.root.as_ref().map(&join).unwrap_or_else(|| PathBuf::from("out"));
+    let templates = raw.report.templates.as_ref().map(&join);
+    if let Some(t) = templates.as_ref().filter(|t| !t.is_dir()) {
+        return Err(bad("report.templates", format!("{} is not a folder (custom templates go in a folder whose files replace the built-in ones)", t.display())));
+    }
     Ok(Config {
         path: path.to_path_buf(),
         short_name,
@@ -423,6 +439,7 @@ pub fn resolve(path: &Path, raw: RawConfig) -> Result<Config> {
         floor,
         backend: raw.solver.backend,
         out_root,
+        templates,
         fund: raw.fund,
     })
 }
