@@ -83,7 +83,7 @@ pub fn all(r: &RunResult, views: &[View]) -> Result<Vec<Chart>> {
     }
     Ok(vec![
         draw("risk-return.svg", 300, |a| risk_return(a, r, &solved))?,
-        draw("class-mix.svg", 70 + 34 * solved.len() as u32, |a| class_mix(a, r, &solved))?,
+        draw("class-mix.svg", 50 + 20 * class_legend_lines(&class_order(r)) + 34 * solved.len() as u32, |a| class_mix(a, r, &solved))?,
         draw("top-holdings.svg", bars_height(TOP_HOLDINGS.min(r.data.assets.len()) + 1, solved.len()), |a| top_holdings(a, r, &solved, TOP_HOLDINGS))?,
         draw("tail-curve.svg", 300, |a| tail_curve(a, r, &solved))?,
         draw("cvar-by-class.svg", bars_height(class_order(r).len(), solved.len()), |a| cvar_by_class(a, r, &solved))?,
@@ -120,8 +120,13 @@ fn muted(size: f64) -> TextStyle<'static> {
     (FAMILY, size).into_font().color(&MUTED)
 }
 
-fn ticks(v: &f64) -> String {
-    format!("{}%", format::number(*v, if v.fract().abs() < 1e-9 { 0 } else { 1 }))
+/// Decimals of the tick labels of an axis spanning `span` percent: the same for every tick of the axis.
+fn tick_decimals(span: f64) -> usize {
+    if span < 1.5 { 2 } else if span < 12.0 { 1 } else { 0 }
+}
+
+fn tick(v: f64, decimals: usize) -> String {
+    format!("{}%", format::number(v, decimals))
 }
 
 /// Lower and upper ends of a value range with `pad` of its width on each side (never empty).
@@ -154,7 +159,7 @@ fn legend(area: &Area, views: &[&View], origin: (i32, i32)) -> Drawn {
     for v in views {
         marker(area, (x + 6, origin.1), v.look.marker, v.look.rgb)?;
         area.draw(&Text::new(v.look.label, (x + 17, origin.1), font(13.0).pos(Pos::new(HPos::Left, VPos::Center))))?;
-        x += 34 + 8 * v.look.label.len() as i32;
+        x += 36 + text_width(v.look.label, 13.0);
     }
     Ok(())
 }
@@ -165,39 +170,38 @@ fn risk_return(area: &Area, r: &RunResult, views: &[&View]) -> Drawn {
     let pts: Vec<(f64, f64)> = views.iter().map(|v| v.profile.map(|p| (p.at(c).cvar * 100.0, p.expected_return * 100.0)).unwrap()).collect();
     let (x0, x1) = padded(pts.iter().map(|p| p.0).chain([r.cvar_cap * 100.0].into_iter().filter(|v| v.is_finite())), 0.15, false);
     let (y0, y1) = padded(pts.iter().map(|p| p.1).chain([r.return_floor * 100.0].into_iter().filter(|v| v.is_finite())), 0.2, false);
-    let mut chart = ChartBuilder::on(area).margin(14).margin_top(34).x_label_area_size(46).y_label_area_size(64)
+    let mut chart = ChartBuilder::on(area).margin(14).margin_top(18).x_label_area_size(46).y_label_area_size(64)
         .build_cartesian_2d(x0..x1, y0..y1)?;
-    chart.configure_mesh().light_line_style(GRID).bold_line_style(GRID).axis_style(MUTED).label_style(font(12.0))
-        .axis_desc_style(font(12.5)).x_label_formatter(&ticks).y_label_formatter(&|v| ticks_fine(v))
+    let (dx, dy) = (tick_decimals(x1 - x0), tick_decimals(y1 - y0));
+    chart.configure_mesh().max_light_lines(0).bold_line_style(GRID).axis_style(MUTED).label_style(font(12.0))
+        .axis_desc_style(font(12.5)).x_label_formatter(&|v| tick(*v, dx)).y_label_formatter(&|v| tick(*v, dy))
         .x_desc(format!("CVaR {} over one horizon (% of portfolio value)", format::level(c)))
         .y_desc("Expected return over one horizon (%)").draw()?;
-    reference_lines(&mut chart, r, (x0, x1), (y0, y1))?;
+    reference_lines(area, &mut chart, r, (x0, x1), (y0, y1))?;
     for (v, p) in views.iter().zip(&pts) {
         let at = chart.backend_coord(p);
         marker(area, at, v.look.marker, v.look.rgb)?;
-        area.draw(&Text::new(v.look.label, (at.0 + 11, at.1 - 10), font(12.5).pos(Pos::new(HPos::Left, VPos::Center))))?;
+        area.draw(&Text::new(v.look.label, (at.0 + 11, at.1 - 11), font(12.5).pos(Pos::new(HPos::Left, VPos::Center))))?;
     }
-    legend(area, views, (80, 14))
-}
-
-fn ticks_fine(v: &f64) -> String {
-    format!("{}%", format::number(*v, 2))
+    Ok(())
 }
 
 type Cartesian<'a, 'b> = ChartContext<'a, SVGBackend<'b>, Cartesian2d<plotters::coord::types::RangedCoordf64, plotters::coord::types::RangedCoordf64>>;
 
 /// Dashed lines at the CVaR cap (vertical) and the return floor (horizontal), each labelled.
-fn reference_lines(chart: &mut Cartesian, r: &RunResult, xs: (f64, f64), ys: (f64, f64)) -> Drawn {
+fn reference_lines(area: &Area, chart: &mut Cartesian, r: &RunResult, xs: (f64, f64), ys: (f64, f64)) -> Drawn {
     let dash = MUTED.stroke_width(1);
     if r.cvar_cap.is_finite() {
         let x = r.cvar_cap * 100.0;
         chart.draw_series(DashedLineSeries::new(vec![(x, ys.0), (x, ys.1)], 5, 4, dash))?;
-        chart.draw_series([Text::new("CVaR cap", (x, ys.1), muted(11.5).pos(Pos::new(HPos::Right, VPos::Top)))])?;
+        let at = chart.backend_coord(&(x, ys.1));
+        area.draw(&Text::new("CVaR cap", (at.0 - 5, at.1 + 4), muted(11.5).pos(Pos::new(HPos::Right, VPos::Top))))?;
     }
     if r.return_floor.is_finite() {
         let y = r.return_floor * 100.0;
         chart.draw_series(DashedLineSeries::new(vec![(xs.0, y), (xs.1, y)], 5, 4, dash))?;
-        chart.draw_series([Text::new("return floor", (xs.1, y), muted(11.5).pos(Pos::new(HPos::Right, VPos::Bottom)))])?;
+        let at = chart.backend_coord(&(xs.0, y));
+        area.draw(&Text::new("return floor", (at.0 + 6, at.1 - 4), muted(11.5).pos(Pos::new(HPos::Left, VPos::Bottom))))?;
     }
     Ok(())
 }
@@ -206,8 +210,9 @@ fn reference_lines(chart: &mut Cartesian, r: &RunResult, xs: (f64, f64), ys: (f6
 fn bar_frame<'a, 'b>(area: &'a Area<'b>, xs: (f64, f64), rows: usize, left: u32, top: u32, desc: &str) -> std::result::Result<Cartesian<'a, 'b>, Box<dyn std::error::Error>> {
     let mut chart = ChartBuilder::on(area).margin(12).margin_top(top).x_label_area_size(42).y_label_area_size(left)
         .build_cartesian_2d(xs.0..xs.1, 0.0..rows as f64)?;
-    chart.configure_mesh().disable_y_mesh().y_labels(0).light_line_style(GRID).bold_line_style(GRID).axis_style(MUTED)
-        .label_style(font(12.0)).axis_desc_style(font(12.5)).x_label_formatter(&ticks).x_desc(desc).draw()?;
+    let dx = tick_decimals(xs.1 - xs.0);
+    chart.configure_mesh().disable_y_mesh().y_labels(0).max_light_lines(0).bold_line_style(GRID).axis_style(MUTED)
+        .label_style(font(12.0)).axis_desc_style(font(12.5)).x_label_formatter(&|v| tick(*v, dx)).x_desc(desc).draw()?;
     Ok(chart)
 }
 
@@ -223,11 +228,12 @@ fn row_label(area: &Area, chart: &Cartesian, xs: (f64, f64), (i, n): (usize, usi
     Ok(())
 }
 
-/// Weight by asset class, one stacked bar per portfolio; segments of 6% or more carry their figure.
+/// Weight by asset class, one stacked bar per portfolio; segments of 8% or more carry their figure.
 fn class_mix(area: &Area, r: &RunResult, views: &[&View]) -> Drawn {
     let classes = class_order(r);
     let xs = (0.0, 100.0);
-    let chart = bar_frame(area, xs, views.len(), 96, 40, "Weight (% of portfolio value)")?;
+    let top = 20 + 20 * class_legend_lines(&classes);
+    let chart = bar_frame(area, xs, views.len(), LEGEND_LEFT as u32, top, "Weight (% of portfolio value)")?;
     for (i, v) in views.iter().enumerate() {
         let w = v.weights.expect("solved");
         let mut left = 0.0;
@@ -238,66 +244,124 @@ fn class_mix(area: &Area, r: &RunResult, views: &[&View]) -> Drawn {
         }
         row_label(area, &chart, xs, (i, views.len()), v.look.label)?;
     }
-    class_legend(area, &classes, (96, 14))
+    class_legend(area, &classes, (LEGEND_LEFT, 14))
 }
 
 fn segment(area: &Area, chart: &Cartesian, span: (f64, f64), (row, n): (usize, usize), colour: RGBColor, light: bool) -> Drawn {
     let (a, b) = (chart.backend_coord(&(span.0, ry(n, row, 0.18))), chart.backend_coord(&(span.1, ry(n, row, 0.82))));
     area.draw(&Rectangle::new([a, b], colour.filled()))?;
     area.draw(&Rectangle::new([a, b], WHITE.stroke_width(1)))?;
-    if span.1 - span.0 >= 6.0 {
-        let text = format!("{}%", format::number(span.1 - span.0, 1));
+    if span.1 - span.0 >= 8.0 {
+        let text = format::pct((span.1 - span.0) / 100.0, format::Style::Weight);
         let style = (FAMILY, 11.5).into_font().color(if light { &INK } else { &WHITE });
         area.draw(&Text::new(text, ((a.0 + b.0) / 2, (a.1 + b.1) / 2), style.pos(Pos::new(HPos::Center, VPos::Center))))?;
     }
     Ok(())
 }
 
-fn class_legend(area: &Area, classes: &[String], origin: (i32, i32)) -> Drawn {
-    let mut x = origin.0;
-    for (j, class) in classes.iter().enumerate() {
+/// Where each class's legend entry goes, wrapping onto further lines of 20 pixels when a line is full.
+fn class_legend_layout(classes: &[String], origin: (i32, i32)) -> Vec<(String, (i32, i32))> {
+    let (mut x, mut y) = origin;
+    classes.iter().map(|class| {
         let label = format::title(class);
-        area.draw(&Rectangle::new([(x, origin.1 - 6), (x + 12, origin.1 + 6)], class_colour(j).filled()))?;
-        area.draw(&Text::new(label.clone(), (x + 17, origin.1), font(12.0).pos(Pos::new(HPos::Left, VPos::Center))))?;
-        x += 30 + (7.2 * label.chars().count() as f64) as i32;
+        let width = 28 + text_width(&label, 12.0);
+        if x + width > WIDTH as i32 - 8 {
+            (x, y) = (origin.0, y + 20);
+        }
+        let at = (x, y);
+        x += width;
+        (label, at)
+    }).collect()
+}
+
+/// Lines the class legend needs.
+fn class_legend_lines(classes: &[String]) -> u32 {
+    let layout = class_legend_layout(classes, (LEGEND_LEFT, 0));
+    layout.last().map_or(1, |(_, (_, y))| 1 + (*y / 20) as u32)
+}
+
+const LEGEND_LEFT: i32 = 96;
+
+fn class_legend(area: &Area, classes: &[String], origin: (i32, i32)) -> Drawn {
+    for (j, (label, (x, y))) in class_legend_layout(classes, origin).into_iter().enumerate() {
+        area.draw(&Rectangle::new([(x, y - 6), (x + 12, y + 6)], class_colour(j).filled()))?;
+        area.draw(&Text::new(label, (x + 17, y), font(12.0).pos(Pos::new(HPos::Left, VPos::Center))))?;
     }
     Ok(())
 }
 
-/// The `n` assets with the largest weight in any portfolio, one bar per portfolio; the rest as "Other".
+/// Estimated width in pixels of `text` set in Inter at `size` (average advance about 0.56 em).
+fn text_width(text: &str, size: f64) -> i32 {
+    (0.56 * size * text.chars().count() as f64).ceil() as i32
+}
+
+/// One row of a grouped bar chart: a label and one value per portfolio, drawn as bars or, for a row whose
+/// values would crush the scale (the "other" holdings), written out as figures.
+struct Row {
+    label: String,
+    values: Vec<f64>,
+    as_figures: bool,
+}
+
+/// The `n` assets with the largest weight in any portfolio, one bar per portfolio; the rest summed as
+/// "Other", written as figures so that the scale stays readable for the named holdings.
 fn top_holdings(area: &Area, r: &RunResult, views: &[&View], n: usize) -> Drawn {
     let m = r.data.assets.len();
-    let largest = |i: usize| views.iter().map(|v| v.weights.expect("solved")[i]).fold(0.0, f64::max);
+    let weight = |v: &View, i: usize| v.weights.expect("solved")[i] * 100.0;
+    let largest = |i: usize| views.iter().map(|v| weight(v, i)).fold(0.0, f64::max);
     let mut order: Vec<usize> = (0..m).collect();
     order.sort_by(|&a, &b| largest(b).total_cmp(&largest(a)).then(a.cmp(&b)));
     order.truncate(n.min(m));
-    let mut rows: Vec<(String, Vec<f64>)> = order.iter().map(|&i| (r.data.assets[i].clone(), views.iter().map(|v| v.weights.unwrap()[i] * 100.0).collect())).collect();
+    let mut rows: Vec<Row> = order.iter().map(|&i| Row {
+        label: r.data.assets[i].clone(), values: views.iter().map(|v| weight(v, i)).collect(), as_figures: false,
+    }).collect();
     if m > order.len() {
-        let rest = |v: &View| 100.0 - order.iter().map(|&i| v.weights.unwrap()[i] * 100.0).sum::<f64>();
-        rows.push((format!("Other ({} assets)", m - order.len()), views.iter().map(|v| rest(v)).collect()));
+        let rest = |v: &View| 100.0 - order.iter().map(|&i| weight(v, i)).sum::<f64>();
+        rows.push(Row { label: format!("Other ({} assets)", m - order.len()), values: views.iter().map(|v| rest(v)).collect(), as_figures: true });
     }
     grouped_bars(area, views, &rows, "Weight (% of portfolio value)", false)
 }
 
 /// One row per label, one thin bar per portfolio in the palette's colours; a legend on top.
-fn grouped_bars(area: &Area, views: &[&View], rows: &[(String, Vec<f64>)], desc: &str, zero_line: bool) -> Drawn {
-    let (lo, hi) = padded(rows.iter().flat_map(|r| r.1.iter().copied()), 0.06, true);
+fn grouped_bars(area: &Area, views: &[&View], rows: &[Row], desc: &str, zero_line: bool) -> Drawn {
+    let (lo, hi) = padded(rows.iter().filter(|r| !r.as_figures).flat_map(|r| r.values.iter().copied()), 0.06, true);
     let xs = (if lo < 0.0 { lo } else { 0.0 }, hi);
     let chart = bar_frame(area, xs, rows.len(), 132, 36, desc)?;
-    let k = views.len() as f64;
-    for (i, (label, values)) in rows.iter().enumerate() {
-        for (j, (v, x)) in views.iter().zip(values).enumerate() {
-            let y0 = 0.1 + 0.8 * j as f64 / k;
-            let (a, b) = (chart.backend_coord(&(0.0, ry(rows.len(), i, y0))), chart.backend_coord(&(*x, ry(rows.len(), i, y0 + 0.8 / k))));
-            area.draw(&Rectangle::new([a, b], v.look.rgb.filled()))?;
+    let n = rows.len();
+    for (i, row) in rows.iter().enumerate() {
+        if row.as_figures {
+            figures(area, &chart, views, &row.values, (xs, i, n))?;
+        } else {
+            bars(area, &chart, views, &row.values, (i, n))?;
         }
-        row_label(area, &chart, xs, (i, rows.len()), label)?;
+        row_label(area, &chart, xs, (i, n), &row.label)?;
     }
     if zero_line {
-        let (a, b) = (chart.backend_coord(&(0.0, 0.0)), chart.backend_coord(&(0.0, rows.len() as f64)));
+        let (a, b) = (chart.backend_coord(&(0.0, 0.0)), chart.backend_coord(&(0.0, n as f64)));
         area.draw(&PathElement::new(vec![a, b], INK.stroke_width(1)))?;
     }
     legend(area, views, (132, 14))
+}
+
+fn bars(area: &Area, chart: &Cartesian, views: &[&View], values: &[f64], (i, n): (usize, usize)) -> Drawn {
+    let k = views.len() as f64;
+    for (j, (v, x)) in views.iter().zip(values).enumerate() {
+        let y0 = 0.1 + 0.8 * j as f64 / k;
+        let (a, b) = (chart.backend_coord(&(0.0, ry(n, i, y0))), chart.backend_coord(&(*x, ry(n, i, y0 + 0.8 / k))));
+        area.draw(&Rectangle::new([a, b], v.look.rgb.filled()))?;
+    }
+    Ok(())
+}
+
+/// A row's values as marker + figure pairs spread along the row.
+fn figures(area: &Area, chart: &Cartesian, views: &[&View], values: &[f64], (xs, i, n): ((f64, f64), usize, usize)) -> Drawn {
+    let (left, y) = chart.backend_coord(&(xs.0, ry(n, i, 0.5)));
+    for (j, (v, x)) in views.iter().zip(values).enumerate() {
+        let at = (left + 12 + 110 * j as i32, y);
+        marker(area, (at.0 + 6, at.1), v.look.marker, v.look.rgb)?;
+        area.draw(&Text::new(format::pct(*x / 100.0, format::Style::Weight), (at.0 + 17, at.1), font(12.5).pos(Pos::new(HPos::Left, VPos::Center))))?;
+    }
+    Ok(())
 }
 
 /// Probability of a loss larger than each level, over the worst quarter of scenarios, per portfolio; the
@@ -310,12 +374,14 @@ fn tail_curve(area: &Area, r: &RunResult, views: &[&View]) -> Drawn {
     let y1 = reach * 100.0;
     let mut chart = ChartBuilder::on(area).margin(14).margin_top(34).x_label_area_size(46).y_label_area_size(64)
         .build_cartesian_2d(x0..x1, 0.0..y1)?;
-    chart.configure_mesh().light_line_style(GRID).bold_line_style(GRID).axis_style(MUTED).label_style(font(12.0))
-        .axis_desc_style(font(12.5)).x_label_formatter(&ticks).y_label_formatter(&ticks)
+    let (dx, dy) = (tick_decimals(x1 - x0), tick_decimals(y1));
+    chart.configure_mesh().max_light_lines(0).bold_line_style(GRID).axis_style(MUTED).label_style(font(12.0))
+        .axis_desc_style(font(12.5)).x_label_formatter(&|v| tick(*v, dx)).y_label_formatter(&|v| tick(*v, dy))
         .x_desc("Loss over one horizon (% of portfolio value)").y_desc("Probability of a larger loss (%)").draw()?;
     let t = (1.0 - c) * 100.0;
     chart.draw_series(DashedLineSeries::new(vec![(x0, t), (x1, t)], 5, 4, MUTED.stroke_width(1)))?;
-    chart.draw_series([Text::new(format!("{} tail", format::level(1.0 - c)), (x1, t), muted(11.5).pos(Pos::new(HPos::Right, VPos::Bottom)))])?;
+    let at = chart.backend_coord(&(x1, t));
+    area.draw(&Text::new(format!("{} tail", format::level(1.0 - c)), (at.0 - 6, at.1 - 4), muted(11.5).pos(Pos::new(HPos::Right, VPos::Bottom))))?;
     for (v, pts) in views.iter().zip(&curves) {
         chart.draw_series(LineSeries::new(pts.iter().copied(), v.look.rgb.stroke_width(2)))?;
         if let Some(last) = pts.last() {
@@ -346,8 +412,10 @@ fn exceedance(r: &RunResult, w: &[f64], reach: f64) -> Vec<(f64, f64)> {
 
 /// CVaR contribution of each asset class, one bar per portfolio; negative bars are classes that lower it.
 fn cvar_by_class(area: &Area, r: &RunResult, views: &[&View]) -> Drawn {
-    let rows: Vec<(String, Vec<f64>)> = class_order(r).iter().map(|class| {
-        (format::title(class), views.iter().map(|v| class_sum(r, &v.profile.unwrap().component_cvar, class) * 100.0).collect())
+    let rows: Vec<Row> = class_order(r).iter().map(|class| Row {
+        label: format::title(class),
+        values: views.iter().map(|v| class_sum(r, &v.profile.unwrap().component_cvar, class) * 100.0).collect(),
+        as_figures: false,
     }).collect();
     let desc = format!("Contribution to CVaR {} (% of portfolio value)", format::level(r.config.confidence));
     grouped_bars(area, views, &rows, &desc, true)

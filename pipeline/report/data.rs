@@ -47,6 +47,8 @@ pub struct Report {
     pub groups: Vec<GroupRow>,
     pub limits: Vec<Pair>,
     pub contributors: Vec<Contributor>,
+    /// The portfolio whose contributions rank the contributors table.
+    pub contributors_basis: String,
     pub checks: Checks,
     pub caveats: Vec<Caveat>,
     pub scenarios: Vec<Pair>,
@@ -221,6 +223,7 @@ pub fn build(r: &RunResult, results: &Value, pack_id: &str) -> Report {
         groups: groups(r, &views),
         limits: limits(r),
         contributors: contributors(r, &views, 10),
+        contributors_basis: views.iter().find(|v| v.profile.is_some()).map_or(String::new(), |v| v.look.label.to_string()),
         checks: checks(r),
         caveats: text::caveats(r, &views),
         scenarios: scenarios(r),

@@ -134,7 +134,7 @@ fn binding(r: &RunResult, v: &View) -> Option<super::data::Caveat> {
         }
     }
     (!parts.is_empty()).then(|| caveat(&format!("{}: limits that bind", v.look.label), &format!(
-        "The answer is shaped by its limits: {}. Loosening a binding limit would change the portfolio; the limits come from the fund's policy, not from the data.", parts.join("; "))))
+        "This portfolio is shaped by its limits: {}. Loosening a binding limit would change the portfolio; the limits come from the fund's policy, not from the data.", parts.join("; "))))
 }
 
 fn shortlist(names: &[String], n: usize) -> String {
