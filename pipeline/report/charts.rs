@@ -168,8 +168,9 @@ fn legend(area: &Area, views: &[&View], origin: (i32, i32)) -> Drawn {
 fn risk_return(area: &Area, r: &RunResult, views: &[&View]) -> Drawn {
     let c = r.config.confidence;
     let pts: Vec<(f64, f64)> = views.iter().map(|v| v.profile.map(|p| (p.at(c).cvar * 100.0, p.expected_return * 100.0)).unwrap()).collect();
-    let (x0, x1) = padded(pts.iter().map(|p| p.0).chain([r.cvar_cap * 100.0].into_iter().filter(|v| v.is_finite())), 0.15, false);
-    let (y0, y1) = padded(pts.iter().map(|p| p.1).chain([r.return_floor * 100.0].into_iter().filter(|v| v.is_finite())), 0.2, false);
+    let (cap, floor) = limits_to_draw(r);
+    let (x0, x1) = padded(pts.iter().map(|p| p.0).chain(cap), 0.15, false);
+    let (y0, y1) = padded(pts.iter().map(|p| p.1).chain(floor), 0.2, false);
     let mut chart = ChartBuilder::on(area).margin(14).margin_top(18).x_label_area_size(46).y_label_area_size(64)
         .build_cartesian_2d(x0..x1, y0..y1)?;
     let (dx, dy) = (tick_decimals(x1 - x0), tick_decimals(y1 - y0));
@@ -177,7 +178,7 @@ fn risk_return(area: &Area, r: &RunResult, views: &[&View]) -> Drawn {
         .axis_desc_style(font(12.5)).x_label_formatter(&|v| tick(*v, dx)).y_label_formatter(&|v| tick(*v, dy))
         .x_desc(format!("CVaR {} over one horizon (% of portfolio value)", format::level(c)))
         .y_desc("Expected return over one horizon (%)").draw()?;
-    reference_lines(area, &mut chart, r, (x0, x1), (y0, y1))?;
+    reference_lines(area, &mut chart, (cap, floor), (x0, x1), (y0, y1))?;
     for (v, p) in views.iter().zip(&pts) {
         let at = chart.backend_coord(p);
         marker(area, at, v.look.marker, v.look.rgb)?;
@@ -189,16 +190,23 @@ fn risk_return(area: &Area, r: &RunResult, views: &[&View]) -> Drawn {
 type Cartesian<'a, 'b> = ChartContext<'a, SVGBackend<'b>, Cartesian2d<plotters::coord::types::RangedCoordf64, plotters::coord::types::RangedCoordf64>>;
 
 /// Dashed lines at the CVaR cap (vertical) and the return floor (horizontal), each labelled.
-fn reference_lines(area: &Area, chart: &mut Cartesian, r: &RunResult, xs: (f64, f64), ys: (f64, f64)) -> Drawn {
+/// The CVaR cap and return floor (in %) worth drawing: only those of a model that was solved, since an
+/// unreachable limit would stretch the axes and say nothing about the portfolios shown.
+fn limits_to_draw(r: &RunResult) -> (Option<f64>, Option<f64>) {
+    let solved = |name: &str| r.models.iter().any(|m| m.name == name && super::data::solved(m));
+    let cap = Some(r.cvar_cap * 100.0).filter(|v| v.is_finite() && solved("max_return"));
+    let floor = Some(r.return_floor * 100.0).filter(|v| v.is_finite() && solved("min_cvar"));
+    (cap, floor)
+}
+
+fn reference_lines(area: &Area, chart: &mut Cartesian, (cap, floor): (Option<f64>, Option<f64>), xs: (f64, f64), ys: (f64, f64)) -> Drawn {
     let dash = MUTED.stroke_width(1);
-    if r.cvar_cap.is_finite() {
-        let x = r.cvar_cap * 100.0;
+    if let Some(x) = cap {
         chart.draw_series(DashedLineSeries::new(vec![(x, ys.0), (x, ys.1)], 5, 4, dash))?;
         let at = chart.backend_coord(&(x, ys.1));
         area.draw(&Text::new("CVaR cap", (at.0 - 5, at.1 + 4), muted(11.5).pos(Pos::new(HPos::Right, VPos::Top))))?;
     }
-    if r.return_floor.is_finite() {
-        let y = r.return_floor * 100.0;
+    if let Some(y) = floor {
         chart.draw_series(DashedLineSeries::new(vec![(xs.0, y), (xs.1, y)], 5, 4, dash))?;
         let at = chart.backend_coord(&(xs.0, y));
         area.draw(&Text::new("return floor", (at.0 + 6, at.1 - 4), muted(11.5).pos(Pos::new(HPos::Left, VPos::Bottom))))?;

@@ -120,10 +120,8 @@ fn binding(r: &RunResult, v: &View) -> Option<super::data::Caveat> {
     if !m.at_upper.is_empty() {
         parts.push(format!("{} asset(s) at their upper bound ({})", m.at_upper.len(), shortlist(&m.at_upper, 6)));
     }
-    if let (Some(t), Some(max)) = (m.turnover, r.config.turnover_max) {
-        if t >= max - 1e-6 {
-            parts.push(format!("turnover at its limit of {}", pct(max, Style::Weight)));
-        }
+    if let (Some(t), Some(max)) = (m.turnover, r.config.turnover_max) && t >= max - 1e-6 {
+        parts.push(format!("turnover at its limit of {}", pct(max, Style::Weight)));
     }
     for g in &r.feasible.groups {
         let x: f64 = g.members.iter().map(|&i| w[i]).sum();

@@ -162,3 +162,21 @@ fn report_templates_must_be_a_folder_and_keys_are_checked() {
     assert_eq!(ran.code, 2);
     assert!(ran.stderr.contains("did you mean `templates`?"), "{}", ran.stderr);
 }
+
+#[test]
+fn a_fund_without_holdings_and_an_infeasible_model_still_gets_a_full_pack() {
+    let f = Fixture::new();
+    let m = Market::new(5, "2021-01-01", "2024-06-28", 42);
+    f.write("data/prices.csv", &m.wide_csv());
+    f.write("data/assets.csv", &m.assets_csv());
+    // A 50% expected return over 5 observations is out of reach for this market: min_cvar is infeasible.
+    f.write("fund.yaml", "fund:\n  name: Test Fund (fictional)\ndata:\n  prices: data/prices.csv\n  assets: data/assets.csv\nscenarios:\n  horizon: 5\n  lookback_years: 2\nmodels:\n  min_cvar:\n    return_floor: { value: 0.5 }\noutput:\n  root: out\n");
+    let dir = pack_dir(&f.run(&["run", "fund.yaml", "--quiet"]));
+    let r = json(&dir.join("results.json"));
+    assert_eq!(r["models"]["min_cvar"]["status"], "infeasible", "the fixture must make min_cvar infeasible");
+    let text = squeeze(&pdf_text(&dir.join("pack.pdf")));
+    assert!(text.contains("Min CVaR: infeasible"), "the summary must say the model is infeasible");
+    assert!(!text.contains("Current"), "without holdings there is no current portfolio to show");
+    let cvar = printed(r["models"]["max_return"]["cvar"].as_f64().unwrap(), false);
+    assert!(text.contains(&cvar), "the solved model's CVaR {cvar} must still be printed");
+}
