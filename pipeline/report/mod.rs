@@ -40,11 +40,6 @@ pub fn render(r: &RunResult, results: &Value, pack_id: &str) -> Result<Vec<u8>> 
     export(&world, &doc, pack_id)
 }
 
-/// The number of pages the pack PDF of a run has (typeset, not exported).
-pub fn page_count(r: &RunResult, results: &Value, pack_id: &str) -> Result<usize> {
-    Ok(compile(&world(r, results, pack_id)?)?.pages().len())
-}
-
 fn world(r: &RunResult, results: &Value, pack_id: &str) -> Result<ReportWorld> {
     let views = data::views(r);
     let report = data::build(r, results, pack_id);

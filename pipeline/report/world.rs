@@ -140,3 +140,33 @@ impl World for ReportWorld {
         Some(self.today)
     }
 }
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn world() -> ReportWorld {
+        let fonts = crate::report::templates::FONTS.into_iter().map(Bytes::new).collect();
+        ReportWorld::new(vec![], fonts, "/main.typ", "2026-11-30".parse().unwrap())
+    }
+
+    #[test]
+    fn today_is_the_as_of_date_whatever_the_offset() {
+        let w = world();
+        for offset in [None, Some(Duration::construct(0, 0, 5, 0, 0))] {
+            let d = w.today(offset).unwrap();
+            assert_eq!((d.year(), d.month(), d.day()), (Some(2026), Some(11), Some(30)));
+        }
+    }
+
+    #[test]
+    fn fonts_are_the_shipped_family_and_typst_embedded_ones_only() {
+        let w = world();
+        let families: Vec<String> = w.book().families().map(|(name, _)| name.to_string()).collect();
+        assert!(families.iter().any(|f| f == "Inter"), "{families:?}");
+        let embedded = ["Inter", "Libertinus Serif", "New Computer Modern", "New Computer Modern Math", "DejaVu Sans Mono"];
+        for f in &families {
+            assert!(embedded.contains(&f.as_str()), "unexpected font family {f}: no system font may reach the PDF");
+        }
+    }
+}
