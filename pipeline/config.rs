@@ -23,6 +23,7 @@ pub struct RawConfig {
     pub output: RawOutput,
     pub analysis: AnalysisOptions,
     pub stress: RawStress,
+    pub report: RawReport,
 }
 
 /// Frontier and walk-forward backtest settings.
@@ -300,6 +301,15 @@ pub struct RawOutput {
     pub root: Option<PathBuf>,
 }
 
+/// Settings of the PDF pack.
+#[derive(Debug, Deserialize, Default)]
+#[serde(deny_unknown_fields, default)]
+pub struct RawReport {
+    /// Folder of custom typst templates, relative to the config file; its files replace the built-in
+    /// templates of the same name, file by file.
+    pub templates: Option<PathBuf>,
+}
+
 /// A group limit with its members resolved later against the asset list.
 #[derive(Debug, Clone, serde::Serialize)]
 pub struct GroupSpec {
@@ -358,6 +368,8 @@ pub struct Config {
     pub stress_file: Option<PathBuf>,
     pub stress_loss_limit: Option<f64>,
     pub stress_windows: usize,
+    /// Custom template folder (`report.templates`), resolved and checked to be a folder.
+    pub templates: Option<PathBuf>,
 }
 
 /// A stress file: named instantaneous shocks.
@@ -420,7 +432,7 @@ const KNOWN_KEYS: &[&str] = &[
     "max", "max_return", "min_cvar", "cvar_cap", "value", "times_current", "times_min", "return_floor",
     "plus_current", "backend", "root", "analysis", "stress", "frontier_points", "backtest_years",
     "daily_var_check", "file", "loss_limit", "historical_windows", "shocks", "description", "moves", "asset",
-    "return",
+    "return", "report", "templates",
 ];
 
 /// Reads and validates a config file.
@@ -518,6 +530,10 @@ pub fn resolve(path: &Path, raw: RawConfig) -> Result<Config> {
         }
     }
     let out_root = raw.output.root.as_ref().map(&join).unwrap_or_else(|| PathBuf::from("out"));
+    let templates = raw.report.templates.as_ref().map(&join);
+    if let Some(t) = templates.as_ref().filter(|t| !t.is_dir()) {
+        return Err(bad("report.templates", format!("{} is not a folder (custom templates go in a folder whose files replace the built-in ones)", t.display())));
+    }
     Ok(Config {
         path: path.to_path_buf(),
         short_name,
@@ -538,6 +554,7 @@ pub fn resolve(path: &Path, raw: RawConfig) -> Result<Config> {
         floor,
         backend: raw.solver.backend,
         out_root,
+        templates,
         fund: raw.fund,
         analysis: raw.analysis,
         stress_file: raw.stress.file.as_ref().map(&join),

@@ -10,7 +10,7 @@ use std::path::{Path, PathBuf};
 pub const EXIT_OK: i32 = 0;
 /// Exit code: an unexpected failure (I/O, a solver that could not start, a bug).
 pub const EXIT_FAILURE: i32 = 1;
-/// Exit code: the command line or the config file is wrong.
+/// Exit code: the command line, the config file or a custom report template is wrong.
 pub const EXIT_CONFIG: i32 = 2;
 /// Exit code: the input data failed a blocking data-quality check.
 pub const EXIT_DATA: i32 = 3;
@@ -27,6 +27,10 @@ pub enum Error {
     /// Data that parsed but failed blocking quality checks; each line names file, place and remedy.
     #[error("data quality blocks the run:\n  {}", problems.join("\n  "))]
     Quality { problems: Vec<String> },
+    /// A report template that typst could not compile or export: names the template file and, where the
+    /// diagnostic has one, the line and column.
+    #[error("template {file}{}: {message}", line.map_or(String::new(), |(l, c)| format!(", line {l}, column {c}")))]
+    Template { file: String, line: Option<(usize, usize)>, message: String },
     /// A file-system operation failed.
     #[error("{action} {}: {source}", path.display())]
     Io { action: &'static str, path: PathBuf, #[source] source: std::io::Error },
@@ -42,7 +46,7 @@ impl Error {
     /// The documented process exit code for this error.
     pub fn exit_code(&self) -> i32 {
         match self {
-            Error::Config { .. } => EXIT_CONFIG,
+            Error::Config { .. } | Error::Template { .. } => EXIT_CONFIG,
             Error::Data { .. } | Error::Quality { .. } => EXIT_DATA,
             Error::Io { .. } | Error::Run(_) => EXIT_FAILURE,
         }

@@ -8,7 +8,8 @@
 //! - [`models`]: the three CVaR model families as LPs (HiGHS or Clarabel), with their preconditions.
 //! - [`analysis`]: efficient frontier, stress set, walk-forward backtest with VaR backtests.
 //! - [`run`]: wires the stages into one run and resolves rules that depend on earlier results.
-//! - [`pack`]: writes the pack folder (scenarios, results, weights, summary).
+//! - [`report`]: the committee PDF, typeset in-process by typst from the run's results (PDF/A-2b).
+//! - [`pack`]: writes the pack folder (scenarios, results, weights, summary, PDF).
 //! - [`commands`]: one function per CLI subcommand; the binary is a thin layer over these.
 //!
 //! Cross-cutting: [`error`] (typed errors, exit codes, path-naming file helpers), [`diag`] (findings that
@@ -23,6 +24,7 @@ pub mod error;
 pub mod ingest;
 pub mod models;
 pub mod pack;
+pub mod report;
 pub mod risk;
 pub mod run;
 pub mod scenarios;

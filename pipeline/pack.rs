@@ -1,5 +1,5 @@
 //! Stage 5, pack: writes a run's results into its pack folder — `scenarios.csv`, `results.json`,
-//! `weights.csv`, `summary.txt` — and prints the summary.
+//! `weights.csv`, `pack.pdf` (typeset by the report stage), `summary.txt` — and prints the summary.
 //!
 //! The folder layout is a contract read by outside checkers (README, "The pack folder"). The folder is
 //! built under a temporary name beside its final place and renamed into place only when complete, so a
@@ -343,8 +343,10 @@ fn fill(r: &RunResult, tmp: &Path, dir: &Path) -> Result<String> {
     let id = pack_id(&inputs, &r.data.as_of.to_string());
     fs::write(&tmp.join("scenarios.csv"), scenarios_csv(r))?;
     fs::write(&tmp.join("weights.csv"), weights_csv(r))?;
-    let json = serde_json::to_string_pretty(&results_json(r, &inputs, &id)).expect("results serialise");
+    let results = results_json(r, &inputs, &id);
+    let json = serde_json::to_string_pretty(&results).expect("results serialise");
     fs::write(&tmp.join("results.json"), json + "\n")?;
+    fs::write(&tmp.join("pack.pdf"), crate::report::render(r, &results, &id)?)?;
     let text = summary(r, dir);
     fs::write(&tmp.join("summary.txt"), &text)?;
     Ok(text)

@@ -72,8 +72,22 @@ pub struct Market {
 }
 
 impl Market {
-    /// `n` assets over business days from `start` to `end`, deterministic for `seed`.
+    /// `n` assets over business days from `start` to `end`, deterministic for `seed`; asset i has daily
+    /// volatility 0.004 + 0.002·i and drift 0.0002 + 0.00005·i, classes alternate equity and bond.
     pub fn new(n: usize, start: &str, end: &str, seed: u64) -> Self {
+        let classes = (0..n).map(|i| if i % 2 == 0 { "equity".into() } else { "bond".into() }).collect();
+        Self::generate(n, start, end, seed, classes, |i| (0.004 + 0.002 * i as f64, 0.0002 + 0.00005 * i as f64))
+    }
+
+    /// A broad universe of `n` assets whose volatility and drift cycle over ten levels (so prices stay
+    /// positive however large `n` is), in five classes.
+    pub fn broad(n: usize, start: &str, end: &str, seed: u64) -> Self {
+        const CLASSES: [&str; 5] = ["equity", "government", "credit", "property", "cash"];
+        let classes = (0..n).map(|i| CLASSES[i % 5].to_string()).collect();
+        Self::generate(n, start, end, seed, classes, |i| (0.003 + 0.001 * (i % 10) as f64, 0.0001 + 0.00003 * (i % 10) as f64))
+    }
+
+    fn generate(n: usize, start: &str, end: &str, seed: u64, classes: Vec<String>, params: impl Fn(usize) -> (f64, f64)) -> Self {
         let mut rng = rand::rngs::StdRng::seed_from_u64(seed);
         let (mut d, end) = (start.parse::<chrono::NaiveDate>().unwrap(), end.parse::<chrono::NaiveDate>().unwrap());
         let mut dates = vec![];
@@ -85,14 +99,12 @@ impl Market {
             d = d.succ_opt().unwrap();
         }
         let assets: Vec<String> = (0..n).map(|i| format!("AS{:02}", i + 1)).collect();
-        let classes: Vec<String> = (0..n).map(|i| if i % 2 == 0 { "equity".into() } else { "bond".into() }).collect();
         let mut p = vec![100.0; n];
         let mut prices = Vec::with_capacity(dates.len());
         for _ in &dates {
             let common: f64 = normal(&mut rng);
             for i in 0..n {
-                let vol = 0.004 + 0.002 * i as f64;
-                let drift = 0.0002 + 0.00005 * i as f64;
+                let (vol, drift) = params(i);
                 let r = drift + vol * (0.5 * common + 0.85 * normal(&mut rng));
                 p[i] *= 1.0 + r;
             }
@@ -156,4 +168,19 @@ pub fn json(path: &Path) -> serde_json::Value {
 /// The repository root.
 pub fn repo() -> PathBuf {
     PathBuf::from(env!("CARGO_MANIFEST_DIR"))
+}
+
+/// The text of a PDF as poppler's `pdftotext -layout` extracts it (an extractor outside the project).
+pub fn pdf_text(pdf: &Path) -> String {
+    let out = Command::new("pdftotext").arg("-layout").arg(pdf).arg("-").output().expect("pdftotext (poppler-utils) is installed");
+    assert!(out.status.success(), "pdftotext failed: {}", String::from_utf8_lossy(&out.stderr));
+    String::from_utf8(out.stdout).expect("pdftotext prints UTF-8")
+}
+
+/// The page count of a PDF as poppler's `pdfinfo` reports it.
+pub fn pdf_pages(pdf: &Path) -> usize {
+    let out = Command::new("pdfinfo").arg(pdf).output().expect("pdfinfo (poppler-utils) is installed");
+    let text = String::from_utf8_lossy(&out.stdout);
+    let line = text.lines().find(|l| l.starts_with("Pages:")).unwrap_or_else(|| panic!("pdfinfo printed no page count: {text}"));
+    line["Pages:".len()..].trim().parse().expect("a page count")
 }

@@ -4,4 +4,5 @@ mod cli;
 mod common;
 mod demo;
 mod models;
+mod report;
 mod risk;

@@ -1,0 +1,468 @@
+//! The display data handed to typst as `/data/report.json`: every figure already formatted by
+//! [`super::format`], every list already in print order, so templates only lay out.
+//!
+//! Reads the run's results ([`RunResult`]) and the `results.json` document (for the input digests); computes
+//! nothing new beyond sums for display (weights by class and group) and each portfolio's return per unit of
+//! CVaR.
+
+use super::charts::{look, Look};
+use super::format::{self, pct, Style};
+use super::text;
+use crate::diag::Level;
+use crate::models::Status;
+use crate::risk::RiskProfile;
+use crate::run::{ModelReport, RunResult};
+use serde::Serialize;
+use serde_json::Value;
+
+/// A portfolio as the report shows it: the current holdings or one model's answer.
+pub struct View<'a> {
+    pub key: &'static str,
+    pub look: &'static Look,
+    pub weights: Option<&'a [f64]>,
+    pub profile: Option<&'a RiskProfile>,
+    pub model: Option<&'a ModelReport>,
+}
+
+/// The current portfolio (when holdings were given) followed by the three models, in report order.
+pub fn views(r: &RunResult) -> Vec<View<'_>> {
+    let current = r.data.holdings.as_deref().map(|h| View {
+        key: "current", look: look("current"), weights: Some(h), profile: r.current.as_ref(), model: None,
+    });
+    let models = r.models.iter().map(|m| View {
+        key: m.name, look: look(m.name), weights: m.outcome.weights.as_deref(), profile: m.profile.as_ref(), model: Some(m),
+    });
+    current.into_iter().chain(models).collect()
+}
+
+/// Everything the templates print.
+#[derive(Serialize)]
+pub struct Report {
+    pub meta: Meta,
+    pub portfolios: Vec<Portfolio>,
+    pub levels: Vec<String>,
+    pub summary: Vec<String>,
+    pub classes: Vec<ClassRow>,
+    pub assets: Vec<AssetRow>,
+    pub groups: Vec<GroupRow>,
+    pub limits: Vec<Pair>,
+    pub contributors: Vec<Contributor>,
+    /// The portfolio whose contributions rank the contributors table.
+    pub contributors_basis: String,
+    pub checks: Checks,
+    pub caveats: Vec<Caveat>,
+    pub scenarios: Vec<Pair>,
+    pub quality: Quality,
+    pub inputs: Vec<Input>,
+    pub run: Vec<Pair>,
+}
+
+/// Cover and running-header facts.
+#[derive(Serialize)]
+pub struct Meta {
+    pub fund: String,
+    pub short_name: String,
+    pub as_of: String,
+    pub as_of_long: String,
+    pub prepared_for: Option<String>,
+    pub prepared_by: Option<String>,
+    pub status: &'static str,
+    pub pack_id: String,
+    pub pack_id_short: String,
+    pub tool: String,
+    pub confidence: String,
+    pub tail: String,
+    pub horizon: String,
+    pub horizon_n: usize,
+    pub step: usize,
+    pub assets: String,
+    pub scenarios: String,
+}
+
+/// A label and a value, for definition lists.
+#[derive(Serialize)]
+pub struct Pair {
+    pub label: String,
+    pub value: String,
+}
+
+fn pair(label: &str, value: impl Into<String>) -> Pair {
+    Pair { label: label.into(), value: value.into() }
+}
+
+/// One portfolio's line in the summary and tail tables.
+#[derive(Serialize)]
+pub struct Portfolio {
+    pub key: &'static str,
+    pub label: &'static str,
+    pub aim: &'static str,
+    pub colour: &'static str,
+    pub marker: &'static str,
+    pub solved: bool,
+    pub status: String,
+    pub message: Option<String>,
+    pub expected_return: String,
+    pub var: String,
+    pub cvar: String,
+    pub ratio: String,
+    pub volatility: String,
+    pub worst_loss: String,
+    pub worst_window: String,
+    pub turnover: String,
+    pub effective_holdings: String,
+    pub at_upper: String,
+    pub tails: Vec<TailCell>,
+}
+
+/// VaR and CVaR at one level.
+#[derive(Serialize)]
+pub struct TailCell {
+    pub level: String,
+    pub var: String,
+    pub cvar: String,
+}
+
+/// Weights and CVaR contribution of one asset class, one cell per portfolio.
+#[derive(Serialize)]
+pub struct ClassRow {
+    pub class: String,
+    pub weights: Vec<String>,
+    pub contributions: Vec<String>,
+}
+
+/// One asset's bounds and weights, one weight per portfolio.
+#[derive(Serialize)]
+pub struct AssetRow {
+    pub asset: String,
+    pub name: String,
+    pub class: String,
+    pub bounds: String,
+    pub weights: Vec<String>,
+}
+
+/// A group limit and each portfolio's exposure to it.
+#[derive(Serialize)]
+pub struct GroupRow {
+    pub name: String,
+    pub members: String,
+    pub range: String,
+    pub exposures: Vec<String>,
+}
+
+/// An asset among the largest CVaR contributors.
+#[derive(Serialize)]
+pub struct Contributor {
+    pub asset: String,
+    pub class: String,
+    pub contributions: Vec<String>,
+}
+
+/// The checks table with its tally.
+#[derive(Serialize)]
+pub struct Checks {
+    pub pass: usize,
+    pub warn: usize,
+    pub fail: usize,
+    pub rows: Vec<CheckRow>,
+}
+
+/// One check as printed.
+#[derive(Serialize)]
+pub struct CheckRow {
+    pub id: String,
+    pub level: &'static str,
+    pub message: String,
+}
+
+/// One caveat: a short title and the sentence that explains it.
+#[derive(Serialize)]
+pub struct Caveat {
+    pub title: String,
+    pub text: String,
+}
+
+/// The data-quality appendix.
+#[derive(Serialize)]
+pub struct Quality {
+    pub facts: Vec<Pair>,
+    pub clean: String,
+    pub rows: Vec<QualityRow>,
+}
+
+/// An asset with at least one data-quality finding.
+#[derive(Serialize)]
+pub struct QualityRow {
+    pub asset: String,
+    pub missing: String,
+    pub filled: String,
+    pub longest_gap: String,
+    pub stale: String,
+    pub extreme: String,
+    pub status: &'static str,
+}
+
+/// An input file and its digest.
+#[derive(Serialize)]
+pub struct Input {
+    pub role: String,
+    pub path: String,
+    pub bytes: String,
+    pub sha256: String,
+}
+
+/// Builds the display data of one run.
+pub fn build(r: &RunResult, results: &Value, pack_id: &str) -> Report {
+    let views = views(r);
+    Report {
+        meta: meta(r, pack_id),
+        portfolios: views.iter().map(|v| portfolio(r, v)).collect(),
+        levels: r.config.levels.iter().map(|&c| format::level(c)).collect(),
+        summary: text::summary(r, &views),
+        classes: classes(r, &views),
+        assets: assets(r, &views),
+        groups: groups(r, &views),
+        limits: limits(r),
+        contributors: contributors(r, &views, 10),
+        contributors_basis: views.iter().find(|v| v.profile.is_some()).map_or(String::new(), |v| v.look.label.to_string()),
+        checks: checks(r),
+        caveats: text::caveats(r, &views),
+        scenarios: scenarios(r),
+        quality: quality(r),
+        inputs: inputs(results),
+        run: run_facts(r, pack_id),
+    }
+}
+
+/// The first 12 hex digits of the pack id: enough to tell packs apart on a page footer.
+pub fn short_id(pack_id: &str) -> String {
+    pack_id.chars().take(12).collect()
+}
+
+fn meta(r: &RunResult, pack_id: &str) -> Meta {
+    let c = &r.config;
+    Meta {
+        fund: c.fund.name.clone(),
+        short_name: c.short_name.clone(),
+        as_of: r.data.as_of.to_string(),
+        as_of_long: format::long_date(r.data.as_of),
+        prepared_for: c.fund.prepared_for.clone(),
+        prepared_by: c.fund.prepared_by.clone(),
+        status: "DRAFT",
+        pack_id: pack_id.into(),
+        pack_id_short: short_id(pack_id),
+        tool: format!("tailpack {}", env!("CARGO_PKG_VERSION")),
+        confidence: format::level(c.confidence),
+        tail: format::level(1.0 - c.confidence),
+        horizon: format!("{} observations", r.scenarios.horizon),
+        horizon_n: r.scenarios.horizon,
+        step: r.scenarios.step,
+        assets: format::count(r.data.assets.len()),
+        scenarios: format::count(r.scenarios.len()),
+    }
+}
+
+/// Expected return per unit of CVaR at the model level; defined only for a positive CVaR.
+fn ratio(p: &RiskProfile, c: f64) -> String {
+    let cvar = p.at(c).cvar;
+    if cvar > 0.0 { format::number(p.expected_return / cvar, 4) } else { "n/a".into() }
+}
+
+/// The status as printed: `held` for the current portfolio, else the model status in words.
+pub fn status_word(v: &View) -> String {
+    match v.model {
+        None => "held".into(),
+        Some(m) => m.outcome.status.word().replace('_', " "),
+    }
+}
+
+const NONE: &str = "\u{2014}";
+
+fn portfolio(r: &RunResult, v: &View) -> Portfolio {
+    let c = r.config.confidence;
+    let f = |g: &dyn Fn(&RiskProfile) -> String| v.profile.map_or(NONE.to_string(), g);
+    let model = v.model;
+    Portfolio {
+        key: v.key, label: v.look.label, aim: v.look.aim, colour: v.look.hex, marker: v.look.marker_name,
+        solved: v.profile.is_some(),
+        status: status_word(v),
+        message: model.and_then(|m| m.outcome.message.clone()),
+        expected_return: f(&|p| pct(p.expected_return, Style::Return)),
+        var: f(&|p| pct(p.at(c).var, Style::Loss)),
+        cvar: f(&|p| pct(p.at(c).cvar, Style::Loss)),
+        ratio: f(&|p| ratio(p, c)),
+        volatility: f(&|p| pct(p.volatility, Style::Weight)),
+        worst_loss: f(&|p| pct(p.worst_loss, Style::Loss)),
+        worst_window: f(&|p| format::window(&p.worst_scenario)),
+        turnover: model.and_then(|m| m.turnover).map_or(NONE.into(), |t| pct(t, Style::Weight)),
+        effective_holdings: f(&|p| format::number(p.effective_holdings, 1)),
+        at_upper: model.filter(|_| v.profile.is_some()).map_or(NONE.into(), |m| m.at_upper.len().to_string()),
+        tails: r.config.levels.iter().map(|&l| TailCell {
+            level: format::level(l),
+            var: f(&|p| pct(p.at(l).var, Style::Loss)),
+            cvar: f(&|p| pct(p.at(l).cvar, Style::Loss)),
+        }).collect(),
+    }
+}
+
+/// Asset classes in first-seen order of the asset list.
+pub fn class_order(r: &RunResult) -> Vec<String> {
+    let mut out: Vec<String> = Vec::new();
+    for m in &r.data.meta {
+        if !out.contains(&m.class) {
+            out.push(m.class.clone());
+        }
+    }
+    out
+}
+
+/// Σ of `values` over the assets of `class`.
+pub fn class_sum(r: &RunResult, values: &[f64], class: &str) -> f64 {
+    r.data.meta.iter().zip(values).filter(|(m, _)| m.class == class).map(|(_, v)| v).sum()
+}
+
+fn classes(r: &RunResult, views: &[View]) -> Vec<ClassRow> {
+    class_order(r).into_iter().map(|class| ClassRow {
+        weights: views.iter().map(|v| v.weights.map_or(NONE.into(), |w| format::weight(class_sum(r, w, &class)))).collect(),
+        contributions: views.iter().map(|v| v.profile.map_or(NONE.into(), |p| pct(class_sum(r, &p.component_cvar, &class), Style::Loss))).collect(),
+        class: format::title(&class),
+    }).collect()
+}
+
+fn bounds(r: &RunResult, i: usize) -> String {
+    let (lo, hi) = (r.feasible.lower[i], r.feasible.upper[i]);
+    if hi == 0.0 && r.config.exclude.contains(&r.data.assets[i]) {
+        return "excluded".into();
+    }
+    format!("{}\u{2013}{}", pct(lo, Style::Weight), pct(hi, Style::Weight))
+}
+
+fn assets(r: &RunResult, views: &[View]) -> Vec<AssetRow> {
+    r.data.assets.iter().enumerate().map(|(i, a)| AssetRow {
+        asset: a.clone(),
+        name: r.data.meta[i].name.clone(),
+        class: format::title(&r.data.meta[i].class),
+        bounds: bounds(r, i),
+        weights: views.iter().map(|v| v.weights.map_or(NONE.into(), |w| format::weight(w[i]))).collect(),
+    }).collect()
+}
+
+fn groups(r: &RunResult, views: &[View]) -> Vec<GroupRow> {
+    r.feasible.groups.iter().map(|g| GroupRow {
+        name: g.name.clone(),
+        members: format::count(g.members.len()),
+        range: format!("{}\u{2013}{}", pct(g.min, Style::Weight), pct(g.max, Style::Weight)),
+        exposures: views.iter().map(|v| v.weights.map_or(NONE.into(), |w| {
+            pct(g.members.iter().map(|&i| w[i]).sum(), Style::Weight)
+        })).collect(),
+    }).collect()
+}
+
+fn limits(r: &RunResult) -> Vec<Pair> {
+    let c = &r.config;
+    let mut out = vec![
+        pair("Confidence level of the models", format::level(c.confidence)),
+        pair("CVaR cap (max return)", format!("{} ({})", pct(r.cvar_cap, Style::Loss), text::cap_rule(c.cap))),
+        pair("Expected-return floor (min CVaR)", format!("{} ({})", pct(r.return_floor, Style::Return), text::floor_rule(c.floor))),
+        pair("Default asset bounds", format!("{}\u{2013}{}", pct(c.default_min, Style::Weight), pct(c.default_max, Style::Weight))),
+        pair("Turnover limit Σ|x − current|", c.turnover_max.map_or("none".into(), |t| pct(t, Style::Weight))),
+    ];
+    if !c.exclude.is_empty() {
+        out.push(pair("Excluded assets", c.exclude.join(", ")));
+    }
+    out
+}
+
+/// The `n` assets with the largest CVaR contribution in the first solved portfolio, largest first.
+fn contributors(r: &RunResult, views: &[View], n: usize) -> Vec<Contributor> {
+    let Some(base) = views.iter().find_map(|v| v.profile) else { return vec![] };
+    let mut order: Vec<usize> = (0..r.data.assets.len()).collect();
+    order.sort_by(|&a, &b| base.component_cvar[b].total_cmp(&base.component_cvar[a]).then(a.cmp(&b)));
+    order.into_iter().take(n).map(|i| Contributor {
+        asset: r.data.assets[i].clone(),
+        class: format::title(&r.data.meta[i].class),
+        contributions: views.iter().map(|v| v.profile.map_or(NONE.into(), |p| pct(p.component_cvar[i], Style::Loss))).collect(),
+    }).collect()
+}
+
+fn level_word(l: Level) -> &'static str {
+    match l {
+        Level::Pass => "pass",
+        Level::Warn => "warn",
+        Level::Fail => "fail",
+    }
+}
+
+/// Findings worst first (fail, warn, pass), each group in the order the run produced them.
+fn checks(r: &RunResult) -> Checks {
+    let mut rows: Vec<&crate::diag::Check> = r.checks.iter().collect();
+    rows.sort_by_key(|c| std::cmp::Reverse(c.level));
+    let n = |l: Level| r.checks.iter().filter(|c| c.level == l).count();
+    Checks {
+        pass: n(Level::Pass), warn: n(Level::Warn), fail: n(Level::Fail),
+        rows: rows.into_iter().map(|c| CheckRow { id: c.id.clone(), level: level_word(c.level), message: c.message.clone() }).collect(),
+    }
+}
+
+fn scenarios(r: &RunResult) -> Vec<Pair> {
+    let s = &r.scenarios;
+    let probs = match r.config.scenarios.half_life {
+        Some(h) if !s.equal_probabilities => format!("decaying, half-life {} observations", format::number(h, 1)),
+        _ => "equal".into(),
+    };
+    vec![
+        pair("Scenarios", format::count(s.len())),
+        pair("Horizon", format!("{} price observations per scenario", s.horizon)),
+        pair("Step between windows", format!("{} observation(s)", s.step)),
+        pair("First window starts", s.starts.first().map(|d| d.to_string()).unwrap_or_default()),
+        pair("Last window ends", s.ends.last().map(|d| d.to_string()).unwrap_or_default()),
+        pair("Look-back", format!("{} years before as-of", r.config.scenarios.lookback_years)),
+        pair("Probabilities", probs),
+    ]
+}
+
+fn quality(r: &RunResult) -> Quality {
+    let q = &r.data.quality;
+    let flagged: Vec<QualityRow> = q.assets.iter()
+        .filter(|a| a.missing > 0 || a.dropped || a.extreme_moves > 0 || a.longest_stale_run >= r.config.quality.stale_run)
+        .map(|a| QualityRow {
+            asset: a.asset.clone(), missing: a.missing.to_string(), filled: a.filled.to_string(),
+            longest_gap: a.longest_gap.to_string(), stale: a.longest_stale_run.to_string(),
+            extreme: a.extreme_moves.to_string(), status: if a.dropped { "dropped" } else { "kept" },
+        }).collect();
+    let clean = q.assets.len() - flagged.len();
+    Quality {
+        facts: vec![
+            pair("Price history", format!("{} to {} ({} layout)", r.data.history.0, r.data.history.1, format!("{:?}", r.data.layout).to_lowercase())),
+            pair("Scenario window", format!("{} to {}, {} observations", q.window_start, q.window_end, format::count(q.observations))),
+            pair("Fill policy", q.fill_policy.clone()),
+        ],
+        clean: format!("{} of {} assets have no finding (no missing, stale or extreme prices).", format::count(clean), format::count(q.assets.len())),
+        rows: flagged,
+    }
+}
+
+fn inputs(results: &Value) -> Vec<Input> {
+    let list = results.get("inputs").and_then(Value::as_array).cloned().unwrap_or_default();
+    let s = |v: &Value, k: &str| v.get(k).map(|x| x.as_str().map_or_else(|| x.to_string(), str::to_string)).unwrap_or_default();
+    list.iter().map(|i| Input {
+        role: s(i, "role"), path: s(i, "path"),
+        bytes: i.get("bytes").and_then(Value::as_u64).map_or(String::new(), |b| format::count(b as usize)),
+        sha256: s(i, "sha256"),
+    }).collect()
+}
+
+fn run_facts(r: &RunResult, pack_id: &str) -> Vec<Pair> {
+    let v = typst::utils::version();
+    vec![
+        pair("Pack identifier", pack_id),
+        pair("Tool", format!("tailpack {}", env!("CARGO_PKG_VERSION"))),
+        pair("Typesetting", format!("typst {}.{}.{}", v.major(), v.minor(), v.patch())),
+        pair("LP solver", crate::models::lp::backend_description(r.backend).to_string()),
+        pair("Status", "DRAFT (not signed off)"),
+    ]
+}
+
+/// True when a model has an optimal solution.
+pub fn solved(m: &ModelReport) -> bool {
+    m.outcome.status == Status::Optimal && m.profile.is_some()
+}

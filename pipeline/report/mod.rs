@@ -1,0 +1,122 @@
+//! Report stage: the committee PDF (`pack.pdf`), typeset in-process by typst from the run's results.
+//!
+//! [`data`] turns the results into display data with every number formatted ([`format`]), [`text`] writes
+//! the sentences that depend on the run, [`charts`] draws the SVG charts, [`templates`] supplies the typst
+//! templates (built-in or a custom folder's), and [`world`] is the only door through which the typesetter
+//! sees files, fonts and the date. The PDF claims PDF/A-2b, is dated by the as-of date and identified by the
+//! pack id, so the same inputs give the same bytes.
+//!
+//! May read: the [`RunResult`], the `results.json` value and the custom template folder. Writes nothing:
+//! the pack writer stores the returned bytes.
+
+pub mod charts;
+pub mod data;
+pub mod format;
+pub mod templates;
+pub mod text;
+pub mod world;
+
+use crate::error::{Error, Result};
+use crate::run::RunResult;
+use serde_json::Value;
+use typst::diag::{Severity, SourceDiagnostic};
+use typst::foundations::{Bytes, Smart};
+use typst::WorldExt;
+use typst_layout::PagedDocument;
+use typst_pdf::{PdfOptions, PdfStandard, PdfStandards};
+use world::{Origin, ReportWorld, WorldFile};
+
+/// The entry template.
+pub const MAIN: &str = "/main.typ";
+/// The display data file as templates read it.
+pub const REPORT_JSON: &str = "/data/report.json";
+/// The full results document as templates may read it.
+pub const RESULTS_JSON: &str = "/data/results.json";
+
+/// Typesets the pack PDF of a run. `results` is the `results.json` document and `pack_id` its identifier.
+pub fn render(r: &RunResult, results: &Value, pack_id: &str) -> Result<Vec<u8>> {
+    let world = world(r, results, pack_id)?;
+    let doc = compile(&world)?;
+    export(&world, &doc, pack_id)
+}
+
+fn world(r: &RunResult, results: &Value, pack_id: &str) -> Result<ReportWorld> {
+    let views = data::views(r);
+    let report = data::build(r, results, pack_id);
+    let (mut files, extra_fonts) = templates::load(r.config.templates.as_deref())?;
+    files.push(generated(REPORT_JSON, serde_json::to_vec_pretty(&report).expect("display data serialises")));
+    files.push(generated(RESULTS_JSON, serde_json::to_vec_pretty(results).expect("results serialise")));
+    for chart in charts::all(r, &views)? {
+        files.push(generated(&format!("/charts/{}", chart.name), chart.svg.into_bytes()));
+    }
+    let fonts = extra_fonts.into_iter().map(Bytes::new).chain(templates::FONTS.into_iter().map(Bytes::new)).collect();
+    Ok(ReportWorld::new(files, fonts, MAIN, r.data.as_of))
+}
+
+fn generated(vpath: &str, bytes: Vec<u8>) -> WorldFile {
+    WorldFile { vpath: vpath.into(), bytes, origin: Origin::Generated }
+}
+
+fn compile(world: &ReportWorld) -> Result<PagedDocument> {
+    typst::compile::<PagedDocument>(world).output.map_err(|diags| template_error(world, &diags))
+}
+
+/// PDF/A-2b, identified by the pack id; the document date comes from the template (`set document`),
+/// which takes precedence over any timestamp here.
+fn export(world: &ReportWorld, doc: &PagedDocument, pack_id: &str) -> Result<Vec<u8>> {
+    let standards = PdfStandards::new(&[PdfStandard::A_2b]).map_err(|e| Error::Run(format!("PDF/A-2b settings: {}", e.message())))?;
+    let options = PdfOptions {
+        ident: Smart::Custom(pack_id.to_string()),
+        creator: Smart::Custom(Some(format!("tailpack {}", env!("CARGO_PKG_VERSION")))),
+        standards,
+        ..PdfOptions::default()
+    };
+    typst_pdf::pdf(doc, &options).map_err(|diags| template_error(world, &diags))
+}
+
+/// The first error of a failed compilation as a [`Error::Template`] naming file, line and column.
+fn template_error(world: &ReportWorld, diags: &[SourceDiagnostic]) -> Error {
+    let errors: Vec<&SourceDiagnostic> = diags.iter().filter(|d| d.severity == Severity::Error).collect();
+    let Some(first) = errors.first().copied().or(diags.first()) else {
+        return Error::Template { file: MAIN.trim_start_matches('/').into(), line: None, message: "typesetting failed without a diagnostic".into() };
+    };
+    let spans = std::iter::once(first.span).chain(first.trace.iter().map(|t| t.span.into()));
+    let place = spans.filter_map(|s| locate(world, s)).next();
+    let mut message = first.message.to_string();
+    for hint in &first.hints {
+        message.push_str(&format!("; hint: {}", hint.v));
+    }
+    if errors.len() > 1 {
+        message.push_str(&format!(" (and {} more error(s))", errors.len() - 1));
+    }
+    match place {
+        Some((file, line, column)) => Error::Template { file, line: Some((line, column)), message },
+        None => Error::Template { file: MAIN.trim_start_matches('/').into(), line: None, message },
+    }
+}
+
+/// File description, 1-based line and column of a diagnostic span, if it points into a known file.
+fn locate(world: &ReportWorld, span: typst::syntax::DiagSpan) -> Option<(String, usize, usize)> {
+    let id = span.id()?;
+    let origin = world.origin(id)?;
+    let range = world.range(span)?;
+    let (line, column) = match world.parsed(id) {
+        Some(source) => source.lines().byte_to_line_column(range.start).map(|(l, c)| (l + 1, c + 1))?,
+        None => (1, range.start + 1),
+    };
+    Some((origin.describe(id.vpath().get_with_slash()), line, column))
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn every_default_template_is_listed_once() {
+        let mut names: Vec<&str> = templates::DEFAULTS.iter().map(|(n, _)| *n).collect();
+        names.sort();
+        names.dedup();
+        assert_eq!(names.len(), templates::DEFAULTS.len());
+        assert!(names.contains(&"main.typ"));
+    }
+}

@@ -1,0 +1,140 @@
+//! The sentences of the pack that depend on the run: the summary's key points and the caveats.
+//!
+//! Each sentence states a number the run produced and what it means for reading the pack; none gives a
+//! recommendation. Figures go through [`super::format`] like every other number in the PDF.
+
+use super::data::{solved, status_word, View};
+use super::format::{self, pct, Style};
+use crate::config::{CapRule, FloorRule};
+use crate::diag::Level;
+use crate::run::RunResult;
+
+/// How the CVaR cap was set, in words.
+pub fn cap_rule(rule: CapRule) -> String {
+    match rule {
+        CapRule::Value(_) => "set as an absolute value".into(),
+        CapRule::TimesCurrent(m) => format!("{} × the current portfolio's CVaR", format::number(m, 2)),
+        CapRule::TimesMin(m) => format!("{} × the lowest CVaR attainable within the limits", format::number(m, 2)),
+    }
+}
+
+/// How the expected-return floor was set, in words.
+pub fn floor_rule(rule: FloorRule) -> String {
+    match rule {
+        FloorRule::Value(_) => "set as an absolute value".into(),
+        FloorRule::PlusCurrent(d) => format!("current expected return {}", pct(d, Style::Points)),
+    }
+}
+
+/// The summary's key points, in print order.
+pub fn summary(r: &RunResult, views: &[View]) -> Vec<String> {
+    let c = format::level(r.config.confidence);
+    let mut out = vec![format!(
+        "{} scenarios of {} price observations each, from {} to {}. VaR and CVaR at {c} are the fraction of portfolio value lost over one horizon.",
+        format::count(r.scenarios.len()), r.scenarios.horizon, first_start(r), last_end(r))];
+    let current = views.iter().find(|v| v.key == "current").and_then(|v| v.profile);
+    if let Some(p) = current {
+        out.push(format!("Current portfolio: expected return {}, VaR {} and CVaR {} at {c}.",
+            pct(p.expected_return, Style::Return), pct(p.at(r.config.confidence).var, Style::Loss), pct(p.at(r.config.confidence).cvar, Style::Loss)));
+    }
+    out.extend(views.iter().filter(|v| v.model.is_some()).map(|v| model_point(r, v, current)));
+    out.push(checks_point(r));
+    out.push("Efficient frontier, stress tests and backtest are not yet computed by this version of the pack.".into());
+    out
+}
+
+fn model_point(r: &RunResult, v: &View, current: Option<&crate::risk::RiskProfile>) -> String {
+    let m = v.model.expect("a model view");
+    let Some(p) = v.profile.filter(|_| solved(m)) else {
+        return format!("{}: {}. {}", v.look.label, status_word(v), m.outcome.message.as_deref().unwrap_or("No portfolio is reported."));
+    };
+    let c = r.config.confidence;
+    let versus = |now: f64, then: Option<f64>| then.map_or(String::new(), |t| format!(" ({} against current)", pct(now - t, Style::Points)));
+    let turnover = m.turnover.map_or(String::new(), |t| format!(", turnover {}", pct(t, Style::Weight)));
+    format!("{}: expected return {}{}, CVaR {}{}{turnover}.", v.look.label,
+        pct(p.expected_return, Style::Return), versus(p.expected_return, current.map(|q| q.expected_return)),
+        pct(p.at(c).cvar, Style::Loss), versus(p.at(c).cvar, current.map(|q| q.at(c).cvar)))
+}
+
+fn checks_point(r: &RunResult) -> String {
+    let n = |l: Level| r.checks.iter().filter(|c| c.level == l).count();
+    format!("Checks: {} passed, {} warning(s), {} failure(s); each is listed under Checks.", n(Level::Pass), n(Level::Warn), n(Level::Fail))
+}
+
+fn first_start(r: &RunResult) -> String {
+    r.scenarios.starts.first().map(|d| d.to_string()).unwrap_or_default()
+}
+
+fn last_end(r: &RunResult) -> String {
+    r.scenarios.ends.last().map(|d| d.to_string()).unwrap_or_default()
+}
+
+/// The caveats that apply to this run, general ones first, then one per model where it matters.
+pub fn caveats(r: &RunResult, views: &[View]) -> Vec<super::data::Caveat> {
+    let mut out = vec![history(r, views), tail_count(r), estimates()];
+    out.extend(views.iter().filter_map(|v| binding(r, v)));
+    out.push(caveat("Costs and liquidity", "The models include no transaction costs, market impact, liquidity or taxes; the turnover limit is the only trading constraint. Implementing a candidate in full may cost more, and take longer, than the figures suggest."));
+    let warned = r.checks.iter().filter(|c| c.level != Level::Pass).count();
+    if warned > 0 {
+        out.push(caveat("Open findings", &format!("{warned} check(s) did not pass; each is listed under Checks with its evidence and should be read before the figures are relied on.")));
+    }
+    out
+}
+
+fn caveat(title: &str, text: &str) -> super::data::Caveat {
+    super::data::Caveat { title: title.into(), text: text.into() }
+}
+
+fn history(r: &RunResult, views: &[View]) -> super::data::Caveat {
+    let worst = views.iter().filter_map(|v| v.profile).map(|p| p.worst_loss).fold(f64::NAN, f64::max);
+    caveat("History is not the future", &format!(
+        "The scenarios are the returns observed between {} and {}. The largest loss of any portfolio in the pack over them is {}; larger losses are possible, and a calm history gives tail figures that look benign.",
+        first_start(r), last_end(r), pct(worst, Style::Loss)))
+}
+
+/// How many scenarios a tail average rests on, and how many windows are independent.
+fn tail_count(r: &RunResult) -> super::data::Caveat {
+    let s = &r.scenarios;
+    let independent = (s.len() * s.step) / s.horizon.max(1);
+    let levels: Vec<String> = r.config.levels.iter().map(|&c| {
+        format!("{} of {} at {}", format::count(((1.0 - c) * s.len() as f64).ceil() as usize), format::count(s.len()), format::level(c))
+    }).collect();
+    let weighting = if s.equal_probabilities { "the worst" } else { "the probability-weighted worst" };
+    caveat("Few tail scenarios", &format!(
+        "CVaR averages {weighting} scenarios only: {}. Consecutive windows overlap (horizon {}, step {}), so only about {} of them are independent; tail figures carry wide sampling error.",
+        levels.join(", "), s.horizon, s.step, format::count(independent)))
+}
+
+fn estimates() -> super::data::Caveat {
+    caveat("Expected returns are estimates", "Expected returns are the scenario means. They are estimated far less precisely than risk, and optimisers lean on exactly those errors (Michaud 1989, \"The Markowitz optimization enigma: is optimized optimal?\", Financial Analysts Journal 45(1)). Differences of a few tenths of a percentage point between candidates are within that error.")
+}
+
+/// Which limits bind a solved model: assets at their upper bound, the turnover limit, group limits.
+fn binding(r: &RunResult, v: &View) -> Option<super::data::Caveat> {
+    let m = v.model?;
+    if !solved(m) {
+        return Some(caveat(&format!("{}: {}", v.look.label, status_word(v)), m.outcome.message.as_deref().unwrap_or("no portfolio is reported")));
+    }
+    let w = v.weights?;
+    let mut parts = Vec::new();
+    if !m.at_upper.is_empty() {
+        parts.push(format!("{} asset(s) at their upper bound ({})", m.at_upper.len(), shortlist(&m.at_upper, 6)));
+    }
+    if let (Some(t), Some(max)) = (m.turnover, r.config.turnover_max) && t >= max - 1e-6 {
+        parts.push(format!("turnover at its limit of {}", pct(max, Style::Weight)));
+    }
+    for g in &r.feasible.groups {
+        let x: f64 = g.members.iter().map(|&i| w[i]).sum();
+        if (x - g.max).abs() < 1e-6 && g.max < 1.0 {
+            parts.push(format!("{} at its maximum of {}", g.name, pct(g.max, Style::Weight)));
+        } else if (x - g.min).abs() < 1e-6 && g.min > 0.0 {
+            parts.push(format!("{} at its minimum of {}", g.name, pct(g.min, Style::Weight)));
+        }
+    }
+    (!parts.is_empty()).then(|| caveat(&format!("{}: limits that bind", v.look.label), &format!(
+        "This portfolio is shaped by its limits: {}. Loosening a binding limit would change the portfolio; the limits come from the fund's policy, not from the data.", parts.join("; "))))
+}
+
+fn shortlist(names: &[String], n: usize) -> String {
+    if names.len() <= n { names.join(", ") } else { format!("{} and {} more", names[..n].join(", "), names.len() - n) }
+}
