@@ -1,5 +1,6 @@
 //! The integration suite: one test binary, one module per area.
 
+mod analysis;
 mod cli;
 mod common;
 mod demo;
