@@ -259,3 +259,103 @@ fn missing_input_file_is_a_config_error_naming_the_key() {
     assert_eq!(ran.code, 2);
     assert!(ran.stderr.contains("data.holdings") && ran.stderr.contains("holdings.csv") && ran.stderr.contains("does not exist"), "{}", ran.stderr);
 }
+
+/// Rewrites the fixture's wide CSV with `edit(row index, cells)` applied to each data row.
+fn edit_rows(m: &Market, edit: impl Fn(usize, &mut Vec<String>)) -> String {
+    let text = m.wide_csv();
+    let mut out: Vec<String> = vec![text.lines().next().unwrap().to_string()];
+    for (i, line) in text.lines().skip(1).enumerate() {
+        let mut cells: Vec<String> = line.split(',').map(String::from).collect();
+        edit(i, &mut cells);
+        out.push(cells.join(","));
+    }
+    out.join("\n") + "\n"
+}
+
+fn check_out(f: &Fixture) -> super::common::Ran {
+    f.run(&["check", "fund.yaml"])
+}
+
+#[test]
+fn data_quality_findings_each_have_their_outcome() {
+    let (f, m) = standard();
+    let n = m.dates.len();
+    // Duplicate date: error naming both rows.
+    let dup = edit_rows(&m, |i, c| if i == n - 40 { c[0] = m.dates[n - 41].to_string() });
+    f.write("data/prices.csv", &dup);
+    let ran = check_out(&f);
+    assert_eq!(ran.code, 3);
+    assert!(ran.stderr.contains(&format!("date {} appears twice", m.dates[n - 41])) && ran.stderr.contains(&format!("row {}", n - 40)), "{}", ran.stderr);
+    // Stale run of 12 identical prices in AS02 and one extreme move in AS03: warnings, run continues.
+    let stale = edit_rows(&m, |i, c| {
+        if (n - 60..n - 48).contains(&i) { c[2] = "123.000000".into(); }
+        if i == n - 30 { c[3] = format!("{:.6}", m.prices[i][2] * 1.5); }
+    });
+    f.write("data/prices.csv", &stale);
+    let ran = check_out(&f);
+    assert_eq!(ran.code, 0, "{}", ran.stderr);
+    assert!(ran.stdout.contains("warn: stale prices") && ran.stdout.contains("`AS02` (12 identical prices in a row)"), "{}", ran.stdout);
+    assert!(ran.stdout.contains("warn: single-period moves beyond ±25%") && ran.stdout.contains("`AS03` (2×)"), "{}", ran.stdout);
+    // A gap of 5 missing prices (> max_fill 3) drops the asset with a warning.
+    let gap = edit_rows(&m, |i, c| if (n - 20..n - 15).contains(&i) { c[4] = String::new(); });
+    f.write("data/prices.csv", &gap);
+    let ran = check_out(&f);
+    // Still held: a blocking error, because the current portfolio's risk cannot be measured without it.
+    assert_eq!(ran.code, 3);
+    assert!(ran.stderr.contains("asset `AS04` is not in the price data (or was dropped by the fill policy)"), "{}", ran.stderr);
+    f.write("data/holdings.csv", "asset,weight\nAS01,0.25\nAS02,0.25\nAS03,0.25\nAS05,0.25\n");
+    let ran = check_out(&f);
+    assert_eq!(ran.code, 0, "{}", ran.stderr);
+    assert!(ran.stdout.contains("asset `AS04` has a gap of 5 consecutive missing prices, more than quality.max_fill = 3; it is dropped"), "{}", ran.stdout);
+}
+
+#[test]
+fn unsorted_rows_are_sorted_with_a_warning_and_change_nothing() {
+    let (f, m) = standard();
+    let sorted = without_inputs(json(&pack_dir(&f.run(&["run", "fund.yaml", "--quiet"])).join("results.json")));
+    let text = m.wide_csv();
+    let mut lines: Vec<&str> = text.lines().collect();
+    lines.swap(100, 101);
+    f.write("data/prices.csv", &(lines.join("\n") + "\n"));
+    let ran = f.run(&["run", "fund.yaml", "--quiet"]);
+    assert!(ran.stdout.contains("rows are not in date order"), "{}", ran.stdout);
+    let mut unsorted = without_inputs(json(&pack_dir(&ran).join("results.json")));
+    for v in [&mut unsorted] {
+        let o = v.as_object_mut().unwrap();
+        o.remove("checks");
+        o.remove("data_quality");
+    }
+    let mut sorted = sorted;
+    sorted.as_object_mut().unwrap().remove("checks");
+    sorted.as_object_mut().unwrap().remove("data_quality");
+    assert_eq!(unsorted, sorted);
+}
+
+#[test]
+fn short_history_for_the_universe_is_flagged() {
+    // Rule of thumb (common practice): ≥ 10 observations per asset and ≥ as many non-overlapping windows as
+    // assets. 12 assets, horizon 21, one year of data: about 260 observations, 12 windows → flagged? 260 ≥ 120
+    // passes the first rule; 260/21 = 12 windows ≥ 12 assets passes too, so use 30 assets instead.
+    let f = Fixture::new();
+    let m = Market::new(30, "2023-06-01", "2024-06-28", 5);
+    f.small_fund(&m, &config("").replace("horizon: 5", "horizon: 21"));
+    let ran = f.run(&["check", "fund.yaml"]);
+    assert_eq!(ran.code, 0, "{}", ran.stderr);
+    assert!(ran.stdout.contains("warn: history is short for the universe"), "{}", ran.stdout);
+}
+
+#[test]
+fn excluded_assets_get_zero_weight_in_every_model() {
+    let (f, _) = standard();
+    f.write("fund.yaml", &config("limits:\n  exclude: [AS05]\n"));
+    let r = json(&pack_dir(&f.run(&["run", "fund.yaml", "--quiet"])).join("results.json"));
+    for name in ["max_return", "min_cvar", "max_ratio"] {
+        assert_eq!(r["models"][name]["status"], "optimal");
+        assert_eq!(r["models"][name]["weights"]["AS05"], 0.0, "{name}");
+    }
+    assert_eq!(r["constraints"]["upper"]["AS05"], 0.0);
+    f.write("fund.yaml", &config("limits:\n  exclude: [AS99]\n"));
+    let ran = f.run(&["run", "fund.yaml", "--quiet"]);
+    assert_eq!(ran.code, 2);
+    assert!(ran.stderr.contains("limits.exclude: unknown asset `AS99`"), "{}", ran.stderr);
+}
