@@ -33,6 +33,8 @@ pub struct Lp {
     rows: Vec<Constraint>,
     pub weights: Vec<Variable>,
     pub scale: Option<Variable>,
+    /// Further columns whose values the caller wants back (in `Solved::extra`).
+    tracked: Vec<Variable>,
 }
 
 /// The values of the portfolio columns and the scale at the optimum, with the objective value.
@@ -41,6 +43,8 @@ pub struct Solved {
     pub weights: Vec<f64>,
     pub scale: Option<f64>,
     pub objective: f64,
+    /// Values of the tracked columns, in the order they were added.
+    pub extra: Vec<f64>,
 }
 
 impl Lp {
@@ -54,7 +58,7 @@ impl Lp {
             (0..n).map(|i| vars.add(variable().min(fs.lower[i]).max(fs.upper[i]))).collect()
         };
         let scale = scaled.then(|| vars.add(variable().min(0.0)));
-        let mut lp = Lp { vars, rows: Vec::new(), weights, scale };
+        let mut lp = Lp { vars, rows: Vec::new(), weights, scale, tracked: Vec::new() };
         lp.feasible_set(fs);
         lp
     }
@@ -145,6 +149,44 @@ impl Lp {
         total
     }
 
+    /// Adds a column whose value is returned in `Solved::extra`.
+    pub fn tracked(&mut self, def: good_lp::VariableDefinition) -> Variable {
+        let v = self.vars.add(def);
+        self.tracked.push(v);
+        v
+    }
+
+    /// The CVaR block of the cutting-plane method (Künzi-Bay & Mayer 2006, "Computational aspects of
+    /// minimizing conditional value-at-risk", Computational Management Science 3): columns ℓ (free) and
+    /// w ≥ 0 (tracked, in that order) with one row per cut K ⊆ scenarios,
+    /// w ≥ Σ_{k∈K} p_k (−r_k·x − ℓ); returns ℓ + w/(1−c). With every subset as a cut this is exactly
+    /// CVaR (w = Σ_k p_k (L_k − ℓ)+), so the cuts generated so far give a relaxation.
+    pub fn cvar_cuts(&mut self, set: &ScenarioSet, c: f64, cuts: &[Vec<usize>]) -> Expression {
+        let ell = self.tracked(variable());
+        let w = self.tracked(variable().min(0.0));
+        for cut in cuts {
+            let mut coef = vec![0.0; set.width()];
+            let mut mass = 0.0;
+            for &k in cut {
+                mass += set.probabilities[k];
+                for (a, r) in coef.iter_mut().zip(set.row(k)) {
+                    *a += set.probabilities[k] * r;
+                }
+            }
+            let mut row = Expression::with_capacity(set.width() + 2);
+            row.add_mul(1.0, w);
+            row.add_mul(mass, ell);
+            for (a, x) in coef.iter().zip(&self.weights) {
+                row.add_mul(*a, *x);
+            }
+            self.rows.push(row.geq(0.0));
+        }
+        let mut total = Expression::with_capacity(2);
+        total.add_mul(1.0, ell);
+        total.add_mul(1.0 / (1.0 - c), w);
+        total
+    }
+
     /// Adds a row.
     pub fn push(&mut self, row: Constraint) {
         self.rows.push(row);
@@ -152,12 +194,13 @@ impl Lp {
 
     /// Solves with the chosen backend.
     pub fn solve(self, objective: Expression, maximise: bool, backend: Backend) -> Result<Solved, Failure> {
-        let Lp { vars, rows, weights, scale } = self;
+        let Lp { vars, rows, weights, scale, tracked } = self;
         let unsolved = if maximise { vars.maximise(objective.clone()) } else { vars.minimise(objective.clone()) };
         let read = |s: &dyn Solution| Solved {
             weights: weights.iter().map(|v| s.value(*v)).collect(),
             scale: scale.map(|t| s.value(t)),
             objective: objective.eval_with(&SolutionRef(s)),
+            extra: tracked.iter().map(|v| s.value(*v)).collect(),
         };
         match backend {
             Backend::Highs => {

@@ -94,42 +94,145 @@ impl Outcome {
     }
 }
 
+/// How the CVaR enters an LP.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum Method {
+    /// One row and one column per scenario (Rockafellar & Uryasev 2000).
+    Direct,
+    /// Cutting planes on the CVaR term, generated until none is violated (Künzi-Bay & Mayer 2006).
+    Cuts,
+}
+
+/// From this many scenarios on, the models use the cutting-plane method. Measured on the demo (1,284
+/// scenarios × 48 assets) the direct LP is faster (each cut round rebuilds the model), so the switch sits
+/// at large scenario sets, where the direct LP's size grows with S and the cut LPs' does not.
+pub const CUTS_FROM_SCENARIOS: usize = 20_000;
+/// The cutting-plane loop stops when the true tail term exceeds the LP's w by at most this (relative).
+pub const CUT_TOLERANCE: f64 = 1e-10;
+/// Rounds after which the cutting-plane loop gives up and the direct LP is solved instead.
+pub const MAX_CUT_ROUNDS: usize = 400;
+
+#[derive(Clone, Copy)]
+enum Kind {
+    MaxReturn(Option<f64>),
+    MinCvar(Option<f64>),
+    Ratio,
+}
+
 impl Problem<'_> {
+    /// The method used for this problem's size.
+    pub fn method(&self) -> Method {
+        if self.set.len() >= CUTS_FROM_SCENARIOS { Method::Cuts } else { Method::Direct }
+    }
+
     /// Maximise μ·x over X, with CVaR_c(x) ≤ cap when a cap is given.
     pub fn max_return(&self, cap: Option<f64>) -> Result<Solved, Failure> {
-        let mut lp = Lp::new(self.feasible, false);
-        if let Some(cap) = cap {
-            let cvar = lp.cvar(self.set, self.confidence);
-            lp.push(cvar.leq(cap));
-        }
-        let obj = lp.expected_return(&self.mu);
-        lp.solve(obj, true, self.backend)
+        self.max_return_by(cap, self.method())
     }
 
     /// Minimise CVaR_c(x) over X, with μ·x ≥ floor when a floor is given.
     pub fn min_cvar(&self, floor: Option<f64>) -> Result<Solved, Failure> {
-        let mut lp = Lp::new(self.feasible, false);
-        if let Some(floor) = floor {
-            let ret = lp.expected_return(&self.mu);
-            lp.push(ret.geq(floor));
-        }
-        let obj = lp.cvar(self.set, self.confidence);
-        lp.solve(obj, false, self.backend)
+        self.min_cvar_by(floor, self.method())
     }
 
     /// The Charnes–Cooper LP: maximise μ·z with the scaled CVaR ≤ 1 and X scaled by t; returns z/t.
     pub fn max_ratio(&self) -> Result<Solved, Failure> {
-        let mut lp = Lp::new(self.feasible, true);
-        let cvar = lp.cvar(self.set, self.confidence);
-        lp.push(cvar.leq(1.0));
-        let obj = lp.expected_return(&self.mu);
-        let mut solved = lp.solve(obj, true, self.backend)?;
+        self.max_ratio_by(self.method())
+    }
+
+    /// [`Problem::max_return`] with an explicit method.
+    pub fn max_return_by(&self, cap: Option<f64>, method: Method) -> Result<Solved, Failure> {
+        self.solve(Kind::MaxReturn(cap), method)
+    }
+
+    /// [`Problem::min_cvar`] with an explicit method.
+    pub fn min_cvar_by(&self, floor: Option<f64>, method: Method) -> Result<Solved, Failure> {
+        self.solve(Kind::MinCvar(floor), method)
+    }
+
+    /// [`Problem::max_ratio`] with an explicit method.
+    pub fn max_ratio_by(&self, method: Method) -> Result<Solved, Failure> {
+        let mut solved = self.solve(Kind::Ratio, method)?;
         let t = solved.scale.unwrap_or(0.0);
         if t <= MIN_SCALE {
             return Err(Failure::Solver(format!("Charnes–Cooper scale t = {t:e} is not bounded away from 0")));
         }
         solved.weights.iter_mut().for_each(|z| *z /= t);
         Ok(solved)
+    }
+
+    fn solve(&self, kind: Kind, method: Method) -> Result<Solved, Failure> {
+        match method {
+            Method::Direct => self.assemble(kind, |lp| lp.cvar(self.set, self.confidence)),
+            Method::Cuts => self.cutting_plane(kind),
+        }
+    }
+
+    /// One LP of the given kind with the given CVaR block.
+    fn assemble(&self, kind: Kind, cvar: impl FnOnce(&mut Lp) -> good_lp::Expression) -> Result<Solved, Failure> {
+        let mut lp = Lp::new(self.feasible, matches!(kind, Kind::Ratio));
+        let (objective, maximise) = match kind {
+            Kind::MaxReturn(cap) => {
+                if let Some(cap) = cap {
+                    let block = cvar(&mut lp);
+                    lp.push(block.leq(cap));
+                }
+                (lp.expected_return(&self.mu), true)
+            }
+            Kind::MinCvar(floor) => {
+                if let Some(floor) = floor {
+                    let ret = lp.expected_return(&self.mu);
+                    lp.push(ret.geq(floor));
+                }
+                (cvar(&mut lp), false)
+            }
+            Kind::Ratio => {
+                let block = cvar(&mut lp);
+                lp.push(block.leq(1.0));
+                (lp.expected_return(&self.mu), true)
+            }
+        };
+        lp.solve(objective, maximise, self.backend)
+    }
+
+    /// Künzi-Bay & Mayer (2006): start from the cut K = all scenarios; after each solve add the cut of the
+    /// scenarios whose loss exceeds ℓ — the most violated one — until the true tail term
+    /// Σ_k p_k (L_k − ℓ)+ exceeds w by at most the tolerance. The last LP's solution is then feasible for,
+    /// and optimal in, the direct LP. Losses are homogeneous in the portfolio columns, so the same cuts
+    /// serve the Charnes–Cooper scaled LP.
+    fn cutting_plane(&self, kind: Kind) -> Result<Solved, Failure> {
+        if matches!(kind, Kind::MaxReturn(None)) {
+            return self.assemble(kind, |_| unreachable!("no CVaR in this LP"));
+        }
+        // The relaxed ratio LP is unbounded until enough cuts exist; t = 1/CVaR(x) ≤ 1/min CVaR over X is a
+        // valid bound that keeps every relaxation bounded without cutting off the optimum.
+        let t_max = match kind {
+            Kind::Ratio => match self.min_cvar_by(None, Method::Cuts) {
+                Ok(m) if m.objective > 0.0 => Some((1.0 + 1e-6) / m.objective),
+                Ok(m) => return Err(Failure::Solver(format!("minimum CVaR {:.3e} ≤ 0: the ratio LP does not apply", m.objective))),
+                Err(e) => return Err(e),
+            },
+            _ => None,
+        };
+        let mut cuts: Vec<Vec<usize>> = vec![(0..self.set.len()).collect()];
+        for _ in 0..MAX_CUT_ROUNDS {
+            let solved = self.assemble(kind, |lp| {
+                let block = lp.cvar_cuts(self.set, self.confidence, &cuts);
+                if let (Some(t), Some(bound)) = (lp.scale, t_max) {
+                    lp.push(good_lp::Expression::from(t).leq(bound));
+                }
+                block
+            })?;
+            let (ell, w) = (solved.extra[0], solved.extra[1]);
+            let losses: Vec<f64> = self.set.portfolio_returns(&solved.weights).iter().map(|r| -r).collect();
+            let tail: Vec<usize> = (0..losses.len()).filter(|&k| losses[k] > ell).collect();
+            let excess: f64 = tail.iter().map(|&k| self.set.probabilities[k] * (losses[k] - ell)).sum();
+            if excess <= w + CUT_TOLERANCE * (1.0 + w.abs()) || cuts.last() == Some(&tail) {
+                return Ok(solved);
+            }
+            cuts.push(tail);
+        }
+        self.assemble(kind, |lp| lp.cvar(self.set, self.confidence))
     }
 }
 
