@@ -39,16 +39,80 @@ impl Progress {
     }
 }
 
-/// `tailpack run`: builds the pack and returns the summary; its last line is the pack folder.
-pub fn run(config: &Path, opts: &RunOptions, progress: &Progress) -> Result<String> {
+/// What `tailpack run` did.
+pub struct RunReport {
+    /// Text for stdout; its last line is the pack folder.
+    pub text: String,
+    /// The documented exit code (0, or 4 after a solver error, or 5 when nothing was to do).
+    pub code: i32,
+}
+
+/// `tailpack run`: builds the pack as the next revision, or does nothing when a pack with identical
+/// inputs exists.
+pub fn run(config: &Path, opts: &RunOptions, progress: &Progress) -> Result<RunReport> {
     progress.step("reading config and data");
     let (cfg, data) = run::prepare(config, opts)?;
-    progress.step("solving the CVaR models");
+    let plan = crate::archive::plan(&cfg, data.as_of)?;
+    progress.step("waiting for the archive lock");
+    let _lock = crate::archive::lock(&cfg.out_root, opts.lock_timeout)?;
+    if let Some(existing) = crate::archive::identical(&plan) {
+        progress.finish();
+        let shown = std::fs::canonicalize(&existing).unwrap_or(existing);
+        let text = format!("nothing to do: a pack with identical inputs exists (pack id {})\n{}\n", plan.pack_id, shown.display());
+        return Ok(RunReport { text, code: crate::error::EXIT_NOTHING_TO_DO });
+    }
+    progress.step("solving the CVaR models, frontier, stress set and backtest");
     let result = run::compute(cfg, data)?;
     progress.step("writing the pack");
-    let (dir, text) = crate::pack::write(&result)?;
+    let (dir, text) = crate::pack::write(&result, &plan)?;
     progress.finish();
-    Ok(format!("{text}{}\n", dir.display()))
+    let failed = result.models.iter().any(|m| m.outcome.status == crate::models::Status::SolverError);
+    let code = if failed { crate::error::EXIT_SOLVER } else { crate::error::EXIT_OK };
+    Ok(RunReport { text: format!("{text}{}\n", dir.display()), code })
+}
+
+/// `tailpack verify`: recomputes every digest; with `rerun`, also re-runs from the archived inputs and
+/// compares every output byte for byte.
+pub fn verify(pack: &Path, rerun: bool) -> Result<String> {
+    let mut problems: Vec<String> = crate::archive::verify(pack)?.into_iter().map(|f| format!("{}: {}", f.file, f.problem)).collect();
+    if problems.is_empty() && rerun {
+        problems.extend(rerun_differences(pack)?);
+    }
+    if !problems.is_empty() {
+        return Err(crate::error::Error::Verify { pack: pack.to_path_buf(), problems });
+    }
+    let id = crate::archive::recorded_id(pack).unwrap_or_default();
+    let how = if rerun { "every digest matches and a re-run from the archived inputs gives identical outputs" } else { "every digest matches" };
+    Ok(format!("pack {} verified: {how} (pack id {id})\n", pack.display()))
+}
+
+fn rerun_differences(pack: &Path) -> Result<Vec<String>> {
+    let mut cfg = crate::config::load_archived(&pack.join("inputs"))?;
+    let run: serde_json::Value = serde_json::from_slice(&crate::error::fs::read(&pack.join("inputs/run.json"))?).unwrap_or_default();
+    let as_of = run["as_of"].as_str().and_then(|d| d.parse().ok());
+    if let Some(b) = run["backend"].as_str().and_then(|b| b.parse().ok()) {
+        cfg.backend = b;
+    }
+    let scratch = std::env::temp_dir().join(format!("tailpack-rerun-{}", std::process::id()));
+    let _ = std::fs::remove_dir_all(&scratch);
+    cfg.out_root = scratch.clone();
+    let data = crate::ingest::load(&cfg, as_of)?;
+    let plan = crate::archive::plan(&cfg, data.as_of)?;
+    let result = run::compute(cfg, data)?;
+    crate::error::fs::create_dir_all(&scratch)?;
+    crate::pack::fill(&result, &scratch, &plan)?;
+    let mut out = Vec::new();
+    if Some(plan.pack_id.as_str()) != crate::archive::recorded_id(pack).as_deref() {
+        out.push(format!("{}: the re-run's inputs give pack id {}, not the recorded one", crate::archive::LISTING, plan.pack_id));
+    }
+    for name in ["results.json", "scenarios.csv", "weights.csv", "summary.txt", "pack.pdf"] {
+        let (a, b) = (std::fs::read(pack.join(name)).ok(), std::fs::read(scratch.join(name)).ok());
+        if a != b {
+            out.push(format!("{name}: the re-run from the archived inputs gives different bytes"));
+        }
+    }
+    let _ = std::fs::remove_dir_all(&scratch);
+    Ok(out)
 }
 
 /// `tailpack check`: validates config and data and returns the data-quality report.

@@ -442,6 +442,27 @@ pub fn load(path: &Path) -> Result<Config> {
     resolve(path, raw)
 }
 
+/// Loads the config archived in a pack's `inputs/` folder, pointing every input at its archived copy
+/// (`prices.*`, `assets.*`, `holdings.*`, `stress.yaml`, `templates/`) instead of the original paths.
+pub fn load_archived(inputs: &Path) -> Result<Config> {
+    let path = inputs.join("config.yaml");
+    let text = crate::error::fs::read_to_string(&path)?;
+    let mut raw = parse(&path, &text)?;
+    let find = |role: &str| -> Option<PathBuf> {
+        let mut names: Vec<String> = std::fs::read_dir(inputs).ok()?.filter_map(|e| e.ok())
+            .map(|e| e.file_name().to_string_lossy().into_owned())
+            .filter(|n| n.starts_with(&format!("{role}."))).collect();
+        names.sort();
+        names.into_iter().next().map(PathBuf::from)
+    };
+    raw.data.prices = find("prices");
+    raw.data.assets = find("assets");
+    raw.data.holdings = raw.data.holdings.and(find("holdings"));
+    raw.stress.file = raw.stress.file.and(find("stress"));
+    raw.report.templates = inputs.join("templates").is_dir().then(|| PathBuf::from("templates"));
+    resolve(&path, raw)
+}
+
 /// Parses YAML text into the raw config, turning serde errors into messages with line and a suggestion.
 pub fn parse(path: &Path, text: &str) -> Result<RawConfig> {
     if text.trim().is_empty() {

@@ -15,6 +15,15 @@ pub const EXIT_CONFIG: i32 = 2;
 /// Exit code: the input data failed a blocking data-quality check.
 pub const EXIT_DATA: i32 = 3;
 
+/// Exit code: the pack was written, but at least one model ended in a solver error.
+pub const EXIT_SOLVER: i32 = 4;
+/// Exit code: nothing to do — a pack with identical inputs already exists.
+pub const EXIT_NOTHING_TO_DO: i32 = 5;
+/// Exit code: another run holds the archive lock and did not finish in time.
+pub const EXIT_BUSY: i32 = 6;
+/// Exit code: `verify` found a changed, missing or unlisted file.
+pub const EXIT_VERIFY: i32 = 7;
+
 /// Every error the library can return.
 #[derive(Debug, thiserror::Error)]
 pub enum Error {
@@ -34,6 +43,12 @@ pub enum Error {
     /// A file-system operation failed.
     #[error("{action} {}: {source}", path.display())]
     Io { action: &'static str, path: PathBuf, #[source] source: std::io::Error },
+    /// The archive lock is held by another run.
+    #[error("another tailpack run holds the archive lock {} (waited without success); try again later", path.display())]
+    Busy { path: PathBuf },
+    /// A pack failed verification; each line names a file.
+    #[error("pack {} failed verification:\n  {}", pack.display(), problems.join("\n  "))]
+    Verify { pack: PathBuf, problems: Vec<String> },
     /// Anything else that stops a run (e.g. no scenarios could be built).
     #[error("{0}")]
     Run(String),
@@ -49,6 +64,8 @@ impl Error {
             Error::Config { .. } | Error::Template { .. } => EXIT_CONFIG,
             Error::Data { .. } | Error::Quality { .. } => EXIT_DATA,
             Error::Io { .. } | Error::Run(_) => EXIT_FAILURE,
+            Error::Busy { .. } => EXIT_BUSY,
+            Error::Verify { .. } => EXIT_VERIFY,
         }
     }
 

@@ -10,12 +10,14 @@
 //! - [`run`]: wires the stages into one run and resolves rules that depend on earlier results.
 //! - [`report`]: the committee PDF, typeset in-process by typst from the run's results (PDF/A-2b).
 //! - [`pack`]: writes the pack folder (scenarios, results, weights, summary, PDF).
+//! - [`archive`]: pack identity, revisions, manifest, index, lock and verification.
 //! - [`commands`]: one function per CLI subcommand; the binary is a thin layer over these.
 //!
 //! Cross-cutting: [`error`] (typed errors, exit codes, path-naming file helpers), [`diag`] (findings that
 //! travel with results), [`demo`] (the deterministic generator of the invented demo data).
 
 pub mod analysis;
+pub mod archive;
 pub mod commands;
 pub mod config;
 pub mod demo;

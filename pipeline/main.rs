@@ -31,6 +31,17 @@ enum Command {
         /// No progress output on stderr.
         #[arg(long)]
         quiet: bool,
+        /// Seconds to wait for another run's lock on the same archive (then exit 6).
+        #[arg(long, default_value_t = 600)]
+        lock_timeout: u64,
+    },
+    /// Recompute every digest of a pack; any changed, missing or unlisted file fails (exit 7).
+    Verify {
+        /// The pack folder, e.g. out/<fund>/<as-of>/r1.
+        pack: PathBuf,
+        /// Also re-run from the archived inputs and compare every output byte for byte.
+        #[arg(long)]
+        rerun: bool,
     },
     /// Validate the config and data and print the data-quality report; non-zero exit on errors.
     Check {
@@ -48,15 +59,20 @@ enum Command {
 fn main() {
     let cli = Cli::parse();
     let result = match &cli.command {
-        Command::Run { config, out, as_of, solver, quiet } => {
-            let opts = RunOptions { as_of: *as_of, out: out.clone(), backend: *solver };
-            tailpack::commands::run(config, &opts, &tailpack::commands::Progress::new(*quiet))
+        Command::Run { config, out, as_of, solver, quiet, lock_timeout } => {
+            let opts = RunOptions { as_of: *as_of, out: out.clone(), backend: *solver, lock_timeout: std::time::Duration::from_secs(*lock_timeout) };
+            tailpack::commands::run(config, &opts, &tailpack::commands::Progress::new(*quiet)).map(|r| (r.text, r.code))
         }
-        Command::Check { config, as_of } => tailpack::commands::check(config, &RunOptions { as_of: *as_of, ..Default::default() }),
-        Command::DemoData { dir } => tailpack::commands::demo_data(dir),
+        Command::Verify { pack, rerun } => tailpack::commands::verify(pack, *rerun).map(|t| (t, 0)),
+        Command::Check { config, as_of } => tailpack::commands::check(config, &RunOptions { as_of: *as_of, ..Default::default() }).map(|t| (t, 0)),
+        Command::DemoData { dir } => tailpack::commands::demo_data(dir).map(|t| (t, 0)),
     };
     match result {
-        Ok(text) => print!("{text}"),
+        Ok((text, code)) => {
+            print!("{text}");
+            let _ = std::io::Write::flush(&mut std::io::stdout());
+            std::process::exit(code);
+        }
         Err(e) => {
             let text = e.to_string();
             eprintln!("error: {text}");

@@ -46,29 +46,6 @@ pub fn hex(bytes: &[u8]) -> String {
     })
 }
 
-/// Digests of every input of the run.
-pub fn inputs(r: &RunResult) -> Result<Vec<InputFile>> {
-    let c = &r.config;
-    let mut list = vec![("config", c.path.clone()), ("prices", c.prices.clone()), ("assets", c.assets.clone())];
-    if let Some(h) = &c.holdings {
-        list.push(("holdings", h.clone()));
-    }
-    list.into_iter().map(|(role, p)| {
-        let (sha256, bytes) = sha256_file(&p)?;
-        Ok(InputFile { role, path: p.display().to_string(), sha256, bytes })
-    }).collect()
-}
-
-/// Provisional pack identifier: SHA-256 over the lines `role sha256` of the inputs, plus the as-of date.
-pub fn pack_id(inputs: &[InputFile], as_of: &str) -> String {
-    let mut h = Sha256::new();
-    for i in inputs {
-        h.update(format!("{} {}\n", i.role, i.sha256).as_bytes());
-    }
-    h.update(format!("as_of {as_of}\n").as_bytes());
-    hex(&h.finalize())
-}
-
 /// `scenarios.csv`: `scenario[,probability],<assets…>`, one row per scenario, round-trip f64 text.
 pub fn scenarios_csv(r: &RunResult) -> String {
     let s = &r.scenarios;
@@ -274,7 +251,7 @@ fn loss(x: f64) -> String {
 }
 
 /// The short text summary printed to stdout and kept as `summary.txt`.
-pub fn summary(r: &RunResult, dir: &Path) -> String {
+pub fn summary(r: &RunResult) -> String {
     let c = r.config.confidence;
     let mut s = String::new();
     let _ = writeln!(s, "{} — as of {} — {} scenarios of {} observations, {} assets, CVaR at {:.1}%",
@@ -304,50 +281,48 @@ pub fn summary(r: &RunResult, dir: &Path) -> String {
     for c in r.checks.iter().filter(|c| c.level != crate::diag::Level::Pass) {
         let _ = writeln!(s, "  {}: {}", c.level.word(), c.message);
     }
-    let _ = writeln!(s, "pack: {}", dir.display());
     s
 }
 
-/// Where the pack of this run goes: `<root>/<fund short name>/<as-of>`.
-pub fn pack_dir(r: &RunResult) -> PathBuf {
-    r.config.out_root.join(&r.config.short_name).join(r.data.as_of.to_string())
-}
-
-/// Writes the whole pack atomically and returns its folder and the summary text.
-pub fn write(r: &RunResult) -> Result<(PathBuf, String)> {
-    let dir = pack_dir(r);
-    let parent = dir.parent().expect("pack dir has a parent").to_path_buf();
-    fs::create_dir_all(&parent)?;
-    let tmp = parent.join(format!(".partial-{}-{}", r.data.as_of, std::process::id()));
-    if tmp.exists() {
-        fs::remove_dir_all(&tmp)?;
-    }
+/// Writes the pack as the next revision of its fund/as-of folder, atomically, and updates the archive
+/// index. Returns the pack folder and the summary text. Call with the archive lock held.
+pub fn write(r: &RunResult, plan: &crate::archive::Plan) -> Result<(PathBuf, String)> {
+    let folder = &plan.folder;
+    fs::create_dir_all(folder)?;
+    crate::archive::clean_partials(folder);
+    let revs = crate::archive::revisions(folder);
+    let revision = revs.last().map_or(1, |(k, _)| k + 1);
+    let previous = revs.last().map(|(_, p)| p.clone());
+    let dir = folder.join(format!("r{revision}"));
+    let tmp = folder.join(format!(".partial-r{revision}-{}", std::process::id()));
     fs::create_dir_all(&tmp)?;
-    let result = fill(r, &tmp, &dir);
+    let result = fill(r, &tmp, plan).and_then(|text| {
+        crate::archive::seal(&tmp, plan, &r.config, revision, previous.as_deref())?;
+        Ok(text)
+    });
     if result.is_err() {
         let _ = std::fs::remove_dir_all(&tmp);
     }
     let text = result?;
-    if dir.exists() {
-        fs::remove_dir_all(&dir)?;
-    }
     fs::rename(&tmp, &dir)?;
-    let shown = std::fs::canonicalize(&dir).unwrap_or(dir.clone());
-    let text = text.replace(&format!("pack: {}", dir.display()), &format!("pack: {}", shown.display()));
-    fs::write(&shown.join("summary.txt"), &text)?;
-    Ok((shown, text))
+    crate::archive::write_index(&r.config.out_root)?;
+    let shown = std::fs::canonicalize(&dir).unwrap_or(dir);
+    let note = previous.map(|p| format!("revision r{revision} (changed inputs: {}) replaces {}\n",
+        crate::archive::changed_inputs(&p, plan).join(", "), p.display())).unwrap_or_default();
+    Ok((shown.clone(), format!("{text}{note}pack: {}\n", shown.display())))
 }
 
-fn fill(r: &RunResult, tmp: &Path, dir: &Path) -> Result<String> {
-    let inputs = inputs(r)?;
-    let id = pack_id(&inputs, &r.data.as_of.to_string());
-    fs::write(&tmp.join("scenarios.csv"), scenarios_csv(r))?;
-    fs::write(&tmp.join("weights.csv"), weights_csv(r))?;
-    let results = results_json(r, &inputs, &id);
+/// Writes the outputs of a run into `dir` (results, scenarios, weights, summary, PDF).
+pub fn fill(r: &RunResult, dir: &Path, plan: &crate::archive::Plan) -> Result<String> {
+    let inputs = crate::archive::input_list(plan);
+    let id = &plan.pack_id;
+    fs::write(&dir.join("scenarios.csv"), scenarios_csv(r))?;
+    fs::write(&dir.join("weights.csv"), weights_csv(r))?;
+    let results = results_json(r, &inputs, id);
     let json = serde_json::to_string_pretty(&results).expect("results serialise");
-    fs::write(&tmp.join("results.json"), json + "\n")?;
-    fs::write(&tmp.join("pack.pdf"), crate::report::render(r, &results, &id)?)?;
-    let text = summary(r, dir);
-    fs::write(&tmp.join("summary.txt"), &text)?;
+    fs::write(&dir.join("results.json"), json + "\n")?;
+    fs::write(&dir.join("pack.pdf"), crate::report::render(r, &results, id)?)?;
+    let text = summary(r);
+    fs::write(&dir.join("summary.txt"), &text)?;
     Ok(text)
 }

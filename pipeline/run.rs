@@ -14,11 +14,19 @@ use chrono::NaiveDate;
 use std::path::PathBuf;
 
 /// Command-line overrides of the config.
-#[derive(Debug, Clone, Default)]
+#[derive(Debug, Clone)]
 pub struct RunOptions {
     pub as_of: Option<NaiveDate>,
     pub out: Option<PathBuf>,
     pub backend: Option<Backend>,
+    /// How long to wait for another run's archive lock.
+    pub lock_timeout: std::time::Duration,
+}
+
+impl Default for RunOptions {
+    fn default() -> Self {
+        RunOptions { as_of: None, out: None, backend: None, lock_timeout: std::time::Duration::from_secs(600) }
+    }
 }
 
 /// The names of the three model families, in report order.

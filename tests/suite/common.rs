@@ -48,10 +48,11 @@ impl Fixture {
         self.write("fund.yaml", config)
     }
 
-    /// Names of the entries of a folder (empty when it does not exist).
+    /// Names of the visible entries of a folder (empty when it does not exist).
     pub fn entries(&self, rel: &str) -> Vec<String> {
         match std::fs::read_dir(self.path(rel)) {
-            Ok(rd) => rd.map(|e| e.unwrap().file_name().to_string_lossy().into_owned()).collect(),
+            // Hidden entries (the archive lock) are not packs.
+            Ok(rd) => rd.map(|e| e.unwrap().file_name().to_string_lossy().into_owned()).filter(|n| !n.starts_with('.')).collect(),
             Err(_) => vec![],
         }
     }
