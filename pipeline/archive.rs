@@ -251,6 +251,8 @@ fn outputs(dir: &Path) -> Result<Vec<Value>> {
 
 /// The sign-off record's file name (written by the sign-off commands; not an output).
 pub const SIGNOFF: &str = "signoff.json";
+/// The final PDF written by `finalize` (its digest is kept in the sign-off record).
+pub const FINAL_PDF: &str = "pack-final.pdf";
 
 /// Rebuilds `index.csv` and `index.json` at the archive root from every pack's manifest.
 pub fn write_index(root: &Path) -> Result<()> {
@@ -260,11 +262,15 @@ pub fn write_index(root: &Path) -> Result<()> {
             for (rev, pack) in revisions(&as_of) {
                 let m: Value = serde_json::from_slice(&fs::read(&pack.join(MANIFEST))?).unwrap_or(Value::Null);
                 let manifest_sha = sha(&fs::read(&pack.join(MANIFEST))?);
+                let rec = crate::signoff::record(&pack).unwrap_or_default();
+                let signers: Vec<String> = crate::signoff::statements(&rec).iter().map(|s| format!("{}:{}", s.role, s.name)).collect();
+                let status = if rec.finalised.is_some() { "final" } else if signers.is_empty() { "draft" } else { "signing" };
+                let final_sha = rec.finalised.as_ref().map(|f| f.sha256.clone());
                 rows.push(json!({
                     "fund": fund.file_name().map(|n| n.to_string_lossy().into_owned()),
                     "as_of": as_of.file_name().map(|n| n.to_string_lossy().into_owned()),
-                    "revision": rev, "pack_id": m["pack_id"], "status": "draft", "signers": [],
-                    "final_pdf_sha256": Value::Null, "manifest_sha256": manifest_sha,
+                    "revision": rev, "pack_id": m["pack_id"], "status": status, "signers": signers,
+                    "final_pdf_sha256": final_sha, "manifest_sha256": manifest_sha,
                     "path": pack.strip_prefix(root).unwrap_or(&pack).display().to_string(),
                 }));
             }
@@ -273,7 +279,8 @@ pub fn write_index(root: &Path) -> Result<()> {
     let mut csv = String::from("fund,as_of,revision,pack_id,status,signers,final_pdf_sha256,manifest_sha256,path\n");
     for r in &rows {
         let s = |k: &str| r[k].as_str().map(str::to_string).unwrap_or_default();
-        csv.push_str(&format!("{},{},{},{},{},,{},{},{}\n", s("fund"), s("as_of"), r["revision"], s("pack_id"), s("status"), s("final_pdf_sha256"), s("manifest_sha256"), s("path")));
+        let signers: Vec<&str> = r["signers"].as_array().map(|a| a.iter().filter_map(Value::as_str).collect()).unwrap_or_default();
+        csv.push_str(&format!("{},{},{},{},{},{},{},{},{}\n", s("fund"), s("as_of"), r["revision"], s("pack_id"), s("status"), signers.join(";"), s("final_pdf_sha256"), s("manifest_sha256"), s("path")));
     }
     atomic_write(&root.join("index.csv"), csv.as_bytes())?;
     atomic_write(&root.join("index.json"), (serde_json::to_string_pretty(&rows).expect("json") + "\n").as_bytes())
@@ -330,6 +337,17 @@ pub fn verify(pack: &Path) -> Result<Vec<Finding>> {
     }
     out.extend(check_outputs(pack, &manifest));
     out.extend(check_index(pack));
+    if out.is_empty() && pack.join(SIGNOFF).exists() {
+        let rec = crate::signoff::record(pack)?;
+        let roles = crate::signoff::roles(pack)?;
+        out.extend(crate::signoff::check(pack, &rec, &roles)?.into_iter().map(|p| Finding { file: SIGNOFF.into(), problem: p }));
+        if let Some(f) = &rec.finalised {
+            match std::fs::read(pack.join(&f.pdf)) {
+                Ok(b) if sha(&b) == f.sha256 => {}
+                _ => out.push(Finding { file: f.pdf.clone(), problem: "was changed or is missing: its SHA-256 differs from signoff.json".into() }),
+            }
+        }
+    }
     Ok(out)
 }
 
@@ -347,7 +365,7 @@ fn check_outputs(pack: &Path, manifest: &Value) -> Vec<Finding> {
     if let Ok(rd) = std::fs::read_dir(pack) {
         for e in rd.filter_map(|e| e.ok()).filter(|e| e.path().is_file()) {
             let n = e.file_name().to_string_lossy().into_owned();
-            if n != MANIFEST && n != SIGNOFF && !listed.iter().any(|o| o["file"] == n.as_str()) {
+            if n != MANIFEST && n != SIGNOFF && n != FINAL_PDF && !listed.iter().any(|o| o["file"] == n.as_str()) {
                 out.push(Finding { file: n, problem: "is not listed in manifest.json".into() });
             }
         }

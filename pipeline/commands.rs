@@ -115,6 +115,20 @@ fn rerun_differences(pack: &Path) -> Result<Vec<String>> {
     Ok(out)
 }
 
+/// `tailpack keygen PREFIX`: writes an Ed25519 key pair.
+pub fn keygen(prefix: &Path) -> Result<String> {
+    crate::signoff::keygen(prefix)
+}
+
+/// `tailpack sign PACK --role R --key KEYFILE [--name N]`.
+pub fn sign(pack: &Path, role: &str, key: &Path, name: Option<&str>) -> Result<String> {
+    let text = crate::signoff::sign(pack, role, key, name, chrono::Utc::now())?;
+    if let Some(root) = pack.parent().and_then(Path::parent).and_then(Path::parent) {
+        crate::archive::write_index(root)?;
+    }
+    Ok(text)
+}
+
 /// `tailpack check`: validates config and data and returns the data-quality report.
 pub fn check(config: &Path, opts: &RunOptions) -> Result<String> {
     let (cfg, data) = run::prepare(config, opts)?;

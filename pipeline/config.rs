@@ -24,6 +24,23 @@ pub struct RawConfig {
     pub analysis: AnalysisOptions,
     pub stress: RawStress,
     pub report: RawReport,
+    pub signoff: RawSignoff,
+}
+
+/// Sign-off roles: who must sign a pack before it can be finalised, with the public keys trusted per role.
+#[derive(Debug, Deserialize, Default, Clone)]
+#[serde(deny_unknown_fields, default)]
+pub struct RawSignoff {
+    pub roles: Vec<SignRole>,
+}
+
+/// One required role with its printed title and trusted Ed25519 public keys (64 hex digits each).
+#[derive(Debug, Deserialize, Default, Clone, serde::Serialize)]
+#[serde(deny_unknown_fields, default)]
+pub struct SignRole {
+    pub role: String,
+    pub title: Option<String>,
+    pub keys: Vec<String>,
 }
 
 /// Frontier and walk-forward backtest settings.
@@ -370,6 +387,8 @@ pub struct Config {
     pub stress_windows: usize,
     /// Custom template folder (`report.templates`), resolved and checked to be a folder.
     pub templates: Option<PathBuf>,
+    /// Required sign-off roles, in signing order.
+    pub signoff: Vec<SignRole>,
 }
 
 /// A stress file: named instantaneous shocks.
@@ -432,7 +451,7 @@ const KNOWN_KEYS: &[&str] = &[
     "max", "max_return", "min_cvar", "cvar_cap", "value", "times_current", "times_min", "return_floor",
     "plus_current", "backend", "root", "analysis", "stress", "frontier_points", "backtest_years",
     "daily_var_check", "file", "loss_limit", "historical_windows", "shocks", "description", "moves", "asset",
-    "return", "report", "templates",
+    "return", "report", "templates", "signoff", "roles", "role", "title", "keys",
 ];
 
 /// Reads and validates a config file.
@@ -542,6 +561,7 @@ pub fn resolve(path: &Path, raw: RawConfig) -> Result<Config> {
         return Err(bad("fund.short_name", "must contain at least one letter or digit".into()));
     }
     check_analysis(&raw.analysis, &raw.stress).map_err(|(k, m)| bad(k, m))?;
+    check_signoff(&raw.signoff).map_err(|(k, m)| bad(&k, m))?;
     for (key, file) in [("data.prices", Some(prices)), ("data.assets", Some(assets)), ("data.holdings", raw.data.holdings.as_ref()), ("stress.file", raw.stress.file.as_ref())] {
         if let Some(f) = file {
             let full = join(f);
@@ -581,6 +601,7 @@ pub fn resolve(path: &Path, raw: RawConfig) -> Result<Config> {
         stress_file: raw.stress.file.as_ref().map(&join),
         stress_loss_limit: raw.stress.loss_limit,
         stress_windows: raw.stress.historical_windows,
+        signoff: raw.signoff.roles,
     })
 }
 
@@ -602,6 +623,25 @@ fn check_scenarios(s: &ScenarioOptions) -> std::result::Result<(), KeyError> {
         Some(h) if !(h.is_finite() && h > 0.0) => Err(("scenarios.half_life", format!("must be a positive number of observations, got {h}"))),
         _ => Ok(()),
     }
+}
+
+fn check_signoff(s: &RawSignoff) -> std::result::Result<(), (String, String)> {
+    for (i, r) in s.roles.iter().enumerate() {
+        let key = |k: &str| format!("signoff.roles[{i}].{k}");
+        if r.role.trim().is_empty() {
+            return Err((key("role"), "is required (e.g. preparer, risk_reviewer, approver)".into()));
+        }
+        if s.roles.iter().filter(|o| o.role == r.role).count() > 1 {
+            return Err((key("role"), format!("role `{}` is listed twice", r.role)));
+        }
+        if r.keys.is_empty() {
+            return Err((key("keys"), format!("role `{}` needs at least one trusted public key (made by `tailpack keygen`)", r.role)));
+        }
+        if let Some(k) = r.keys.iter().find(|k| k.len() != 64 || !k.chars().all(|c| c.is_ascii_hexdigit())) {
+            return Err((key("keys"), format!("`{k}` is not an Ed25519 public key (64 hex digits)")));
+        }
+    }
+    Ok(())
 }
 
 fn check_analysis(a: &AnalysisOptions, s: &RawStress) -> std::result::Result<(), KeyError> {

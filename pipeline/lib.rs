@@ -11,6 +11,7 @@
 //! - [`report`]: the committee PDF, typeset in-process by typst from the run's results (PDF/A-2b).
 //! - [`pack`]: writes the pack folder (scenarios, results, weights, summary, PDF).
 //! - [`archive`]: pack identity, revisions, manifest, index, lock and verification.
+//! - [`signoff`]: Ed25519 keys, signed statements over a pack, and their checks.
 //! - [`commands`]: one function per CLI subcommand; the binary is a thin layer over these.
 //!
 //! Cross-cutting: [`error`] (typed errors, exit codes, path-naming file helpers), [`diag`] (findings that
@@ -30,3 +31,4 @@ pub mod report;
 pub mod risk;
 pub mod run;
 pub mod scenarios;
+pub mod signoff;

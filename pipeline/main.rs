@@ -35,6 +35,24 @@ enum Command {
         #[arg(long, default_value_t = 600)]
         lock_timeout: u64,
     },
+    /// Make an Ed25519 key pair for signing packs: PREFIX.key (secret) and PREFIX.pub (public).
+    Keygen {
+        /// Path prefix of the two files, e.g. keys/risk-reviewer.
+        prefix: PathBuf,
+    },
+    /// Sign a pack for one role with that role's key; refused if the pack fails verify or the role signed.
+    Sign {
+        pack: PathBuf,
+        /// The role signing, as listed under signoff.roles in the config.
+        #[arg(long)]
+        role: String,
+        /// The secret key file made by `tailpack keygen`.
+        #[arg(long)]
+        key: PathBuf,
+        /// The signer's name as printed on the sign-off page (default: the role).
+        #[arg(long)]
+        name: Option<String>,
+    },
     /// Recompute every digest of a pack; any changed, missing or unlisted file fails (exit 7).
     Verify {
         /// The pack folder, e.g. out/<fund>/<as-of>/r1.
@@ -63,6 +81,8 @@ fn main() {
             let opts = RunOptions { as_of: *as_of, out: out.clone(), backend: *solver, lock_timeout: std::time::Duration::from_secs(*lock_timeout) };
             tailpack::commands::run(config, &opts, &tailpack::commands::Progress::new(*quiet)).map(|r| (r.text, r.code))
         }
+        Command::Keygen { prefix } => tailpack::commands::keygen(prefix).map(|t| (t, 0)),
+        Command::Sign { pack, role, key, name } => tailpack::commands::sign(pack, role, key, name.as_deref()).map(|t| (t, 0)),
         Command::Verify { pack, rerun } => tailpack::commands::verify(pack, *rerun).map(|t| (t, 0)),
         Command::Check { config, as_of } => tailpack::commands::check(config, &RunOptions { as_of: *as_of, ..Default::default() }).map(|t| (t, 0)),
         Command::DemoData { dir } => tailpack::commands::demo_data(dir).map(|t| (t, 0)),

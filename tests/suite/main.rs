@@ -8,3 +8,4 @@ mod demo;
 mod models;
 mod report;
 mod risk;
+mod signoff;
