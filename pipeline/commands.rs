@@ -86,19 +86,72 @@ pub fn verify(pack: &Path, rerun: bool) -> Result<String> {
     Ok(format!("pack {} verified: {how} (pack id {id})\n", pack.display()))
 }
 
-fn rerun_differences(pack: &Path) -> Result<Vec<String>> {
+/// Recomputes a pack's run from its archived inputs alone.
+fn recompute(pack: &Path, scratch: &Path) -> Result<(run::RunResult, crate::archive::Plan)> {
     let mut cfg = crate::config::load_archived(&pack.join("inputs"))?;
     let run: serde_json::Value = serde_json::from_slice(&crate::error::fs::read(&pack.join("inputs/run.json"))?).unwrap_or_default();
     let as_of = run["as_of"].as_str().and_then(|d| d.parse().ok());
     if let Some(b) = run["backend"].as_str().and_then(|b| b.parse().ok()) {
         cfg.backend = b;
     }
-    let scratch = std::env::temp_dir().join(format!("tailpack-rerun-{}", std::process::id()));
-    let _ = std::fs::remove_dir_all(&scratch);
-    cfg.out_root = scratch.clone();
+    cfg.out_root = scratch.to_path_buf();
     let data = crate::ingest::load(&cfg, as_of)?;
     let plan = crate::archive::plan(&cfg, data.as_of)?;
-    let result = run::compute(cfg, data)?;
+    Ok((run::compute(cfg, data)?, plan))
+}
+
+/// `tailpack finalize PACK`: once every required role has signed, renders `pack-final.pdf` (status FINAL,
+/// sign-off page filled) and records its digest; the pack is immutable from then on.
+pub fn finalize(pack: &Path) -> Result<String> {
+    let refuse = |why: String| crate::error::Error::Run(format!("cannot finalise {}: {why}", pack.display()));
+    let problems = crate::archive::verify(pack)?;
+    if let Some(p) = problems.first() {
+        return Err(refuse(format!("the pack fails verification ({}: {})", p.file, p.problem)));
+    }
+    let mut rec = crate::signoff::record(pack)?;
+    if rec.finalised.is_some() {
+        return Err(refuse("it is already final; a final pack is immutable".into()));
+    }
+    let roles = crate::signoff::roles(pack)?;
+    if roles.is_empty() {
+        return Err(refuse("its config lists no sign-off roles (signoff.roles)".into()));
+    }
+    let signed = crate::signoff::signed_roles(&rec);
+    let missing: Vec<&str> = roles.iter().filter(|r| !signed.contains(&r.role)).map(|r| r.role.as_str()).collect();
+    if !missing.is_empty() {
+        return Err(refuse(format!("role(s) not yet signed: {}", missing.join(", "))));
+    }
+    let scratch = std::env::temp_dir().join(format!("tailpack-final-{}", std::process::id()));
+    let (result, plan) = recompute(pack, &scratch)?;
+    let mut results: serde_json::Value = serde_json::from_slice(&crate::error::fs::read(&pack.join("results.json"))?).unwrap_or_default();
+    results["signoff"] = final_block(&rec, &roles);
+    let pdf = crate::report::render(&result, &results, &plan.pack_id)?;
+    let name = crate::archive::FINAL_PDF;
+    crate::error::fs::write(&pack.join(name), &pdf)?;
+    rec.finalised = Some(crate::signoff::Final { pdf: name.into(), sha256: crate::pack::hex(&<sha2::Sha256 as sha2::Digest>::digest(&pdf)) });
+    crate::signoff::save(pack, &rec)?;
+    if let Some(root) = pack.parent().and_then(Path::parent).and_then(Path::parent) {
+        crate::archive::write_index(root)?;
+    }
+    Ok(format!("finalised {}: {name} written; the pack is now immutable\n", pack.display()))
+}
+
+/// The sign-off facts the final PDF prints: status FINAL and one row per role.
+fn final_block(rec: &crate::signoff::Record, roles: &[crate::config::SignRole]) -> serde_json::Value {
+    let st = crate::signoff::statements(rec);
+    let rows: Vec<serde_json::Value> = roles.iter().map(|r| {
+        let s = st.iter().find(|s| s.role == r.role);
+        serde_json::json!({"role": r.role, "title": r.title.clone().unwrap_or_else(|| r.role.clone()),
+            "name": s.map(|s| s.name.clone()), "signed_at": s.map(|s| s.signed_at.clone()),
+            "fingerprint": s.map(|s| crate::signoff::fingerprint(&s.public_key))})
+    }).collect();
+    serde_json::json!({"status": "FINAL", "roles": rows})
+}
+
+fn rerun_differences(pack: &Path) -> Result<Vec<String>> {
+    let scratch = std::env::temp_dir().join(format!("tailpack-rerun-{}", std::process::id()));
+    let _ = std::fs::remove_dir_all(&scratch);
+    let (result, plan) = recompute(pack, &scratch)?;
     crate::error::fs::create_dir_all(&scratch)?;
     crate::pack::fill(&result, &scratch, &plan)?;
     let mut out = Vec::new();

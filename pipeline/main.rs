@@ -53,6 +53,8 @@ enum Command {
         #[arg(long)]
         name: Option<String>,
     },
+    /// Render the final PDF once every required role has signed; the pack is immutable afterwards.
+    Finalize { pack: PathBuf },
     /// Recompute every digest of a pack; any changed, missing or unlisted file fails (exit 7).
     Verify {
         /// The pack folder, e.g. out/<fund>/<as-of>/r1.
@@ -83,6 +85,7 @@ fn main() {
         }
         Command::Keygen { prefix } => tailpack::commands::keygen(prefix).map(|t| (t, 0)),
         Command::Sign { pack, role, key, name } => tailpack::commands::sign(pack, role, key, name.as_deref()).map(|t| (t, 0)),
+        Command::Finalize { pack } => tailpack::commands::finalize(pack).map(|t| (t, 0)),
         Command::Verify { pack, rerun } => tailpack::commands::verify(pack, *rerun).map(|t| (t, 0)),
         Command::Check { config, as_of } => tailpack::commands::check(config, &RunOptions { as_of: *as_of, ..Default::default() }).map(|t| (t, 0)),
         Command::DemoData { dir } => tailpack::commands::demo_data(dir).map(|t| (t, 0)),

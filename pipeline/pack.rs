@@ -189,10 +189,22 @@ pub fn results_json(r: &RunResult, inputs: &[InputFile], pack_id: &str) -> Value
         "checks": r.checks,
         "solver": {"backend": r.backend.name(), "description": crate::models::lp::backend_description(r.backend)},
         "inputs": inputs,
+        "signoff": signoff_json(r),
         "frontier": frontier_json(r),
         "stress": stress_json(r),
         "backtest": backtest_json(r),
     })
+}
+
+/// The draft's sign-off block: the configured roles, unsigned (`finalize` renders the signed version).
+fn signoff_json(r: &RunResult) -> Value {
+    if r.config.signoff.is_empty() {
+        return Value::Null;
+    }
+    let roles: Vec<Value> = r.config.signoff.iter().map(|s| json!({
+        "role": s.role, "title": s.title.clone().unwrap_or_else(|| s.role.clone()), "name": null, "signed_at": null, "fingerprint": null,
+    })).collect();
+    json!({"status": "DRAFT", "roles": roles})
 }
 
 fn frontier_json(r: &RunResult) -> Value {

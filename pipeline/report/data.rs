@@ -66,7 +66,12 @@ pub struct Meta {
     pub as_of_long: String,
     pub prepared_for: Option<String>,
     pub prepared_by: Option<String>,
-    pub status: &'static str,
+    /// DRAFT, or FINAL in the PDF that `finalize` renders after every role has signed.
+    pub status: String,
+    /// True in the final PDF.
+    pub is_final: bool,
+    /// Sign-off rows: role title, name, UTC time and key fingerprint (blank until signed).
+    pub signoff: Vec<Value>,
     pub pack_id: String,
     pub pack_id_short: String,
     pub tool: String,
@@ -214,7 +219,7 @@ pub struct Input {
 pub fn build(r: &RunResult, results: &Value, pack_id: &str) -> Report {
     let views = views(r);
     Report {
-        meta: meta(r, pack_id),
+        meta: meta(r, results, pack_id),
         portfolios: views.iter().map(|v| portfolio(r, v)).collect(),
         levels: r.config.levels.iter().map(|&c| format::level(c)).collect(),
         summary: text::summary(r, &views),
@@ -229,7 +234,7 @@ pub fn build(r: &RunResult, results: &Value, pack_id: &str) -> Report {
         scenarios: scenarios(r),
         quality: quality(r),
         inputs: inputs(results),
-        run: run_facts(r, pack_id),
+        run: run_facts(r, pack_id, results["signoff"]["status"] == "FINAL"),
     }
 }
 
@@ -238,7 +243,7 @@ pub fn short_id(pack_id: &str) -> String {
     pack_id.chars().take(12).collect()
 }
 
-fn meta(r: &RunResult, pack_id: &str) -> Meta {
+fn meta(r: &RunResult, results: &Value, pack_id: &str) -> Meta {
     let c = &r.config;
     Meta {
         fund: c.fund.name.clone(),
@@ -247,7 +252,9 @@ fn meta(r: &RunResult, pack_id: &str) -> Meta {
         as_of_long: format::long_date(r.data.as_of),
         prepared_for: c.fund.prepared_for.clone(),
         prepared_by: c.fund.prepared_by.clone(),
-        status: "DRAFT",
+        status: results["signoff"]["status"].as_str().unwrap_or("DRAFT").to_string(),
+        is_final: results["signoff"]["status"] == "FINAL",
+        signoff: results["signoff"]["roles"].as_array().cloned().unwrap_or_default(),
         pack_id: pack_id.into(),
         pack_id_short: short_id(pack_id),
         tool: format!("tailpack {}", env!("CARGO_PKG_VERSION")),
@@ -451,14 +458,14 @@ fn inputs(results: &Value) -> Vec<Input> {
     }).collect()
 }
 
-fn run_facts(r: &RunResult, pack_id: &str) -> Vec<Pair> {
+fn run_facts(r: &RunResult, pack_id: &str, is_final: bool) -> Vec<Pair> {
     let v = typst::utils::version();
     vec![
         pair("Pack identifier", pack_id),
         pair("Tool", format!("tailpack {}", env!("CARGO_PKG_VERSION"))),
         pair("Typesetting", format!("typst {}.{}.{}", v.major(), v.minor(), v.patch())),
         pair("LP solver", crate::models::lp::backend_description(r.backend).to_string()),
-        pair("Status", "DRAFT (not signed off)"),
+        pair("Status", if is_final { "FINAL (every required role has signed)" } else { "DRAFT (not signed off)" }),
     ]
 }
 

@@ -93,3 +93,33 @@ fn signing_after_an_input_copy_changed_is_refused() {
     assert_ne!(ran.code, 0);
     assert!(ran.stderr.contains("fails verification") && ran.stderr.contains("inputs/holdings.csv"), "{}", ran.stderr);
 }
+
+#[test]
+fn finalize_needs_every_role_then_the_pack_is_immutable() {
+    let s = setup();
+    let p = s.pack.to_str().unwrap();
+    assert_eq!(sign(&s, "preparer", "preparer").code, 0);
+    let early = s.f.run(&["finalize", p]);
+    assert!(early.code != 0 && early.stderr.contains("not yet signed: risk_reviewer"), "{}", early.stderr);
+    assert_eq!(sign(&s, "risk_reviewer", "reviewer").code, 0);
+    let fin = s.f.run(&["finalize", p]);
+    assert_eq!(fin.code, 0, "{}", fin.stderr);
+    // The final PDF, read back by poppler's pdftotext, says FINAL and names the signers with fingerprints.
+    let text = super::common::pdf_text(&s.pack.join("pack-final.pdf"));
+    assert!(text.contains("FINAL") && text.contains("A. Signer") && text.contains("Reviewed by"), "{text}");
+    let pubkey = std::fs::read_to_string(s.f.path("keys/reviewer.pub")).unwrap();
+    assert!(text.contains(&tailpack::signoff::fingerprint(pubkey.trim())));
+    assert_eq!(s.f.run(&["verify", p]).code, 0);
+    let index = std::fs::read_to_string(s.f.path("out/index.csv")).unwrap();
+    assert!(index.contains(",final,"), "{index}");
+    // Immutable: no further signature, no second finalize; a changed final PDF fails verify.
+    assert!(sign(&s, "preparer", "preparer").stderr.contains("final pack is immutable"));
+    assert!(s.f.run(&["finalize", p]).stderr.contains("already final"));
+    let pdf = s.pack.join("pack-final.pdf");
+    let mut bytes = std::fs::read(&pdf).unwrap();
+    bytes.push(b'\n');
+    std::fs::write(&pdf, bytes).unwrap();
+    let ran = s.f.run(&["verify", p]);
+    assert_eq!(ran.code, 7);
+    assert!(ran.stderr.contains("pack-final.pdf"), "{}", ran.stderr);
+}
