@@ -74,7 +74,7 @@ pub fn plan(cfg: &Config, as_of: NaiveDate) -> Result<Plan> {
         files.push(archived("stress", "stress.yaml".into(), Some(s.clone()), fs::read(s)?));
     }
     files.extend(templates(cfg)?);
-    let run = json!({"as_of": as_of.to_string(), "backend": cfg.backend.name(), "tool": format!("tailpack {}", env!("CARGO_PKG_VERSION"))});
+    let run = json!({"as_of": as_of.to_string(), "backend": cfg.backend.name(), "fund": cfg.short_name, "tool": format!("tailpack {}", env!("CARGO_PKG_VERSION"))});
     files.push(archived("run", "run.json".into(), None, (serde_json::to_string_pretty(&run).expect("json") + "\n").into_bytes()));
     files.sort_by(|a, b| a.name.cmp(&b.name));
     let listing: String = files.iter().map(|f| format!("{}  inputs/{}\n", f.sha256, f.name)).collect();
@@ -295,7 +295,8 @@ fn sorted_dirs(dir: &Path) -> Vec<PathBuf> {
 }
 
 fn atomic_write(path: &Path, bytes: &[u8]) -> Result<()> {
-    let tmp = path.with_extension("tmp");
+    // A name unique to this process and thread: funds of one run write the index concurrently.
+    let tmp = path.with_extension(format!("{}-{:?}.tmp", std::process::id(), std::thread::current().id()).replace(['(', ')'], ""));
     fs::write(&tmp, bytes)?;
     fs::rename(&tmp, path)
 }

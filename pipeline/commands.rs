@@ -48,13 +48,33 @@ pub struct RunReport {
 }
 
 /// `tailpack run`: builds the pack as the next revision, or does nothing when a pack with identical
-/// inputs exists.
+/// inputs exists. A multi-fund config builds one pack per fund in parallel; a failing fund does not stop
+/// the others, and the worst outcome sets the exit code.
 pub fn run(config: &Path, opts: &RunOptions, progress: &Progress) -> Result<RunReport> {
     progress.step("reading config and data");
-    let (cfg, data) = run::prepare(config, opts)?;
+    let mut funds = crate::config::load_all(config)?;
+    if funds.len() == 1 {
+        let cfg = funds.remove(0);
+        let root = opts.out.clone().unwrap_or_else(|| cfg.out_root.clone());
+        let _lock = crate::archive::lock(&root, opts.lock_timeout)?;
+        return run_fund(cfg, opts, progress);
+    }
+    let root = opts.out.clone().unwrap_or_else(|| funds[0].out_root.clone());
+    let _lock = crate::archive::lock(&root, opts.lock_timeout)?;
+    progress.step(&format!("building {} fund packs in parallel", funds.len()));
+    use rayon::prelude::*;
+    let quiet = Progress::new(true);
+    let outcomes: Vec<(String, Result<RunReport>)> = funds.into_par_iter()
+        .map(|cfg| (cfg.short_name.clone(), run_fund(cfg, opts, &quiet))).collect();
+    crate::archive::write_index(&root)?;
+    progress.finish();
+    Ok(multi_summary(&outcomes))
+}
+
+/// One fund: plan, no-op check, compute, write (the caller holds the archive lock).
+fn run_fund(cfg: crate::config::Config, opts: &RunOptions, progress: &Progress) -> Result<RunReport> {
+    let (cfg, data) = run::prepare_fund(cfg, opts)?;
     let plan = crate::archive::plan(&cfg, data.as_of)?;
-    progress.step("waiting for the archive lock");
-    let _lock = crate::archive::lock(&cfg.out_root, opts.lock_timeout)?;
     if let Some(existing) = crate::archive::identical(&plan) {
         progress.finish();
         let shown = std::fs::canonicalize(&existing).unwrap_or(existing);
@@ -69,6 +89,31 @@ pub fn run(config: &Path, opts: &RunOptions, progress: &Progress) -> Result<RunR
     let failed = result.models.iter().any(|m| m.outcome.status == crate::models::Status::SolverError);
     let code = if failed { crate::error::EXIT_SOLVER } else { crate::error::EXIT_OK };
     Ok(RunReport { text: format!("{text}{}\n", dir.display()), code })
+}
+
+/// The end-of-run summary of a multi-fund run: one line per fund; the exit code is the most severe
+/// outcome (errors first, then solver failures, then success; all-unchanged gives "nothing to do").
+fn multi_summary(outcomes: &[(String, Result<RunReport>)]) -> RunReport {
+    let mut text = String::new();
+    let mut codes = Vec::new();
+    for (name, o) in outcomes {
+        match o {
+            Ok(r) => {
+                text.push_str(&format!("{name}: {} {}\n", if r.code == crate::error::EXIT_NOTHING_TO_DO { "unchanged" } else if r.code == 0 { "ok" } else { "solver failure" }, r.text.lines().last().unwrap_or("")));
+                codes.push(r.code);
+            }
+            Err(e) => {
+                text.push_str(&format!("{name}: FAILED: {}\n", e.to_string().replace('\n', " ")));
+                codes.push(e.exit_code());
+            }
+        }
+    }
+    let rank = |c: i32| match c { 0 => 0, 5 => -1, 4 => 1, _ => 2 };
+    let code = if codes.iter().all(|c| *c == crate::error::EXIT_NOTHING_TO_DO) { crate::error::EXIT_NOTHING_TO_DO }
+        else { codes.iter().copied().filter(|c| *c != crate::error::EXIT_NOTHING_TO_DO).max_by_key(|c| (rank(*c), *c)).unwrap_or(0) };
+    let failed = codes.iter().filter(|c| !matches!(**c, 0 | 5)).count();
+    text.push_str(&format!("{} funds: {} ok or unchanged, {failed} with problems\n", outcomes.len(), outcomes.len() - failed));
+    RunReport { text, code }
 }
 
 /// `tailpack verify`: recomputes every digest; with `rerun`, also re-runs from the archived inputs and
@@ -184,11 +229,19 @@ pub fn sign(pack: &Path, role: &str, key: &Path, name: Option<&str>) -> Result<S
 
 /// `tailpack check`: validates config and data and returns the data-quality report.
 pub fn check(config: &Path, opts: &RunOptions) -> Result<String> {
-    let (cfg, data) = run::prepare(config, opts)?;
+    let mut out = String::new();
+    for cfg in crate::config::load_all(config)? {
+        out.push_str(&check_fund(cfg, opts)?);
+    }
+    Ok(out)
+}
+
+fn check_fund(cfg: crate::config::Config, opts: &RunOptions) -> Result<String> {
+    let (cfg, data) = run::prepare_fund(cfg, opts)?;
     let q = &data.quality;
     let mut out = format!(
-        "config {} is valid\nprices {} ({} layout): {} to {}; as-of {}; scenario window {} to {} ({} observations)\nfill policy: {}\n",
-        cfg.path.display(), cfg.prices.display(), data.layout.word(), data.history.0, data.history.1, data.as_of,
+        "fund {}: config {} is valid\nprices {} ({} layout): {} to {}; as-of {}; scenario window {} to {} ({} observations)\nfill policy: {}\n",
+        cfg.short_name, cfg.path.display(), cfg.prices.display(), data.layout.word(), data.history.0, data.history.1, data.as_of,
         q.window_start, q.window_end, q.observations, q.fill_policy);
     out.push_str(&format!("{:<14} {:>8} {:>7} {:>12} {:>12} {:>8} {}\n", "asset", "missing", "filled", "longest gap", "stale run", "extreme", "status"));
     for a in &q.assets {

@@ -9,7 +9,7 @@ use serde::Deserialize;
 use std::path::{Path, PathBuf};
 
 /// The config file as written. Every struct rejects unknown keys.
-#[derive(Debug, Deserialize, Default)]
+#[derive(Debug, Deserialize, Default, Clone)]
 #[serde(deny_unknown_fields, default)]
 pub struct RawConfig {
     pub fund: RawFund,
@@ -25,6 +25,20 @@ pub struct RawConfig {
     pub stress: RawStress,
     pub report: RawReport,
     pub signoff: RawSignoff,
+    /// Several funds (mandates) in one config: each entry overrides `fund` and, where given, the holdings,
+    /// limits, models and sign-off of the shared settings; prices and asset metadata are shared.
+    pub funds: Vec<RawMandate>,
+}
+
+/// One fund of a multi-fund config.
+#[derive(Debug, Deserialize, Default, Clone)]
+#[serde(deny_unknown_fields, default)]
+pub struct RawMandate {
+    pub fund: RawFund,
+    pub holdings: Option<PathBuf>,
+    pub limits: Option<RawLimits>,
+    pub models: Option<RawModels>,
+    pub signoff: Option<RawSignoff>,
 }
 
 /// Sign-off roles: who must sign a pack before it can be finalised, with the public keys trusted per role.
@@ -62,7 +76,7 @@ impl Default for AnalysisOptions {
 }
 
 /// The stress set: a file of named shocks, a loss limit and the number of historical windows replayed.
-#[derive(Debug, Deserialize)]
+#[derive(Debug, Deserialize, Clone)]
 #[serde(deny_unknown_fields, default)]
 pub struct RawStress {
     /// YAML file of named shocks, relative to the config file.
@@ -91,7 +105,7 @@ pub struct RawFund {
 }
 
 /// Where the input files are.
-#[derive(Debug, Deserialize, Default)]
+#[derive(Debug, Deserialize, Default, Clone)]
 #[serde(deny_unknown_fields, default)]
 pub struct RawData {
     pub prices: Option<PathBuf>,
@@ -166,7 +180,7 @@ impl Default for ScenarioOptions {
 }
 
 /// Confidence levels.
-#[derive(Debug, Deserialize)]
+#[derive(Debug, Deserialize, Clone)]
 #[serde(deny_unknown_fields, default)]
 pub struct RawRisk {
     /// Levels reported for every portfolio.
@@ -182,7 +196,7 @@ impl Default for RawRisk {
 }
 
 /// The feasible set shared by all models.
-#[derive(Debug, Deserialize)]
+#[derive(Debug, Deserialize, Clone)]
 #[serde(deny_unknown_fields, default)]
 pub struct RawLimits {
     /// Lower weight bound for assets whose metadata gives none.
@@ -203,7 +217,7 @@ impl Default for RawLimits {
 }
 
 /// A group limit: members chosen by a metadata tag (`class:equity`) or listed.
-#[derive(Debug, Deserialize, Default)]
+#[derive(Debug, Deserialize, Default, Clone)]
 #[serde(deny_unknown_fields, default)]
 pub struct RawGroup {
     pub name: String,
@@ -216,7 +230,7 @@ pub struct RawGroup {
 }
 
 /// Model-specific settings.
-#[derive(Debug, Deserialize, Default)]
+#[derive(Debug, Deserialize, Default, Clone)]
 #[serde(deny_unknown_fields, default)]
 pub struct RawModels {
     pub max_return: RawMaxReturn,
@@ -224,7 +238,7 @@ pub struct RawModels {
 }
 
 /// Settings of the max-return model.
-#[derive(Debug, Deserialize)]
+#[derive(Debug, Deserialize, Clone)]
 #[serde(deny_unknown_fields, default)]
 pub struct RawMaxReturn {
     pub cvar_cap: RawCap,
@@ -237,7 +251,7 @@ impl Default for RawMaxReturn {
 }
 
 /// A CVaR cap: exactly one of the three forms.
-#[derive(Debug, Deserialize, Default)]
+#[derive(Debug, Deserialize, Default, Clone)]
 #[serde(deny_unknown_fields, default)]
 pub struct RawCap {
     /// Absolute cap on CVaR (a loss fraction, 0.05 = 5%).
@@ -249,7 +263,7 @@ pub struct RawCap {
 }
 
 /// Settings of the min-CVaR model.
-#[derive(Debug, Deserialize)]
+#[derive(Debug, Deserialize, Clone)]
 #[serde(deny_unknown_fields, default)]
 pub struct RawMinCvar {
     pub return_floor: RawFloor,
@@ -262,7 +276,7 @@ impl Default for RawMinCvar {
 }
 
 /// An expected-return floor: exactly one of the two forms.
-#[derive(Debug, Deserialize, Default)]
+#[derive(Debug, Deserialize, Default, Clone)]
 #[serde(deny_unknown_fields, default)]
 pub struct RawFloor {
     /// Absolute floor on expected horizon return.
@@ -311,7 +325,7 @@ pub struct SolverOptions {
 }
 
 /// Output settings.
-#[derive(Debug, Deserialize, Default)]
+#[derive(Debug, Deserialize, Default, Clone)]
 #[serde(deny_unknown_fields, default)]
 pub struct RawOutput {
     /// Pack root, relative to the config file; default `out` beside the current folder.
@@ -319,7 +333,7 @@ pub struct RawOutput {
 }
 
 /// Settings of the PDF pack.
-#[derive(Debug, Deserialize, Default)]
+#[derive(Debug, Deserialize, Default, Clone)]
 #[serde(deny_unknown_fields, default)]
 pub struct RawReport {
     /// Folder of custom typst templates, relative to the config file; its files replace the built-in
@@ -451,14 +465,60 @@ const KNOWN_KEYS: &[&str] = &[
     "max", "max_return", "min_cvar", "cvar_cap", "value", "times_current", "times_min", "return_floor",
     "plus_current", "backend", "root", "analysis", "stress", "frontier_points", "backtest_years",
     "daily_var_check", "file", "loss_limit", "historical_windows", "shocks", "description", "moves", "asset",
-    "return", "report", "templates", "signoff", "roles", "role", "title", "keys",
+    "return", "report", "templates", "signoff", "roles", "role", "title", "keys", "funds",
 ];
 
 /// Reads and validates a config file.
 pub fn load(path: &Path) -> Result<Config> {
+    let mut all = load_all(path)?;
+    if all.len() > 1 {
+        return Err(Error::config(path, format!("lists {} funds; this command takes a single-fund config", all.len())));
+    }
+    Ok(all.remove(0))
+}
+
+/// Reads a config and resolves one [`Config`] per fund (one for a single-fund config).
+pub fn load_all(path: &Path) -> Result<Vec<Config>> {
     let text = crate::error::fs::read_to_string(path)?;
     let raw = parse(path, &text)?;
-    resolve(path, raw)
+    expand(path, raw)
+}
+
+fn expand(path: &Path, raw: RawConfig) -> Result<Vec<Config>> {
+    if raw.funds.is_empty() {
+        return Ok(vec![resolve(path, raw)?]);
+    }
+    let configs: Vec<Config> = raw.funds.iter().enumerate().map(|(i, m)| {
+        let mut one = raw.clone();
+        one.funds.clear();
+        one.fund = m.fund.clone();
+        if m.holdings.is_some() {
+            one.data.holdings = m.holdings.clone();
+        }
+        if let Some(l) = &m.limits { one.limits = l.clone(); }
+        if let Some(mo) = &m.models { one.models = mo.clone(); }
+        if let Some(so) = &m.signoff { one.signoff = so.clone(); }
+        resolve(path, one).map_err(|e| match e {
+            Error::Config { path, message } => Error::Config { path, message: format!("funds[{i}]: {message}") },
+            other => other,
+        })
+    }).collect::<Result<_>>()?;
+    for (i, c) in configs.iter().enumerate() {
+        if configs[..i].iter().any(|o| o.short_name == c.short_name) {
+            return Err(Error::config(path, format!("funds[{i}]: short name `{}` is used twice; give each fund its own fund.short_name", c.short_name)));
+        }
+    }
+    Ok(configs)
+}
+
+/// One fund of a (possibly multi-fund) config, by short name.
+pub fn load_fund(path: &Path, short_name: Option<&str>) -> Result<Config> {
+    let all = load_all(path)?;
+    match short_name {
+        None if all.len() == 1 => Ok(all.into_iter().next().expect("one")),
+        None => Err(Error::config(path, "lists several funds; name one".to_string())),
+        Some(n) => all.into_iter().find(|c| c.short_name == n).ok_or_else(|| Error::config(path, format!("has no fund `{n}`"))),
+    }
 }
 
 /// Loads the config archived in a pack's `inputs/` folder, pointing every input at its archived copy
@@ -479,7 +539,16 @@ pub fn load_archived(inputs: &Path) -> Result<Config> {
     raw.data.holdings = raw.data.holdings.and(find("holdings"));
     raw.stress.file = raw.stress.file.and(find("stress"));
     raw.report.templates = inputs.join("templates").is_dir().then(|| PathBuf::from("templates"));
-    resolve(&path, raw)
+    for m in &mut raw.funds {
+        m.holdings = m.holdings.as_ref().and(find("holdings"));
+    }
+    let run: serde_json::Value = std::fs::read(inputs.join("run.json")).ok().and_then(|b| serde_json::from_slice(&b).ok()).unwrap_or_default();
+    let wanted = run["fund"].as_str().map(str::to_string);
+    let all = expand(&path, raw)?;
+    match wanted {
+        Some(n) => all.into_iter().find(|c| c.short_name == n).ok_or_else(|| Error::config(&path, format!("has no fund `{n}`"))),
+        None => all.into_iter().next().ok_or_else(|| Error::config(&path, "lists no fund")),
+    }
 }
 
 /// Parses YAML text into the raw config, turning serde errors into messages with line and a suggestion.

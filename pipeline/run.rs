@@ -63,7 +63,11 @@ pub struct RunResult {
 
 /// Loads and validates config and data (the `check` command stops here).
 pub fn prepare(config_path: &std::path::Path, opts: &RunOptions) -> Result<(Config, MarketData)> {
-    let mut cfg = config::load(config_path)?;
+    prepare_fund(config::load(config_path)?, opts)
+}
+
+/// Applies the command-line overrides to one fund's config and loads its data.
+pub fn prepare_fund(mut cfg: Config, opts: &RunOptions) -> Result<(Config, MarketData)> {
     if let Some(out) = &opts.out {
         cfg.out_root = out.clone();
     }

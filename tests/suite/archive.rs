@@ -122,3 +122,30 @@ fn a_held_archive_lock_makes_the_second_run_wait_then_exit_6() {
     lock.unlock().unwrap();
     assert_eq!(f.run(&["run", "fund.yaml", "--quiet", "--lock-timeout", "1"]).code, 0);
 }
+
+#[test]
+fn several_funds_build_in_parallel_and_one_failure_does_not_stop_the_others() {
+    let f = Fixture::new();
+    let m = Market::new(4, "2021-01-01", "2024-06-28", 29);
+    f.small_fund(&m, &config("analysis:\n  backtest_years: 0\n"));
+    f.write("data/holdings-b.csv", "asset,weight\nAS01,0.7\nAS02,0.3\n");
+    f.write("data/holdings-bad.csv", "asset,weight\nAS01,0.5\nNOPE,0.5\n");
+    let base = std::fs::read_to_string(f.path("fund.yaml")).unwrap();
+    let multi = format!("{base}funds:\n  - fund: {{ name: Alpha Mandate (fictional), short_name: alpha }}\n  - fund: {{ name: Beta Mandate (fictional), short_name: beta }}\n    holdings: data/holdings-b.csv\n    limits: {{ turnover_max: 0.5 }}\n  - fund: {{ name: Broken Mandate (fictional), short_name: broken }}\n    holdings: data/holdings-bad.csv\n");
+    f.write("multi.yaml", &multi);
+    let ran = f.run(&["run", "multi.yaml", "--quiet"]);
+    assert_eq!(ran.code, 3, "the failed fund's data error sets the exit code: {}\n{}", ran.stdout, ran.stderr);
+    assert!(ran.stdout.contains("alpha: ok") && ran.stdout.contains("beta: ok"), "{}", ran.stdout);
+    assert!(ran.stdout.contains("broken: FAILED") && ran.stdout.contains("NOPE"), "{}", ran.stdout);
+    assert!(ran.stdout.contains("3 funds: 2 ok or unchanged, 1 with problems"));
+    let alpha = super::common::json(&f.path("out/alpha/2024-06-28/r1/results.json"));
+    let beta = super::common::json(&f.path("out/beta/2024-06-28/r1/results.json"));
+    assert_eq!(beta["constraints"]["turnover_max"], 0.5);
+    assert!(alpha["constraints"]["turnover_max"].is_null());
+    assert_eq!(beta["constraints"]["current"]["AS01"], 0.7);
+    let index = std::fs::read_to_string(f.path("out/index.csv")).unwrap();
+    assert!(index.contains("alpha,2024-06-28,1,") && index.contains("beta,2024-06-28,1,"), "{index}");
+    // Each fund's pack re-runs from its archived inputs (the archived config lists all funds).
+    let v = f.run(&["verify", f.path("out/beta/2024-06-28/r1").to_str().unwrap(), "--rerun"]);
+    assert_eq!(v.code, 0, "{}", v.stderr);
+}
