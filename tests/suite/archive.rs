@@ -88,6 +88,14 @@ fn rerun_from_archived_inputs_elsewhere_is_byte_identical() {
     let ran = f.run(&["verify", moved.to_str().unwrap(), "--rerun"]);
     assert_eq!(ran.code, 0, "{}", ran.stderr);
     assert!(ran.stdout.contains("identical outputs"));
+    // Outputs carry no machine-specific path, so a re-run on another clone or machine at the same commit
+    // gives the same bytes: the fixture's temporary folder appears in no output (the manifest, which
+    // records where inputs came from, is not an output).
+    let here = f.dir.path().to_string_lossy().into_owned();
+    for name in ["results.json", "summary.txt", "scenarios.csv", "weights.csv"] {
+        assert!(!std::fs::read_to_string(moved.join(name)).unwrap().contains(&here), "{name} mentions {here}");
+    }
+    assert!(!super::common::pdf_text(&moved.join("pack.pdf")).contains(&here));
 }
 
 #[test]
