@@ -1,7 +1,8 @@
 //! Report stage: the committee PDF (`pack.pdf`), typeset in-process by typst from the run's results.
 //!
-//! [`data`] turns the results into display data with every number formatted ([`format`]), [`text`] writes
-//! the sentences that depend on the run, [`charts`] draws the SVG charts, [`templates`] supplies the typst
+//! [`data`] turns the results into display data with every number formatted ([`format`]), [`further`] does
+//! the same for the analysis results (frontier, stress, backtest), [`text`] writes the sentences that depend
+//! on the run, [`charts`] draws the SVG charts, [`templates`] supplies the typst
 //! templates (built-in or a custom folder's), and [`world`] is the only door through which the typesetter
 //! sees files, fonts and the date. The PDF claims PDF/A-2b, is dated by the as-of date and identified by the
 //! pack id, so the same inputs give the same bytes.
@@ -12,6 +13,7 @@
 pub mod charts;
 pub mod data;
 pub mod format;
+pub mod further;
 pub mod templates;
 pub mod text;
 pub mod world;
