@@ -17,10 +17,10 @@ use plotters::style::text_anchor::{HPos, Pos, VPos};
 /// The font family of all chart text (shipped in `templates/fonts/`).
 pub const FAMILY: &str = "Inter";
 /// Width of every chart in SVG pixels; typst scales it to the text width (about 0.25 mm per pixel).
-const WIDTH: u32 = 680;
-const INK: RGBColor = RGBColor(0x2b, 0x2f, 0x36);
-const MUTED: RGBColor = RGBColor(0x6b, 0x71, 0x7a);
-const GRID: RGBColor = RGBColor(0xe4, 0xe6, 0xe9);
+pub(super) const WIDTH: u32 = 680;
+pub(super) const INK: RGBColor = RGBColor(0x2b, 0x2f, 0x36);
+pub(super) const MUTED: RGBColor = RGBColor(0x6b, 0x71, 0x7a);
+pub(super) const GRID: RGBColor = RGBColor(0xe4, 0xe6, 0xe9);
 
 /// A marker shape, drawn the same way in charts and (by name) in the tables' legends.
 #[derive(Debug, Clone, Copy)]
@@ -94,15 +94,15 @@ pub fn all(r: &RunResult, views: &[View]) -> Result<Vec<Chart>> {
 pub const TOP_HOLDINGS: usize = 10;
 
 /// Height of a grouped bar chart: room for axis and legend plus 8 + 7 pixels per bar and row.
-fn bars_height(rows: usize, bars: usize) -> u32 {
+pub(super) fn bars_height(rows: usize, bars: usize) -> u32 {
     (80 + rows * (8 + 7 * bars)) as u32
 }
 
-type Area<'a> = DrawingArea<SVGBackend<'a>, Shift>;
-type Drawn = std::result::Result<(), Box<dyn std::error::Error>>;
+pub(super) type Area<'a> = DrawingArea<SVGBackend<'a>, Shift>;
+pub(super) type Drawn = std::result::Result<(), Box<dyn std::error::Error>>;
 
 /// Runs one chart function on a white canvas of the common width and returns its SVG.
-fn draw(name: &'static str, height: u32, f: impl FnOnce(&Area) -> Drawn) -> Result<Chart> {
+pub(super) fn draw(name: &'static str, height: u32, f: impl FnOnce(&Area) -> Drawn) -> Result<Chart> {
     let mut svg = String::new();
     {
         let area = SVGBackend::with_string(&mut svg, (WIDTH, height)).into_drawing_area();
@@ -112,25 +112,25 @@ fn draw(name: &'static str, height: u32, f: impl FnOnce(&Area) -> Drawn) -> Resu
     Ok(Chart { name, svg })
 }
 
-fn font(size: f64) -> TextStyle<'static> {
+pub(super) fn font(size: f64) -> TextStyle<'static> {
     (FAMILY, size).into_font().color(&INK)
 }
 
-fn muted(size: f64) -> TextStyle<'static> {
+pub(super) fn muted(size: f64) -> TextStyle<'static> {
     (FAMILY, size).into_font().color(&MUTED)
 }
 
 /// Decimals of the tick labels of an axis spanning `span` percent: the same for every tick of the axis.
-fn tick_decimals(span: f64) -> usize {
+pub(super) fn tick_decimals(span: f64) -> usize {
     if span < 1.5 { 2 } else if span < 12.0 { 1 } else { 0 }
 }
 
-fn tick(v: f64, decimals: usize) -> String {
+pub(super) fn tick(v: f64, decimals: usize) -> String {
     format!("{}%", format::number(v, decimals))
 }
 
 /// Lower and upper ends of a value range with `pad` of its width on each side (never empty).
-fn padded(values: impl Iterator<Item = f64>, pad: f64, include_zero: bool) -> (f64, f64) {
+pub(super) fn padded(values: impl Iterator<Item = f64>, pad: f64, include_zero: bool) -> (f64, f64) {
     let (mut lo, mut hi) = values.fold((f64::INFINITY, f64::NEG_INFINITY), |(a, b), v| (a.min(v), b.max(v)));
     if include_zero {
         lo = lo.min(0.0);
@@ -140,7 +140,7 @@ fn padded(values: impl Iterator<Item = f64>, pad: f64, include_zero: bool) -> (f
     (lo - pad * span, hi + pad * span)
 }
 
-fn marker(area: &Area, at: (i32, i32), m: Marker, colour: RGBColor) -> Drawn {
+pub(super) fn marker(area: &Area, at: (i32, i32), m: Marker, colour: RGBColor) -> Drawn {
     let style = colour.filled();
     let outline = WHITE.stroke_width(1);
     let (x, y) = at;
@@ -154,7 +154,7 @@ fn marker(area: &Area, at: (i32, i32), m: Marker, colour: RGBColor) -> Drawn {
 }
 
 /// A one-line legend of portfolios (marker + label) starting at `origin`.
-fn legend(area: &Area, views: &[&View], origin: (i32, i32)) -> Drawn {
+pub(super) fn legend(area: &Area, views: &[&View], origin: (i32, i32)) -> Drawn {
     let mut x = origin.0;
     for v in views {
         marker(area, (x + 6, origin.1), v.look.marker, v.look.rgb)?;
@@ -187,7 +187,7 @@ fn risk_return(area: &Area, r: &RunResult, views: &[&View]) -> Drawn {
     Ok(())
 }
 
-type Cartesian<'a, 'b> = ChartContext<'a, SVGBackend<'b>, Cartesian2d<plotters::coord::types::RangedCoordf64, plotters::coord::types::RangedCoordf64>>;
+pub(super) type Cartesian<'a, 'b> = ChartContext<'a, SVGBackend<'b>, Cartesian2d<plotters::coord::types::RangedCoordf64, plotters::coord::types::RangedCoordf64>>;
 
 /// Dashed lines at the CVaR cap (vertical) and the return floor (horizontal), each labelled.
 /// The CVaR cap and return floor (in %) worth drawing: only those of a model that was solved, since an
@@ -215,7 +215,7 @@ fn reference_lines(area: &Area, chart: &mut Cartesian, (cap, floor): (Option<f64
 }
 
 /// Horizontal bar layout shared by the bar charts: plot area, x range, and a label per row at the left.
-fn bar_frame<'a, 'b>(area: &'a Area<'b>, xs: (f64, f64), rows: usize, left: u32, top: u32, desc: &str) -> std::result::Result<Cartesian<'a, 'b>, Box<dyn std::error::Error>> {
+pub(super) fn bar_frame<'a, 'b>(area: &'a Area<'b>, xs: (f64, f64), rows: usize, left: u32, top: u32, desc: &str) -> std::result::Result<Cartesian<'a, 'b>, Box<dyn std::error::Error>> {
     let mut chart = ChartBuilder::on(area).margin(12).margin_top(top).x_label_area_size(42).y_label_area_size(left)
         .build_cartesian_2d(xs.0..xs.1, 0.0..rows as f64)?;
     let dx = tick_decimals(xs.1 - xs.0);
@@ -225,7 +225,7 @@ fn bar_frame<'a, 'b>(area: &'a Area<'b>, xs: (f64, f64), rows: usize, left: u32,
 }
 
 /// The y coordinate of the point `f` (0 top, 1 bottom) of row `i` of `n`, rows counted from the top.
-fn ry(n: usize, i: usize, f: f64) -> f64 {
+pub(super) fn ry(n: usize, i: usize, f: f64) -> f64 {
     n as f64 - i as f64 - f
 }
 
@@ -299,7 +299,7 @@ fn class_legend(area: &Area, classes: &[String], origin: (i32, i32)) -> Drawn {
 }
 
 /// Estimated width in pixels of `text` set in Inter at `size` (average advance about 0.56 em).
-fn text_width(text: &str, size: f64) -> i32 {
+pub(super) fn text_width(text: &str, size: f64) -> i32 {
     (0.56 * size * text.chars().count() as f64).ceil() as i32
 }
 
@@ -351,7 +351,7 @@ fn grouped_bars(area: &Area, views: &[&View], rows: &[Row], desc: &str, zero_lin
     legend(area, views, (132, 14))
 }
 
-fn bars(area: &Area, chart: &Cartesian, views: &[&View], values: &[f64], (i, n): (usize, usize)) -> Drawn {
+pub(super) fn bars(area: &Area, chart: &Cartesian, views: &[&View], values: &[f64], (i, n): (usize, usize)) -> Drawn {
     let k = views.len() as f64;
     for (j, (v, x)) in views.iter().zip(values).enumerate() {
         let y0 = 0.1 + 0.8 * j as f64 / k;

@@ -3,7 +3,7 @@
 //!
 //! Reads the run's results ([`RunResult`]) and the `results.json` document (for the input digests); computes
 //! nothing new beyond sums for display (weights by class and group) and each portfolio's return per unit of
-//! CVaR.
+//! CVaR. The "Further analysis" part comes from [`super::further`].
 
 use super::charts::{look, Look};
 use super::format::{self, pct, Style};
@@ -55,6 +55,8 @@ pub struct Report {
     pub quality: Quality,
     pub inputs: Vec<Input>,
     pub run: Vec<Pair>,
+    /// The "Further analysis" section: efficient frontier, stress set, backtest.
+    pub further: super::further::Further,
 }
 
 /// Cover and running-header facts.
@@ -115,6 +117,9 @@ pub struct Portfolio {
     pub worst_window: String,
     pub turnover: String,
     pub effective_holdings: String,
+    /// The largest loss over the stress set (unsigned, a loss) and the shock that causes it.
+    pub worst_stress: String,
+    pub worst_stress_shock: String,
     pub at_upper: String,
     pub tails: Vec<TailCell>,
 }
@@ -235,6 +240,7 @@ pub fn build(r: &RunResult, results: &Value, pack_id: &str) -> Report {
         quality: quality(r),
         inputs: inputs(results),
         run: run_facts(r, pack_id, results["signoff"]["status"] == "FINAL"),
+        further: super::further::build(r, &views),
     }
 }
 
@@ -288,6 +294,7 @@ fn portfolio(r: &RunResult, v: &View) -> Portfolio {
     let c = r.config.confidence;
     let f = |g: &dyn Fn(&RiskProfile) -> String| v.profile.map_or(NONE.to_string(), g);
     let model = v.model;
+    let stress = super::further::worst_stress(r, v.key);
     Portfolio {
         key: v.key, label: v.look.label, aim: v.look.aim, colour: v.look.hex, marker: v.look.marker_name,
         solved: v.profile.is_some(),
@@ -302,6 +309,8 @@ fn portfolio(r: &RunResult, v: &View) -> Portfolio {
         worst_window: f(&|p| format::window(&p.worst_scenario)),
         turnover: model.and_then(|m| m.turnover).map_or(NONE.into(), |t| pct(t, Style::Weight)),
         effective_holdings: f(&|p| format::number(p.effective_holdings, 1)),
+        worst_stress: stress.map_or(NONE.into(), |(loss, _)| pct(loss, Style::Loss)),
+        worst_stress_shock: stress.map_or(NONE.into(), |(_, shock)| shock.to_string()),
         at_upper: model.filter(|_| v.profile.is_some()).map_or(NONE.into(), |m| m.at_upper.len().to_string()),
         tails: r.config.levels.iter().map(|&l| TailCell {
             level: format::level(l),

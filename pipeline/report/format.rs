@@ -60,6 +60,17 @@ pub fn number(x: f64, decimals: usize) -> String {
     if x < 0.0 && !zero { format!("{MINUS}{s}") } else { s }
 }
 
+/// A test's p-value: three decimals, or `< 0.001` below that, so a tiny p-value never prints as zero.
+pub fn p_value(p: f64) -> String {
+    if p.is_finite() && p < 0.0005 { "< 0.001".into() } else { number(p, 3) }
+}
+
+/// A probability that is not a portfolio figure (a cumulative binomial probability), as a percentage
+/// with two decimals; it carries no sign, like a weight.
+pub fn probability(p: f64) -> String {
+    pct(p, Style::Weight)
+}
+
 /// A count with thousands separators: 1284 → `1,284`.
 pub fn count(n: usize) -> String {
     let digits = n.to_string();
@@ -118,5 +129,8 @@ mod tests {
         assert_eq!(long_date("2026-11-30".parse().unwrap()), "30 November 2026");
         assert_eq!(title("inflation_linked"), "Inflation linked");
         assert_eq!(number(-0.5, 1), "\u{2212}0.5");
+        assert_eq!(p_value(0.041642), "0.042");
+        assert_eq!(p_value(0.00024), "< 0.001");
+        assert_eq!(p_value(1.0), "1.000");
     }
 }

@@ -1,7 +1,8 @@
 //! Report stage: the committee PDF (`pack.pdf`), typeset in-process by typst from the run's results.
 //!
-//! [`data`] turns the results into display data with every number formatted ([`format`]), [`text`] writes
-//! the sentences that depend on the run, [`charts`] draws the SVG charts, [`templates`] supplies the typst
+//! [`data`] turns the results into display data with every number formatted ([`format`]), [`further`] does
+//! the same for the analysis results (frontier, stress, backtest), [`text`] writes the sentences that depend
+//! on the run, [`charts`] and [`further_charts`] draw the SVG charts, [`templates`] supplies the typst
 //! templates (built-in or a custom folder's), and [`world`] is the only door through which the typesetter
 //! sees files, fonts and the date. The PDF claims PDF/A-2b, is dated by the as-of date and identified by the
 //! pack id, so the same inputs give the same bytes.
@@ -12,6 +13,8 @@
 pub mod charts;
 pub mod data;
 pub mod format;
+pub mod further;
+pub mod further_charts;
 pub mod templates;
 pub mod text;
 pub mod world;
@@ -46,7 +49,7 @@ fn world(r: &RunResult, results: &Value, pack_id: &str) -> Result<ReportWorld> {
     let (mut files, extra_fonts) = templates::load(r.config.templates.as_deref())?;
     files.push(generated(REPORT_JSON, serde_json::to_vec_pretty(&report).expect("display data serialises")));
     files.push(generated(RESULTS_JSON, serde_json::to_vec_pretty(results).expect("results serialise")));
-    for chart in charts::all(r, &views)? {
+    for chart in charts::all(r, &views)?.into_iter().chain(further_charts::all(r, &views)?) {
         files.push(generated(&format!("/charts/{}", chart.name), chart.svg.into_bytes()));
     }
     let fonts = extra_fonts.into_iter().map(Bytes::new).chain(templates::FONTS.into_iter().map(Bytes::new)).collect();

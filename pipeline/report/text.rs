@@ -3,7 +3,9 @@
 //! Each sentence states a number the run produced and what it means for reading the pack; none gives a
 //! recommendation. Figures go through [`super::format`] like every other number in the PDF.
 
+use super::charts::look;
 use super::data::{solved, status_word, View};
+use super::further;
 use super::format::{self, pct, Style};
 use crate::config::{CapRule, FloorRule};
 use crate::diag::Level;
@@ -39,8 +41,54 @@ pub fn summary(r: &RunResult, views: &[View]) -> Vec<String> {
     }
     out.extend(views.iter().filter(|v| v.model.is_some()).map(|v| model_point(r, v, current)));
     out.push(checks_point(r));
-    out.push("Efficient frontier, stress tests and backtest are not yet computed by this version of the pack.".into());
+    out.push(stress_point(r, views));
+    out.push(backtest_point(r));
     out
+}
+
+/// The stress tests in one sentence: how many scenarios, and who breaches the loss limit where.
+fn stress_point(r: &RunResult, views: &[View]) -> String {
+    let a = &r.analysis;
+    if a.shocks.is_empty() || a.stress.is_empty() {
+        return "Stress tests: none was run (section 4.2 says why).".into();
+    }
+    let defined = a.shocks.iter().filter(|s| s.kind == "defined").count();
+    let mut out = format!("Stress tests: {} scenarios ({} defined by the fund, {} historical windows); each portfolio's worst loss is in the table below.",
+        a.shocks.len(), defined, a.shocks.len() - defined);
+    let Some(limit) = r.config.stress_loss_limit else { return out };
+    let over: Vec<&str> = views.iter().filter(|v| further::result_of(r, v.key).is_some_and(|s| !s.breaches.is_empty())).map(|v| v.look.label).collect();
+    out.push_str(&match over.len() {
+        0 => format!(" No portfolio loses more than the limit of {}.", pct(limit, Style::Loss)),
+        1 => format!(" {} loses more than the limit of {} in at least one scenario.", over[0], pct(limit, Style::Loss)),
+        _ => format!(" {} lose more than the limit of {} in at least one scenario.", list(&over), pct(limit, Style::Loss)),
+    });
+    out
+}
+
+/// The backtest in one sentence: exceptions per model against the expected number, and the rejections.
+fn backtest_point(r: &RunResult) -> String {
+    let Some(b) = &r.analysis.backtest else {
+        return "Walk-forward backtest: not run (section 4.3 says why).".into();
+    };
+    let Some(first) = b.tracks.first() else { return "Walk-forward backtest: no model to test.".into() };
+    let counts: Vec<String> = b.tracks.iter().map(|t| format!("{} ({})", t.exceptions, look(t.model).label)).collect();
+    let counts: Vec<&str> = counts.iter().map(String::as_str).collect();
+    let rejected: Vec<&str> = b.tracks.iter().filter(|t| t.kupiec.is_some_and(|k| k.p_value < 0.05)).map(|t| look(t.model).label).collect();
+    let verdict = match rejected.len() {
+        0 => "no model's exception rate is rejected at 5%".to_string(),
+        _ => format!("the exception rate of {} is rejected at 5%", list(&rejected)),
+    };
+    format!("Walk-forward backtest over {} months: {} losses beyond the predicted VaR {}, against {} expected; {verdict}.",
+        first.observations, list(&counts), format::level(b.confidence), format::number(first.expected_exceptions, 1))
+}
+
+/// Names joined as prose: `A`, `A and B`, `A, B and C`.
+fn list(names: &[&str]) -> String {
+    match names {
+        [] => String::new(),
+        [one] => one.to_string(),
+        [init @ .., last] => format!("{} and {last}", init.join(", ")),
+    }
 }
 
 fn model_point(r: &RunResult, v: &View, current: Option<&crate::risk::RiskProfile>) -> String {
@@ -73,6 +121,8 @@ fn last_end(r: &RunResult) -> String {
 pub fn caveats(r: &RunResult, views: &[View]) -> Vec<super::data::Caveat> {
     let mut out = vec![history(r, views), tail_count(r), estimates()];
     out.extend(views.iter().filter_map(|v| binding(r, v)));
+    out.extend(stress_caveats(r));
+    out.extend(backtest_caveats(r));
     out.push(caveat("Costs and liquidity", "The models include no transaction costs, market impact, liquidity or taxes; the turnover limit is the only trading constraint. Implementing a candidate in full may cost more, and take longer, than the figures suggest."));
     let warned = r.checks.iter().filter(|c| c.level != Level::Pass).count();
     if warned > 0 {
@@ -137,4 +187,49 @@ fn binding(r: &RunResult, v: &View) -> Option<super::data::Caveat> {
 
 fn shortlist(names: &[String], n: usize) -> String {
     if names.len() <= n { names.join(", ") } else { format!("{} and {} more", names[..n].join(", "), names.len() - n) }
+}
+
+/// What limits the reading of the stress results: configured magnitudes, and windows chosen for one portfolio.
+fn stress_caveats(r: &RunResult) -> Vec<super::data::Caveat> {
+    let a = &r.analysis;
+    let mut out = Vec::new();
+    let defined = a.shocks.iter().filter(|s| s.kind == "defined").count();
+    if defined > 0 {
+        let file = r.config.stress_file.as_ref().and_then(|p| p.file_name()).map_or(String::new(), |n| format!(" ({})", n.to_string_lossy()));
+        out.push(caveat("Stress magnitudes are configured, not calibrated", &format!(
+            "The {defined} defined shocks are the fund's configured scenarios{file}: their magnitudes were set by the fund, not estimated from data; they carry no probability and are not forecasts. Each moves an asset by the one entry that matches it (its own, else the first matching tag), with no second-round effects; an asset a shock does not name does not move.")));
+    }
+    if a.shocks.iter().any(|s| s.kind == "historical") {
+        let basis = if r.data.holdings.is_some() { "current holdings" } else { "equally weighted portfolio" };
+        out.push(caveat("Historical windows are chosen for one portfolio", &format!(
+            "The historical stress windows are the worst of the price history for the {basis}; another portfolio's worst window may be a different one, and its worst historical loss is then larger than the table shows.")));
+    }
+    out
+}
+
+/// What limits the reading of the backtest: thin evidence, rejected models, skipped months, or no backtest.
+fn backtest_caveats(r: &RunResult) -> Vec<super::data::Caveat> {
+    let Some(b) = &r.analysis.backtest else {
+        return vec![caveat("No out-of-sample evidence", "The walk-forward backtest was not run, so nothing in this pack shows how the models' predictions compared with what followed.")];
+    };
+    let months = b.tracks.first().map_or(0, |t| t.observations);
+    let mut out = vec![caveat("Backtest evidence is thin", &format!(
+        "The backtest rests on {months} monthly outcomes per model, overlapping in their look-back data. With so few months the VaR tests have little power: passing them is weak evidence that a VaR is right, and final wealth reflects one path of history."))];
+    let level = format::level(b.confidence);
+    for t in b.tracks.iter().filter(|t| t.kupiec.is_some_and(|k| k.p_value < 0.05)) {
+        let p = format::p_value(t.kupiec.expect("filtered").p_value);
+        let reading = if t.exceptions as f64 > t.expected_exceptions {
+            "more often than the level allows, so the model's VaR and CVaR in this pack may understate the tail"
+        } else {
+            "less often than the level allows, so the model's VaR may overstate the tail"
+        };
+        out.push(caveat(&format!("{}: backtest rejects the exception rate", look(t.model).label), &format!(
+            "{} losses beyond the predicted VaR {level} in {} months against {} expected: Kupiec's test rejects that rate at 5% (p-value {p}). Losses beyond VaR came {reading}.",
+            t.exceptions, t.observations, format::number(t.expected_exceptions, 1))));
+    }
+    if !b.skipped.is_empty() {
+        out.push(caveat("Months skipped in the backtest", &format!(
+            "{} of {} month-ends could not be solved and count as months without a return; they are listed in section 4.3.", b.skipped.len(), b.rebalances.len())));
+    }
+    out
 }

@@ -71,6 +71,70 @@ fn pdf_has_every_section_and_the_figures_of_results_json() {
     for input in r["inputs"].as_array().unwrap() {
         assert!(text.contains(input["sha256"].as_str().unwrap()), "digest of {} missing", input["role"]);
     }
+    further_analysis_matches_results_json(&text, &r);
+}
+
+/// The models in the order the pack prints them (README, "The PDF pack": current, then the three models).
+const MODELS: [(&str, &str); 3] = [("max_return", "Max return"), ("min_cvar", "Min CVaR"), ("max_ratio", "Max ratio")];
+
+/// A test's p-value as the README rule prints it, written out here independently: three decimals, or
+/// `< 0.001` below that.
+fn printed_p(p: f64) -> String {
+    if p < 0.0005 { "< 0.001".into() } else { format!("{p:.3}") }
+}
+
+/// The squeezed lines of the PDF text, for checking table rows as pdftotext lays them out.
+fn rows(text: &str) -> Vec<String> {
+    text.lines().map(squeeze).filter(|l| !l.is_empty()).collect()
+}
+
+/// Asserts that some row of the PDF reads exactly `want` (after squeezing whitespace).
+fn has_row(rows: &[String], want: &str, what: &str) {
+    assert!(rows.iter().any(|r| r == want), "{what}: no row reads `{want}`");
+}
+
+/// The "Further analysis" section of the demo pack against results.json (`frontier`, `stress`, `backtest`),
+/// every figure formatted by the README rule independently of the library.
+fn further_analysis_matches_results_json(text: &str, r: &serde_json::Value) {
+    let flat = squeeze(text);
+    let rows = rows(text);
+    for title in ["4.1 Efficient frontier", "4.2 Stress tests", "4.3 Backtest"] {
+        assert!(flat.contains(title), "subsection `{title}` missing");
+    }
+    assert!(!flat.contains("Not yet computed"), "the analysis placeholders must be gone");
+    // Frontier: the first point's row of the selected-points table (results.json frontier.points[0]).
+    let p0 = &r["frontier"]["points"][0];
+    let (cvar, var, er) = (p0["cvar"].as_f64().unwrap(), p0["var"].as_f64().unwrap(), p0["expected_return"].as_f64().unwrap());
+    has_row(&rows, &format!("1 {} {} {} {:.4}", printed(cvar, false), printed(var, false), printed(er, true), er / cvar), "frontier point 1");
+    assert!(flat.contains("should touch the frontier at the Max ratio portfolio") && flat.contains("Charnes–Cooper"), "the ray's caption must say what it checks");
+    // Stress: the defined shocks are the fund's scenarios, not forecasts (issue text); every P&L of the
+    // current portfolio, signed, as results.json stress.portfolios.current.pnl has it.
+    assert!(flat.contains("fund's configured scenarios") && flat.contains("not forecasts"), "stress shocks must be called configured scenarios, not forecasts");
+    let stress = &r["stress"]["portfolios"];
+    for x in stress["current"]["pnl"].as_array().unwrap() {
+        assert!(text.contains(&printed(x.as_f64().unwrap(), true)), "current stress P&L {} missing", printed(x.as_f64().unwrap(), true));
+    }
+    // The summary's worst stress loss, unsigned, ends each portfolio's row of "Portfolios at a glance".
+    for (key, label) in [("current", "Current")].into_iter().chain(MODELS) {
+        let worst = printed(-stress[key]["worst"]["pnl"].as_f64().unwrap(), false);
+        let status = if key == "current" { "held" } else { "optimal" };
+        assert!(rows.iter().any(|l| l.starts_with(&format!("{label} {status} ")) && l.ends_with(&format!(" {worst}"))), "{label}: worst stress loss {worst} missing from the summary table");
+    }
+    // Backtest: exceptions and Kupiec p-values in model order, and the daily traffic-light rows.
+    let bt = &r["backtest"]["models"];
+    let field = |f: &dyn Fn(&serde_json::Value) -> String| MODELS.iter().map(|(k, _)| f(&bt[*k])).collect::<Vec<_>>().join(" ");
+    has_row(&rows, &format!("Exceptions {}", field(&|m| m["exceptions"].to_string())), "backtest exceptions");
+    has_row(&rows, &format!("Kupiec p-value {}", field(&|m| printed_p(m["kupiec"]["p_value"].as_f64().unwrap()))), "Kupiec p-values");
+    has_row(&rows, &format!("Christoffersen p-value {}", field(&|m| printed_p(m["christoffersen"]["p_value"].as_f64().unwrap()))), "Christoffersen p-values");
+    for (key, label) in MODELS {
+        let d = &bt[key]["daily_var_99"];
+        let zone = d["zone"].as_str().unwrap();
+        let word = format!("{}{}", zone[..1].to_uppercase(), &zone[1..]);
+        // Expected exceptions: 1% of 250 daily observations (Basel Committee 1996).
+        let want = format!("{label} 250 {} 2.5 {} {word}", d["exceptions"], printed(d["cumulative_probability"].as_f64().unwrap(), false));
+        has_row(&rows, &want, "daily VaR traffic light");
+    }
+    rejections_follow_kupiec(&flat, r);
 }
 
 #[test]
@@ -107,8 +171,9 @@ fn a_200_asset_universe_renders_with_paginated_weights() {
     let dir = pack_dir(&f.run(&["run", "fund.yaml", "--quiet"]));
     let pdf = dir.join("pack.pdf");
     let pages = pdf_pages(&pdf);
-    // Bound: 15 pages of fixed sections plus the weights table at no fewer than 40 rows a page (200 rows →
-    // at most 5 pages) plus slack for the checks table: at most 25 pages.
+    // Bound: at most 18 pages of fixed sections (the demo pack's 19 less its one page of weights; this fund has
+    // no stress file, so fewer) plus the weights table at no fewer than 40 rows a page (200 rows → at most 5
+    // pages) plus slack for the checks table: at most 25 pages.
     assert!((16..=25).contains(&pages), "200 assets gave {pages} pages");
     let text = pdf_text(&pdf);
     for a in &m.assets {
@@ -179,4 +244,67 @@ fn a_fund_without_holdings_and_an_infeasible_model_still_gets_a_full_pack() {
     assert!(!text.contains("Current"), "without holdings there is no current portfolio to show");
     let cvar = printed(r["models"]["max_return"]["cvar"].as_f64().unwrap(), false);
     assert!(text.contains(&cvar), "the solved model's CVaR {cvar} must still be printed");
+}
+
+/// A small fund with a one-shock stress file and a one-year backtest: the stress P&L worked out by hand.
+fn stressed_fixture() -> Fixture {
+    let f = Fixture::new();
+    let m = Market::new(5, "2021-01-01", "2024-06-28", 42);
+    f.small_fund(&m, &config("analysis:\n  backtest_years: 1\nstress:\n  file: stress.yaml\n  loss_limit: 0.15\n"));
+    f.write("stress.yaml", "shocks:\n  - name: Equity sell-off\n    description: Equities fall, bonds gain a little\n    moves:\n      - { tag: \"class:equity\", return: -0.30 }\n      - { tag: \"class:bond\", return: 0.02 }\n");
+    f
+}
+
+#[test]
+fn stress_and_backtest_figures_are_printed_as_computed_by_hand_and_in_results_json() {
+    let f = stressed_fixture();
+    let dir = pack_dir(&f.run(&["run", "fund.yaml", "--quiet"]));
+    let text = pdf_text(&dir.join("pack.pdf"));
+    let (flat, rows) = (squeeze(&text), rows(&text));
+    // By hand: equal holdings of 20% in five assets, three equities (AS01, AS03, AS05, Market::new) at −30%
+    // and two bonds at +2%: 3 × 0.2 × (−0.30) + 2 × 0.2 × 0.02 = −0.172.
+    assert!(flat.contains("Equity sell-off") && flat.contains("Equities fall, bonds gain a little."), "the shock and its description");
+    assert!(flat.contains("−17.20%"), "current P&L under the sell-off, by hand −17.20%");
+    assert!(flat.contains("Current loses more than the 15.00% limit in: Equity sell-off (−17.20%)"), "the breach of the 15% limit must be flagged in words");
+    assert!(rows.iter().any(|l| l.starts_with("Current held ") && l.ends_with(" 17.20%")), "the summary's worst stress loss of Current, unsigned");
+    // results.json: the one-year backtest's exception counts, in model order, and their verdicts.
+    let r = json(&dir.join("results.json"));
+    let bt = &r["backtest"]["models"];
+    let counts: Vec<String> = MODELS.iter().map(|(k, _)| bt[*k]["exceptions"].to_string()).collect();
+    has_row(&rows, &format!("Exceptions {}", counts.join(" ")), "backtest exceptions");
+    let months = bt["max_return"]["observations"].as_u64().unwrap();
+    assert!((11..=12).contains(&months), "one year of month-ends gives 11 or 12 tested months, got {months}");
+    assert!(flat.contains(&format!("Walk-forward backtest over {months} months")), "the summary's backtest point");
+    rejections_follow_kupiec(&flat, &r);
+}
+
+/// A model gets the caveat "backtest rejects the exception rate" exactly when its Kupiec p-value in
+/// results.json is below 0.05 (the 5% test level of Kupiec 1995).
+fn rejections_follow_kupiec(flat: &str, r: &serde_json::Value) {
+    for (key, label) in MODELS {
+        let p = r["backtest"]["models"][key]["kupiec"]["p_value"].as_f64().unwrap();
+        let said = flat.contains(&format!("{label}: backtest rejects the exception rate"));
+        assert_eq!(said, p < 0.05, "{label}: Kupiec p-value {p}, rejection caveat printed: {said}");
+    }
+}
+
+#[test]
+fn a_fund_without_backtest_or_stress_says_so_plainly() {
+    let f = Fixture::new();
+    let m = Market::new(5, "2021-01-01", "2024-06-28", 42);
+    f.small_fund(&m, &config("analysis: { backtest_years: 0 }\nstress:\n  historical_windows: 0\n"));
+    let dir = pack_dir(&f.run(&["run", "fund.yaml", "--quiet"]));
+    let r = json(&dir.join("results.json"));
+    assert!(r["backtest"].is_null(), "the fixture must switch the backtest off");
+    assert!(r["stress"]["shocks"].as_array().unwrap().is_empty(), "the fixture must leave the stress set empty");
+    let flat = squeeze(&pdf_text(&dir.join("pack.pdf")));
+    // The section keeps its three parts; the two that did not run say why (DEVELOPERS.md, "Adding a report
+    // section": a section whose data does not exist says so plainly rather than vanishing).
+    for title in ["4.1 Efficient frontier", "4.2 Stress tests", "4.3 Backtest"] {
+        assert!(flat.contains(title), "subsection `{title}` missing");
+    }
+    assert!(flat.contains("The walk-forward backtest was not run: it is switched off in the config (analysis.backtest_years: 0)."), "backtest absence");
+    assert!(flat.contains("No stress test was run: no stress file is configured (stress.file), and no historical window was asked for (stress.historical_windows: 0)."), "stress absence");
+    assert!(flat.contains("Walk-forward backtest: not run") && flat.contains("No out-of-sample evidence"), "summary and caveats say the backtest is missing");
+    assert!(flat.contains("Selected frontier points"), "the frontier still runs");
 }
