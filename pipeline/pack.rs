@@ -313,7 +313,10 @@ pub fn write(r: &RunResult, plan: &crate::archive::Plan) -> Result<(PathBuf, Str
         Ok(text)
     });
     if result.is_err() {
+        // Leave nothing behind: the temporary folder, and the fund/as-of folders if this run made them.
         let _ = std::fs::remove_dir_all(&tmp);
+        let _ = std::fs::remove_dir(folder);
+        let _ = folder.parent().map(std::fs::remove_dir);
     }
     let text = result?;
     fs::rename(&tmp, &dir)?;
