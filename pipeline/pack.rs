@@ -328,10 +328,12 @@ pub fn write(r: &RunResult) -> Result<(PathBuf, String)> {
         let _ = std::fs::remove_dir_all(&tmp);
     }
     let text = result?;
-    if dir.exists() {
-        fs::remove_dir_all(&dir)?;
+    let placed = if dir.exists() { fs::remove_dir_all(&dir) } else { Ok(()) }.and_then(|()| fs::rename(&tmp, &dir));
+    if placed.is_err() {
+        // Something in the way of the final folder (a file, say): leave no half-placed pack behind.
+        let _ = std::fs::remove_dir_all(&tmp);
     }
-    fs::rename(&tmp, &dir)?;
+    placed?;
     let shown = std::fs::canonicalize(&dir).unwrap_or(dir.clone());
     let text = text.replace(&format!("pack: {}", dir.display()), &format!("pack: {}", shown.display()));
     fs::write(&shown.join("summary.txt"), &text)?;
