@@ -1,6 +1,7 @@
 //! The integration suite: one test binary, one module per area.
 
 mod analysis;
+mod bad_inputs;
 mod cli;
 mod common;
 mod demo;
