@@ -6,5 +6,6 @@ mod cli;
 mod common;
 mod demo;
 mod models;
+mod properties;
 mod report;
 mod risk;
