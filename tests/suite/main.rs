@@ -5,6 +5,7 @@ mod bad_inputs;
 mod cli;
 mod common;
 mod demo;
+mod faults;
 mod models;
 mod properties;
 mod report;
