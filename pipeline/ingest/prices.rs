@@ -1,7 +1,8 @@
 //! Turning a text table into a dated price history, long or wide.
 //!
 //! Dates must be ISO (`YYYY-MM-DD`); a price is a finite decimal number, a blank, `NA` or `NaN` cell is a
-//! missing value (handled later by the fill policy). Errors name the file, the row and the column.
+//! missing value (handled later by the fill policy), but a column without a single price is an error. Errors
+//! name the file, the row and the column.
 
 use super::table::{truncate, TextTable};
 use crate::config::Layout;

@@ -2,7 +2,9 @@
 //!
 //! Every cell becomes an optional string so that one parser downstream checks values and reports the exact
 //! row and column of a bad one. Leading `#` lines of a CSV are comments (the demo files say there that their
-//! data is synthetic); the line numbers in messages count them.
+//! data is synthetic); the line numbers in messages count them. Before polars sees a CSV, its lines are
+//! checked here (encoding, line ends, header names, one field per header column on every row), so that a
+//! malformed file is reported at its line rather than misread or reported without a place.
 
 use crate::error::{Error, Result};
 use polars::prelude::*;
