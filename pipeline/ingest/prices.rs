@@ -27,7 +27,7 @@ pub struct PriceHistory {
 /// Parses an ISO date, naming the place on failure.
 pub fn parse_date(path: &Path, place: &str, column: &str, text: &str) -> Result<NaiveDate> {
     let t = text.trim();
-    NaiveDate::parse_from_str(t, "%Y-%m-%d").map_err(|_| {
+    iso_date(t).ok_or_else(|| {
         let hint = if NaiveDate::parse_from_str(t, "%d/%m/%Y").is_ok() || NaiveDate::parse_from_str(t, "%m/%d/%Y").is_ok() {
             "; dates must be ISO YYYY-MM-DD (this looks like a day/month format)"
         } else {
@@ -35,6 +35,15 @@ pub fn parse_date(path: &Path, place: &str, column: &str, text: &str) -> Result<
         };
         Error::data(path, format!("{place}, column `{column}`: `{}` is not a valid date{hint}", truncate(t, 40)))
     })
+}
+
+/// A date written exactly `YYYY-MM-DD` (four-digit year, two-digit month and day) that exists. chrono alone
+/// would also take `2024-1-5` or a six-digit year at the end of its calendar, where the month-end logic
+/// has no next day.
+fn iso_date(t: &str) -> Option<NaiveDate> {
+    let b = t.as_bytes();
+    let shape = b.len() == 10 && b[4] == b'-' && b[7] == b'-' && b.iter().enumerate().all(|(i, c)| i == 4 || i == 7 || c.is_ascii_digit());
+    shape.then(|| NaiveDate::parse_from_str(t, "%Y-%m-%d").ok()).flatten()
 }
 
 /// Parses a price cell: `None` for a missing value, an error for text or a non-finite number.
@@ -75,7 +84,7 @@ pub fn from_table(path: &Path, t: &TextTable, layout: Layout) -> Result<PriceHis
 
 /// A missing `date` column, with a hint when the header itself looks like a row of data.
 fn no_date_column(path: &Path, t: &TextTable) -> Error {
-    let looks_like_data = t.names.first().is_some_and(|n| NaiveDate::parse_from_str(n.trim(), "%Y-%m-%d").is_ok());
+    let looks_like_data = t.names.first().is_some_and(|n| iso_date(n.trim()).is_some());
     let hint = if looks_like_data { "; the first line looks like data: add a header line such as `date,AS01,AS02`" } else { "" };
     Error::data(path, format!("{}: has no `date` column (columns: {}){hint}", t.header_place(), truncate(&t.names.join(", "), 80)))
 }
