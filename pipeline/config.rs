@@ -479,8 +479,13 @@ pub fn load(path: &Path) -> Result<Config> {
 
 /// Reads a config and resolves one [`Config`] per fund (one for a single-fund config).
 pub fn load_all(path: &Path) -> Result<Vec<Config>> {
-    let text = crate::error::fs::read_to_string(path)?;
-    let raw = parse(path, &text)?;
+    let bytes = crate::error::fs::read(path)?;
+    let text = std::str::from_utf8(&bytes).map_err(|e| {
+        let at = e.valid_up_to();
+        let line = bytes[..at].iter().filter(|b| **b == b'\n').count() + 1;
+        Error::config(path, format!("line {line}, byte {at}: not UTF-8 text; save the config as UTF-8"))
+    })?;
+    let raw = parse(path, text)?;
     expand(path, raw)
 }
 
@@ -554,7 +559,7 @@ pub fn load_archived(inputs: &Path) -> Result<Config> {
 /// Parses YAML text into the raw config, turning serde errors into messages with line and a suggestion.
 pub fn parse(path: &Path, text: &str) -> Result<RawConfig> {
     if text.trim().is_empty() {
-        return Err(Error::config(path, "the file is empty; see config-demo/fund.yaml for a complete example"));
+        return Err(Error::config(path, "line 1: the file is empty; see config-demo/fund.yaml for a complete example"));
     }
     serde_yaml_ng::from_str::<RawConfig>(text).map_err(|e| Error::config(path, describe_yaml_error(&e)))
 }

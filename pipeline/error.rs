@@ -41,7 +41,7 @@ pub enum Error {
     #[error("template {file}{}: {message}", line.map_or(String::new(), |(l, c)| format!(", line {l}, column {c}")))]
     Template { file: String, line: Option<(usize, usize)>, message: String },
     /// A file-system operation failed.
-    #[error("{action} {}: {source}", path.display())]
+    #[error("{action} {}: {source}{}", path.display(), io_hint(source.kind()))]
     Io { action: &'static str, path: PathBuf, #[source] source: std::io::Error },
     /// The archive lock is held by another run.
     #[error("another tailpack run holds the archive lock {} (waited without success); try again later", path.display())]
@@ -52,6 +52,18 @@ pub enum Error {
     /// Anything else that stops a run (e.g. no scenarios could be built).
     #[error("{0}")]
     Run(String),
+}
+
+/// What to do about the common I/O failures, appended to their message.
+fn io_hint(kind: std::io::ErrorKind) -> &'static str {
+    use std::io::ErrorKind as K;
+    match kind {
+        K::NotADirectory | K::AlreadyExists | K::IsADirectory => "; a file or folder of that name is in the way: move it or choose another path (for packs: output.root or --out)",
+        K::PermissionDenied | K::ReadOnlyFilesystem => "; the path is not writable for this user: fix its permissions or choose another path",
+        K::NotFound => "; check the path",
+        K::StorageFull => "; the disk is full: free space and run again",
+        _ => "",
+    }
 }
 
 /// Shorthand for results of this library.

@@ -319,7 +319,11 @@ pub fn write(r: &RunResult, plan: &crate::archive::Plan) -> Result<(PathBuf, Str
         let _ = folder.parent().map(std::fs::remove_dir);
     }
     let text = result?;
-    fs::rename(&tmp, &dir)?;
+    if let Err(e) = fs::rename(&tmp, &dir) {
+        // Something in the way of the final folder (a file, say): leave no half-placed pack behind.
+        let _ = std::fs::remove_dir_all(&tmp);
+        return Err(e);
+    }
     crate::archive::write_index(&r.config.out_root)?;
     let shown = std::fs::canonicalize(&dir).unwrap_or(dir);
     let note = previous.map(|p| format!("revision r{revision} (changed inputs: {}) replaces {}\n",

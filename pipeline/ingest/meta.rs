@@ -18,6 +18,9 @@ pub struct AssetMeta {
     pub tags: BTreeMap<String, String>,
     pub min_weight: Option<f64>,
     pub max_weight: Option<f64>,
+    /// Where the row is in the metadata file ("row 2 (line 3)"), for messages.
+    #[serde(skip)]
+    pub place: String,
 }
 
 impl AssetMeta {
@@ -37,8 +40,9 @@ impl AssetMeta {
 pub fn read_assets(path: &Path) -> Result<Vec<AssetMeta>> {
     let t = read_table(path)?;
     let col = |n: &str| t.find(n);
-    let asset = col("asset").ok_or_else(|| Error::data(path, "needs an `asset` column"))?;
-    let class = col("class").ok_or_else(|| Error::data(path, "needs a `class` column (e.g. equity, government, credit, cash)"))?;
+    let header = t.header_place();
+    let asset = col("asset").ok_or_else(|| Error::data(path, format!("{header}: needs an `asset` column")))?;
+    let class = col("class").ok_or_else(|| Error::data(path, format!("{header}: needs a `class` column (e.g. equity, government, credit, cash)")))?;
     let mut out: Vec<AssetMeta> = Vec::with_capacity(t.rows());
     for row in 0..t.rows() {
         let m = meta_row(path, &t, row, asset, class)?;
@@ -48,7 +52,7 @@ pub fn read_assets(path: &Path) -> Result<Vec<AssetMeta>> {
         out.push(m);
     }
     if out.is_empty() {
-        return Err(Error::data(path, "lists no assets"));
+        return Err(Error::data(path, format!("{header}: no asset rows follow the header")));
     }
     Ok(out)
 }
@@ -83,15 +87,15 @@ fn meta_row(path: &Path, t: &TextTable, row: usize, asset: usize, class: usize) 
         .map(|(c, n)| (n.trim().to_ascii_lowercase(), cell(c)))
         .collect();
     let name = t.find("name").map(cell).filter(|n| !n.is_empty()).unwrap_or_else(|| code.clone());
-    Ok(AssetMeta { asset: code, name, class: cell(class).to_ascii_lowercase(), tags, min_weight, max_weight })
+    Ok(AssetMeta { asset: code, name, class: cell(class).to_ascii_lowercase(), tags, min_weight, max_weight, place })
 }
 
 /// Reads current holdings (`asset,weight`), checks them against the asset list and returns weights in
 /// `assets` order (absent assets get 0).
 pub fn read_holdings(path: &Path, assets: &[String]) -> Result<Vec<f64>> {
     let t = read_table(path)?;
-    let a = t.find("asset").ok_or_else(|| Error::data(path, "needs columns `asset,weight`"))?;
-    let w = t.find("weight").ok_or_else(|| Error::data(path, "needs columns `asset,weight`"))?;
+    let need = || Error::data(path, format!("{}: needs columns `asset,weight`", t.header_place()));
+    let (a, w) = (t.find("asset").ok_or_else(need)?, t.find("weight").ok_or_else(need)?);
     let mut weights = vec![0.0; assets.len()];
     let mut seen = vec![false; assets.len()];
     for row in 0..t.rows() {
@@ -109,7 +113,8 @@ pub fn read_holdings(path: &Path, assets: &[String]) -> Result<Vec<f64>> {
     }
     let total: f64 = weights.iter().sum();
     if (total - 1.0).abs() > HOLDINGS_TOLERANCE {
-        return Err(Error::data(path, format!("weights sum to {total:.6}, not 1 (tolerance {HOLDINGS_TOLERANCE}); fix the file so the holdings are a full portfolio")));
+        let rows = if t.rows() == 0 { "no rows".to_string() } else { format!("{} to {}", t.place(0), t.place(t.rows() - 1)) };
+        return Err(Error::data(path, format!("column `weight` ({rows}): the weights sum to {total:.6}, not 1 (tolerance {HOLDINGS_TOLERANCE}); fix the file so the holdings are a full portfolio")));
     }
     Ok(weights.iter().map(|x| x / total).collect())
 }

@@ -57,6 +57,7 @@ pub fn load(cfg: &Config, as_of: Option<NaiveDate>) -> Result<MarketData> {
     let file = cfg.prices.display().to_string();
     findings.extend(quality::duplicate_dates(&file, &hist));
     findings.extend(quality::non_positive(&file, &hist));
+    findings.extend(quality::overflowing_range(&file, &hist));
     if quality::worst(&findings) == Level::Fail {
         return Err(Error::Quality { problems: fails(&findings) });
     }
@@ -65,6 +66,7 @@ pub fn load(cfg: &Config, as_of: Option<NaiveDate>) -> Result<MarketData> {
     if !problems.is_empty() {
         return Err(Error::Quality { problems });
     }
+    check_bounds(cfg, &data)?;
     Ok(data)
 }
 
@@ -74,10 +76,10 @@ fn fails(findings: &[Check]) -> Vec<String> {
 
 fn check_universe(cfg: &Config, hist: &PriceHistory, meta: &[AssetMeta]) -> Result<()> {
     if let Some(a) = hist.assets.iter().find(|a| !meta.iter().any(|m| &m.asset == *a)) {
-        return Err(Error::data(&cfg.assets, format!("has no row for asset `{a}`, which is in the price file {}; every priced asset needs metadata (at least its class)", cfg.prices.display())));
+        return Err(Error::data(&cfg.assets, format!("column `asset`: has no row for asset `{a}`, which is in the price file {}; every priced asset needs a row with at least its class", cfg.prices.display())));
     }
     if let Some(m) = meta.iter().find(|m| !hist.assets.contains(&m.asset)) {
-        return Err(Error::data(&cfg.assets, format!("lists asset `{}`, which has no column in the price file {}; remove the row or add its prices", m.asset, cfg.prices.display())));
+        return Err(Error::data(&cfg.assets, format!("{}: lists asset `{}`, which has no prices in the price file {}; remove the row or add its prices", m.place, m.asset, cfg.prices.display())));
     }
     if let Some(x) = cfg.exclude.iter().find(|x| !hist.assets.contains(x)) {
         return Err(Error::config(&cfg.path, format!("limits.exclude: unknown asset `{x}`")));
@@ -85,12 +87,44 @@ fn check_universe(cfg: &Config, hist: &PriceHistory, meta: &[AssetMeta]) -> Resu
     Ok(())
 }
 
+/// The per-asset weight bounds of the kept assets must leave room for the budget Σx = 1: minimums summing
+/// above 1 or maximums summing below 1 make every model infeasible, so the run stops here naming the keys
+/// and columns the bounds come from (group limits and turnover, which interact, are diagnosed per model).
+fn check_bounds(cfg: &Config, data: &MarketData) -> Result<()> {
+    let excluded = |a: &String| cfg.exclude.contains(a);
+    let bound = |m: &AssetMeta, a: &String, lower: bool| match (excluded(a), lower) {
+        (true, _) => 0.0,
+        (false, true) => m.min_weight.unwrap_or(cfg.default_min),
+        (false, false) => m.max_weight.unwrap_or(cfg.default_max),
+    };
+    let sum = |lower: bool| -> f64 { data.meta.iter().zip(&data.assets).map(|(m, a)| bound(m, a, lower)).sum() };
+    let (lo, hi) = (sum(true), sum(false));
+    let n = data.assets.len();
+    let own = |f: fn(&AssetMeta) -> Option<f64>| data.meta.iter().zip(&data.assets).filter(|(m, a)| f(m).is_some() && !excluded(a)).count();
+    let assets = cfg.assets.display();
+    let exclude = if cfg.exclude.is_empty() { String::new() } else { format!(", {} excluded by limits.exclude", cfg.exclude.len()) };
+    if lo > 1.0 + BOUND_SLACK {
+        return Err(Error::config(&cfg.path, format!(
+            "limits.default_min = {}, column `min_weight` of {assets}: the minimum weights of the {n} assets sum to {lo:.4} > 1 ({} of them from their own min_weight, the rest from limits.default_min{exclude}), so no portfolio meets the budget Σx = 1: lower limits.default_min or the min_weight values",
+            cfg.default_min, own(|m| m.min_weight))));
+    }
+    if hi < 1.0 - BOUND_SLACK {
+        return Err(Error::config(&cfg.path, format!(
+            "limits.default_max = {}, column `max_weight` of {assets}: the maximum weights of the {n} assets sum to {hi:.4} < 1 ({} of them from their own max_weight, the rest from limits.default_max{exclude}), so no portfolio meets the budget Σx = 1: raise limits.default_max or the max_weight values",
+            cfg.default_max, own(|m| m.max_weight))));
+    }
+    Ok(())
+}
+
+/// Rounding slack of the bound sums (weights are written with a few decimals).
+const BOUND_SLACK: f64 = 1e-12;
+
 /// As given (must lie within the data), or the latest month-end in the data.
 fn resolve_as_of(cfg: &Config, hist: &PriceHistory, given: Option<NaiveDate>) -> Result<NaiveDate> {
     let (first, last) = (hist.dates[0], *hist.dates.last().expect("non-empty"));
     match given {
         Some(d) if d < first || d > last => Err(Error::config(&cfg.path, format!(
-            "as-of {d} is outside the price data, which runs from {first} to {last} ({})", cfg.prices.display()))),
+            "--as-of {d} is outside the price data, which runs from {first} to {last} ({}); give a date in that range or leave --as-of out for the latest month-end", cfg.prices.display()))),
         Some(d) => Ok(d),
         None => Ok(default_as_of(&hist.dates)),
     }
@@ -146,7 +180,7 @@ fn build(cfg: &Config, hist: PriceHistory, meta: Vec<AssetMeta>, as_of: NaiveDat
     }
     let dates = hist.dates[start..].to_vec();
     findings.extend(quality::series_findings(&per_asset, &cfg.quality));
-    findings.push(window_check(dates.len(), cfg.scenarios.horizon, cfg.scenarios.step));
+    findings.push(window_check(&cfg.prices.display().to_string(), dates.len(), cfg.scenarios.horizon, cfg.scenarios.step));
     if assets.is_empty() {
         findings.push(Check::fail("quality.no_assets", "every asset was dropped by the fill policy; nothing to optimise"));
     } else {
@@ -168,11 +202,11 @@ fn build(cfg: &Config, hist: PriceHistory, meta: Vec<AssetMeta>, as_of: NaiveDat
     Ok(MarketData { as_of, history, dates, assets, prices, full_dates: hist.dates, full_prices: full, meta: metas, holdings, quality, layout: hist.layout })
 }
 
-fn window_check(rows: usize, horizon: usize, step: usize) -> Check {
+fn window_check(file: &str, rows: usize, horizon: usize, step: usize) -> Check {
     let scenarios = if rows > horizon { (rows - horizon - 1) / step + 1 } else { 0 };
     if scenarios < MIN_SCENARIOS {
         Check::fail("quality.too_few_scenarios", format!(
-            "the window has {rows} observations, giving {scenarios} scenarios of horizon {horizon} (step {step}); at least {MIN_SCENARIOS} are needed: lengthen scenarios.lookback_years, shorten scenarios.horizon or supply more history"))
+            "{file}: the scenario window has {rows} observations, giving {scenarios} scenarios of horizon {horizon} (step {step}); at least {MIN_SCENARIOS} are needed: lengthen scenarios.lookback_years, shorten scenarios.horizon or supply more history"))
     } else {
         Check::pass("quality.scenario_count", format!("{scenarios} scenarios from {rows} observations (horizon {horizon}, step {step})"))
     }

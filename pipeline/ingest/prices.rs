@@ -1,7 +1,8 @@
 //! Turning a text table into a dated price history, long or wide.
 //!
 //! Dates must be ISO (`YYYY-MM-DD`); a price is a finite decimal number, a blank, `NA` or `NaN` cell is a
-//! missing value (handled later by the fill policy). Errors name the file, the row and the column.
+//! missing value (handled later by the fill policy), but a column without a single price is an error. Errors
+//! name the file, the row and the column.
 
 use super::table::{truncate, TextTable};
 use crate::config::Layout;
@@ -26,7 +27,7 @@ pub struct PriceHistory {
 /// Parses an ISO date, naming the place on failure.
 pub fn parse_date(path: &Path, place: &str, column: &str, text: &str) -> Result<NaiveDate> {
     let t = text.trim();
-    NaiveDate::parse_from_str(t, "%Y-%m-%d").map_err(|_| {
+    iso_date(t).ok_or_else(|| {
         let hint = if NaiveDate::parse_from_str(t, "%d/%m/%Y").is_ok() || NaiveDate::parse_from_str(t, "%m/%d/%Y").is_ok() {
             "; dates must be ISO YYYY-MM-DD (this looks like a day/month format)"
         } else {
@@ -34,6 +35,15 @@ pub fn parse_date(path: &Path, place: &str, column: &str, text: &str) -> Result<
         };
         Error::data(path, format!("{place}, column `{column}`: `{}` is not a valid date{hint}", truncate(t, 40)))
     })
+}
+
+/// A date written exactly `YYYY-MM-DD` (four-digit year, two-digit month and day) that exists. chrono alone
+/// would also take `2024-1-5` or a six-digit year at the end of its calendar, where the month-end logic
+/// has no next day.
+fn iso_date(t: &str) -> Option<NaiveDate> {
+    let b = t.as_bytes();
+    let shape = b.len() == 10 && b[4] == b'-' && b[7] == b'-' && b.iter().enumerate().all(|(i, c)| i == 4 || i == 7 || c.is_ascii_digit());
+    shape.then(|| NaiveDate::parse_from_str(t, "%Y-%m-%d").ok()).flatten()
 }
 
 /// Parses a price cell: `None` for a missing value, an error for text or a non-finite number.
@@ -50,17 +60,44 @@ pub fn parse_price(path: &Path, place: &str, column: &str, cell: Option<&str>) -
     }
 }
 
+/// Parses the contents of a price file (CSV or Parquet by the extension of `path`, which also names the
+/// file in messages) into a price history: the whole reader from bytes, for callers and fuzz targets that
+/// hold the file in memory.
+pub fn parse_prices(path: &Path, bytes: &[u8], layout: Layout) -> Result<PriceHistory> {
+    from_table(path, &super::table::parse_table(path, bytes)?, layout)
+}
+
 /// Builds the price history, detecting the layout when asked to.
 pub fn from_table(path: &Path, t: &TextTable, layout: Layout) -> Result<PriceHistory> {
     if t.rows() == 0 {
-        return Err(Error::data(path, "has a header but no data rows"));
+        return Err(Error::data(path, format!("{}: no data rows follow the header; the file needs at least one dated row of prices", t.header_place())));
     }
-    let date_col = t.find("date").ok_or_else(|| Error::data(path, format!("has no `date` column (columns: {})", truncate(&t.names.join(", "), 80))))?;
+    let date_col = t.find("date").ok_or_else(|| no_date_column(path, t))?;
     let is_long = t.find("asset").is_some() && t.find("price").is_some() && t.names.len() == 3;
-    match (layout, is_long) {
+    let hist = match (layout, is_long) {
         (Layout::Long, _) | (Layout::Auto, true) => long(path, t, date_col),
         (Layout::Wide, _) | (Layout::Auto, false) => wide(path, t, date_col),
-    }
+    }?;
+    check_some_price(path, t, &hist)?;
+    Ok(hist)
+}
+
+/// A missing `date` column, with a hint when the header itself looks like a row of data.
+fn no_date_column(path: &Path, t: &TextTable) -> Error {
+    let looks_like_data = t.names.first().is_some_and(|n| iso_date(n.trim()).is_some());
+    let hint = if looks_like_data { "; the first line looks like data: add a header line such as `date,AS01,AS02`" } else { "" };
+    Error::data(path, format!("{}: has no `date` column (columns: {}){hint}", t.header_place(), truncate(&t.names.join(", "), 80)))
+}
+
+/// An asset without a single price is a broken feed, not a history that starts late: it stops the run
+/// rather than being dropped quietly by the fill policy.
+fn check_some_price(path: &Path, t: &TextTable, h: &PriceHistory) -> Result<()> {
+    let Some((a, _)) = h.assets.iter().zip(&h.values).find(|(_, v)| v.iter().all(Option::is_none)) else { return Ok(()) };
+    let what = match h.layout {
+        Layout::Long => format!("asset `{a}` (column `asset`): none of its rows has a price"),
+        _ => format!("column `{a}`: no price in any of its {} rows ({} to {})", t.rows(), t.place(0), t.place(t.rows() - 1)),
+    };
+    Err(Error::data(path, format!("{what}; every cell is blank, NA or NaN: supply its prices or remove the asset from this file and from the asset metadata")))
 }
 
 fn wide(path: &Path, t: &TextTable, date_col: usize) -> Result<PriceHistory> {
@@ -87,7 +124,7 @@ fn wide(path: &Path, t: &TextTable, date_col: usize) -> Result<PriceHistory> {
 }
 
 fn long(path: &Path, t: &TextTable, date_col: usize) -> Result<PriceHistory> {
-    let need = |n: &str| t.find(n).ok_or_else(|| Error::data(path, format!("long layout needs a `{n}` column")));
+    let need = |n: &str| t.find(n).ok_or_else(|| Error::data(path, format!("{}: the long layout needs a `{n}` column", t.header_place())));
     let (asset_col, price_col) = (need("asset")?, need("price")?);
     let mut by_date: BTreeMap<NaiveDate, (String, BTreeMap<String, Option<f64>>)> = BTreeMap::new();
     let mut assets: Vec<String> = Vec::new();

@@ -1,10 +1,10 @@
 //! Data-quality checks and the fill policy, applied to the price history up to as-of.
 //!
-//! Blocking problems (non-positive prices, duplicate dates, too few scenarios) are `fail` findings; the
-//! caller turns them into an error. Everything else is a `warn` or `pass` finding that travels with the
-//! results. The fill policy: a missing price is carried forward from the last observation for at most
-//! `max_fill` consecutive observations; an asset with a longer gap inside the scenario window, or with no
-//! price at the window's start, is dropped with a warning.
+//! Blocking problems (non-positive prices, prices whose ratio overflows, duplicate dates, too few
+//! scenarios) are `fail` findings; the caller turns them into an error. Everything else is a `warn` or
+//! `pass` finding that travels with the results. The fill policy: a missing price is carried forward from
+//! the last observation for at most `max_fill` consecutive observations; an asset with a longer gap inside
+//! the scenario window, or with no price at the window's start, is dropped with a warning.
 
 use super::prices::PriceHistory;
 use crate::config::QualityOptions;
@@ -137,6 +137,24 @@ pub fn non_positive(path: &str, h: &PriceHistory) -> Vec<Check> {
             out.push(Check::fail("quality.non_positive", format!(
                 "{path}: {}, column `{a}`: price {p} on {} is not positive; prices must be > 0 (correct the feed or leave the cell blank)",
                 h.places[r], h.dates[r])));
+        }
+    }
+    out
+}
+
+/// Prices whose ratio overflows a 64-bit float: blocking. Every return of the run is a ratio of two prices
+/// of one asset, so the largest over the smallest must be finite; otherwise scenarios would hold infinite
+/// returns (a subnormal price such as 1e-320 is the usual cause: a feed in the wrong units or a corrupt
+/// cell), which no LP can solve and no statistic survives.
+pub fn overflowing_range(path: &str, h: &PriceHistory) -> Vec<Check> {
+    let mut out = Vec::new();
+    for (a, col) in h.assets.iter().zip(&h.values) {
+        let priced = || col.iter().enumerate().filter_map(|(r, v)| v.filter(|p| *p > 0.0).map(|p| (r, p)));
+        let (Some(lo), Some(hi)) = (priced().min_by(|x, y| x.1.total_cmp(&y.1)), priced().max_by(|x, y| x.1.total_cmp(&y.1))) else { continue };
+        if !(hi.1 / lo.1).is_finite() {
+            out.push(Check::fail("quality.price_range", format!(
+                "{path}: {}, column `{a}`: price {:e} is so small next to {:e} (at {}) that their ratio overflows; returns cannot be computed: check the prices' units or the cell",
+                h.places[lo.0], lo.1, hi.1, h.places[hi.0])));
         }
     }
     out

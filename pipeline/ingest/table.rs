@@ -2,7 +2,9 @@
 //!
 //! Every cell becomes an optional string so that one parser downstream checks values and reports the exact
 //! row and column of a bad one. Leading `#` lines of a CSV are comments (the demo files say there that their
-//! data is synthetic); the line numbers in messages count them.
+//! data is synthetic); the line numbers in messages count them. Before polars sees a CSV, its lines are
+//! checked here (encoding, line ends, header names, one field per header column on every row), so that a
+//! malformed file is reported at its line rather than misread or reported without a place.
 
 use crate::error::{Error, Result};
 use polars::prelude::*;
@@ -34,6 +36,15 @@ impl TextTable {
         }
     }
 
+    /// Where the header is, for messages: "line 2 (header)" for CSV, "the column list" for Parquet.
+    pub fn header_place(&self) -> String {
+        if self.is_csv {
+            format!("line {} (header)", self.first_line - 1)
+        } else {
+            "the column list".to_string()
+        }
+    }
+
     /// Index of a column by case-insensitive name.
     pub fn find(&self, name: &str) -> Option<usize> {
         self.names.iter().position(|n| n.trim().eq_ignore_ascii_case(name))
@@ -42,75 +53,191 @@ impl TextTable {
 
 /// Reads `path` as CSV or Parquet (chosen by extension: `.parquet`/`.pq` is Parquet, anything else CSV).
 pub fn read_table(path: &Path) -> Result<TextTable> {
+    parse_table(path, &crate::error::fs::read(path)?)
+}
+
+/// Parses the contents of a file as CSV or Parquet, chosen by the extension of `path`, which otherwise only
+/// names the file in messages. Any bytes give a table or an error, never a panic (the fuzz targets in
+/// `fuzz/` hold this function to that).
+pub fn parse_table(path: &Path, bytes: &[u8]) -> Result<TextTable> {
     let ext = path.extension().and_then(|e| e.to_str()).unwrap_or("").to_ascii_lowercase();
     if ext == "parquet" || ext == "pq" {
-        read_parquet(path)
+        parse_parquet(path, bytes)
     } else {
-        read_csv(path)
+        parse_csv(path, bytes)
     }
 }
 
-fn read_csv(path: &Path) -> Result<TextTable> {
-    let bytes = crate::error::fs::read(path)?;
-    let text = std::str::from_utf8(&bytes)
-        .map_err(|e| Error::data(path, format!("is not UTF-8 text (byte {}); save it as UTF-8 CSV", e.valid_up_to())))?;
-    let text = text.strip_prefix('\u{feff}').unwrap_or(text);
-    let comments = text.lines().take_while(|l| l.trim_start().starts_with('#')).count();
-    let header = text.lines().nth(comments).unwrap_or("");
-    if header.trim().is_empty() {
-        return Err(Error::data(path, "is empty: expected a header line such as `date,ASSET1,ASSET2` or `date,asset,price`"));
+/// A CSV file's text split into its parts: leading comment lines, the header line and the data lines.
+struct CsvText<'a> {
+    comments: usize,
+    header: &'a str,
+    /// Data lines after the header, trailing blank lines removed.
+    body: Vec<&'a str>,
+}
+
+impl CsvText<'_> {
+    /// 1-based file line number of the header.
+    fn header_line(&self) -> usize {
+        self.comments + 1
     }
-    check_delimiter(path, header)?;
-    let body: String = text.lines().skip(comments).flat_map(|l| [l, "\n"]).collect();
-    let cursor = std::io::Cursor::new(body.into_bytes());
+}
+
+fn parse_csv(path: &Path, bytes: &[u8]) -> Result<TextTable> {
+    let text = csv_text(path, bytes)?;
+    let csv = split_lines(path, text)?;
+    check_delimiter(path, &csv)?;
+    let names = check_names(path, &csv)?;
+    check_rows(path, &csv, names.len())?;
+    let mut body = String::with_capacity(text.len());
+    for l in std::iter::once(csv.header).chain(csv.body.iter().copied()) {
+        body.push_str(l);
+        body.push('\n');
+    }
     let df = CsvReadOptions::default()
         .with_has_header(true)
         .with_infer_schema_length(Some(0))
         .with_raise_if_empty(false)
         .map_parse_options(|o| o.with_missing_is_null(true))
-        .into_reader_with_file_handle(cursor)
+        .into_reader_with_file_handle(std::io::Cursor::new(body.into_bytes()))
         .finish()
         .map_err(|e| Error::data(path, format!("cannot be read as CSV: {e}")))?;
     let mut table = frame_to_text(path, &df)?;
-    table.first_line = comments + 2;
+    table.first_line = csv.header_line() + 1;
     table.is_csv = true;
-    check_names(path, &table, header)?;
+    if table.names.len() != names.len() || table.rows() != csv.body.len() {
+        // The line checks above should make this impossible; if the CSV reader still disagrees with them,
+        // say so rather than report rows at the wrong lines.
+        return Err(Error::data(path, format!("the CSV reader found {} columns and {} rows where the lines give {} and {}; check the file for quotes that span lines", table.names.len(), table.rows(), names.len(), csv.body.len())));
+    }
     Ok(table)
 }
 
-fn check_delimiter(path: &Path, header: &str) -> Result<()> {
+/// The file as UTF-8 text without a byte-order mark. A UTF-8 byte-order mark is accepted and dropped
+/// (spreadsheet programs write one); UTF-16 and other encodings are errors naming the line and byte.
+fn csv_text<'a>(path: &Path, bytes: &'a [u8]) -> Result<&'a str> {
+    if bytes.starts_with(&[0xFF, 0xFE]) || bytes.starts_with(&[0xFE, 0xFF]) {
+        return Err(Error::data(path, "line 1, byte 0: the file is UTF-16 text (it starts with a UTF-16 byte-order mark); save it as UTF-8 CSV"));
+    }
+    let text = std::str::from_utf8(bytes).map_err(|e| {
+        let at = e.valid_up_to();
+        let line = bytes[..at].iter().filter(|b| **b == b'\n').count() + 1;
+        Error::data(path, format!("line {line}, byte {at}: not UTF-8 text; save the file as UTF-8 CSV"))
+    })?;
+    Ok(text.strip_prefix('\u{feff}').unwrap_or(text))
+}
+
+/// Splits the text into comment lines, header and data lines; an empty file, a file of comments only and
+/// a file whose lines end in a bare carriage return are errors.
+fn split_lines<'a>(path: &Path, text: &'a str) -> Result<CsvText<'a>> {
+    if text.contains('\r') && !text.contains('\n') {
+        return Err(Error::data(path, "line 1: the lines end in a bare carriage return (`\\r`, an old Mac format); save the file with LF or CRLF line ends"));
+    }
+    if text.trim().is_empty() {
+        return Err(Error::data(path, "line 1: the file is empty; expected a header line such as `date,AS01,AS02` or `date,asset,price`"));
+    }
+    let mut lines = text.lines();
+    let comments = text.lines().take_while(|l| l.trim_start().starts_with('#')).count();
+    let header = lines.nth(comments).unwrap_or("");
+    if header.trim().is_empty() {
+        return Err(Error::data(path, format!("line {}: expected a header line such as `date,AS01,AS02` or `date,asset,price` after {comments} comment line(s), found {}", comments + 1, if comments == text.lines().count() { "the end of the file" } else { "a blank line" })));
+    }
+    let mut body: Vec<&str> = lines.collect();
+    while body.last().is_some_and(|l| l.trim().is_empty()) {
+        body.pop();
+    }
+    Ok(CsvText { comments, header, body })
+}
+
+fn check_delimiter(path: &Path, csv: &CsvText) -> Result<()> {
+    let (line, header) = (csv.header_line(), csv.header);
     if header.contains(',') {
         return Ok(());
     }
     for (sep, name) in [(';', "semicolons"), ('\t', "tabs"), ('|', "pipes")] {
         if header.contains(sep) {
-            return Err(Error::data(path, format!("line 1 (header) is separated by {name}; tailpack reads comma-separated files: convert the delimiter to `,`")));
+            return Err(Error::data(path, format!("line {line} (header) is separated by {name}; tailpack reads comma-separated files: convert the delimiter to `,`")));
         }
     }
-    Err(Error::data(path, format!("header `{}` has a single column; expected `date` followed by asset columns, or `date,asset,price`", truncate(header, 60))))
+    Err(Error::data(path, format!("line {line} (header) `{}` has a single column; expected `date` followed by asset columns, or `date,asset,price`", truncate(header, 60))))
 }
 
-fn check_names(path: &Path, t: &TextTable, header: &str) -> Result<()> {
-    let mut seen = std::collections::HashSet::new();
-    for raw in header.split(',') {
-        let name = raw.trim().trim_matches('"');
+/// The header's column names, each non-empty and distinct.
+fn check_names(path: &Path, csv: &CsvText) -> Result<Vec<String>> {
+    let line = csv.header_line();
+    let (cells, open) = split_fields(csv.header);
+    if open {
+        return Err(Error::data(path, format!("line {line} (header): a quoted name is not closed on its line")));
+    }
+    let names: Vec<String> = cells.iter().map(|c| c.trim().trim_matches('"').trim().to_string()).collect();
+    // A map, not a scan of the names before each one: a header line of megabytes stays linear.
+    let mut seen = std::collections::HashMap::with_capacity(names.len());
+    for (i, name) in names.iter().enumerate() {
         if name.is_empty() {
-            return Err(Error::data(path, "header has an empty column name; every column needs a name"));
+            return Err(Error::data(path, format!("line {line} (header), column {}: the column name is empty; every column needs a name", i + 1)));
         }
-        if !seen.insert(name.to_string()) {
-            return Err(Error::data(path, format!("header names column `{name}` twice; each asset may appear once")));
+        if let Some(j) = seen.insert(name.as_str(), i) {
+            return Err(Error::data(path, format!("line {line} (header), columns {} and {}: both are named `{}`; each column (each asset) may appear once", j + 1, i + 1, truncate(name, 40))));
         }
     }
-    debug_assert!(t.names.len() == seen.len());
+    Ok(names)
+}
+
+/// Every data line must be non-blank, close its quotes and have as many fields as the header; otherwise the
+/// CSV reader would silently fill short rows with missing values or report an error without a line.
+fn check_rows(path: &Path, csv: &CsvText, width: usize) -> Result<()> {
+    for (r, l) in csv.body.iter().enumerate() {
+        let place = format!("row {} (line {})", r + 1, csv.header_line() + 1 + r);
+        if l.trim().is_empty() {
+            return Err(Error::data(path, format!("{place} is blank; remove blank lines inside the table")));
+        }
+        let (cells, open) = split_fields(l);
+        if open {
+            return Err(Error::data(path, format!("{place}: a quoted value is not closed on its line")));
+        }
+        if cells.len() != width {
+            let hint = if cells.len() > width {
+                "a decimal comma (write 20.5, not 20,5), a thousands separator or a comma inside an unquoted value?"
+            } else {
+                "a missing separator or a cut-off line? leave a missing price as an empty cell between commas"
+            };
+            return Err(Error::data(path, format!("{place} has {} fields but the header (line {}) has {width}: {hint}", cells.len(), csv.header_line())));
+        }
+    }
     Ok(())
 }
 
-fn read_parquet(path: &Path) -> Result<TextTable> {
-    let file = std::fs::File::open(path)
-        .map_err(|source| Error::Io { action: "cannot open", path: path.to_path_buf(), source })?;
-    let df = ParquetReader::new(file)
+/// Splits one line at commas outside double quotes; the flag says whether a quote was left open.
+fn split_fields(line: &str) -> (Vec<&str>, bool) {
+    let (mut cells, mut start, mut quoted) = (Vec::new(), 0, false);
+    for (i, ch) in line.char_indices() {
+        match ch {
+            '"' => quoted = !quoted,
+            ',' if !quoted => {
+                cells.push(&line[start..i]);
+                start = i + 1;
+            }
+            _ => {}
+        }
+    }
+    cells.push(&line[start..]);
+    (cells, quoted)
+}
+
+/// The four bytes that open and close every Parquet file.
+const PARQUET_MAGIC: &[u8; 4] = b"PAR1";
+
+fn parse_parquet(path: &Path, bytes: &[u8]) -> Result<TextTable> {
+    let n = bytes.len();
+    if n < 12 || !bytes.starts_with(PARQUET_MAGIC) {
+        return Err(Error::data(path, format!("byte 0: not a Parquet file (it is {n} bytes and does not start with the Parquet marker `PAR1`); write the prices as Parquet or CSV")));
+    }
+    if !bytes.ends_with(PARQUET_MAGIC) {
+        return Err(Error::data(path, format!("byte {}: the Parquet file is truncated (it is {n} bytes and does not end with the Parquet marker `PAR1`); copy or write the file again", n - 4)));
+    }
+    let df = ParquetReader::new(std::io::Cursor::new(bytes))
         .finish()
-        .map_err(|e| Error::data(path, format!("cannot be read as Parquet (truncated or not a Parquet file?): {e}")))?;
+        .map_err(|e| Error::data(path, format!("cannot be read as Parquet ({n} bytes; damaged or not written by a Parquet writer?): {e}")))?;
     frame_to_text(path, &df)
 }
 

@@ -20,6 +20,9 @@ use serde::Serialize;
 
 /// Tolerance of the post-solve feasibility check on reported portfolios.
 pub const FEASIBILITY_TOLERANCE: f64 = 1e-7;
+/// A post-solve violation above this is no solution at all, and the model is a `solver_error`: it would
+/// show in the pack's figures, which print weights and losses to 0.01% = 1e-4.
+pub const NOT_A_SOLUTION: f64 = 1e-4;
 /// Below this, a Charnes–Cooper scale t is treated as zero (the ratio would be ill-defined).
 pub const MIN_SCALE: f64 = 1e-9;
 
@@ -329,6 +332,10 @@ pub fn outcome(p: &Problem, r: Result<Solved, Failure>, cap: Option<f64>, floor:
         Ok(mut s) => {
             tidy(&mut s.weights, p.feasible);
             let v = verify(p, &s.weights, cap, floor);
+            if !(v <= NOT_A_SOLUTION) {
+                // Clarabel (through good_lp) returns a certificate of unboundedness as if it were a solution.
+                return Outcome::failed(Status::SolverError, format!("the solver returned weights that violate the constraints by {v:.2e}, so they are not a solution (an unbounded or numerically failed LP)"));
+            }
             let message = (v > FEASIBILITY_TOLERANCE).then(|| format!(
                 "the solver's portfolio violates a constraint by {v:.2e} (tolerance {FEASIBILITY_TOLERANCE:e}); treat with care"));
             Outcome { status: Status::Optimal, message, objective: Some(s.objective), scale: s.scale, weights: Some(s.weights), max_violation: Some(v) }

@@ -138,12 +138,14 @@ fn infeasible_models_name_the_constraint_and_others_still_run() {
     assert_eq!(r["models"]["min_cvar"]["status"], "infeasible");
     assert!(r["models"]["min_cvar"]["message"].as_str().unwrap().contains("return_floor"));
     assert_eq!(r["models"]["max_return"]["status"], "optimal");
-    f.write("fund.yaml", &config("limits:\n  default_max: 0.1\n"));
-    f.write("data/assets.csv", "asset,class\nAS01,equity\nAS02,bond\nAS03,equity\nAS04,bond\nAS05,equity\n");
+    // Per-asset bounds that cannot meet the budget are a config error up front (tests/fixtures/bad); a
+    // group that its members' bounds cannot fill still makes every model infeasible, naming the group.
+    f.write("fund.yaml", &config("limits:\n  groups:\n    - { name: Core, assets: [AS01, AS02], min: 0.7 }\n"));
+    f.write("data/assets.csv", "asset,class,max_weight\nAS01,equity,0.3\nAS02,bond,0.3\nAS03,equity,1\nAS04,bond,1\nAS05,equity,1\n");
     let r = json(&pack_dir(&f.run(&["run", "fund.yaml", "--quiet"])).join("results.json"));
     for name in ["max_return", "min_cvar", "max_ratio"] {
         assert_eq!(r["models"][name]["status"], "infeasible");
-        assert!(r["models"][name]["message"].as_str().unwrap().contains("maximum weights sum to 0.5000 < 1"), "{}", r["models"][name]);
+        assert!(r["models"][name]["message"].as_str().unwrap().contains("group `Core` needs at least 0.7000 but its members' maximum weights sum to 0.6000"), "{}", r["models"][name]);
     }
 }
 

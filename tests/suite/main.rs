@@ -2,10 +2,13 @@
 
 mod analysis;
 mod archive;
+mod bad_inputs;
 mod cli;
 mod common;
 mod demo;
+mod faults;
 mod models;
+mod properties;
 mod report;
 mod risk;
 mod signoff;

@@ -1,0 +1,352 @@
+//! The bad-input corpus, `tests/fixtures/bad/`: one folder per input broken in one way, each beside the
+//! valid small fund `_good/` it breaks, with an `expect.yaml` that says what is wrong (`what`) and what
+//! tailpack must do: the documented exit code (README, "Exit codes"), and for an error a message naming the
+//! file (`file`, relative to the case folder) and the place in it (`place`: line, row, column, byte or key),
+//! plus further fragments (`says`). Cases that must run through say so (`exit: 0`) with the warnings they
+//! must print (`stdout`), and `same_as_good` when their results must equal the valid fund's.
+//!
+//! Every case is run by the real binary, `tailpack run`, on a copy of its folder and `_good/` in a
+//! temporary folder, and every case also checks: no panic, a short message (even for megabyte inputs), and
+//! no pack folder — finished or partial — anywhere after an error. Inputs of megabytes and Parquet files
+//! are generated here (`generate`) rather than committed.
+
+use serde::Deserialize;
+use std::path::{Path, PathBuf};
+use std::process::Command;
+
+/// A case's `expect.yaml`.
+#[derive(Debug, Deserialize)]
+#[serde(deny_unknown_fields)]
+struct Expect {
+    what: String,
+    exit: i32,
+    file: Option<String>,
+    place: Option<String>,
+    #[serde(default)]
+    says: Vec<String>,
+    #[serde(default)]
+    stdout: Vec<String>,
+    #[serde(default)]
+    args: Vec<String>,
+    /// `config` runs without `--out`, so the config's `output.root` is used (the output-folder cases).
+    output: Option<String>,
+    #[serde(default)]
+    same_as_good: bool,
+    generate: Option<String>,
+}
+
+/// Longest message an error may print: one line naming file, place and remedy, not the bad input itself.
+const MAX_STDERR: usize = 1500;
+
+fn corpus() -> PathBuf {
+    super::common::repo().join("tests/fixtures/bad")
+}
+
+macro_rules! cases {
+    ($($name:ident),* $(,)?) => {
+        $(
+            #[test]
+            fn $name() {
+                run_case(stringify!($name));
+            }
+        )*
+        /// Every case with a test, for the check that no corpus folder goes untested.
+        const CASES: &[&str] = &[$(stringify!($name)),*];
+    };
+}
+
+cases!(
+    prices_empty,
+    prices_comments_only,
+    prices_header_only,
+    prices_byte_order_mark,
+    prices_utf16,
+    prices_latin1_byte,
+    prices_semicolons,
+    prices_tabs,
+    prices_quoted_numbers,
+    prices_thousands_separator,
+    prices_decimal_comma,
+    prices_non_numeric,
+    prices_zero,
+    prices_negative,
+    prices_infinite,
+    prices_overflowing_number,
+    prices_subnormal,
+    prices_overflowing_range,
+    prices_nan_na_and_blank_cells,
+    prices_long_gap_in_held_asset,
+    prices_duplicate_dates,
+    prices_unsorted_dates,
+    prices_mixed_date_formats,
+    prices_unpadded_date,
+    prices_impossible_date,
+    prices_duplicate_asset_column,
+    prices_empty_column_name,
+    prices_no_date_column,
+    prices_missing_header,
+    prices_row_too_long,
+    prices_row_too_short,
+    prices_blank_line_inside,
+    prices_trailing_blank_lines,
+    prices_crlf_line_ends,
+    prices_cr_line_ends,
+    prices_unclosed_quote,
+    prices_all_missing_column,
+    prices_asset_missing_from_metadata,
+    metadata_asset_missing_from_prices,
+    prices_history_too_short,
+    prices_long_duplicate_pair,
+    prices_long_blank_asset,
+    prices_huge_cell,
+    prices_huge_header,
+    parquet_wrong_column_types,
+    parquet_text_date_column_garbage,
+    parquet_truncated,
+    parquet_csv_in_disguise,
+    metadata_no_class_column,
+    metadata_weight_above_one,
+    metadata_min_above_max,
+    metadata_duplicate_asset,
+    holdings_sum_below_one,
+    holdings_sum_just_outside_tolerance,
+    holdings_sum_within_tolerance,
+    holdings_negative_weight,
+    holdings_unknown_asset,
+    config_unknown_key,
+    config_unknown_section,
+    config_wrong_type,
+    config_number_for_list,
+    config_missing_required_key,
+    config_confidence_zero,
+    config_confidence_one,
+    config_level_above_one,
+    config_min_weights_sum_above_one,
+    config_max_weights_sum_below_one,
+    config_exclusions_leave_too_little,
+    config_exclude_unknown_asset,
+    config_group_unknown_asset,
+    config_group_unknown_tag_column,
+    config_turnover_without_holdings,
+    config_as_of_after_data,
+    config_as_of_before_data,
+    config_holdings_file_missing,
+    config_templates_folder_missing,
+    config_templates_folder_without_templates,
+    config_template_typst_error,
+    config_horizon_out_of_range,
+    config_horizon_negative,
+    config_two_cap_forms,
+    config_empty_file,
+    config_tab_indentation,
+    config_not_utf8,
+    output_root_is_a_file,
+    output_pack_folder_is_a_file
+);
+
+#[test]
+fn every_corpus_folder_has_its_test_and_there_are_at_least_forty() {
+    let mut folders: Vec<String> = std::fs::read_dir(corpus()).unwrap()
+        .map(|e| e.unwrap())
+        .filter(|e| e.file_type().unwrap().is_dir())
+        .map(|e| e.file_name().to_string_lossy().into_owned())
+        .filter(|n| n != "_good")
+        .collect();
+    folders.sort();
+    let mut listed: Vec<String> = CASES.iter().map(|s| s.to_string()).collect();
+    listed.sort();
+    assert_eq!(folders, listed, "every folder of tests/fixtures/bad needs a line in cases!(…) and the reverse");
+    assert!(listed.len() >= 40, "the issue asks for at least 40 cases, found {}", listed.len());
+}
+
+#[test]
+fn the_good_fund_the_cases_break_is_valid() {
+    let dir = tempfile::tempdir().unwrap();
+    copy_dir(&corpus().join("_good"), &dir.path().join("_good"));
+    let ran = run(dir.path(), &["run", "_good/fund.yaml", "--quiet", "--out", "out"]);
+    assert_eq!(ran.code, 0, "{}", ran.stderr);
+    assert!(find(dir.path(), &|p| p.ends_with("results.json")).is_some());
+}
+
+/// What a run printed.
+struct Ran {
+    code: i32,
+    stdout: String,
+    stderr: String,
+}
+
+fn run(dir: &Path, args: &[&str]) -> Ran {
+    let out = Command::new(env!("CARGO_BIN_EXE_tailpack")).args(args).current_dir(dir).output().expect("binary runs");
+    Ran { code: out.status.code().unwrap_or(-1), stdout: String::from_utf8_lossy(&out.stdout).into(), stderr: String::from_utf8_lossy(&out.stderr).into() }
+}
+
+fn run_case(name: &str) {
+    let text = std::fs::read_to_string(corpus().join(name).join("expect.yaml")).unwrap();
+    let e: Expect = serde_yaml_ng::from_str(&text).unwrap_or_else(|err| panic!("{name}/expect.yaml: {err}"));
+    let tmp = tempfile::tempdir().unwrap();
+    let root = tmp.path();
+    copy_dir(&corpus().join("_good"), &root.join("_good"));
+    copy_dir(&corpus().join(name), &root.join(name));
+    let mut needles: Vec<String> = e.says.clone();
+    if let Some(g) = &e.generate {
+        needles.extend(generate(g, &root.join(name)));
+    }
+    let config = format!("{name}/fund.yaml");
+    let mut args: Vec<&str> = vec!["run", &config, "--quiet"];
+    if e.output.as_deref() != Some("config") {
+        args.extend(["--out", "out"]);
+    }
+    args.extend(e.args.iter().map(String::as_str));
+    let ran = run(root, &args);
+    let shown = format!("case {name} ({}):\nexit {}\nstdout: {}\nstderr: {}", e.what, ran.code, ran.stdout, ran.stderr);
+    assert_eq!(ran.code, e.exit, "exit code; {shown}");
+    assert!(!ran.stderr.contains("panicked") && !ran.stdout.contains("panicked"), "a panic; {shown}");
+    if e.exit == 0 {
+        passed(name, &e, root, &ran, &shown);
+    } else {
+        failed(name, &e, root, &ran, &needles, &shown);
+    }
+}
+
+/// An error: file, place and fragments named, the message short, no pack anywhere.
+fn failed(name: &str, e: &Expect, root: &Path, ran: &Ran, needles: &[String], shown: &str) {
+    let file = e.file.as_ref().unwrap_or_else(|| panic!("{name}: an error case must say which file the message names"));
+    let place = e.place.as_ref().unwrap_or_else(|| panic!("{name}: an error case must say which place the message names"));
+    let file = format!("{name}/{file}");
+    assert!(ran.stderr.contains(&file), "the message must name the file `{file}`; {shown}");
+    assert!(ran.stderr.contains(place.as_str()), "the message must name the place `{place}`; {shown}");
+    for n in needles {
+        assert!(ran.stderr.contains(n.as_str()), "the message must say `{n}`; {shown}");
+    }
+    assert!(ran.stderr.len() <= MAX_STDERR, "the message must stay short ({} bytes); {}", ran.stderr.len(), &shown[..shown.len().min(3000)]);
+    let pack = find(root, &|p| {
+        let n = p.file_name().map(|n| n.to_string_lossy().into_owned()).unwrap_or_default();
+        n.starts_with(".partial-") || n == "results.json" || n == "pack.pdf"
+    });
+    assert!(pack.is_none(), "no pack folder may exist after an error, found {:?}; {shown}", pack);
+}
+
+/// A run that must go through: its warnings printed, one pack written, and the valid fund's results where
+/// the case only changes the form of the input.
+fn passed(name: &str, e: &Expect, root: &Path, ran: &Ran, shown: &str) {
+    for n in &e.stdout {
+        assert!(ran.stdout.contains(n.as_str()), "stdout must say `{n}`; {shown}");
+    }
+    let dir = PathBuf::from(ran.stdout.lines().last().expect("stdout names the pack folder"));
+    assert!(dir.join("results.json").is_file() && dir.join("pack.pdf").is_file(), "a complete pack; {shown}");
+    if e.same_as_good {
+        let good = run(root, &["run", "_good/fund.yaml", "--quiet", "--out", "out-good"]);
+        assert_eq!(good.code, 0, "{}", good.stderr);
+        let gdir = PathBuf::from(good.stdout.lines().last().unwrap());
+        let (a, b) = (super::common::json(&dir.join("results.json")), super::common::json(&gdir.join("results.json")));
+        for key in ["models", "current", "constraints"] {
+            assert_eq!(a[key], b[key], "case {name}: results.json `{key}` must equal the valid fund's");
+        }
+        assert_eq!(std::fs::read(dir.join("scenarios.csv")).unwrap(), std::fs::read(gdir.join("scenarios.csv")).unwrap(), "case {name}: the same scenarios");
+    }
+}
+
+/// Writes a generated input into the case folder; returns further fragments the message must contain.
+fn generate(what: &str, dir: &Path) -> Vec<String> {
+    let good = std::fs::read_to_string(corpus().join("_good/data/prices.csv")).unwrap();
+    match what {
+        "huge_cell" => {
+            // 4 MB in the AS02 cell of data row 5 (file line 7): digits with one letter in the middle.
+            let cell = format!("{}x{}", "1".repeat(2 << 20), "2".repeat(2 << 20));
+            let mut lines: Vec<String> = good.lines().map(String::from).collect();
+            let mut cells: Vec<String> = lines[6].split(',').map(String::from).collect();
+            cells[2] = cell;
+            lines[6] = cells.join(",");
+            std::fs::write(dir.join("prices.csv"), lines.join("\n") + "\n").unwrap();
+            vec![]
+        }
+        "huge_header" => {
+            let names: Vec<String> = (0..300_000).map(|i| format!("AS{i:07}")).collect();
+            let text = format!("# generated: one header line of 3 MB\ndate,{}\n", names.join(","));
+            assert!(text.len() > 3_000_000);
+            std::fs::write(dir.join("prices.csv"), text).unwrap();
+            vec![]
+        }
+        "parquet_wrong_types" => {
+            let (dates, cols) = good_columns(&good);
+            let flags: Vec<bool> = cols[1].iter().map(|p| *p > 50.0).collect();
+            write_parquet(&dir.join("prices.parquet"), date_column(&dates), vec![("AS01", Some(cols[0].clone()), None), ("AS02", None, Some(flags)), ("AS03", Some(cols[2].clone()), None)]);
+            vec![]
+        }
+        "parquet_bad_date" => {
+            let (mut dates, cols) = good_columns(&good);
+            dates[2] = "03.01.2024".into();
+            let date = polars::prelude::Column::new("date".into(), dates);
+            write_parquet(&dir.join("prices.parquet"), date, vec![("AS01", Some(cols[0].clone()), None), ("AS02", Some(cols[1].clone()), None), ("AS03", Some(cols[2].clone()), None)]);
+            vec![]
+        }
+        "parquet_truncated" => {
+            let (dates, cols) = good_columns(&good);
+            let path = dir.join("prices.parquet");
+            write_parquet(&path, date_column(&dates), vec![("AS01", Some(cols[0].clone()), None), ("AS02", Some(cols[1].clone()), None), ("AS03", Some(cols[2].clone()), None)]);
+            let bytes = std::fs::read(&path).unwrap();
+            let half = bytes.len() / 2;
+            std::fs::write(&path, &bytes[..half]).unwrap();
+            // The message names the byte where the closing marker `PAR1` should start.
+            vec![format!("byte {}", half - 4), format!("it is {half} bytes")]
+        }
+        other => panic!("unknown generator `{other}`"),
+    }
+}
+
+/// The valid fund's dates and its three price columns.
+fn good_columns(text: &str) -> (Vec<String>, Vec<Vec<f64>>) {
+    let rows: Vec<Vec<&str>> = text.lines().filter(|l| !l.starts_with('#')).skip(1).map(|l| l.split(',').collect()).collect();
+    let dates = rows.iter().map(|r| r[0].to_string()).collect();
+    let cols = (1..4).map(|c| rows.iter().map(|r| r[c].parse().unwrap()).collect()).collect();
+    (dates, cols)
+}
+
+fn date_column(dates: &[String]) -> polars::prelude::Column {
+    use polars::prelude::*;
+    Column::new("date".into(), dates.to_vec()).cast(&DataType::Date).unwrap()
+}
+
+/// Writes a Parquet file: the date column, then each asset as Float64 or Boolean values.
+fn write_parquet(path: &Path, date: polars::prelude::Column, assets: Vec<(&str, Option<Vec<f64>>, Option<Vec<bool>>)>) {
+    use polars::prelude::*;
+    let mut cols = vec![date];
+    for (name, f, b) in assets {
+        cols.push(match (f, b) {
+            (Some(v), _) => Column::new(name.into(), v),
+            (None, Some(v)) => Column::new(name.into(), v),
+            _ => unreachable!(),
+        });
+    }
+    let mut df = DataFrame::new_infer_height(cols).unwrap();
+    ParquetWriter::new(std::fs::File::create(path).unwrap()).finish(&mut df).unwrap();
+}
+
+fn copy_dir(from: &Path, to: &Path) {
+    std::fs::create_dir_all(to).unwrap();
+    for entry in std::fs::read_dir(from).unwrap() {
+        let entry = entry.unwrap();
+        let target = to.join(entry.file_name());
+        if entry.file_type().unwrap().is_dir() {
+            copy_dir(&entry.path(), &target);
+        } else {
+            std::fs::copy(entry.path(), target).unwrap();
+        }
+    }
+}
+
+/// The first path under `dir` (recursively) for which `hit` holds.
+fn find(dir: &Path, hit: &dyn Fn(&Path) -> bool) -> Option<PathBuf> {
+    for entry in std::fs::read_dir(dir).ok()? {
+        let p = entry.ok()?.path();
+        if hit(&p) {
+            return Some(p);
+        }
+        if p.is_dir() {
+            if let Some(found) = find(&p, hit) {
+                return Some(found);
+            }
+        }
+    }
+    None
+}
