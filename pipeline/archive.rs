@@ -8,10 +8,10 @@
 //! folder inside the archive and renamed into place when complete; a file lock serialises runs.
 
 use crate::config::Config;
-use crate::error::{fs, Error, Result};
-use crate::pack::{hex, InputFile};
+use crate::error::{Error, Result, fs};
+use crate::pack::{InputFile, hex};
 use chrono::NaiveDate;
-use serde_json::{json, Value};
+use serde_json::{Value, json};
 use sha2::{Digest, Sha256};
 use std::path::{Path, PathBuf};
 use std::time::{Duration, Instant};
@@ -51,18 +51,37 @@ fn sha(bytes: &[u8]) -> String {
 
 fn archived(role: &'static str, name: String, source: Option<PathBuf>, bytes: Vec<u8>) -> Archived {
     let sha256 = sha(&bytes);
-    Archived { role, name, source, bytes, sha256 }
+    Archived {
+        role,
+        name,
+        source,
+        bytes,
+        sha256,
+    }
 }
 
 fn ext(p: &Path) -> String {
-    p.extension().and_then(|e| e.to_str()).map(|e| format!(".{e}")).unwrap_or_default()
+    p.extension()
+        .and_then(|e| e.to_str())
+        .map(|e| format!(".{e}"))
+        .unwrap_or_default()
 }
 
 /// Reads every input of a run (config, data files, stress file, effective templates, run options).
 pub fn plan(cfg: &Config, as_of: NaiveDate) -> Result<Plan> {
-    let mut files = vec![archived("config", "config.yaml".into(), Some(cfg.path.clone()), fs::read(&cfg.path)?)];
+    let mut files = vec![archived(
+        "config",
+        "config.yaml".into(),
+        Some(cfg.path.clone()),
+        fs::read(&cfg.path)?,
+    )];
     let mut add = |role: &'static str, p: &Path| -> Result<()> {
-        files.push(archived(role, format!("{role}{}", ext(p)), Some(p.to_path_buf()), fs::read(p)?));
+        files.push(archived(
+            role,
+            format!("{role}{}", ext(p)),
+            Some(p.to_path_buf()),
+            fs::read(p)?,
+        ));
         Ok(())
     };
     add("prices", &cfg.prices)?;
@@ -71,16 +90,34 @@ pub fn plan(cfg: &Config, as_of: NaiveDate) -> Result<Plan> {
         add("holdings", h)?;
     }
     if let Some(s) = &cfg.stress_file {
-        files.push(archived("stress", "stress.yaml".into(), Some(s.clone()), fs::read(s)?));
+        files.push(archived(
+            "stress",
+            "stress.yaml".into(),
+            Some(s.clone()),
+            fs::read(s)?,
+        ));
     }
     files.extend(templates(cfg)?);
     let run = json!({"as_of": as_of.to_string(), "backend": cfg.backend.name(), "fund": cfg.short_name, "tool": format!("tailpack {}", env!("CARGO_PKG_VERSION"))});
-    files.push(archived("run", "run.json".into(), None, (serde_json::to_string_pretty(&run).expect("json") + "\n").into_bytes()));
+    files.push(archived(
+        "run",
+        "run.json".into(),
+        None,
+        (serde_json::to_string_pretty(&run).expect("json") + "\n").into_bytes(),
+    ));
     files.sort_by(|a, b| a.name.cmp(&b.name));
-    let listing: String = files.iter().map(|f| format!("{}  inputs/{}\n", f.sha256, f.name)).collect();
+    let listing: String = files
+        .iter()
+        .map(|f| format!("{}  inputs/{}\n", f.sha256, f.name))
+        .collect();
     let pack_id = sha(listing.as_bytes());
     let folder = cfg.out_root.join(&cfg.short_name).join(as_of.to_string());
-    Ok(Plan { files, listing, pack_id, folder })
+    Ok(Plan {
+        files,
+        listing,
+        pack_id,
+        folder,
+    })
 }
 
 /// The effective template files: built-in defaults not overridden, plus every file of the custom folder.
@@ -88,40 +125,87 @@ fn templates(cfg: &Config) -> Result<Vec<Archived>> {
     let mut custom = Vec::new();
     if let Some(dir) = &cfg.templates {
         for p in walk(dir)? {
-            let rel = p.strip_prefix(dir).expect("below dir").to_string_lossy().replace('\\', "/");
-            custom.push(archived("template", format!("templates/{rel}"), Some(p.clone()), fs::read(&p)?));
+            let rel = p
+                .strip_prefix(dir)
+                .expect("below dir")
+                .to_string_lossy()
+                .replace('\\', "/");
+            custom.push(archived(
+                "template",
+                format!("templates/{rel}"),
+                Some(p.clone()),
+                fs::read(&p)?,
+            ));
         }
     }
-    let mut out: Vec<Archived> = crate::report::templates::DEFAULTS.iter()
+    let mut out: Vec<Archived> = crate::report::templates::DEFAULTS
+        .iter()
         .filter(|(name, _)| !custom.iter().any(|c| c.name == format!("templates/{name}")))
-        .map(|(name, text)| archived("template", format!("templates/{name}"), None, text.as_bytes().to_vec()))
+        .map(|(name, text)| {
+            archived(
+                "template",
+                format!("templates/{name}"),
+                None,
+                text.as_bytes().to_vec(),
+            )
+        })
         .collect();
     out.extend(custom);
     Ok(out)
 }
 
 fn walk(dir: &Path) -> Result<Vec<PathBuf>> {
-    let read = std::fs::read_dir(dir).map_err(|source| Error::Io { action: "cannot read folder", path: dir.into(), source })?;
-    let mut entries: Vec<PathBuf> = read.filter_map(|e| e.ok().map(|e| e.path()))
-        .filter(|p| !p.file_name().is_some_and(|n| n.to_string_lossy().starts_with('.'))).collect();
+    let read = std::fs::read_dir(dir).map_err(|source| Error::Io {
+        action: "cannot read folder",
+        path: dir.into(),
+        source,
+    })?;
+    let mut entries: Vec<PathBuf> = read
+        .filter_map(|e| e.ok().map(|e| e.path()))
+        .filter(|p| {
+            !p.file_name()
+                .is_some_and(|n| n.to_string_lossy().starts_with('.'))
+        })
+        .collect();
     entries.sort();
     let mut out = Vec::new();
     for p in entries {
-        if p.is_dir() { out.extend(walk(&p)?); } else if p.is_file() { out.push(p); }
+        if p.is_dir() {
+            out.extend(walk(&p)?);
+        } else if p.is_file() {
+            out.push(p);
+        }
     }
     Ok(out)
 }
 
 /// The inputs as listed in results.json and the manifest (archived names, never machine-specific paths).
 pub fn input_list(plan: &Plan) -> Vec<InputFile> {
-    plan.files.iter().map(|f| InputFile { role: f.role, path: format!("inputs/{}", f.name), sha256: f.sha256.clone(), bytes: f.bytes.len() as u64 }).collect()
+    plan.files
+        .iter()
+        .map(|f| InputFile {
+            role: f.role,
+            path: format!("inputs/{}", f.name),
+            sha256: f.sha256.clone(),
+            bytes: f.bytes.len() as u64,
+        })
+        .collect()
 }
 
 /// Revisions of a fund/as-of folder, ascending: (number, folder).
 pub fn revisions(folder: &Path) -> Vec<(u32, PathBuf)> {
-    let Ok(rd) = std::fs::read_dir(folder) else { return vec![] };
-    let mut out: Vec<(u32, PathBuf)> = rd.filter_map(|e| e.ok())
-        .filter_map(|e| e.file_name().to_str().and_then(|n| n.strip_prefix('r')).and_then(|n| n.parse().ok()).map(|k| (k, e.path())))
+    let Ok(rd) = std::fs::read_dir(folder) else {
+        return vec![];
+    };
+    let mut out: Vec<(u32, PathBuf)> = rd
+        .filter_map(|e| e.ok())
+        .filter_map(|e| {
+            e.file_name()
+                .to_str()
+                .and_then(|n| n.strip_prefix('r'))
+                .and_then(|n| n.parse().ok())
+                .map(|k| (k, e.path()))
+        })
         .filter(|(_, p)| p.join(MANIFEST).is_file())
         .collect();
     out.sort();
@@ -136,20 +220,34 @@ pub fn recorded_id(pack: &Path) -> Option<String> {
 
 /// The existing revision with the same pack id, if any.
 pub fn identical(plan: &Plan) -> Option<PathBuf> {
-    revisions(&plan.folder).into_iter().map(|(_, p)| p).find(|p| recorded_id(p).as_deref() == Some(plan.pack_id.as_str()))
+    revisions(&plan.folder)
+        .into_iter()
+        .map(|(_, p)| p)
+        .find(|p| recorded_id(p).as_deref() == Some(plan.pack_id.as_str()))
 }
 
 /// Inputs whose digest differs from the latest revision's listing (added, removed or changed).
 pub fn changed_inputs(previous: &Path, plan: &Plan) -> Vec<String> {
     let old = std::fs::read_to_string(previous.join(LISTING)).unwrap_or_default();
     let parse = |text: &str| -> Vec<(String, String)> {
-        text.lines().filter_map(|l| l.split_once("  ").map(|(h, n)| (n.to_string(), h.to_string()))).collect()
+        text.lines()
+            .filter_map(|l| {
+                l.split_once("  ")
+                    .map(|(h, n)| (n.to_string(), h.to_string()))
+            })
+            .collect()
     };
     let (old, new) = (parse(&old), parse(&plan.listing));
     let mut names: Vec<String> = old.iter().chain(&new).map(|(n, _)| n.clone()).collect();
     names.sort();
     names.dedup();
-    names.into_iter().filter(|n| old.iter().find(|(m, _)| m == n).map(|x| &x.1) != new.iter().find(|(m, _)| m == n).map(|x| &x.1)).collect()
+    names
+        .into_iter()
+        .filter(|n| {
+            old.iter().find(|(m, _)| m == n).map(|x| &x.1)
+                != new.iter().find(|(m, _)| m == n).map(|x| &x.1)
+        })
+        .collect()
 }
 
 /// An exclusive lock on the archive root, released when dropped (or when the process dies).
@@ -161,8 +259,16 @@ pub struct ArchiveLock {
 pub fn lock(root: &Path, timeout: Duration) -> Result<ArchiveLock> {
     fs::create_dir_all(root)?;
     let path = root.join(".tailpack.lock");
-    let file = std::fs::OpenOptions::new().create(true).truncate(false).write(true).open(&path)
-        .map_err(|source| Error::Io { action: "cannot open the archive lock", path: path.clone(), source })?;
+    let file = std::fs::OpenOptions::new()
+        .create(true)
+        .truncate(false)
+        .write(true)
+        .open(&path)
+        .map_err(|source| Error::Io {
+            action: "cannot open the archive lock",
+            path: path.clone(),
+            source,
+        })?;
     let start = Instant::now();
     let mut told = false;
     loop {
@@ -173,19 +279,30 @@ pub fn lock(root: &Path, timeout: Duration) -> Result<ArchiveLock> {
                     return Err(Error::Busy { path });
                 }
                 if !told {
-                    eprintln!("waiting for another tailpack run on this archive to finish (lock {})", path.display());
+                    eprintln!(
+                        "waiting for another tailpack run on this archive to finish (lock {})",
+                        path.display()
+                    );
                     told = true;
                 }
                 std::thread::sleep(Duration::from_millis(100));
             }
-            Err(std::fs::TryLockError::Error(source)) => return Err(Error::Io { action: "cannot lock", path, source }),
+            Err(std::fs::TryLockError::Error(source)) => {
+                return Err(Error::Io {
+                    action: "cannot lock",
+                    path,
+                    source,
+                });
+            }
         }
     }
 }
 
 /// Removes hidden temporary folders left by interrupted runs (call with the lock held).
 pub fn clean_partials(folder: &Path) {
-    let Ok(rd) = std::fs::read_dir(folder) else { return };
+    let Ok(rd) = std::fs::read_dir(folder) else {
+        return;
+    };
     for e in rd.filter_map(|e| e.ok()) {
         if e.file_name().to_string_lossy().starts_with(".partial-") {
             let _ = std::fs::remove_dir_all(e.path());
@@ -194,7 +311,13 @@ pub fn clean_partials(folder: &Path) {
 }
 
 /// Writes the archived inputs, their listing, the revision note and the manifest into `tmp`.
-pub fn seal(tmp: &Path, plan: &Plan, cfg: &Config, revision: u32, previous: Option<&Path>) -> Result<()> {
+pub fn seal(
+    tmp: &Path,
+    plan: &Plan,
+    cfg: &Config,
+    revision: u32,
+    previous: Option<&Path>,
+) -> Result<()> {
     for f in &plan.files {
         let p = tmp.join("inputs").join(&f.name);
         fs::create_dir_all(p.parent().expect("has parent"))?;
@@ -203,9 +326,16 @@ pub fn seal(tmp: &Path, plan: &Plan, cfg: &Config, revision: u32, previous: Opti
     fs::write(&tmp.join(LISTING), &plan.listing)?;
     let changed = previous.map(|p| changed_inputs(p, plan));
     if let (Some(prev), Some(changed)) = (previous, &changed) {
-        let note = format!("revision r{revision} replaces {} (pack {}); changed inputs:\n{}\n",
-            prev.file_name().unwrap_or_default().to_string_lossy(), recorded_id(prev).unwrap_or_default(),
-            changed.iter().map(|c| format!("  {c}")).collect::<Vec<_>>().join("\n"));
+        let note = format!(
+            "revision r{revision} replaces {} (pack {}); changed inputs:\n{}\n",
+            prev.file_name().unwrap_or_default().to_string_lossy(),
+            recorded_id(prev).unwrap_or_default(),
+            changed
+                .iter()
+                .map(|c| format!("  {c}"))
+                .collect::<Vec<_>>()
+                .join("\n")
+        );
         fs::write(&tmp.join(REVISION_NOTE), note)?;
     }
     let outputs = outputs(tmp)?;
@@ -224,7 +354,10 @@ pub fn seal(tmp: &Path, plan: &Plan, cfg: &Config, revision: u32, previous: Opti
             "source": f.source.as_ref().map(|s| s.display().to_string()), "sha256": f.sha256, "bytes": f.bytes.len()})).collect::<Vec<_>>(),
         "outputs": outputs,
     });
-    fs::write(&tmp.join(MANIFEST), serde_json::to_string_pretty(&manifest).expect("json") + "\n")
+    fs::write(
+        &tmp.join(MANIFEST),
+        serde_json::to_string_pretty(&manifest).expect("json") + "\n",
+    )
 }
 
 fn options(cfg: &Config) -> Value {
@@ -238,15 +371,25 @@ fn options(cfg: &Config) -> Value {
 
 /// Digests of every output file in a pack folder (everything but the manifest and the inputs).
 fn outputs(dir: &Path) -> Result<Vec<Value>> {
-    let mut names: Vec<String> = std::fs::read_dir(dir).map_err(|source| Error::Io { action: "cannot read folder", path: dir.into(), source })?
-        .filter_map(|e| e.ok()).filter(|e| e.path().is_file())
+    let mut names: Vec<String> = std::fs::read_dir(dir)
+        .map_err(|source| Error::Io {
+            action: "cannot read folder",
+            path: dir.into(),
+            source,
+        })?
+        .filter_map(|e| e.ok())
+        .filter(|e| e.path().is_file())
         .map(|e| e.file_name().to_string_lossy().into_owned())
-        .filter(|n| n != MANIFEST && n != SIGNOFF).collect();
+        .filter(|n| n != MANIFEST && n != SIGNOFF)
+        .collect();
     names.sort();
-    names.iter().map(|n| {
-        let bytes = fs::read(&dir.join(n))?;
-        Ok(json!({"file": n, "sha256": sha(&bytes), "bytes": bytes.len()}))
-    }).collect()
+    names
+        .iter()
+        .map(|n| {
+            let bytes = fs::read(&dir.join(n))?;
+            Ok(json!({"file": n, "sha256": sha(&bytes), "bytes": bytes.len()}))
+        })
+        .collect()
 }
 
 /// The sign-off record's file name (written by the sign-off commands; not an output).
@@ -260,11 +403,21 @@ pub fn write_index(root: &Path) -> Result<()> {
     for fund in sorted_dirs(root) {
         for as_of in sorted_dirs(&fund) {
             for (rev, pack) in revisions(&as_of) {
-                let m: Value = serde_json::from_slice(&fs::read(&pack.join(MANIFEST))?).unwrap_or(Value::Null);
+                let m: Value =
+                    serde_json::from_slice(&fs::read(&pack.join(MANIFEST))?).unwrap_or(Value::Null);
                 let manifest_sha = sha(&fs::read(&pack.join(MANIFEST))?);
                 let rec = crate::signoff::record(&pack).unwrap_or_default();
-                let signers: Vec<String> = crate::signoff::statements(&rec).iter().map(|s| format!("{}:{}", s.role, s.name)).collect();
-                let status = if rec.finalised.is_some() { "final" } else if signers.is_empty() { "draft" } else { "signing" };
+                let signers: Vec<String> = crate::signoff::statements(&rec)
+                    .iter()
+                    .map(|s| format!("{}:{}", s.role, s.name))
+                    .collect();
+                let status = if rec.finalised.is_some() {
+                    "final"
+                } else if signers.is_empty() {
+                    "draft"
+                } else {
+                    "signing"
+                };
                 let final_sha = rec.finalised.as_ref().map(|f| f.sha256.clone());
                 rows.push(json!({
                     "fund": fund.file_name().map(|n| n.to_string_lossy().into_owned()),
@@ -276,27 +429,63 @@ pub fn write_index(root: &Path) -> Result<()> {
             }
         }
     }
-    let mut csv = String::from("fund,as_of,revision,pack_id,status,signers,final_pdf_sha256,manifest_sha256,path\n");
+    let mut csv = String::from(
+        "fund,as_of,revision,pack_id,status,signers,final_pdf_sha256,manifest_sha256,path\n",
+    );
     for r in &rows {
         let s = |k: &str| r[k].as_str().map(str::to_string).unwrap_or_default();
-        let signers: Vec<&str> = r["signers"].as_array().map(|a| a.iter().filter_map(Value::as_str).collect()).unwrap_or_default();
-        csv.push_str(&format!("{},{},{},{},{},{},{},{},{}\n", s("fund"), s("as_of"), r["revision"], s("pack_id"), s("status"), signers.join(";"), s("final_pdf_sha256"), s("manifest_sha256"), s("path")));
+        let signers: Vec<&str> = r["signers"]
+            .as_array()
+            .map(|a| a.iter().filter_map(Value::as_str).collect())
+            .unwrap_or_default();
+        csv.push_str(&format!(
+            "{},{},{},{},{},{},{},{},{}\n",
+            s("fund"),
+            s("as_of"),
+            r["revision"],
+            s("pack_id"),
+            s("status"),
+            signers.join(";"),
+            s("final_pdf_sha256"),
+            s("manifest_sha256"),
+            s("path")
+        ));
     }
     atomic_write(&root.join("index.csv"), csv.as_bytes())?;
-    atomic_write(&root.join("index.json"), (serde_json::to_string_pretty(&rows).expect("json") + "\n").as_bytes())
+    atomic_write(
+        &root.join("index.json"),
+        (serde_json::to_string_pretty(&rows).expect("json") + "\n").as_bytes(),
+    )
 }
 
 fn sorted_dirs(dir: &Path) -> Vec<PathBuf> {
-    let Ok(rd) = std::fs::read_dir(dir) else { return vec![] };
-    let mut v: Vec<PathBuf> = rd.filter_map(|e| e.ok()).map(|e| e.path())
-        .filter(|p| p.is_dir() && !p.file_name().is_some_and(|n| n.to_string_lossy().starts_with('.'))).collect();
+    let Ok(rd) = std::fs::read_dir(dir) else {
+        return vec![];
+    };
+    let mut v: Vec<PathBuf> = rd
+        .filter_map(|e| e.ok())
+        .map(|e| e.path())
+        .filter(|p| {
+            p.is_dir()
+                && !p
+                    .file_name()
+                    .is_some_and(|n| n.to_string_lossy().starts_with('.'))
+        })
+        .collect();
     v.sort();
     v
 }
 
 fn atomic_write(path: &Path, bytes: &[u8]) -> Result<()> {
     // A name unique to this process and thread: funds of one run write the index concurrently.
-    let tmp = path.with_extension(format!("{}-{:?}.tmp", std::process::id(), std::thread::current().id()).replace(['(', ')'], ""));
+    let tmp = path.with_extension(
+        format!(
+            "{}-{:?}.tmp",
+            std::process::id(),
+            std::thread::current().id()
+        )
+        .replace(['(', ')'], ""),
+    );
     fs::write(&tmp, bytes)?;
     fs::rename(&tmp, path)
 }
@@ -311,27 +500,46 @@ pub struct Finding {
 /// Recomputes every digest of a pack; returns the problems found (empty when the pack is intact).
 pub fn verify(pack: &Path) -> Result<Vec<Finding>> {
     let mut out = Vec::new();
-    let bad = |file: &str, problem: String| Finding { file: file.to_string(), problem };
-    let manifest: Value = match std::fs::read(pack.join(MANIFEST)).ok().and_then(|b| serde_json::from_slice(&b).ok()) {
+    let bad = |file: &str, problem: String| Finding {
+        file: file.to_string(),
+        problem,
+    };
+    let manifest: Value = match std::fs::read(pack.join(MANIFEST))
+        .ok()
+        .and_then(|b| serde_json::from_slice(&b).ok())
+    {
         Some(m) => m,
         None => return Ok(vec![bad(MANIFEST, "is missing or not valid JSON".into())]),
     };
     let listing = std::fs::read_to_string(pack.join(LISTING)).unwrap_or_default();
     if sha(listing.as_bytes()) != manifest["pack_id"].as_str().unwrap_or("") {
-        out.push(bad(LISTING, "its digest is not the pack id recorded in manifest.json".into()));
+        out.push(bad(
+            LISTING,
+            "its digest is not the pack id recorded in manifest.json".into(),
+        ));
     }
     let mut listed = Vec::new();
     for line in listing.lines() {
-        let Some((hash, name)) = line.split_once("  ") else { out.push(bad(LISTING, format!("malformed line `{line}`"))); continue };
+        let Some((hash, name)) = line.split_once("  ") else {
+            out.push(bad(LISTING, format!("malformed line `{line}`")));
+            continue;
+        };
         listed.push(name.to_string());
         match std::fs::read(pack.join(name)) {
             Ok(bytes) if sha(&bytes) == hash => {}
-            Ok(_) => out.push(bad(name, "was changed: its SHA-256 differs from inputs.sha256".into())),
+            Ok(_) => out.push(bad(
+                name,
+                "was changed: its SHA-256 differs from inputs.sha256".into(),
+            )),
             Err(_) => out.push(bad(name, "is missing".into())),
         }
     }
     for f in walk(&pack.join("inputs")).unwrap_or_default() {
-        let rel = f.strip_prefix(pack).expect("below pack").to_string_lossy().replace('\\', "/");
+        let rel = f
+            .strip_prefix(pack)
+            .expect("below pack")
+            .to_string_lossy()
+            .replace('\\', "/");
         if !listed.contains(&rel) {
             out.push(bad(&rel, "is not listed in inputs.sha256".into()));
         }
@@ -341,11 +549,22 @@ pub fn verify(pack: &Path) -> Result<Vec<Finding>> {
     if out.is_empty() && pack.join(SIGNOFF).exists() {
         let rec = crate::signoff::record(pack)?;
         let roles = crate::signoff::roles(pack)?;
-        out.extend(crate::signoff::check(pack, &rec, &roles)?.into_iter().map(|p| Finding { file: SIGNOFF.into(), problem: p }));
+        out.extend(
+            crate::signoff::check(pack, &rec, &roles)?
+                .into_iter()
+                .map(|p| Finding {
+                    file: SIGNOFF.into(),
+                    problem: p,
+                }),
+        );
         if let Some(f) = &rec.finalised {
             match std::fs::read(pack.join(&f.pdf)) {
                 Ok(b) if sha(&b) == f.sha256 => {}
-                _ => out.push(Finding { file: f.pdf.clone(), problem: "was changed or is missing: its SHA-256 differs from signoff.json".into() }),
+                _ => out.push(Finding {
+                    file: f.pdf.clone(),
+                    problem: "was changed or is missing: its SHA-256 differs from signoff.json"
+                        .into(),
+                }),
             }
         }
     }
@@ -354,20 +573,36 @@ pub fn verify(pack: &Path) -> Result<Vec<Finding>> {
 
 fn check_outputs(pack: &Path, manifest: &Value) -> Vec<Finding> {
     let mut out = Vec::new();
-    let listed: Vec<&Value> = manifest["outputs"].as_array().map(|a| a.iter().collect()).unwrap_or_default();
+    let listed: Vec<&Value> = manifest["outputs"]
+        .as_array()
+        .map(|a| a.iter().collect())
+        .unwrap_or_default();
     for o in &listed {
         let name = o["file"].as_str().unwrap_or("");
         match std::fs::read(pack.join(name)) {
             Ok(bytes) if sha(&bytes) == o["sha256"].as_str().unwrap_or("") => {}
-            Ok(_) => out.push(Finding { file: name.into(), problem: "was changed: its SHA-256 differs from manifest.json".into() }),
-            Err(_) => out.push(Finding { file: name.into(), problem: "is missing".into() }),
+            Ok(_) => out.push(Finding {
+                file: name.into(),
+                problem: "was changed: its SHA-256 differs from manifest.json".into(),
+            }),
+            Err(_) => out.push(Finding {
+                file: name.into(),
+                problem: "is missing".into(),
+            }),
         }
     }
     if let Ok(rd) = std::fs::read_dir(pack) {
         for e in rd.filter_map(|e| e.ok()).filter(|e| e.path().is_file()) {
             let n = e.file_name().to_string_lossy().into_owned();
-            if n != MANIFEST && n != SIGNOFF && n != FINAL_PDF && !listed.iter().any(|o| o["file"] == n.as_str()) {
-                out.push(Finding { file: n, problem: "is not listed in manifest.json".into() });
+            if n != MANIFEST
+                && n != SIGNOFF
+                && n != FINAL_PDF
+                && !listed.iter().any(|o| o["file"] == n.as_str())
+            {
+                out.push(Finding {
+                    file: n,
+                    problem: "is not listed in manifest.json".into(),
+                });
             }
         }
     }
@@ -376,14 +611,29 @@ fn check_outputs(pack: &Path, manifest: &Value) -> Vec<Finding> {
 
 /// The archive index (two levels above `r<N>/<as-of>/<fund>`) records each manifest's digest.
 fn check_index(pack: &Path) -> Vec<Finding> {
-    let Some(root) = pack.parent().and_then(Path::parent).and_then(Path::parent) else { return vec![] };
-    let Ok(bytes) = std::fs::read(root.join("index.json")) else { return vec![] };
+    let Some(root) = pack.parent().and_then(Path::parent).and_then(Path::parent) else {
+        return vec![];
+    };
+    let Ok(bytes) = std::fs::read(root.join("index.json")) else {
+        return vec![];
+    };
     let rows: Vec<Value> = serde_json::from_slice(&bytes).unwrap_or_default();
-    let rel = pack.strip_prefix(root).unwrap_or(pack).display().to_string();
-    let Some(row) = rows.iter().find(|r| r["path"] == rel.as_str()) else { return vec![] };
-    let actual = std::fs::read(pack.join(MANIFEST)).map(|b| sha(&b)).unwrap_or_default();
+    let rel = pack
+        .strip_prefix(root)
+        .unwrap_or(pack)
+        .display()
+        .to_string();
+    let Some(row) = rows.iter().find(|r| r["path"] == rel.as_str()) else {
+        return vec![];
+    };
+    let actual = std::fs::read(pack.join(MANIFEST))
+        .map(|b| sha(&b))
+        .unwrap_or_default();
     if row["manifest_sha256"].as_str() != Some(actual.as_str()) {
-        return vec![Finding { file: MANIFEST.into(), problem: "was changed: its SHA-256 differs from the archive index".into() }];
+        return vec![Finding {
+            file: MANIFEST.into(),
+            problem: "was changed: its SHA-256 differs from the archive index".into(),
+        }];
     }
     vec![]
 }

@@ -59,36 +59,62 @@ pub fn run(config: &Path, opts: &RunOptions, progress: &Progress) -> Result<RunR
         let _lock = crate::archive::lock(&root, opts.lock_timeout)?;
         return run_fund(cfg, opts, progress);
     }
-    let root = opts.out.clone().unwrap_or_else(|| funds[0].out_root.clone());
+    let root = opts
+        .out
+        .clone()
+        .unwrap_or_else(|| funds[0].out_root.clone());
     let _lock = crate::archive::lock(&root, opts.lock_timeout)?;
     progress.step(&format!("building {} fund packs in parallel", funds.len()));
     use rayon::prelude::*;
     let quiet = Progress::new(true);
-    let outcomes: Vec<(String, Result<RunReport>)> = funds.into_par_iter()
-        .map(|cfg| (cfg.short_name.clone(), run_fund(cfg, opts, &quiet))).collect();
+    let outcomes: Vec<(String, Result<RunReport>)> = funds
+        .into_par_iter()
+        .map(|cfg| (cfg.short_name.clone(), run_fund(cfg, opts, &quiet)))
+        .collect();
     crate::archive::write_index(&root)?;
     progress.finish();
     Ok(multi_summary(&outcomes))
 }
 
 /// One fund: plan, no-op check, compute, write (the caller holds the archive lock).
-fn run_fund(cfg: crate::config::Config, opts: &RunOptions, progress: &Progress) -> Result<RunReport> {
+fn run_fund(
+    cfg: crate::config::Config,
+    opts: &RunOptions,
+    progress: &Progress,
+) -> Result<RunReport> {
     let (cfg, data) = run::prepare_fund(cfg, opts)?;
     let plan = crate::archive::plan(&cfg, data.as_of)?;
     if let Some(existing) = crate::archive::identical(&plan) {
         progress.finish();
         let shown = std::fs::canonicalize(&existing).unwrap_or(existing);
-        let text = format!("nothing to do: a pack with identical inputs exists (pack id {})\n{}\n", plan.pack_id, shown.display());
-        return Ok(RunReport { text, code: crate::error::EXIT_NOTHING_TO_DO });
+        let text = format!(
+            "nothing to do: a pack with identical inputs exists (pack id {})\n{}\n",
+            plan.pack_id,
+            shown.display()
+        );
+        return Ok(RunReport {
+            text,
+            code: crate::error::EXIT_NOTHING_TO_DO,
+        });
     }
     progress.step("solving the CVaR models, frontier, stress set and backtest");
     let result = run::compute(cfg, data)?;
     progress.step("writing the pack");
     let (dir, text) = crate::pack::write(&result, &plan)?;
     progress.finish();
-    let failed = result.models.iter().any(|m| m.outcome.status == crate::models::Status::SolverError);
-    let code = if failed { crate::error::EXIT_SOLVER } else { crate::error::EXIT_OK };
-    Ok(RunReport { text: format!("{text}{}\n", dir.display()), code })
+    let failed = result
+        .models
+        .iter()
+        .any(|m| m.outcome.status == crate::models::Status::SolverError);
+    let code = if failed {
+        crate::error::EXIT_SOLVER
+    } else {
+        crate::error::EXIT_OK
+    };
+    Ok(RunReport {
+        text: format!("{text}{}\n", dir.display()),
+        code,
+    })
 }
 
 /// The end-of-run summary of a multi-fund run: one line per fund; the exit code is the most severe
@@ -99,42 +125,87 @@ fn multi_summary(outcomes: &[(String, Result<RunReport>)]) -> RunReport {
     for (name, o) in outcomes {
         match o {
             Ok(r) => {
-                text.push_str(&format!("{name}: {} {}\n", if r.code == crate::error::EXIT_NOTHING_TO_DO { "unchanged" } else if r.code == 0 { "ok" } else { "solver failure" }, r.text.lines().last().unwrap_or("")));
+                text.push_str(&format!(
+                    "{name}: {} {}\n",
+                    if r.code == crate::error::EXIT_NOTHING_TO_DO {
+                        "unchanged"
+                    } else if r.code == 0 {
+                        "ok"
+                    } else {
+                        "solver failure"
+                    },
+                    r.text.lines().last().unwrap_or("")
+                ));
                 codes.push(r.code);
             }
             Err(e) => {
-                text.push_str(&format!("{name}: FAILED: {}\n", e.to_string().replace('\n', " ")));
+                text.push_str(&format!(
+                    "{name}: FAILED: {}\n",
+                    e.to_string().replace('\n', " ")
+                ));
                 codes.push(e.exit_code());
             }
         }
     }
-    let rank = |c: i32| match c { 0 => 0, 5 => -1, 4 => 1, _ => 2 };
-    let code = if codes.iter().all(|c| *c == crate::error::EXIT_NOTHING_TO_DO) { crate::error::EXIT_NOTHING_TO_DO }
-        else { codes.iter().copied().filter(|c| *c != crate::error::EXIT_NOTHING_TO_DO).max_by_key(|c| (rank(*c), *c)).unwrap_or(0) };
+    let rank = |c: i32| match c {
+        0 => 0,
+        5 => -1,
+        4 => 1,
+        _ => 2,
+    };
+    let code = if codes.iter().all(|c| *c == crate::error::EXIT_NOTHING_TO_DO) {
+        crate::error::EXIT_NOTHING_TO_DO
+    } else {
+        codes
+            .iter()
+            .copied()
+            .filter(|c| *c != crate::error::EXIT_NOTHING_TO_DO)
+            .max_by_key(|c| (rank(*c), *c))
+            .unwrap_or(0)
+    };
     let failed = codes.iter().filter(|c| !matches!(**c, 0 | 5)).count();
-    text.push_str(&format!("{} funds: {} ok or unchanged, {failed} with problems\n", outcomes.len(), outcomes.len() - failed));
+    text.push_str(&format!(
+        "{} funds: {} ok or unchanged, {failed} with problems\n",
+        outcomes.len(),
+        outcomes.len() - failed
+    ));
     RunReport { text, code }
 }
 
 /// `tailpack verify`: recomputes every digest; with `rerun`, also re-runs from the archived inputs and
 /// compares every output byte for byte.
 pub fn verify(pack: &Path, rerun: bool) -> Result<String> {
-    let mut problems: Vec<String> = crate::archive::verify(pack)?.into_iter().map(|f| format!("{}: {}", f.file, f.problem)).collect();
+    let mut problems: Vec<String> = crate::archive::verify(pack)?
+        .into_iter()
+        .map(|f| format!("{}: {}", f.file, f.problem))
+        .collect();
     if problems.is_empty() && rerun {
         problems.extend(rerun_differences(pack)?);
     }
     if !problems.is_empty() {
-        return Err(crate::error::Error::Verify { pack: pack.to_path_buf(), problems });
+        return Err(crate::error::Error::Verify {
+            pack: pack.to_path_buf(),
+            problems,
+        });
     }
     let id = crate::archive::recorded_id(pack).unwrap_or_default();
-    let how = if rerun { "every digest matches and a re-run from the archived inputs gives identical outputs" } else { "every digest matches" };
-    Ok(format!("pack {} verified: {how} (pack id {id})\n", pack.display()))
+    let how = if rerun {
+        "every digest matches and a re-run from the archived inputs gives identical outputs"
+    } else {
+        "every digest matches"
+    };
+    Ok(format!(
+        "pack {} verified: {how} (pack id {id})\n",
+        pack.display()
+    ))
 }
 
 /// Recomputes a pack's run from its archived inputs alone.
 fn recompute(pack: &Path, scratch: &Path) -> Result<(run::RunResult, crate::archive::Plan)> {
     let mut cfg = crate::config::load_archived(&pack.join("inputs"))?;
-    let run: serde_json::Value = serde_json::from_slice(&crate::error::fs::read(&pack.join("inputs/run.json"))?).unwrap_or_default();
+    let run: serde_json::Value =
+        serde_json::from_slice(&crate::error::fs::read(&pack.join("inputs/run.json"))?)
+            .unwrap_or_default();
     let as_of = run["as_of"].as_str().and_then(|d| d.parse().ok());
     if let Some(b) = run["backend"].as_str().and_then(|b| b.parse().ok()) {
         cfg.backend = b;
@@ -148,41 +219,68 @@ fn recompute(pack: &Path, scratch: &Path) -> Result<(run::RunResult, crate::arch
 /// `tailpack finalize PACK`: once every required role has signed, renders `pack-final.pdf` (status FINAL,
 /// sign-off page filled) and records its digest; the pack is immutable from then on.
 pub fn finalize(pack: &Path) -> Result<String> {
-    let refuse = |why: String| crate::error::Error::Run(format!("cannot finalise {}: {why}", pack.display()));
+    let refuse = |why: String| {
+        crate::error::Error::Run(format!("cannot finalise {}: {why}", pack.display()))
+    };
     let problems = crate::archive::verify(pack)?;
     if let Some(p) = problems.first() {
-        return Err(refuse(format!("the pack fails verification ({}: {})", p.file, p.problem)));
+        return Err(refuse(format!(
+            "the pack fails verification ({}: {})",
+            p.file, p.problem
+        )));
     }
     let mut rec = crate::signoff::record(pack)?;
     if rec.finalised.is_some() {
-        return Err(refuse("it is already final; a final pack is immutable".into()));
+        return Err(refuse(
+            "it is already final; a final pack is immutable".into(),
+        ));
     }
     let roles = crate::signoff::roles(pack)?;
     if roles.is_empty() {
-        return Err(refuse("its config lists no sign-off roles (signoff.roles)".into()));
+        return Err(refuse(
+            "its config lists no sign-off roles (signoff.roles)".into(),
+        ));
     }
     let signed = crate::signoff::signed_roles(&rec);
-    let missing: Vec<&str> = roles.iter().filter(|r| !signed.contains(&r.role)).map(|r| r.role.as_str()).collect();
+    let missing: Vec<&str> = roles
+        .iter()
+        .filter(|r| !signed.contains(&r.role))
+        .map(|r| r.role.as_str())
+        .collect();
     if !missing.is_empty() {
-        return Err(refuse(format!("role(s) not yet signed: {}", missing.join(", "))));
+        return Err(refuse(format!(
+            "role(s) not yet signed: {}",
+            missing.join(", ")
+        )));
     }
     let scratch = std::env::temp_dir().join(format!("tailpack-final-{}", std::process::id()));
     let (result, plan) = recompute(pack, &scratch)?;
-    let mut results: serde_json::Value = serde_json::from_slice(&crate::error::fs::read(&pack.join("results.json"))?).unwrap_or_default();
+    let mut results: serde_json::Value =
+        serde_json::from_slice(&crate::error::fs::read(&pack.join("results.json"))?)
+            .unwrap_or_default();
     results["signoff"] = final_block(&rec, &roles);
     let pdf = crate::report::render(&result, &results, &plan.pack_id)?;
     let name = crate::archive::FINAL_PDF;
     crate::error::fs::write(&pack.join(name), &pdf)?;
-    rec.finalised = Some(crate::signoff::Final { pdf: name.into(), sha256: crate::pack::hex(&<sha2::Sha256 as sha2::Digest>::digest(&pdf)) });
+    rec.finalised = Some(crate::signoff::Final {
+        pdf: name.into(),
+        sha256: crate::pack::hex(&<sha2::Sha256 as sha2::Digest>::digest(&pdf)),
+    });
     crate::signoff::save(pack, &rec)?;
     if let Some(root) = pack.parent().and_then(Path::parent).and_then(Path::parent) {
         crate::archive::write_index(root)?;
     }
-    Ok(format!("finalised {}: {name} written; the pack is now immutable\n", pack.display()))
+    Ok(format!(
+        "finalised {}: {name} written; the pack is now immutable\n",
+        pack.display()
+    ))
 }
 
 /// The sign-off facts the final PDF prints: status FINAL and one row per role.
-fn final_block(rec: &crate::signoff::Record, roles: &[crate::config::SignRole]) -> serde_json::Value {
+fn final_block(
+    rec: &crate::signoff::Record,
+    roles: &[crate::config::SignRole],
+) -> serde_json::Value {
     let st = crate::signoff::statements(rec);
     let rows: Vec<serde_json::Value> = roles.iter().map(|r| {
         let s = st.iter().find(|s| s.role == r.role);
@@ -201,12 +299,27 @@ fn rerun_differences(pack: &Path) -> Result<Vec<String>> {
     crate::pack::fill(&result, &scratch, &plan)?;
     let mut out = Vec::new();
     if Some(plan.pack_id.as_str()) != crate::archive::recorded_id(pack).as_deref() {
-        out.push(format!("{}: the re-run's inputs give pack id {}, not the recorded one", crate::archive::LISTING, plan.pack_id));
+        out.push(format!(
+            "{}: the re-run's inputs give pack id {}, not the recorded one",
+            crate::archive::LISTING,
+            plan.pack_id
+        ));
     }
-    for name in ["results.json", "scenarios.csv", "weights.csv", "summary.txt", "pack.pdf"] {
-        let (a, b) = (std::fs::read(pack.join(name)).ok(), std::fs::read(scratch.join(name)).ok());
+    for name in [
+        "results.json",
+        "scenarios.csv",
+        "weights.csv",
+        "summary.txt",
+        "pack.pdf",
+    ] {
+        let (a, b) = (
+            std::fs::read(pack.join(name)).ok(),
+            std::fs::read(scratch.join(name)).ok(),
+        );
         if a != b {
-            out.push(format!("{name}: the re-run from the archived inputs gives different bytes"));
+            out.push(format!(
+                "{name}: the re-run from the archived inputs gives different bytes"
+            ));
         }
     }
     let _ = std::fs::remove_dir_all(&scratch);
@@ -241,12 +354,28 @@ fn check_fund(cfg: crate::config::Config, opts: &RunOptions) -> Result<String> {
     let q = &data.quality;
     let mut out = format!(
         "fund {}: config {} is valid\nprices {} ({} layout): {} to {}; as-of {}; scenario window {} to {} ({} observations)\nfill policy: {}\n",
-        cfg.short_name, cfg.path.display(), cfg.prices.display(), data.layout.word(), data.history.0, data.history.1, data.as_of,
-        q.window_start, q.window_end, q.observations, q.fill_policy);
-    out.push_str(&format!("{:<14} {:>8} {:>7} {:>12} {:>12} {:>8} {}\n", "asset", "missing", "filled", "longest gap", "stale run", "extreme", "status"));
+        cfg.short_name,
+        cfg.path.display(),
+        cfg.prices.display(),
+        data.layout.word(),
+        data.history.0,
+        data.history.1,
+        data.as_of,
+        q.window_start,
+        q.window_end,
+        q.observations,
+        q.fill_policy
+    );
+    out.push_str(&format!(
+        "{:<14} {:>8} {:>7} {:>12} {:>12} {:>8} {}\n",
+        "asset", "missing", "filled", "longest gap", "stale run", "extreme", "status"
+    ));
     for a in &q.assets {
         let status = if a.dropped { "dropped" } else { "kept" };
-        out.push_str(&format!("{:<14} {:>8} {:>7} {:>12} {:>12} {:>8} {status}\n", a.asset, a.missing, a.filled, a.longest_gap, a.longest_stale_run, a.extreme_moves));
+        out.push_str(&format!(
+            "{:<14} {:>8} {:>7} {:>12} {:>12} {:>8} {status}\n",
+            a.asset, a.missing, a.filled, a.longest_gap, a.longest_stale_run, a.extreme_moves
+        ));
     }
     for f in &q.findings {
         out.push_str(&format!("{}: {}\n", f.level.word(), f.message));
@@ -256,6 +385,17 @@ fn check_fund(cfg: crate::config::Config, opts: &RunOptions) -> Result<String> {
 
 /// `tailpack demo-data DIR`: regenerates the invented demo data files.
 pub fn demo_data(dir: &PathBuf) -> Result<String> {
-    let s = crate::demo::write_demo_data(dir).map_err(|source| crate::error::Error::Io { action: "cannot write demo data to", path: dir.clone(), source })?;
-    Ok(format!("wrote synthetic demo data for {} assets, {} business days ({} to {}) to {}\n", s.assets, s.days, s.first, s.last, dir.display()))
+    let s = crate::demo::write_demo_data(dir).map_err(|source| crate::error::Error::Io {
+        action: "cannot write demo data to",
+        path: dir.clone(),
+        source,
+    })?;
+    Ok(format!(
+        "wrote synthetic demo data for {} assets, {} business days ({} to {}) to {}\n",
+        s.assets,
+        s.days,
+        s.first,
+        s.last,
+        dir.display()
+    ))
 }

@@ -71,7 +71,11 @@ pub struct AnalysisOptions {
 
 impl Default for AnalysisOptions {
     fn default() -> Self {
-        AnalysisOptions { frontier_points: 21, backtest_years: 5, daily_var_check: true }
+        AnalysisOptions {
+            frontier_points: 21,
+            backtest_years: 5,
+            daily_var_check: true,
+        }
     }
 }
 
@@ -89,7 +93,11 @@ pub struct RawStress {
 
 impl Default for RawStress {
     fn default() -> Self {
-        RawStress { file: None, loss_limit: None, historical_windows: 3 }
+        RawStress {
+            file: None,
+            loss_limit: None,
+            historical_windows: 3,
+        }
     }
 }
 
@@ -155,7 +163,12 @@ pub struct QualityOptions {
 
 impl Default for QualityOptions {
     fn default() -> Self {
-        QualityOptions { max_fill: 3, stale_run: 10, extreme_move: 0.25, min_obs_per_asset: 10 }
+        QualityOptions {
+            max_fill: 3,
+            stale_run: 10,
+            extreme_move: 0.25,
+            min_obs_per_asset: 10,
+        }
     }
 }
 
@@ -175,7 +188,12 @@ pub struct ScenarioOptions {
 
 impl Default for ScenarioOptions {
     fn default() -> Self {
-        ScenarioOptions { horizon: 21, step: 1, lookback_years: 5, half_life: None }
+        ScenarioOptions {
+            horizon: 21,
+            step: 1,
+            lookback_years: 5,
+            half_life: None,
+        }
     }
 }
 
@@ -191,7 +209,10 @@ pub struct RawRisk {
 
 impl Default for RawRisk {
     fn default() -> Self {
-        RawRisk { levels: vec![0.95, 0.975, 0.99], confidence: 0.95 }
+        RawRisk {
+            levels: vec![0.95, 0.975, 0.99],
+            confidence: 0.95,
+        }
     }
 }
 
@@ -212,7 +233,13 @@ pub struct RawLimits {
 
 impl Default for RawLimits {
     fn default() -> Self {
-        RawLimits { default_min: 0.0, default_max: 1.0, exclude: vec![], groups: vec![], turnover_max: None }
+        RawLimits {
+            default_min: 0.0,
+            default_max: 1.0,
+            exclude: vec![],
+            groups: vec![],
+            turnover_max: None,
+        }
     }
 }
 
@@ -246,7 +273,13 @@ pub struct RawMaxReturn {
 
 impl Default for RawMaxReturn {
     fn default() -> Self {
-        RawMaxReturn { cvar_cap: RawCap { value: None, times_current: None, times_min: Some(1.5) } }
+        RawMaxReturn {
+            cvar_cap: RawCap {
+                value: None,
+                times_current: None,
+                times_min: Some(1.5),
+            },
+        }
     }
 }
 
@@ -271,7 +304,12 @@ pub struct RawMinCvar {
 
 impl Default for RawMinCvar {
     fn default() -> Self {
-        RawMinCvar { return_floor: RawFloor { value: None, plus_current: Some(0.0) } }
+        RawMinCvar {
+            return_floor: RawFloor {
+                value: None,
+                plus_current: Some(0.0),
+            },
+        }
     }
 }
 
@@ -302,7 +340,9 @@ impl std::str::FromStr for Backend {
         match s {
             "highs" => Ok(Backend::Highs),
             "clarabel" => Ok(Backend::Clarabel),
-            other => Err(format!("unknown solver backend `{other}`; expected `highs` or `clarabel`")),
+            other => Err(format!(
+                "unknown solver backend `{other}`; expected `highs` or `clarabel`"
+            )),
         }
     }
 }
@@ -435,21 +475,37 @@ pub struct MoveSpec {
 /// Reads and checks a stress file (shape and ranges; asset and tag names are checked against the data later).
 pub fn load_stress(path: &Path) -> Result<StressFile> {
     let text = crate::error::fs::read_to_string(path)?;
-    let file: StressFile = serde_yaml_ng::from_str(&text).map_err(|e| Error::config(path, describe_yaml_error(&e)))?;
+    let file: StressFile =
+        serde_yaml_ng::from_str(&text).map_err(|e| Error::config(path, describe_yaml_error(&e)))?;
     for (i, s) in file.shocks.iter().enumerate() {
         if s.name.trim().is_empty() {
-            return Err(Error::config(path, format!("shocks[{i}].name: is required")));
+            return Err(Error::config(
+                path,
+                format!("shocks[{i}].name: is required"),
+            ));
         }
         for (j, m) in s.moves.iter().enumerate() {
             let key = format!("shocks[{i}] `{}` moves[{j}]", s.name);
             if m.tag.is_some() == m.asset.is_some() {
-                return Err(Error::config(path, format!("{key}: give exactly one of `tag` or `asset`")));
+                return Err(Error::config(
+                    path,
+                    format!("{key}: give exactly one of `tag` or `asset`"),
+                ));
             }
             if !(m.ret.is_finite() && m.ret >= -1.0) {
-                return Err(Error::config(path, format!("{key}.return: {} must be a simple return ≥ −1 (−100%)", m.ret)));
+                return Err(Error::config(
+                    path,
+                    format!(
+                        "{key}.return: {} must be a simple return ≥ −1 (−100%)",
+                        m.ret
+                    ),
+                ));
             }
             if m.tag.as_ref().is_some_and(|t| !t.contains(':')) {
-                return Err(Error::config(path, format!("{key}.tag: must look like `column:value`, e.g. `class:equity`")));
+                return Err(Error::config(
+                    path,
+                    format!("{key}.tag: must look like `column:value`, e.g. `class:equity`"),
+                ));
             }
         }
     }
@@ -458,21 +514,85 @@ pub fn load_stress(path: &Path) -> Result<StressFile> {
 
 /// Every top-level and nested key, for suggestions on unknown keys.
 const KNOWN_KEYS: &[&str] = &[
-    "fund", "data", "quality", "scenarios", "risk", "limits", "models", "solver", "output", "name",
-    "short_name", "prepared_for", "prepared_by", "prices", "layout", "assets", "holdings", "max_fill",
-    "stale_run", "extreme_move", "min_obs_per_asset", "horizon", "step", "lookback_years", "half_life",
-    "levels", "confidence", "default_min", "default_max", "exclude", "groups", "turnover_max", "tag", "min",
-    "max", "max_return", "min_cvar", "cvar_cap", "value", "times_current", "times_min", "return_floor",
-    "plus_current", "backend", "root", "analysis", "stress", "frontier_points", "backtest_years",
-    "daily_var_check", "file", "loss_limit", "historical_windows", "shocks", "description", "moves", "asset",
-    "return", "report", "templates", "signoff", "roles", "role", "title", "keys", "funds",
+    "fund",
+    "data",
+    "quality",
+    "scenarios",
+    "risk",
+    "limits",
+    "models",
+    "solver",
+    "output",
+    "name",
+    "short_name",
+    "prepared_for",
+    "prepared_by",
+    "prices",
+    "layout",
+    "assets",
+    "holdings",
+    "max_fill",
+    "stale_run",
+    "extreme_move",
+    "min_obs_per_asset",
+    "horizon",
+    "step",
+    "lookback_years",
+    "half_life",
+    "levels",
+    "confidence",
+    "default_min",
+    "default_max",
+    "exclude",
+    "groups",
+    "turnover_max",
+    "tag",
+    "min",
+    "max",
+    "max_return",
+    "min_cvar",
+    "cvar_cap",
+    "value",
+    "times_current",
+    "times_min",
+    "return_floor",
+    "plus_current",
+    "backend",
+    "root",
+    "analysis",
+    "stress",
+    "frontier_points",
+    "backtest_years",
+    "daily_var_check",
+    "file",
+    "loss_limit",
+    "historical_windows",
+    "shocks",
+    "description",
+    "moves",
+    "asset",
+    "return",
+    "report",
+    "templates",
+    "signoff",
+    "roles",
+    "role",
+    "title",
+    "keys",
+    "funds",
 ];
 
 /// Reads and validates a config file.
 pub fn load(path: &Path) -> Result<Config> {
     let mut all = load_all(path)?;
     if all.len() > 1 {
-        return Err(Error::config(path, format!("lists {} funds; this command takes a single-fund config", all.len())));
+        return Err(Error::config(
+            path,
+            format!(
+                "lists {} funds; this command takes a single-fund config",
+                all.len()
+            ),
+        ));
     }
     Ok(all.remove(0))
 }
@@ -483,7 +603,10 @@ pub fn load_all(path: &Path) -> Result<Vec<Config>> {
     let text = std::str::from_utf8(&bytes).map_err(|e| {
         let at = e.valid_up_to();
         let line = bytes[..at].iter().filter(|b| **b == b'\n').count() + 1;
-        Error::config(path, format!("line {line}, byte {at}: not UTF-8 text; save the config as UTF-8"))
+        Error::config(
+            path,
+            format!("line {line}, byte {at}: not UTF-8 text; save the config as UTF-8"),
+        )
     })?;
     let raw = parse(path, text)?;
     expand(path, raw)
@@ -493,24 +616,44 @@ fn expand(path: &Path, raw: RawConfig) -> Result<Vec<Config>> {
     if raw.funds.is_empty() {
         return Ok(vec![resolve(path, raw)?]);
     }
-    let configs: Vec<Config> = raw.funds.iter().enumerate().map(|(i, m)| {
-        let mut one = raw.clone();
-        one.funds.clear();
-        one.fund = m.fund.clone();
-        if m.holdings.is_some() {
-            one.data.holdings = m.holdings.clone();
-        }
-        if let Some(l) = &m.limits { one.limits = l.clone(); }
-        if let Some(mo) = &m.models { one.models = mo.clone(); }
-        if let Some(so) = &m.signoff { one.signoff = so.clone(); }
-        resolve(path, one).map_err(|e| match e {
-            Error::Config { path, message } => Error::Config { path, message: format!("funds[{i}]: {message}") },
-            other => other,
+    let configs: Vec<Config> = raw
+        .funds
+        .iter()
+        .enumerate()
+        .map(|(i, m)| {
+            let mut one = raw.clone();
+            one.funds.clear();
+            one.fund = m.fund.clone();
+            if m.holdings.is_some() {
+                one.data.holdings = m.holdings.clone();
+            }
+            if let Some(l) = &m.limits {
+                one.limits = l.clone();
+            }
+            if let Some(mo) = &m.models {
+                one.models = mo.clone();
+            }
+            if let Some(so) = &m.signoff {
+                one.signoff = so.clone();
+            }
+            resolve(path, one).map_err(|e| match e {
+                Error::Config { path, message } => Error::Config {
+                    path,
+                    message: format!("funds[{i}]: {message}"),
+                },
+                other => other,
+            })
         })
-    }).collect::<Result<_>>()?;
+        .collect::<Result<_>>()?;
     for (i, c) in configs.iter().enumerate() {
         if configs[..i].iter().any(|o| o.short_name == c.short_name) {
-            return Err(Error::config(path, format!("funds[{i}]: short name `{}` is used twice; give each fund its own fund.short_name", c.short_name)));
+            return Err(Error::config(
+                path,
+                format!(
+                    "funds[{i}]: short name `{}` is used twice; give each fund its own fund.short_name",
+                    c.short_name
+                ),
+            ));
         }
     }
     Ok(configs)
@@ -521,8 +664,14 @@ pub fn load_fund(path: &Path, short_name: Option<&str>) -> Result<Config> {
     let all = load_all(path)?;
     match short_name {
         None if all.len() == 1 => Ok(all.into_iter().next().expect("one")),
-        None => Err(Error::config(path, "lists several funds; name one".to_string())),
-        Some(n) => all.into_iter().find(|c| c.short_name == n).ok_or_else(|| Error::config(path, format!("has no fund `{n}`"))),
+        None => Err(Error::config(
+            path,
+            "lists several funds; name one".to_string(),
+        )),
+        Some(n) => all
+            .into_iter()
+            .find(|c| c.short_name == n)
+            .ok_or_else(|| Error::config(path, format!("has no fund `{n}`"))),
     }
 }
 
@@ -533,9 +682,12 @@ pub fn load_archived(inputs: &Path) -> Result<Config> {
     let text = crate::error::fs::read_to_string(&path)?;
     let mut raw = parse(&path, &text)?;
     let find = |role: &str| -> Option<PathBuf> {
-        let mut names: Vec<String> = std::fs::read_dir(inputs).ok()?.filter_map(|e| e.ok())
+        let mut names: Vec<String> = std::fs::read_dir(inputs)
+            .ok()?
+            .filter_map(|e| e.ok())
             .map(|e| e.file_name().to_string_lossy().into_owned())
-            .filter(|n| n.starts_with(&format!("{role}."))).collect();
+            .filter(|n| n.starts_with(&format!("{role}.")))
+            .collect();
         names.sort();
         names.into_iter().next().map(PathBuf::from)
     };
@@ -543,32 +695,54 @@ pub fn load_archived(inputs: &Path) -> Result<Config> {
     raw.data.assets = find("assets");
     raw.data.holdings = raw.data.holdings.and(find("holdings"));
     raw.stress.file = raw.stress.file.and(find("stress"));
-    raw.report.templates = inputs.join("templates").is_dir().then(|| PathBuf::from("templates"));
+    raw.report.templates = inputs
+        .join("templates")
+        .is_dir()
+        .then(|| PathBuf::from("templates"));
     for m in &mut raw.funds {
         m.holdings = m.holdings.as_ref().and(find("holdings"));
     }
-    let run: serde_json::Value = std::fs::read(inputs.join("run.json")).ok().and_then(|b| serde_json::from_slice(&b).ok()).unwrap_or_default();
+    let run: serde_json::Value = std::fs::read(inputs.join("run.json"))
+        .ok()
+        .and_then(|b| serde_json::from_slice(&b).ok())
+        .unwrap_or_default();
     let wanted = run["fund"].as_str().map(str::to_string);
     let all = expand(&path, raw)?;
     match wanted {
-        Some(n) => all.into_iter().find(|c| c.short_name == n).ok_or_else(|| Error::config(&path, format!("has no fund `{n}`"))),
-        None => all.into_iter().next().ok_or_else(|| Error::config(&path, "lists no fund")),
+        Some(n) => all
+            .into_iter()
+            .find(|c| c.short_name == n)
+            .ok_or_else(|| Error::config(&path, format!("has no fund `{n}`"))),
+        None => all
+            .into_iter()
+            .next()
+            .ok_or_else(|| Error::config(&path, "lists no fund")),
     }
 }
 
 /// Parses YAML text into the raw config, turning serde errors into messages with line and a suggestion.
 pub fn parse(path: &Path, text: &str) -> Result<RawConfig> {
     if text.trim().is_empty() {
-        return Err(Error::config(path, "line 1: the file is empty; see config-demo/fund.yaml for a complete example"));
+        return Err(Error::config(
+            path,
+            "line 1: the file is empty; see config-demo/fund.yaml for a complete example",
+        ));
     }
-    serde_yaml_ng::from_str::<RawConfig>(text).map_err(|e| Error::config(path, describe_yaml_error(&e)))
+    serde_yaml_ng::from_str::<RawConfig>(text)
+        .map_err(|e| Error::config(path, describe_yaml_error(&e)))
 }
 
 fn describe_yaml_error(e: &serde_yaml_ng::Error) -> String {
     let msg = e.to_string();
-    let Some(unknown) = between(&msg, "unknown field `", "`") else { return msg };
+    let Some(unknown) = between(&msg, "unknown field `", "`") else {
+        return msg;
+    };
     let expected: Vec<&str> = msg.split('`').skip(3).step_by(2).collect();
-    let pool: Vec<&str> = if expected.is_empty() { KNOWN_KEYS.to_vec() } else { expected };
+    let pool: Vec<&str> = if expected.is_empty() {
+        KNOWN_KEYS.to_vec()
+    } else {
+        expected
+    };
     match nearest(unknown, &pool) {
         Some(best) => format!("{msg}; did you mean `{best}`?"),
         None => msg,
@@ -583,7 +757,10 @@ fn between<'a>(s: &'a str, start: &str, end: &str) -> Option<&'a str> {
 
 /// The candidate closest to `word` by edit distance, if it is close enough to be a plausible typo.
 pub fn nearest<'a>(word: &str, candidates: &[&'a str]) -> Option<&'a str> {
-    let (best, dist) = candidates.iter().map(|c| (*c, levenshtein(word, c))).min_by_key(|(_, d)| *d)?;
+    let (best, dist) = candidates
+        .iter()
+        .map(|c| (*c, levenshtein(word, c)))
+        .min_by_key(|(_, d)| *d)?;
     (dist <= word.len().max(3) / 2 + 1).then_some(best)
 }
 
@@ -606,25 +783,51 @@ fn levenshtein(a: &str, b: &str) -> usize {
 pub fn resolve(path: &Path, raw: RawConfig) -> Result<Config> {
     let bad = |key: &str, why: String| Error::config(path, format!("{key}: {why}"));
     let base = path.parent().map(Path::to_path_buf).unwrap_or_default();
-    let join = |p: &PathBuf| if p.is_absolute() { p.clone() } else { base.join(p) };
+    let join = |p: &PathBuf| {
+        if p.is_absolute() {
+            p.clone()
+        } else {
+            base.join(p)
+        }
+    };
     if raw.fund.name.trim().is_empty() {
-        return Err(bad("fund.name", "is required (the fund's name, printed on every page)".into()));
+        return Err(bad(
+            "fund.name",
+            "is required (the fund's name, printed on every page)".into(),
+        ));
     }
-    let prices = raw.data.prices.as_ref().ok_or_else(|| bad("data.prices", "is required (the price file)".into()))?;
-    let assets = raw.data.assets.as_ref().ok_or_else(|| bad("data.assets", "is required (the asset metadata file)".into()))?;
+    let prices = raw
+        .data
+        .prices
+        .as_ref()
+        .ok_or_else(|| bad("data.prices", "is required (the price file)".into()))?;
+    let assets = raw.data.assets.as_ref().ok_or_else(|| {
+        bad(
+            "data.assets",
+            "is required (the asset metadata file)".into(),
+        )
+    })?;
     check_scenarios(&raw.scenarios).map_err(|(k, m)| bad(k, m))?;
     check_quality(&raw.quality).map_err(|(k, m)| bad(k, m))?;
     check_levels(&raw.risk).map_err(|(k, m)| bad(k, m))?;
     check_limits(&raw.limits, raw.data.holdings.is_some()).map_err(|(k, m)| bad(k, m))?;
     let groups = resolve_groups(&raw.limits.groups).map_err(|(k, m)| bad(&k, m))?;
-    let cap = resolve_cap(&raw.models.max_return.cvar_cap).map_err(|m| bad("models.max_return.cvar_cap", m))?;
-    let floor = resolve_floor(&raw.models.min_cvar.return_floor).map_err(|m| bad("models.min_cvar.return_floor", m))?;
+    let cap = resolve_cap(&raw.models.max_return.cvar_cap)
+        .map_err(|m| bad("models.max_return.cvar_cap", m))?;
+    let floor = resolve_floor(&raw.models.min_cvar.return_floor)
+        .map_err(|m| bad("models.min_cvar.return_floor", m))?;
     if raw.data.holdings.is_none() {
         if matches!(cap, CapRule::TimesCurrent(_)) {
-            return Err(bad("models.max_return.cvar_cap.times_current", NEEDS_HOLDINGS.into()));
+            return Err(bad(
+                "models.max_return.cvar_cap.times_current",
+                NEEDS_HOLDINGS.into(),
+            ));
         }
         if matches!(floor, FloorRule::PlusCurrent(_)) {
-            return Err(bad("models.min_cvar.return_floor.plus_current", NEEDS_HOLDINGS.into()));
+            return Err(bad(
+                "models.min_cvar.return_floor.plus_current",
+                NEEDS_HOLDINGS.into(),
+            ));
         }
     }
     let short_name = match &raw.fund.short_name {
@@ -632,22 +835,47 @@ pub fn resolve(path: &Path, raw: RawConfig) -> Result<Config> {
         _ => slug(&raw.fund.name),
     };
     if short_name.is_empty() {
-        return Err(bad("fund.short_name", "must contain at least one letter or digit".into()));
+        return Err(bad(
+            "fund.short_name",
+            "must contain at least one letter or digit".into(),
+        ));
     }
     check_analysis(&raw.analysis, &raw.stress).map_err(|(k, m)| bad(k, m))?;
     check_signoff(&raw.signoff).map_err(|(k, m)| bad(&k, m))?;
-    for (key, file) in [("data.prices", Some(prices)), ("data.assets", Some(assets)), ("data.holdings", raw.data.holdings.as_ref()), ("stress.file", raw.stress.file.as_ref())] {
+    for (key, file) in [
+        ("data.prices", Some(prices)),
+        ("data.assets", Some(assets)),
+        ("data.holdings", raw.data.holdings.as_ref()),
+        ("stress.file", raw.stress.file.as_ref()),
+    ] {
         if let Some(f) = file {
             let full = join(f);
             if !full.is_file() {
-                return Err(bad(key, format!("file {} does not exist (paths are relative to the config file's folder)", full.display())));
+                return Err(bad(
+                    key,
+                    format!(
+                        "file {} does not exist (paths are relative to the config file's folder)",
+                        full.display()
+                    ),
+                ));
             }
         }
     }
-    let out_root = raw.output.root.as_ref().map(&join).unwrap_or_else(|| PathBuf::from("out"));
+    let out_root = raw
+        .output
+        .root
+        .as_ref()
+        .map(&join)
+        .unwrap_or_else(|| PathBuf::from("out"));
     let templates = raw.report.templates.as_ref().map(&join);
     if let Some(t) = templates.as_ref().filter(|t| !t.is_dir()) {
-        return Err(bad("report.templates", format!("{} is not a folder (custom templates go in a folder whose files replace the built-in ones)", t.display())));
+        return Err(bad(
+            "report.templates",
+            format!(
+                "{} is not a folder (custom templates go in a folder whose files replace the built-in ones)",
+                t.display()
+            ),
+        ));
     }
     Ok(Config {
         path: path.to_path_buf(),
@@ -685,16 +913,25 @@ type KeyError = (&'static str, String);
 
 fn check_scenarios(s: &ScenarioOptions) -> std::result::Result<(), KeyError> {
     if s.horizon == 0 || s.horizon > 260 {
-        return Err(("scenarios.horizon", format!("must be between 1 and 260 observations, got {}", s.horizon)));
+        return Err((
+            "scenarios.horizon",
+            format!("must be between 1 and 260 observations, got {}", s.horizon),
+        ));
     }
     if s.step == 0 {
         return Err(("scenarios.step", "must be at least 1".into()));
     }
     if s.lookback_years == 0 || s.lookback_years > 100 {
-        return Err(("scenarios.lookback_years", format!("must be between 1 and 100, got {}", s.lookback_years)));
+        return Err((
+            "scenarios.lookback_years",
+            format!("must be between 1 and 100, got {}", s.lookback_years),
+        ));
     }
     match s.half_life {
-        Some(h) if !(h.is_finite() && h > 0.0) => Err(("scenarios.half_life", format!("must be a positive number of observations, got {h}"))),
+        Some(h) if !(h.is_finite() && h > 0.0) => Err((
+            "scenarios.half_life",
+            format!("must be a positive number of observations, got {h}"),
+        )),
         _ => Ok(()),
     }
 }
@@ -703,16 +940,32 @@ fn check_signoff(s: &RawSignoff) -> std::result::Result<(), (String, String)> {
     for (i, r) in s.roles.iter().enumerate() {
         let key = |k: &str| format!("signoff.roles[{i}].{k}");
         if r.role.trim().is_empty() {
-            return Err((key("role"), "is required (e.g. preparer, risk_reviewer, approver)".into()));
+            return Err((
+                key("role"),
+                "is required (e.g. preparer, risk_reviewer, approver)".into(),
+            ));
         }
         if s.roles.iter().filter(|o| o.role == r.role).count() > 1 {
             return Err((key("role"), format!("role `{}` is listed twice", r.role)));
         }
         if r.keys.is_empty() {
-            return Err((key("keys"), format!("role `{}` needs at least one trusted public key (made by `tailpack keygen`)", r.role)));
+            return Err((
+                key("keys"),
+                format!(
+                    "role `{}` needs at least one trusted public key (made by `tailpack keygen`)",
+                    r.role
+                ),
+            ));
         }
-        if let Some(k) = r.keys.iter().find(|k| k.len() != 64 || !k.chars().all(|c| c.is_ascii_hexdigit())) {
-            return Err((key("keys"), format!("`{k}` is not an Ed25519 public key (64 hex digits)")));
+        if let Some(k) = r
+            .keys
+            .iter()
+            .find(|k| k.len() != 64 || !k.chars().all(|c| c.is_ascii_hexdigit()))
+        {
+            return Err((
+                key("keys"),
+                format!("`{k}` is not an Ed25519 public key (64 hex digits)"),
+            ));
         }
     }
     Ok(())
@@ -720,28 +973,46 @@ fn check_signoff(s: &RawSignoff) -> std::result::Result<(), (String, String)> {
 
 fn check_analysis(a: &AnalysisOptions, s: &RawStress) -> std::result::Result<(), KeyError> {
     if a.frontier_points < 2 || a.frontier_points > 500 {
-        return Err(("analysis.frontier_points", format!("must be between 2 and 500, got {}", a.frontier_points)));
+        return Err((
+            "analysis.frontier_points",
+            format!("must be between 2 and 500, got {}", a.frontier_points),
+        ));
     }
     if a.backtest_years > 50 {
-        return Err(("analysis.backtest_years", format!("must be between 0 and 50, got {}", a.backtest_years)));
+        return Err((
+            "analysis.backtest_years",
+            format!("must be between 0 and 50, got {}", a.backtest_years),
+        ));
     }
     if let Some(l) = s.loss_limit {
         if !(l.is_finite() && l > 0.0 && l <= 1.0) {
-            return Err(("stress.loss_limit", format!("must be a loss fraction in (0, 1], got {l}")));
+            return Err((
+                "stress.loss_limit",
+                format!("must be a loss fraction in (0, 1], got {l}"),
+            ));
         }
     }
     if s.historical_windows > 20 {
-        return Err(("stress.historical_windows", format!("must be between 0 and 20, got {}", s.historical_windows)));
+        return Err((
+            "stress.historical_windows",
+            format!("must be between 0 and 20, got {}", s.historical_windows),
+        ));
     }
     Ok(())
 }
 
 fn check_quality(q: &QualityOptions) -> std::result::Result<(), KeyError> {
     if !(q.extreme_move.is_finite() && q.extreme_move > 0.0) {
-        return Err(("quality.extreme_move", format!("must be a positive return, got {}", q.extreme_move)));
+        return Err((
+            "quality.extreme_move",
+            format!("must be a positive return, got {}", q.extreme_move),
+        ));
     }
     if q.stale_run < 2 {
-        return Err(("quality.stale_run", format!("must be at least 2 observations, got {}", q.stale_run)));
+        return Err((
+            "quality.stale_run",
+            format!("must be at least 2 observations, got {}", q.stale_run),
+        ));
     }
     Ok(())
 }
@@ -749,10 +1020,16 @@ fn check_quality(q: &QualityOptions) -> std::result::Result<(), KeyError> {
 fn check_levels(r: &RawRisk) -> std::result::Result<(), KeyError> {
     let open_unit = |c: f64| c.is_finite() && c > 0.0 && c < 1.0;
     if !open_unit(r.confidence) {
-        return Err(("risk.confidence", format!("must lie strictly between 0 and 1, got {}", r.confidence)));
+        return Err((
+            "risk.confidence",
+            format!("must lie strictly between 0 and 1, got {}", r.confidence),
+        ));
     }
     if let Some(c) = r.levels.iter().find(|c| !open_unit(**c)) {
-        return Err(("risk.levels", format!("every level must lie strictly between 0 and 1, got {c}")));
+        return Err((
+            "risk.levels",
+            format!("every level must lie strictly between 0 and 1, got {c}"),
+        ));
     }
     Ok(())
 }
@@ -767,22 +1044,35 @@ fn sorted_levels(r: &RawRisk) -> Vec<f64> {
 
 fn check_limits(l: &RawLimits, has_holdings: bool) -> std::result::Result<(), KeyError> {
     if !(l.default_min.is_finite() && l.default_min >= 0.0) {
-        return Err(("limits.default_min", format!("must be ≥ 0 (long-only), got {}", l.default_min)));
+        return Err((
+            "limits.default_min",
+            format!("must be ≥ 0 (long-only), got {}", l.default_min),
+        ));
     }
     if !(l.default_max.is_finite() && l.default_max >= l.default_min && l.default_max <= 1.0) {
-        return Err(("limits.default_max", format!("must lie in [default_min, 1], got {}", l.default_max)));
+        return Err((
+            "limits.default_max",
+            format!("must lie in [default_min, 1], got {}", l.default_max),
+        ));
     }
     match l.turnover_max {
-        Some(t) if !(t.is_finite() && (0.0..=2.0).contains(&t)) => {
-            Err(("limits.turnover_max", format!("must lie in [0, 2] (Σ|x − current|), got {t}")))
-        }
-        Some(_) if !has_holdings => Err(("limits.turnover_max", "needs current holdings: set data.holdings".into())),
+        Some(t) if !(t.is_finite() && (0.0..=2.0).contains(&t)) => Err((
+            "limits.turnover_max",
+            format!("must lie in [0, 2] (Σ|x − current|), got {t}"),
+        )),
+        Some(_) if !has_holdings => Err((
+            "limits.turnover_max",
+            "needs current holdings: set data.holdings".into(),
+        )),
         _ => Ok(()),
     }
 }
 
 fn resolve_groups(raw: &[RawGroup]) -> std::result::Result<Vec<GroupSpec>, (String, String)> {
-    raw.iter().enumerate().map(|(i, g)| resolve_group(i, g)).collect()
+    raw.iter()
+        .enumerate()
+        .map(|(i, g)| resolve_group(i, g))
+        .collect()
 }
 
 fn resolve_group(i: usize, g: &RawGroup) -> std::result::Result<GroupSpec, (String, String)> {
@@ -792,17 +1082,38 @@ fn resolve_group(i: usize, g: &RawGroup) -> std::result::Result<GroupSpec, (Stri
     }
     let selector = match (&g.tag, &g.assets) {
         (Some(t), None) => {
-            let (column, value) = t.split_once(':').ok_or_else(|| (key("tag"), format!("must look like `column:value` (e.g. `class:equity`), got `{t}`")))?;
-            GroupSelector::Tag { column: column.trim().to_string(), value: value.trim().to_string() }
+            let (column, value) = t.split_once(':').ok_or_else(|| {
+                (
+                    key("tag"),
+                    format!("must look like `column:value` (e.g. `class:equity`), got `{t}`"),
+                )
+            })?;
+            GroupSelector::Tag {
+                column: column.trim().to_string(),
+                value: value.trim().to_string(),
+            }
         }
         (None, Some(a)) if !a.is_empty() => GroupSelector::Assets(a.clone()),
-        _ => return Err((key("tag"), "give exactly one of `tag` or a non-empty `assets` list".into())),
+        _ => {
+            return Err((
+                key("tag"),
+                "give exactly one of `tag` or a non-empty `assets` list".into(),
+            ));
+        }
     };
     let (min, max) = (g.min.unwrap_or(0.0), g.max.unwrap_or(1.0));
     if !(min.is_finite() && max.is_finite() && 0.0 <= min && min <= max && max <= 1.0) {
-        return Err((key("min"), format!("need 0 ≤ min ≤ max ≤ 1, got min {min}, max {max}")));
+        return Err((
+            key("min"),
+            format!("need 0 ≤ min ≤ max ≤ 1, got min {min}, max {max}"),
+        ));
     }
-    Ok(GroupSpec { name: g.name.clone(), selector, min, max })
+    Ok(GroupSpec {
+        name: g.name.clone(),
+        selector,
+        min,
+        max,
+    })
 }
 
 fn resolve_cap(c: &RawCap) -> std::result::Result<CapRule, String> {
@@ -813,8 +1124,13 @@ fn resolve_cap(c: &RawCap) -> std::result::Result<CapRule, String> {
         _ => return Err("give exactly one of `value`, `times_current`, `times_min`".into()),
     };
     let (CapRule::Value(v) | CapRule::TimesCurrent(v) | CapRule::TimesMin(v)) = rule;
-    if !v.is_finite() || (matches!(rule, CapRule::TimesMin(_)) && v < 1.0) || (!matches!(rule, CapRule::Value(_)) && v <= 0.0) {
-        return Err(format!("out of range: {v} (times_min must be ≥ 1, times_current > 0)"));
+    if !v.is_finite()
+        || (matches!(rule, CapRule::TimesMin(_)) && v < 1.0)
+        || (!matches!(rule, CapRule::Value(_)) && v <= 0.0)
+    {
+        return Err(format!(
+            "out of range: {v} (times_min must be ≥ 1, times_current > 0)"
+        ));
     }
     Ok(rule)
 }
@@ -852,6 +1168,9 @@ mod tests {
 
     #[test]
     fn slug_is_folder_safe() {
-        assert_eq!(slug("Orrin Hollow (fictional) Fund"), "orrin-hollow-fictional-fund");
+        assert_eq!(
+            slug("Orrin Hollow (fictional) Fund"),
+            "orrin-hollow-fictional-fund"
+        );
     }
 }

@@ -37,7 +37,11 @@ pub struct Check {
 
 impl Check {
     pub fn new(id: impl Into<String>, level: Level, message: impl Into<String>) -> Self {
-        Check { id: id.into(), level, message: message.into() }
+        Check {
+            id: id.into(),
+            level,
+            message: message.into(),
+        }
     }
     pub fn pass(id: impl Into<String>, message: impl Into<String>) -> Self {
         Self::new(id, Level::Pass, message)

@@ -39,16 +39,28 @@ pub enum Error {
     /// A report template that typst could not compile or export: names the template file and, where the
     /// diagnostic has one, the line and column.
     #[error("template {file}{}: {message}", line.map_or(String::new(), |(l, c)| format!(", line {l}, column {c}")))]
-    Template { file: String, line: Option<(usize, usize)>, message: String },
+    Template {
+        file: String,
+        line: Option<(usize, usize)>,
+        message: String,
+    },
     /// A file-system operation failed.
     #[error("{action} {}: {source}{}", path.display(), io_hint(source.kind()))]
-    Io { action: &'static str, path: PathBuf, #[source] source: std::io::Error },
+    Io {
+        action: &'static str,
+        path: PathBuf,
+        #[source]
+        source: std::io::Error,
+    },
     /// The archive lock is held by another run.
     #[error("another tailpack run holds the archive lock {} (waited without success); try again later", path.display())]
     Busy { path: PathBuf },
     /// A pack failed verification; each line names a file.
     #[error("pack {} failed verification:\n  {}", pack.display(), problems.join("\n  "))]
-    Verify { pack: PathBuf, problems: Vec<String> },
+    Verify {
+        pack: PathBuf,
+        problems: Vec<String>,
+    },
     /// Anything else that stops a run (e.g. no scenarios could be built).
     #[error("{0}")]
     Run(String),
@@ -58,8 +70,12 @@ pub enum Error {
 fn io_hint(kind: std::io::ErrorKind) -> &'static str {
     use std::io::ErrorKind as K;
     match kind {
-        K::NotADirectory | K::AlreadyExists | K::IsADirectory => "; a file or folder of that name is in the way: move it or choose another path (for packs: output.root or --out)",
-        K::PermissionDenied | K::ReadOnlyFilesystem => "; the path is not writable for this user: fix its permissions or choose another path",
+        K::NotADirectory | K::AlreadyExists | K::IsADirectory => {
+            "; a file or folder of that name is in the way: move it or choose another path (for packs: output.root or --out)"
+        }
+        K::PermissionDenied | K::ReadOnlyFilesystem => {
+            "; the path is not writable for this user: fix its permissions or choose another path"
+        }
         K::NotFound => "; check the path",
         K::StorageFull => "; the disk is full: free space and run again",
         _ => "",
@@ -83,12 +99,18 @@ impl Error {
 
     /// A config error for `path`.
     pub fn config(path: &Path, message: impl Into<String>) -> Self {
-        Error::Config { path: path.to_path_buf(), message: message.into() }
+        Error::Config {
+            path: path.to_path_buf(),
+            message: message.into(),
+        }
     }
 
     /// A data error for `path`.
     pub fn data(path: &Path, message: impl Into<String>) -> Self {
-        Error::Data { path: path.to_path_buf(), message: message.into() }
+        Error::Data {
+            path: path.to_path_buf(),
+            message: message.into(),
+        }
     }
 }
 
@@ -98,7 +120,11 @@ pub mod fs {
     use std::path::Path;
 
     fn io<'a>(action: &'static str, path: &'a Path) -> impl FnOnce(std::io::Error) -> Error + 'a {
-        move |source| Error::Io { action, path: path.to_path_buf(), source }
+        move |source| Error::Io {
+            action,
+            path: path.to_path_buf(),
+            source,
+        }
     }
 
     /// Reads a whole file into bytes.

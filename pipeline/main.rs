@@ -7,7 +7,11 @@ use tailpack::config::Backend;
 use tailpack::run::RunOptions;
 
 #[derive(Parser)]
-#[command(name = "tailpack", version, about = "Monthly CVaR risk and allocation packs for an investment committee")]
+#[command(
+    name = "tailpack",
+    version,
+    about = "Monthly CVaR risk and allocation packs for an investment committee"
+)]
 struct Cli {
     #[command(subcommand)]
     command: Command,
@@ -79,15 +83,40 @@ enum Command {
 fn main() {
     let cli = Cli::parse();
     let result = match &cli.command {
-        Command::Run { config, out, as_of, solver, quiet, lock_timeout } => {
-            let opts = RunOptions { as_of: *as_of, out: out.clone(), backend: *solver, lock_timeout: std::time::Duration::from_secs(*lock_timeout) };
-            tailpack::commands::run(config, &opts, &tailpack::commands::Progress::new(*quiet)).map(|r| (r.text, r.code))
+        Command::Run {
+            config,
+            out,
+            as_of,
+            solver,
+            quiet,
+            lock_timeout,
+        } => {
+            let opts = RunOptions {
+                as_of: *as_of,
+                out: out.clone(),
+                backend: *solver,
+                lock_timeout: std::time::Duration::from_secs(*lock_timeout),
+            };
+            tailpack::commands::run(config, &opts, &tailpack::commands::Progress::new(*quiet))
+                .map(|r| (r.text, r.code))
         }
         Command::Keygen { prefix } => tailpack::commands::keygen(prefix).map(|t| (t, 0)),
-        Command::Sign { pack, role, key, name } => tailpack::commands::sign(pack, role, key, name.as_deref()).map(|t| (t, 0)),
+        Command::Sign {
+            pack,
+            role,
+            key,
+            name,
+        } => tailpack::commands::sign(pack, role, key, name.as_deref()).map(|t| (t, 0)),
         Command::Finalize { pack } => tailpack::commands::finalize(pack).map(|t| (t, 0)),
         Command::Verify { pack, rerun } => tailpack::commands::verify(pack, *rerun).map(|t| (t, 0)),
-        Command::Check { config, as_of } => tailpack::commands::check(config, &RunOptions { as_of: *as_of, ..Default::default() }).map(|t| (t, 0)),
+        Command::Check { config, as_of } => tailpack::commands::check(
+            config,
+            &RunOptions {
+                as_of: *as_of,
+                ..Default::default()
+            },
+        )
+        .map(|t| (t, 0)),
         Command::DemoData { dir } => tailpack::commands::demo_data(dir).map(|t| (t, 0)),
     };
     match result {

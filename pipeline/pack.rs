@@ -5,10 +5,10 @@
 //! built under a temporary name beside its final place and renamed into place only when complete, so a
 //! failed or interrupted run never leaves a partial pack behind.
 
-use crate::error::{fs, Result};
+use crate::error::{Result, fs};
 use crate::models::Status;
 use crate::run::{ModelReport, RunResult};
-use serde_json::{json, Map, Value};
+use serde_json::{Map, Value, json};
 use sha2::{Digest, Sha256};
 use std::fmt::Write as _;
 use std::path::{Path, PathBuf};
@@ -25,10 +25,18 @@ pub struct InputFile {
 /// SHA-256 of a file as lower-case hex, read in blocks.
 pub fn sha256_file(path: &Path) -> Result<(String, u64)> {
     use std::io::Read;
-    let mut f = std::fs::File::open(path).map_err(|source| crate::error::Error::Io { action: "cannot open", path: path.into(), source })?;
+    let mut f = std::fs::File::open(path).map_err(|source| crate::error::Error::Io {
+        action: "cannot open",
+        path: path.into(),
+        source,
+    })?;
     let (mut h, mut buf, mut total) = (Sha256::new(), vec![0u8; 1 << 16], 0u64);
     loop {
-        let n = f.read(&mut buf).map_err(|source| crate::error::Error::Io { action: "cannot read", path: path.into(), source })?;
+        let n = f.read(&mut buf).map_err(|source| crate::error::Error::Io {
+            action: "cannot read",
+            path: path.into(),
+            source,
+        })?;
         if n == 0 {
             break;
         }
@@ -40,10 +48,12 @@ pub fn sha256_file(path: &Path) -> Result<(String, u64)> {
 
 /// Lower-case hex encoding.
 pub fn hex(bytes: &[u8]) -> String {
-    bytes.iter().fold(String::with_capacity(bytes.len() * 2), |mut s, b| {
-        let _ = write!(s, "{b:02x}");
-        s
-    })
+    bytes
+        .iter()
+        .fold(String::with_capacity(bytes.len() * 2), |mut s, b| {
+            let _ = write!(s, "{b:02x}");
+            s
+        })
 }
 
 /// `scenarios.csv`: `scenario[,probability],<assets…>`, one row per scenario, round-trip f64 text.
@@ -89,7 +99,9 @@ pub fn weights_csv(r: &RunResult) -> String {
         }
         for m in &r.models {
             match &m.outcome.weights {
-                Some(w) => { let _ = write!(out, ",{:?}", w[i]); }
+                Some(w) => {
+                    let _ = write!(out, ",{:?}", w[i]);
+                }
                 None => out.push(','),
             }
         }
@@ -99,7 +111,13 @@ pub fn weights_csv(r: &RunResult) -> String {
 }
 
 fn weight_map(assets: &[String], w: &[f64]) -> Value {
-    Value::Object(assets.iter().zip(w).map(|(a, x)| (a.clone(), json!(x))).collect())
+    Value::Object(
+        assets
+            .iter()
+            .zip(w)
+            .map(|(a, x)| (a.clone(), json!(x)))
+            .collect(),
+    )
 }
 
 fn model_json(r: &RunResult, m: &ModelReport) -> Value {
@@ -164,7 +182,11 @@ fn constraints_json(r: &RunResult) -> Value {
 
 /// The full `results.json` document.
 pub fn results_json(r: &RunResult, inputs: &[InputFile], pack_id: &str) -> Value {
-    let models: Map<String, Value> = r.models.iter().map(|m| (m.name.to_string(), model_json(r, m))).collect();
+    let models: Map<String, Value> = r
+        .models
+        .iter()
+        .map(|m| (m.name.to_string(), model_json(r, m)))
+        .collect();
     let s = &r.scenarios;
     json!({
         "tool": {"name": "tailpack", "version": env!("CARGO_PKG_VERSION")},
@@ -208,7 +230,9 @@ fn signoff_json(r: &RunResult) -> Value {
 }
 
 fn frontier_json(r: &RunResult) -> Value {
-    let Some(f) = &r.analysis.frontier else { return Value::Null };
+    let Some(f) = &r.analysis.frontier else {
+        return Value::Null;
+    };
     let points: Vec<Value> = f.points.iter().map(|p| json!({
         "cvar_cap": p.cvar_cap, "status": p.status, "expected_return": p.expected_return, "cvar": p.cvar, "var": p.var,
         "weights": p.weights.as_ref().map(|w| weight_map(&r.data.assets, w)),
@@ -232,7 +256,9 @@ fn stress_json(r: &RunResult) -> Value {
 }
 
 fn backtest_json(r: &RunResult) -> Value {
-    let Some(b) = &r.analysis.backtest else { return Value::Null };
+    let Some(b) = &r.analysis.backtest else {
+        return Value::Null;
+    };
     let models: Map<String, Value> = b.tracks.iter().map(|t| (t.model.to_string(), json!({
         "observations": t.observations, "exceptions": t.exceptions, "expected_exceptions": t.expected_exceptions,
         "kupiec": t.kupiec, "christoffersen": t.christoffersen, "mean_prediction_error": t.mean_prediction_error,
@@ -266,31 +292,102 @@ fn loss(x: f64) -> String {
 pub fn summary(r: &RunResult) -> String {
     let c = r.config.confidence;
     let mut s = String::new();
-    let _ = writeln!(s, "{} — as of {} — {} scenarios of {} observations, {} assets, CVaR at {:.1}%",
-        r.config.fund.name, r.data.as_of, r.scenarios.len(), r.scenarios.horizon, r.data.assets.len(), c * 100.0);
-    let _ = writeln!(s, "{:<12} {:<15} {:>10} {:>10} {:>10} {:>9} {:>9}", "portfolio", "status", "exp.return", "VaR", "CVaR", "turnover", "eff.hold");
-    let _ = writeln!(s, "(expected return, VaR and CVaR over the {}-observation horizon; VaR and CVaR as losses at {:.1}%)", r.scenarios.horizon, c * 100.0);
+    let _ = writeln!(
+        s,
+        "{} — as of {} — {} scenarios of {} observations, {} assets, CVaR at {:.1}%",
+        r.config.fund.name,
+        r.data.as_of,
+        r.scenarios.len(),
+        r.scenarios.horizon,
+        r.data.assets.len(),
+        c * 100.0
+    );
+    let _ = writeln!(
+        s,
+        "{:<12} {:<15} {:>10} {:>10} {:>10} {:>9} {:>9}",
+        "portfolio", "status", "exp.return", "VaR", "CVaR", "turnover", "eff.hold"
+    );
+    let _ = writeln!(
+        s,
+        "(expected return, VaR and CVaR over the {}-observation horizon; VaR and CVaR as losses at {:.1}%)",
+        r.scenarios.horizon,
+        c * 100.0
+    );
     if let Some(pr) = &r.current {
         let t = pr.at(c);
-        let _ = writeln!(s, "{:<12} {:<15} {:>10} {:>10} {:>10} {:>9} {:>9.1}", "current", "-", pct(pr.expected_return), loss(t.var), loss(t.cvar), "-", pr.effective_holdings);
+        let _ = writeln!(
+            s,
+            "{:<12} {:<15} {:>10} {:>10} {:>10} {:>9} {:>9.1}",
+            "current",
+            "-",
+            pct(pr.expected_return),
+            loss(t.var),
+            loss(t.cvar),
+            "-",
+            pr.effective_holdings
+        );
     }
     for m in &r.models {
         match &m.profile {
             Some(pr) => {
                 let t = pr.at(c);
-                let turn = m.turnover.map_or("-".into(), |v| format!("{:.1}%", v * 100.0));
-                let _ = writeln!(s, "{:<12} {:<15} {:>10} {:>10} {:>10} {:>9} {:>9.1}", m.name, m.outcome.status.word(), pct(pr.expected_return), loss(t.var), loss(t.cvar), turn, pr.effective_holdings);
+                let turn = m
+                    .turnover
+                    .map_or("-".into(), |v| format!("{:.1}%", v * 100.0));
+                let _ = writeln!(
+                    s,
+                    "{:<12} {:<15} {:>10} {:>10} {:>10} {:>9} {:>9.1}",
+                    m.name,
+                    m.outcome.status.word(),
+                    pct(pr.expected_return),
+                    loss(t.var),
+                    loss(t.cvar),
+                    turn,
+                    pr.effective_holdings
+                );
             }
-            None => { let _ = writeln!(s, "{:<12} {:<15} {}", m.name, m.outcome.status.word(), m.outcome.message.as_deref().unwrap_or("")); }
+            None => {
+                let _ = writeln!(
+                    s,
+                    "{:<12} {:<15} {}",
+                    m.name,
+                    m.outcome.status.word(),
+                    m.outcome.message.as_deref().unwrap_or("")
+                );
+            }
         }
     }
-    if let Some(m) = r.models.iter().find(|m| m.name == "max_ratio" && m.outcome.status == Status::Optimal) {
-        let _ = writeln!(s, "max_ratio: expected return / CVaR = {:.4}", m.outcome.objective.unwrap_or(f64::NAN));
+    if let Some(m) = r
+        .models
+        .iter()
+        .find(|m| m.name == "max_ratio" && m.outcome.status == Status::Optimal)
+    {
+        let _ = writeln!(
+            s,
+            "max_ratio: expected return / CVaR = {:.4}",
+            m.outcome.objective.unwrap_or(f64::NAN)
+        );
     }
-    let warns = r.checks.iter().filter(|c| c.level == crate::diag::Level::Warn).count();
-    let fails = r.checks.iter().filter(|c| c.level == crate::diag::Level::Fail).count();
-    let _ = writeln!(s, "checks: {} pass, {warns} warn, {fails} fail (see results.json \"checks\")", r.checks.len() - warns - fails);
-    for c in r.checks.iter().filter(|c| c.level != crate::diag::Level::Pass) {
+    let warns = r
+        .checks
+        .iter()
+        .filter(|c| c.level == crate::diag::Level::Warn)
+        .count();
+    let fails = r
+        .checks
+        .iter()
+        .filter(|c| c.level == crate::diag::Level::Fail)
+        .count();
+    let _ = writeln!(
+        s,
+        "checks: {} pass, {warns} warn, {fails} fail (see results.json \"checks\")",
+        r.checks.len() - warns - fails
+    );
+    for c in r
+        .checks
+        .iter()
+        .filter(|c| c.level != crate::diag::Level::Pass)
+    {
         let _ = writeln!(s, "  {}: {}", c.level.word(), c.message);
     }
     s
@@ -326,9 +423,19 @@ pub fn write(r: &RunResult, plan: &crate::archive::Plan) -> Result<(PathBuf, Str
     }
     crate::archive::write_index(&r.config.out_root)?;
     let shown = std::fs::canonicalize(&dir).unwrap_or(dir);
-    let note = previous.map(|p| format!("revision r{revision} (changed inputs: {}) replaces {}\n",
-        crate::archive::changed_inputs(&p, plan).join(", "), p.display())).unwrap_or_default();
-    Ok((shown.clone(), format!("{text}{note}pack: {}\n", shown.display())))
+    let note = previous
+        .map(|p| {
+            format!(
+                "revision r{revision} (changed inputs: {}) replaces {}\n",
+                crate::archive::changed_inputs(&p, plan).join(", "),
+                p.display()
+            )
+        })
+        .unwrap_or_default();
+    Ok((
+        shown.clone(),
+        format!("{text}{note}pack: {}\n", shown.display()),
+    ))
 }
 
 /// Writes the outputs of a run into `dir` (results, scenarios, weights, summary, PDF).
@@ -340,7 +447,10 @@ pub fn fill(r: &RunResult, dir: &Path, plan: &crate::archive::Plan) -> Result<St
     let results = results_json(r, &inputs, id);
     let json = serde_json::to_string_pretty(&results).expect("results serialise");
     fs::write(&dir.join("results.json"), json + "\n")?;
-    fs::write(&dir.join("pack.pdf"), crate::report::render(r, &results, id)?)?;
+    fs::write(
+        &dir.join("pack.pdf"),
+        crate::report::render(r, &results, id)?,
+    )?;
     let text = summary(r);
     fs::write(&dir.join("summary.txt"), &text)?;
     Ok(text)

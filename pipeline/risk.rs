@@ -25,8 +25,16 @@ pub struct Tail {
 pub fn var_cvar(losses: &[f64], probs: &[f64], c: f64) -> Tail {
     let order = sorted_order(losses);
     let var = lower_quantile(losses, probs, &order, c);
-    let excess: f64 = losses.iter().zip(probs).map(|(l, p)| p * (l - var).max(0.0)).sum();
-    Tail { level: c, var, cvar: var + excess / (1.0 - c) }
+    let excess: f64 = losses
+        .iter()
+        .zip(probs)
+        .map(|(l, p)| p * (l - var).max(0.0))
+        .sum();
+    Tail {
+        level: c,
+        var,
+        cvar: var + excess / (1.0 - c),
+    }
 }
 
 fn sorted_order(losses: &[f64]) -> Vec<usize> {
@@ -48,7 +56,12 @@ fn lower_quantile(losses: &[f64], probs: &[f64], order: &[usize], c: f64) -> f64
 
 /// The Rockafellar–Uryasev function F_c(ℓ) = ℓ + 1/(1−c) · Σ p_k (L_k − ℓ)+.
 pub fn ru_objective(losses: &[f64], probs: &[f64], c: f64, ell: f64) -> f64 {
-    ell + losses.iter().zip(probs).map(|(l, p)| p * (l - ell).max(0.0)).sum::<f64>() / (1.0 - c)
+    ell + losses
+        .iter()
+        .zip(probs)
+        .map(|(l, p)| p * (l - ell).max(0.0))
+        .sum::<f64>()
+        / (1.0 - c)
 }
 
 /// Tail weights q_k with CVaR_c = Σ q_k L_k: p_k/(1−c) beyond VaR, the remainder of the tail mass on the
@@ -57,18 +70,32 @@ pub fn ru_objective(losses: &[f64], probs: &[f64], c: f64, ell: f64) -> f64 {
 /// Tasche 1999, "Risk contributions and performance measurement").
 pub fn tail_weights(losses: &[f64], probs: &[f64], c: f64) -> Vec<f64> {
     let var = var_cvar(losses, probs, c).var;
-    let beyond: f64 = losses.iter().zip(probs).filter(|(l, _)| **l > var).map(|(_, p)| p).sum();
-    let at: f64 = losses.iter().zip(probs).filter(|(l, _)| **l == var).map(|(_, p)| p).sum();
+    let beyond: f64 = losses
+        .iter()
+        .zip(probs)
+        .filter(|(l, _)| **l > var)
+        .map(|(_, p)| p)
+        .sum();
+    let at: f64 = losses
+        .iter()
+        .zip(probs)
+        .filter(|(l, _)| **l == var)
+        .map(|(_, p)| p)
+        .sum();
     let remainder = ((1.0 - c) - beyond).max(0.0);
-    losses.iter().zip(probs).map(|(l, p)| {
-        if *l > var {
-            p / (1.0 - c)
-        } else if *l == var && at > 0.0 {
-            remainder * (p / at) / (1.0 - c)
-        } else {
-            0.0
-        }
-    }).collect()
+    losses
+        .iter()
+        .zip(probs)
+        .map(|(l, p)| {
+            if *l > var {
+                p / (1.0 - c)
+            } else if *l == var && at > 0.0 {
+                remainder * (p / at) / (1.0 - c)
+            } else {
+                0.0
+            }
+        })
+        .collect()
 }
 
 /// Everything the pack reports about one portfolio.
@@ -89,7 +116,11 @@ pub struct RiskProfile {
 impl RiskProfile {
     /// The tail entry at level `c` (levels are stored exactly as configured).
     pub fn at(&self, c: f64) -> Tail {
-        *self.tails.iter().find(|t| (t.level - c).abs() < 1e-12).expect("level was computed")
+        *self
+            .tails
+            .iter()
+            .find(|t| (t.level - c).abs() < 1e-12)
+            .expect("level was computed")
     }
 }
 
@@ -99,12 +130,18 @@ pub fn profile(set: &ScenarioSet, x: &[f64], levels: &[f64], confidence: f64) ->
     let losses: Vec<f64> = returns.iter().map(|r| -r).collect();
     let p = &set.probabilities;
     let mean: f64 = returns.iter().zip(p).map(|(r, p)| r * p).sum();
-    let var: f64 = returns.iter().zip(p).map(|(r, p)| p * (r - mean).powi(2)).sum();
+    let var: f64 = returns
+        .iter()
+        .zip(p)
+        .map(|(r, p)| p * (r - mean).powi(2))
+        .sum();
     let q = tail_weights(&losses, p, confidence);
     let component_cvar = (0..set.width())
         .map(|i| (0..set.len()).map(|k| -q[k] * set.row(k)[i] * x[i]).sum())
         .collect();
-    let worst = (0..losses.len()).max_by(|&a, &b| losses[a].total_cmp(&losses[b])).expect("scenarios");
+    let worst = (0..losses.len())
+        .max_by(|&a, &b| losses[a].total_cmp(&losses[b]))
+        .expect("scenarios");
     RiskProfile {
         expected_return: mean,
         volatility: var.max(0.0).sqrt(),

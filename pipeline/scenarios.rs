@@ -63,22 +63,44 @@ impl ScenarioSet {
 
     /// Portfolio returns per scenario, r_k · x.
     pub fn portfolio_returns(&self, x: &[f64]) -> Vec<f64> {
-        (0..self.len()).map(|k| self.row(k).iter().zip(x).map(|(r, w)| r * w).sum()).collect()
+        (0..self.len())
+            .map(|k| self.row(k).iter().zip(x).map(|(r, w)| r * w).sum())
+            .collect()
     }
 
     /// A scenario set from explicit data (tests, benchmarks); probabilities must be positive and sum to 1.
-    pub fn from_matrix(assets: Vec<String>, returns: Vec<f64>, probabilities: Vec<f64>) -> Result<Self> {
+    pub fn from_matrix(
+        assets: Vec<String>,
+        returns: Vec<f64>,
+        probabilities: Vec<f64>,
+    ) -> Result<Self> {
         let (n, s) = (assets.len(), probabilities.len());
         if n == 0 || returns.len() != n * s || s == 0 {
-            return Err(Error::Run(format!("scenario matrix shape: {} values for {s} scenarios × {n} assets", returns.len())));
+            return Err(Error::Run(format!(
+                "scenario matrix shape: {} values for {s} scenarios × {n} assets",
+                returns.len()
+            )));
         }
         let total: f64 = probabilities.iter().sum();
         if probabilities.iter().any(|p| !(*p >= 0.0)) || (total - 1.0).abs() > 1e-9 {
-            return Err(Error::Run(format!("scenario probabilities must be ≥ 0 and sum to 1 (sum {total})")));
+            return Err(Error::Run(format!(
+                "scenario probabilities must be ≥ 0 and sum to 1 (sum {total})"
+            )));
         }
         let day = NaiveDate::from_ymd_opt(2000, 1, 1).expect("valid");
-        let equal = probabilities.iter().all(|p| (p - probabilities[0]).abs() < 1e-15);
-        Ok(ScenarioSet { assets, starts: vec![day; s], ends: vec![day; s], returns, probabilities, equal_probabilities: equal, horizon: 1, step: 1 })
+        let equal = probabilities
+            .iter()
+            .all(|p| (p - probabilities[0]).abs() < 1e-15);
+        Ok(ScenarioSet {
+            assets,
+            starts: vec![day; s],
+            ends: vec![day; s],
+            returns,
+            probabilities,
+            equal_probabilities: equal,
+            horizon: 1,
+            step: 1,
+        })
     }
 }
 
@@ -88,11 +110,18 @@ pub fn build(data: &MarketData, opts: &ScenarioOptions) -> Result<ScenarioSet> {
 }
 
 /// Builds a scenario set from dated prices (`prices[asset][row]`, rows ascending, no missing values).
-pub fn from_prices(assets: &[String], dates: &[NaiveDate], prices: &[Vec<f64>], opts: &ScenarioOptions) -> Result<ScenarioSet> {
+pub fn from_prices(
+    assets: &[String],
+    dates: &[NaiveDate],
+    prices: &[Vec<f64>],
+    opts: &ScenarioOptions,
+) -> Result<ScenarioSet> {
     let rows = dates.len();
     let h = opts.horizon;
     if rows <= h {
-        return Err(Error::Run(format!("{rows} observations cannot make a {h}-observation scenario")));
+        return Err(Error::Run(format!(
+            "{rows} observations cannot make a {h}-observation scenario"
+        )));
     }
     let mut ends: Vec<usize> = (h..rows).rev().step_by(opts.step).collect();
     ends.reverse();
@@ -120,7 +149,9 @@ pub fn from_prices(assets: &[String], dates: &[NaiveDate], prices: &[Vec<f64>], 
 
 /// Exponentially decaying weights p_k ∝ 2^(−age_k / half_life), normalised to sum to 1.
 pub fn decayed(ages: impl Iterator<Item = f64>, half_life: f64) -> Vec<f64> {
-    let raw: Vec<f64> = ages.map(|a| (-a * std::f64::consts::LN_2 / half_life).exp()).collect();
+    let raw: Vec<f64> = ages
+        .map(|a| (-a * std::f64::consts::LN_2 / half_life).exp())
+        .collect();
     let total: f64 = raw.iter().sum();
     raw.iter().map(|w| w / total).collect()
 }

@@ -79,7 +79,9 @@ pub struct Backtest {
 
 /// The month-ends of the full history: the last observation of every calendar month.
 pub fn month_ends(dates: &[NaiveDate]) -> Vec<usize> {
-    (0..dates.len()).filter(|&i| i + 1 == dates.len() || dates[i + 1].month() != dates[i].month()).collect()
+    (0..dates.len())
+        .filter(|&i| i + 1 == dates.len() || dates[i + 1].month() != dates[i].month())
+        .collect()
 }
 
 /// A month's decision: weights and predictions per model, or why the month was skipped.
@@ -103,25 +105,50 @@ pub fn run(cfg: &Config, data: &MarketData, live: &FeasibleSet) -> Option<Backte
     }
     let start = data.as_of.checked_sub_months(Months::new(12 * years))?;
     let ends = month_ends(&data.full_dates);
-    let pairs: Vec<(usize, usize)> = ends.windows(2).map(|w| (w[0], w[1]))
-        .filter(|(m, _)| data.full_dates[*m] >= start).collect();
+    let pairs: Vec<(usize, usize)> = ends
+        .windows(2)
+        .map(|w| (w[0], w[1]))
+        .filter(|(m, _)| data.full_dates[*m] >= start)
+        .collect();
     if pairs.is_empty() {
         return None;
     }
-    let months: Vec<Month> = pairs.par_iter().map(|&(m, n)| Month { row: m, next: n, decisions: decide(cfg, data, live, m) }).collect();
+    let months: Vec<Month> = pairs
+        .par_iter()
+        .map(|&(m, n)| Month {
+            row: m,
+            next: n,
+            decisions: decide(cfg, data, live, m),
+        })
+        .collect();
     Some(assemble(cfg, data, &months))
 }
 
 /// Solves the three models with data up to row `m` only.
-fn decide(cfg: &Config, data: &MarketData, live: &FeasibleSet, m: usize) -> Result<Vec<Decision>, String> {
+fn decide(
+    cfg: &Config,
+    data: &MarketData,
+    live: &FeasibleSet,
+    m: usize,
+) -> Result<Vec<Decision>, String> {
     let (assets, dates, prices, fs) = window(cfg, data, live, m)?;
-    let set = scenarios::from_prices(&assets, &dates, &prices, &cfg.scenarios).map_err(|e| e.to_string())?;
+    let set = scenarios::from_prices(&assets, &dates, &prices, &cfg.scenarios)
+        .map_err(|e| e.to_string())?;
     if set.len() < crate::ingest::MIN_SCENARIOS {
         return Err(format!("only {} scenarios", set.len()));
     }
     let c = cfg.confidence;
-    let p = Problem { set: &set, mu: set.mean(), confidence: c, feasible: &fs, backend: cfg.backend };
-    let reference = data.holdings.as_ref().map(|h| risk::profile(&set, h, &[c], c));
+    let p = Problem {
+        set: &set,
+        mu: set.mean(),
+        confidence: c,
+        feasible: &fs,
+        backend: cfg.backend,
+    };
+    let reference = data
+        .holdings
+        .as_ref()
+        .map(|h| risk::profile(&set, h, &[c], c));
     let min_x = p.min_cvar(None).ok().map(|s| s.objective);
     let max_x = p.max_return(None).ok().map(|s| s.objective);
     let cap = models::resolve_cap(cfg.cap, min_x, reference.as_ref().map(|r| r.at(c).cvar));
@@ -130,17 +157,33 @@ fn decide(cfg: &Config, data: &MarketData, live: &FeasibleSet, m: usize) -> Resu
     let outcomes = [
         models::outcome(&p, p.max_return(Some(cap)), Some(cap), None, String::new),
         models::outcome(&p, p.min_cvar(Some(floor)), None, Some(floor), String::new),
-        if pre.holds { models::outcome(&p, p.max_ratio(), None, None, String::new) } else {
-            models::Outcome { status: Status::NotApplicable, message: pre.reason, weights: None, objective: None, scale: None, max_violation: None }
+        if pre.holds {
+            models::outcome(&p, p.max_ratio(), None, None, String::new)
+        } else {
+            models::Outcome {
+                status: Status::NotApplicable,
+                message: pre.reason,
+                weights: None,
+                objective: None,
+                scale: None,
+                max_violation: None,
+            }
         },
     ];
-    Ok(outcomes.into_iter().map(|o| {
-        let tail = o.weights.as_ref().map(|w| {
-            let pr = risk::profile(&set, w, &[c], c);
-            (pr.expected_return, pr.at(c).var, pr.at(c).cvar)
-        });
-        Decision { status: o.status, weights: o.weights, tail }
-    }).collect())
+    Ok(outcomes
+        .into_iter()
+        .map(|o| {
+            let tail = o.weights.as_ref().map(|w| {
+                let pr = risk::profile(&set, w, &[c], c);
+                (pr.expected_return, pr.at(c).var, pr.at(c).cvar)
+            });
+            Decision {
+                status: o.status,
+                weights: o.weights,
+                tail,
+            }
+        })
+        .collect())
 }
 
 type Window = (Vec<String>, Vec<NaiveDate>, Vec<Vec<f64>>, FeasibleSet);
@@ -148,10 +191,15 @@ type Window = (Vec<String>, Vec<NaiveDate>, Vec<Vec<f64>>, FeasibleSet);
 /// The lookback window ending at row `m`; assets without a full price series there get zero weight.
 fn window(cfg: &Config, data: &MarketData, live: &FeasibleSet, m: usize) -> Result<Window, String> {
     let end = data.full_dates[m];
-    let from = end.checked_sub_months(Months::new(12 * cfg.scenarios.lookback_years)).ok_or("date range")?;
+    let from = end
+        .checked_sub_months(Months::new(12 * cfg.scenarios.lookback_years))
+        .ok_or("date range")?;
     let s = data.full_dates.partition_point(|d| *d < from);
     if m + 1 - s <= cfg.scenarios.horizon + crate::ingest::MIN_SCENARIOS {
-        return Err(format!("history before {end} is too short for a {}-year lookback", cfg.scenarios.lookback_years));
+        return Err(format!(
+            "history before {end} is too short for a {}-year lookback",
+            cfg.scenarios.lookback_years
+        ));
     }
     let mut fs = live.clone();
     let mut prices = Vec::with_capacity(data.assets.len());
@@ -165,20 +213,39 @@ fn window(cfg: &Config, data: &MarketData, live: &FeasibleSet, m: usize) -> Resu
             prices.push(vec![1.0; slice.len()]);
         }
     }
-    Ok((data.assets.clone(), data.full_dates[s..=m].to_vec(), prices, fs))
+    Ok((
+        data.assets.clone(),
+        data.full_dates[s..=m].to_vec(),
+        prices,
+        fs,
+    ))
 }
 
 fn realised(data: &MarketData, w: &[f64], from: usize, to: usize) -> (f64, Vec<f64>) {
-    let r: Vec<f64> = data.full_prices.iter().map(|p| {
-        let v = p[to] / p[from] - 1.0;
-        if v.is_finite() { v } else { 0.0 }
-    }).collect();
+    let r: Vec<f64> = data
+        .full_prices
+        .iter()
+        .map(|p| {
+            let v = p[to] / p[from] - 1.0;
+            if v.is_finite() { v } else { 0.0 }
+        })
+        .collect();
     (models::dot(w, &r), r)
 }
 
 fn assemble(cfg: &Config, data: &MarketData, months: &[Month]) -> Backtest {
-    let skipped = months.iter().filter_map(|m| m.decisions.as_ref().err().map(|e| (data.full_dates[m.row], e.clone()))).collect();
-    let tracks = (0..MODEL_NAMES.len()).map(|k| track(cfg, data, months, k)).collect();
+    let skipped = months
+        .iter()
+        .filter_map(|m| {
+            m.decisions
+                .as_ref()
+                .err()
+                .map(|e| (data.full_dates[m.row], e.clone()))
+        })
+        .collect();
+    let tracks = (0..MODEL_NAMES.len())
+        .map(|k| track(cfg, data, months, k))
+        .collect();
     Backtest {
         confidence: cfg.confidence,
         rebalances: months.iter().map(|m| data.full_dates[m.row]).collect(),
@@ -195,11 +262,18 @@ fn track(cfg: &Config, data: &MarketData, months: &[Month], k: usize) -> Track {
         let (date, next) = (data.full_dates[m.row], data.full_dates[m.next]);
         let status = d.map_or("skipped".to_string(), |d| d.status.word().to_string());
         let weights = d.and_then(|d| d.weights.clone());
-        let turnover = match (&weights, &held) { (Some(w), Some(h)) => Some(models::turnover(w, h)), _ => None };
+        let turnover = match (&weights, &held) {
+            (Some(w), Some(h)) => Some(models::turnover(w, h)),
+            _ => None,
+        };
         let (realised_return, drifted) = match &weights {
             Some(w) => {
                 let (rp, r) = realised(data, w, m.row, m.next);
-                let drift: Vec<f64> = w.iter().zip(&r).map(|(x, ri)| x * (1.0 + ri) / (1.0 + rp)).collect();
+                let drift: Vec<f64> = w
+                    .iter()
+                    .zip(&r)
+                    .map(|(x, ri)| x * (1.0 + ri) / (1.0 + rp))
+                    .collect();
                 (Some(rp), Some(drift))
             }
             None => (None, None),
@@ -209,10 +283,22 @@ fn track(cfg: &Config, data: &MarketData, months: &[Month], k: usize) -> Track {
             held = drifted;
         }
         let tail = d.and_then(|d| d.tail);
-        let exception = match (tail, realised_return) { (Some((_, var, _)), Some(r)) => Some(-r > var), _ => None };
+        let exception = match (tail, realised_return) {
+            (Some((_, var, _)), Some(r)) => Some(-r > var),
+            _ => None,
+        };
         rows.push(TrackRow {
-            date, next, status, weights, predicted_return: tail.map(|t| t.0), predicted_var: tail.map(|t| t.1),
-            predicted_cvar: tail.map(|t| t.2), realised_return, turnover, wealth, exception,
+            date,
+            next,
+            status,
+            weights,
+            predicted_return: tail.map(|t| t.0),
+            predicted_var: tail.map(|t| t.1),
+            predicted_cvar: tail.map(|t| t.2),
+            realised_return,
+            turnover,
+            wealth,
+            exception,
         });
     }
     summarise(cfg, data, MODEL_NAMES[k], rows)
@@ -222,8 +308,15 @@ fn summarise(cfg: &Config, data: &MarketData, model: &'static str, rows: Vec<Tra
     let hits: Vec<bool> = rows.iter().filter_map(|r| r.exception).collect();
     let exceptions = hits.iter().filter(|h| **h).count();
     let p = 1.0 - cfg.confidence;
-    let gaps: Vec<f64> = rows.iter().filter_map(|r| Some(r.predicted_return? - r.realised_return?)).collect();
-    let daily = if cfg.analysis.daily_var_check { daily_check(cfg, data, &rows) } else { None };
+    let gaps: Vec<f64> = rows
+        .iter()
+        .filter_map(|r| Some(r.predicted_return? - r.realised_return?))
+        .collect();
+    let daily = if cfg.analysis.daily_var_check {
+        daily_check(cfg, data, &rows)
+    } else {
+        None
+    };
     Track {
         model,
         observations: hits.len(),
@@ -231,7 +324,8 @@ fn summarise(cfg: &Config, data: &MarketData, model: &'static str, rows: Vec<Tra
         expected_exceptions: p * hits.len() as f64,
         kupiec: (!hits.is_empty()).then(|| vartest::kupiec(exceptions, hits.len(), p)),
         christoffersen: vartest::christoffersen(&hits),
-        mean_prediction_error: (!gaps.is_empty()).then(|| gaps.iter().sum::<f64>() / gaps.len() as f64),
+        mean_prediction_error: (!gaps.is_empty())
+            .then(|| gaps.iter().sum::<f64>() / gaps.len() as f64),
         final_wealth: rows.last().map_or(1.0, |r| r.wealth),
         rows,
         daily,
@@ -243,24 +337,53 @@ fn summarise(cfg: &Config, data: &MarketData, model: &'static str, rows: Vec<Tra
 fn daily_check(cfg: &Config, data: &MarketData, rows: &[TrackRow]) -> Option<DailyCheck> {
     let last = data.full_dates.len() - 1;
     let first = last.checked_sub(DAILY_OBSERVATIONS - 1)?;
-    let opts = crate::config::ScenarioOptions { horizon: 1, step: 1, ..cfg.scenarios.clone() };
+    let opts = crate::config::ScenarioOptions {
+        horizon: 1,
+        step: 1,
+        ..cfg.scenarios.clone()
+    };
     let mut exceptions = 0;
     for day in first..=last {
         let prev = data.full_dates[day - 1];
-        let w = rows.iter().rev().find(|r| r.date <= prev)?.weights.as_ref()?;
+        let w = rows
+            .iter()
+            .rev()
+            .find(|r| r.date <= prev)?
+            .weights
+            .as_ref()?;
         let from = prev.checked_sub_months(Months::new(12 * cfg.scenarios.lookback_years))?;
         let s = data.full_dates.partition_point(|d| *d < from);
-        let prices: Vec<Vec<f64>> = data.full_prices.iter().map(|p| p[s..day].iter().map(|v| if v.is_finite() { *v } else { 1.0 }).collect()).collect();
-        let set = scenarios::from_prices(&data.assets, &data.full_dates[s..day], &prices, &opts).ok()?;
-        let var = risk::var_cvar(&set.portfolio_returns(w).iter().map(|r| -r).collect::<Vec<_>>(), &set.probabilities, DAILY_LEVEL).var;
+        let prices: Vec<Vec<f64>> = data
+            .full_prices
+            .iter()
+            .map(|p| {
+                p[s..day]
+                    .iter()
+                    .map(|v| if v.is_finite() { *v } else { 1.0 })
+                    .collect()
+            })
+            .collect();
+        let set =
+            scenarios::from_prices(&data.assets, &data.full_dates[s..day], &prices, &opts).ok()?;
+        let var = risk::var_cvar(
+            &set.portfolio_returns(w)
+                .iter()
+                .map(|r| -r)
+                .collect::<Vec<_>>(),
+            &set.probabilities,
+            DAILY_LEVEL,
+        )
+        .var;
         let (r, _) = realised(data, w, day - 1, day);
         exceptions += usize::from(-r > var);
     }
     let p = 1.0 - DAILY_LEVEL;
     Some(DailyCheck {
-        observations: DAILY_OBSERVATIONS, exceptions,
+        observations: DAILY_OBSERVATIONS,
+        exceptions,
         cumulative_probability: vartest::cumulative_probability(exceptions, DAILY_OBSERVATIONS, p),
         zone: vartest::zone(exceptions, DAILY_OBSERVATIONS, p),
-        start: data.full_dates[first], end: data.full_dates[last],
+        start: data.full_dates[first],
+        end: data.full_dates[last],
     })
 }

@@ -31,17 +31,28 @@ pub struct Frontier {
 pub fn sweep(p: &Problem, k: usize) -> Option<Frontier> {
     let low = p.min_cvar(None).ok()?;
     let high = p.max_return(None).ok()?;
-    let (lo, hi) = (low.objective, risk::cvar_of(p.set, &high.weights, p.confidence));
+    let (lo, hi) = (
+        low.objective,
+        risk::cvar_of(p.set, &high.weights, p.confidence),
+    );
     let hi = hi.max(lo);
     // A hair of slack keeps the end caps feasible despite solver tolerance at the minimum.
     let slack = 1e-9 * (1.0 + lo.abs());
-    let caps: Vec<f64> = (0..k).map(|j| lo + (hi - lo) * j as f64 / (k - 1) as f64 + if j == 0 { slack } else { 0.0 }).collect();
+    let caps: Vec<f64> = (0..k)
+        .map(|j| lo + (hi - lo) * j as f64 / (k - 1) as f64 + if j == 0 { slack } else { 0.0 })
+        .collect();
     let points = caps.par_iter().map(|&cap| point(p, cap)).collect();
-    Some(Frontier { min_cvar: lo, max_return_cvar: hi, points })
+    Some(Frontier {
+        min_cvar: lo,
+        max_return_cvar: hi,
+        points,
+    })
 }
 
 fn point(p: &Problem, cap: f64) -> FrontierPoint {
-    let o = crate::models::outcome(p, p.max_return(Some(cap)), Some(cap), None, || format!("CVaR cap {cap:.6} infeasible"));
+    let o = crate::models::outcome(p, p.max_return(Some(cap)), Some(cap), None, || {
+        format!("CVaR cap {cap:.6} infeasible")
+    });
     let tails = o.weights.as_ref().map(|w| {
         let losses: Vec<f64> = p.set.portfolio_returns(w).iter().map(|r| -r).collect();
         risk::var_cvar(&losses, &p.set.probabilities, p.confidence)

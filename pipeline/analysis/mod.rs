@@ -24,18 +24,40 @@ pub struct Analysis {
 }
 
 /// Computes frontier, stress set and backtest. `portfolios` are (name, weights) of current and each model.
-pub fn analyse(cfg: &Config, data: &MarketData, p: &Problem, fs: &FeasibleSet, portfolios: &[(String, Vec<f64>)]) -> Result<Analysis> {
+pub fn analyse(
+    cfg: &Config,
+    data: &MarketData,
+    p: &Problem,
+    fs: &FeasibleSet,
+    portfolios: &[(String, Vec<f64>)],
+) -> Result<Analysis> {
     let frontier = frontier::sweep(p, cfg.analysis.frontier_points);
     let mut shocks = match &cfg.stress_file {
         Some(path) => stress::defined(path, &crate::config::load_stress(path)?, data)?,
         None => vec![],
     };
-    let reference = data.holdings.clone().unwrap_or_else(|| vec![1.0 / data.assets.len() as f64; data.assets.len()]);
-    shocks.extend(stress::historical(data, &reference, cfg.scenarios.horizon, cfg.stress_windows));
+    let reference = data
+        .holdings
+        .clone()
+        .unwrap_or_else(|| vec![1.0 / data.assets.len() as f64; data.assets.len()]);
+    shocks.extend(stress::historical(
+        data,
+        &reference,
+        cfg.scenarios.horizon,
+        cfg.stress_windows,
+    ));
     let classes: Vec<String> = data.meta.iter().map(|m| m.class.clone()).collect();
-    let stress = portfolios.iter().map(|(name, w)| stress::replay(name, w, &shocks, &classes, cfg.stress_loss_limit)).collect();
+    let stress = portfolios
+        .iter()
+        .map(|(name, w)| stress::replay(name, w, &shocks, &classes, cfg.stress_loss_limit))
+        .collect();
     let backtest = backtest::run(cfg, data, fs);
-    Ok(Analysis { frontier, shocks, stress, backtest })
+    Ok(Analysis {
+        frontier,
+        shocks,
+        stress,
+        backtest,
+    })
 }
 
 /// Checks that summarise the analysis for the checks table.
@@ -43,16 +65,42 @@ pub fn checks(a: &Analysis, cfg: &Config) -> Vec<Check> {
     let mut out = Vec::new();
     for s in &a.stress {
         if !s.breaches.is_empty() {
-            let names: Vec<&str> = s.breaches.iter().map(|&k| a.shocks[k].name.as_str()).collect();
-            out.push(Check::warn(format!("stress.{}", s.portfolio), format!(
-                "{}: stress loss above the limit of {:.1}% in {}", s.portfolio, cfg.stress_loss_limit.unwrap_or(0.0) * 100.0, names.join("; "))));
+            let names: Vec<&str> = s
+                .breaches
+                .iter()
+                .map(|&k| a.shocks[k].name.as_str())
+                .collect();
+            out.push(Check::warn(
+                format!("stress.{}", s.portfolio),
+                format!(
+                    "{}: stress loss above the limit of {:.1}% in {}",
+                    s.portfolio,
+                    cfg.stress_loss_limit.unwrap_or(0.0) * 100.0,
+                    names.join("; ")
+                ),
+            ));
         }
     }
     if let Some(b) = &a.backtest {
         for t in &b.tracks {
             let Some(k) = t.kupiec else { continue };
-            let msg = format!("{}: {} VaR exceptions in {} months (expected {:.1}); Kupiec LR {:.2}, p = {:.3}", t.model, t.exceptions, t.observations, t.expected_exceptions, k.statistic, k.p_value);
-            out.push(if k.p_value < 0.05 { Check::warn(format!("backtest.{}", t.model), format!("{msg}: the exception rate is rejected at 5%")) } else { Check::pass(format!("backtest.{}", t.model), msg) });
+            let msg = format!(
+                "{}: {} VaR exceptions in {} months (expected {:.1}); Kupiec LR {:.2}, p = {:.3}",
+                t.model,
+                t.exceptions,
+                t.observations,
+                t.expected_exceptions,
+                k.statistic,
+                k.p_value
+            );
+            out.push(if k.p_value < 0.05 {
+                Check::warn(
+                    format!("backtest.{}", t.model),
+                    format!("{msg}: the exception rate is rejected at 5%"),
+                )
+            } else {
+                Check::pass(format!("backtest.{}", t.model), msg)
+            });
         }
     }
     out

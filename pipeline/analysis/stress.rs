@@ -36,12 +36,17 @@ fn resolve(path: &Path, s: &ShockSpec, data: &MarketData) -> Result<Shock> {
     for m in &s.moves {
         if let Some(a) = &m.asset {
             if !data.assets.contains(a) {
-                return Err(err(format!("unknown asset `{a}` (not in the price data, or dropped by the fill policy)")));
+                return Err(err(format!(
+                    "unknown asset `{a}` (not in the price data, or dropped by the fill policy)"
+                )));
             }
         }
         if let Some(t) = &m.tag {
             let (col, val) = t.split_once(':').expect("checked when loading");
-            if !data.meta.iter().any(|am| am.tag(&col.trim().to_ascii_lowercase()).is_some_and(|v| v.eq_ignore_ascii_case(val.trim()))) {
+            if !data.meta.iter().any(|am| {
+                am.tag(&col.trim().to_ascii_lowercase())
+                    .is_some_and(|v| v.eq_ignore_ascii_case(val.trim()))
+            }) {
                 return Err(err(format!("tag `{t}` matches no asset")));
             }
         }
@@ -49,8 +54,17 @@ fn resolve(path: &Path, s: &ShockSpec, data: &MarketData) -> Result<Shock> {
     let mut returns = Vec::with_capacity(data.assets.len());
     let mut unshocked = Vec::new();
     for (i, a) in data.assets.iter().enumerate() {
-        let by_asset = s.moves.iter().find(|m| m.asset.as_deref() == Some(a.as_str()));
-        let by_tag = || s.moves.iter().find(|m| m.tag.as_ref().is_some_and(|t| tag_matches(t, &data.meta[i])));
+        let by_asset = s
+            .moves
+            .iter()
+            .find(|m| m.asset.as_deref() == Some(a.as_str()));
+        let by_tag = || {
+            s.moves.iter().find(|m| {
+                m.tag
+                    .as_ref()
+                    .is_some_and(|t| tag_matches(t, &data.meta[i]))
+            })
+        };
         match by_asset.or_else(by_tag) {
             Some(m) => returns.push(m.ret),
             None => {
@@ -59,12 +73,21 @@ fn resolve(path: &Path, s: &ShockSpec, data: &MarketData) -> Result<Shock> {
             }
         }
     }
-    Ok(Shock { name: s.name.clone(), kind: "defined", description: s.description.clone(), start: None, end: None, returns, unshocked })
+    Ok(Shock {
+        name: s.name.clone(),
+        kind: "defined",
+        description: s.description.clone(),
+        start: None,
+        end: None,
+        returns,
+        unshocked,
+    })
 }
 
 fn tag_matches(tag: &str, meta: &crate::ingest::meta::AssetMeta) -> bool {
     let (col, val) = tag.split_once(':').expect("checked when loading");
-    meta.tag(&col.trim().to_ascii_lowercase()).is_some_and(|v| v.eq_ignore_ascii_case(val.trim()))
+    meta.tag(&col.trim().to_ascii_lowercase())
+        .is_some_and(|v| v.eq_ignore_ascii_case(val.trim()))
 }
 
 /// The `count` worst non-overlapping `h`-observation windows of the full history for the reference
@@ -75,10 +98,25 @@ pub fn historical(data: &MarketData, reference: &[f64], h: usize, count: usize) 
         return vec![];
     }
     let window = |t: usize| -> Vec<f64> {
-        data.full_prices.iter().map(|p| { let r = p[t + h] / p[t] - 1.0; if r.is_finite() { r } else { f64::NAN } }).collect()
+        data.full_prices
+            .iter()
+            .map(|p| {
+                let r = p[t + h] / p[t] - 1.0;
+                if r.is_finite() { r } else { f64::NAN }
+            })
+            .collect()
     };
     let mut scored: Vec<(usize, f64)> = (0..rows - h)
-        .map(|t| (t, window(t).iter().zip(reference).map(|(r, w)| if r.is_nan() { 0.0 } else { r * w }).sum()))
+        .map(|t| {
+            (
+                t,
+                window(t)
+                    .iter()
+                    .zip(reference)
+                    .map(|(r, w)| if r.is_nan() { 0.0 } else { r * w })
+                    .sum(),
+            )
+        })
         .collect();
     scored.sort_by(|a, b| a.1.total_cmp(&b.1).then(a.0.cmp(&b.0)));
     let mut picked: Vec<usize> = Vec::new();
@@ -121,16 +159,36 @@ pub struct StressResult {
 }
 
 /// Replays every shock on weights `w`.
-pub fn replay(name: &str, w: &[f64], shocks: &[Shock], classes: &[String], loss_limit: Option<f64>) -> StressResult {
-    let pnl: Vec<f64> = shocks.iter().map(|s| s.returns.iter().zip(w).map(|(r, x)| r * x).sum()).collect();
-    let worst = (0..pnl.len()).min_by(|&a, &b| pnl[a].total_cmp(&pnl[b])).unwrap_or(0);
-    let by_class = shocks.iter().map(|s| {
-        let terms: Vec<f64> = s.returns.iter().zip(w).map(|(r, x)| r * x).collect();
-        crate::risk::by_group(&terms, classes)
-    }).collect();
+pub fn replay(
+    name: &str,
+    w: &[f64],
+    shocks: &[Shock],
+    classes: &[String],
+    loss_limit: Option<f64>,
+) -> StressResult {
+    let pnl: Vec<f64> = shocks
+        .iter()
+        .map(|s| s.returns.iter().zip(w).map(|(r, x)| r * x).sum())
+        .collect();
+    let worst = (0..pnl.len())
+        .min_by(|&a, &b| pnl[a].total_cmp(&pnl[b]))
+        .unwrap_or(0);
+    let by_class = shocks
+        .iter()
+        .map(|s| {
+            let terms: Vec<f64> = s.returns.iter().zip(w).map(|(r, x)| r * x).collect();
+            crate::risk::by_group(&terms, classes)
+        })
+        .collect();
     let breaches = match loss_limit {
         Some(l) => (0..pnl.len()).filter(|&k| -pnl[k] > l).collect(),
         None => vec![],
     };
-    StressResult { portfolio: name.to_string(), pnl, worst, by_class, breaches }
+    StressResult {
+        portfolio: name.to_string(),
+        pnl,
+        worst,
+        by_class,
+        breaches,
+    }
 }

@@ -28,7 +28,10 @@ pub struct LrTest {
 
 fn chi2_1(statistic: f64) -> LrTest {
     let s = statistic.max(0.0);
-    LrTest { statistic: s, p_value: ChiSquared::new(1.0).expect("df 1").sf(s) }
+    LrTest {
+        statistic: s,
+        p_value: ChiSquared::new(1.0).expect("df 1").sf(s),
+    }
 }
 
 /// Kupiec's POF test of `exceptions` out of `t` observations at exception probability `p` (= 1 − c).
@@ -50,8 +53,16 @@ pub fn christoffersen(hits: &[bool]) -> Option<LrTest> {
         n[usize::from(w[0])][usize::from(w[1])] += 1.0;
     }
     let (n00, n01, n10, n11) = (n[0][0], n[0][1], n[1][0], n[1][1]);
-    let pi01 = if n00 + n01 > 0.0 { n01 / (n00 + n01) } else { 0.0 };
-    let pi11 = if n10 + n11 > 0.0 { n11 / (n10 + n11) } else { 0.0 };
+    let pi01 = if n00 + n01 > 0.0 {
+        n01 / (n00 + n01)
+    } else {
+        0.0
+    };
+    let pi11 = if n10 + n11 > 0.0 {
+        n11 / (n10 + n11)
+    } else {
+        0.0
+    };
     let pi = (n01 + n11) / (n00 + n01 + n10 + n11);
     let null = xlny(n00 + n10, 1.0 - pi) + xlny(n01 + n11, pi);
     let alt = xlny(n00, 1.0 - pi01) + xlny(n01, pi01) + xlny(n10, 1.0 - pi11) + xlny(n11, pi11);
@@ -69,7 +80,9 @@ pub enum Zone {
 
 /// P(X ≤ x) for X ~ Binomial(t, p): the probability of at most `x` exceptions under an accurate model.
 pub fn cumulative_probability(x: usize, t: usize, p: f64) -> f64 {
-    Binomial::new(p, t as u64).expect("valid binomial").cdf(x as u64)
+    Binomial::new(p, t as u64)
+        .expect("valid binomial")
+        .cdf(x as u64)
 }
 
 /// The Basel zone of `x` exceptions in `t` observations at exception probability `p`.

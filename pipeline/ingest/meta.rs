@@ -1,6 +1,6 @@
 //! Asset metadata (class and other tags, per-asset weight bounds) and current holdings.
 
-use super::table::{read_table, TextTable};
+use super::table::{TextTable, read_table};
 use crate::error::{Error, Result};
 use std::collections::BTreeMap;
 use std::path::Path;
@@ -41,61 +41,119 @@ pub fn read_assets(path: &Path) -> Result<Vec<AssetMeta>> {
     let t = read_table(path)?;
     let col = |n: &str| t.find(n);
     let header = t.header_place();
-    let asset = col("asset").ok_or_else(|| Error::data(path, format!("{header}: needs an `asset` column")))?;
-    let class = col("class").ok_or_else(|| Error::data(path, format!("{header}: needs a `class` column (e.g. equity, government, credit, cash)")))?;
+    let asset = col("asset")
+        .ok_or_else(|| Error::data(path, format!("{header}: needs an `asset` column")))?;
+    let class = col("class").ok_or_else(|| {
+        Error::data(
+            path,
+            format!("{header}: needs a `class` column (e.g. equity, government, credit, cash)"),
+        )
+    })?;
     let mut out: Vec<AssetMeta> = Vec::with_capacity(t.rows());
     for row in 0..t.rows() {
         let m = meta_row(path, &t, row, asset, class)?;
         if out.iter().any(|o| o.asset == m.asset) {
-            return Err(Error::data(path, format!("{}: asset `{}` is listed twice", t.place(row), m.asset)));
+            return Err(Error::data(
+                path,
+                format!("{}: asset `{}` is listed twice", t.place(row), m.asset),
+            ));
         }
         out.push(m);
     }
     if out.is_empty() {
-        return Err(Error::data(path, format!("{header}: no asset rows follow the header")));
+        return Err(Error::data(
+            path,
+            format!("{header}: no asset rows follow the header"),
+        ));
     }
     Ok(out)
 }
 
-fn meta_row(path: &Path, t: &TextTable, row: usize, asset: usize, class: usize) -> Result<AssetMeta> {
-    let cell = |c: usize| t.columns[c][row].as_deref().map(str::trim).unwrap_or("").to_string();
+fn meta_row(
+    path: &Path,
+    t: &TextTable,
+    row: usize,
+    asset: usize,
+    class: usize,
+) -> Result<AssetMeta> {
+    let cell = |c: usize| {
+        t.columns[c][row]
+            .as_deref()
+            .map(str::trim)
+            .unwrap_or("")
+            .to_string()
+    };
     let place = t.place(row);
     let code = cell(asset);
     if code.is_empty() {
-        return Err(Error::data(path, format!("{place}, column `asset`: blank asset code")));
+        return Err(Error::data(
+            path,
+            format!("{place}, column `asset`: blank asset code"),
+        ));
     }
     let weight = |name: &str| -> Result<Option<f64>> {
-        let Some(c) = t.find(name) else { return Ok(None) };
+        let Some(c) = t.find(name) else {
+            return Ok(None);
+        };
         let v = cell(c);
         if v.is_empty() {
             return Ok(None);
         }
         match v.parse::<f64>() {
             Ok(w) if w.is_finite() && (0.0..=1.0).contains(&w) => Ok(Some(w)),
-            _ => Err(Error::data(path, format!("{place}, column `{name}`: `{v}` must be a weight between 0 and 1"))),
+            _ => Err(Error::data(
+                path,
+                format!("{place}, column `{name}`: `{v}` must be a weight between 0 and 1"),
+            )),
         }
     };
     let (min_weight, max_weight) = (weight("min_weight")?, weight("max_weight")?);
     if let (Some(lo), Some(hi)) = (min_weight, max_weight) {
         if lo > hi {
-            return Err(Error::data(path, format!("{place}: min_weight {lo} is above max_weight {hi} for `{code}`")));
+            return Err(Error::data(
+                path,
+                format!("{place}: min_weight {lo} is above max_weight {hi} for `{code}`"),
+            ));
         }
     }
     let reserved = ["asset", "class", "name", "min_weight", "max_weight"];
-    let tags = t.names.iter().enumerate()
+    let tags = t
+        .names
+        .iter()
+        .enumerate()
         .filter(|(_, n)| !reserved.contains(&n.trim().to_ascii_lowercase().as_str()))
         .map(|(c, n)| (n.trim().to_ascii_lowercase(), cell(c)))
         .collect();
-    let name = t.find("name").map(cell).filter(|n| !n.is_empty()).unwrap_or_else(|| code.clone());
-    Ok(AssetMeta { asset: code, name, class: cell(class).to_ascii_lowercase(), tags, min_weight, max_weight, place })
+    let name = t
+        .find("name")
+        .map(cell)
+        .filter(|n| !n.is_empty())
+        .unwrap_or_else(|| code.clone());
+    Ok(AssetMeta {
+        asset: code,
+        name,
+        class: cell(class).to_ascii_lowercase(),
+        tags,
+        min_weight,
+        max_weight,
+        place,
+    })
 }
 
 /// Reads current holdings (`asset,weight`), checks them against the asset list and returns weights in
 /// `assets` order (absent assets get 0).
 pub fn read_holdings(path: &Path, assets: &[String]) -> Result<Vec<f64>> {
     let t = read_table(path)?;
-    let need = || Error::data(path, format!("{}: needs columns `asset,weight`", t.header_place()));
-    let (a, w) = (t.find("asset").ok_or_else(need)?, t.find("weight").ok_or_else(need)?);
+    let need = || {
+        Error::data(
+            path,
+            format!("{}: needs columns `asset,weight`", t.header_place()),
+        )
+    };
+    let (a, w) = (
+        t.find("asset").ok_or_else(need)?,
+        t.find("weight").ok_or_else(need)?,
+    );
     let mut weights = vec![0.0; assets.len()];
     let mut seen = vec![false; assets.len()];
     for row in 0..t.rows() {
@@ -107,14 +165,26 @@ pub fn read_holdings(path: &Path, assets: &[String]) -> Result<Vec<f64>> {
         let i = assets.iter().position(|x| x == code)
             .ok_or_else(|| Error::data(path, format!("{place}: asset `{code}` is not in the price data (or was dropped by the fill policy)")))?;
         if std::mem::replace(&mut seen[i], true) {
-            return Err(Error::data(path, format!("{place}: asset `{code}` is listed twice")));
+            return Err(Error::data(
+                path,
+                format!("{place}: asset `{code}` is listed twice"),
+            ));
         }
         weights[i] = value;
     }
     let total: f64 = weights.iter().sum();
     if (total - 1.0).abs() > HOLDINGS_TOLERANCE {
-        let rows = if t.rows() == 0 { "no rows".to_string() } else { format!("{} to {}", t.place(0), t.place(t.rows() - 1)) };
-        return Err(Error::data(path, format!("column `weight` ({rows}): the weights sum to {total:.6}, not 1 (tolerance {HOLDINGS_TOLERANCE}); fix the file so the holdings are a full portfolio")));
+        let rows = if t.rows() == 0 {
+            "no rows".to_string()
+        } else {
+            format!("{} to {}", t.place(0), t.place(t.rows() - 1))
+        };
+        return Err(Error::data(
+            path,
+            format!(
+                "column `weight` ({rows}): the weights sum to {total:.6}, not 1 (tolerance {HOLDINGS_TOLERANCE}); fix the file so the holdings are a full portfolio"
+            ),
+        ));
     }
     Ok(weights.iter().map(|x| x / total).collect())
 }

@@ -59,7 +59,9 @@ pub fn load(cfg: &Config, as_of: Option<NaiveDate>) -> Result<MarketData> {
     findings.extend(quality::non_positive(&file, &hist));
     findings.extend(quality::overflowing_range(&file, &hist));
     if quality::worst(&findings) == Level::Fail {
-        return Err(Error::Quality { problems: fails(&findings) });
+        return Err(Error::Quality {
+            problems: fails(&findings),
+        });
     }
     let data = build(cfg, hist, meta, as_of, findings)?;
     let problems = data.quality.failures();
@@ -71,18 +73,43 @@ pub fn load(cfg: &Config, as_of: Option<NaiveDate>) -> Result<MarketData> {
 }
 
 fn fails(findings: &[Check]) -> Vec<String> {
-    findings.iter().filter(|f| f.level == Level::Fail).map(|f| f.message.clone()).collect()
+    findings
+        .iter()
+        .filter(|f| f.level == Level::Fail)
+        .map(|f| f.message.clone())
+        .collect()
 }
 
 fn check_universe(cfg: &Config, hist: &PriceHistory, meta: &[AssetMeta]) -> Result<()> {
-    if let Some(a) = hist.assets.iter().find(|a| !meta.iter().any(|m| &m.asset == *a)) {
-        return Err(Error::data(&cfg.assets, format!("column `asset`: has no row for asset `{a}`, which is in the price file {}; every priced asset needs a row with at least its class", cfg.prices.display())));
+    if let Some(a) = hist
+        .assets
+        .iter()
+        .find(|a| !meta.iter().any(|m| &m.asset == *a))
+    {
+        return Err(Error::data(
+            &cfg.assets,
+            format!(
+                "column `asset`: has no row for asset `{a}`, which is in the price file {}; every priced asset needs a row with at least its class",
+                cfg.prices.display()
+            ),
+        ));
     }
     if let Some(m) = meta.iter().find(|m| !hist.assets.contains(&m.asset)) {
-        return Err(Error::data(&cfg.assets, format!("{}: lists asset `{}`, which has no prices in the price file {}; remove the row or add its prices", m.place, m.asset, cfg.prices.display())));
+        return Err(Error::data(
+            &cfg.assets,
+            format!(
+                "{}: lists asset `{}`, which has no prices in the price file {}; remove the row or add its prices",
+                m.place,
+                m.asset,
+                cfg.prices.display()
+            ),
+        ));
     }
     if let Some(x) = cfg.exclude.iter().find(|x| !hist.assets.contains(x)) {
-        return Err(Error::config(&cfg.path, format!("limits.exclude: unknown asset `{x}`")));
+        return Err(Error::config(
+            &cfg.path,
+            format!("limits.exclude: unknown asset `{x}`"),
+        ));
     }
     Ok(())
 }
@@ -97,21 +124,47 @@ fn check_bounds(cfg: &Config, data: &MarketData) -> Result<()> {
         (false, true) => m.min_weight.unwrap_or(cfg.default_min),
         (false, false) => m.max_weight.unwrap_or(cfg.default_max),
     };
-    let sum = |lower: bool| -> f64 { data.meta.iter().zip(&data.assets).map(|(m, a)| bound(m, a, lower)).sum() };
+    let sum = |lower: bool| -> f64 {
+        data.meta
+            .iter()
+            .zip(&data.assets)
+            .map(|(m, a)| bound(m, a, lower))
+            .sum()
+    };
     let (lo, hi) = (sum(true), sum(false));
     let n = data.assets.len();
-    let own = |f: fn(&AssetMeta) -> Option<f64>| data.meta.iter().zip(&data.assets).filter(|(m, a)| f(m).is_some() && !excluded(a)).count();
+    let own = |f: fn(&AssetMeta) -> Option<f64>| {
+        data.meta
+            .iter()
+            .zip(&data.assets)
+            .filter(|(m, a)| f(m).is_some() && !excluded(a))
+            .count()
+    };
     let assets = cfg.assets.display();
-    let exclude = if cfg.exclude.is_empty() { String::new() } else { format!(", {} excluded by limits.exclude", cfg.exclude.len()) };
+    let exclude = if cfg.exclude.is_empty() {
+        String::new()
+    } else {
+        format!(", {} excluded by limits.exclude", cfg.exclude.len())
+    };
     if lo > 1.0 + BOUND_SLACK {
-        return Err(Error::config(&cfg.path, format!(
-            "limits.default_min = {}, column `min_weight` of {assets}: the minimum weights of the {n} assets sum to {lo:.4} > 1 ({} of them from their own min_weight, the rest from limits.default_min{exclude}), so no portfolio meets the budget Σx = 1: lower limits.default_min or the min_weight values",
-            cfg.default_min, own(|m| m.min_weight))));
+        return Err(Error::config(
+            &cfg.path,
+            format!(
+                "limits.default_min = {}, column `min_weight` of {assets}: the minimum weights of the {n} assets sum to {lo:.4} > 1 ({} of them from their own min_weight, the rest from limits.default_min{exclude}), so no portfolio meets the budget Σx = 1: lower limits.default_min or the min_weight values",
+                cfg.default_min,
+                own(|m| m.min_weight)
+            ),
+        ));
     }
     if hi < 1.0 - BOUND_SLACK {
-        return Err(Error::config(&cfg.path, format!(
-            "limits.default_max = {}, column `max_weight` of {assets}: the maximum weights of the {n} assets sum to {hi:.4} < 1 ({} of them from their own max_weight, the rest from limits.default_max{exclude}), so no portfolio meets the budget Σx = 1: raise limits.default_max or the max_weight values",
-            cfg.default_max, own(|m| m.max_weight))));
+        return Err(Error::config(
+            &cfg.path,
+            format!(
+                "limits.default_max = {}, column `max_weight` of {assets}: the maximum weights of the {n} assets sum to {hi:.4} < 1 ({} of them from their own max_weight, the rest from limits.default_max{exclude}), so no portfolio meets the budget Σx = 1: raise limits.default_max or the max_weight values",
+                cfg.default_max,
+                own(|m| m.max_weight)
+            ),
+        ));
     }
     Ok(())
 }
@@ -123,8 +176,13 @@ const BOUND_SLACK: f64 = 1e-12;
 fn resolve_as_of(cfg: &Config, hist: &PriceHistory, given: Option<NaiveDate>) -> Result<NaiveDate> {
     let (first, last) = (hist.dates[0], *hist.dates.last().expect("non-empty"));
     match given {
-        Some(d) if d < first || d > last => Err(Error::config(&cfg.path, format!(
-            "--as-of {d} is outside the price data, which runs from {first} to {last} ({}); give a date in that range or leave --as-of out for the latest month-end", cfg.prices.display()))),
+        Some(d) if d < first || d > last => Err(Error::config(
+            &cfg.path,
+            format!(
+                "--as-of {d} is outside the price data, which runs from {first} to {last} ({}); give a date in that range or leave --as-of out for the latest month-end",
+                cfg.prices.display()
+            ),
+        )),
         Some(d) => Ok(d),
         None => Ok(default_as_of(&hist.dates)),
     }
@@ -138,7 +196,12 @@ pub fn default_as_of(dates: &[NaiveDate]) -> NaiveDate {
         return last;
     }
     let month_start = last.with_day(1).expect("day 1 exists");
-    dates.iter().rev().find(|d| **d < month_start).copied().unwrap_or(last)
+    dates
+        .iter()
+        .rev()
+        .find(|d| **d < month_start)
+        .copied()
+        .unwrap_or(last)
 }
 
 fn is_last_business_day(d: NaiveDate) -> bool {
@@ -158,15 +221,24 @@ fn cut_after(h: &mut PriceHistory, as_of: NaiveDate) {
     }
 }
 
-fn build(cfg: &Config, hist: PriceHistory, meta: Vec<AssetMeta>, as_of: NaiveDate, mut findings: Vec<Check>) -> Result<MarketData> {
-    let window_start = as_of.checked_sub_months(Months::new(12 * cfg.scenarios.lookback_years)).unwrap_or(hist.dates[0]);
+fn build(
+    cfg: &Config,
+    hist: PriceHistory,
+    meta: Vec<AssetMeta>,
+    as_of: NaiveDate,
+    mut findings: Vec<Check>,
+) -> Result<MarketData> {
+    let window_start = as_of
+        .checked_sub_months(Months::new(12 * cfg.scenarios.lookback_years))
+        .unwrap_or(hist.dates[0]);
     let start = hist.dates.partition_point(|d| *d < window_start);
     if start == 0 && hist.dates[0] > window_start {
         findings.push(Check::warn("quality.lookback", format!(
             "the price history starts on {}, after the lookback start {window_start} ({} years before as-of); all of it is used",
             hist.dates[0], cfg.scenarios.lookback_years)));
     }
-    let (mut assets, mut prices, mut metas, mut per_asset, mut full) = (vec![], vec![], vec![], vec![], vec![]);
+    let (mut assets, mut prices, mut metas, mut per_asset, mut full) =
+        (vec![], vec![], vec![], vec![], vec![]);
     for (a, series) in hist.assets.iter().zip(&hist.values) {
         let f = quality::fill_asset(a, series, start, &cfg.quality);
         findings.extend(f.note);
@@ -174,24 +246,45 @@ fn build(cfg: &Config, hist: PriceHistory, meta: Vec<AssetMeta>, as_of: NaiveDat
             assets.push(a.clone());
             prices.push(f.values);
             full.push(quality::fill_forward(series, cfg.quality.max_fill));
-            metas.push(meta.iter().find(|m| &m.asset == a).expect("checked").clone());
+            metas.push(
+                meta.iter()
+                    .find(|m| &m.asset == a)
+                    .expect("checked")
+                    .clone(),
+            );
         }
         per_asset.push(f.quality);
     }
     let dates = hist.dates[start..].to_vec();
     findings.extend(quality::series_findings(&per_asset, &cfg.quality));
-    findings.push(window_check(&cfg.prices.display().to_string(), dates.len(), cfg.scenarios.horizon, cfg.scenarios.step));
+    findings.push(window_check(
+        &cfg.prices.display().to_string(),
+        dates.len(),
+        cfg.scenarios.horizon,
+        cfg.scenarios.step,
+    ));
     if assets.is_empty() {
-        findings.push(Check::fail("quality.no_assets", "every asset was dropped by the fill policy; nothing to optimise"));
+        findings.push(Check::fail(
+            "quality.no_assets",
+            "every asset was dropped by the fill policy; nothing to optimise",
+        ));
     } else {
-        findings.push(quality::history_length(dates.len(), assets.len(), cfg.scenarios.horizon, &cfg.quality));
+        findings.push(quality::history_length(
+            dates.len(),
+            assets.len(),
+            cfg.scenarios.horizon,
+            &cfg.quality,
+        ));
     }
     let holdings = match &cfg.holdings {
         Some(p) if !assets.is_empty() => Some(meta::read_holdings(p, &assets)?),
         _ => None,
     };
     let quality = QualityReport {
-        fill_policy: format!("forward-fill up to {} consecutive missing observations, else drop the asset", cfg.quality.max_fill),
+        fill_policy: format!(
+            "forward-fill up to {} consecutive missing observations, else drop the asset",
+            cfg.quality.max_fill
+        ),
         window_start: dates.first().copied().unwrap_or(as_of),
         window_end: dates.last().copied().unwrap_or(as_of),
         observations: dates.len(),
@@ -199,15 +292,40 @@ fn build(cfg: &Config, hist: PriceHistory, meta: Vec<AssetMeta>, as_of: NaiveDat
         findings,
     };
     let history = (hist.dates[0], *hist.dates.last().expect("non-empty"));
-    Ok(MarketData { as_of, history, dates, assets, prices, full_dates: hist.dates, full_prices: full, meta: metas, holdings, quality, layout: hist.layout })
+    Ok(MarketData {
+        as_of,
+        history,
+        dates,
+        assets,
+        prices,
+        full_dates: hist.dates,
+        full_prices: full,
+        meta: metas,
+        holdings,
+        quality,
+        layout: hist.layout,
+    })
 }
 
 fn window_check(file: &str, rows: usize, horizon: usize, step: usize) -> Check {
-    let scenarios = if rows > horizon { (rows - horizon - 1) / step + 1 } else { 0 };
-    if scenarios < MIN_SCENARIOS {
-        Check::fail("quality.too_few_scenarios", format!(
-            "{file}: the scenario window has {rows} observations, giving {scenarios} scenarios of horizon {horizon} (step {step}); at least {MIN_SCENARIOS} are needed: lengthen scenarios.lookback_years, shorten scenarios.horizon or supply more history"))
+    let scenarios = if rows > horizon {
+        (rows - horizon - 1) / step + 1
     } else {
-        Check::pass("quality.scenario_count", format!("{scenarios} scenarios from {rows} observations (horizon {horizon}, step {step})"))
+        0
+    };
+    if scenarios < MIN_SCENARIOS {
+        Check::fail(
+            "quality.too_few_scenarios",
+            format!(
+                "{file}: the scenario window has {rows} observations, giving {scenarios} scenarios of horizon {horizon} (step {step}); at least {MIN_SCENARIOS} are needed: lengthen scenarios.lookback_years, shorten scenarios.horizon or supply more history"
+            ),
+        )
+    } else {
+        Check::pass(
+            "quality.scenario_count",
+            format!(
+                "{scenarios} scenarios from {rows} observations (horizon {horizon}, step {step})"
+            ),
+        )
     }
 }

@@ -4,7 +4,7 @@
 //! missing value (handled later by the fill policy), but a column without a single price is an error. Errors
 //! name the file, the row and the column.
 
-use super::table::{truncate, TextTable};
+use super::table::{TextTable, truncate};
 use crate::config::Layout;
 use crate::error::{Error, Result};
 use chrono::NaiveDate;
@@ -28,12 +28,20 @@ pub struct PriceHistory {
 pub fn parse_date(path: &Path, place: &str, column: &str, text: &str) -> Result<NaiveDate> {
     let t = text.trim();
     iso_date(t).ok_or_else(|| {
-        let hint = if NaiveDate::parse_from_str(t, "%d/%m/%Y").is_ok() || NaiveDate::parse_from_str(t, "%m/%d/%Y").is_ok() {
+        let hint = if NaiveDate::parse_from_str(t, "%d/%m/%Y").is_ok()
+            || NaiveDate::parse_from_str(t, "%m/%d/%Y").is_ok()
+        {
             "; dates must be ISO YYYY-MM-DD (this looks like a day/month format)"
         } else {
             "; dates must be real calendar dates written YYYY-MM-DD"
         };
-        Error::data(path, format!("{place}, column `{column}`: `{}` is not a valid date{hint}", truncate(t, 40)))
+        Error::data(
+            path,
+            format!(
+                "{place}, column `{column}`: `{}` is not a valid date{hint}",
+                truncate(t, 40)
+            ),
+        )
     })
 }
 
@@ -42,12 +50,24 @@ pub fn parse_date(path: &Path, place: &str, column: &str, text: &str) -> Result<
 /// has no next day.
 fn iso_date(t: &str) -> Option<NaiveDate> {
     let b = t.as_bytes();
-    let shape = b.len() == 10 && b[4] == b'-' && b[7] == b'-' && b.iter().enumerate().all(|(i, c)| i == 4 || i == 7 || c.is_ascii_digit());
-    shape.then(|| NaiveDate::parse_from_str(t, "%Y-%m-%d").ok()).flatten()
+    let shape = b.len() == 10
+        && b[4] == b'-'
+        && b[7] == b'-'
+        && b.iter()
+            .enumerate()
+            .all(|(i, c)| i == 4 || i == 7 || c.is_ascii_digit());
+    shape
+        .then(|| NaiveDate::parse_from_str(t, "%Y-%m-%d").ok())
+        .flatten()
 }
 
 /// Parses a price cell: `None` for a missing value, an error for text or a non-finite number.
-pub fn parse_price(path: &Path, place: &str, column: &str, cell: Option<&str>) -> Result<Option<f64>> {
+pub fn parse_price(
+    path: &Path,
+    place: &str,
+    column: &str,
+    cell: Option<&str>,
+) -> Result<Option<f64>> {
     let Some(raw) = cell else { return Ok(None) };
     let t = raw.trim();
     if t.is_empty() || t.eq_ignore_ascii_case("na") || t.eq_ignore_ascii_case("nan") {
@@ -55,8 +75,19 @@ pub fn parse_price(path: &Path, place: &str, column: &str, cell: Option<&str>) -
     }
     match t.parse::<f64>() {
         Ok(v) if v.is_finite() => Ok(Some(v)),
-        Ok(_) => Err(Error::data(path, format!("{place}, column `{column}`: price `{t}` is infinite; use a finite number or leave the cell blank"))),
-        Err(_) => Err(Error::data(path, format!("{place}, column `{column}`: price `{}` is not a number (use a plain decimal like 101.25, no thousands separators or currency signs)", truncate(t, 40)))),
+        Ok(_) => Err(Error::data(
+            path,
+            format!(
+                "{place}, column `{column}`: price `{t}` is infinite; use a finite number or leave the cell blank"
+            ),
+        )),
+        Err(_) => Err(Error::data(
+            path,
+            format!(
+                "{place}, column `{column}`: price `{}` is not a number (use a plain decimal like 101.25, no thousands separators or currency signs)",
+                truncate(t, 40)
+            ),
+        )),
     }
 }
 
@@ -70,7 +101,13 @@ pub fn parse_prices(path: &Path, bytes: &[u8], layout: Layout) -> Result<PriceHi
 /// Builds the price history, detecting the layout when asked to.
 pub fn from_table(path: &Path, t: &TextTable, layout: Layout) -> Result<PriceHistory> {
     if t.rows() == 0 {
-        return Err(Error::data(path, format!("{}: no data rows follow the header; the file needs at least one dated row of prices", t.header_place())));
+        return Err(Error::data(
+            path,
+            format!(
+                "{}: no data rows follow the header; the file needs at least one dated row of prices",
+                t.header_place()
+            ),
+        ));
     }
     let date_col = t.find("date").ok_or_else(|| no_date_column(path, t))?;
     let is_long = t.find("asset").is_some() && t.find("price").is_some() && t.names.len() == 3;
@@ -84,20 +121,51 @@ pub fn from_table(path: &Path, t: &TextTable, layout: Layout) -> Result<PriceHis
 
 /// A missing `date` column, with a hint when the header itself looks like a row of data.
 fn no_date_column(path: &Path, t: &TextTable) -> Error {
-    let looks_like_data = t.names.first().is_some_and(|n| iso_date(n.trim()).is_some());
-    let hint = if looks_like_data { "; the first line looks like data: add a header line such as `date,AS01,AS02`" } else { "" };
-    Error::data(path, format!("{}: has no `date` column (columns: {}){hint}", t.header_place(), truncate(&t.names.join(", "), 80)))
+    let looks_like_data = t
+        .names
+        .first()
+        .is_some_and(|n| iso_date(n.trim()).is_some());
+    let hint = if looks_like_data {
+        "; the first line looks like data: add a header line such as `date,AS01,AS02`"
+    } else {
+        ""
+    };
+    Error::data(
+        path,
+        format!(
+            "{}: has no `date` column (columns: {}){hint}",
+            t.header_place(),
+            truncate(&t.names.join(", "), 80)
+        ),
+    )
 }
 
 /// An asset without a single price is a broken feed, not a history that starts late: it stops the run
 /// rather than being dropped quietly by the fill policy.
 fn check_some_price(path: &Path, t: &TextTable, h: &PriceHistory) -> Result<()> {
-    let Some((a, _)) = h.assets.iter().zip(&h.values).find(|(_, v)| v.iter().all(Option::is_none)) else { return Ok(()) };
+    let Some((a, _)) = h
+        .assets
+        .iter()
+        .zip(&h.values)
+        .find(|(_, v)| v.iter().all(Option::is_none))
+    else {
+        return Ok(());
+    };
     let what = match h.layout {
         Layout::Long => format!("asset `{a}` (column `asset`): none of its rows has a price"),
-        _ => format!("column `{a}`: no price in any of its {} rows ({} to {})", t.rows(), t.place(0), t.place(t.rows() - 1)),
+        _ => format!(
+            "column `{a}`: no price in any of its {} rows ({} to {})",
+            t.rows(),
+            t.place(0),
+            t.place(t.rows() - 1)
+        ),
     };
-    Err(Error::data(path, format!("{what}; every cell is blank, NA or NaN: supply its prices or remove the asset from this file and from the asset metadata")))
+    Err(Error::data(
+        path,
+        format!(
+            "{what}; every cell is blank, NA or NaN: supply its prices or remove the asset from this file and from the asset metadata"
+        ),
+    ))
 }
 
 fn wide(path: &Path, t: &TextTable, date_col: usize) -> Result<PriceHistory> {
@@ -112,33 +180,69 @@ fn wide(path: &Path, t: &TextTable, date_col: usize) -> Result<PriceHistory> {
     let mut assets = Vec::new();
     let mut values = Vec::new();
     for (c, name) in t.names.iter().enumerate().filter(|(c, _)| *c != date_col) {
-        let col: Result<Vec<_>> =
-            (0..t.rows()).map(|r| parse_price(path, &places[r], name, t.columns[c][r].as_deref())).collect();
+        let col: Result<Vec<_>> = (0..t.rows())
+            .map(|r| parse_price(path, &places[r], name, t.columns[c][r].as_deref()))
+            .collect();
         assets.push(name.trim().to_string());
         values.push(col?);
     }
     if assets.is_empty() {
-        return Err(Error::data(path, "has a `date` column but no asset columns"));
+        return Err(Error::data(
+            path,
+            "has a `date` column but no asset columns",
+        ));
     }
-    Ok(PriceHistory { dates, assets, values, places, layout: Layout::Wide })
+    Ok(PriceHistory {
+        dates,
+        assets,
+        values,
+        places,
+        layout: Layout::Wide,
+    })
 }
 
 fn long(path: &Path, t: &TextTable, date_col: usize) -> Result<PriceHistory> {
-    let need = |n: &str| t.find(n).ok_or_else(|| Error::data(path, format!("{}: the long layout needs a `{n}` column", t.header_place())));
+    let need = |n: &str| {
+        t.find(n).ok_or_else(|| {
+            Error::data(
+                path,
+                format!("{}: the long layout needs a `{n}` column", t.header_place()),
+            )
+        })
+    };
     let (asset_col, price_col) = (need("asset")?, need("price")?);
     let mut by_date: BTreeMap<NaiveDate, (String, BTreeMap<String, Option<f64>>)> = BTreeMap::new();
     let mut assets: Vec<String> = Vec::new();
     for row in 0..t.rows() {
         let place = t.place(row);
-        let date = parse_date(path, &place, "date", t.columns[date_col][row].as_deref().unwrap_or(""))?;
-        let asset = t.columns[asset_col][row].as_deref().unwrap_or("").trim().to_string();
+        let date = parse_date(
+            path,
+            &place,
+            "date",
+            t.columns[date_col][row].as_deref().unwrap_or(""),
+        )?;
+        let asset = t.columns[asset_col][row]
+            .as_deref()
+            .unwrap_or("")
+            .trim()
+            .to_string();
         if asset.is_empty() {
-            return Err(Error::data(path, format!("{place}, column `asset`: the asset code is blank")));
+            return Err(Error::data(
+                path,
+                format!("{place}, column `asset`: the asset code is blank"),
+            ));
         }
         let price = parse_price(path, &place, "price", t.columns[price_col][row].as_deref())?;
-        let entry = by_date.entry(date).or_insert_with(|| (place.clone(), BTreeMap::new()));
+        let entry = by_date
+            .entry(date)
+            .or_insert_with(|| (place.clone(), BTreeMap::new()));
         if entry.1.insert(asset.clone(), price).is_some() {
-            return Err(Error::data(path, format!("{place}: asset `{asset}` has a second price for {date}; keep one row per date and asset")));
+            return Err(Error::data(
+                path,
+                format!(
+                    "{place}: asset `{asset}` has a second price for {date}; keep one row per date and asset"
+                ),
+            ));
         }
         if !assets.contains(&asset) {
             assets.push(asset);
@@ -146,6 +250,20 @@ fn long(path: &Path, t: &TextTable, date_col: usize) -> Result<PriceHistory> {
     }
     let dates: Vec<NaiveDate> = by_date.keys().copied().collect();
     let places = by_date.values().map(|(p, _)| p.clone()).collect();
-    let values = assets.iter().map(|a| by_date.values().map(|(_, m)| m.get(a).copied().flatten()).collect()).collect();
-    Ok(PriceHistory { dates, assets, values, places, layout: Layout::Long })
+    let values = assets
+        .iter()
+        .map(|a| {
+            by_date
+                .values()
+                .map(|(_, m)| m.get(a).copied().flatten())
+                .collect()
+        })
+        .collect();
+    Ok(PriceHistory {
+        dates,
+        assets,
+        values,
+        places,
+        layout: Layout::Long,
+    })
 }

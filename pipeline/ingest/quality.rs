@@ -43,7 +43,11 @@ pub struct QualityReport {
 impl QualityReport {
     /// Blocking findings, as messages.
     pub fn failures(&self) -> Vec<String> {
-        self.findings.iter().filter(|f| f.level == Level::Fail).map(|f| f.message.clone()).collect()
+        self.findings
+            .iter()
+            .filter(|f| f.level == Level::Fail)
+            .map(|f| f.message.clone())
+            .collect()
     }
 }
 
@@ -56,9 +60,15 @@ pub struct Filled {
 
 /// Applies the fill policy to one asset over the whole history up to as-of, then measures the window
 /// `[start, end)` row range. `None` values that remain mean the asset must be dropped.
-pub fn fill_asset(asset: &str, series: &[Option<f64>], start: usize, opts: &QualityOptions) -> Filled {
+pub fn fill_asset(
+    asset: &str,
+    series: &[Option<f64>],
+    start: usize,
+    opts: &QualityOptions,
+) -> Filled {
     let mut values = Vec::with_capacity(series.len() - start);
-    let (mut last, mut gap, mut missing, mut filled, mut longest, mut unfillable) = (None, 0usize, 0, 0, 0, None);
+    let (mut last, mut gap, mut missing, mut filled, mut longest, mut unfillable) =
+        (None, 0usize, 0, 0, 0, None);
     for (i, v) in series.iter().enumerate() {
         match v {
             Some(p) => {
@@ -82,58 +92,93 @@ pub fn fill_asset(asset: &str, series: &[Option<f64>], start: usize, opts: &Qual
         values.push(last.unwrap_or(f64::NAN));
     }
     let mut quality = AssetQuality {
-        asset: asset.to_string(), missing, filled, longest_gap: longest, longest_stale_run: longest_stale(&values),
-        extreme_moves: 0, dropped: unfillable.is_some(),
+        asset: asset.to_string(),
+        missing,
+        filled,
+        longest_gap: longest,
+        longest_stale_run: longest_stale(&values),
+        extreme_moves: 0,
+        dropped: unfillable.is_some(),
     };
     quality.extreme_moves = count_extreme(&values, opts.extreme_move);
-    let note = unfillable.map(|_| drop_note(asset, longest, last.is_none() || values.first().is_some_and(|v| v.is_nan()), opts.max_fill));
-    Filled { values, quality, note }
+    let note = unfillable.map(|_| {
+        drop_note(
+            asset,
+            longest,
+            last.is_none() || values.first().is_some_and(|v| v.is_nan()),
+            opts.max_fill,
+        )
+    });
+    Filled {
+        values,
+        quality,
+        note,
+    }
 }
 
 /// The fill policy on a whole series: a missing price takes the last observation when the gap so far is at
 /// most `max_fill`; otherwise (and before the first price) it stays NaN.
 pub fn fill_forward(series: &[Option<f64>], max_fill: usize) -> Vec<f64> {
     let (mut last, mut gap) = (f64::NAN, 0usize);
-    series.iter().map(|v| match v {
-        Some(p) => {
-            last = *p;
-            gap = 0;
-            *p
-        }
-        None => {
-            gap += 1;
-            if gap <= max_fill { last } else { f64::NAN }
-        }
-    }).collect()
+    series
+        .iter()
+        .map(|v| match v {
+            Some(p) => {
+                last = *p;
+                gap = 0;
+                *p
+            }
+            None => {
+                gap += 1;
+                if gap <= max_fill { last } else { f64::NAN }
+            }
+        })
+        .collect()
 }
 
 fn drop_note(asset: &str, gap: usize, no_start: bool, max_fill: usize) -> Check {
     let why = if no_start {
         "has no price at the start of the scenario window (its history starts later)".to_string()
     } else {
-        format!("has a gap of {gap} consecutive missing prices, more than quality.max_fill = {max_fill}")
+        format!(
+            "has a gap of {gap} consecutive missing prices, more than quality.max_fill = {max_fill}"
+        )
     };
-    Check::warn("quality.dropped_asset", format!("asset `{asset}` {why}; it is dropped from this run"))
+    Check::warn(
+        "quality.dropped_asset",
+        format!("asset `{asset}` {why}; it is dropped from this run"),
+    )
 }
 
 fn longest_stale(values: &[f64]) -> usize {
     let (mut best, mut run) = (0, 1);
     for w in values.windows(2) {
-        run = if w[0] == w[1] && !w[0].is_nan() { run + 1 } else { 1 };
+        run = if w[0] == w[1] && !w[0].is_nan() {
+            run + 1
+        } else {
+            1
+        };
         best = best.max(run);
     }
     if values.len() < 2 { values.len() } else { best }
 }
 
 fn count_extreme(values: &[f64], threshold: f64) -> usize {
-    values.windows(2).filter(|w| (w[1] / w[0] - 1.0).abs() > threshold).count()
+    values
+        .windows(2)
+        .filter(|w| (w[1] / w[0] - 1.0).abs() > threshold)
+        .count()
 }
 
 /// Non-positive prices anywhere up to as-of: blocking.
 pub fn non_positive(path: &str, h: &PriceHistory) -> Vec<Check> {
     let mut out = Vec::new();
     for (a, col) in h.assets.iter().zip(&h.values) {
-        if let Some((r, p)) = col.iter().enumerate().find_map(|(r, v)| v.filter(|p| *p <= 0.0).map(|p| (r, p))) {
+        if let Some((r, p)) = col
+            .iter()
+            .enumerate()
+            .find_map(|(r, v)| v.filter(|p| *p <= 0.0).map(|p| (r, p)))
+        {
             out.push(Check::fail("quality.non_positive", format!(
                 "{path}: {}, column `{a}`: price {p} on {} is not positive; prices must be > 0 (correct the feed or leave the cell blank)",
                 h.places[r], h.dates[r])));
@@ -149,8 +194,17 @@ pub fn non_positive(path: &str, h: &PriceHistory) -> Vec<Check> {
 pub fn overflowing_range(path: &str, h: &PriceHistory) -> Vec<Check> {
     let mut out = Vec::new();
     for (a, col) in h.assets.iter().zip(&h.values) {
-        let priced = || col.iter().enumerate().filter_map(|(r, v)| v.filter(|p| *p > 0.0).map(|p| (r, p)));
-        let (Some(lo), Some(hi)) = (priced().min_by(|x, y| x.1.total_cmp(&y.1)), priced().max_by(|x, y| x.1.total_cmp(&y.1))) else { continue };
+        let priced = || {
+            col.iter()
+                .enumerate()
+                .filter_map(|(r, v)| v.filter(|p| *p > 0.0).map(|p| (r, p)))
+        };
+        let (Some(lo), Some(hi)) = (
+            priced().min_by(|x, y| x.1.total_cmp(&y.1)),
+            priced().max_by(|x, y| x.1.total_cmp(&y.1)),
+        ) else {
+            continue;
+        };
         if !(hi.1 / lo.1).is_finite() {
             out.push(Check::fail("quality.price_range", format!(
                 "{path}: {}, column `{a}`: price {:e} is so small next to {:e} (at {}) that their ratio overflows; returns cannot be computed: check the prices' units or the cell",
@@ -167,25 +221,75 @@ pub fn duplicate_dates(path: &str, h: &PriceHistory) -> Vec<Check> {
     idx.windows(2)
         .filter(|w| h.dates[w[0]] == h.dates[w[1]])
         .take(10)
-        .map(|w| Check::fail("quality.duplicate_date", format!(
-            "{path}: date {} appears twice, at {} and {}; keep one row per date", h.dates[w[0]], h.places[w[0]], h.places[w[1]])))
+        .map(|w| {
+            Check::fail(
+                "quality.duplicate_date",
+                format!(
+                    "{path}: date {} appears twice, at {} and {}; keep one row per date",
+                    h.dates[w[0]], h.places[w[0]], h.places[w[1]]
+                ),
+            )
+        })
         .collect()
 }
 
 /// Findings about stale runs and extreme moves, from the per-asset counts.
 pub fn series_findings(assets: &[AssetQuality], opts: &QualityOptions) -> Vec<Check> {
-    let stale: Vec<String> = assets.iter().filter(|a| !a.dropped && a.longest_stale_run >= opts.stale_run)
-        .map(|a| format!("`{}` ({} identical prices in a row)", a.asset, a.longest_stale_run)).collect();
-    let extreme: Vec<String> = assets.iter().filter(|a| !a.dropped && a.extreme_moves > 0)
-        .map(|a| format!("`{}` ({}×)", a.asset, a.extreme_moves)).collect();
+    let stale: Vec<String> = assets
+        .iter()
+        .filter(|a| !a.dropped && a.longest_stale_run >= opts.stale_run)
+        .map(|a| {
+            format!(
+                "`{}` ({} identical prices in a row)",
+                a.asset, a.longest_stale_run
+            )
+        })
+        .collect();
+    let extreme: Vec<String> = assets
+        .iter()
+        .filter(|a| !a.dropped && a.extreme_moves > 0)
+        .map(|a| format!("`{}` ({}×)", a.asset, a.extreme_moves))
+        .collect();
     let filled: usize = assets.iter().filter(|a| !a.dropped).map(|a| a.filled).sum();
     vec![
-        flag("quality.stale_run", &stale, format!("no stale runs of {} or more identical prices", opts.stale_run),
-             format!("stale prices (a run of at least {} identical observations; check the feed)", opts.stale_run)),
-        flag("quality.extreme_move", &extreme, format!("no single-period move beyond ±{:.0}%", opts.extreme_move * 100.0),
-             format!("single-period moves beyond ±{:.0}% (verify against a second source)", opts.extreme_move * 100.0)),
-        if filled == 0 { Check::pass("quality.missing", "no missing prices in the scenario window") }
-        else { Check::warn("quality.missing", format!("{filled} missing price(s) in the scenario window were filled forward (at most {} in a row)", opts.max_fill)) },
+        flag(
+            "quality.stale_run",
+            &stale,
+            format!(
+                "no stale runs of {} or more identical prices",
+                opts.stale_run
+            ),
+            format!(
+                "stale prices (a run of at least {} identical observations; check the feed)",
+                opts.stale_run
+            ),
+        ),
+        flag(
+            "quality.extreme_move",
+            &extreme,
+            format!(
+                "no single-period move beyond ±{:.0}%",
+                opts.extreme_move * 100.0
+            ),
+            format!(
+                "single-period moves beyond ±{:.0}% (verify against a second source)",
+                opts.extreme_move * 100.0
+            ),
+        ),
+        if filled == 0 {
+            Check::pass(
+                "quality.missing",
+                "no missing prices in the scenario window",
+            )
+        } else {
+            Check::warn(
+                "quality.missing",
+                format!(
+                    "{filled} missing price(s) in the scenario window were filled forward (at most {} in a row)",
+                    opts.max_fill
+                ),
+            )
+        },
     ]
 }
 
@@ -200,16 +304,26 @@ fn flag(id: &str, items: &[String], ok: String, what: String) -> Check {
 /// Rule of thumb (common practice, not a theorem): at least `min_obs_per_asset` observations per asset in the
 /// window, and at least as many non-overlapping horizon windows as assets, before trusting a scenario set to
 /// discriminate between portfolios.
-pub fn history_length(observations: usize, assets: usize, horizon: usize, opts: &QualityOptions) -> Check {
+pub fn history_length(
+    observations: usize,
+    assets: usize,
+    horizon: usize,
+    opts: &QualityOptions,
+) -> Check {
     let independent = observations.saturating_sub(1) / horizon.max(1);
     let need = opts.min_obs_per_asset * assets;
     let msg = format!(
         "{observations} observations for {assets} assets ({:.1} per asset; rule of thumb ≥ {}), {independent} non-overlapping {horizon}-observation windows (rule of thumb ≥ number of assets)",
-        observations as f64 / assets.max(1) as f64, opts.min_obs_per_asset);
+        observations as f64 / assets.max(1) as f64,
+        opts.min_obs_per_asset
+    );
     if observations >= need && independent >= assets {
         Check::pass("quality.history_length", msg)
     } else {
-        Check::warn("quality.history_length", format!("history is short for the universe: {msg}"))
+        Check::warn(
+            "quality.history_length",
+            format!("history is short for the universe: {msg}"),
+        )
     }
 }
 
@@ -219,7 +333,12 @@ pub fn sort_dates(h: &mut PriceHistory) -> Option<Check> {
         return None;
     }
     let first = h.dates.windows(2).position(|w| w[0] > w[1]).unwrap_or(0) + 1;
-    let msg = format!("rows are not in date order (first at {}: {} after {}); sorted by date for this run", h.places[first], h.dates[first], h.dates[first - 1]);
+    let msg = format!(
+        "rows are not in date order (first at {}: {} after {}); sorted by date for this run",
+        h.places[first],
+        h.dates[first],
+        h.dates[first - 1]
+    );
     let mut idx: Vec<usize> = (0..h.dates.len()).collect();
     idx.sort_by_key(|&i| (h.dates[i], i));
     h.dates = idx.iter().map(|&i| h.dates[i]).collect();
@@ -232,5 +351,9 @@ pub fn sort_dates(h: &mut PriceHistory) -> Option<Check> {
 
 /// Severity of the worst finding.
 pub fn worst(findings: &[Check]) -> Level {
-    findings.iter().map(|f| f.level).max().unwrap_or(Level::Pass)
+    findings
+        .iter()
+        .map(|f| f.level)
+        .max()
+        .unwrap_or(Level::Pass)
 }

@@ -47,7 +47,9 @@ impl TextTable {
 
     /// Index of a column by case-insensitive name.
     pub fn find(&self, name: &str) -> Option<usize> {
-        self.names.iter().position(|n| n.trim().eq_ignore_ascii_case(name))
+        self.names
+            .iter()
+            .position(|n| n.trim().eq_ignore_ascii_case(name))
     }
 }
 
@@ -60,7 +62,11 @@ pub fn read_table(path: &Path) -> Result<TextTable> {
 /// names the file in messages. Any bytes give a table or an error, never a panic (the fuzz targets in
 /// `fuzz/` hold this function to that).
 pub fn parse_table(path: &Path, bytes: &[u8]) -> Result<TextTable> {
-    let ext = path.extension().and_then(|e| e.to_str()).unwrap_or("").to_ascii_lowercase();
+    let ext = path
+        .extension()
+        .and_then(|e| e.to_str())
+        .unwrap_or("")
+        .to_ascii_lowercase();
     if ext == "parquet" || ext == "pq" {
         parse_parquet(path, bytes)
     } else {
@@ -108,7 +114,16 @@ fn parse_csv(path: &Path, bytes: &[u8]) -> Result<TextTable> {
     if table.names.len() != names.len() || table.rows() != csv.body.len() {
         // The line checks above should make this impossible; if the CSV reader still disagrees with them,
         // say so rather than report rows at the wrong lines.
-        return Err(Error::data(path, format!("the CSV reader found {} columns and {} rows where the lines give {} and {}; check the file for quotes that span lines", table.names.len(), table.rows(), names.len(), csv.body.len())));
+        return Err(Error::data(
+            path,
+            format!(
+                "the CSV reader found {} columns and {} rows where the lines give {} and {}; check the file for quotes that span lines",
+                table.names.len(),
+                table.rows(),
+                names.len(),
+                csv.body.len()
+            ),
+        ));
     }
     Ok(table)
 }
@@ -117,12 +132,18 @@ fn parse_csv(path: &Path, bytes: &[u8]) -> Result<TextTable> {
 /// (spreadsheet programs write one); UTF-16 and other encodings are errors naming the line and byte.
 fn csv_text<'a>(path: &Path, bytes: &'a [u8]) -> Result<&'a str> {
     if bytes.starts_with(&[0xFF, 0xFE]) || bytes.starts_with(&[0xFE, 0xFF]) {
-        return Err(Error::data(path, "line 1, byte 0: the file is UTF-16 text (it starts with a UTF-16 byte-order mark); save it as UTF-8 CSV"));
+        return Err(Error::data(
+            path,
+            "line 1, byte 0: the file is UTF-16 text (it starts with a UTF-16 byte-order mark); save it as UTF-8 CSV",
+        ));
     }
     let text = std::str::from_utf8(bytes).map_err(|e| {
         let at = e.valid_up_to();
         let line = bytes[..at].iter().filter(|b| **b == b'\n').count() + 1;
-        Error::data(path, format!("line {line}, byte {at}: not UTF-8 text; save the file as UTF-8 CSV"))
+        Error::data(
+            path,
+            format!("line {line}, byte {at}: not UTF-8 text; save the file as UTF-8 CSV"),
+        )
     })?;
     Ok(text.strip_prefix('\u{feff}').unwrap_or(text))
 }
@@ -131,22 +152,46 @@ fn csv_text<'a>(path: &Path, bytes: &'a [u8]) -> Result<&'a str> {
 /// a file whose lines end in a bare carriage return are errors.
 fn split_lines<'a>(path: &Path, text: &'a str) -> Result<CsvText<'a>> {
     if text.contains('\r') && !text.contains('\n') {
-        return Err(Error::data(path, "line 1: the lines end in a bare carriage return (`\\r`, an old Mac format); save the file with LF or CRLF line ends"));
+        return Err(Error::data(
+            path,
+            "line 1: the lines end in a bare carriage return (`\\r`, an old Mac format); save the file with LF or CRLF line ends",
+        ));
     }
     if text.trim().is_empty() {
-        return Err(Error::data(path, "line 1: the file is empty; expected a header line such as `date,AS01,AS02` or `date,asset,price`"));
+        return Err(Error::data(
+            path,
+            "line 1: the file is empty; expected a header line such as `date,AS01,AS02` or `date,asset,price`",
+        ));
     }
     let mut lines = text.lines();
-    let comments = text.lines().take_while(|l| l.trim_start().starts_with('#')).count();
+    let comments = text
+        .lines()
+        .take_while(|l| l.trim_start().starts_with('#'))
+        .count();
     let header = lines.nth(comments).unwrap_or("");
     if header.trim().is_empty() {
-        return Err(Error::data(path, format!("line {}: expected a header line such as `date,AS01,AS02` or `date,asset,price` after {comments} comment line(s), found {}", comments + 1, if comments == text.lines().count() { "the end of the file" } else { "a blank line" })));
+        return Err(Error::data(
+            path,
+            format!(
+                "line {}: expected a header line such as `date,AS01,AS02` or `date,asset,price` after {comments} comment line(s), found {}",
+                comments + 1,
+                if comments == text.lines().count() {
+                    "the end of the file"
+                } else {
+                    "a blank line"
+                }
+            ),
+        ));
     }
     let mut body: Vec<&str> = lines.collect();
     while body.last().is_some_and(|l| l.trim().is_empty()) {
         body.pop();
     }
-    Ok(CsvText { comments, header, body })
+    Ok(CsvText {
+        comments,
+        header,
+        body,
+    })
 }
 
 fn check_delimiter(path: &Path, csv: &CsvText) -> Result<()> {
@@ -156,10 +201,21 @@ fn check_delimiter(path: &Path, csv: &CsvText) -> Result<()> {
     }
     for (sep, name) in [(';', "semicolons"), ('\t', "tabs"), ('|', "pipes")] {
         if header.contains(sep) {
-            return Err(Error::data(path, format!("line {line} (header) is separated by {name}; tailpack reads comma-separated files: convert the delimiter to `,`")));
+            return Err(Error::data(
+                path,
+                format!(
+                    "line {line} (header) is separated by {name}; tailpack reads comma-separated files: convert the delimiter to `,`"
+                ),
+            ));
         }
     }
-    Err(Error::data(path, format!("line {line} (header) `{}` has a single column; expected `date` followed by asset columns, or `date,asset,price`", truncate(header, 60))))
+    Err(Error::data(
+        path,
+        format!(
+            "line {line} (header) `{}` has a single column; expected `date` followed by asset columns, or `date,asset,price`",
+            truncate(header, 60)
+        ),
+    ))
 }
 
 /// The header's column names, each non-empty and distinct.
@@ -167,17 +223,37 @@ fn check_names(path: &Path, csv: &CsvText) -> Result<Vec<String>> {
     let line = csv.header_line();
     let (cells, open) = split_fields(csv.header);
     if open {
-        return Err(Error::data(path, format!("line {line} (header): a quoted name is not closed on its line")));
+        return Err(Error::data(
+            path,
+            format!("line {line} (header): a quoted name is not closed on its line"),
+        ));
     }
-    let names: Vec<String> = cells.iter().map(|c| c.trim().trim_matches('"').trim().to_string()).collect();
+    let names: Vec<String> = cells
+        .iter()
+        .map(|c| c.trim().trim_matches('"').trim().to_string())
+        .collect();
     // A map, not a scan of the names before each one: a header line of megabytes stays linear.
     let mut seen = std::collections::HashMap::with_capacity(names.len());
     for (i, name) in names.iter().enumerate() {
         if name.is_empty() {
-            return Err(Error::data(path, format!("line {line} (header), column {}: the column name is empty; every column needs a name", i + 1)));
+            return Err(Error::data(
+                path,
+                format!(
+                    "line {line} (header), column {}: the column name is empty; every column needs a name",
+                    i + 1
+                ),
+            ));
         }
         if let Some(j) = seen.insert(name.as_str(), i) {
-            return Err(Error::data(path, format!("line {line} (header), columns {} and {}: both are named `{}`; each column (each asset) may appear once", j + 1, i + 1, truncate(name, 40))));
+            return Err(Error::data(
+                path,
+                format!(
+                    "line {line} (header), columns {} and {}: both are named `{}`; each column (each asset) may appear once",
+                    j + 1,
+                    i + 1,
+                    truncate(name, 40)
+                ),
+            ));
         }
     }
     Ok(names)
@@ -189,11 +265,17 @@ fn check_rows(path: &Path, csv: &CsvText, width: usize) -> Result<()> {
     for (r, l) in csv.body.iter().enumerate() {
         let place = format!("row {} (line {})", r + 1, csv.header_line() + 1 + r);
         if l.trim().is_empty() {
-            return Err(Error::data(path, format!("{place} is blank; remove blank lines inside the table")));
+            return Err(Error::data(
+                path,
+                format!("{place} is blank; remove blank lines inside the table"),
+            ));
         }
         let (cells, open) = split_fields(l);
         if open {
-            return Err(Error::data(path, format!("{place}: a quoted value is not closed on its line")));
+            return Err(Error::data(
+                path,
+                format!("{place}: a quoted value is not closed on its line"),
+            ));
         }
         if cells.len() != width {
             let hint = if cells.len() > width {
@@ -201,7 +283,14 @@ fn check_rows(path: &Path, csv: &CsvText, width: usize) -> Result<()> {
             } else {
                 "a missing separator or a cut-off line? leave a missing price as an empty cell between commas"
             };
-            return Err(Error::data(path, format!("{place} has {} fields but the header (line {}) has {width}: {hint}", cells.len(), csv.header_line())));
+            return Err(Error::data(
+                path,
+                format!(
+                    "{place} has {} fields but the header (line {}) has {width}: {hint}",
+                    cells.len(),
+                    csv.header_line()
+                ),
+            ));
         }
     }
     Ok(())
@@ -230,10 +319,21 @@ const PARQUET_MAGIC: &[u8; 4] = b"PAR1";
 fn parse_parquet(path: &Path, bytes: &[u8]) -> Result<TextTable> {
     let n = bytes.len();
     if n < 12 || !bytes.starts_with(PARQUET_MAGIC) {
-        return Err(Error::data(path, format!("byte 0: not a Parquet file (it is {n} bytes and does not start with the Parquet marker `PAR1`); write the prices as Parquet or CSV")));
+        return Err(Error::data(
+            path,
+            format!(
+                "byte 0: not a Parquet file (it is {n} bytes and does not start with the Parquet marker `PAR1`); write the prices as Parquet or CSV"
+            ),
+        ));
     }
     if !bytes.ends_with(PARQUET_MAGIC) {
-        return Err(Error::data(path, format!("byte {}: the Parquet file is truncated (it is {n} bytes and does not end with the Parquet marker `PAR1`); copy or write the file again", n - 4)));
+        return Err(Error::data(
+            path,
+            format!(
+                "byte {}: the Parquet file is truncated (it is {n} bytes and does not end with the Parquet marker `PAR1`); copy or write the file again",
+                n - 4
+            ),
+        ));
     }
     let df = ParquetReader::new(std::io::Cursor::new(bytes))
         .finish()
@@ -249,19 +349,34 @@ fn frame_to_text(path: &Path, df: &DataFrame) -> Result<TextTable> {
         names.push(col.name().to_string());
         columns.push(column_to_text(path, col)?);
     }
-    Ok(TextTable { names, columns, first_line: 2, is_csv: false })
+    Ok(TextTable {
+        names,
+        columns,
+        first_line: 2,
+        is_csv: false,
+    })
 }
 
 fn column_to_text(path: &Path, col: &Column) -> Result<Vec<Option<String>>> {
     let dtype = col.dtype().clone();
     if dtype.is_float() || dtype.is_integer() {
-        let f = col.cast(&DataType::Float64).map_err(|e| Error::data(path, format!("column `{}`: {e}", col.name())))?;
+        let f = col
+            .cast(&DataType::Float64)
+            .map_err(|e| Error::data(path, format!("column `{}`: {e}", col.name())))?;
         let ca = f.f64().map_err(|e| Error::data(path, e.to_string()))?;
         return Ok(ca.iter().map(|v| v.map(|x| format!("{x:?}"))).collect());
     }
     let s = match dtype {
         DataType::String | DataType::Date => col.cast(&DataType::String),
-        other => return Err(Error::data(path, format!("column `{}` has type {other}; expected text, a date or a number", col.name()))),
+        other => {
+            return Err(Error::data(
+                path,
+                format!(
+                    "column `{}` has type {other}; expected text, a date or a number",
+                    col.name()
+                ),
+            ));
+        }
     }
     .map_err(|e| Error::data(path, format!("column `{}`: {e}", col.name())))?;
     let ca = s.str().map_err(|e| Error::data(path, e.to_string()))?;

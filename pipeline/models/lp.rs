@@ -11,7 +11,10 @@ use crate::config::Backend;
 use crate::scenarios::ScenarioSet;
 use good_lp::solvers::clarabel::clarabel;
 use good_lp::solvers::highs::highs;
-use good_lp::{variable, Constraint, Expression, ProblemVariables, ResolutionError, Solution, SolverModel, Variable};
+use good_lp::{
+    Constraint, Expression, ProblemVariables, ResolutionError, Solution, SolverModel, Variable,
+    variable,
+};
 
 /// HiGHS primal and dual feasibility tolerance used for every model (its default is 1e-7).
 pub const HIGHS_TOLERANCE: f64 = 1e-9;
@@ -55,10 +58,18 @@ impl Lp {
         let weights: Vec<Variable> = if scaled {
             vars.add_vector(variable().min(0.0), n)
         } else {
-            (0..n).map(|i| vars.add(variable().min(fs.lower[i]).max(fs.upper[i]))).collect()
+            (0..n)
+                .map(|i| vars.add(variable().min(fs.lower[i]).max(fs.upper[i])))
+                .collect()
         };
         let scale = scaled.then(|| vars.add(variable().min(0.0)));
-        let mut lp = Lp { vars, rows: Vec::new(), weights, scale, tracked: Vec::new() };
+        let mut lp = Lp {
+            vars,
+            rows: Vec::new(),
+            weights,
+            scale,
+            tracked: Vec::new(),
+        };
         lp.feasible_set(fs);
         lp
     }
@@ -86,9 +97,11 @@ impl Lp {
         if self.scale.is_some() {
             for i in 0..n {
                 if fs.lower[i] > 0.0 {
-                    self.rows.push(Expression::from(self.weights[i]).geq(self.rhs(fs.lower[i])));
+                    self.rows
+                        .push(Expression::from(self.weights[i]).geq(self.rhs(fs.lower[i])));
                 }
-                self.rows.push(Expression::from(self.weights[i]).leq(self.rhs(fs.upper[i])));
+                self.rows
+                    .push(Expression::from(self.weights[i]).leq(self.rhs(fs.upper[i])));
             }
         }
         for g in &fs.groups {
@@ -193,9 +206,24 @@ impl Lp {
     }
 
     /// Solves with the chosen backend.
-    pub fn solve(self, objective: Expression, maximise: bool, backend: Backend) -> Result<Solved, Failure> {
-        let Lp { vars, rows, weights, scale, tracked } = self;
-        let unsolved = if maximise { vars.maximise(objective.clone()) } else { vars.minimise(objective.clone()) };
+    pub fn solve(
+        self,
+        objective: Expression,
+        maximise: bool,
+        backend: Backend,
+    ) -> Result<Solved, Failure> {
+        let Lp {
+            vars,
+            rows,
+            weights,
+            scale,
+            tracked,
+        } = self;
+        let unsolved = if maximise {
+            vars.maximise(objective.clone())
+        } else {
+            vars.minimise(objective.clone())
+        };
         let read = |s: &dyn Solution| Solved {
             weights: weights.iter().map(|v| s.value(*v)).collect(),
             scale: scale.map(|t| s.value(t)),

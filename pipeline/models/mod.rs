@@ -93,7 +93,14 @@ pub struct Outcome {
 
 impl Outcome {
     fn failed(status: Status, message: String) -> Outcome {
-        Outcome { status, message: Some(message), weights: None, objective: None, scale: None, max_violation: None }
+        Outcome {
+            status,
+            message: Some(message),
+            weights: None,
+            objective: None,
+            scale: None,
+            max_violation: None,
+        }
     }
 }
 
@@ -125,7 +132,11 @@ enum Kind {
 impl Problem<'_> {
     /// The method used for this problem's size.
     pub fn method(&self) -> Method {
-        if self.set.len() >= CUTS_FROM_SCENARIOS { Method::Cuts } else { Method::Direct }
+        if self.set.len() >= CUTS_FROM_SCENARIOS {
+            Method::Cuts
+        } else {
+            Method::Direct
+        }
     }
 
     /// Maximise μ·x over X, with CVaR_c(x) ≤ cap when a cap is given.
@@ -158,7 +169,9 @@ impl Problem<'_> {
         let mut solved = self.solve(Kind::Ratio, method)?;
         let t = solved.scale.unwrap_or(0.0);
         if t <= MIN_SCALE {
-            return Err(Failure::Solver(format!("Charnes–Cooper scale t = {t:e} is not bounded away from 0")));
+            return Err(Failure::Solver(format!(
+                "Charnes–Cooper scale t = {t:e} is not bounded away from 0"
+            )));
         }
         solved.weights.iter_mut().for_each(|z| *z /= t);
         Ok(solved)
@@ -172,7 +185,11 @@ impl Problem<'_> {
     }
 
     /// One LP of the given kind with the given CVaR block.
-    fn assemble(&self, kind: Kind, cvar: impl FnOnce(&mut Lp) -> good_lp::Expression) -> Result<Solved, Failure> {
+    fn assemble(
+        &self,
+        kind: Kind,
+        cvar: impl FnOnce(&mut Lp) -> good_lp::Expression,
+    ) -> Result<Solved, Failure> {
         let mut lp = Lp::new(self.feasible, matches!(kind, Kind::Ratio));
         let (objective, maximise) = match kind {
             Kind::MaxReturn(cap) => {
@@ -212,7 +229,12 @@ impl Problem<'_> {
         let t_max = match kind {
             Kind::Ratio => match self.min_cvar_by(None, Method::Cuts) {
                 Ok(m) if m.objective > 0.0 => Some((1.0 + 1e-6) / m.objective),
-                Ok(m) => return Err(Failure::Solver(format!("minimum CVaR {:.3e} ≤ 0: the ratio LP does not apply", m.objective))),
+                Ok(m) => {
+                    return Err(Failure::Solver(format!(
+                        "minimum CVaR {:.3e} ≤ 0: the ratio LP does not apply",
+                        m.objective
+                    )));
+                }
                 Err(e) => return Err(e),
             },
             _ => None,
@@ -227,9 +249,17 @@ impl Problem<'_> {
                 block
             })?;
             let (ell, w) = (solved.extra[0], solved.extra[1]);
-            let losses: Vec<f64> = self.set.portfolio_returns(&solved.weights).iter().map(|r| -r).collect();
+            let losses: Vec<f64> = self
+                .set
+                .portfolio_returns(&solved.weights)
+                .iter()
+                .map(|r| -r)
+                .collect();
             let tail: Vec<usize> = (0..losses.len()).filter(|&k| losses[k] > ell).collect();
-            let excess: f64 = tail.iter().map(|&k| self.set.probabilities[k] * (losses[k] - ell)).sum();
+            let excess: f64 = tail
+                .iter()
+                .map(|&k| self.set.probabilities[k] * (losses[k] - ell))
+                .sum();
             if excess <= w + CUT_TOLERANCE * (1.0 + w.abs()) || cuts.last() == Some(&tail) {
                 return Ok(solved);
             }
@@ -253,20 +283,35 @@ pub struct Preconditions {
 /// Checks CVaR > 0 on all of X (via the minimum) and that some x ∈ X has μ·x > 0.
 pub fn preconditions(min_cvar: Option<f64>, max_return: Option<f64>) -> Preconditions {
     let reason = match (min_cvar, max_return) {
-        (None, _) | (_, None) => Some("the feasible set X is empty, so neither precondition can be established".to_string()),
+        (None, _) | (_, None) => Some(
+            "the feasible set X is empty, so neither precondition can be established".to_string(),
+        ),
         (Some(m), _) if m <= 0.0 => Some(format!(
-            "the minimum CVaR over the feasible set is {m:.6} ≤ 0 (a portfolio with no tail loss exists, e.g. a riskless asset allowed at full weight), so the return/CVaR ratio is unbounded or undefined and the Charnes–Cooper LP does not apply")),
+            "the minimum CVaR over the feasible set is {m:.6} ≤ 0 (a portfolio with no tail loss exists, e.g. a riskless asset allowed at full weight), so the return/CVaR ratio is unbounded or undefined and the Charnes–Cooper LP does not apply"
+        )),
         (_, Some(r)) if r <= 0.0 => Some(format!(
-            "the maximum expected return over the feasible set is {r:.6} ≤ 0, so no portfolio has a positive return/CVaR ratio and the Charnes–Cooper LP does not apply")),
+            "the maximum expected return over the feasible set is {r:.6} ≤ 0, so no portfolio has a positive return/CVaR ratio and the Charnes–Cooper LP does not apply"
+        )),
         _ => None,
     };
-    Preconditions { min_cvar, max_return, holds: reason.is_none(), reason }
+    Preconditions {
+        min_cvar,
+        max_return,
+        holds: reason.is_none(),
+        reason,
+    }
 }
 
 /// The CVaR cap of a rule: m · base for a positive base; for a non-positive base, base + (m − 1)·|base|,
 /// which keeps the cap at or above the base. NaN when the base is unknown (empty X, no holdings).
 pub fn resolve_cap(rule: CapRule, min_cvar: Option<f64>, current_cvar: Option<f64>) -> f64 {
-    let scaled = |base: f64, m: f64| if base > 0.0 { m * base } else { base + (m - 1.0) * base.abs() };
+    let scaled = |base: f64, m: f64| {
+        if base > 0.0 {
+            m * base
+        } else {
+            base + (m - 1.0) * base.abs()
+        }
+    };
     match rule {
         CapRule::Value(v) => v,
         CapRule::TimesMin(m) => min_cvar.map_or(f64::NAN, |b| scaled(b, m)),
@@ -327,21 +372,42 @@ pub fn tidy(x: &mut [f64], fs: &FeasibleSet) {
 }
 
 /// Turns an LP result into an outcome, with the post-solve check; `diagnose` explains infeasibility.
-pub fn outcome(p: &Problem, r: Result<Solved, Failure>, cap: Option<f64>, floor: Option<f64>, diagnose: impl FnOnce() -> String) -> Outcome {
+pub fn outcome(
+    p: &Problem,
+    r: Result<Solved, Failure>,
+    cap: Option<f64>,
+    floor: Option<f64>,
+    diagnose: impl FnOnce() -> String,
+) -> Outcome {
     match r {
         Ok(mut s) => {
             tidy(&mut s.weights, p.feasible);
             let v = verify(p, &s.weights, cap, floor);
             if !(v <= NOT_A_SOLUTION) {
                 // Clarabel (through good_lp) returns a certificate of unboundedness as if it were a solution.
-                return Outcome::failed(Status::SolverError, format!("the solver returned weights that violate the constraints by {v:.2e}, so they are not a solution (an unbounded or numerically failed LP)"));
+                return Outcome::failed(
+                    Status::SolverError,
+                    format!(
+                        "the solver returned weights that violate the constraints by {v:.2e}, so they are not a solution (an unbounded or numerically failed LP)"
+                    ),
+                );
             }
             let message = (v > FEASIBILITY_TOLERANCE).then(|| format!(
                 "the solver's portfolio violates a constraint by {v:.2e} (tolerance {FEASIBILITY_TOLERANCE:e}); treat with care"));
-            Outcome { status: Status::Optimal, message, objective: Some(s.objective), scale: s.scale, weights: Some(s.weights), max_violation: Some(v) }
+            Outcome {
+                status: Status::Optimal,
+                message,
+                objective: Some(s.objective),
+                scale: s.scale,
+                weights: Some(s.weights),
+                max_violation: Some(v),
+            }
         }
         Err(Failure::Infeasible) => Outcome::failed(Status::Infeasible, diagnose()),
-        Err(Failure::Unbounded) => Outcome::failed(Status::SolverError, "the solver reports the problem unbounded".into()),
+        Err(Failure::Unbounded) => Outcome::failed(
+            Status::SolverError,
+            "the solver reports the problem unbounded".into(),
+        ),
         Err(Failure::Solver(m)) => Outcome::failed(Status::SolverError, format!("solver: {m}")),
     }
 }
@@ -352,19 +418,29 @@ pub fn explain_empty(fs: &FeasibleSet, names: &[String], backend: Backend) -> Op
     let lo: f64 = fs.lower.iter().sum();
     let hi: f64 = fs.upper.iter().sum();
     if lo > 1.0 + 1e-12 {
-        return Some(format!("the per-asset minimum weights sum to {lo:.4} > 1 (budget Σx = 1)"));
+        return Some(format!(
+            "the per-asset minimum weights sum to {lo:.4} > 1 (budget Σx = 1)"
+        ));
     }
     if hi < 1.0 - 1e-12 {
-        return Some(format!("the per-asset maximum weights sum to {hi:.4} < 1 (budget Σx = 1); raise limits.default_max or max_weight"));
+        return Some(format!(
+            "the per-asset maximum weights sum to {hi:.4} < 1 (budget Σx = 1); raise limits.default_max or max_weight"
+        ));
     }
     for g in &fs.groups {
         let cap: f64 = g.members.iter().map(|&i| fs.upper[i]).sum();
         let floor: f64 = g.members.iter().map(|&i| fs.lower[i]).sum();
         if g.min > cap + 1e-12 {
-            return Some(format!("group `{}` needs at least {:.4} but its members' maximum weights sum to {cap:.4}", g.name, g.min));
+            return Some(format!(
+                "group `{}` needs at least {:.4} but its members' maximum weights sum to {cap:.4}",
+                g.name, g.min
+            ));
         }
         if g.max < floor - 1e-12 {
-            return Some(format!("group `{}` allows at most {:.4} but its members' minimum weights sum to {floor:.4}", g.name, g.max));
+            return Some(format!(
+                "group `{}` allows at most {:.4} but its members' minimum weights sum to {floor:.4}",
+                g.name, g.max
+            ));
         }
     }
     if is_feasible(fs, backend) {
@@ -381,7 +457,10 @@ fn is_feasible(fs: &FeasibleSet, backend: Backend) -> bool {
 fn relaxation_hint(fs: &FeasibleSet, _names: &[String], backend: Backend) -> String {
     let mut culprits = Vec::new();
     if let Some(tau) = fs.turnover_max {
-        let relaxed = FeasibleSet { turnover_max: None, ..fs.clone() };
+        let relaxed = FeasibleSet {
+            turnover_max: None,
+            ..fs.clone()
+        };
         if is_feasible(&relaxed, backend) {
             culprits.push(format!("the turnover limit limits.turnover_max = {tau}"));
         }
@@ -396,6 +475,9 @@ fn relaxation_hint(fs: &FeasibleSet, _names: &[String], backend: Backend) -> Str
     if culprits.is_empty() {
         "the budget, bounds, group limits and turnover limit cannot hold together; no single limit is to blame".into()
     } else {
-        format!("the constraints cannot hold together; it becomes feasible without {}", culprits.join(", or without "))
+        format!(
+            "the constraints cannot hold together; it becomes feasible without {}",
+            culprits.join(", or without ")
+        )
     }
 }

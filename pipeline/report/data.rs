@@ -5,8 +5,8 @@
 //! nothing new beyond sums for display (weights by class and group) and each portfolio's return per unit of
 //! CVaR. The "Further analysis" part comes from [`super::further`].
 
-use super::charts::{look, Look};
-use super::format::{self, pct, Style};
+use super::charts::{Look, look};
+use super::format::{self, Style, pct};
 use super::text;
 use crate::diag::Level;
 use crate::models::Status;
@@ -27,10 +27,18 @@ pub struct View<'a> {
 /// The current portfolio (when holdings were given) followed by the three models, in report order.
 pub fn views(r: &RunResult) -> Vec<View<'_>> {
     let current = r.data.holdings.as_deref().map(|h| View {
-        key: "current", look: look("current"), weights: Some(h), profile: r.current.as_ref(), model: None,
+        key: "current",
+        look: look("current"),
+        weights: Some(h),
+        profile: r.current.as_ref(),
+        model: None,
     });
     let models = r.models.iter().map(|m| View {
-        key: m.name, look: look(m.name), weights: m.outcome.weights.as_deref(), profile: m.profile.as_ref(), model: Some(m),
+        key: m.name,
+        look: look(m.name),
+        weights: m.outcome.weights.as_deref(),
+        profile: m.profile.as_ref(),
+        model: Some(m),
     });
     current.into_iter().chain(models).collect()
 }
@@ -94,7 +102,10 @@ pub struct Pair {
 }
 
 fn pair(label: &str, value: impl Into<String>) -> Pair {
-    Pair { label: label.into(), value: value.into() }
+    Pair {
+        label: label.into(),
+        value: value.into(),
+    }
 }
 
 /// One portfolio's line in the summary and tail tables.
@@ -233,7 +244,10 @@ pub fn build(r: &RunResult, results: &Value, pack_id: &str) -> Report {
         groups: groups(r, &views),
         limits: limits(r),
         contributors: contributors(r, &views, 10),
-        contributors_basis: views.iter().find(|v| v.profile.is_some()).map_or(String::new(), |v| v.look.label.to_string()),
+        contributors_basis: views
+            .iter()
+            .find(|v| v.profile.is_some())
+            .map_or(String::new(), |v| v.look.label.to_string()),
         checks: checks(r),
         caveats: text::caveats(r, &views),
         scenarios: scenarios(r),
@@ -258,9 +272,15 @@ fn meta(r: &RunResult, results: &Value, pack_id: &str) -> Meta {
         as_of_long: format::long_date(r.data.as_of),
         prepared_for: c.fund.prepared_for.clone(),
         prepared_by: c.fund.prepared_by.clone(),
-        status: results["signoff"]["status"].as_str().unwrap_or("DRAFT").to_string(),
+        status: results["signoff"]["status"]
+            .as_str()
+            .unwrap_or("DRAFT")
+            .to_string(),
         is_final: results["signoff"]["status"] == "FINAL",
-        signoff: results["signoff"]["roles"].as_array().cloned().unwrap_or_default(),
+        signoff: results["signoff"]["roles"]
+            .as_array()
+            .cloned()
+            .unwrap_or_default(),
         pack_id: pack_id.into(),
         pack_id_short: short_id(pack_id),
         tool: format!("tailpack {}", env!("CARGO_PKG_VERSION")),
@@ -277,7 +297,11 @@ fn meta(r: &RunResult, results: &Value, pack_id: &str) -> Meta {
 /// Expected return per unit of CVaR at the model level; defined only for a positive CVaR.
 fn ratio(p: &RiskProfile, c: f64) -> String {
     let cvar = p.at(c).cvar;
-    if cvar > 0.0 { format::number(p.expected_return / cvar, 4) } else { "n/a".into() }
+    if cvar > 0.0 {
+        format::number(p.expected_return / cvar, 4)
+    } else {
+        "n/a".into()
+    }
 }
 
 /// The status as printed: `held` for the current portfolio, else the model status in words.
@@ -296,7 +320,11 @@ fn portfolio(r: &RunResult, v: &View) -> Portfolio {
     let model = v.model;
     let stress = super::further::worst_stress(r, v.key);
     Portfolio {
-        key: v.key, label: v.look.label, aim: v.look.aim, colour: v.look.hex, marker: v.look.marker_name,
+        key: v.key,
+        label: v.look.label,
+        aim: v.look.aim,
+        colour: v.look.hex,
+        marker: v.look.marker_name,
         solved: v.profile.is_some(),
         status: status_word(v),
         message: model.and_then(|m| m.outcome.message.clone()),
@@ -307,16 +335,25 @@ fn portfolio(r: &RunResult, v: &View) -> Portfolio {
         volatility: f(&|p| pct(p.volatility, Style::Weight)),
         worst_loss: f(&|p| pct(p.worst_loss, Style::Loss)),
         worst_window: f(&|p| format::window(&p.worst_scenario)),
-        turnover: model.and_then(|m| m.turnover).map_or(NONE.into(), |t| pct(t, Style::Weight)),
+        turnover: model
+            .and_then(|m| m.turnover)
+            .map_or(NONE.into(), |t| pct(t, Style::Weight)),
         effective_holdings: f(&|p| format::number(p.effective_holdings, 1)),
         worst_stress: stress.map_or(NONE.into(), |(loss, _)| pct(loss, Style::Loss)),
         worst_stress_shock: stress.map_or(NONE.into(), |(_, shock)| shock.to_string()),
-        at_upper: model.filter(|_| v.profile.is_some()).map_or(NONE.into(), |m| m.at_upper.len().to_string()),
-        tails: r.config.levels.iter().map(|&l| TailCell {
-            level: format::level(l),
-            var: f(&|p| pct(p.at(l).var, Style::Loss)),
-            cvar: f(&|p| pct(p.at(l).cvar, Style::Loss)),
-        }).collect(),
+        at_upper: model
+            .filter(|_| v.profile.is_some())
+            .map_or(NONE.into(), |m| m.at_upper.len().to_string()),
+        tails: r
+            .config
+            .levels
+            .iter()
+            .map(|&l| TailCell {
+                level: format::level(l),
+                var: f(&|p| pct(p.at(l).var, Style::Loss)),
+                cvar: f(&|p| pct(p.at(l).cvar, Style::Loss)),
+            })
+            .collect(),
     }
 }
 
@@ -333,15 +370,37 @@ pub fn class_order(r: &RunResult) -> Vec<String> {
 
 /// Σ of `values` over the assets of `class`.
 pub fn class_sum(r: &RunResult, values: &[f64], class: &str) -> f64 {
-    r.data.meta.iter().zip(values).filter(|(m, _)| m.class == class).map(|(_, v)| v).sum()
+    r.data
+        .meta
+        .iter()
+        .zip(values)
+        .filter(|(m, _)| m.class == class)
+        .map(|(_, v)| v)
+        .sum()
 }
 
 fn classes(r: &RunResult, views: &[View]) -> Vec<ClassRow> {
-    class_order(r).into_iter().map(|class| ClassRow {
-        weights: views.iter().map(|v| v.weights.map_or(NONE.into(), |w| format::weight(class_sum(r, w, &class)))).collect(),
-        contributions: views.iter().map(|v| v.profile.map_or(NONE.into(), |p| pct(class_sum(r, &p.component_cvar, &class), Style::Loss))).collect(),
-        class: format::title(&class),
-    }).collect()
+    class_order(r)
+        .into_iter()
+        .map(|class| ClassRow {
+            weights: views
+                .iter()
+                .map(|v| {
+                    v.weights
+                        .map_or(NONE.into(), |w| format::weight(class_sum(r, w, &class)))
+                })
+                .collect(),
+            contributions: views
+                .iter()
+                .map(|v| {
+                    v.profile.map_or(NONE.into(), |p| {
+                        pct(class_sum(r, &p.component_cvar, &class), Style::Loss)
+                    })
+                })
+                .collect(),
+            class: format::title(&class),
+        })
+        .collect()
 }
 
 fn bounds(r: &RunResult, i: usize) -> String {
@@ -349,38 +408,91 @@ fn bounds(r: &RunResult, i: usize) -> String {
     if hi == 0.0 && r.config.exclude.contains(&r.data.assets[i]) {
         return "excluded".into();
     }
-    format!("{}\u{2013}{}", pct(lo, Style::Weight), pct(hi, Style::Weight))
+    format!(
+        "{}\u{2013}{}",
+        pct(lo, Style::Weight),
+        pct(hi, Style::Weight)
+    )
 }
 
 fn assets(r: &RunResult, views: &[View]) -> Vec<AssetRow> {
-    r.data.assets.iter().enumerate().map(|(i, a)| AssetRow {
-        asset: a.clone(),
-        name: r.data.meta[i].name.clone(),
-        class: format::title(&r.data.meta[i].class),
-        bounds: bounds(r, i),
-        weights: views.iter().map(|v| v.weights.map_or(NONE.into(), |w| format::weight(w[i]))).collect(),
-    }).collect()
+    r.data
+        .assets
+        .iter()
+        .enumerate()
+        .map(|(i, a)| AssetRow {
+            asset: a.clone(),
+            name: r.data.meta[i].name.clone(),
+            class: format::title(&r.data.meta[i].class),
+            bounds: bounds(r, i),
+            weights: views
+                .iter()
+                .map(|v| v.weights.map_or(NONE.into(), |w| format::weight(w[i])))
+                .collect(),
+        })
+        .collect()
 }
 
 fn groups(r: &RunResult, views: &[View]) -> Vec<GroupRow> {
-    r.feasible.groups.iter().map(|g| GroupRow {
-        name: g.name.clone(),
-        members: format::count(g.members.len()),
-        range: format!("{}\u{2013}{}", pct(g.min, Style::Weight), pct(g.max, Style::Weight)),
-        exposures: views.iter().map(|v| v.weights.map_or(NONE.into(), |w| {
-            pct(g.members.iter().map(|&i| w[i]).sum(), Style::Weight)
-        })).collect(),
-    }).collect()
+    r.feasible
+        .groups
+        .iter()
+        .map(|g| GroupRow {
+            name: g.name.clone(),
+            members: format::count(g.members.len()),
+            range: format!(
+                "{}\u{2013}{}",
+                pct(g.min, Style::Weight),
+                pct(g.max, Style::Weight)
+            ),
+            exposures: views
+                .iter()
+                .map(|v| {
+                    v.weights.map_or(NONE.into(), |w| {
+                        pct(g.members.iter().map(|&i| w[i]).sum(), Style::Weight)
+                    })
+                })
+                .collect(),
+        })
+        .collect()
 }
 
 fn limits(r: &RunResult) -> Vec<Pair> {
     let c = &r.config;
     let mut out = vec![
-        pair("Confidence level of the models", format::level(c.confidence)),
-        pair("CVaR cap (max return)", format!("{} ({})", pct(r.cvar_cap, Style::Loss), text::cap_rule(c.cap))),
-        pair("Expected-return floor (min CVaR)", format!("{} ({})", pct(r.return_floor, Style::Return), text::floor_rule(c.floor))),
-        pair("Default asset bounds", format!("{}\u{2013}{}", pct(c.default_min, Style::Weight), pct(c.default_max, Style::Weight))),
-        pair("Turnover limit Σ|x − current|", c.turnover_max.map_or("none".into(), |t| pct(t, Style::Weight))),
+        pair(
+            "Confidence level of the models",
+            format::level(c.confidence),
+        ),
+        pair(
+            "CVaR cap (max return)",
+            format!(
+                "{} ({})",
+                pct(r.cvar_cap, Style::Loss),
+                text::cap_rule(c.cap)
+            ),
+        ),
+        pair(
+            "Expected-return floor (min CVaR)",
+            format!(
+                "{} ({})",
+                pct(r.return_floor, Style::Return),
+                text::floor_rule(c.floor)
+            ),
+        ),
+        pair(
+            "Default asset bounds",
+            format!(
+                "{}\u{2013}{}",
+                pct(c.default_min, Style::Weight),
+                pct(c.default_max, Style::Weight)
+            ),
+        ),
+        pair(
+            "Turnover limit Σ|x − current|",
+            c.turnover_max
+                .map_or("none".into(), |t| pct(t, Style::Weight)),
+        ),
     ];
     if !c.exclude.is_empty() {
         out.push(pair("Excluded assets", c.exclude.join(", ")));
@@ -390,14 +502,30 @@ fn limits(r: &RunResult) -> Vec<Pair> {
 
 /// The `n` assets with the largest CVaR contribution in the first solved portfolio, largest first.
 fn contributors(r: &RunResult, views: &[View], n: usize) -> Vec<Contributor> {
-    let Some(base) = views.iter().find_map(|v| v.profile) else { return vec![] };
+    let Some(base) = views.iter().find_map(|v| v.profile) else {
+        return vec![];
+    };
     let mut order: Vec<usize> = (0..r.data.assets.len()).collect();
-    order.sort_by(|&a, &b| base.component_cvar[b].total_cmp(&base.component_cvar[a]).then(a.cmp(&b)));
-    order.into_iter().take(n).map(|i| Contributor {
-        asset: r.data.assets[i].clone(),
-        class: format::title(&r.data.meta[i].class),
-        contributions: views.iter().map(|v| v.profile.map_or(NONE.into(), |p| pct(p.component_cvar[i], Style::Loss))).collect(),
-    }).collect()
+    order.sort_by(|&a, &b| {
+        base.component_cvar[b]
+            .total_cmp(&base.component_cvar[a])
+            .then(a.cmp(&b))
+    });
+    order
+        .into_iter()
+        .take(n)
+        .map(|i| Contributor {
+            asset: r.data.assets[i].clone(),
+            class: format::title(&r.data.meta[i].class),
+            contributions: views
+                .iter()
+                .map(|v| {
+                    v.profile
+                        .map_or(NONE.into(), |p| pct(p.component_cvar[i], Style::Loss))
+                })
+                .collect(),
+        })
+        .collect()
 }
 
 fn level_word(l: Level) -> &'static str {
@@ -414,57 +542,126 @@ fn checks(r: &RunResult) -> Checks {
     rows.sort_by_key(|c| std::cmp::Reverse(c.level));
     let n = |l: Level| r.checks.iter().filter(|c| c.level == l).count();
     Checks {
-        pass: n(Level::Pass), warn: n(Level::Warn), fail: n(Level::Fail),
-        rows: rows.into_iter().map(|c| CheckRow { id: c.id.clone(), level: level_word(c.level), message: c.message.clone() }).collect(),
+        pass: n(Level::Pass),
+        warn: n(Level::Warn),
+        fail: n(Level::Fail),
+        rows: rows
+            .into_iter()
+            .map(|c| CheckRow {
+                id: c.id.clone(),
+                level: level_word(c.level),
+                message: c.message.clone(),
+            })
+            .collect(),
     }
 }
 
 fn scenarios(r: &RunResult) -> Vec<Pair> {
     let s = &r.scenarios;
     let probs = match r.config.scenarios.half_life {
-        Some(h) if !s.equal_probabilities => format!("decaying, half-life {} observations", format::number(h, 1)),
+        Some(h) if !s.equal_probabilities => {
+            format!("decaying, half-life {} observations", format::number(h, 1))
+        }
         _ => "equal".into(),
     };
     vec![
         pair("Scenarios", format::count(s.len())),
-        pair("Horizon", format!("{} price observations per scenario", s.horizon)),
+        pair(
+            "Horizon",
+            format!("{} price observations per scenario", s.horizon),
+        ),
         pair("Step between windows", format!("{} observation(s)", s.step)),
-        pair("First window starts", s.starts.first().map(|d| d.to_string()).unwrap_or_default()),
-        pair("Last window ends", s.ends.last().map(|d| d.to_string()).unwrap_or_default()),
-        pair("Look-back", format!("{} years before as-of", r.config.scenarios.lookback_years)),
+        pair(
+            "First window starts",
+            s.starts.first().map(|d| d.to_string()).unwrap_or_default(),
+        ),
+        pair(
+            "Last window ends",
+            s.ends.last().map(|d| d.to_string()).unwrap_or_default(),
+        ),
+        pair(
+            "Look-back",
+            format!("{} years before as-of", r.config.scenarios.lookback_years),
+        ),
         pair("Probabilities", probs),
     ]
 }
 
 fn quality(r: &RunResult) -> Quality {
     let q = &r.data.quality;
-    let flagged: Vec<QualityRow> = q.assets.iter()
-        .filter(|a| a.missing > 0 || a.dropped || a.extreme_moves > 0 || a.longest_stale_run >= r.config.quality.stale_run)
+    let flagged: Vec<QualityRow> = q
+        .assets
+        .iter()
+        .filter(|a| {
+            a.missing > 0
+                || a.dropped
+                || a.extreme_moves > 0
+                || a.longest_stale_run >= r.config.quality.stale_run
+        })
         .map(|a| QualityRow {
-            asset: a.asset.clone(), missing: a.missing.to_string(), filled: a.filled.to_string(),
-            longest_gap: a.longest_gap.to_string(), stale: a.longest_stale_run.to_string(),
-            extreme: a.extreme_moves.to_string(), status: if a.dropped { "dropped" } else { "kept" },
-        }).collect();
+            asset: a.asset.clone(),
+            missing: a.missing.to_string(),
+            filled: a.filled.to_string(),
+            longest_gap: a.longest_gap.to_string(),
+            stale: a.longest_stale_run.to_string(),
+            extreme: a.extreme_moves.to_string(),
+            status: if a.dropped { "dropped" } else { "kept" },
+        })
+        .collect();
     let clean = q.assets.len() - flagged.len();
     Quality {
         facts: vec![
-            pair("Price history", format!("{} to {} ({} layout)", r.data.history.0, r.data.history.1, format!("{:?}", r.data.layout).to_lowercase())),
-            pair("Scenario window", format!("{} to {}, {} observations", q.window_start, q.window_end, format::count(q.observations))),
+            pair(
+                "Price history",
+                format!(
+                    "{} to {} ({} layout)",
+                    r.data.history.0,
+                    r.data.history.1,
+                    format!("{:?}", r.data.layout).to_lowercase()
+                ),
+            ),
+            pair(
+                "Scenario window",
+                format!(
+                    "{} to {}, {} observations",
+                    q.window_start,
+                    q.window_end,
+                    format::count(q.observations)
+                ),
+            ),
             pair("Fill policy", q.fill_policy.clone()),
         ],
-        clean: format!("{} of {} assets have no finding (no missing, stale or extreme prices).", format::count(clean), format::count(q.assets.len())),
+        clean: format!(
+            "{} of {} assets have no finding (no missing, stale or extreme prices).",
+            format::count(clean),
+            format::count(q.assets.len())
+        ),
         rows: flagged,
     }
 }
 
 fn inputs(results: &Value) -> Vec<Input> {
-    let list = results.get("inputs").and_then(Value::as_array).cloned().unwrap_or_default();
-    let s = |v: &Value, k: &str| v.get(k).map(|x| x.as_str().map_or_else(|| x.to_string(), str::to_string)).unwrap_or_default();
-    list.iter().map(|i| Input {
-        role: s(i, "role"), path: s(i, "path"),
-        bytes: i.get("bytes").and_then(Value::as_u64).map_or(String::new(), |b| format::count(b as usize)),
-        sha256: s(i, "sha256"),
-    }).collect()
+    let list = results
+        .get("inputs")
+        .and_then(Value::as_array)
+        .cloned()
+        .unwrap_or_default();
+    let s = |v: &Value, k: &str| {
+        v.get(k)
+            .map(|x| x.as_str().map_or_else(|| x.to_string(), str::to_string))
+            .unwrap_or_default()
+    };
+    list.iter()
+        .map(|i| Input {
+            role: s(i, "role"),
+            path: s(i, "path"),
+            bytes: i
+                .get("bytes")
+                .and_then(Value::as_u64)
+                .map_or(String::new(), |b| format::count(b as usize)),
+            sha256: s(i, "sha256"),
+        })
+        .collect()
 }
 
 fn run_facts(r: &RunResult, pack_id: &str, is_final: bool) -> Vec<Pair> {
@@ -472,9 +669,22 @@ fn run_facts(r: &RunResult, pack_id: &str, is_final: bool) -> Vec<Pair> {
     vec![
         pair("Pack identifier", pack_id),
         pair("Tool", format!("tailpack {}", env!("CARGO_PKG_VERSION"))),
-        pair("Typesetting", format!("typst {}.{}.{}", v.major(), v.minor(), v.patch())),
-        pair("LP solver", crate::models::lp::backend_description(r.backend).to_string()),
-        pair("Status", if is_final { "FINAL (every required role has signed)" } else { "DRAFT (not signed off)" }),
+        pair(
+            "Typesetting",
+            format!("typst {}.{}.{}", v.major(), v.minor(), v.patch()),
+        ),
+        pair(
+            "LP solver",
+            crate::models::lp::backend_description(r.backend).to_string(),
+        ),
+        pair(
+            "Status",
+            if is_final {
+                "FINAL (every required role has signed)"
+            } else {
+                "DRAFT (not signed off)"
+            },
+        ),
     ]
 }
 

@@ -41,7 +41,11 @@ pub fn pct(x: f64, style: Style) -> String {
 
 /// A weight in a table: `–` (en dash) when it rounds to zero, so the held positions stand out.
 pub fn weight(x: f64) -> String {
-    if x.abs() < 0.00005 { "\u{2013}".into() } else { pct(x, Style::Weight) }
+    if x.abs() < 0.00005 {
+        "\u{2013}".into()
+    } else {
+        pct(x, Style::Weight)
+    }
 }
 
 /// A confidence level without trailing zeros: 0.95 → `95%`, 0.975 → `97.5%`.
@@ -57,12 +61,20 @@ pub fn number(x: f64, decimals: usize) -> String {
     }
     let s = format!("{:.*}", decimals, x.abs());
     let zero = s.bytes().all(|b| b == b'0' || b == b'.');
-    if x < 0.0 && !zero { format!("{MINUS}{s}") } else { s }
+    if x < 0.0 && !zero {
+        format!("{MINUS}{s}")
+    } else {
+        s
+    }
 }
 
 /// A test's p-value: three decimals, or `< 0.001` below that, so a tiny p-value never prints as zero.
 pub fn p_value(p: f64) -> String {
-    if p.is_finite() && p < 0.0005 { "< 0.001".into() } else { number(p, 3) }
+    if p.is_finite() && p < 0.0005 {
+        "< 0.001".into()
+    } else {
+        number(p, 3)
+    }
 }
 
 /// A probability that is not a portfolio figure (a cumulative binomial probability), as a percentage

@@ -22,9 +22,9 @@ pub mod world;
 use crate::error::{Error, Result};
 use crate::run::RunResult;
 use serde_json::Value;
+use typst::WorldExt;
 use typst::diag::{Severity, SourceDiagnostic};
 use typst::foundations::{Bytes, Smart};
-use typst::WorldExt;
 use typst_layout::PagedDocument;
 use typst_pdf::{PdfOptions, PdfStandard, PdfStandards};
 use world::{Origin, ReportWorld, WorldFile};
@@ -47,27 +47,50 @@ fn world(r: &RunResult, results: &Value, pack_id: &str) -> Result<ReportWorld> {
     let views = data::views(r);
     let report = data::build(r, results, pack_id);
     let (mut files, extra_fonts) = templates::load(r.config.templates.as_deref())?;
-    files.push(generated(REPORT_JSON, serde_json::to_vec_pretty(&report).expect("display data serialises")));
-    files.push(generated(RESULTS_JSON, serde_json::to_vec_pretty(results).expect("results serialise")));
-    for chart in charts::all(r, &views)?.into_iter().chain(further_charts::all(r, &views)?) {
-        files.push(generated(&format!("/charts/{}", chart.name), chart.svg.into_bytes()));
+    files.push(generated(
+        REPORT_JSON,
+        serde_json::to_vec_pretty(&report).expect("display data serialises"),
+    ));
+    files.push(generated(
+        RESULTS_JSON,
+        serde_json::to_vec_pretty(results).expect("results serialise"),
+    ));
+    for chart in charts::all(r, &views)?
+        .into_iter()
+        .chain(further_charts::all(r, &views)?)
+    {
+        files.push(generated(
+            &format!("/charts/{}", chart.name),
+            chart.svg.into_bytes(),
+        ));
     }
-    let fonts = extra_fonts.into_iter().map(Bytes::new).chain(templates::FONTS.into_iter().map(Bytes::new)).collect();
+    let fonts = extra_fonts
+        .into_iter()
+        .map(Bytes::new)
+        .chain(templates::FONTS.into_iter().map(Bytes::new))
+        .collect();
     Ok(ReportWorld::new(files, fonts, MAIN, r.data.as_of))
 }
 
 fn generated(vpath: &str, bytes: Vec<u8>) -> WorldFile {
-    WorldFile { vpath: vpath.into(), bytes, origin: Origin::Generated }
+    WorldFile {
+        vpath: vpath.into(),
+        bytes,
+        origin: Origin::Generated,
+    }
 }
 
 fn compile(world: &ReportWorld) -> Result<PagedDocument> {
-    typst::compile::<PagedDocument>(world).output.map_err(|diags| template_error(world, &diags))
+    typst::compile::<PagedDocument>(world)
+        .output
+        .map_err(|diags| template_error(world, &diags))
 }
 
 /// PDF/A-2b, identified by the pack id; the document date comes from the template (`set document`),
 /// which takes precedence over any timestamp here.
 fn export(world: &ReportWorld, doc: &PagedDocument, pack_id: &str) -> Result<Vec<u8>> {
-    let standards = PdfStandards::new(&[PdfStandard::A_2b]).map_err(|e| Error::Run(format!("PDF/A-2b settings: {}", e.message())))?;
+    let standards = PdfStandards::new(&[PdfStandard::A_2b])
+        .map_err(|e| Error::Run(format!("PDF/A-2b settings: {}", e.message())))?;
     let options = PdfOptions {
         ident: Smart::Custom(pack_id.to_string()),
         creator: Smart::Custom(Some(format!("tailpack {}", env!("CARGO_PKG_VERSION")))),
@@ -79,9 +102,16 @@ fn export(world: &ReportWorld, doc: &PagedDocument, pack_id: &str) -> Result<Vec
 
 /// The first error of a failed compilation as a [`Error::Template`] naming file, line and column.
 fn template_error(world: &ReportWorld, diags: &[SourceDiagnostic]) -> Error {
-    let errors: Vec<&SourceDiagnostic> = diags.iter().filter(|d| d.severity == Severity::Error).collect();
+    let errors: Vec<&SourceDiagnostic> = diags
+        .iter()
+        .filter(|d| d.severity == Severity::Error)
+        .collect();
     let Some(first) = errors.first().copied().or(diags.first()) else {
-        return Error::Template { file: MAIN.trim_start_matches('/').into(), line: None, message: "typesetting failed without a diagnostic".into() };
+        return Error::Template {
+            file: MAIN.trim_start_matches('/').into(),
+            line: None,
+            message: "typesetting failed without a diagnostic".into(),
+        };
     };
     let spans = std::iter::once(first.span).chain(first.trace.iter().map(|t| t.span.into()));
     let place = spans.filter_map(|s| locate(world, s)).next();
@@ -93,8 +123,16 @@ fn template_error(world: &ReportWorld, diags: &[SourceDiagnostic]) -> Error {
         message.push_str(&format!(" (and {} more error(s))", errors.len() - 1));
     }
     match place {
-        Some((file, line, column)) => Error::Template { file, line: Some((line, column)), message },
-        None => Error::Template { file: MAIN.trim_start_matches('/').into(), line: None, message },
+        Some((file, line, column)) => Error::Template {
+            file,
+            line: Some((line, column)),
+            message,
+        },
+        None => Error::Template {
+            file: MAIN.trim_start_matches('/').into(),
+            line: None,
+            message,
+        },
     }
 }
 
@@ -104,7 +142,10 @@ fn locate(world: &ReportWorld, span: typst::syntax::DiagSpan) -> Option<(String,
     let origin = world.origin(id)?;
     let range = world.range(span)?;
     let (line, column) = match world.parsed(id) {
-        Some(source) => source.lines().byte_to_line_column(range.start).map(|(l, c)| (l + 1, c + 1))?,
+        Some(source) => source
+            .lines()
+            .byte_to_line_column(range.start)
+            .map(|(l, c)| (l + 1, c + 1))?,
         None => (1, range.start + 1),
     };
     Some((origin.describe(id.vpath().get_with_slash()), line, column))

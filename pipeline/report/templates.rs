@@ -5,7 +5,7 @@
 //! partial imports (e.g. a logo), and `.ttf`/`.otf` fonts, which are registered with the typesetter.
 
 use super::world::{Origin, WorldFile};
-use crate::error::{fs, Result};
+use crate::error::{Result, fs};
 use std::path::{Path, PathBuf};
 
 /// The default templates, by file name: `main.typ` includes the others in print order.
@@ -15,8 +15,14 @@ pub const DEFAULTS: &[(&str, &str)] = &[
     ("cover.typ", include_str!("../../templates/cover.typ")),
     ("contents.typ", include_str!("../../templates/contents.typ")),
     ("summary.typ", include_str!("../../templates/summary.typ")),
-    ("allocations.typ", include_str!("../../templates/allocations.typ")),
-    ("tail-loss.typ", include_str!("../../templates/tail-loss.typ")),
+    (
+        "allocations.typ",
+        include_str!("../../templates/allocations.typ"),
+    ),
+    (
+        "tail-loss.typ",
+        include_str!("../../templates/tail-loss.typ"),
+    ),
     ("analysis.typ", include_str!("../../templates/analysis.typ")),
     ("checks.typ", include_str!("../../templates/checks.typ")),
     ("caveats.typ", include_str!("../../templates/caveats.typ")),
@@ -37,13 +43,24 @@ pub const FONTS: [&[u8]; 4] = [
 /// Template files for the world and any extra font files, defaults first, then the custom folder's files
 /// replacing defaults of the same name.
 pub fn load(custom: Option<&Path>) -> Result<(Vec<WorldFile>, Vec<Vec<u8>>)> {
-    let mut files: Vec<WorldFile> = DEFAULTS.iter().map(|(name, text)| WorldFile {
-        vpath: format!("/{name}"), bytes: text.as_bytes().to_vec(), origin: Origin::Builtin(name),
-    }).collect();
+    let mut files: Vec<WorldFile> = DEFAULTS
+        .iter()
+        .map(|(name, text)| WorldFile {
+            vpath: format!("/{name}"),
+            bytes: text.as_bytes().to_vec(),
+            origin: Origin::Builtin(name),
+        })
+        .collect();
     let mut fonts = Vec::new();
-    let Some(dir) = custom else { return Ok((files, fonts)) };
+    let Some(dir) = custom else {
+        return Ok((files, fonts));
+    };
     for path in walk(dir)? {
-        let rel = path.strip_prefix(dir).expect("walked below dir").to_string_lossy().replace('\\', "/");
+        let rel = path
+            .strip_prefix(dir)
+            .expect("walked below dir")
+            .to_string_lossy()
+            .replace('\\', "/");
         let bytes = fs::read(&path)?;
         if is_font(&path) {
             fonts.push(bytes);
@@ -51,22 +68,39 @@ pub fn load(custom: Option<&Path>) -> Result<(Vec<WorldFile>, Vec<Vec<u8>>)> {
         }
         let vpath = format!("/{rel}");
         files.retain(|f| f.vpath != vpath);
-        files.push(WorldFile { vpath, bytes, origin: Origin::Custom(path) });
+        files.push(WorldFile {
+            vpath,
+            bytes,
+            origin: Origin::Custom(path),
+        });
     }
     Ok((files, fonts))
 }
 
 fn is_font(path: &Path) -> bool {
-    matches!(path.extension().and_then(|e| e.to_str()).map(str::to_ascii_lowercase).as_deref(), Some("ttf" | "otf" | "ttc"))
+    matches!(
+        path.extension()
+            .and_then(|e| e.to_str())
+            .map(str::to_ascii_lowercase)
+            .as_deref(),
+        Some("ttf" | "otf" | "ttc")
+    )
 }
 
 /// Every regular file below `dir`, hidden ones skipped, in sorted order so the world is the same each run.
 fn walk(dir: &Path) -> Result<Vec<PathBuf>> {
     let mut out = Vec::new();
     let mut entries: Vec<PathBuf> = std::fs::read_dir(dir)
-        .map_err(|source| crate::error::Error::Io { action: "cannot read template folder", path: dir.into(), source })?
+        .map_err(|source| crate::error::Error::Io {
+            action: "cannot read template folder",
+            path: dir.into(),
+            source,
+        })?
         .filter_map(|e| e.ok().map(|e| e.path()))
-        .filter(|p| !p.file_name().is_some_and(|n| n.to_string_lossy().starts_with('.')))
+        .filter(|p| {
+            !p.file_name()
+                .is_some_and(|n| n.to_string_lossy().starts_with('.'))
+        })
         .collect();
     entries.sort();
     for p in entries {

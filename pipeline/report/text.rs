@@ -4,9 +4,9 @@
 //! recommendation. Figures go through [`super::format`] like every other number in the PDF.
 
 use super::charts::look;
-use super::data::{solved, status_word, View};
+use super::data::{View, solved, status_word};
+use super::format::{self, Style, pct};
 use super::further;
-use super::format::{self, pct, Style};
 use crate::config::{CapRule, FloorRule};
 use crate::diag::Level;
 use crate::run::RunResult;
@@ -15,8 +15,13 @@ use crate::run::RunResult;
 pub fn cap_rule(rule: CapRule) -> String {
     match rule {
         CapRule::Value(_) => "set as an absolute value".into(),
-        CapRule::TimesCurrent(m) => format!("{} × the current portfolio's CVaR", format::number(m, 2)),
-        CapRule::TimesMin(m) => format!("{} × the lowest CVaR attainable within the limits", format::number(m, 2)),
+        CapRule::TimesCurrent(m) => {
+            format!("{} × the current portfolio's CVaR", format::number(m, 2))
+        }
+        CapRule::TimesMin(m) => format!(
+            "{} × the lowest CVaR attainable within the limits",
+            format::number(m, 2)
+        ),
     }
 }
 
@@ -33,13 +38,29 @@ pub fn summary(r: &RunResult, views: &[View]) -> Vec<String> {
     let c = format::level(r.config.confidence);
     let mut out = vec![format!(
         "{} scenarios of {} price observations each, from {} to {}. VaR and CVaR at {c} are the fraction of portfolio value lost over one horizon.",
-        format::count(r.scenarios.len()), r.scenarios.horizon, first_start(r), last_end(r))];
-    let current = views.iter().find(|v| v.key == "current").and_then(|v| v.profile);
+        format::count(r.scenarios.len()),
+        r.scenarios.horizon,
+        first_start(r),
+        last_end(r)
+    )];
+    let current = views
+        .iter()
+        .find(|v| v.key == "current")
+        .and_then(|v| v.profile);
     if let Some(p) = current {
-        out.push(format!("Current portfolio: expected return {}, VaR {} and CVaR {} at {c}.",
-            pct(p.expected_return, Style::Return), pct(p.at(r.config.confidence).var, Style::Loss), pct(p.at(r.config.confidence).cvar, Style::Loss)));
+        out.push(format!(
+            "Current portfolio: expected return {}, VaR {} and CVaR {} at {c}.",
+            pct(p.expected_return, Style::Return),
+            pct(p.at(r.config.confidence).var, Style::Loss),
+            pct(p.at(r.config.confidence).cvar, Style::Loss)
+        ));
     }
-    out.extend(views.iter().filter(|v| v.model.is_some()).map(|v| model_point(r, v, current)));
+    out.extend(
+        views
+            .iter()
+            .filter(|v| v.model.is_some())
+            .map(|v| model_point(r, v, current)),
+    );
     out.push(checks_point(r));
     out.push(stress_point(r, views));
     out.push(backtest_point(r));
@@ -53,14 +74,35 @@ fn stress_point(r: &RunResult, views: &[View]) -> String {
         return "Stress tests: none was run (section 4.2 says why).".into();
     }
     let defined = a.shocks.iter().filter(|s| s.kind == "defined").count();
-    let mut out = format!("Stress tests: {} scenarios ({} defined by the fund, {} historical windows); each portfolio's worst loss is in the table below.",
-        a.shocks.len(), defined, a.shocks.len() - defined);
-    let Some(limit) = r.config.stress_loss_limit else { return out };
-    let over: Vec<&str> = views.iter().filter(|v| further::result_of(r, v.key).is_some_and(|s| !s.breaches.is_empty())).map(|v| v.look.label).collect();
+    let mut out = format!(
+        "Stress tests: {} scenarios ({} defined by the fund, {} historical windows); each portfolio's worst loss is in the table below.",
+        a.shocks.len(),
+        defined,
+        a.shocks.len() - defined
+    );
+    let Some(limit) = r.config.stress_loss_limit else {
+        return out;
+    };
+    let over: Vec<&str> = views
+        .iter()
+        .filter(|v| further::result_of(r, v.key).is_some_and(|s| !s.breaches.is_empty()))
+        .map(|v| v.look.label)
+        .collect();
     out.push_str(&match over.len() {
-        0 => format!(" No portfolio loses more than the limit of {}.", pct(limit, Style::Loss)),
-        1 => format!(" {} loses more than the limit of {} in at least one scenario.", over[0], pct(limit, Style::Loss)),
-        _ => format!(" {} lose more than the limit of {} in at least one scenario.", list(&over), pct(limit, Style::Loss)),
+        0 => format!(
+            " No portfolio loses more than the limit of {}.",
+            pct(limit, Style::Loss)
+        ),
+        1 => format!(
+            " {} loses more than the limit of {} in at least one scenario.",
+            over[0],
+            pct(limit, Style::Loss)
+        ),
+        _ => format!(
+            " {} lose more than the limit of {} in at least one scenario.",
+            list(&over),
+            pct(limit, Style::Loss)
+        ),
     });
     out
 }
@@ -70,16 +112,35 @@ fn backtest_point(r: &RunResult) -> String {
     let Some(b) = &r.analysis.backtest else {
         return "Walk-forward backtest: not run (section 4.3 says why).".into();
     };
-    let Some(first) = b.tracks.first() else { return "Walk-forward backtest: no model to test.".into() };
-    let counts: Vec<String> = b.tracks.iter().map(|t| format!("{} ({})", t.exceptions, look(t.model).label)).collect();
+    let Some(first) = b.tracks.first() else {
+        return "Walk-forward backtest: no model to test.".into();
+    };
+    let counts: Vec<String> = b
+        .tracks
+        .iter()
+        .map(|t| format!("{} ({})", t.exceptions, look(t.model).label))
+        .collect();
     let counts: Vec<&str> = counts.iter().map(String::as_str).collect();
-    let rejected: Vec<&str> = b.tracks.iter().filter(|t| t.kupiec.is_some_and(|k| k.p_value < 0.05)).map(|t| look(t.model).label).collect();
+    let rejected: Vec<&str> = b
+        .tracks
+        .iter()
+        .filter(|t| t.kupiec.is_some_and(|k| k.p_value < 0.05))
+        .map(|t| look(t.model).label)
+        .collect();
     let verdict = match rejected.len() {
         0 => "no model's exception rate is rejected at 5%".to_string(),
-        _ => format!("the exception rate of {} is rejected at 5%", list(&rejected)),
+        _ => format!(
+            "the exception rate of {} is rejected at 5%",
+            list(&rejected)
+        ),
     };
-    format!("Walk-forward backtest over {} months: {} losses beyond the predicted VaR {}, against {} expected; {verdict}.",
-        first.observations, list(&counts), format::level(b.confidence), format::number(first.expected_exceptions, 1))
+    format!(
+        "Walk-forward backtest over {} months: {} losses beyond the predicted VaR {}, against {} expected; {verdict}.",
+        first.observations,
+        list(&counts),
+        format::level(b.confidence),
+        format::number(first.expected_exceptions, 1)
+    )
 }
 
 /// Names joined as prose: `A`, `A and B`, `A, B and C`.
@@ -94,27 +155,59 @@ fn list(names: &[&str]) -> String {
 fn model_point(r: &RunResult, v: &View, current: Option<&crate::risk::RiskProfile>) -> String {
     let m = v.model.expect("a model view");
     let Some(p) = v.profile.filter(|_| solved(m)) else {
-        return format!("{}: {}. {}", v.look.label, status_word(v), m.outcome.message.as_deref().unwrap_or("No portfolio is reported."));
+        return format!(
+            "{}: {}. {}",
+            v.look.label,
+            status_word(v),
+            m.outcome
+                .message
+                .as_deref()
+                .unwrap_or("No portfolio is reported.")
+        );
     };
     let c = r.config.confidence;
-    let versus = |now: f64, then: Option<f64>| then.map_or(String::new(), |t| format!(" ({} against current)", pct(now - t, Style::Points)));
-    let turnover = m.turnover.map_or(String::new(), |t| format!(", turnover {}", pct(t, Style::Weight)));
-    format!("{}: expected return {}{}, CVaR {}{}{turnover}.", v.look.label,
-        pct(p.expected_return, Style::Return), versus(p.expected_return, current.map(|q| q.expected_return)),
-        pct(p.at(c).cvar, Style::Loss), versus(p.at(c).cvar, current.map(|q| q.at(c).cvar)))
+    let versus = |now: f64, then: Option<f64>| {
+        then.map_or(String::new(), |t| {
+            format!(" ({} against current)", pct(now - t, Style::Points))
+        })
+    };
+    let turnover = m.turnover.map_or(String::new(), |t| {
+        format!(", turnover {}", pct(t, Style::Weight))
+    });
+    format!(
+        "{}: expected return {}{}, CVaR {}{}{turnover}.",
+        v.look.label,
+        pct(p.expected_return, Style::Return),
+        versus(p.expected_return, current.map(|q| q.expected_return)),
+        pct(p.at(c).cvar, Style::Loss),
+        versus(p.at(c).cvar, current.map(|q| q.at(c).cvar))
+    )
 }
 
 fn checks_point(r: &RunResult) -> String {
     let n = |l: Level| r.checks.iter().filter(|c| c.level == l).count();
-    format!("Checks: {} passed, {} warning(s), {} failure(s); each is listed under Checks.", n(Level::Pass), n(Level::Warn), n(Level::Fail))
+    format!(
+        "Checks: {} passed, {} warning(s), {} failure(s); each is listed under Checks.",
+        n(Level::Pass),
+        n(Level::Warn),
+        n(Level::Fail)
+    )
 }
 
 fn first_start(r: &RunResult) -> String {
-    r.scenarios.starts.first().map(|d| d.to_string()).unwrap_or_default()
+    r.scenarios
+        .starts
+        .first()
+        .map(|d| d.to_string())
+        .unwrap_or_default()
 }
 
 fn last_end(r: &RunResult) -> String {
-    r.scenarios.ends.last().map(|d| d.to_string()).unwrap_or_default()
+    r.scenarios
+        .ends
+        .last()
+        .map(|d| d.to_string())
+        .unwrap_or_default()
 }
 
 /// The caveats that apply to this run, general ones first, then one per model where it matters.
@@ -132,53 +225,113 @@ pub fn caveats(r: &RunResult, views: &[View]) -> Vec<super::data::Caveat> {
 }
 
 fn caveat(title: &str, text: &str) -> super::data::Caveat {
-    super::data::Caveat { title: title.into(), text: text.into() }
+    super::data::Caveat {
+        title: title.into(),
+        text: text.into(),
+    }
 }
 
 fn history(r: &RunResult, views: &[View]) -> super::data::Caveat {
-    let worst = views.iter().filter_map(|v| v.profile).map(|p| p.worst_loss).fold(f64::NAN, f64::max);
-    caveat("History is not the future", &format!(
-        "The scenarios are the returns observed between {} and {}. The largest loss of any portfolio in the pack over them is {}; larger losses are possible, and a calm history gives tail figures that look benign.",
-        first_start(r), last_end(r), pct(worst, Style::Loss)))
+    let worst = views
+        .iter()
+        .filter_map(|v| v.profile)
+        .map(|p| p.worst_loss)
+        .fold(f64::NAN, f64::max);
+    caveat(
+        "History is not the future",
+        &format!(
+            "The scenarios are the returns observed between {} and {}. The largest loss of any portfolio in the pack over them is {}; larger losses are possible, and a calm history gives tail figures that look benign.",
+            first_start(r),
+            last_end(r),
+            pct(worst, Style::Loss)
+        ),
+    )
 }
 
 /// How many scenarios a tail average rests on, and how many windows are independent.
 fn tail_count(r: &RunResult) -> super::data::Caveat {
     let s = &r.scenarios;
     let independent = (s.len() * s.step) / s.horizon.max(1);
-    let levels: Vec<String> = r.config.levels.iter().map(|&c| {
-        format!("{} of {} at {}", format::count(((1.0 - c) * s.len() as f64).ceil() as usize), format::count(s.len()), format::level(c))
-    }).collect();
-    let weighting = if s.equal_probabilities { "the worst" } else { "the probability-weighted worst" };
-    caveat("Few tail scenarios", &format!(
-        "CVaR averages {weighting} scenarios only: {}. Consecutive windows overlap (horizon {}, step {}), so only about {} of them are independent; tail figures carry wide sampling error.",
-        levels.join(", "), s.horizon, s.step, format::count(independent)))
+    let levels: Vec<String> = r
+        .config
+        .levels
+        .iter()
+        .map(|&c| {
+            format!(
+                "{} of {} at {}",
+                format::count(((1.0 - c) * s.len() as f64).ceil() as usize),
+                format::count(s.len()),
+                format::level(c)
+            )
+        })
+        .collect();
+    let weighting = if s.equal_probabilities {
+        "the worst"
+    } else {
+        "the probability-weighted worst"
+    };
+    caveat(
+        "Few tail scenarios",
+        &format!(
+            "CVaR averages {weighting} scenarios only: {}. Consecutive windows overlap (horizon {}, step {}), so only about {} of them are independent; tail figures carry wide sampling error.",
+            levels.join(", "),
+            s.horizon,
+            s.step,
+            format::count(independent)
+        ),
+    )
 }
 
 fn estimates() -> super::data::Caveat {
-    caveat("Expected returns are estimates", "Expected returns are the scenario means. They are estimated far less precisely than risk, and optimisers lean on exactly those errors (Michaud 1989, \"The Markowitz optimization enigma: is optimized optimal?\", Financial Analysts Journal 45(1)). Differences of a few tenths of a percentage point between candidates are within that error.")
+    caveat(
+        "Expected returns are estimates",
+        "Expected returns are the scenario means. They are estimated far less precisely than risk, and optimisers lean on exactly those errors (Michaud 1989, \"The Markowitz optimization enigma: is optimized optimal?\", Financial Analysts Journal 45(1)). Differences of a few tenths of a percentage point between candidates are within that error.",
+    )
 }
 
 /// Which limits bind a solved model: assets at their upper bound, the turnover limit, group limits.
 fn binding(r: &RunResult, v: &View) -> Option<super::data::Caveat> {
     let m = v.model?;
     if !solved(m) {
-        return Some(caveat(&format!("{}: {}", v.look.label, status_word(v)), m.outcome.message.as_deref().unwrap_or("no portfolio is reported")));
+        return Some(caveat(
+            &format!("{}: {}", v.look.label, status_word(v)),
+            m.outcome
+                .message
+                .as_deref()
+                .unwrap_or("no portfolio is reported"),
+        ));
     }
     let w = v.weights?;
     let mut parts = Vec::new();
     if !m.at_upper.is_empty() {
-        parts.push(format!("{} asset(s) at their upper bound ({})", m.at_upper.len(), shortlist(&m.at_upper, 6)));
+        parts.push(format!(
+            "{} asset(s) at their upper bound ({})",
+            m.at_upper.len(),
+            shortlist(&m.at_upper, 6)
+        ));
     }
-    if let (Some(t), Some(max)) = (m.turnover, r.config.turnover_max) && t >= max - 1e-6 {
-        parts.push(format!("turnover at its limit of {}", pct(max, Style::Weight)));
+    if let (Some(t), Some(max)) = (m.turnover, r.config.turnover_max)
+        && t >= max - 1e-6
+    {
+        parts.push(format!(
+            "turnover at its limit of {}",
+            pct(max, Style::Weight)
+        ));
     }
     for g in &r.feasible.groups {
         let x: f64 = g.members.iter().map(|&i| w[i]).sum();
         if (x - g.max).abs() < 1e-6 && g.max < 1.0 {
-            parts.push(format!("{} at its maximum of {}", g.name, pct(g.max, Style::Weight)));
+            parts.push(format!(
+                "{} at its maximum of {}",
+                g.name,
+                pct(g.max, Style::Weight)
+            ));
         } else if (x - g.min).abs() < 1e-6 && g.min > 0.0 {
-            parts.push(format!("{} at its minimum of {}", g.name, pct(g.min, Style::Weight)));
+            parts.push(format!(
+                "{} at its minimum of {}",
+                g.name,
+                pct(g.min, Style::Weight)
+            ));
         }
     }
     (!parts.is_empty()).then(|| caveat(&format!("{}: limits that bind", v.look.label), &format!(
@@ -186,7 +339,11 @@ fn binding(r: &RunResult, v: &View) -> Option<super::data::Caveat> {
 }
 
 fn shortlist(names: &[String], n: usize) -> String {
-    if names.len() <= n { names.join(", ") } else { format!("{} and {} more", names[..n].join(", "), names.len() - n) }
+    if names.len() <= n {
+        names.join(", ")
+    } else {
+        format!("{} and {} more", names[..n].join(", "), names.len() - n)
+    }
 }
 
 /// What limits the reading of the stress results: configured magnitudes, and windows chosen for one portfolio.
@@ -195,12 +352,21 @@ fn stress_caveats(r: &RunResult) -> Vec<super::data::Caveat> {
     let mut out = Vec::new();
     let defined = a.shocks.iter().filter(|s| s.kind == "defined").count();
     if defined > 0 {
-        let file = r.config.stress_file.as_ref().and_then(|p| p.file_name()).map_or(String::new(), |n| format!(" ({})", n.to_string_lossy()));
+        let file = r
+            .config
+            .stress_file
+            .as_ref()
+            .and_then(|p| p.file_name())
+            .map_or(String::new(), |n| format!(" ({})", n.to_string_lossy()));
         out.push(caveat("Stress magnitudes are configured, not calibrated", &format!(
             "The {defined} defined shocks are the fund's configured scenarios{file}: their magnitudes were set by the fund, not estimated from data; they carry no probability and are not forecasts. Each moves an asset by the one entry that matches it (its own, else the first matching tag), with no second-round effects; an asset a shock does not name does not move.")));
     }
     if a.shocks.iter().any(|s| s.kind == "historical") {
-        let basis = if r.data.holdings.is_some() { "current holdings" } else { "equally weighted portfolio" };
+        let basis = if r.data.holdings.is_some() {
+            "current holdings"
+        } else {
+            "equally weighted portfolio"
+        };
         out.push(caveat("Historical windows are chosen for one portfolio", &format!(
             "The historical stress windows are the worst of the price history for the {basis}; another portfolio's worst window may be a different one, and its worst historical loss is then larger than the table shows.")));
     }
@@ -210,13 +376,24 @@ fn stress_caveats(r: &RunResult) -> Vec<super::data::Caveat> {
 /// What limits the reading of the backtest: thin evidence, rejected models, skipped months, or no backtest.
 fn backtest_caveats(r: &RunResult) -> Vec<super::data::Caveat> {
     let Some(b) = &r.analysis.backtest else {
-        return vec![caveat("No out-of-sample evidence", "The walk-forward backtest was not run, so nothing in this pack shows how the models' predictions compared with what followed.")];
+        return vec![caveat(
+            "No out-of-sample evidence",
+            "The walk-forward backtest was not run, so nothing in this pack shows how the models' predictions compared with what followed.",
+        )];
     };
     let months = b.tracks.first().map_or(0, |t| t.observations);
-    let mut out = vec![caveat("Backtest evidence is thin", &format!(
-        "The backtest rests on {months} monthly outcomes per model, overlapping in their look-back data. With so few months the VaR tests have little power: passing them is weak evidence that a VaR is right, and final wealth reflects one path of history."))];
+    let mut out = vec![caveat(
+        "Backtest evidence is thin",
+        &format!(
+            "The backtest rests on {months} monthly outcomes per model, overlapping in their look-back data. With so few months the VaR tests have little power: passing them is weak evidence that a VaR is right, and final wealth reflects one path of history."
+        ),
+    )];
     let level = format::level(b.confidence);
-    for t in b.tracks.iter().filter(|t| t.kupiec.is_some_and(|k| k.p_value < 0.05)) {
+    for t in b
+        .tracks
+        .iter()
+        .filter(|t| t.kupiec.is_some_and(|k| k.p_value < 0.05))
+    {
         let p = format::p_value(t.kupiec.expect("filtered").p_value);
         let reading = if t.exceptions as f64 > t.expected_exceptions {
             "more often than the level allows, so the model's VaR and CVaR in this pack may understate the tail"

@@ -70,16 +70,39 @@ pub struct WorldFile {
 impl ReportWorld {
     /// A world over `files` with `fonts` (font files) before typst's embedded fonts; `main` is the entry
     /// template and `today` the date typst's `datetime.today()` returns.
-    pub fn new(files: Vec<WorldFile>, fonts: Vec<Bytes>, main: &str, today: chrono::NaiveDate) -> Self {
-        let fonts: Vec<Font> = fonts.into_iter().chain(typst_assets::fonts().map(Bytes::new))
+    pub fn new(
+        files: Vec<WorldFile>,
+        fonts: Vec<Bytes>,
+        main: &str,
+        today: chrono::NaiveDate,
+    ) -> Self {
+        let fonts: Vec<Font> = fonts
+            .into_iter()
+            .chain(typst_assets::fonts().map(Bytes::new))
             .flat_map(Font::iter)
             .collect();
-        let files = files.into_iter().map(|f| {
-            let id = file_id(&f.vpath);
-            let source = f.vpath.ends_with(".typ").then(|| String::from_utf8(f.bytes.clone()).ok()).flatten().map(|t| Source::new(id, t));
-            (id, Entry { bytes: Bytes::new(f.bytes), source, origin: f.origin })
-        }).collect();
-        let today = Datetime::from_ymd(today.year(), today.month() as u8, today.day() as u8).expect("a valid calendar date");
+        let files = files
+            .into_iter()
+            .map(|f| {
+                let id = file_id(&f.vpath);
+                let source = f
+                    .vpath
+                    .ends_with(".typ")
+                    .then(|| String::from_utf8(f.bytes.clone()).ok())
+                    .flatten()
+                    .map(|t| Source::new(id, t));
+                (
+                    id,
+                    Entry {
+                        bytes: Bytes::new(f.bytes),
+                        source,
+                        origin: f.origin,
+                    },
+                )
+            })
+            .collect();
+        let today = Datetime::from_ymd(today.year(), today.month() as u8, today.day() as u8)
+            .expect("a valid calendar date");
         ReportWorld {
             library: LazyHash::new(Library::default()),
             book: LazyHash::new(FontBook::from_fonts(&fonts)),
@@ -128,7 +151,10 @@ impl World for ReportWorld {
     }
 
     fn file(&self, id: FileId) -> FileResult<Bytes> {
-        self.files.get(&id).map(|e| e.bytes.clone()).ok_or_else(|| Self::missing(id))
+        self.files
+            .get(&id)
+            .map(|e| e.bytes.clone())
+            .ok_or_else(|| Self::missing(id))
     }
 
     fn font(&self, index: usize) -> Option<Font> {
@@ -146,7 +172,10 @@ mod tests {
     use super::*;
 
     fn world() -> ReportWorld {
-        let fonts = crate::report::templates::FONTS.into_iter().map(Bytes::new).collect();
+        let fonts = crate::report::templates::FONTS
+            .into_iter()
+            .map(Bytes::new)
+            .collect();
         ReportWorld::new(vec![], fonts, "/main.typ", "2026-11-30".parse().unwrap())
     }
 
@@ -155,18 +184,34 @@ mod tests {
         let w = world();
         for offset in [None, Some(Duration::construct(0, 0, 5, 0, 0))] {
             let d = w.today(offset).unwrap();
-            assert_eq!((d.year(), d.month(), d.day()), (Some(2026), Some(11), Some(30)));
+            assert_eq!(
+                (d.year(), d.month(), d.day()),
+                (Some(2026), Some(11), Some(30))
+            );
         }
     }
 
     #[test]
     fn fonts_are_the_shipped_family_and_typst_embedded_ones_only() {
         let w = world();
-        let families: Vec<String> = w.book().families().map(|(name, _)| name.to_string()).collect();
+        let families: Vec<String> = w
+            .book()
+            .families()
+            .map(|(name, _)| name.to_string())
+            .collect();
         assert!(families.iter().any(|f| f == "Inter"), "{families:?}");
-        let embedded = ["Inter", "Libertinus Serif", "New Computer Modern", "New Computer Modern Math", "DejaVu Sans Mono"];
+        let embedded = [
+            "Inter",
+            "Libertinus Serif",
+            "New Computer Modern",
+            "New Computer Modern Math",
+            "DejaVu Sans Mono",
+        ];
         for f in &families {
-            assert!(embedded.contains(&f.as_str()), "unexpected font family {f}: no system font may reach the PDF");
+            assert!(
+                embedded.contains(&f.as_str()),
+                "unexpected font family {f}: no system font may reach the PDF"
+            );
         }
     }
 }

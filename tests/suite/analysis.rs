@@ -1,8 +1,8 @@
 //! Frontier, stress set and backtest against published tables, hand-worked cases and look-ahead checks.
 
-use super::common::{config, json, Fixture, Market};
+use super::common::{Fixture, Market, config, json};
 use rand::{RngExt, SeedableRng};
-use tailpack::analysis::vartest::{christoffersen, cumulative_probability, kupiec, zone, Zone};
+use tailpack::analysis::vartest::{Zone, christoffersen, cumulative_probability, kupiec, zone};
 
 #[test]
 fn basel_traffic_light_table() {
@@ -13,9 +13,15 @@ fn basel_traffic_light_table() {
     assert_eq!(pct(4), 89.22);
     assert_eq!(pct(5), 95.88);
     assert_eq!(pct(10), 99.99);
-    for x in 0..=4 { assert_eq!(zone(x, 250, 0.01), Zone::Green, "{x}"); }
-    for x in 5..=9 { assert_eq!(zone(x, 250, 0.01), Zone::Yellow, "{x}"); }
-    for x in 10..=20 { assert_eq!(zone(x, 250, 0.01), Zone::Red, "{x}"); }
+    for x in 0..=4 {
+        assert_eq!(zone(x, 250, 0.01), Zone::Green, "{x}");
+    }
+    for x in 5..=9 {
+        assert_eq!(zone(x, 250, 0.01), Zone::Yellow, "{x}");
+    }
+    for x in 10..=20 {
+        assert_eq!(zone(x, 250, 0.01), Zone::Red, "{x}");
+    }
 }
 
 #[test]
@@ -26,7 +32,11 @@ fn kupiec_against_chi_square_critical_values() {
     //   x = 5: −2[245 ln 0.99 + 5 ln 0.01 − 245 ln 0.98 − 5 ln 0.02] = 1.9568 < 3.841 → not rejected.
     let (chi2_5, chi2_1) = (3.841, 6.635);
     let eight = kupiec(8, 250, 0.01);
-    assert!((eight.statistic - 7.7336).abs() < 1e-3, "{}", eight.statistic);
+    assert!(
+        (eight.statistic - 7.7336).abs() < 1e-3,
+        "{}",
+        eight.statistic
+    );
     assert!(eight.statistic > chi2_1 && eight.p_value < 0.01);
     let five = kupiec(5, 250, 0.01);
     assert!((five.statistic - 1.9568).abs() < 1e-3, "{}", five.statistic);
@@ -47,18 +57,29 @@ fn christoffersen_rejects_clusters_and_mostly_accepts_iid() {
     assert!(t.p_value < 0.01, "clustered series: p = {}", t.p_value);
     // i.i.d. Bernoulli(0.05) series: the test at 5% should reject about 5% of the time; allow up to 12%.
     let mut rng = rand::rngs::StdRng::seed_from_u64(2024);
-    let rejections = (0..300).filter(|_| {
-        let hits: Vec<bool> = (0..500).map(|_| rng.random::<f64>() < 0.05).collect();
-        christoffersen(&hits).unwrap().p_value < 0.05
-    }).count();
-    assert!(rejections < 36, "{rejections} of 300 i.i.d. series rejected");
+    let rejections = (0..300)
+        .filter(|_| {
+            let hits: Vec<bool> = (0..500).map(|_| rng.random::<f64>() < 0.05).collect();
+            christoffersen(&hits).unwrap().p_value < 0.05
+        })
+        .count();
+    assert!(
+        rejections < 36,
+        "{rejections} of 300 i.i.d. series rejected"
+    );
 }
 
 fn fund(f: &Fixture, tail: &str) -> serde_json::Value {
     let m = Market::new(3, "2019-01-01", "2024-06-28", 17);
     f.small_fund(&m, &config(tail));
-    f.write("data/assets.csv", "asset,class,max_weight\nAS01,equity,0.8\nAS02,bond,0.8\nAS03,equity,0.8\n");
-    f.write("data/holdings.csv", "asset,weight\nAS01,0.5\nAS02,0.3\nAS03,0.2\n");
+    f.write(
+        "data/assets.csv",
+        "asset,class,max_weight\nAS01,equity,0.8\nAS02,bond,0.8\nAS03,equity,0.8\n",
+    );
+    f.write(
+        "data/holdings.csv",
+        "asset,weight\nAS01,0.5\nAS02,0.3\nAS03,0.2\n",
+    );
     let ran = f.run(&["run", "fund.yaml", "--quiet"]);
     assert_eq!(ran.code, 0, "{}", ran.stderr);
     json(&std::path::PathBuf::from(ran.stdout.lines().last().unwrap()).join("results.json"))
@@ -68,21 +89,38 @@ fn fund(f: &Fixture, tail: &str) -> serde_json::Value {
 fn stress_pnl_by_hand_and_asset_override_beats_tag() {
     let f = Fixture::new();
     f.write("stress.yaml", "shocks:\n  - name: Test crash\n    moves:\n      - { tag: \"class:equity\", return: -0.20 }\n      - { tag: \"class:bond\", return: 0.05 }\n      - { asset: AS03, return: -0.10 }\n");
-    let r = fund(&f, "stress:\n  file: stress.yaml\n  loss_limit: 0.10\n  historical_windows: 2\nanalysis:\n  backtest_years: 0\n");
+    let r = fund(
+        &f,
+        "stress:\n  file: stress.yaml\n  loss_limit: 0.10\n  historical_windows: 2\nanalysis:\n  backtest_years: 0\n",
+    );
     // By hand: 0.5 × (−0.20) + 0.3 × 0.05 + 0.2 × (−0.10, the asset move, not the equity tag's −0.20)
     //        = −0.100 + 0.015 − 0.020 = −0.105; by class: equity −0.12, bond +0.015.
     let cur = &r["stress"]["portfolios"]["current"];
-    assert!((cur["pnl"][0].as_f64().unwrap() + 0.105).abs() < 1e-12, "{}", cur["pnl"]);
+    assert!(
+        (cur["pnl"][0].as_f64().unwrap() + 0.105).abs() < 1e-12,
+        "{}",
+        cur["pnl"]
+    );
     assert!((cur["by_class"][0]["equity"].as_f64().unwrap() + 0.12).abs() < 1e-12);
     assert!((cur["by_class"][0]["bond"].as_f64().unwrap() - 0.015).abs() < 1e-12);
     assert_eq!(r["stress"]["shocks"][0]["returns"]["AS03"], -0.10);
     // Loss 10.5% > limit 10% → breach.
     assert_eq!(cur["breaches"][0], "Test crash");
     // Historical windows: two, from the full history, not overlapping (starts ≥ horizon = 5 observations apart).
-    let hist: Vec<&serde_json::Value> = r["stress"]["shocks"].as_array().unwrap().iter().filter(|s| s["kind"] == "historical").collect();
+    let hist: Vec<&serde_json::Value> = r["stress"]["shocks"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .filter(|s| s["kind"] == "historical")
+        .collect();
     assert_eq!(hist.len(), 2);
     let m = Market::new(3, "2019-01-01", "2024-06-28", 17);
-    let idx = |d: &serde_json::Value| m.dates.iter().position(|x| x.to_string() == d.as_str().unwrap()).unwrap();
+    let idx = |d: &serde_json::Value| {
+        m.dates
+            .iter()
+            .position(|x| x.to_string() == d.as_str().unwrap())
+            .unwrap()
+    };
     let (a, b) = (idx(&hist[0]["start"]), idx(&hist[1]["start"]));
     assert!(a.abs_diff(b) >= 5);
     assert!(idx(&hist[0]["end"]) - a == 5);
@@ -92,22 +130,41 @@ fn stress_pnl_by_hand_and_asset_override_beats_tag() {
 #[test]
 fn frontier_is_monotone_and_max_ratio_dominates_it() {
     let f = Fixture::new();
-    let r = fund(&f, "analysis:\n  frontier_points: 15\n  backtest_years: 0\n");
+    let r = fund(
+        &f,
+        "analysis:\n  frontier_points: 15\n  backtest_years: 0\n",
+    );
     let pts = r["frontier"]["points"].as_array().unwrap();
     assert_eq!(pts.len(), 15);
     let ratio = r["models"]["max_ratio"]["ratio"].as_f64().unwrap();
     let mut prev = (f64::NEG_INFINITY, f64::NEG_INFINITY);
     for p in pts {
         assert_eq!(p["status"], "optimal");
-        let (c, e) = (p["cvar"].as_f64().unwrap(), p["expected_return"].as_f64().unwrap());
-        assert!(c >= prev.0 - 1e-9 && e >= prev.1 - 1e-9, "not monotone at {p}");
-        assert!(ratio >= e / c - 1e-9, "frontier point ratio {} above max_ratio {ratio}", e / c);
+        let (c, e) = (
+            p["cvar"].as_f64().unwrap(),
+            p["expected_return"].as_f64().unwrap(),
+        );
+        assert!(
+            c >= prev.0 - 1e-9 && e >= prev.1 - 1e-9,
+            "not monotone at {p}"
+        );
+        assert!(
+            ratio >= e / c - 1e-9,
+            "frontier point ratio {} above max_ratio {ratio}",
+            e / c
+        );
         prev = (c, e);
     }
 }
 
 fn backtest_weights(r: &serde_json::Value, date: &str) -> serde_json::Value {
-    r["backtest"]["models"]["min_cvar"]["months"].as_array().unwrap().iter().find(|m| m["date"] == date).unwrap()["weights"].clone()
+    r["backtest"]["models"]["min_cvar"]["months"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .find(|m| m["date"] == date)
+        .unwrap()["weights"]
+        .clone()
 }
 
 #[test]
@@ -116,22 +173,47 @@ fn backtest_never_looks_ahead() {
     let tail = "analysis:\n  backtest_years: 2\n  daily_var_check: false\n";
     let before = fund(&f, tail);
     let bt = &before["backtest"]["models"]["min_cvar"];
-    assert!(bt["months"].as_array().unwrap().len() >= 23, "{}", before["backtest"]["rebalances"]);
+    assert!(
+        bt["months"].as_array().unwrap().len() >= 23,
+        "{}",
+        before["backtest"]["rebalances"]
+    );
     let m = Market::new(3, "2019-01-01", "2024-06-28", 17);
     // Alter every price after the month-end 2023-06-30.
     let mut text = String::from("date,AS01,AS02,AS03\n");
     for (d, row) in m.dates.iter().zip(&m.prices) {
-        let k = if d.to_string().as_str() > "2023-06-30" { if d.to_string().as_str() < "2023-09-01" { 0.7 } else { 1.3 } } else { 1.0 };
-        text.push_str(&format!("{d},{:.6},{:.6},{:.6}\n", row[0] * k, row[1], row[2] / k));
+        let k = if d.to_string().as_str() > "2023-06-30" {
+            if d.to_string().as_str() < "2023-09-01" {
+                0.7
+            } else {
+                1.3
+            }
+        } else {
+            1.0
+        };
+        text.push_str(&format!(
+            "{d},{:.6},{:.6},{:.6}\n",
+            row[0] * k,
+            row[1],
+            row[2] / k
+        ));
     }
     f.write("data/prices.csv", &text);
     let ran = f.run(&["run", "fund.yaml", "--quiet"]);
-    let after = json(&std::path::PathBuf::from(ran.stdout.lines().last().unwrap()).join("results.json"));
+    let after =
+        json(&std::path::PathBuf::from(ran.stdout.lines().last().unwrap()).join("results.json"));
     for d in ["2022-12-30", "2023-03-31", "2023-06-30"] {
-        assert_eq!(backtest_weights(&before, d), backtest_weights(&after, d), "weights chosen at {d} changed");
+        assert_eq!(
+            backtest_weights(&before, d),
+            backtest_weights(&after, d),
+            "weights chosen at {d} changed"
+        );
     }
     // The change is visible later, so the check above could have failed.
-    assert_ne!(backtest_weights(&before, "2023-09-29"), backtest_weights(&after, "2023-09-29"));
+    assert_ne!(
+        backtest_weights(&before, "2023-09-29"),
+        backtest_weights(&after, "2023-09-29")
+    );
     let k = &bt["kupiec"];
     assert!(k["statistic"].as_f64().unwrap() >= 0.0 && k["p_value"].as_f64().unwrap() <= 1.0);
 }

@@ -146,7 +146,8 @@ cases!(
 
 #[test]
 fn every_corpus_folder_has_its_test_and_there_are_at_least_forty() {
-    let mut folders: Vec<String> = std::fs::read_dir(corpus()).unwrap()
+    let mut folders: Vec<String> = std::fs::read_dir(corpus())
+        .unwrap()
         .map(|e| e.unwrap())
         .filter(|e| e.file_type().unwrap().is_dir())
         .map(|e| e.file_name().to_string_lossy().into_owned())
@@ -155,15 +156,25 @@ fn every_corpus_folder_has_its_test_and_there_are_at_least_forty() {
     folders.sort();
     let mut listed: Vec<String> = CASES.iter().map(|s| s.to_string()).collect();
     listed.sort();
-    assert_eq!(folders, listed, "every folder of tests/fixtures/bad needs a line in cases!(…) and the reverse");
-    assert!(listed.len() >= 40, "the issue asks for at least 40 cases, found {}", listed.len());
+    assert_eq!(
+        folders, listed,
+        "every folder of tests/fixtures/bad needs a line in cases!(…) and the reverse"
+    );
+    assert!(
+        listed.len() >= 40,
+        "the issue asks for at least 40 cases, found {}",
+        listed.len()
+    );
 }
 
 #[test]
 fn the_good_fund_the_cases_break_is_valid() {
     let dir = tempfile::tempdir().unwrap();
     copy_dir(&corpus().join("_good"), &dir.path().join("_good"));
-    let ran = run(dir.path(), &["run", "_good/fund.yaml", "--quiet", "--out", "out"]);
+    let ran = run(
+        dir.path(),
+        &["run", "_good/fund.yaml", "--quiet", "--out", "out"],
+    );
     assert_eq!(ran.code, 0, "{}", ran.stderr);
     assert!(find(dir.path(), &|p| p.ends_with("results.json")).is_some());
 }
@@ -176,13 +187,22 @@ struct Ran {
 }
 
 fn run(dir: &Path, args: &[&str]) -> Ran {
-    let out = Command::new(env!("CARGO_BIN_EXE_tailpack")).args(args).current_dir(dir).output().expect("binary runs");
-    Ran { code: out.status.code().unwrap_or(-1), stdout: String::from_utf8_lossy(&out.stdout).into(), stderr: String::from_utf8_lossy(&out.stderr).into() }
+    let out = Command::new(env!("CARGO_BIN_EXE_tailpack"))
+        .args(args)
+        .current_dir(dir)
+        .output()
+        .expect("binary runs");
+    Ran {
+        code: out.status.code().unwrap_or(-1),
+        stdout: String::from_utf8_lossy(&out.stdout).into(),
+        stderr: String::from_utf8_lossy(&out.stderr).into(),
+    }
 }
 
 fn run_case(name: &str) {
     let text = std::fs::read_to_string(corpus().join(name).join("expect.yaml")).unwrap();
-    let e: Expect = serde_yaml_ng::from_str(&text).unwrap_or_else(|err| panic!("{name}/expect.yaml: {err}"));
+    let e: Expect =
+        serde_yaml_ng::from_str(&text).unwrap_or_else(|err| panic!("{name}/expect.yaml: {err}"));
     let tmp = tempfile::tempdir().unwrap();
     let root = tmp.path();
     copy_dir(&corpus().join("_good"), &root.join("_good"));
@@ -198,9 +218,15 @@ fn run_case(name: &str) {
     }
     args.extend(e.args.iter().map(String::as_str));
     let ran = run(root, &args);
-    let shown = format!("case {name} ({}):\nexit {}\nstdout: {}\nstderr: {}", e.what, ran.code, ran.stdout, ran.stderr);
+    let shown = format!(
+        "case {name} ({}):\nexit {}\nstdout: {}\nstderr: {}",
+        e.what, ran.code, ran.stdout, ran.stderr
+    );
     assert_eq!(ran.code, e.exit, "exit code; {shown}");
-    assert!(!ran.stderr.contains("panicked") && !ran.stdout.contains("panicked"), "a panic; {shown}");
+    assert!(
+        !ran.stderr.contains("panicked") && !ran.stdout.contains("panicked"),
+        "a panic; {shown}"
+    );
     if e.exit == 0 {
         passed(name, &e, root, &ran, &shown);
     } else {
@@ -210,39 +236,90 @@ fn run_case(name: &str) {
 
 /// An error: file, place and fragments named, the message short, no pack anywhere.
 fn failed(name: &str, e: &Expect, root: &Path, ran: &Ran, needles: &[String], shown: &str) {
-    let file = e.file.as_ref().unwrap_or_else(|| panic!("{name}: an error case must say which file the message names"));
-    let place = e.place.as_ref().unwrap_or_else(|| panic!("{name}: an error case must say which place the message names"));
+    let file = e
+        .file
+        .as_ref()
+        .unwrap_or_else(|| panic!("{name}: an error case must say which file the message names"));
+    let place = e
+        .place
+        .as_ref()
+        .unwrap_or_else(|| panic!("{name}: an error case must say which place the message names"));
     let file = format!("{name}/{file}");
-    assert!(ran.stderr.contains(&file), "the message must name the file `{file}`; {shown}");
-    assert!(ran.stderr.contains(place.as_str()), "the message must name the place `{place}`; {shown}");
+    assert!(
+        ran.stderr.contains(&file),
+        "the message must name the file `{file}`; {shown}"
+    );
+    assert!(
+        ran.stderr.contains(place.as_str()),
+        "the message must name the place `{place}`; {shown}"
+    );
     for n in needles {
-        assert!(ran.stderr.contains(n.as_str()), "the message must say `{n}`; {shown}");
+        assert!(
+            ran.stderr.contains(n.as_str()),
+            "the message must say `{n}`; {shown}"
+        );
     }
-    assert!(ran.stderr.len() <= MAX_STDERR, "the message must stay short ({} bytes); {}", ran.stderr.len(), &shown[..shown.len().min(3000)]);
+    assert!(
+        ran.stderr.len() <= MAX_STDERR,
+        "the message must stay short ({} bytes); {}",
+        ran.stderr.len(),
+        &shown[..shown.len().min(3000)]
+    );
     let pack = find(root, &|p| {
-        let n = p.file_name().map(|n| n.to_string_lossy().into_owned()).unwrap_or_default();
+        let n = p
+            .file_name()
+            .map(|n| n.to_string_lossy().into_owned())
+            .unwrap_or_default();
         n.starts_with(".partial-") || n == "results.json" || n == "pack.pdf"
     });
-    assert!(pack.is_none(), "no pack folder may exist after an error, found {:?}; {shown}", pack);
+    assert!(
+        pack.is_none(),
+        "no pack folder may exist after an error, found {:?}; {shown}",
+        pack
+    );
 }
 
 /// A run that must go through: its warnings printed, one pack written, and the valid fund's results where
 /// the case only changes the form of the input.
 fn passed(name: &str, e: &Expect, root: &Path, ran: &Ran, shown: &str) {
     for n in &e.stdout {
-        assert!(ran.stdout.contains(n.as_str()), "stdout must say `{n}`; {shown}");
+        assert!(
+            ran.stdout.contains(n.as_str()),
+            "stdout must say `{n}`; {shown}"
+        );
     }
-    let dir = PathBuf::from(ran.stdout.lines().last().expect("stdout names the pack folder"));
-    assert!(dir.join("results.json").is_file() && dir.join("pack.pdf").is_file(), "a complete pack; {shown}");
+    let dir = PathBuf::from(
+        ran.stdout
+            .lines()
+            .last()
+            .expect("stdout names the pack folder"),
+    );
+    assert!(
+        dir.join("results.json").is_file() && dir.join("pack.pdf").is_file(),
+        "a complete pack; {shown}"
+    );
     if e.same_as_good {
-        let good = run(root, &["run", "_good/fund.yaml", "--quiet", "--out", "out-good"]);
+        let good = run(
+            root,
+            &["run", "_good/fund.yaml", "--quiet", "--out", "out-good"],
+        );
         assert_eq!(good.code, 0, "{}", good.stderr);
         let gdir = PathBuf::from(good.stdout.lines().last().unwrap());
-        let (a, b) = (super::common::json(&dir.join("results.json")), super::common::json(&gdir.join("results.json")));
+        let (a, b) = (
+            super::common::json(&dir.join("results.json")),
+            super::common::json(&gdir.join("results.json")),
+        );
         for key in ["models", "current", "constraints"] {
-            assert_eq!(a[key], b[key], "case {name}: results.json `{key}` must equal the valid fund's");
+            assert_eq!(
+                a[key], b[key],
+                "case {name}: results.json `{key}` must equal the valid fund's"
+            );
         }
-        assert_eq!(std::fs::read(dir.join("scenarios.csv")).unwrap(), std::fs::read(gdir.join("scenarios.csv")).unwrap(), "case {name}: the same scenarios");
+        assert_eq!(
+            std::fs::read(dir.join("scenarios.csv")).unwrap(),
+            std::fs::read(gdir.join("scenarios.csv")).unwrap(),
+            "case {name}: the same scenarios"
+        );
     }
 }
 
@@ -262,7 +339,10 @@ fn generate(what: &str, dir: &Path) -> Vec<String> {
         }
         "huge_header" => {
             let names: Vec<String> = (0..300_000).map(|i| format!("AS{i:07}")).collect();
-            let text = format!("# generated: one header line of 3 MB\ndate,{}\n", names.join(","));
+            let text = format!(
+                "# generated: one header line of 3 MB\ndate,{}\n",
+                names.join(",")
+            );
             assert!(text.len() > 3_000_000);
             std::fs::write(dir.join("prices.csv"), text).unwrap();
             vec![]
@@ -270,20 +350,44 @@ fn generate(what: &str, dir: &Path) -> Vec<String> {
         "parquet_wrong_types" => {
             let (dates, cols) = good_columns(&good);
             let flags: Vec<bool> = cols[1].iter().map(|p| *p > 50.0).collect();
-            write_parquet(&dir.join("prices.parquet"), date_column(&dates), vec![("AS01", Some(cols[0].clone()), None), ("AS02", None, Some(flags)), ("AS03", Some(cols[2].clone()), None)]);
+            write_parquet(
+                &dir.join("prices.parquet"),
+                date_column(&dates),
+                vec![
+                    ("AS01", Some(cols[0].clone()), None),
+                    ("AS02", None, Some(flags)),
+                    ("AS03", Some(cols[2].clone()), None),
+                ],
+            );
             vec![]
         }
         "parquet_bad_date" => {
             let (mut dates, cols) = good_columns(&good);
             dates[2] = "03.01.2024".into();
             let date = polars::prelude::Column::new("date".into(), dates);
-            write_parquet(&dir.join("prices.parquet"), date, vec![("AS01", Some(cols[0].clone()), None), ("AS02", Some(cols[1].clone()), None), ("AS03", Some(cols[2].clone()), None)]);
+            write_parquet(
+                &dir.join("prices.parquet"),
+                date,
+                vec![
+                    ("AS01", Some(cols[0].clone()), None),
+                    ("AS02", Some(cols[1].clone()), None),
+                    ("AS03", Some(cols[2].clone()), None),
+                ],
+            );
             vec![]
         }
         "parquet_truncated" => {
             let (dates, cols) = good_columns(&good);
             let path = dir.join("prices.parquet");
-            write_parquet(&path, date_column(&dates), vec![("AS01", Some(cols[0].clone()), None), ("AS02", Some(cols[1].clone()), None), ("AS03", Some(cols[2].clone()), None)]);
+            write_parquet(
+                &path,
+                date_column(&dates),
+                vec![
+                    ("AS01", Some(cols[0].clone()), None),
+                    ("AS02", Some(cols[1].clone()), None),
+                    ("AS03", Some(cols[2].clone()), None),
+                ],
+            );
             let bytes = std::fs::read(&path).unwrap();
             let half = bytes.len() / 2;
             std::fs::write(&path, &bytes[..half]).unwrap();
@@ -296,19 +400,32 @@ fn generate(what: &str, dir: &Path) -> Vec<String> {
 
 /// The valid fund's dates and its three price columns.
 fn good_columns(text: &str) -> (Vec<String>, Vec<Vec<f64>>) {
-    let rows: Vec<Vec<&str>> = text.lines().filter(|l| !l.starts_with('#')).skip(1).map(|l| l.split(',').collect()).collect();
+    let rows: Vec<Vec<&str>> = text
+        .lines()
+        .filter(|l| !l.starts_with('#'))
+        .skip(1)
+        .map(|l| l.split(',').collect())
+        .collect();
     let dates = rows.iter().map(|r| r[0].to_string()).collect();
-    let cols = (1..4).map(|c| rows.iter().map(|r| r[c].parse().unwrap()).collect()).collect();
+    let cols = (1..4)
+        .map(|c| rows.iter().map(|r| r[c].parse().unwrap()).collect())
+        .collect();
     (dates, cols)
 }
 
 fn date_column(dates: &[String]) -> polars::prelude::Column {
     use polars::prelude::*;
-    Column::new("date".into(), dates.to_vec()).cast(&DataType::Date).unwrap()
+    Column::new("date".into(), dates.to_vec())
+        .cast(&DataType::Date)
+        .unwrap()
 }
 
 /// Writes a Parquet file: the date column, then each asset as Float64 or Boolean values.
-fn write_parquet(path: &Path, date: polars::prelude::Column, assets: Vec<(&str, Option<Vec<f64>>, Option<Vec<bool>>)>) {
+fn write_parquet(
+    path: &Path,
+    date: polars::prelude::Column,
+    assets: Vec<(&str, Option<Vec<f64>>, Option<Vec<bool>>)>,
+) {
     use polars::prelude::*;
     let mut cols = vec![date];
     for (name, f, b) in assets {
@@ -319,7 +436,9 @@ fn write_parquet(path: &Path, date: polars::prelude::Column, assets: Vec<(&str, 
         });
     }
     let mut df = DataFrame::new_infer_height(cols).unwrap();
-    ParquetWriter::new(std::fs::File::create(path).unwrap()).finish(&mut df).unwrap();
+    ParquetWriter::new(std::fs::File::create(path).unwrap())
+        .finish(&mut df)
+        .unwrap();
 }
 
 fn copy_dir(from: &Path, to: &Path) {

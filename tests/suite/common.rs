@@ -18,7 +18,9 @@ pub struct Fixture {
 
 impl Fixture {
     pub fn new() -> Self {
-        Fixture { dir: tempfile::tempdir().expect("tempdir") }
+        Fixture {
+            dir: tempfile::tempdir().expect("tempdir"),
+        }
     }
 
     pub fn path(&self, name: &str) -> PathBuf {
@@ -35,8 +37,16 @@ impl Fixture {
 
     /// Runs the tailpack binary with `args`, in the fixture folder.
     pub fn run(&self, args: &[&str]) -> Ran {
-        let out = Command::new(env!("CARGO_BIN_EXE_tailpack")).args(args).current_dir(self.dir.path()).output().expect("binary runs");
-        Ran { code: out.status.code().unwrap_or(-1), stdout: String::from_utf8_lossy(&out.stdout).into(), stderr: String::from_utf8_lossy(&out.stderr).into() }
+        let out = Command::new(env!("CARGO_BIN_EXE_tailpack"))
+            .args(args)
+            .current_dir(self.dir.path())
+            .output()
+            .expect("binary runs");
+        Ran {
+            code: out.status.code().unwrap_or(-1),
+            stdout: String::from_utf8_lossy(&out.stdout).into(),
+            stderr: String::from_utf8_lossy(&out.stderr).into(),
+        }
     }
 
     /// A complete small fund: `market` prices, metadata, holdings, and a config with `extra` YAML appended
@@ -52,7 +62,10 @@ impl Fixture {
     pub fn entries(&self, rel: &str) -> Vec<String> {
         match std::fs::read_dir(self.path(rel)) {
             // Hidden entries (the archive lock) are not packs.
-            Ok(rd) => rd.map(|e| e.unwrap().file_name().to_string_lossy().into_owned()).filter(|n| !n.starts_with('.')).collect(),
+            Ok(rd) => rd
+                .map(|e| e.unwrap().file_name().to_string_lossy().into_owned())
+                .filter(|n| !n.starts_with('.'))
+                .collect(),
             Err(_) => vec![],
         }
     }
@@ -60,7 +73,9 @@ impl Fixture {
 
 /// A minimal config for [`Market`] fixtures; `tail` is appended verbatim.
 pub fn config(tail: &str) -> String {
-    format!("fund:\n  name: Test Fund (fictional)\ndata:\n  prices: data/prices.csv\n  assets: data/assets.csv\n  holdings: data/holdings.csv\nscenarios:\n  horizon: 5\n  lookback_years: 2\noutput:\n  root: out\n{tail}")
+    format!(
+        "fund:\n  name: Test Fund (fictional)\ndata:\n  prices: data/prices.csv\n  assets: data/assets.csv\n  holdings: data/holdings.csv\nscenarios:\n  horizon: 5\n  lookback_years: 2\noutput:\n  root: out\n{tail}"
+    )
 }
 
 /// A synthetic market: business days, correlated random-walk prices, classes and holdings.
@@ -76,8 +91,18 @@ impl Market {
     /// `n` assets over business days from `start` to `end`, deterministic for `seed`; asset i has daily
     /// volatility 0.004 + 0.002·i and drift 0.0002 + 0.00005·i, classes alternate equity and bond.
     pub fn new(n: usize, start: &str, end: &str, seed: u64) -> Self {
-        let classes = (0..n).map(|i| if i % 2 == 0 { "equity".into() } else { "bond".into() }).collect();
-        Self::generate(n, start, end, seed, classes, |i| (0.004 + 0.002 * i as f64, 0.0002 + 0.00005 * i as f64))
+        let classes = (0..n)
+            .map(|i| {
+                if i % 2 == 0 {
+                    "equity".into()
+                } else {
+                    "bond".into()
+                }
+            })
+            .collect();
+        Self::generate(n, start, end, seed, classes, |i| {
+            (0.004 + 0.002 * i as f64, 0.0002 + 0.00005 * i as f64)
+        })
     }
 
     /// A broad universe of `n` assets whose volatility and drift cycle over ten levels (so prices stay
@@ -85,12 +110,27 @@ impl Market {
     pub fn broad(n: usize, start: &str, end: &str, seed: u64) -> Self {
         const CLASSES: [&str; 5] = ["equity", "government", "credit", "property", "cash"];
         let classes = (0..n).map(|i| CLASSES[i % 5].to_string()).collect();
-        Self::generate(n, start, end, seed, classes, |i| (0.003 + 0.001 * (i % 10) as f64, 0.0001 + 0.00003 * (i % 10) as f64))
+        Self::generate(n, start, end, seed, classes, |i| {
+            (
+                0.003 + 0.001 * (i % 10) as f64,
+                0.0001 + 0.00003 * (i % 10) as f64,
+            )
+        })
     }
 
-    fn generate(n: usize, start: &str, end: &str, seed: u64, classes: Vec<String>, params: impl Fn(usize) -> (f64, f64)) -> Self {
+    fn generate(
+        n: usize,
+        start: &str,
+        end: &str,
+        seed: u64,
+        classes: Vec<String>,
+        params: impl Fn(usize) -> (f64, f64),
+    ) -> Self {
         let mut rng = rand::rngs::StdRng::seed_from_u64(seed);
-        let (mut d, end) = (start.parse::<chrono::NaiveDate>().unwrap(), end.parse::<chrono::NaiveDate>().unwrap());
+        let (mut d, end) = (
+            start.parse::<chrono::NaiveDate>().unwrap(),
+            end.parse::<chrono::NaiveDate>().unwrap(),
+        );
         let mut dates = vec![];
         while d <= end {
             use chrono::Datelike;
@@ -111,7 +151,12 @@ impl Market {
             }
             prices.push(p.clone());
         }
-        Market { dates, assets, classes, prices }
+        Market {
+            dates,
+            assets,
+            classes,
+            prices,
+        }
     }
 
     pub fn wide_csv(&self) -> String {
@@ -173,15 +218,30 @@ pub fn repo() -> PathBuf {
 
 /// The text of a PDF as poppler's `pdftotext -layout` extracts it (an extractor outside the project).
 pub fn pdf_text(pdf: &Path) -> String {
-    let out = Command::new("pdftotext").arg("-layout").arg(pdf).arg("-").output().expect("pdftotext (poppler-utils) is installed");
-    assert!(out.status.success(), "pdftotext failed: {}", String::from_utf8_lossy(&out.stderr));
+    let out = Command::new("pdftotext")
+        .arg("-layout")
+        .arg(pdf)
+        .arg("-")
+        .output()
+        .expect("pdftotext (poppler-utils) is installed");
+    assert!(
+        out.status.success(),
+        "pdftotext failed: {}",
+        String::from_utf8_lossy(&out.stderr)
+    );
     String::from_utf8(out.stdout).expect("pdftotext prints UTF-8")
 }
 
 /// The page count of a PDF as poppler's `pdfinfo` reports it.
 pub fn pdf_pages(pdf: &Path) -> usize {
-    let out = Command::new("pdfinfo").arg(pdf).output().expect("pdfinfo (poppler-utils) is installed");
+    let out = Command::new("pdfinfo")
+        .arg(pdf)
+        .output()
+        .expect("pdfinfo (poppler-utils) is installed");
     let text = String::from_utf8_lossy(&out.stdout);
-    let line = text.lines().find(|l| l.starts_with("Pages:")).unwrap_or_else(|| panic!("pdfinfo printed no page count: {text}"));
+    let line = text
+        .lines()
+        .find(|l| l.starts_with("Pages:"))
+        .unwrap_or_else(|| panic!("pdfinfo printed no page count: {text}"));
     line["Pages:".len()..].trim().parse().expect("a page count")
 }

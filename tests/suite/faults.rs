@@ -13,9 +13,26 @@ use tailpack::scenarios::ScenarioSet;
 
 fn unbounded_problem_outcome(backend: Backend) -> models::Outcome {
     // Two assets, three scenarios; means 0.02 and 0.00 differ, so the LP is unbounded.
-    let set = ScenarioSet::from_matrix(vec!["AS01".into(), "AS02".into()], vec![0.03, 0.01, 0.02, -0.01, 0.01, 0.0], vec![1.0 / 3.0; 3]).unwrap();
-    let fs = FeasibleSet { lower: vec![f64::NEG_INFINITY; 2], upper: vec![f64::INFINITY; 2], groups: vec![], turnover_max: None, current: None };
-    let p = Problem { set: &set, mu: set.mean(), confidence: 0.9, feasible: &fs, backend };
+    let set = ScenarioSet::from_matrix(
+        vec!["AS01".into(), "AS02".into()],
+        vec![0.03, 0.01, 0.02, -0.01, 0.01, 0.0],
+        vec![1.0 / 3.0; 3],
+    )
+    .unwrap();
+    let fs = FeasibleSet {
+        lower: vec![f64::NEG_INFINITY; 2],
+        upper: vec![f64::INFINITY; 2],
+        groups: vec![],
+        turnover_max: None,
+        current: None,
+    };
+    let p = Problem {
+        set: &set,
+        mu: set.mean(),
+        confidence: 0.9,
+        feasible: &fs,
+        backend,
+    };
     models::outcome(&p, p.max_return(None), None, None, || "infeasible".into())
 }
 
@@ -23,9 +40,20 @@ fn unbounded_problem_outcome(backend: Backend) -> models::Outcome {
 fn a_solver_without_an_optimum_is_reported_as_solver_error_with_its_words() {
     for backend in [Backend::Highs, Backend::Clarabel] {
         let o = unbounded_problem_outcome(backend);
-        assert_eq!(o.status, Status::SolverError, "{backend:?}: {:?}", o.message);
+        assert_eq!(
+            o.status,
+            Status::SolverError,
+            "{backend:?}: {:?}",
+            o.message
+        );
         let msg = o.message.unwrap_or_default();
-        assert!(msg.contains("unbounded"), "{backend:?}: the message must say what went wrong: {msg}");
-        assert!(o.weights.is_none(), "{backend:?}: no portfolio is reported without an optimum");
+        assert!(
+            msg.contains("unbounded"),
+            "{backend:?}: the message must say what went wrong: {msg}"
+        );
+        assert!(
+            o.weights.is_none(),
+            "{backend:?}: no portfolio is reported without an optimum"
+        );
     }
 }

@@ -3,7 +3,7 @@
 
 use super::common::{normal, repo};
 use rand::{RngExt, SeedableRng};
-use serde_json::{json, Value};
+use serde_json::{Value, json};
 use tailpack::config::Backend;
 use tailpack::models::{self, FeasibleSet, Group, Problem};
 use tailpack::risk::cvar_of;
@@ -30,21 +30,52 @@ fn instance(seed: u64) -> Instance {
             returns.push(0.002 + 0.001 * i as f64 + 0.02 * beta * f + 0.01 * normal(&mut rng));
         }
     }
-    let probs = if seed % 2 == 0 { vec![1.0 / s as f64; s] } else { tailpack::scenarios::decayed((0..s).rev().map(|a| a as f64), 60.0) };
-    let set = ScenarioSet::from_matrix((0..n).map(|i| format!("A{i}")).collect(), returns, probs).unwrap();
+    let probs = if seed % 2 == 0 {
+        vec![1.0 / s as f64; s]
+    } else {
+        tailpack::scenarios::decayed((0..s).rev().map(|a| a as f64), 60.0)
+    };
+    let set = ScenarioSet::from_matrix((0..n).map(|i| format!("A{i}")).collect(), returns, probs)
+        .unwrap();
     let upper: Vec<f64> = (0..n).map(|i| if i % 3 == 0 { 0.3 } else { 0.6 }).collect();
     let mut lower = vec![0.0; n];
     lower[0] = 0.05;
-    let groups = vec![Group { name: "g".into(), members: vec![n - 1, n - 2], min: 0.1, max: 0.5 }];
+    let groups = vec![Group {
+        name: "g".into(),
+        members: vec![n - 1, n - 2],
+        min: 0.1,
+        max: 0.5,
+    }];
     let current: Vec<f64> = vec![1.0 / n as f64; n];
     let turnover = (seed % 3 != 0).then_some(0.4 + 0.1 * (seed % 4) as f64);
-    let fs = FeasibleSet { lower, upper, groups, turnover_max: turnover, current: Some(current) };
+    let fs = FeasibleSet {
+        lower,
+        upper,
+        groups,
+        turnover_max: turnover,
+        current: Some(current),
+    };
     let c = [0.9, 0.95, 0.975][seed as usize % 3];
-    let p = Problem { set: &set, mu: set.mean(), confidence: c, feasible: &fs, backend: Backend::Highs };
+    let p = Problem {
+        set: &set,
+        mu: set.mean(),
+        confidence: c,
+        feasible: &fs,
+        backend: Backend::Highs,
+    };
     let min_cvar = p.min_cvar(None).unwrap().objective;
     let max_ret = p.max_return(None).unwrap().objective;
-    let min_ret = p.min_cvar(None).map(|s| models::dot(&p.mu, &s.weights)).unwrap();
-    Instance { cap: min_cvar * 1.3, floor: min_ret + 0.5 * (max_ret - min_ret), set, fs, c }
+    let min_ret = p
+        .min_cvar(None)
+        .map(|s| models::dot(&p.mu, &s.weights))
+        .unwrap();
+    Instance {
+        cap: min_cvar * 1.3,
+        floor: min_ret + 0.5 * (max_ret - min_ret),
+        set,
+        fs,
+        c,
+    }
 }
 
 fn to_json(i: &Instance) -> Value {
@@ -64,14 +95,24 @@ fn reference(i: &Instance) -> Value {
     let input = dir.path().join("instance.json");
     std::fs::write(&input, to_json(i).to_string()).unwrap();
     let script = repo().join("tests/reference/cvar_reference.py");
-    let out = std::process::Command::new("python3").arg(&script).arg(&input).output()
+    let out = std::process::Command::new("python3")
+        .arg(&script)
+        .arg(&input)
+        .output()
         .expect("python3 must be installed (see README prerequisites)");
-    assert!(out.status.success(), "reference solver failed (is scipy installed? `python3 -m pip install -r tests/reference/requirements.txt`): {}", String::from_utf8_lossy(&out.stderr));
+    assert!(
+        out.status.success(),
+        "reference solver failed (is scipy installed? `python3 -m pip install -r tests/reference/requirements.txt`): {}",
+        String::from_utf8_lossy(&out.stderr)
+    );
     serde_json::from_slice(&out.stdout).unwrap()
 }
 
 fn close(a: f64, b: f64, tol: f64, what: &str) {
-    assert!((a - b).abs() <= tol * (1.0 + b.abs()), "{what}: tailpack {a} vs reference {b}");
+    assert!(
+        (a - b).abs() <= tol * (1.0 + b.abs()),
+        "{what}: tailpack {a} vs reference {b}"
+    );
 }
 
 #[test]
@@ -79,17 +120,48 @@ fn optima_match_scipy_highs_on_random_instances() {
     for seed in 0..8u64 {
         let i = instance(seed);
         let r = reference(&i);
-        let p = Problem { set: &i.set, mu: i.set.mean(), confidence: i.c, feasible: &i.fs, backend: Backend::Highs };
+        let p = Problem {
+            set: &i.set,
+            mu: i.set.mean(),
+            confidence: i.c,
+            feasible: &i.fs,
+            backend: Backend::Highs,
+        };
         let mr = p.max_return(Some(i.cap)).unwrap();
         assert_eq!(r["max_return"]["status"], "optimal");
-        close(mr.objective, r["max_return"]["objective"].as_f64().unwrap(), 1e-7, &format!("seed {seed} max_return"));
+        close(
+            mr.objective,
+            r["max_return"]["objective"].as_f64().unwrap(),
+            1e-7,
+            &format!("seed {seed} max_return"),
+        );
         let mc = p.min_cvar(Some(i.floor)).unwrap();
-        close(mc.objective, r["min_cvar"]["objective"].as_f64().unwrap(), 1e-7, &format!("seed {seed} min_cvar"));
+        close(
+            mc.objective,
+            r["min_cvar"]["objective"].as_f64().unwrap(),
+            1e-7,
+            &format!("seed {seed} min_cvar"),
+        );
         let ratio = p.max_ratio().unwrap();
         let got = models::dot(&p.mu, &ratio.weights) / cvar_of(&i.set, &ratio.weights, i.c);
-        close(got, r["max_ratio"]["objective"].as_f64().unwrap(), 1e-6, &format!("seed {seed} max_ratio (Dinkelbach reference)"));
-        close(ratio.objective, got, 1e-7, &format!("seed {seed} Charnes–Cooper objective equals the ratio"));
-        close(p.min_cvar(None).unwrap().objective, r["min_cvar_over_x"]["objective"].as_f64().unwrap(), 1e-7, "min CVaR over X");
+        close(
+            got,
+            r["max_ratio"]["objective"].as_f64().unwrap(),
+            1e-6,
+            &format!("seed {seed} max_ratio (Dinkelbach reference)"),
+        );
+        close(
+            ratio.objective,
+            got,
+            1e-7,
+            &format!("seed {seed} Charnes–Cooper objective equals the ratio"),
+        );
+        close(
+            p.min_cvar(None).unwrap().objective,
+            r["min_cvar_over_x"]["objective"].as_f64().unwrap(),
+            1e-7,
+            "min CVaR over X",
+        );
         // Every reported optimum satisfies its constraints (checked in code too, see models::verify).
         assert!(models::verify(&p, &mr.weights, Some(i.cap), None) < 1e-7);
         assert!(models::verify(&p, &mc.weights, None, Some(i.floor)) < 1e-7);
@@ -100,13 +172,25 @@ fn optima_match_scipy_highs_on_random_instances() {
 #[test]
 fn infeasible_cap_and_floor_agree_with_scipy() {
     let mut i = instance(3);
-    let p = Problem { set: &i.set, mu: i.set.mean(), confidence: i.c, feasible: &i.fs, backend: Backend::Highs };
+    let p = Problem {
+        set: &i.set,
+        mu: i.set.mean(),
+        confidence: i.c,
+        feasible: &i.fs,
+        backend: Backend::Highs,
+    };
     let min_cvar = p.min_cvar(None).unwrap().objective;
     let max_ret = p.max_return(None).unwrap().objective;
     i.cap = 0.5 * min_cvar;
     i.floor = max_ret + 0.01;
     let r = reference(&i);
-    let p = Problem { set: &i.set, mu: i.set.mean(), confidence: i.c, feasible: &i.fs, backend: Backend::Highs };
+    let p = Problem {
+        set: &i.set,
+        mu: i.set.mean(),
+        confidence: i.c,
+        feasible: &i.fs,
+        backend: Backend::Highs,
+    };
     assert!(p.max_return(Some(i.cap)).is_err());
     assert!(p.min_cvar(Some(i.floor)).is_err());
     assert_eq!(r["max_return"]["status"], "infeasible");
@@ -131,30 +215,74 @@ fn three_assets_beat_or_match_every_grid_point() {
     // must come close to it (the grid's resolution bounds the gap).
     let mut rng = rand::rngs::StdRng::seed_from_u64(99);
     let s = 120;
-    let returns: Vec<f64> = (0..s * 3).map(|j| 0.004 * (j % 3) as f64 + 0.02 * (1.0 + (j % 3) as f64) * normal(&mut rng)).collect();
-    let set = ScenarioSet::from_matrix(vec!["A".into(), "B".into(), "C".into()], returns, vec![1.0 / s as f64; s]).unwrap();
-    let fs = FeasibleSet { lower: vec![0.0; 3], upper: vec![1.0; 3], groups: vec![], turnover_max: None, current: None };
+    let returns: Vec<f64> = (0..s * 3)
+        .map(|j| 0.004 * (j % 3) as f64 + 0.02 * (1.0 + (j % 3) as f64) * normal(&mut rng))
+        .collect();
+    let set = ScenarioSet::from_matrix(
+        vec!["A".into(), "B".into(), "C".into()],
+        returns,
+        vec![1.0 / s as f64; s],
+    )
+    .unwrap();
+    let fs = FeasibleSet {
+        lower: vec![0.0; 3],
+        upper: vec![1.0; 3],
+        groups: vec![],
+        turnover_max: None,
+        current: None,
+    };
     let c = 0.9;
-    let p = Problem { set: &set, mu: set.mean(), confidence: c, feasible: &fs, backend: Backend::Highs };
-    let grid: Vec<([f64; 3], f64, f64)> = simplex_grid(0.005).into_iter()
-        .map(|x| (x, models::dot(&p.mu, &x), cvar_of(&set, &x, c))).collect();
+    let p = Problem {
+        set: &set,
+        mu: set.mean(),
+        confidence: c,
+        feasible: &fs,
+        backend: Backend::Highs,
+    };
+    let grid: Vec<([f64; 3], f64, f64)> = simplex_grid(0.005)
+        .into_iter()
+        .map(|x| (x, models::dot(&p.mu, &x), cvar_of(&set, &x, c)))
+        .collect();
     let min_cvar = p.min_cvar(None).unwrap().objective;
     let cap = min_cvar * 1.5;
     let lp = p.max_return(Some(cap)).unwrap().objective;
-    let best = grid.iter().filter(|g| g.2 <= cap).map(|g| g.1).fold(f64::NEG_INFINITY, f64::max);
-    assert!(lp >= best - 1e-12 && lp - best < 2e-4, "max_return LP {lp} vs grid {best}");
+    let best = grid
+        .iter()
+        .filter(|g| g.2 <= cap)
+        .map(|g| g.1)
+        .fold(f64::NEG_INFINITY, f64::max);
+    assert!(
+        lp >= best - 1e-12 && lp - best < 2e-4,
+        "max_return LP {lp} vs grid {best}"
+    );
     let grid_min = grid.iter().map(|g| g.2).fold(f64::INFINITY, f64::min);
-    assert!(min_cvar <= grid_min + 1e-12 && grid_min - min_cvar < 2e-4, "min_cvar LP {min_cvar} vs grid {grid_min}");
+    assert!(
+        min_cvar <= grid_min + 1e-12 && grid_min - min_cvar < 2e-4,
+        "min_cvar LP {min_cvar} vs grid {grid_min}"
+    );
     let ratio = p.max_ratio().unwrap();
     let lp_ratio = models::dot(&p.mu, &ratio.weights) / cvar_of(&set, &ratio.weights, c);
-    let grid_ratio = grid.iter().filter(|g| g.2 > 0.0).map(|g| g.1 / g.2).fold(f64::NEG_INFINITY, f64::max);
-    assert!(lp_ratio >= grid_ratio - 1e-9 && (lp_ratio - grid_ratio) / lp_ratio < 0.01, "max_ratio LP {lp_ratio} vs grid {grid_ratio}");
+    let grid_ratio = grid
+        .iter()
+        .filter(|g| g.2 > 0.0)
+        .map(|g| g.1 / g.2)
+        .fold(f64::NEG_INFINITY, f64::max);
+    assert!(
+        lp_ratio >= grid_ratio - 1e-9 && (lp_ratio - grid_ratio) / lp_ratio < 0.01,
+        "max_ratio LP {lp_ratio} vs grid {grid_ratio}"
+    );
 }
 
 #[test]
 fn max_ratio_dominates_a_fifty_point_min_cvar_frontier_and_backends_agree() {
     let i = instance(5);
-    let p = Problem { set: &i.set, mu: i.set.mean(), confidence: i.c, feasible: &i.fs, backend: Backend::Highs };
+    let p = Problem {
+        set: &i.set,
+        mu: i.set.mean(),
+        confidence: i.c,
+        feasible: &i.fs,
+        backend: Backend::Highs,
+    };
     let ratio = p.max_ratio().unwrap().objective;
     let lo = models::dot(&p.mu, &p.min_cvar(None).unwrap().weights);
     let hi = p.max_return(None).unwrap().objective;
@@ -162,13 +290,35 @@ fn max_ratio_dominates_a_fifty_point_min_cvar_frontier_and_backends_agree() {
         let floor = lo + (hi - lo) * k as f64 / 49.0;
         let s = p.min_cvar(Some(floor)).unwrap();
         let point = models::dot(&p.mu, &s.weights) / s.objective;
-        assert!(ratio >= point - 1e-9, "frontier point {k}: ratio {point} above max_ratio {ratio}");
+        assert!(
+            ratio >= point - 1e-9,
+            "frontier point {k}: ratio {point} above max_ratio {ratio}"
+        );
     }
     // Simplex (HiGHS) and interior point (Clarabel) agree to 1e-6 on every model.
-    let q = Problem { backend: Backend::Clarabel, mu: p.mu.clone(), ..p };
-    close(q.max_ratio().unwrap().objective, ratio, 1e-6, "max_ratio clarabel vs highs");
-    close(q.max_return(Some(i.cap)).unwrap().objective, p.max_return(Some(i.cap)).unwrap().objective, 1e-6, "max_return backends");
-    close(q.min_cvar(Some(i.floor)).unwrap().objective, p.min_cvar(Some(i.floor)).unwrap().objective, 1e-6, "min_cvar backends");
+    let q = Problem {
+        backend: Backend::Clarabel,
+        mu: p.mu.clone(),
+        ..p
+    };
+    close(
+        q.max_ratio().unwrap().objective,
+        ratio,
+        1e-6,
+        "max_ratio clarabel vs highs",
+    );
+    close(
+        q.max_return(Some(i.cap)).unwrap().objective,
+        p.max_return(Some(i.cap)).unwrap().objective,
+        1e-6,
+        "max_return backends",
+    );
+    close(
+        q.min_cvar(Some(i.floor)).unwrap().objective,
+        p.min_cvar(Some(i.floor)).unwrap().objective,
+        1e-6,
+        "min_cvar backends",
+    );
 }
 
 #[test]
@@ -178,21 +328,60 @@ fn hand_worked_models_on_five_scenarios() {
     // + 0.03c; bounds (1, 0.5, 1), group {B, C} ≤ 0.8. Vertices: (1,0,0) ratio 0.8; (0.2,0,0.8) ratio 0.512;
     // (0.5,0.5,0) ratio 14/15; (0.2,0.5,0.3) ratio 0.6867. Hence max_ratio = 14/15 at (0.5, 0.5, 0);
     // max_return with cap 0.02 = 0.0162 at (0.4, 0.5, 0.1); min_cvar with floor 0.0184 = 0.025 at (0.3, 0.5, 0.2).
-    let returns = vec![-0.01, -0.03, -0.08, -0.01, -0.01, -0.04, 0.01, 0.03, 0.06, 0.02, 0.04, 0.08, 0.03, 0.07, 0.13];
-    let set = ScenarioSet::from_matrix(vec!["A".into(), "B".into(), "C".into()], returns, vec![0.2; 5]).unwrap();
-    let fs = FeasibleSet { lower: vec![0.0; 3], upper: vec![1.0, 0.5, 1.0], groups: vec![Group { name: "BC".into(), members: vec![1, 2], min: 0.0, max: 0.8 }], turnover_max: None, current: None };
+    let returns = vec![
+        -0.01, -0.03, -0.08, -0.01, -0.01, -0.04, 0.01, 0.03, 0.06, 0.02, 0.04, 0.08, 0.03, 0.07,
+        0.13,
+    ];
+    let set = ScenarioSet::from_matrix(
+        vec!["A".into(), "B".into(), "C".into()],
+        returns,
+        vec![0.2; 5],
+    )
+    .unwrap();
+    let fs = FeasibleSet {
+        lower: vec![0.0; 3],
+        upper: vec![1.0, 0.5, 1.0],
+        groups: vec![Group {
+            name: "BC".into(),
+            members: vec![1, 2],
+            min: 0.0,
+            max: 0.8,
+        }],
+        turnover_max: None,
+        current: None,
+    };
     for backend in [Backend::Highs, Backend::Clarabel] {
-        let p = Problem { set: &set, mu: set.mean(), confidence: 0.6, feasible: &fs, backend };
-        let tol = if backend == Backend::Highs { 1e-10 } else { 1e-6 };
+        let p = Problem {
+            set: &set,
+            mu: set.mean(),
+            confidence: 0.6,
+            feasible: &fs,
+            backend,
+        };
+        let tol = if backend == Backend::Highs {
+            1e-10
+        } else {
+            1e-6
+        };
         let r = p.max_ratio().unwrap();
-        assert!((r.objective - 14.0 / 15.0).abs() < tol, "{backend:?} ratio {}", r.objective);
-        for (w, e) in r.weights.iter().zip([0.5, 0.5, 0.0]) { assert!((w - e).abs() < tol * 10.0); }
+        assert!(
+            (r.objective - 14.0 / 15.0).abs() < tol,
+            "{backend:?} ratio {}",
+            r.objective
+        );
+        for (w, e) in r.weights.iter().zip([0.5, 0.5, 0.0]) {
+            assert!((w - e).abs() < tol * 10.0);
+        }
         let m = p.max_return(Some(0.02)).unwrap();
         assert!((m.objective - 0.0162).abs() < tol);
-        for (w, e) in m.weights.iter().zip([0.4, 0.5, 0.1]) { assert!((w - e).abs() < tol * 10.0); }
+        for (w, e) in m.weights.iter().zip([0.4, 0.5, 0.1]) {
+            assert!((w - e).abs() < tol * 10.0);
+        }
         let v = p.min_cvar(Some(0.0184)).unwrap();
         assert!((v.objective - 0.025).abs() < tol);
-        for (w, e) in v.weights.iter().zip([0.3, 0.5, 0.2]) { assert!((w - e).abs() < tol * 10.0); }
+        for (w, e) in v.weights.iter().zip([0.3, 0.5, 0.2]) {
+            assert!((w - e).abs() < tol * 10.0);
+        }
     }
 }
 
@@ -201,18 +390,61 @@ fn preconditions_reject_riskless_and_all_losing_universes() {
     // A riskless asset (return 0.001 in every scenario) allowed at 100%: min CVaR over X = −0.001 ≤ 0.
     let mut rng = rand::rngs::StdRng::seed_from_u64(5);
     let s = 100;
-    let returns: Vec<f64> = (0..s).flat_map(|_| [0.001, 0.01 + 0.05 * normal(&mut rng)]).collect();
-    let set = ScenarioSet::from_matrix(vec!["CASH".into(), "RISK".into()], returns, vec![1.0 / s as f64; s]).unwrap();
-    let fs = FeasibleSet { lower: vec![0.0; 2], upper: vec![1.0; 2], groups: vec![], turnover_max: None, current: None };
-    let p = Problem { set: &set, mu: set.mean(), confidence: 0.95, feasible: &fs, backend: Backend::Highs };
-    let pre = models::preconditions(p.min_cvar(None).ok().map(|s| s.objective), p.max_return(None).ok().map(|s| s.objective));
+    let returns: Vec<f64> = (0..s)
+        .flat_map(|_| [0.001, 0.01 + 0.05 * normal(&mut rng)])
+        .collect();
+    let set = ScenarioSet::from_matrix(
+        vec!["CASH".into(), "RISK".into()],
+        returns,
+        vec![1.0 / s as f64; s],
+    )
+    .unwrap();
+    let fs = FeasibleSet {
+        lower: vec![0.0; 2],
+        upper: vec![1.0; 2],
+        groups: vec![],
+        turnover_max: None,
+        current: None,
+    };
+    let p = Problem {
+        set: &set,
+        mu: set.mean(),
+        confidence: 0.95,
+        feasible: &fs,
+        backend: Backend::Highs,
+    };
+    let pre = models::preconditions(
+        p.min_cvar(None).ok().map(|s| s.objective),
+        p.max_return(None).ok().map(|s| s.objective),
+    );
     assert!(!pre.holds);
     assert!(pre.reason.unwrap().contains("minimum CVaR"));
     // Every asset loses in every scenario: max expected return over X < 0.
-    let returns: Vec<f64> = (0..s).flat_map(|_| [-0.01 - 0.01 * rng.random::<f64>(), -0.02 * rng.random::<f64>() - 0.001]).collect();
-    let set = ScenarioSet::from_matrix(vec!["A".into(), "B".into()], returns, vec![1.0 / s as f64; s]).unwrap();
-    let p = Problem { set: &set, mu: set.mean(), confidence: 0.95, feasible: &fs, backend: Backend::Highs };
-    let pre = models::preconditions(p.min_cvar(None).ok().map(|s| s.objective), p.max_return(None).ok().map(|s| s.objective));
+    let returns: Vec<f64> = (0..s)
+        .flat_map(|_| {
+            [
+                -0.01 - 0.01 * rng.random::<f64>(),
+                -0.02 * rng.random::<f64>() - 0.001,
+            ]
+        })
+        .collect();
+    let set = ScenarioSet::from_matrix(
+        vec!["A".into(), "B".into()],
+        returns,
+        vec![1.0 / s as f64; s],
+    )
+    .unwrap();
+    let p = Problem {
+        set: &set,
+        mu: set.mean(),
+        confidence: 0.95,
+        feasible: &fs,
+        backend: Backend::Highs,
+    };
+    let pre = models::preconditions(
+        p.min_cvar(None).ok().map(|s| s.objective),
+        p.max_return(None).ok().map(|s| s.objective),
+    );
     assert!(!pre.holds);
     assert!(pre.reason.unwrap().contains("maximum expected return"));
 }
@@ -224,14 +456,40 @@ fn cutting_planes_reach_the_direct_lp_optimum() {
     use tailpack::models::Method;
     for seed in [2u64, 7] {
         let i = instance(seed);
-        let p = Problem { set: &i.set, mu: i.set.mean(), confidence: i.c, feasible: &i.fs, backend: Backend::Highs };
+        let p = Problem {
+            set: &i.set,
+            mu: i.set.mean(),
+            confidence: i.c,
+            feasible: &i.fs,
+            backend: Backend::Highs,
+        };
         let pairs = [
-            (p.max_return_by(Some(i.cap), Method::Direct).unwrap().objective, p.max_return_by(Some(i.cap), Method::Cuts).unwrap().objective),
-            (p.min_cvar_by(Some(i.floor), Method::Direct).unwrap().objective, p.min_cvar_by(Some(i.floor), Method::Cuts).unwrap().objective),
-            (p.max_ratio_by(Method::Direct).unwrap().objective, p.max_ratio_by(Method::Cuts).unwrap().objective),
+            (
+                p.max_return_by(Some(i.cap), Method::Direct)
+                    .unwrap()
+                    .objective,
+                p.max_return_by(Some(i.cap), Method::Cuts)
+                    .unwrap()
+                    .objective,
+            ),
+            (
+                p.min_cvar_by(Some(i.floor), Method::Direct)
+                    .unwrap()
+                    .objective,
+                p.min_cvar_by(Some(i.floor), Method::Cuts)
+                    .unwrap()
+                    .objective,
+            ),
+            (
+                p.max_ratio_by(Method::Direct).unwrap().objective,
+                p.max_ratio_by(Method::Cuts).unwrap().objective,
+            ),
         ];
         for (k, (direct, cuts)) in pairs.iter().enumerate() {
-            assert!((direct - cuts).abs() <= 1e-7 * direct.abs().max(1e-12), "seed {seed} model {k}: direct {direct} vs cuts {cuts}");
+            assert!(
+                (direct - cuts).abs() <= 1e-7 * direct.abs().max(1e-12),
+                "seed {seed} model {k}: direct {direct} vs cuts {cuts}"
+            );
         }
         let w = p.max_ratio_by(Method::Cuts).unwrap().weights;
         assert!(models::verify(&p, &w, None, None) < 1e-7);

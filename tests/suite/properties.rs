@@ -29,15 +29,32 @@ use tailpack::scenarios::ScenarioSet;
 const TOL: f64 = 1e-10;
 
 fn config(cases: u32, seed: u64) -> Config {
-    Config { cases, rng_seed: RngSeed::Fixed(seed), failure_persistence: None, ..Config::default() }
+    Config {
+        cases,
+        rng_seed: RngSeed::Fixed(seed),
+        failure_persistence: None,
+        ..Config::default()
+    }
 }
 
 /// Losses in ±0.5, optionally on a coarse grid so that ties (atoms at VaR) are common, with equal or
 /// random positive probabilities summing to 1.
 fn losses_and_probs(max_s: usize) -> impl Strategy<Value = (Vec<f64>, Vec<f64>)> {
-    (1..max_s).prop_flat_map(|s| (prop::collection::vec(-0.5f64..0.5, s), prop::collection::vec(0.05f64..1.0, s), any::<bool>(), any::<bool>()))
+    (1..max_s)
+        .prop_flat_map(|s| {
+            (
+                prop::collection::vec(-0.5f64..0.5, s),
+                prop::collection::vec(0.05f64..1.0, s),
+                any::<bool>(),
+                any::<bool>(),
+            )
+        })
         .prop_map(|(l, w, coarse, equal)| {
-            let l = if coarse { l.iter().map(|x| (x * 20.0).round() / 20.0).collect() } else { l };
+            let l = if coarse {
+                l.iter().map(|x| (x * 20.0).round() / 20.0).collect()
+            } else {
+                l
+            };
             (l, probabilities(&w, equal))
         })
 }
@@ -54,7 +71,13 @@ fn probabilities(w: &[f64], equal: bool) -> Vec<f64> {
 /// Levels: the common reporting levels, where k/S boundaries fall exactly on c for equal probabilities,
 /// and anything in between.
 fn level() -> impl Strategy<Value = f64> {
-    prop_oneof![Just(0.9), Just(0.95), Just(0.975), Just(0.99), 0.5f64..0.995]
+    prop_oneof![
+        Just(0.9),
+        Just(0.95),
+        Just(0.975),
+        Just(0.99),
+        0.5f64..0.995
+    ]
 }
 
 fn cvar(l: &[f64], p: &[f64], c: f64) -> f64 {
@@ -63,7 +86,12 @@ fn cvar(l: &[f64], p: &[f64], c: f64) -> f64 {
 
 /// F_c(ℓ) = ℓ + 1/(1−c)·Σ p_k (L_k − ℓ)+ (Rockafellar & Uryasev 2000, eq. 3 for discrete losses).
 fn ru(l: &[f64], p: &[f64], c: f64, ell: f64) -> f64 {
-    ell + l.iter().zip(p).map(|(x, q)| q * (x - ell).max(0.0)).sum::<f64>() / (1.0 - c)
+    ell + l
+        .iter()
+        .zip(p)
+        .map(|(x, q)| q * (x - ell).max(0.0))
+        .sum::<f64>()
+        / (1.0 - c)
 }
 
 proptest! {
@@ -183,17 +211,56 @@ fn instance(seed: u64) -> Instance {
     for _ in 0..s {
         let f = super::common::normal(&mut rng);
         for i in 0..n {
-            returns.push(0.002 + 0.001 * i as f64 + 0.02 * (0.3 + 0.2 * i as f64) * f + 0.01 * super::common::normal(&mut rng));
+            returns.push(
+                0.002
+                    + 0.001 * i as f64
+                    + 0.02 * (0.3 + 0.2 * i as f64) * f
+                    + 0.01 * super::common::normal(&mut rng),
+            );
         }
     }
     let w: Vec<f64> = (0..s).map(|_| 0.1 + rng.random::<f64>()).collect();
-    let set = ScenarioSet::from_matrix((0..n).map(|i| format!("AS{:02}", i + 1)).collect(), returns, probabilities(&w, rng.random::<bool>())).unwrap();
+    let set = ScenarioSet::from_matrix(
+        (0..n).map(|i| format!("AS{:02}", i + 1)).collect(),
+        returns,
+        probabilities(&w, rng.random::<bool>()),
+    )
+    .unwrap();
     let upper: Vec<f64> = (0..n).map(|_| 0.5 + 0.5 * rng.random::<f64>()).collect();
-    let lower: Vec<f64> = (0..n).map(|_| if rng.random::<bool>() { 0.1 * rng.random::<f64>() } else { 0.0 }).collect();
-    let groups = if n >= 3 { vec![Group { name: "g".into(), members: vec![0, 1], min: 0.1, max: 0.9 }] } else { vec![] };
-    let turnover_max = rng.random::<bool>().then(|| 0.2 + 1.3 * rng.random::<f64>());
-    let fs = FeasibleSet { lower, upper, groups, turnover_max, current: Some(vec![1.0 / n as f64; n]) };
-    Instance { set, fs, c: [0.9, 0.95, 0.975][(seed % 3) as usize] }
+    let lower: Vec<f64> = (0..n)
+        .map(|_| {
+            if rng.random::<bool>() {
+                0.1 * rng.random::<f64>()
+            } else {
+                0.0
+            }
+        })
+        .collect();
+    let groups = if n >= 3 {
+        vec![Group {
+            name: "g".into(),
+            members: vec![0, 1],
+            min: 0.1,
+            max: 0.9,
+        }]
+    } else {
+        vec![]
+    };
+    let turnover_max = rng
+        .random::<bool>()
+        .then(|| 0.2 + 1.3 * rng.random::<f64>());
+    let fs = FeasibleSet {
+        lower,
+        upper,
+        groups,
+        turnover_max,
+        current: Some(vec![1.0 / n as f64; n]),
+    };
+    Instance {
+        set,
+        fs,
+        c: [0.9, 0.95, 0.975][(seed % 3) as usize],
+    }
 }
 
 /// The largest constraint violation this suite accepts of a HiGHS optimum after the in-code check.

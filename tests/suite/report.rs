@@ -1,7 +1,7 @@
 //! The committee PDF, read back by poppler (pdftotext, pdfinfo), tools outside the project: its sections,
 //! its figures as printed, determinism, a large universe, and custom templates.
 
-use super::common::{config, json, pdf_pages, pdf_text, repo, Fixture, Market};
+use super::common::{Fixture, Market, config, json, pdf_pages, pdf_text, repo};
 use std::path::PathBuf;
 
 fn pack_dir(ran: &super::common::Ran) -> PathBuf {
@@ -23,7 +23,13 @@ fn printed(x: f64, signed: bool) -> String {
     if digits == "0.00" {
         return "0.00%".into();
     }
-    let sign = if v < 0.0 { "\u{2212}" } else if signed { "+" } else { "" };
+    let sign = if v < 0.0 {
+        "\u{2212}"
+    } else if signed {
+        "+"
+    } else {
+        ""
+    };
     format!("{sign}{digits}%")
 }
 
@@ -40,57 +46,118 @@ fn pdf_has_every_section_and_the_figures_of_results_json() {
     let text = pdf_text(&pdf);
     let flat = squeeze(&text);
     // Section titles: the list of sections the pack promises (README, "The PDF pack").
-    for title in ["Contents", "Summary", "Allocations", "Tail loss", "Further analysis", "Checks", "Caveats", "Method",
-                  "Data and provenance", "Sign-off", "Important cautions"] {
-        assert!(text.contains(title), "section title `{title}` missing from the PDF text");
+    for title in [
+        "Contents",
+        "Summary",
+        "Allocations",
+        "Tail loss",
+        "Further analysis",
+        "Checks",
+        "Caveats",
+        "Method",
+        "Data and provenance",
+        "Sign-off",
+        "Important cautions",
+    ] {
+        assert!(
+            text.contains(title),
+            "section title `{title}` missing from the PDF text"
+        );
     }
     // Figures: results.json, formatted by the README rule above, must appear as pdftotext reads them.
     let r = json(&dir.join("results.json"));
     for name in ["max_return", "min_cvar", "max_ratio"] {
         let m = &r["models"][name];
-        for (what, x, signed) in [("CVaR", &m["cvar"], false), ("VaR", &m["var"], false), ("expected return", &m["expected_return"], true)] {
+        for (what, x, signed) in [
+            ("CVaR", &m["cvar"], false),
+            ("VaR", &m["var"], false),
+            ("expected return", &m["expected_return"], true),
+        ] {
             let want = printed(x.as_f64().unwrap(), signed);
-            assert!(text.contains(&want), "{name} {what} printed as {want} is missing from the PDF");
+            assert!(
+                text.contains(&want),
+                "{name} {what} printed as {want} is missing from the PDF"
+            );
         }
     }
     let current = &r["current"];
-    assert!(text.contains(&printed(current["levels"][0]["cvar"].as_f64().unwrap(), false)), "current CVaR missing");
-    assert!(text.contains(&printed(current["expected_return"].as_f64().unwrap(), true)), "current expected return missing");
+    assert!(
+        text.contains(&printed(
+            current["levels"][0]["cvar"].as_f64().unwrap(),
+            false
+        )),
+        "current CVaR missing"
+    );
+    assert!(
+        text.contains(&printed(current["expected_return"].as_f64().unwrap(), true)),
+        "current expected return missing"
+    );
     // Identity and status: the pack id of results.json in full (cover) and shortened (every footer).
     let id = r["pack_id"].as_str().unwrap();
     assert!(text.contains(id), "full pack id missing");
     let pages = pdf_pages(&pdf);
-    assert!(text.matches(&id[..12]).count() >= pages, "the short pack id must be on every page");
-    assert!(flat.contains(&format!("Page {pages} of {pages}")), "footer `Page x of y` missing for the last page");
-    assert!(text.matches("DRAFT").count() >= pages, "the DRAFT status must be on every page");
+    assert!(
+        text.matches(&id[..12]).count() >= pages,
+        "the short pack id must be on every page"
+    );
+    assert!(
+        flat.contains(&format!("Page {pages} of {pages}")),
+        "footer `Page x of y` missing for the last page"
+    );
+    assert!(
+        text.matches("DRAFT").count() >= pages,
+        "the DRAFT status must be on every page"
+    );
     // The cautions the pack must carry (README, "Decision support, not advice").
-    for phrase in ["not investment advice", "investment policy", "licensed professionals"] {
+    for phrase in [
+        "not investment advice",
+        "investment policy",
+        "licensed professionals",
+    ] {
         assert!(flat.contains(phrase), "caution `{phrase}` missing");
     }
     // Every input digest of results.json is printed in the data appendix.
     for input in r["inputs"].as_array().unwrap() {
-        assert!(text.contains(input["sha256"].as_str().unwrap()), "digest of {} missing", input["role"]);
+        assert!(
+            text.contains(input["sha256"].as_str().unwrap()),
+            "digest of {} missing",
+            input["role"]
+        );
     }
     further_analysis_matches_results_json(&text, &r);
 }
 
 /// The models in the order the pack prints them (README, "The PDF pack": current, then the three models).
-const MODELS: [(&str, &str); 3] = [("max_return", "Max return"), ("min_cvar", "Min CVaR"), ("max_ratio", "Max ratio")];
+const MODELS: [(&str, &str); 3] = [
+    ("max_return", "Max return"),
+    ("min_cvar", "Min CVaR"),
+    ("max_ratio", "Max ratio"),
+];
 
 /// A test's p-value as the README rule prints it, written out here independently: three decimals, or
 /// `< 0.001` below that.
 fn printed_p(p: f64) -> String {
-    if p < 0.0005 { "< 0.001".into() } else { format!("{p:.3}") }
+    if p < 0.0005 {
+        "< 0.001".into()
+    } else {
+        format!("{p:.3}")
+    }
 }
 
 /// The squeezed lines of the PDF text, for checking table rows as pdftotext lays them out.
 fn rows(text: &str) -> Vec<String> {
-    text.lines().map(squeeze).filter(|l| !l.is_empty()).collect()
+    text.lines()
+        .map(squeeze)
+        .filter(|l| !l.is_empty())
+        .collect()
 }
 
 /// Asserts that some row of the PDF reads exactly `want` (after squeezing whitespace).
 fn has_row(rows: &[String], want: &str, what: &str) {
-    assert!(rows.iter().any(|r| r == want), "{what}: no row reads `{want}`");
+    assert!(
+        rows.iter().any(|r| r == want),
+        "{what}: no row reads `{want}`"
+    );
 }
 
 /// The "Further analysis" section of the demo pack against results.json (`frontier`, `stress`, `backtest`),
@@ -101,37 +168,98 @@ fn further_analysis_matches_results_json(text: &str, r: &serde_json::Value) {
     for title in ["4.1 Efficient frontier", "4.2 Stress tests", "4.3 Backtest"] {
         assert!(flat.contains(title), "subsection `{title}` missing");
     }
-    assert!(!flat.contains("Not yet computed"), "the analysis placeholders must be gone");
+    assert!(
+        !flat.contains("Not yet computed"),
+        "the analysis placeholders must be gone"
+    );
     // Frontier: the first point's row of the selected-points table (results.json frontier.points[0]).
     let p0 = &r["frontier"]["points"][0];
-    let (cvar, var, er) = (p0["cvar"].as_f64().unwrap(), p0["var"].as_f64().unwrap(), p0["expected_return"].as_f64().unwrap());
-    has_row(&rows, &format!("1 {} {} {} {:.4}", printed(cvar, false), printed(var, false), printed(er, true), er / cvar), "frontier point 1");
-    assert!(flat.contains("should touch the frontier at the Max ratio portfolio") && flat.contains("Charnes–Cooper"), "the ray's caption must say what it checks");
+    let (cvar, var, er) = (
+        p0["cvar"].as_f64().unwrap(),
+        p0["var"].as_f64().unwrap(),
+        p0["expected_return"].as_f64().unwrap(),
+    );
+    has_row(
+        &rows,
+        &format!(
+            "1 {} {} {} {:.4}",
+            printed(cvar, false),
+            printed(var, false),
+            printed(er, true),
+            er / cvar
+        ),
+        "frontier point 1",
+    );
+    assert!(
+        flat.contains("should touch the frontier at the Max ratio portfolio")
+            && flat.contains("Charnes–Cooper"),
+        "the ray's caption must say what it checks"
+    );
     // Stress: the defined shocks are the fund's scenarios, not forecasts (issue text); every P&L of the
     // current portfolio, signed, as results.json stress.portfolios.current.pnl has it.
-    assert!(flat.contains("fund's configured scenarios") && flat.contains("not forecasts"), "stress shocks must be called configured scenarios, not forecasts");
+    assert!(
+        flat.contains("fund's configured scenarios") && flat.contains("not forecasts"),
+        "stress shocks must be called configured scenarios, not forecasts"
+    );
     let stress = &r["stress"]["portfolios"];
     for x in stress["current"]["pnl"].as_array().unwrap() {
-        assert!(text.contains(&printed(x.as_f64().unwrap(), true)), "current stress P&L {} missing", printed(x.as_f64().unwrap(), true));
+        assert!(
+            text.contains(&printed(x.as_f64().unwrap(), true)),
+            "current stress P&L {} missing",
+            printed(x.as_f64().unwrap(), true)
+        );
     }
     // The summary's worst stress loss, unsigned, ends each portfolio's row of "Portfolios at a glance".
     for (key, label) in [("current", "Current")].into_iter().chain(MODELS) {
         let worst = printed(-stress[key]["worst"]["pnl"].as_f64().unwrap(), false);
         let status = if key == "current" { "held" } else { "optimal" };
-        assert!(rows.iter().any(|l| l.starts_with(&format!("{label} {status} ")) && l.ends_with(&format!(" {worst}"))), "{label}: worst stress loss {worst} missing from the summary table");
+        assert!(
+            rows.iter()
+                .any(|l| l.starts_with(&format!("{label} {status} "))
+                    && l.ends_with(&format!(" {worst}"))),
+            "{label}: worst stress loss {worst} missing from the summary table"
+        );
     }
     // Backtest: exceptions and Kupiec p-values in model order, and the daily traffic-light rows.
     let bt = &r["backtest"]["models"];
-    let field = |f: &dyn Fn(&serde_json::Value) -> String| MODELS.iter().map(|(k, _)| f(&bt[*k])).collect::<Vec<_>>().join(" ");
-    has_row(&rows, &format!("Exceptions {}", field(&|m| m["exceptions"].to_string())), "backtest exceptions");
-    has_row(&rows, &format!("Kupiec p-value {}", field(&|m| printed_p(m["kupiec"]["p_value"].as_f64().unwrap()))), "Kupiec p-values");
-    has_row(&rows, &format!("Christoffersen p-value {}", field(&|m| printed_p(m["christoffersen"]["p_value"].as_f64().unwrap()))), "Christoffersen p-values");
+    let field = |f: &dyn Fn(&serde_json::Value) -> String| {
+        MODELS
+            .iter()
+            .map(|(k, _)| f(&bt[*k]))
+            .collect::<Vec<_>>()
+            .join(" ")
+    };
+    has_row(
+        &rows,
+        &format!("Exceptions {}", field(&|m| m["exceptions"].to_string())),
+        "backtest exceptions",
+    );
+    has_row(
+        &rows,
+        &format!(
+            "Kupiec p-value {}",
+            field(&|m| printed_p(m["kupiec"]["p_value"].as_f64().unwrap()))
+        ),
+        "Kupiec p-values",
+    );
+    has_row(
+        &rows,
+        &format!(
+            "Christoffersen p-value {}",
+            field(&|m| printed_p(m["christoffersen"]["p_value"].as_f64().unwrap()))
+        ),
+        "Christoffersen p-values",
+    );
     for (key, label) in MODELS {
         let d = &bt[key]["daily_var_99"];
         let zone = d["zone"].as_str().unwrap();
         let word = format!("{}{}", zone[..1].to_uppercase(), &zone[1..]);
         // Expected exceptions: 1% of 250 daily observations (Basel Committee 1996).
-        let want = format!("{label} 250 {} 2.5 {} {word}", d["exceptions"], printed(d["cumulative_probability"].as_f64().unwrap(), false));
+        let want = format!(
+            "{label} 250 {} 2.5 {} {word}",
+            d["exceptions"],
+            printed(d["cumulative_probability"].as_f64().unwrap(), false)
+        );
         has_row(&rows, &want, "daily VaR traffic light");
     }
     rejections_follow_kupiec(&flat, r);
@@ -142,9 +270,15 @@ fn two_runs_give_byte_identical_pdfs() {
     let f = Fixture::new();
     let a = demo_pack(&f, "first");
     let b = demo_pack(&f, "second");
-    let (x, y) = (std::fs::read(a.join("pack.pdf")).unwrap(), std::fs::read(b.join("pack.pdf")).unwrap());
+    let (x, y) = (
+        std::fs::read(a.join("pack.pdf")).unwrap(),
+        std::fs::read(b.join("pack.pdf")).unwrap(),
+    );
     assert!(x.len() > 10_000, "a real PDF was written");
-    assert!(x == y, "pack.pdf differs between two runs on the same inputs");
+    assert!(
+        x == y,
+        "pack.pdf differs between two runs on the same inputs"
+    );
 }
 
 #[test]
@@ -154,13 +288,29 @@ fn pdf_claims_pdf_a_2b_and_is_dated_by_the_as_of_date() {
     let bytes = std::fs::read(&pdf).unwrap();
     // PDF/A identification schema (ISO 19005-2, 6.6.4): part 2, conformance B, in the XMP metadata.
     let xmp = String::from_utf8_lossy(&bytes);
-    assert!(xmp.contains("<pdfaid:part>2</pdfaid:part>") || xmp.contains("pdfaid:part=\"2\""), "no PDF/A part 2 claim");
-    assert!(xmp.contains("<pdfaid:conformance>B</pdfaid:conformance>") || xmp.contains("pdfaid:conformance=\"B\""), "no conformance B claim");
+    assert!(
+        xmp.contains("<pdfaid:part>2</pdfaid:part>") || xmp.contains("pdfaid:part=\"2\""),
+        "no PDF/A part 2 claim"
+    );
+    assert!(
+        xmp.contains("<pdfaid:conformance>B</pdfaid:conformance>")
+            || xmp.contains("pdfaid:conformance=\"B\""),
+        "no conformance B claim"
+    );
     // pdfinfo reads the creation date: the demo's as-of date (config-demo data ends 2026-11-30), not the clock.
-    let out = std::process::Command::new("pdfinfo").arg(&pdf).output().unwrap();
+    let out = std::process::Command::new("pdfinfo")
+        .arg(&pdf)
+        .output()
+        .unwrap();
     let info = String::from_utf8_lossy(&out.stdout);
-    let created = info.lines().find(|l| l.starts_with("CreationDate:")).expect("a creation date");
-    assert!(created.contains("Nov 30") && created.contains("2026"), "{created}");
+    let created = info
+        .lines()
+        .find(|l| l.starts_with("CreationDate:"))
+        .expect("a creation date");
+    assert!(
+        created.contains("Nov 30") && created.contains("2026"),
+        "{created}"
+    );
 }
 
 #[test]
@@ -177,11 +327,20 @@ fn a_200_asset_universe_renders_with_paginated_weights() {
     assert!((16..=25).contains(&pages), "200 assets gave {pages} pages");
     let text = pdf_text(&pdf);
     for a in &m.assets {
-        assert!(text.contains(a.as_str()), "asset {a} missing from the weights table");
+        assert!(
+            text.contains(a.as_str()),
+            "asset {a} missing from the weights table"
+        );
     }
     // The weights table's header repeats on every page it spans (here at least four).
-    let headed = text.split('\u{c}').filter(|page| page.contains("Bounds") && page.contains("Name")).count();
-    assert!(headed >= 4, "weights table header found on {headed} page(s)");
+    let headed = text
+        .split('\u{c}')
+        .filter(|page| page.contains("Bounds") && page.contains("Name"))
+        .count();
+    assert!(
+        headed >= 4,
+        "weights table header found on {headed} page(s)"
+    );
 }
 
 fn broken_template_fixture(template: &str) -> Fixture {
@@ -199,19 +358,43 @@ fn a_broken_custom_template_exits_2_naming_file_and_line_and_leaves_no_pack() {
     let ran = f.run(&["run", "fund.yaml", "--quiet"]);
     assert_eq!(ran.code, 2, "stderr: {}", ran.stderr);
     // The config names the folder relative to itself (`tpl`), run from the fixture folder.
-    assert!(ran.stderr.contains("template tpl/summary.typ"), "error must name the template file: {}", ran.stderr);
-    assert!(ran.stderr.contains("line 3"), "error must name the line: {}", ran.stderr);
-    assert!(ran.stderr.contains("no-such-function"), "error must carry typst's message: {}", ran.stderr);
-    assert!(f.entries("out/test-fund-fictional").is_empty(), "no pack (nor partial folder) may be left: {:?}", f.entries("out/test-fund-fictional"));
+    assert!(
+        ran.stderr.contains("template tpl/summary.typ"),
+        "error must name the template file: {}",
+        ran.stderr
+    );
+    assert!(
+        ran.stderr.contains("line 3"),
+        "error must name the line: {}",
+        ran.stderr
+    );
+    assert!(
+        ran.stderr.contains("no-such-function"),
+        "error must carry typst's message: {}",
+        ran.stderr
+    );
+    assert!(
+        f.entries("out/test-fund-fictional").is_empty(),
+        "no pack (nor partial folder) may be left: {:?}",
+        f.entries("out/test-fund-fictional")
+    );
 }
 
 #[test]
 fn a_custom_template_replaces_only_its_own_section() {
-    let f = broken_template_fixture("#import \"style.typ\": *\n= Summary\nCustom summary text for the committee.\n");
+    let f = broken_template_fixture(
+        "#import \"style.typ\": *\n= Summary\nCustom summary text for the committee.\n",
+    );
     let pdf = pack_dir(&f.run(&["run", "fund.yaml", "--quiet"])).join("pack.pdf");
     let text = squeeze(&pdf_text(&pdf));
-    assert!(text.contains("Custom summary text for the committee."), "the custom summary must be used");
-    assert!(text.contains("Important cautions") && text.contains("Tail loss"), "the other sections stay the built-in ones");
+    assert!(
+        text.contains("Custom summary text for the committee."),
+        "the custom summary must be used"
+    );
+    assert!(
+        text.contains("Important cautions") && text.contains("Tail loss"),
+        "the other sections stay the built-in ones"
+    );
 }
 
 #[test]
@@ -221,11 +404,19 @@ fn report_templates_must_be_a_folder_and_keys_are_checked() {
     f.small_fund(&m, &config("report:\n  templates: missing-folder\n"));
     let ran = f.run(&["run", "fund.yaml", "--quiet"]);
     assert_eq!(ran.code, 2);
-    assert!(ran.stderr.contains("report.templates") && ran.stderr.contains("missing-folder"), "{}", ran.stderr);
+    assert!(
+        ran.stderr.contains("report.templates") && ran.stderr.contains("missing-folder"),
+        "{}",
+        ran.stderr
+    );
     f.write("fund.yaml", &config("report:\n  templats: tpl\n"));
     let ran = f.run(&["run", "fund.yaml", "--quiet"]);
     assert_eq!(ran.code, 2);
-    assert!(ran.stderr.contains("did you mean `templates`?"), "{}", ran.stderr);
+    assert!(
+        ran.stderr.contains("did you mean `templates`?"),
+        "{}",
+        ran.stderr
+    );
 }
 
 #[test]
@@ -238,19 +429,36 @@ fn a_fund_without_holdings_and_an_infeasible_model_still_gets_a_full_pack() {
     f.write("fund.yaml", "fund:\n  name: Test Fund (fictional)\ndata:\n  prices: data/prices.csv\n  assets: data/assets.csv\nscenarios:\n  horizon: 5\n  lookback_years: 2\nmodels:\n  min_cvar:\n    return_floor: { value: 0.5 }\noutput:\n  root: out\n");
     let dir = pack_dir(&f.run(&["run", "fund.yaml", "--quiet"]));
     let r = json(&dir.join("results.json"));
-    assert_eq!(r["models"]["min_cvar"]["status"], "infeasible", "the fixture must make min_cvar infeasible");
+    assert_eq!(
+        r["models"]["min_cvar"]["status"], "infeasible",
+        "the fixture must make min_cvar infeasible"
+    );
     let text = squeeze(&pdf_text(&dir.join("pack.pdf")));
-    assert!(text.contains("Min CVaR: infeasible"), "the summary must say the model is infeasible");
-    assert!(!text.contains("Current"), "without holdings there is no current portfolio to show");
+    assert!(
+        text.contains("Min CVaR: infeasible"),
+        "the summary must say the model is infeasible"
+    );
+    assert!(
+        !text.contains("Current"),
+        "without holdings there is no current portfolio to show"
+    );
     let cvar = printed(r["models"]["max_return"]["cvar"].as_f64().unwrap(), false);
-    assert!(text.contains(&cvar), "the solved model's CVaR {cvar} must still be printed");
+    assert!(
+        text.contains(&cvar),
+        "the solved model's CVaR {cvar} must still be printed"
+    );
 }
 
 /// A small fund with a one-shock stress file and a one-year backtest: the stress P&L worked out by hand.
 fn stressed_fixture() -> Fixture {
     let f = Fixture::new();
     let m = Market::new(5, "2021-01-01", "2024-06-28", 42);
-    f.small_fund(&m, &config("analysis:\n  backtest_years: 1\nstress:\n  file: stress.yaml\n  loss_limit: 0.15\n"));
+    f.small_fund(
+        &m,
+        &config(
+            "analysis:\n  backtest_years: 1\nstress:\n  file: stress.yaml\n  loss_limit: 0.15\n",
+        ),
+    );
     f.write("stress.yaml", "shocks:\n  - name: Equity sell-off\n    description: Equities fall, bonds gain a little\n    moves:\n      - { tag: \"class:equity\", return: -0.30 }\n      - { tag: \"class:bond\", return: 0.02 }\n");
     f
 }
@@ -263,18 +471,44 @@ fn stress_and_backtest_figures_are_printed_as_computed_by_hand_and_in_results_js
     let (flat, rows) = (squeeze(&text), rows(&text));
     // By hand: equal holdings of 20% in five assets, three equities (AS01, AS03, AS05, Market::new) at −30%
     // and two bonds at +2%: 3 × 0.2 × (−0.30) + 2 × 0.2 × 0.02 = −0.172.
-    assert!(flat.contains("Equity sell-off") && flat.contains("Equities fall, bonds gain a little."), "the shock and its description");
-    assert!(flat.contains("−17.20%"), "current P&L under the sell-off, by hand −17.20%");
-    assert!(flat.contains("Current loses more than the 15.00% limit in: Equity sell-off (−17.20%)"), "the breach of the 15% limit must be flagged in words");
-    assert!(rows.iter().any(|l| l.starts_with("Current held ") && l.ends_with(" 17.20%")), "the summary's worst stress loss of Current, unsigned");
+    assert!(
+        flat.contains("Equity sell-off") && flat.contains("Equities fall, bonds gain a little."),
+        "the shock and its description"
+    );
+    assert!(
+        flat.contains("−17.20%"),
+        "current P&L under the sell-off, by hand −17.20%"
+    );
+    assert!(
+        flat.contains("Current loses more than the 15.00% limit in: Equity sell-off (−17.20%)"),
+        "the breach of the 15% limit must be flagged in words"
+    );
+    assert!(
+        rows.iter()
+            .any(|l| l.starts_with("Current held ") && l.ends_with(" 17.20%")),
+        "the summary's worst stress loss of Current, unsigned"
+    );
     // results.json: the one-year backtest's exception counts, in model order, and their verdicts.
     let r = json(&dir.join("results.json"));
     let bt = &r["backtest"]["models"];
-    let counts: Vec<String> = MODELS.iter().map(|(k, _)| bt[*k]["exceptions"].to_string()).collect();
-    has_row(&rows, &format!("Exceptions {}", counts.join(" ")), "backtest exceptions");
+    let counts: Vec<String> = MODELS
+        .iter()
+        .map(|(k, _)| bt[*k]["exceptions"].to_string())
+        .collect();
+    has_row(
+        &rows,
+        &format!("Exceptions {}", counts.join(" ")),
+        "backtest exceptions",
+    );
     let months = bt["max_return"]["observations"].as_u64().unwrap();
-    assert!((11..=12).contains(&months), "one year of month-ends gives 11 or 12 tested months, got {months}");
-    assert!(flat.contains(&format!("Walk-forward backtest over {months} months")), "the summary's backtest point");
+    assert!(
+        (11..=12).contains(&months),
+        "one year of month-ends gives 11 or 12 tested months, got {months}"
+    );
+    assert!(
+        flat.contains(&format!("Walk-forward backtest over {months} months")),
+        "the summary's backtest point"
+    );
     rejections_follow_kupiec(&flat, &r);
 }
 
@@ -282,9 +516,15 @@ fn stress_and_backtest_figures_are_printed_as_computed_by_hand_and_in_results_js
 /// results.json is below 0.05 (the 5% test level of Kupiec 1995).
 fn rejections_follow_kupiec(flat: &str, r: &serde_json::Value) {
     for (key, label) in MODELS {
-        let p = r["backtest"]["models"][key]["kupiec"]["p_value"].as_f64().unwrap();
+        let p = r["backtest"]["models"][key]["kupiec"]["p_value"]
+            .as_f64()
+            .unwrap();
         let said = flat.contains(&format!("{label}: backtest rejects the exception rate"));
-        assert_eq!(said, p < 0.05, "{label}: Kupiec p-value {p}, rejection caveat printed: {said}");
+        assert_eq!(
+            said,
+            p < 0.05,
+            "{label}: Kupiec p-value {p}, rejection caveat printed: {said}"
+        );
     }
 }
 
@@ -292,11 +532,20 @@ fn rejections_follow_kupiec(flat: &str, r: &serde_json::Value) {
 fn a_fund_without_backtest_or_stress_says_so_plainly() {
     let f = Fixture::new();
     let m = Market::new(5, "2021-01-01", "2024-06-28", 42);
-    f.small_fund(&m, &config("analysis: { backtest_years: 0 }\nstress:\n  historical_windows: 0\n"));
+    f.small_fund(
+        &m,
+        &config("analysis: { backtest_years: 0 }\nstress:\n  historical_windows: 0\n"),
+    );
     let dir = pack_dir(&f.run(&["run", "fund.yaml", "--quiet"]));
     let r = json(&dir.join("results.json"));
-    assert!(r["backtest"].is_null(), "the fixture must switch the backtest off");
-    assert!(r["stress"]["shocks"].as_array().unwrap().is_empty(), "the fixture must leave the stress set empty");
+    assert!(
+        r["backtest"].is_null(),
+        "the fixture must switch the backtest off"
+    );
+    assert!(
+        r["stress"]["shocks"].as_array().unwrap().is_empty(),
+        "the fixture must leave the stress set empty"
+    );
     let flat = squeeze(&pdf_text(&dir.join("pack.pdf")));
     // The section keeps its three parts; the two that did not run say why (DEVELOPERS.md, "Adding a report
     // section": a section whose data does not exist says so plainly rather than vanishing).
@@ -305,6 +554,13 @@ fn a_fund_without_backtest_or_stress_says_so_plainly() {
     }
     assert!(flat.contains("The walk-forward backtest was not run: it is switched off in the config (analysis.backtest_years: 0)."), "backtest absence");
     assert!(flat.contains("No stress test was run: no stress file is configured (stress.file), and no historical window was asked for (stress.historical_windows: 0)."), "stress absence");
-    assert!(flat.contains("Walk-forward backtest: not run") && flat.contains("No out-of-sample evidence"), "summary and caveats say the backtest is missing");
-    assert!(flat.contains("Selected frontier points"), "the frontier still runs");
+    assert!(
+        flat.contains("Walk-forward backtest: not run")
+            && flat.contains("No out-of-sample evidence"),
+        "summary and caveats say the backtest is missing"
+    );
+    assert!(
+        flat.contains("Selected frontier points"),
+        "the frontier still runs"
+    );
 }

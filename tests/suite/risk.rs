@@ -34,8 +34,16 @@ fn var_and_cvar_of_a_normal_sample_match_the_closed_form() {
         let tail: Vec<f64> = losses.iter().copied().filter(|l| *l > q).collect();
         let tail_var = tail.iter().map(|l| (l - es).powi(2)).sum::<f64>() / tail.len() as f64;
         let se_es = ((tail_var + c * (es - q).powi(2)) / (n as f64 * (1.0 - c))).sqrt();
-        assert!((t.var - q).abs() < 5.0 * se_var, "VaR {c}: {} vs {q} (se {se_var})", t.var);
-        assert!((t.cvar - es).abs() < 5.0 * se_es, "CVaR {c}: {} vs {es} (se {se_es})", t.cvar);
+        assert!(
+            (t.var - q).abs() < 5.0 * se_var,
+            "VaR {c}: {} vs {q} (se {se_var})",
+            t.var
+        );
+        assert!(
+            (t.cvar - es).abs() < 5.0 * se_es,
+            "CVaR {c}: {} vs {es} (se {se_es})",
+            t.cvar
+        );
     }
 }
 
@@ -57,7 +65,9 @@ fn es_975_is_close_to_var_99_under_normality() {
 /// Random discrete losses on a coarse grid (many ties) with unequal probabilities.
 fn discrete(seed: u64, s: usize) -> (Vec<f64>, Vec<f64>) {
     let mut rng = rand::rngs::StdRng::seed_from_u64(seed);
-    let losses: Vec<f64> = (0..s).map(|_| (rng.random_range(-5i32..=5) as f64) * 0.01).collect();
+    let losses: Vec<f64> = (0..s)
+        .map(|_| (rng.random_range(-5i32..=5) as f64) * 0.01)
+        .collect();
     let raw: Vec<f64> = (0..s).map(|_| 0.1 + rng.random::<f64>()).collect();
     let total: f64 = raw.iter().sum();
     (losses, raw.iter().map(|w| w / total).collect())
@@ -75,11 +85,27 @@ fn ru_minimiser_is_var_and_minimum_is_cvar() {
             let mut points = losses.clone();
             points.sort_by(f64::total_cmp);
             points.dedup();
-            let values: Vec<f64> = points.iter().map(|&l| ru_objective(&losses, &probs, c, l)).collect();
+            let values: Vec<f64> = points
+                .iter()
+                .map(|&l| ru_objective(&losses, &probs, c, l))
+                .collect();
             let best = values.iter().copied().fold(f64::INFINITY, f64::min);
-            let argmin = points.iter().zip(&values).find(|(_, v)| **v <= best + 1e-12).map(|(l, _)| *l).unwrap();
-            assert!((best - t.cvar).abs() < 1e-12, "seed {seed} c {c}: min F {best} vs CVaR {}", t.cvar);
-            assert_eq!(argmin, t.var, "seed {seed} c {c}: argmin {argmin} vs VaR {}", t.var);
+            let argmin = points
+                .iter()
+                .zip(&values)
+                .find(|(_, v)| **v <= best + 1e-12)
+                .map(|(l, _)| *l)
+                .unwrap();
+            assert!(
+                (best - t.cvar).abs() < 1e-12,
+                "seed {seed} c {c}: min F {best} vs CVaR {}",
+                t.cvar
+            );
+            assert_eq!(
+                argmin, t.var,
+                "seed {seed} c {c}: argmin {argmin} vs VaR {}",
+                t.var
+            );
             assert!(t.cvar >= t.var - 1e-15);
         }
     }
@@ -102,7 +128,10 @@ fn tail_weights_reproduce_cvar() {
             let q = tail_weights(&losses, &probs, c);
             let via: f64 = q.iter().zip(&losses).map(|(w, l)| w * l).sum();
             assert!((via - var_cvar(&losses, &probs, c).cvar).abs() < 1e-12);
-            assert!((q.iter().sum::<f64>() - 1.0).abs() < 1e-12, "tail weights sum to 1");
+            assert!(
+                (q.iter().sum::<f64>() - 1.0).abs() < 1e-12,
+                "tail weights sum to 1"
+            );
         }
     }
 }
@@ -125,8 +154,16 @@ fn hand_worked_portfolio_statistics() {
     //   expected return = (−0.030 − 0.016 + 0.026 + 0.038 + 0.062)/5 = 0.016.
     //   component CVaR = x_i · mean of −r_i over s1, s2: A 0.5·0.01 = 0.005, B 0.3·0.02 = 0.006,
     //   C 0.2·0.06 = 0.012; sum 0.023.
-    let returns = vec![-0.01, -0.03, -0.08, -0.01, -0.01, -0.04, 0.01, 0.03, 0.06, 0.02, 0.04, 0.08, 0.03, 0.07, 0.13];
-    let set = tailpack::scenarios::ScenarioSet::from_matrix(vec!["A".into(), "B".into(), "C".into()], returns, vec![0.2; 5]).unwrap();
+    let returns = vec![
+        -0.01, -0.03, -0.08, -0.01, -0.01, -0.04, 0.01, 0.03, 0.06, 0.02, 0.04, 0.08, 0.03, 0.07,
+        0.13,
+    ];
+    let set = tailpack::scenarios::ScenarioSet::from_matrix(
+        vec!["A".into(), "B".into(), "C".into()],
+        returns,
+        vec![0.2; 5],
+    )
+    .unwrap();
     let p = tailpack::risk::profile(&set, &[0.5, 0.3, 0.2], &[0.6], 0.6);
     let t = p.at(0.6);
     assert!((t.var + 0.026).abs() < 1e-12, "VaR {}", t.var);
