@@ -124,7 +124,7 @@ pub fn plan(cfg: &Config, as_of: NaiveDate) -> Result<Plan> {
 fn templates(cfg: &Config) -> Result<Vec<Archived>> {
     let mut custom = Vec::new();
     if let Some(dir) = &cfg.templates {
-        for p in walk(dir)? {
+        for p in fs::files_below(dir)? {
             let rel = p
                 .strip_prefix(dir)
                 .expect("below dir")
@@ -151,31 +151,6 @@ fn templates(cfg: &Config) -> Result<Vec<Archived>> {
         })
         .collect();
     out.extend(custom);
-    Ok(out)
-}
-
-fn walk(dir: &Path) -> Result<Vec<PathBuf>> {
-    let read = std::fs::read_dir(dir).map_err(|source| Error::Io {
-        action: "cannot read folder",
-        path: dir.into(),
-        source,
-    })?;
-    let mut entries: Vec<PathBuf> = read
-        .filter_map(|e| e.ok().map(|e| e.path()))
-        .filter(|p| {
-            !p.file_name()
-                .is_some_and(|n| n.to_string_lossy().starts_with('.'))
-        })
-        .collect();
-    entries.sort();
-    let mut out = Vec::new();
-    for p in entries {
-        if p.is_dir() {
-            out.extend(walk(&p)?);
-        } else if p.is_file() {
-            out.push(p);
-        }
-    }
     Ok(out)
 }
 
@@ -534,7 +509,7 @@ pub fn verify(pack: &Path) -> Result<Vec<Finding>> {
             Err(_) => out.push(bad(name, "is missing".into())),
         }
     }
-    for f in walk(&pack.join("inputs")).unwrap_or_default() {
+    for f in fs::files_below(&pack.join("inputs")).unwrap_or_default() {
         let rel = f
             .strip_prefix(pack)
             .expect("below pack")

@@ -152,6 +152,29 @@ pub mod fs {
         std::fs::remove_dir_all(path).map_err(io("cannot remove folder", path))
     }
 
+    /// Every regular file below `dir`, hidden entries skipped, in sorted order (so anything built from the
+    /// listing is the same on every run).
+    pub fn files_below(dir: &Path) -> Result<Vec<std::path::PathBuf>> {
+        let mut entries: Vec<std::path::PathBuf> = std::fs::read_dir(dir)
+            .map_err(io("cannot read folder", dir))?
+            .filter_map(|e| e.ok().map(|e| e.path()))
+            .filter(|p| {
+                !p.file_name()
+                    .is_some_and(|n| n.to_string_lossy().starts_with('.'))
+            })
+            .collect();
+        entries.sort();
+        let mut out = Vec::new();
+        for p in entries {
+            if p.is_dir() {
+                out.extend(files_below(&p)?);
+            } else if p.is_file() {
+                out.push(p);
+            }
+        }
+        Ok(out)
+    }
+
     /// Renames a file or folder.
     pub fn rename(from: &Path, to: &Path) -> Result<()> {
         std::fs::rename(from, to).map_err(io("cannot move into place", to))

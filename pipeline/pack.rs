@@ -9,7 +9,6 @@ use crate::error::{Result, fs};
 use crate::models::Status;
 use crate::run::{ModelReport, RunResult};
 use serde_json::{Map, Value, json};
-use sha2::{Digest, Sha256};
 use std::fmt::Write as _;
 use std::path::{Path, PathBuf};
 
@@ -20,30 +19,6 @@ pub struct InputFile {
     pub path: String,
     pub sha256: String,
     pub bytes: u64,
-}
-
-/// SHA-256 of a file as lower-case hex, read in blocks.
-pub fn sha256_file(path: &Path) -> Result<(String, u64)> {
-    use std::io::Read;
-    let mut f = std::fs::File::open(path).map_err(|source| crate::error::Error::Io {
-        action: "cannot open",
-        path: path.into(),
-        source,
-    })?;
-    let (mut h, mut buf, mut total) = (Sha256::new(), vec![0u8; 1 << 16], 0u64);
-    loop {
-        let n = f.read(&mut buf).map_err(|source| crate::error::Error::Io {
-            action: "cannot read",
-            path: path.into(),
-            source,
-        })?;
-        if n == 0 {
-            break;
-        }
-        h.update(&buf[..n]);
-        total += n as u64;
-    }
-    Ok((hex(&h.finalize()), total))
 }
 
 /// Lower-case hex encoding.

@@ -6,7 +6,7 @@
 
 use super::world::{Origin, WorldFile};
 use crate::error::{Result, fs};
-use std::path::{Path, PathBuf};
+use std::path::Path;
 
 /// The default templates, by file name: `main.typ` includes the others in print order.
 pub const DEFAULTS: &[(&str, &str)] = &[
@@ -55,7 +55,7 @@ pub fn load(custom: Option<&Path>) -> Result<(Vec<WorldFile>, Vec<Vec<u8>>)> {
     let Some(dir) = custom else {
         return Ok((files, fonts));
     };
-    for path in walk(dir)? {
+    for path in fs::files_below(dir)? {
         let rel = path
             .strip_prefix(dir)
             .expect("walked below dir")
@@ -85,30 +85,4 @@ fn is_font(path: &Path) -> bool {
             .as_deref(),
         Some("ttf" | "otf" | "ttc")
     )
-}
-
-/// Every regular file below `dir`, hidden ones skipped, in sorted order so the world is the same each run.
-fn walk(dir: &Path) -> Result<Vec<PathBuf>> {
-    let mut out = Vec::new();
-    let mut entries: Vec<PathBuf> = std::fs::read_dir(dir)
-        .map_err(|source| crate::error::Error::Io {
-            action: "cannot read template folder",
-            path: dir.into(),
-            source,
-        })?
-        .filter_map(|e| e.ok().map(|e| e.path()))
-        .filter(|p| {
-            !p.file_name()
-                .is_some_and(|n| n.to_string_lossy().starts_with('.'))
-        })
-        .collect();
-    entries.sort();
-    for p in entries {
-        if p.is_dir() {
-            out.extend(walk(&p)?);
-        } else if p.is_file() {
-            out.push(p);
-        }
-    }
-    Ok(out)
 }
