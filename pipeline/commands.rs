@@ -5,6 +5,7 @@
 
 use crate::error::Result;
 use crate::run::{self, RunOptions};
+use crate::timings;
 use std::path::{Path, PathBuf};
 use std::time::Duration;
 
@@ -82,8 +83,8 @@ fn run_fund(
     opts: &RunOptions,
     progress: &Progress,
 ) -> Result<RunReport> {
-    let (cfg, data) = run::prepare_fund(cfg, opts)?;
-    let plan = crate::archive::plan(&cfg, data.as_of)?;
+    let (cfg, data) = timings::time("ingest", || run::prepare_fund(cfg, opts))?;
+    let plan = timings::time("hashing", || crate::archive::plan(&cfg, data.as_of))?;
     if let Some(existing) = crate::archive::identical(&plan) {
         progress.finish();
         let shown = std::fs::canonicalize(&existing).unwrap_or(existing);
@@ -398,4 +399,57 @@ pub fn demo_data(dir: &PathBuf) -> Result<String> {
         s.last,
         dir.display()
     ))
+}
+
+/// The stage table of `tailpack run --timings`.
+pub fn timings(wall: Duration) -> String {
+    timings::table(&timings::take(), wall, timings::peak_memory())
+}
+
+/// `tailpack bench`: prints the table as it goes; returns nothing more to print.
+#[allow(clippy::too_many_arguments)]
+pub fn bench(
+    sizes: &[String],
+    runs: usize,
+    reference: Option<crate::bench::Reference>,
+    direct_too: bool,
+    time_limit: f64,
+    demo: Option<PathBuf>,
+    work: PathBuf,
+) -> Result<String> {
+    let sizes = if sizes.is_empty() {
+        crate::bench::DEFAULT_SIZES.to_vec()
+    } else {
+        sizes
+            .iter()
+            .map(|s| parse_size(s))
+            .collect::<Result<Vec<_>>>()?
+    };
+    let opts = crate::bench::BenchOptions {
+        sizes,
+        runs,
+        reference,
+        direct_too,
+        time_limit,
+        demo,
+        work,
+    };
+    crate::bench::run(&opts, &mut std::io::stdout())?;
+    Ok(String::new())
+}
+
+/// `440x200` → (440, 200).
+fn parse_size(s: &str) -> Result<(usize, usize)> {
+    let bad = || {
+        crate::error::Error::Run(format!(
+            "--sizes: `{s}` is not ASSETSxSCENARIOS (e.g. 500x5000) with both at least 1"
+        ))
+    };
+    let (a, b) = s.trim().split_once(['x', 'X']).ok_or_else(bad)?;
+    let n: usize = a.trim().parse().map_err(|_| bad())?;
+    let k: usize = b.trim().parse().map_err(|_| bad())?;
+    if n == 0 || k == 0 {
+        return Err(bad());
+    }
+    Ok((n, k))
 }

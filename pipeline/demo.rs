@@ -122,14 +122,14 @@ impl SplitMix64 {
 /// `xoshiro256**` 1.0 (David Blackman & Sebastiano Vigna, "Scrambled linear
 /// pseudorandom number generators", ACM TOMS 47(4), 2021; reference code
 /// public domain). Fast, small state, and good statistical quality.
-struct Rng {
+pub(crate) struct Rng {
     s: [u64; 4],
     /// Marsaglia's polar method yields normals in pairs; keep the second.
     spare_normal: Option<f64>,
 }
 
 impl Rng {
-    fn from_seed(seed: u64) -> Self {
+    pub(crate) fn from_seed(seed: u64) -> Self {
         let mut mix = SplitMix64(seed);
         let s = [
             mix.next_u64(),
@@ -157,13 +157,13 @@ impl Rng {
     }
 
     /// Uniform on [0, 1) from the top 53 bits, the usual exact conversion.
-    fn uniform(&mut self) -> f64 {
+    pub(crate) fn uniform(&mut self) -> f64 {
         (self.next_u64() >> 11) as f64 * (1.0 / (1u64 << 53) as f64)
     }
 
     /// Standard normal by Marsaglia's polar method (Marsaglia & Bray, 1964),
     /// which avoids trigonometric calls.
-    fn normal(&mut self) -> f64 {
+    pub(crate) fn normal(&mut self) -> f64 {
         if let Some(z) = self.spare_normal.take() {
             return z;
         }
@@ -183,7 +183,7 @@ impl Rng {
     /// variance is 4/2 = 2), so loadings keep their meaning as correlations.
     /// Clamped at 7 standard deviations: fat tails are wanted, but a one-day
     /// 15-sigma move in a demo would only distract the committee.
-    fn student_t4(&mut self) -> f64 {
+    pub(crate) fn student_t4(&mut self) -> f64 {
         let z = self.normal();
         let chi2: f64 = (0..4).map(|_| self.normal().powi(2)).sum();
         let t = z / (chi2 / 4.0).sqrt();

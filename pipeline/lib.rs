@@ -15,10 +15,12 @@
 //! - [`commands`]: one function per CLI subcommand; the binary is a thin layer over these.
 //!
 //! Cross-cutting: [`error`] (typed errors, exit codes, path-naming file helpers), [`diag`] (findings that
-//! travel with results), [`demo`] (the deterministic generator of the invented demo data).
+//! travel with results), [`demo`] (the deterministic generator of the invented demo data), [`timings`]
+//! (time per stage, peak memory), [`bench`] (synthetic LP benchmarks).
 
 pub mod analysis;
 pub mod archive;
+pub mod bench;
 pub mod commands;
 pub mod config;
 pub mod demo;
@@ -32,3 +34,4 @@ pub mod risk;
 pub mod run;
 pub mod scenarios;
 pub mod signoff;
+pub mod timings;

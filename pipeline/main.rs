@@ -38,6 +38,37 @@ enum Command {
         /// Seconds to wait for another run's lock on the same archive (then exit 6).
         #[arg(long, default_value_t = 600)]
         lock_timeout: u64,
+        /// Print the wall time of each stage and the peak memory on stderr at the end.
+        #[arg(long)]
+        timings: bool,
+    },
+    /// Time the three models on synthetic problems (build and solve apart), optionally beside a reference
+    /// solver script, and the demo pack end to end. Prints figures; release builds give meaningful ones.
+    Bench {
+        /// Sizes as ASSETSxSCENARIOS, comma-separated (default: 40x200,440x200,100x2500,500x5000,500x20000,1000x50000).
+        #[arg(long, value_delimiter = ',')]
+        sizes: Vec<String>,
+        /// Runs per LP; the median is printed.
+        #[arg(long, default_value_t = 3)]
+        runs: usize,
+        /// Also solve each problem with this reference script (e.g. tests/reference/bench_reference.py).
+        #[arg(long)]
+        reference: Option<PathBuf>,
+        /// The interpreter for the reference script.
+        #[arg(long, default_value = "python3")]
+        python: String,
+        /// Where the cutting-plane method is used, do not also time the direct LP.
+        #[arg(long)]
+        no_direct: bool,
+        /// Seconds allowed per direct or reference LP run.
+        #[arg(long, default_value_t = 900.0)]
+        time_limit: f64,
+        /// Build this config's pack end to end with stage timings (e.g. config-demo/fund.yaml).
+        #[arg(long)]
+        demo: Option<PathBuf>,
+        /// Scratch folder for problem files and the demo pack.
+        #[arg(long, default_value = "out/bench")]
+        work: PathBuf,
     },
     /// Make an Ed25519 key pair for signing packs: PREFIX.key (secret) and PREFIX.pub (public).
     Keygen {
@@ -90,6 +121,7 @@ fn main() {
             solver,
             quiet,
             lock_timeout,
+            timings,
         } => {
             let opts = RunOptions {
                 as_of: *as_of,
@@ -97,9 +129,36 @@ fn main() {
                 backend: *solver,
                 lock_timeout: std::time::Duration::from_secs(*lock_timeout),
             };
-            tailpack::commands::run(config, &opts, &tailpack::commands::Progress::new(*quiet))
-                .map(|r| (r.text, r.code))
+            let start = std::time::Instant::now();
+            let r =
+                tailpack::commands::run(config, &opts, &tailpack::commands::Progress::new(*quiet));
+            if *timings {
+                eprint!("{}", tailpack::commands::timings(start.elapsed()));
+            }
+            r.map(|r| (r.text, r.code))
         }
+        Command::Bench {
+            sizes,
+            runs,
+            reference,
+            python,
+            no_direct,
+            time_limit,
+            demo,
+            work,
+        } => tailpack::commands::bench(
+            sizes,
+            *runs,
+            reference.as_ref().map(|script| tailpack::bench::Reference {
+                program: python.clone(),
+                script: script.clone(),
+            }),
+            !*no_direct,
+            *time_limit,
+            demo.clone(),
+            work.clone(),
+        )
+        .map(|t| (t, 0)),
         Command::Keygen { prefix } => tailpack::commands::keygen(prefix).map(|t| (t, 0)),
         Command::Sign {
             pack,

@@ -8,6 +8,7 @@
 use crate::error::{Result, fs};
 use crate::models::Status;
 use crate::run::{ModelReport, RunResult};
+use crate::timings;
 use serde_json::{Map, Value, json};
 use std::fmt::Write as _;
 use std::path::{Path, PathBuf};
@@ -381,7 +382,9 @@ pub fn write(r: &RunResult, plan: &crate::archive::Plan) -> Result<(PathBuf, Str
     let tmp = folder.join(format!(".partial-r{revision}-{}", std::process::id()));
     fs::create_dir_all(&tmp)?;
     let result = fill(r, &tmp, plan).and_then(|text| {
-        crate::archive::seal(&tmp, plan, &r.config, revision, previous.as_deref())?;
+        timings::time("hashing", || {
+            crate::archive::seal(&tmp, plan, &r.config, revision, previous.as_deref())
+        })?;
         Ok(text)
     });
     if result.is_err() {
@@ -396,7 +399,9 @@ pub fn write(r: &RunResult, plan: &crate::archive::Plan) -> Result<(PathBuf, Str
         let _ = std::fs::remove_dir_all(&tmp);
         return Err(e);
     }
-    crate::archive::write_index(&r.config.out_root)?;
+    timings::time("writing", || {
+        crate::archive::write_index(&r.config.out_root)
+    })?;
     let shown = std::fs::canonicalize(&dir).unwrap_or(dir);
     let note = previous
         .map(|p| {
@@ -417,16 +422,19 @@ pub fn write(r: &RunResult, plan: &crate::archive::Plan) -> Result<(PathBuf, Str
 pub fn fill(r: &RunResult, dir: &Path, plan: &crate::archive::Plan) -> Result<String> {
     let inputs = crate::archive::input_list(plan);
     let id = &plan.pack_id;
-    fs::write(&dir.join("scenarios.csv"), scenarios_csv(r))?;
-    fs::write(&dir.join("weights.csv"), weights_csv(r))?;
-    let results = results_json(r, &inputs, id);
-    let json = serde_json::to_string_pretty(&results).expect("results serialise");
-    fs::write(&dir.join("results.json"), json + "\n")?;
-    fs::write(
-        &dir.join("pack.pdf"),
-        crate::report::render(r, &results, id)?,
-    )?;
-    let text = summary(r);
-    fs::write(&dir.join("summary.txt"), &text)?;
-    Ok(text)
+    let results = timings::time("writing", || -> Result<Value> {
+        fs::write(&dir.join("scenarios.csv"), scenarios_csv(r))?;
+        fs::write(&dir.join("weights.csv"), weights_csv(r))?;
+        let results = results_json(r, &inputs, id);
+        let json = serde_json::to_string_pretty(&results).expect("results serialise");
+        fs::write(&dir.join("results.json"), json + "\n")?;
+        Ok(results)
+    })?;
+    let pdf = crate::report::render(r, &results, id)?;
+    timings::time("writing", || {
+        fs::write(&dir.join("pack.pdf"), pdf)?;
+        let text = summary(r);
+        fs::write(&dir.join("summary.txt"), &text)?;
+        Ok(text)
+    })
 }

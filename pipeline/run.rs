@@ -170,7 +170,8 @@ fn resolve_group(cfg: &Config, data: &MarketData, g: &config::GroupSpec) -> Resu
 
 /// Solves everything for prepared data.
 pub fn compute(cfg: Config, data: MarketData) -> Result<RunResult> {
-    let set = scenarios::build(&data, &cfg.scenarios)?;
+    let set = crate::timings::time("scenarios", || scenarios::build(&data, &cfg.scenarios))?;
+    let models_start = std::time::Instant::now();
     let fs = feasible_set(&cfg, &data)?;
     let c = cfg.confidence;
     let p = Problem {
@@ -206,6 +207,7 @@ pub fn compute(cfg: Config, data: MarketData) -> Result<RunResult> {
         &data,
         &cfg,
     );
+    crate::timings::add("models", models_start.elapsed());
     let mut portfolios: Vec<(String, Vec<f64>)> = data
         .holdings
         .iter()

@@ -154,22 +154,35 @@ fn decide(
     let cap = models::resolve_cap(cfg.cap, min_x, reference.as_ref().map(|r| r.at(c).cvar));
     let floor = models::resolve_floor(cfg.floor, reference.as_ref().map(|r| r.expected_return));
     let pre = models::preconditions(min_x, max_x);
-    let outcomes = [
-        models::outcome(&p, p.max_return(Some(cap)), Some(cap), None, String::new),
-        models::outcome(&p, p.min_cvar(Some(floor)), None, Some(floor), String::new),
-        if pre.holds {
-            models::outcome(&p, p.max_ratio(), None, None, String::new)
-        } else {
-            models::Outcome {
-                status: Status::NotApplicable,
-                message: pre.reason,
-                weights: None,
-                objective: None,
-                scale: None,
-                max_violation: None,
-            }
-        },
-    ];
+    // X empty this month: no model has a portfolio (and a cap relative to min CVaR has no base).
+    let empty = || models::Outcome {
+        status: Status::Infeasible,
+        message: Some("the feasible set is empty".into()),
+        weights: None,
+        objective: None,
+        scale: None,
+        max_violation: None,
+    };
+    let outcomes = if min_x.is_none() && max_x.is_none() {
+        [empty(), empty(), empty()]
+    } else {
+        [
+            models::outcome(&p, p.max_return(Some(cap)), Some(cap), None, String::new),
+            models::outcome(&p, p.min_cvar(Some(floor)), None, Some(floor), String::new),
+            if pre.holds {
+                models::outcome(&p, p.max_ratio(), None, None, String::new)
+            } else {
+                models::Outcome {
+                    status: Status::NotApplicable,
+                    message: pre.reason,
+                    weights: None,
+                    objective: None,
+                    scale: None,
+                    max_violation: None,
+                }
+            },
+        ]
+    };
     Ok(outcomes
         .into_iter()
         .map(|o| {

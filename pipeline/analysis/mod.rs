@@ -13,6 +13,7 @@ use crate::diag::Check;
 use crate::error::Result;
 use crate::ingest::MarketData;
 use crate::models::{FeasibleSet, Problem};
+use crate::timings;
 
 /// The analysis results of one run.
 #[derive(Debug, Clone)]
@@ -31,7 +32,10 @@ pub fn analyse(
     fs: &FeasibleSet,
     portfolios: &[(String, Vec<f64>)],
 ) -> Result<Analysis> {
-    let frontier = frontier::sweep(p, cfg.analysis.frontier_points);
+    let frontier = timings::time("frontier", || {
+        frontier::sweep(p, cfg.analysis.frontier_points)
+    });
+    let stress_start = std::time::Instant::now();
     let mut shocks = match &cfg.stress_file {
         Some(path) => stress::defined(path, &crate::config::load_stress(path)?, data)?,
         None => vec![],
@@ -51,7 +55,8 @@ pub fn analyse(
         .iter()
         .map(|(name, w)| stress::replay(name, w, &shocks, &classes, cfg.stress_loss_limit))
         .collect();
-    let backtest = backtest::run(cfg, data, fs);
+    timings::add("stress", stress_start.elapsed());
+    let backtest = timings::time("backtest", || backtest::run(cfg, data, fs));
     Ok(Analysis {
         frontier,
         shocks,

@@ -1,25 +1,39 @@
-//! Building and solving the linear programs through good_lp, with HiGHS or Clarabel.
+//! Building and solving the linear programs: a sparse model built row by row in bulk, handed to HiGHS
+//! directly (highs crate) or to Clarabel through good_lp.
 //!
 //! The CVaR of a portfolio x enters every model through the Rockafellar & Uryasev (2000) linearisation:
 //! CVaR_c(x) = min over ℓ, u of ℓ + 1/(1−c) Σ_k p_k u_k subject to u_k ≥ 0 and u_k ≥ −r_k·x − ℓ
 //! (J. Risk 2(3), eq. 17). The feasible set X is written once, optionally multiplied through by a scale
-//! variable t for the Charnes & Cooper (1962) transformation ("Programming with linear fractional
+//! column t for the Charnes & Cooper (1962) transformation ("Programming with linear fractional
 //! functionals", Naval Research Logistics Quarterly 9): every constant right-hand side b becomes b·t.
+//!
+//! Why not good_lp's expressions for HiGHS: at 500 assets × 5,000 scenarios they cost more to build than
+//! the rows themselves (a hash map per expression); rows written straight into one compressed sparse row
+//! store cost a copy. The HiGHS model also stays alive between solves, so the cutting-plane method adds
+//! its cuts to a warm-started model instead of rebuilding it.
 
 use super::FeasibleSet;
 use crate::config::Backend;
 use crate::scenarios::ScenarioSet;
 use good_lp::solvers::clarabel::clarabel;
-use good_lp::solvers::highs::highs;
-use good_lp::{
-    Constraint, Expression, ProblemVariables, ResolutionError, Solution, SolverModel, Variable,
-    variable,
-};
+use good_lp::{Expression, ProblemVariables, ResolutionError, Solution, SolverModel, variable};
+use highs::{HighsModelStatus, RowProblem, Sense};
+use std::sync::atomic::{AtomicU64, Ordering};
+use std::time::{Duration, Instant};
 
 /// HiGHS primal and dual feasibility tolerance used for every model (its default is 1e-7).
 pub const HIGHS_TOLERANCE: f64 = 1e-9;
 /// Clarabel feasibility and gap tolerance used for every model (its default is 1e-8).
 pub const CLARABEL_TOLERANCE: f64 = 1e-10;
+
+/// Wall-clock limit on each HiGHS run in seconds, as f64 bits; 0 means none. Only `tailpack bench` sets
+/// it (to bound the direct LPs it times at large sizes); packs never do.
+static TIME_LIMIT: AtomicU64 = AtomicU64::new(0);
+
+/// Sets (or with `None` clears) the per-run HiGHS time limit for this process.
+pub fn set_time_limit(seconds: Option<f64>) {
+    TIME_LIMIT.store(seconds.map_or(0, f64::to_bits), Ordering::Relaxed);
+}
 
 /// Why an LP produced no solution.
 #[derive(Debug, Clone, PartialEq)]
@@ -30,14 +44,51 @@ pub enum Failure {
     Solver(String),
 }
 
-/// An LP under construction: the portfolio columns (x, or z = t·x), the optional scale t, and rows.
-pub struct Lp {
-    vars: ProblemVariables,
-    rows: Vec<Constraint>,
-    pub weights: Vec<Variable>,
-    pub scale: Option<Variable>,
-    /// Further columns whose values the caller wants back (in `Solved::extra`).
-    tracked: Vec<Variable>,
+/// A column of an [`Lp`].
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub struct Col(pub usize);
+
+/// A linear function Σ a_j·col_j (no constant term).
+#[derive(Debug, Clone, Default)]
+pub struct Lin(pub Vec<(Col, f64)>);
+
+impl Lin {
+    /// An empty function with room for `n` terms.
+    pub fn with_capacity(n: usize) -> Lin {
+        Lin(Vec::with_capacity(n))
+    }
+
+    /// Adds a·col.
+    pub fn add(&mut self, col: Col, a: f64) {
+        self.0.push((col, a));
+    }
+
+    /// The value at column values `x`.
+    pub fn eval(&self, x: &[f64]) -> f64 {
+        self.0.iter().map(|(c, a)| a * x[c.0]).sum()
+    }
+}
+
+/// Time spent building the model and inside the solver, and the number of solver runs.
+#[derive(Debug, Clone, Copy, Default, PartialEq)]
+pub struct Timing {
+    pub build: Duration,
+    pub solve: Duration,
+    pub runs: usize,
+}
+
+impl Timing {
+    /// Build plus solve.
+    pub fn total(&self) -> Duration {
+        self.build + self.solve
+    }
+
+    /// Adds another timing to this one.
+    pub fn absorb(&mut self, other: Timing) {
+        self.build += other.build;
+        self.solve += other.solve;
+        self.runs += other.runs;
+    }
 }
 
 /// The values of the portfolio columns and the scale at the optimum, with the objective value.
@@ -48,69 +99,129 @@ pub struct Solved {
     pub objective: f64,
     /// Values of the tracked columns, in the order they were added.
     pub extra: Vec<f64>,
+    /// How long building and solving took.
+    pub timing: Timing,
 }
+
+/// An LP under construction: columns with bounds, and rows lo ≤ Σ a_j x_j ≤ hi in compressed sparse row form.
+/// The portfolio columns (x, or z = t·x) and the optional scale t are named.
+#[derive(Debug, Clone)]
+pub struct Lp {
+    col_lo: Vec<f64>,
+    col_hi: Vec<f64>,
+    row_lo: Vec<f64>,
+    row_hi: Vec<f64>,
+    row_start: Vec<usize>,
+    row_col: Vec<u32>,
+    row_val: Vec<f64>,
+    pub weights: Vec<Col>,
+    pub scale: Option<Col>,
+    /// Further columns whose values the caller wants back (in `Solved::extra`).
+    tracked: Vec<Col>,
+}
+
+const INF: f64 = f64::INFINITY;
 
 impl Lp {
     /// Portfolio columns with the feasible set X; `scaled` applies the Charnes–Cooper scaling.
     pub fn new(fs: &FeasibleSet, scaled: bool) -> Lp {
-        let mut vars = ProblemVariables::new();
-        let n = fs.lower.len();
-        let weights: Vec<Variable> = if scaled {
-            vars.add_vector(variable().min(0.0), n)
-        } else {
-            (0..n)
-                .map(|i| vars.add(variable().min(fs.lower[i]).max(fs.upper[i])))
-                .collect()
-        };
-        let scale = scaled.then(|| vars.add(variable().min(0.0)));
         let mut lp = Lp {
-            vars,
-            rows: Vec::new(),
-            weights,
-            scale,
+            col_lo: Vec::new(),
+            col_hi: Vec::new(),
+            row_lo: Vec::new(),
+            row_hi: Vec::new(),
+            row_start: vec![0],
+            row_col: Vec::new(),
+            row_val: Vec::new(),
+            weights: Vec::new(),
+            scale: None,
             tracked: Vec::new(),
         };
+        let n = fs.lower.len();
+        lp.weights = (0..n)
+            .map(|i| {
+                if scaled {
+                    lp.column(0.0, INF)
+                } else {
+                    lp.column(fs.lower[i], fs.upper[i])
+                }
+            })
+            .collect();
+        lp.scale = scaled.then(|| lp.column(0.0, INF));
         lp.feasible_set(fs);
         lp
     }
 
-    /// `b` times the scale (b itself when unscaled).
-    fn rhs(&self, b: f64) -> Expression {
+    /// Adds a column lo ≤ x ≤ hi.
+    pub fn column(&mut self, lo: f64, hi: f64) -> Col {
+        self.col_lo.push(lo);
+        self.col_hi.push(hi);
+        Col(self.col_lo.len() - 1)
+    }
+
+    /// Number of columns and rows.
+    pub fn size(&self) -> (usize, usize) {
+        (self.col_lo.len(), self.row_lo.len())
+    }
+
+    /// Adds the row lo ≤ Σ a_j·col_j ≤ hi.
+    pub fn row(&mut self, lo: f64, hi: f64, terms: impl IntoIterator<Item = (Col, f64)>) {
+        for (c, a) in terms {
+            self.row_col.push(c.0 as u32);
+            self.row_val.push(a);
+        }
+        self.row_start.push(self.row_col.len());
+        self.row_lo.push(lo);
+        self.row_hi.push(hi);
+    }
+
+    /// Adds `f ≥ b`.
+    pub fn at_least(&mut self, f: Lin, b: f64) {
+        self.row(b, INF, f.0);
+    }
+
+    /// Adds `f ≤ b`.
+    pub fn at_most(&mut self, f: Lin, b: f64) {
+        self.row(-INF, b, f.0);
+    }
+
+    /// Adds a row of X: `lo ≤ f ≤ hi` with constant bounds, or `lo·t ≤ f ≤ hi·t` when scaled (one row per
+    /// finite side, as the scaled bounds are not constant).
+    fn x_row(&mut self, f: Lin, lo: f64, hi: f64) {
         match self.scale {
-            Some(t) => b * t,
-            None => Expression::from(b),
+            None => self.row(lo, hi, f.0),
+            Some(t) if lo == hi => self.row(0.0, 0.0, f.0.into_iter().chain([(t, -lo)])),
+            Some(t) => {
+                if lo.is_finite() {
+                    self.row(0.0, INF, f.0.iter().copied().chain([(t, -lo)]));
+                }
+                if hi.is_finite() {
+                    self.row(-INF, 0.0, f.0.into_iter().chain([(t, -hi)]));
+                }
+            }
         }
     }
 
-    fn sum_of(&self, members: impl Iterator<Item = usize>) -> Expression {
-        let mut e = Expression::with_capacity(self.weights.len());
-        for i in members {
-            e.add_mul(1.0, self.weights[i]);
-        }
-        e
+    fn sum_of(&self, members: impl Iterator<Item = usize>) -> Lin {
+        Lin(members.map(|i| (self.weights[i], 1.0)).collect())
     }
 
     fn feasible_set(&mut self, fs: &FeasibleSet) {
         let n = self.weights.len();
         let budget = self.sum_of(0..n);
-        self.rows.push(budget.eq(self.rhs(1.0)));
+        self.x_row(budget, 1.0, 1.0);
         if self.scale.is_some() {
             for i in 0..n {
-                if fs.lower[i] > 0.0 {
-                    self.rows
-                        .push(Expression::from(self.weights[i]).geq(self.rhs(fs.lower[i])));
-                }
-                self.rows
-                    .push(Expression::from(self.weights[i]).leq(self.rhs(fs.upper[i])));
+                let lo = if fs.lower[i] > 0.0 { fs.lower[i] } else { -INF };
+                self.x_row(Lin(vec![(self.weights[i], 1.0)]), lo, fs.upper[i]);
             }
         }
         for g in &fs.groups {
             let total = self.sum_of(g.members.iter().copied());
-            if g.min > 0.0 {
-                self.rows.push(total.clone().geq(self.rhs(g.min)));
-            }
-            if g.max < 1.0 {
-                self.rows.push(total.leq(self.rhs(g.max)));
+            let lo = if g.min > 0.0 { g.min } else { -INF };
+            let hi = if g.max < 1.0 { g.max } else { INF };
+            if lo.is_finite() || hi.is_finite() {
+                self.x_row(total, lo, hi);
             }
         }
         if let (Some(tau), Some(cur)) = (fs.turnover_max, &fs.current) {
@@ -120,169 +231,325 @@ impl Lp {
 
     /// d_i ≥ |x_i − current_i| (scaled: |z_i − current_i·t|), Σ d_i ≤ τ.
     fn turnover(&mut self, tau: f64, current: &[f64]) {
-        let d = self.vars.add_vector(variable().min(0.0), current.len());
-        let mut total = Expression::with_capacity(d.len());
+        let d: Vec<Col> = (0..current.len()).map(|_| self.column(0.0, INF)).collect();
         for (i, &di) in d.iter().enumerate() {
-            let diff = Expression::from(self.weights[i]) - self.rhs(current[i]);
-            self.rows.push(Expression::from(di).geq(diff.clone()));
-            self.rows.push(Expression::from(di).geq(-diff));
-            total.add_mul(1.0, di);
+            let w = self.weights[i];
+            // d_i − x_i ≥ −current_i and d_i + x_i ≥ current_i
+            self.x_row(Lin(vec![(di, 1.0), (w, -1.0)]), -current[i], INF);
+            self.x_row(Lin(vec![(di, 1.0), (w, 1.0)]), current[i], INF);
         }
-        self.rows.push(total.leq(self.rhs(tau)));
+        let total = Lin(d.iter().map(|&c| (c, 1.0)).collect());
+        self.x_row(total, -INF, tau);
     }
 
-    /// μ·x as an expression of the portfolio columns.
-    pub fn expected_return(&self, mu: &[f64]) -> Expression {
-        let mut e = Expression::with_capacity(mu.len());
-        for (m, w) in mu.iter().zip(&self.weights) {
-            e.add_mul(*m, *w);
-        }
-        e
+    /// μ·x as a function of the portfolio columns.
+    pub fn expected_return(&self, mu: &[f64]) -> Lin {
+        Lin(self.weights.iter().zip(mu).map(|(&w, &m)| (w, m)).collect())
     }
 
     /// Adds ℓ and u_k with the rows u_k + r_k·x + ℓ ≥ 0, and returns ℓ + 1/(1−c) Σ p_k u_k
     /// (Rockafellar & Uryasev 2000, eq. 17). The rows are homogeneous, so they need no scaling.
-    pub fn cvar(&mut self, set: &ScenarioSet, c: f64) -> Expression {
-        let ell = self.vars.add(variable());
-        let u = self.vars.add_vector(variable().min(0.0), set.len());
-        let mut total = Expression::with_capacity(set.len() + 1);
-        total.add_mul(1.0, ell);
-        for (k, &uk) in u.iter().enumerate() {
-            let mut row = Expression::with_capacity(set.width() + 2);
-            row.add_mul(1.0, uk);
-            row.add_mul(1.0, ell);
-            for (r, w) in set.row(k).iter().zip(&self.weights) {
-                if *r != 0.0 {
-                    row.add_mul(*r, *w);
+    pub fn cvar(&mut self, set: &ScenarioSet, c: f64) -> Lin {
+        let ell = self.column(-INF, INF);
+        let first_u = self.col_lo.len();
+        for _ in 0..set.len() {
+            self.column(0.0, INF);
+        }
+        self.row_col.reserve(set.len() * (set.width() + 2));
+        self.row_val.reserve(set.len() * (set.width() + 2));
+        let mut total = Lin::with_capacity(set.len() + 1);
+        total.add(ell, 1.0);
+        for k in 0..set.len() {
+            let uk = first_u + k;
+            self.row_col.extend([uk as u32, ell.0 as u32]);
+            self.row_val.extend([1.0, 1.0]);
+            for (&r, w) in set.row(k).iter().zip(&self.weights) {
+                if r != 0.0 {
+                    self.row_col.push(w.0 as u32);
+                    self.row_val.push(r);
                 }
             }
-            self.rows.push(row.geq(0.0));
-            total.add_mul(set.probabilities[k] / (1.0 - c), uk);
+            self.row(0.0, INF, []);
+            total.add(Col(uk), set.probabilities[k] / (1.0 - c));
         }
         total
     }
 
     /// Adds a column whose value is returned in `Solved::extra`.
-    pub fn tracked(&mut self, def: good_lp::VariableDefinition) -> Variable {
-        let v = self.vars.add(def);
-        self.tracked.push(v);
-        v
+    pub fn tracked(&mut self, lo: f64, hi: f64) -> Col {
+        let c = self.column(lo, hi);
+        self.tracked.push(c);
+        c
     }
 
     /// The CVaR block of the cutting-plane method (Künzi-Bay & Mayer 2006, "Computational aspects of
     /// minimizing conditional value-at-risk", Computational Management Science 3): columns ℓ (free) and
-    /// w ≥ 0 (tracked, in that order) with one row per cut K ⊆ scenarios,
-    /// w ≥ Σ_{k∈K} p_k (−r_k·x − ℓ); returns ℓ + w/(1−c). With every subset as a cut this is exactly
-    /// CVaR (w = Σ_k p_k (L_k − ℓ)+), so the cuts generated so far give a relaxation.
-    pub fn cvar_cuts(&mut self, set: &ScenarioSet, c: f64, cuts: &[Vec<usize>]) -> Expression {
-        let ell = self.tracked(variable());
-        let w = self.tracked(variable().min(0.0));
-        for cut in cuts {
-            let mut coef = vec![0.0; set.width()];
-            let mut mass = 0.0;
-            for &k in cut {
-                mass += set.probabilities[k];
-                for (a, r) in coef.iter_mut().zip(set.row(k)) {
-                    *a += set.probabilities[k] * r;
-                }
-            }
-            let mut row = Expression::with_capacity(set.width() + 2);
-            row.add_mul(1.0, w);
-            row.add_mul(mass, ell);
-            for (a, x) in coef.iter().zip(&self.weights) {
-                row.add_mul(*a, *x);
-            }
-            self.rows.push(row.geq(0.0));
-        }
-        let mut total = Expression::with_capacity(2);
-        total.add_mul(1.0, ell);
-        total.add_mul(1.0 / (1.0 - c), w);
-        total
-    }
-
-    /// Adds a row.
-    pub fn push(&mut self, row: Constraint) {
-        self.rows.push(row);
+    /// w ≥ 0 (tracked, in that order); the cuts are added by [`Lp::cut`]. Returns ℓ + w/(1−c).
+    pub fn cvar_cuts(&mut self, c: f64) -> (Lin, CutColumns) {
+        let ell = self.tracked(-INF, INF);
+        let w = self.tracked(0.0, INF);
+        (
+            Lin(vec![(ell, 1.0), (w, 1.0 / (1.0 - c))]),
+            CutColumns { ell, w },
+        )
     }
 
     /// Solves with the chosen backend.
     pub fn solve(
-        self,
-        objective: Expression,
+        &self,
+        objective: &Lin,
         maximise: bool,
         backend: Backend,
     ) -> Result<Solved, Failure> {
-        let Lp {
-            vars,
-            rows,
-            weights,
-            scale,
-            tracked,
-        } = self;
-        let unsolved = if maximise {
-            vars.maximise(objective.clone())
-        } else {
-            vars.minimise(objective.clone())
-        };
-        let read = |s: &dyn Solution| Solved {
-            weights: weights.iter().map(|v| s.value(*v)).collect(),
-            scale: scale.map(|t| s.value(t)),
-            objective: objective.eval_with(&SolutionRef(s)),
-            extra: tracked.iter().map(|v| s.value(*v)).collect(),
-        };
         match backend {
-            Backend::Highs => {
-                let mut m = highs(unsolved)
-                    .set_option("primal_feasibility_tolerance", HIGHS_TOLERANCE)
-                    .set_option("dual_feasibility_tolerance", HIGHS_TOLERANCE)
-                    .set_option("threads", 1)
-                    .set_option("random_seed", 0);
-                for r in rows {
-                    m.add_constraint(r);
-                }
-                m.solve().map(|s| read(&s)).map_err(failure)
-            }
-            Backend::Clarabel => {
-                let mut m = clarabel(unsolved);
-                m.settings()
-                    .tol_feas(CLARABEL_TOLERANCE)
-                    .tol_gap_abs(CLARABEL_TOLERANCE)
-                    .tol_gap_rel(CLARABEL_TOLERANCE)
-                    .max_iter(500)
-                    .verbose(false);
-                for r in rows {
-                    m.add_constraint(r);
-                }
-                m.solve().map(|s| read(&s)).map_err(failure)
-            }
+            Backend::Highs => self.to_highs(objective, maximise)?.solve(),
+            Backend::Clarabel => self.solve_clarabel(objective, maximise),
         }
     }
+
+    /// Hands the model to HiGHS; the returned model can be solved, given rows and solved again.
+    pub fn to_highs(&self, objective: &Lin, maximise: bool) -> Result<HighsLp, Failure> {
+        let start = Instant::now();
+        let bounds = [&self.col_lo, &self.col_hi, &self.row_lo, &self.row_hi];
+        if bounds.iter().any(|b| b.iter().any(|v| v.is_nan()))
+            || objective.0.iter().any(|(_, a)| !a.is_finite())
+        {
+            return Err(Failure::Solver(
+                "a bound or coefficient of the LP is not a number (an unresolved cap or floor)"
+                    .into(),
+            ));
+        }
+        let mut cost = vec![0.0; self.col_lo.len()];
+        for &(c, a) in &objective.0 {
+            cost[c.0] += a;
+        }
+        let mut pb = RowProblem::default();
+        let cols: Vec<highs::Col> = (0..self.col_lo.len())
+            .map(|j| pb.add_column(cost[j], self.col_lo[j]..=self.col_hi[j]))
+            .collect();
+        for r in 0..self.row_lo.len() {
+            let span = self.row_start[r]..self.row_start[r + 1];
+            let terms = self.row_col[span.clone()]
+                .iter()
+                .zip(&self.row_val[span])
+                .map(|(&j, &a)| (cols[j as usize], a));
+            pb.add_row(self.row_lo[r]..=self.row_hi[r], terms);
+        }
+        let sense = if maximise {
+            Sense::Maximise
+        } else {
+            Sense::Minimise
+        };
+        let mut model = pb
+            .try_optimise(sense)
+            .map_err(|e| Failure::Solver(format!("HiGHS rejected the model: {e:?}")))?;
+        model.make_quiet();
+        model.set_option("primal_feasibility_tolerance", HIGHS_TOLERANCE);
+        model.set_option("dual_feasibility_tolerance", HIGHS_TOLERANCE);
+        model.set_option("threads", 1);
+        model.set_option("random_seed", 0);
+        let limit = f64::from_bits(TIME_LIMIT.load(Ordering::Relaxed));
+        if limit > 0.0 {
+            model.set_option("time_limit", limit);
+        }
+        Ok(HighsLp {
+            model: Some(model),
+            cols,
+            objective: objective.clone(),
+            weights: self.weights.clone(),
+            scale: self.scale,
+            tracked: self.tracked.clone(),
+            timing: Timing {
+                build: start.elapsed(),
+                ..Timing::default()
+            },
+        })
+    }
+
+    fn solve_clarabel(&self, objective: &Lin, maximise: bool) -> Result<Solved, Failure> {
+        let start = Instant::now();
+        let mut vars = ProblemVariables::new();
+        let v: Vec<good_lp::Variable> = (0..self.col_lo.len())
+            .map(|j| vars.add(variable().min(self.col_lo[j]).max(self.col_hi[j])))
+            .collect();
+        let expr = |terms: &mut dyn Iterator<Item = (usize, f64)>| {
+            let mut e = Expression::default();
+            for (j, a) in terms {
+                e.add_mul(a, v[j]);
+            }
+            e
+        };
+        let goal = expr(&mut objective.0.iter().map(|(c, a)| (c.0, *a)));
+        let unsolved = if maximise {
+            vars.maximise(goal)
+        } else {
+            vars.minimise(goal)
+        };
+        let mut m = clarabel(unsolved);
+        m.settings()
+            .tol_feas(CLARABEL_TOLERANCE)
+            .tol_gap_abs(CLARABEL_TOLERANCE)
+            .tol_gap_rel(CLARABEL_TOLERANCE)
+            .max_iter(500)
+            .verbose(false);
+        for r in 0..self.row_lo.len() {
+            let span = self.row_start[r]..self.row_start[r + 1];
+            let e = expr(
+                &mut self.row_col[span.clone()]
+                    .iter()
+                    .zip(&self.row_val[span])
+                    .map(|(&j, &a)| (j as usize, a)),
+            );
+            let (lo, hi) = (self.row_lo[r], self.row_hi[r]);
+            if lo == hi {
+                m.add_constraint(e.eq(lo));
+            } else {
+                if lo.is_finite() {
+                    m.add_constraint(e.clone().geq(lo));
+                }
+                if hi.is_finite() {
+                    m.add_constraint(e.leq(hi));
+                }
+            }
+        }
+        let built = start.elapsed();
+        let solved = m.solve().map_err(|e| match e {
+            ResolutionError::Infeasible => Failure::Infeasible,
+            ResolutionError::Unbounded => Failure::Unbounded,
+            other => Failure::Solver(other.to_string()),
+        })?;
+        let x: Vec<f64> = v.iter().map(|&var| solved.value(var)).collect();
+        Ok(self.read(
+            &x,
+            objective,
+            Timing {
+                build: built,
+                solve: start.elapsed() - built,
+                runs: 1,
+            },
+        ))
+    }
+
+    fn read(&self, x: &[f64], objective: &Lin, timing: Timing) -> Solved {
+        read_solution(
+            x,
+            objective,
+            &self.weights,
+            self.scale,
+            &self.tracked,
+            timing,
+        )
+    }
 }
 
-/// Lets `eval_with` read values through a trait object.
-struct SolutionRef<'a>(&'a dyn Solution);
-
-impl Solution for SolutionRef<'_> {
-    fn status(&self) -> good_lp::solvers::SolutionStatus {
-        self.0.status()
-    }
-    fn value(&self, v: Variable) -> f64 {
-        self.0.value(v)
+fn read_solution(
+    x: &[f64],
+    objective: &Lin,
+    weights: &[Col],
+    scale: Option<Col>,
+    tracked: &[Col],
+    timing: Timing,
+) -> Solved {
+    Solved {
+        weights: weights.iter().map(|c| x[c.0]).collect(),
+        scale: scale.map(|t| x[t.0]),
+        objective: objective.eval(x),
+        extra: tracked.iter().map(|c| x[c.0]).collect(),
+        timing,
     }
 }
 
-fn failure(e: ResolutionError) -> Failure {
-    match e {
-        ResolutionError::Infeasible => Failure::Infeasible,
-        ResolutionError::Unbounded => Failure::Unbounded,
-        other => Failure::Solver(other.to_string()),
+/// The columns ℓ and w of a cutting-plane CVaR block.
+#[derive(Debug, Clone, Copy)]
+pub struct CutColumns {
+    pub ell: Col,
+    pub w: Col,
+}
+
+/// The cut w + mass·ℓ + Σ_i a_i x_i ≥ 0 for a scenario subset K, with mass = Σ_{k∈K} p_k and
+/// a = Σ_{k∈K} p_k r_k — that is w ≥ Σ_{k∈K} p_k (−r_k·x − ℓ) (Künzi-Bay & Mayer 2006, eq. 9).
+pub fn cut_terms(
+    set: &ScenarioSet,
+    cut: &[usize],
+    weights: &[Col],
+    cc: CutColumns,
+) -> Vec<(Col, f64)> {
+    let mut coef = vec![0.0; set.width()];
+    let mut mass = 0.0;
+    for &k in cut {
+        let p = set.probabilities[k];
+        mass += p;
+        for (a, r) in coef.iter_mut().zip(set.row(k)) {
+            *a += p * r;
+        }
+    }
+    let mut terms = Vec::with_capacity(weights.len() + 2);
+    terms.push((cc.w, 1.0));
+    terms.push((cc.ell, mass));
+    terms.extend(weights.iter().zip(coef).map(|(&x, a)| (x, a)));
+    terms
+}
+
+/// An LP loaded into HiGHS. Rows added after a solve keep the previous basis, so the next solve is a warm
+/// start of the dual simplex method.
+pub struct HighsLp {
+    model: Option<highs::Model>,
+    cols: Vec<highs::Col>,
+    objective: Lin,
+    weights: Vec<Col>,
+    scale: Option<Col>,
+    tracked: Vec<Col>,
+    /// Build and solve time so far.
+    pub timing: Timing,
+}
+
+impl HighsLp {
+    /// Runs HiGHS and reads the solution; the model stays loaded for further rows.
+    pub fn solve(&mut self) -> Result<Solved, Failure> {
+        let start = Instant::now();
+        let model = self.model.take().expect("a loaded model");
+        let solved = model
+            .try_solve()
+            .map_err(|e| Failure::Solver(format!("HiGHS returned status {e:?}")));
+        self.timing.solve += start.elapsed();
+        self.timing.runs += 1;
+        let solved = solved?;
+        let status = solved.status();
+        let result = match status {
+            HighsModelStatus::Optimal => {
+                let x = solved.get_solution().columns().to_vec();
+                Ok(read_solution(
+                    &x,
+                    &self.objective,
+                    &self.weights,
+                    self.scale,
+                    &self.tracked,
+                    self.timing,
+                ))
+            }
+            HighsModelStatus::Infeasible | HighsModelStatus::UnboundedOrInfeasible => {
+                Err(Failure::Infeasible)
+            }
+            HighsModelStatus::Unbounded => Err(Failure::Unbounded),
+            other => Err(Failure::Solver(format!("HiGHS model status {other:?}"))),
+        };
+        self.model = Some(solved.into());
+        result
+    }
+
+    /// Adds the row lo ≤ Σ a_j·col_j ≤ hi to the loaded model.
+    pub fn row(&mut self, lo: f64, hi: f64, terms: &[(Col, f64)]) {
+        let start = Instant::now();
+        let model = self.model.as_mut().expect("a loaded model");
+        model.add_row(lo..=hi, terms.iter().map(|&(c, a)| (self.cols[c.0], a)));
+        self.timing.build += start.elapsed();
     }
 }
 
 /// Solver name and version for the run record.
 pub fn backend_description(backend: Backend) -> String {
     match backend {
-        Backend::Highs => "HiGHS (dual simplex, via good_lp 1.15 / highs 2.4)".to_string(),
+        Backend::Highs => "HiGHS (dual simplex, highs crate 2.4)".to_string(),
         Backend::Clarabel => "Clarabel 0.11 (interior point, via good_lp 1.15)".to_string(),
     }
 }

@@ -15,8 +15,9 @@ pub mod lp;
 use crate::config::{Backend, CapRule, FloorRule};
 use crate::risk;
 use crate::scenarios::ScenarioSet;
-use lp::{Failure, Lp, Solved};
+use lp::{Failure, Lin, Lp, Solved, Timing};
 use serde::Serialize;
+use std::time::Instant;
 
 /// Tolerance of the post-solve feasibility check on reported portfolios.
 pub const FEASIBILITY_TOLERANCE: f64 = 1e-7;
@@ -179,56 +180,67 @@ impl Problem<'_> {
 
     fn solve(&self, kind: Kind, method: Method) -> Result<Solved, Failure> {
         match method {
-            Method::Direct => self.assemble(kind, |lp| lp.cvar(self.set, self.confidence)),
+            Method::Direct => {
+                let start = Instant::now();
+                let mut lp = Lp::new(self.feasible, matches!(kind, Kind::Ratio));
+                let block = match kind {
+                    Kind::MaxReturn(None) => Lin::default(),
+                    _ => lp.cvar(self.set, self.confidence),
+                };
+                let (objective, maximise) = self.shape(&mut lp, kind, block);
+                let built = start.elapsed();
+                let mut solved = lp.solve(&objective, maximise, self.backend)?;
+                solved.timing.build += built;
+                Ok(solved)
+            }
             Method::Cuts => self.cutting_plane(kind),
         }
     }
 
-    /// One LP of the given kind with the given CVaR block.
-    fn assemble(
-        &self,
-        kind: Kind,
-        cvar: impl FnOnce(&mut Lp) -> good_lp::Expression,
-    ) -> Result<Solved, Failure> {
-        let mut lp = Lp::new(self.feasible, matches!(kind, Kind::Ratio));
-        let (objective, maximise) = match kind {
+    /// Adds the model's own row (cap, floor or the Charnes–Cooper normalisation) and returns its
+    /// objective and sense, given the CVaR function `block`.
+    fn shape(&self, lp: &mut Lp, kind: Kind, block: Lin) -> (Lin, bool) {
+        match kind {
             Kind::MaxReturn(cap) => {
                 if let Some(cap) = cap {
-                    let block = cvar(&mut lp);
-                    lp.push(block.leq(cap));
+                    lp.at_most(block, cap);
                 }
                 (lp.expected_return(&self.mu), true)
             }
             Kind::MinCvar(floor) => {
                 if let Some(floor) = floor {
                     let ret = lp.expected_return(&self.mu);
-                    lp.push(ret.geq(floor));
+                    lp.at_least(ret, floor);
                 }
-                (cvar(&mut lp), false)
+                (block, false)
             }
             Kind::Ratio => {
-                let block = cvar(&mut lp);
-                lp.push(block.leq(1.0));
+                lp.at_most(block, 1.0);
                 (lp.expected_return(&self.mu), true)
             }
-        };
-        lp.solve(objective, maximise, self.backend)
+        }
     }
 
     /// Künzi-Bay & Mayer (2006): start from the cut K = all scenarios; after each solve add the cut of the
     /// scenarios whose loss exceeds ℓ — the most violated one — until the true tail term
     /// Σ_k p_k (L_k − ℓ)+ exceeds w by at most the tolerance. The last LP's solution is then feasible for,
     /// and optimal in, the direct LP. Losses are homogeneous in the portfolio columns, so the same cuts
-    /// serve the Charnes–Cooper scaled LP.
+    /// serve the Charnes–Cooper scaled LP. With HiGHS the model stays loaded and each cut is one added
+    /// row, so every round after the first is a warm-started dual simplex.
     fn cutting_plane(&self, kind: Kind) -> Result<Solved, Failure> {
         if matches!(kind, Kind::MaxReturn(None)) {
-            return self.assemble(kind, |_| unreachable!("no CVaR in this LP"));
+            return self.solve(kind, Method::Direct);
         }
+        let start = Instant::now();
+        let mut timing = Timing::default();
         // The relaxed ratio LP is unbounded until enough cuts exist; t = 1/CVaR(x) ≤ 1/min CVaR over X is a
         // valid bound that keeps every relaxation bounded without cutting off the optimum.
         let t_max = match kind {
             Kind::Ratio => match self.min_cvar_by(None, Method::Cuts) {
-                Ok(m) if m.objective > 0.0 => Some((1.0 + 1e-6) / m.objective),
+                Ok(m) if m.objective > 0.0 => {
+                    timing.absorb(m.timing);
+                    Some((1.0 + 1e-6) / m.objective)
+                }
                 Ok(m) => {
                     return Err(Failure::Solver(format!(
                         "minimum CVaR {:.3e} ≤ 0: the ratio LP does not apply",
@@ -239,15 +251,20 @@ impl Problem<'_> {
             },
             _ => None,
         };
-        let mut cuts: Vec<Vec<usize>> = vec![(0..self.set.len()).collect()];
+        let aux = start.elapsed();
+        let mut lp = Lp::new(self.feasible, matches!(kind, Kind::Ratio));
+        let (block, cc) = lp.cvar_cuts(self.confidence);
+        if let (Some(t), Some(bound)) = (lp.scale, t_max) {
+            lp.at_most(Lin(vec![(t, 1.0)]), bound);
+        }
+        let (objective, maximise) = self.shape(&mut lp, kind, block);
+        let all: Vec<usize> = (0..self.set.len()).collect();
+        let first = lp::cut_terms(self.set, &all, &lp.weights, cc);
+        let mut session = Session::new(&lp, &objective, maximise, self.backend)?;
+        session.cut(&mut lp, &first);
+        let mut last_cut = all;
         for _ in 0..MAX_CUT_ROUNDS {
-            let solved = self.assemble(kind, |lp| {
-                let block = lp.cvar_cuts(self.set, self.confidence, &cuts);
-                if let (Some(t), Some(bound)) = (lp.scale, t_max) {
-                    lp.push(good_lp::Expression::from(t).leq(bound));
-                }
-                block
-            })?;
+            let mut solved = session.solve(&lp, &objective, maximise)?;
             let (ell, w) = (solved.extra[0], solved.extra[1]);
             let losses: Vec<f64> = self
                 .set
@@ -260,12 +277,63 @@ impl Problem<'_> {
                 .iter()
                 .map(|&k| self.set.probabilities[k] * (losses[k] - ell))
                 .sum();
-            if excess <= w + CUT_TOLERANCE * (1.0 + w.abs()) || cuts.last() == Some(&tail) {
+            if excess <= w + CUT_TOLERANCE * (1.0 + w.abs()) || last_cut == tail {
+                let own = session.timing();
+                timing.absorb(own);
+                // Everything outside the solver (setup, loss evaluation, cut sums) counts as building.
+                timing.build += (start.elapsed() - aux).saturating_sub(own.build + own.solve);
+                solved.timing = timing;
                 return Ok(solved);
             }
-            cuts.push(tail);
+            let terms = lp::cut_terms(self.set, &tail, &lp.weights, cc);
+            session.cut(&mut lp, &terms);
+            last_cut = tail;
         }
-        self.assemble(kind, |lp| lp.cvar(self.set, self.confidence))
+        self.solve(kind, Method::Direct)
+    }
+}
+
+/// The LP of a cutting-plane loop: with HiGHS one loaded model that receives each cut; with Clarabel,
+/// which has no warm start here, the whole LP is solved again with the cuts so far.
+enum Session {
+    Highs(lp::HighsLp),
+    Rebuild { backend: Backend, timing: Timing },
+}
+
+impl Session {
+    fn new(lp: &Lp, objective: &Lin, maximise: bool, backend: Backend) -> Result<Session, Failure> {
+        Ok(match backend {
+            Backend::Highs => Session::Highs(lp.to_highs(objective, maximise)?),
+            other => Session::Rebuild {
+                backend: other,
+                timing: Timing::default(),
+            },
+        })
+    }
+
+    fn cut(&mut self, lp: &mut Lp, terms: &[(lp::Col, f64)]) {
+        match self {
+            Session::Highs(h) => h.row(0.0, f64::INFINITY, terms),
+            Session::Rebuild { .. } => lp.row(0.0, f64::INFINITY, terms.iter().copied()),
+        }
+    }
+
+    fn solve(&mut self, lp: &Lp, objective: &Lin, maximise: bool) -> Result<Solved, Failure> {
+        match self {
+            Session::Highs(h) => h.solve(),
+            Session::Rebuild { backend, timing } => {
+                let s = lp.solve(objective, maximise, *backend)?;
+                timing.absorb(s.timing);
+                Ok(s)
+            }
+        }
+    }
+
+    fn timing(&self) -> Timing {
+        match self {
+            Session::Highs(h) => h.timing,
+            Session::Rebuild { timing, .. } => *timing,
+        }
     }
 }
 
@@ -451,7 +519,7 @@ pub fn explain_empty(fs: &FeasibleSet, names: &[String], backend: Backend) -> Op
 
 fn is_feasible(fs: &FeasibleSet, backend: Backend) -> bool {
     let lp = Lp::new(fs, false);
-    lp.solve(Default::default(), false, backend).is_ok()
+    lp.solve(&Lin::default(), false, backend).is_ok()
 }
 
 fn relaxation_hint(fs: &FeasibleSet, _names: &[String], backend: Backend) -> String {

@@ -38,9 +38,11 @@ pub const RESULTS_JSON: &str = "/data/results.json";
 
 /// Typesets the pack PDF of a run. `results` is the `results.json` document and `pack_id` its identifier.
 pub fn render(r: &RunResult, results: &Value, pack_id: &str) -> Result<Vec<u8>> {
-    let world = world(r, results, pack_id)?;
-    let doc = compile(&world)?;
-    export(&world, &doc, pack_id)
+    let world = crate::timings::time("charts", || world(r, results, pack_id))?;
+    crate::timings::time("typesetting", || {
+        let doc = compile(&world)?;
+        export(&world, &doc, pack_id)
+    })
 }
 
 fn world(r: &RunResult, results: &Value, pack_id: &str) -> Result<ReportWorld> {

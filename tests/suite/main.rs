@@ -3,6 +3,7 @@
 mod analysis;
 mod archive;
 mod bad_inputs;
+mod bench;
 mod cli;
 mod common;
 mod demo;

@@ -1,0 +1,446 @@
+//! `tailpack bench`: the three CVaR models on synthetic problems of chosen sizes, model building and
+//! solving timed separately (median of several runs); optionally the identical problems solved by an
+//! external reference script in the same run, with the time ratio and the objective difference; and the
+//! demo pack end to end with its stage timings and peak memory. It prints figures; nothing here is a test.
+//!
+//! The synthetic problems are invented and deterministic (seeded): fat-tailed one- and two-factor returns,
+//! bounds, four group caps and a turnover limit around equal weights — every kind of row a fund's
+//! feasible set has. The CVaR cap is the equal-weight portfolio's CVaR and the return floor its expected
+//! return, so all three models are feasible by construction and need no auxiliary LP.
+
+use crate::config::Backend;
+use crate::demo::Rng;
+use crate::error::{Error, Result};
+use crate::models::lp::{self, Solved};
+use crate::models::{self, FeasibleSet, Group, Method, Problem};
+use crate::risk;
+use crate::scenarios::ScenarioSet;
+use std::io::Write;
+use std::path::{Path, PathBuf};
+use std::process::Command;
+use std::time::{Duration, Instant};
+
+/// The default sizes (assets N, scenarios S).
+pub const DEFAULT_SIZES: [(usize, usize); 6] = [
+    (40, 200),
+    (440, 200),
+    (100, 2_500),
+    (500, 5_000),
+    (500, 20_000),
+    (1_000, 50_000),
+];
+
+/// After a run this long, further runs of the same LP are skipped (the median is then of fewer runs).
+const LONG_RUN: Duration = Duration::from_secs(20);
+
+/// An external solver to run on the same problems.
+#[derive(Debug, Clone)]
+pub struct Reference {
+    /// The interpreter, e.g. `python3`.
+    pub program: String,
+    /// The script, e.g. `tests/reference/bench_reference.py`.
+    pub script: PathBuf,
+}
+
+/// What `tailpack bench` does.
+#[derive(Debug, Clone)]
+pub struct BenchOptions {
+    pub sizes: Vec<(usize, usize)>,
+    /// Runs per LP (the median is reported).
+    pub runs: usize,
+    pub reference: Option<Reference>,
+    /// Where the cutting-plane method is used, also time the direct LP.
+    pub direct_too: bool,
+    /// Wall-clock limit per LP run for the direct LPs at large sizes and the reference, in seconds.
+    pub time_limit: f64,
+    /// A config to build end to end, with stage timings.
+    pub demo: Option<PathBuf>,
+    /// Scratch folder for problem files and the demo pack.
+    pub work: PathBuf,
+}
+
+/// A synthetic problem.
+pub struct Synthetic {
+    pub set: ScenarioSet,
+    pub feasible: FeasibleSet,
+    pub confidence: f64,
+    pub cap: f64,
+    pub floor: f64,
+}
+
+/// A deterministic synthetic problem with `n` assets and `s` equally likely scenarios.
+pub fn synthetic(n: usize, s: usize, seed: u64) -> Synthetic {
+    let mut rng = Rng::from_seed(seed ^ ((n as u64) << 32) ^ s as u64);
+    let assets: Vec<(f64, f64, f64, f64)> = (0..n)
+        .map(|_| {
+            let drift = 0.002 + 0.008 * rng.uniform();
+            let vol = 0.02 + 0.06 * rng.uniform();
+            let b1 = 0.3 + 0.5 * rng.uniform();
+            let b2 = 0.6 * rng.uniform() - 0.3;
+            (drift, vol, b1, b2)
+        })
+        .collect();
+    let mut returns = Vec::with_capacity(n * s);
+    for _ in 0..s {
+        let (f1, f2) = (rng.student_t4(), rng.student_t4());
+        for &(drift, vol, b1, b2) in &assets {
+            let own = (1.0 - b1 * b1 - b2 * b2).sqrt();
+            returns.push(drift + vol * (b1 * f1 + b2 * f2 + own * rng.normal()));
+        }
+    }
+    let names = (0..n).map(|i| format!("SYN{i:04}")).collect();
+    let set = ScenarioSet::from_matrix(names, returns, vec![1.0 / s as f64; s])
+        .expect("a well-formed synthetic matrix");
+    let equal = vec![1.0 / n as f64; n];
+    let groups = (0..4)
+        .map(|g| Group {
+            name: format!("group{g}"),
+            members: (g..n).step_by(4).collect(),
+            min: 0.0,
+            max: 0.35,
+        })
+        .collect();
+    let feasible = FeasibleSet {
+        lower: vec![0.0; n],
+        upper: vec![(4.0 / n as f64).min(1.0); n],
+        groups,
+        turnover_max: Some(0.8),
+        current: Some(equal.clone()),
+    };
+    let confidence = 0.95;
+    let cap = risk::cvar_of(&set, &equal, confidence);
+    let floor = models::dot(&set.mean(), &equal);
+    Synthetic {
+        set,
+        feasible,
+        confidence,
+        cap,
+        floor,
+    }
+}
+
+/// The three models, by name.
+pub const MODELS: [&str; 3] = ["max_return", "min_cvar", "max_ratio"];
+
+fn solve_model(
+    p: &Problem,
+    sy: &Synthetic,
+    model: &str,
+    method: Method,
+) -> std::result::Result<Solved, lp::Failure> {
+    match model {
+        "max_return" => p.max_return_by(Some(sy.cap), method),
+        "min_cvar" => p.min_cvar_by(Some(sy.floor), method),
+        _ => p.max_ratio_by(method),
+    }
+}
+
+/// Medians of repeated runs of one LP.
+#[derive(Debug, Clone)]
+pub struct Measured {
+    pub build: Duration,
+    pub solve: Duration,
+    pub runs: usize,
+    /// Solver runs per solve (1 for the direct LP; cut rounds, plus the auxiliary LP's, for cuts).
+    pub rounds: usize,
+    pub objective: Option<f64>,
+    pub status: String,
+}
+
+impl Measured {
+    /// Build plus solve.
+    pub fn total(&self) -> Duration {
+        self.build + self.solve
+    }
+}
+
+fn median(mut v: Vec<Duration>) -> Duration {
+    v.sort();
+    v[v.len() / 2]
+}
+
+/// Times one model with one method, `runs` times (fewer after a long run).
+pub fn measure(p: &Problem, sy: &Synthetic, model: &str, method: Method, runs: usize) -> Measured {
+    let (mut builds, mut solves) = (Vec::new(), Vec::new());
+    let mut last: Option<std::result::Result<Solved, lp::Failure>> = None;
+    for _ in 0..runs.max(1) {
+        let r = solve_model(p, sy, model, method);
+        let t = r.as_ref().map(|s| s.timing).unwrap_or_default();
+        builds.push(t.build);
+        solves.push(t.solve);
+        let long = t.build + t.solve > LONG_RUN;
+        last = Some(r);
+        if long {
+            break;
+        }
+    }
+    let (objective, status, rounds) = match last.expect("at least one run") {
+        Ok(Solved {
+            objective, timing, ..
+        }) => (Some(objective), "optimal".to_string(), timing.runs),
+        Err(e) => (None, format!("{e:?}"), 0),
+    };
+    Measured {
+        runs: builds.len(),
+        build: median(builds),
+        solve: median(solves),
+        rounds,
+        objective,
+        status,
+    }
+}
+
+/// One model of the reference script's output.
+#[derive(Debug, Clone)]
+pub struct RefMeasured {
+    pub build: Duration,
+    pub solve: Duration,
+    pub objective: Option<f64>,
+    pub status: String,
+}
+
+/// Writes a problem for the reference script: `<stem>.f64` (the S×N return matrix, row-major,
+/// little-endian IEEE doubles) and `<stem>.json` (everything else). Returns the JSON path.
+pub fn write_problem(sy: &Synthetic, dir: &Path, runs: usize, time_limit: f64) -> Result<PathBuf> {
+    let stem = format!("bench-{}x{}", sy.set.width(), sy.set.len());
+    let matrix = dir.join(format!("{stem}.f64"));
+    let bytes: Vec<u8> = sy
+        .set
+        .returns
+        .iter()
+        .flat_map(|v| v.to_le_bytes())
+        .collect();
+    crate::error::fs::write(&matrix, bytes)?;
+    let fs = &sy.feasible;
+    let doc = serde_json::json!({
+        "assets": sy.set.width(),
+        "scenarios": sy.set.len(),
+        "returns_file": format!("{stem}.f64"),
+        "probabilities": sy.set.probabilities,
+        "confidence": sy.confidence,
+        "lower": fs.lower,
+        "upper": fs.upper,
+        "groups": fs.groups.iter().map(|g| serde_json::json!({"members": g.members, "min": g.min, "max": g.max})).collect::<Vec<_>>(),
+        "current": fs.current,
+        "turnover_max": fs.turnover_max,
+        "cvar_cap": sy.cap,
+        "return_floor": sy.floor,
+        "runs": runs,
+        "time_limit": time_limit,
+        "long_run_seconds": LONG_RUN.as_secs_f64(),
+    });
+    let path = dir.join(format!("{stem}.json"));
+    crate::error::fs::write(&path, serde_json::to_vec_pretty(&doc).expect("json"))?;
+    Ok(path)
+}
+
+/// Runs the reference script on a problem file; it prints one JSON object per model.
+pub fn run_reference(r: &Reference, problem: &Path) -> Result<Vec<(String, RefMeasured)>> {
+    let out = Command::new(&r.program)
+        .arg(&r.script)
+        .arg(problem)
+        .output()
+        .map_err(|e| {
+            Error::Run(format!(
+                "cannot start {} {}: {e}",
+                r.program,
+                r.script.display()
+            ))
+        })?;
+    if !out.status.success() {
+        return Err(Error::Run(format!(
+            "the reference script {} failed: {}",
+            r.script.display(),
+            String::from_utf8_lossy(&out.stderr).trim()
+        )));
+    }
+    let secs =
+        |v: &serde_json::Value| Duration::from_secs_f64(v.as_f64().unwrap_or(f64::NAN).max(0.0));
+    String::from_utf8_lossy(&out.stdout)
+        .lines()
+        .filter(|l| l.starts_with('{'))
+        .map(|l| {
+            let v: serde_json::Value = serde_json::from_str(l)
+                .map_err(|e| Error::Run(format!("reference output `{l}`: {e}")))?;
+            Ok((
+                v["model"].as_str().unwrap_or("?").to_string(),
+                RefMeasured {
+                    build: secs(&v["build_seconds"]),
+                    solve: secs(&v["solve_seconds"]),
+                    objective: v["objective"].as_f64(),
+                    status: v["status"].as_str().unwrap_or("?").to_string(),
+                },
+            ))
+        })
+        .collect()
+}
+
+fn ms(d: Duration) -> String {
+    let m = d.as_secs_f64() * 1e3;
+    if m >= 100.0 {
+        format!("{m:.0}")
+    } else if m >= 10.0 {
+        format!("{m:.1}")
+    } else {
+        format!("{m:.2}")
+    }
+}
+
+fn rel_diff(a: Option<f64>, b: Option<f64>) -> String {
+    match (a, b) {
+        (Some(a), Some(b)) => format!("{:.1e}", (a - b).abs() / b.abs().max(1e-12)),
+        _ => "-".into(),
+    }
+}
+
+const HEADER: &str = "| N | S | model | method | rounds | runs | build ms | solve ms | total ms | direct total ms | direct / cuts | direct Δobj | ref build ms | ref solve ms | tailpack / ref | ref Δobj |\n|---:|---:|---|---|---:|---:|---:|---:|---:|---:|---:|---:|---:|---:|---:|---:|";
+
+/// Runs the benchmark, writing the table to `out` as it goes.
+pub fn run(opts: &BenchOptions, out: &mut dyn Write) -> Result<()> {
+    crate::error::fs::create_dir_all(&opts.work)?;
+    let w = |out: &mut dyn Write, s: &str| {
+        let _ = writeln!(out, "{s}");
+        let _ = out.flush();
+    };
+    w(
+        out,
+        &format!(
+            "tailpack {} bench: HiGHS {}, {} run(s) per LP (median; one run after a run over {} s), time limit {} s per direct/reference LP",
+            env!("CARGO_PKG_VERSION"),
+            lp::backend_description(Backend::Highs),
+            opts.runs,
+            LONG_RUN.as_secs(),
+            opts.time_limit
+        ),
+    );
+    w(
+        out,
+        &format!(
+            "cutting planes from {} scenarios on; build = assembling the LP and handing it to the solver (plus cut generation), solve = inside the solver",
+            models::CUTS_FROM_SCENARIOS
+        ),
+    );
+    w(out, "");
+    w(out, HEADER);
+    for &(n, s) in &opts.sizes {
+        bench_size(opts, n, s, out)?;
+    }
+    if let Some(config) = &opts.demo {
+        w(out, "");
+        w(out, &demo_end_to_end(config, &opts.work)?);
+    }
+    Ok(())
+}
+
+fn bench_size(opts: &BenchOptions, n: usize, s: usize, out: &mut dyn Write) -> Result<()> {
+    let sy = synthetic(n, s, 20_261_130);
+    let p = Problem {
+        set: &sy.set,
+        mu: sy.set.mean(),
+        confidence: sy.confidence,
+        feasible: &sy.feasible,
+        backend: Backend::Highs,
+    };
+    let method = p.method();
+    let reference = match &opts.reference {
+        Some(r) => {
+            let file = write_problem(&sy, &opts.work, opts.runs, opts.time_limit)?;
+            run_reference(r, &file)?
+        }
+        None => vec![],
+    };
+    for model in MODELS {
+        let auto = measure(&p, &sy, model, method, opts.runs);
+        let direct = (method == Method::Cuts && opts.direct_too).then(|| {
+            lp::set_time_limit(Some(opts.time_limit));
+            let d = measure(&p, &sy, model, Method::Direct, opts.runs);
+            lp::set_time_limit(None);
+            d
+        });
+        let r = reference.iter().find(|(m, _)| m == model).map(|(_, r)| r);
+        let cell = |v: Option<String>| v.unwrap_or_else(|| "-".into());
+        let line = format!(
+            "| {n} | {s} | {model} | {} | {} | {} | {} | {} | {} | {} | {} | {} | {} | {} | {} | {} |",
+            match method {
+                Method::Direct => "direct",
+                Method::Cuts => "cuts",
+            },
+            auto.rounds,
+            auto.runs,
+            ms(auto.build),
+            ms(auto.solve),
+            if auto.status == "optimal" {
+                ms(auto.total())
+            } else {
+                auto.status.clone()
+            },
+            cell(direct.as_ref().map(|d| limited(d, opts.time_limit))),
+            cell(direct.as_ref().map(|d| format!(
+                "{:.1}×",
+                d.total().as_secs_f64() / auto.total().as_secs_f64()
+            ))),
+            cell(
+                direct
+                    .as_ref()
+                    .map(|d| rel_diff(auto.objective, d.objective))
+            ),
+            cell(r.map(|r| ms(r.build))),
+            cell(r.map(|r| if r.status == "optimal" {
+                ms(r.solve)
+            } else {
+                format!("{} ({})", ms(r.solve), r.status)
+            })),
+            cell(r.map(|r| format!(
+                "{:.2}",
+                auto.total().as_secs_f64() / (r.build + r.solve).as_secs_f64()
+            ))),
+            cell(r.map(|r| rel_diff(auto.objective, r.objective))),
+        );
+        let _ = writeln!(out, "{line}");
+        let _ = out.flush();
+    }
+    Ok(())
+}
+
+fn limited(d: &Measured, limit: f64) -> String {
+    if d.status == "optimal" {
+        ms(d.total())
+    } else if d.total().as_secs_f64() >= limit * 0.99 {
+        format!("> {}", ms(d.total()))
+    } else {
+        d.status.clone()
+    }
+}
+
+/// Builds the pack of `config` into a scratch root with a child `tailpack run --timings` and returns its
+/// stage table, wall time and peak memory.
+pub fn demo_end_to_end(config: &Path, work: &Path) -> Result<String> {
+    let exe = std::env::current_exe()
+        .map_err(|e| Error::Run(format!("cannot find the tailpack binary: {e}")))?;
+    let root = work.join("demo-packs");
+    let _ = std::fs::remove_dir_all(&root);
+    let start = Instant::now();
+    let child = Command::new(exe)
+        .arg("run")
+        .arg(config)
+        .arg("--out")
+        .arg(&root)
+        .arg("--quiet")
+        .arg("--timings")
+        .output()
+        .map_err(|e| Error::Run(format!("cannot start tailpack run: {e}")))?;
+    let wall = start.elapsed();
+    let stderr = String::from_utf8_lossy(&child.stderr);
+    if !child.status.success() {
+        return Err(Error::Run(format!(
+            "the demo run failed: {}",
+            stderr.trim()
+        )));
+    }
+    Ok(format!(
+        "demo pack end to end ({}): {:.2} s wall as seen from outside\n{}",
+        config.display(),
+        wall.as_secs_f64(),
+        stderr.trim_end()
+    ))
+}

@@ -1,0 +1,122 @@
+//! The benchmark harness: its synthetic problems, its reference script and its table. Timings are not
+//! asserted (they are figures, not tests); what is asserted is that the problems it times are the right
+//! ones — the same optimum from tailpack, from the direct and cutting-plane LPs, and from scipy.
+
+use crate::common::Fixture;
+use tailpack::bench::{self, Reference};
+use tailpack::config::Backend;
+use tailpack::models::{Method, Problem};
+
+fn repo() -> std::path::PathBuf {
+    std::path::PathBuf::from(env!("CARGO_MANIFEST_DIR"))
+}
+
+fn problem(sy: &bench::Synthetic) -> Problem<'_> {
+    Problem {
+        set: &sy.set,
+        mu: sy.set.mean(),
+        confidence: sy.confidence,
+        feasible: &sy.feasible,
+        backend: Backend::Highs,
+    }
+}
+
+fn rel(a: f64, b: f64) -> f64 {
+    (a - b).abs() / b.abs().max(1e-12)
+}
+
+/// The bench's problems solved by the reference script (scipy.optimize.linprog, method "highs", with an
+/// LP built there independently from the raw data) give tailpack's optimum to 1e-7 relative.
+#[test]
+fn bench_problems_match_scipy_highs() {
+    let dir = tempfile::tempdir().unwrap();
+    let sy = bench::synthetic(16, 400, 7);
+    let file = bench::write_problem(&sy, dir.path(), 1, 60.0).unwrap();
+    let reference = Reference {
+        program: "python3".into(),
+        script: repo().join("tests/reference/bench_reference.py"),
+    };
+    let got = bench::run_reference(&reference, &file)
+        .expect("python3 with scipy (tests/reference/requirements.txt)");
+    assert_eq!(got.len(), 3, "one line per model");
+    let p = problem(&sy);
+    for (model, r) in got {
+        assert_eq!(r.status, "optimal", "{model}");
+        let ours = bench::measure(&p, &sy, &model, Method::Direct, 1)
+            .objective
+            .unwrap();
+        let theirs = r.objective.unwrap();
+        assert!(
+            rel(ours, theirs) < 1e-7,
+            "{model}: tailpack {ours} vs scipy {theirs}"
+        );
+    }
+}
+
+/// The cutting-plane method (Künzi-Bay & Mayer 2006) with the warm-started HiGHS model reaches the direct
+/// Rockafellar–Uryasev LP's optimum to 1e-7 relative on a bench problem with every kind of row (bounds,
+/// group caps, turnover), for all three models, and its portfolio satisfies the constraints.
+#[test]
+fn cutting_planes_match_the_direct_lp_on_a_bench_problem() {
+    let sy = bench::synthetic(60, 4_000, 11);
+    let p = problem(&sy);
+    for model in bench::MODELS {
+        let direct = bench::measure(&p, &sy, model, Method::Direct, 1);
+        let cuts = bench::measure(&p, &sy, model, Method::Cuts, 1);
+        let (d, c) = (direct.objective.unwrap(), cuts.objective.unwrap());
+        assert!(rel(c, d) < 1e-7, "{model}: cuts {c} vs direct {d}");
+        assert!(
+            cuts.rounds > 1,
+            "{model}: the cut loop ran more than one LP"
+        );
+    }
+    let w = p.max_return_by(Some(sy.cap), Method::Cuts).unwrap().weights;
+    let v = tailpack::models::verify(&p, &w, Some(sy.cap), None);
+    assert!(v < 1e-7, "cut solution violates its constraints by {v}");
+}
+
+/// The synthetic problems are deterministic: the same size and seed give the same matrix.
+#[test]
+fn synthetic_problems_are_reproducible() {
+    let a = bench::synthetic(9, 50, 3);
+    let b = bench::synthetic(9, 50, 3);
+    assert_eq!(a.set.returns, b.set.returns);
+    assert_ne!(a.set.returns, bench::synthetic(9, 50, 4).set.returns);
+}
+
+/// `tailpack bench` prints one table row per model and size, and refuses a malformed size.
+#[test]
+fn bench_command_prints_a_row_per_model() {
+    let f = Fixture::new();
+    let r = f.run(&[
+        "bench",
+        "--sizes",
+        "8x60,12x90",
+        "--runs",
+        "1",
+        "--work",
+        "scratch",
+    ]);
+    assert_eq!(r.code, 0, "{}", r.stderr);
+    let rows: Vec<&str> = r
+        .stdout
+        .lines()
+        .filter(|l| l.starts_with("| 8 |") || l.starts_with("| 12 |"))
+        .collect();
+    assert_eq!(rows.len(), 6, "{}", r.stdout);
+    for m in bench::MODELS {
+        assert_eq!(
+            rows.iter()
+                .filter(|l| l.contains(&format!("| {m} |")))
+                .count(),
+            2
+        );
+    }
+    let bad = f.run(&["bench", "--sizes", "12by90"]);
+    assert_eq!(bad.code, 1);
+    assert!(
+        bad.stderr.contains("`12by90` is not ASSETSxSCENARIOS"),
+        "{}",
+        bad.stderr
+    );
+}
