@@ -5,6 +5,7 @@
 //! result. This module reads files only through [`table`]; later stages see only [`MarketData`].
 
 pub mod meta;
+pub mod parquet_guard;
 pub mod prices;
 pub mod quality;
 pub mod table;

@@ -313,32 +313,64 @@ fn split_fields(line: &str) -> (Vec<&str>, bool) {
     (cells, quoted)
 }
 
-/// The four bytes that open and close every Parquet file.
-const PARQUET_MAGIC: &[u8; 4] = b"PAR1";
-
 fn parse_parquet(path: &Path, bytes: &[u8]) -> Result<TextTable> {
     let n = bytes.len();
-    if n < 12 || !bytes.starts_with(PARQUET_MAGIC) {
-        return Err(Error::data(
-            path,
-            format!(
-                "byte 0: not a Parquet file (it is {n} bytes and does not start with the Parquet marker `PAR1`); write the prices as Parquet or CSV"
-            ),
-        ));
-    }
-    if !bytes.ends_with(PARQUET_MAGIC) {
-        return Err(Error::data(
-            path,
-            format!(
-                "byte {}: the Parquet file is truncated (it is {n} bytes and does not end with the Parquet marker `PAR1`); copy or write the file again",
-                n - 4
-            ),
-        ));
-    }
-    let df = ParquetReader::new(std::io::Cursor::new(bytes))
-        .finish()
-        .map_err(|e| Error::data(path, format!("cannot be read as Parquet ({n} bytes; damaged or not written by a Parquet writer?): {e}")))?;
+    super::parquet_guard::check(path, bytes)?;
+    let read = quiet_catch(|| ParquetReader::new(std::io::Cursor::new(bytes)).finish());
+    let df = match read {
+        Ok(r) => r.map_err(|e| {
+            Error::data(
+                path,
+                format!("cannot be read as Parquet ({n} bytes; damaged or not written by a Parquet writer?): {e}"),
+            )
+        })?,
+        Err(what) => {
+            return Err(Error::data(
+                path,
+                format!(
+                    "cannot be read as Parquet ({n} bytes): its data pages are damaged (the Parquet decoder stopped: {}); write the file again from its source",
+                    truncate(&what, 120)
+                ),
+            ));
+        }
+    };
     frame_to_text(path, &df)
+}
+
+/// Readers inside [`quiet_catch`] now; while any are, a panic prints nothing.
+static QUIET_READERS: std::sync::atomic::AtomicUsize = std::sync::atomic::AtomicUsize::new(0);
+
+/// Runs `f`, turning a panic inside it into `Err` with the panic's message on one line.
+///
+/// The Parquet decoder panics on some damaged pages instead of returning an error; such a file is bad data
+/// and gets a data error like any other, so the panic must neither end the run nor print the decoder's
+/// own report. The panic hook installed here (once, wrapping whatever hook was there) stays silent while
+/// a reader runs in `quiet_catch` and defers to the previous hook otherwise, so panics anywhere else are
+/// reported as before. Silence covers all threads, as the decoder may panic on a worker thread of its own.
+fn quiet_catch<T>(f: impl FnOnce() -> T) -> std::result::Result<T, String> {
+    use std::sync::atomic::Ordering;
+    static HOOK: std::sync::Once = std::sync::Once::new();
+    HOOK.call_once(|| {
+        let previous = std::panic::take_hook();
+        std::panic::set_hook(Box::new(move |info| {
+            if QUIET_READERS.load(Ordering::SeqCst) == 0 {
+                previous(info);
+            }
+        }));
+    });
+    QUIET_READERS.fetch_add(1, Ordering::SeqCst);
+    let r = std::panic::catch_unwind(std::panic::AssertUnwindSafe(f));
+    QUIET_READERS.fetch_sub(1, Ordering::SeqCst);
+    r.map_err(|payload| {
+        let text = if let Some(s) = payload.downcast_ref::<&str>() {
+            (*s).to_string()
+        } else if let Some(s) = payload.downcast_ref::<String>() {
+            s.clone()
+        } else {
+            "no message".to_string()
+        };
+        text.split_whitespace().collect::<Vec<_>>().join(" ")
+    })
 }
 
 /// Turns every column into optional strings (numbers with round-trip precision, dates as ISO text).

@@ -104,6 +104,14 @@ cases!(
     parquet_text_date_column_garbage,
     parquet_truncated,
     parquet_csv_in_disguise,
+    parquet_footer_length_beyond_file,
+    parquet_hand_written_plain,
+    parquet_page_decoded_size_huge,
+    parquet_page_stored_size_huge,
+    parquet_row_count_huge,
+    parquet_row_group_list_huge,
+    parquet_value_count_huge,
+    parquet_chunk_past_end,
     metadata_no_class_column,
     metadata_weight_above_one,
     metadata_min_above_max,
@@ -394,8 +402,63 @@ fn generate(what: &str, dir: &Path) -> Vec<String> {
             // The message names the byte where the closing marker `PAR1` should start.
             vec![format!("byte {}", half - 4), format!("it is {half} bytes")]
         }
+        "parquet_footer_length" => {
+            let path = dir.join("prices.parquet");
+            write_good_parquet(&good, &path);
+            let mut bytes = std::fs::read(&path).unwrap();
+            let n = bytes.len();
+            // The 4-byte little-endian metadata length just before the closing `PAR1` (Parquet format
+            // specification, "File format") now claims 2 GiB − 1.
+            bytes[n - 8..n - 4].copy_from_slice(&0x7fff_ffffu32.to_le_bytes());
+            std::fs::write(&path, &bytes).unwrap();
+            vec![
+                format!("byte {}", n - 8),
+                "2147483647 bytes of metadata".into(),
+                format!("only {n} bytes"),
+            ]
+        }
+        g if g.starts_with("parquet_hand_") => {
+            use super::parquet_bytes::{Damage, write};
+            let damage = match g {
+                "parquet_hand_plain" => Damage::None,
+                "parquet_hand_page_decoded_size" => Damage::PageDecodedSize,
+                "parquet_hand_page_stored_size" => Damage::PageStoredSize,
+                "parquet_hand_row_count" => Damage::RowCount,
+                "parquet_hand_row_group_list" => Damage::RowGroupListLength,
+                "parquet_hand_value_count" => Damage::ValueCount,
+                "parquet_hand_chunk_past_end" => Damage::ChunkPastEnd,
+                other => panic!("unknown generator `{other}`"),
+            };
+            let (dates, cols) = good_columns(&good);
+            let (bytes, at) = write(
+                &dates,
+                &[("AS01", &cols[0]), ("AS02", &cols[1]), ("AS03", &cols[2])],
+                damage,
+            );
+            std::fs::write(dir.join("prices.parquet"), bytes).unwrap();
+            if damage == Damage::None {
+                vec![]
+            } else {
+                // The writer knows where it put the damaged record; the message must name that byte.
+                vec![format!("byte {at}:")]
+            }
+        }
         other => panic!("unknown generator `{other}`"),
     }
+}
+
+/// The valid fund's prices written as Parquet by polars.
+fn write_good_parquet(good: &str, path: &Path) {
+    let (dates, cols) = good_columns(good);
+    write_parquet(
+        path,
+        date_column(&dates),
+        vec![
+            ("AS01", Some(cols[0].clone()), None),
+            ("AS02", Some(cols[1].clone()), None),
+            ("AS03", Some(cols[2].clone()), None),
+        ],
+    );
 }
 
 /// The valid fund's dates and its three price columns.

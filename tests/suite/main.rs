@@ -9,6 +9,7 @@ mod common;
 mod demo;
 mod faults;
 mod models;
+mod parquet_bytes;
 mod properties;
 mod report;
 mod risk;
