@@ -164,8 +164,13 @@ pub fn measure(p: &Problem, sy: &Synthetic, model: &str, method: Method, runs: u
     let (mut builds, mut solves) = (Vec::new(), Vec::new());
     let mut last: Option<std::result::Result<Solved, lp::Failure>> = None;
     for _ in 0..runs.max(1) {
+        let start = Instant::now();
         let r = solve_model(p, sy, model, method);
-        let t = r.as_ref().map(|s| s.timing).unwrap_or_default();
+        // A failed LP (e.g. one stopped by the time limit) reports no timing: count its wall time as solve.
+        let t = r.as_ref().map(|s| s.timing).unwrap_or(lp::Timing {
+            solve: start.elapsed(),
+            ..lp::Timing::default()
+        });
         builds.push(t.build);
         solves.push(t.solve);
         let long = t.build + t.solve > LONG_RUN;
@@ -305,7 +310,7 @@ pub fn run(opts: &BenchOptions, out: &mut dyn Write) -> Result<()> {
     w(
         out,
         &format!(
-            "tailpack {} bench: HiGHS {}, {} run(s) per LP (median; one run after a run over {} s), time limit {} s per direct/reference LP",
+            "tailpack {} bench: {}, {} run(s) per LP (median; one run after a run over {} s), time limit {} s per direct/reference LP",
             env!("CARGO_PKG_VERSION"),
             lp::backend_description(Backend::Highs),
             opts.runs,
@@ -376,7 +381,8 @@ fn bench_size(opts: &BenchOptions, n: usize, s: usize, out: &mut dyn Write) -> R
             },
             cell(direct.as_ref().map(|d| limited(d, opts.time_limit))),
             cell(direct.as_ref().map(|d| format!(
-                "{:.1}×",
+                "{}{:.1}×",
+                if d.status == "optimal" { "" } else { "> " },
                 d.total().as_secs_f64() / auto.total().as_secs_f64()
             ))),
             cell(

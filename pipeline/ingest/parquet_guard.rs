@@ -101,7 +101,8 @@ pub fn check(path: &Path, bytes: &[u8]) -> Result<()> {
 fn check_body(bytes: &[u8]) -> Check<()> {
     let n = bytes.len();
     let len_at = n - 8;
-    let meta_len = u32::from_le_bytes(bytes[len_at..n - 4].try_into().expect("four bytes")) as usize;
+    let meta_len =
+        u32::from_le_bytes(bytes[len_at..n - 4].try_into().expect("four bytes")) as usize;
     // The metadata sits between the leading marker and the 8-byte tail (length + marker).
     if meta_len > n - 12 {
         return bad(
@@ -365,8 +366,14 @@ fn check_schema(schema: &[Node<'_>], at: usize, file_len: u64) -> Check<usize> {
             );
         }
         // FIXED_LEN_BYTE_ARRAY values are `type_length` bytes each; one longer than the file is damage.
-        if e.non_negative(2, "a column's value width", e.start)?.unwrap_or(0) > file_len {
-            return bad(e.start, "a column declares values wider than the whole file");
+        if e.non_negative(2, "a column's value width", e.start)?
+            .unwrap_or(0)
+            > file_len
+        {
+            return bad(
+                e.start,
+                "a column declares values wider than the whole file",
+            );
         }
     }
     Ok(columns)
@@ -431,7 +438,10 @@ impl PageMeta {
             }
         };
         let Some(s) = h.get(sub).filter(|s| s.is_struct()) else {
-            return bad(at, format!("a page of type {kind} has no header for its type"));
+            return bad(
+                at,
+                format!("a page of type {kind} has no header for its type"),
+            );
         };
         let values = s.non_negative(1, "a page's value count", at)?.unwrap_or(0);
         if kind == 3 {
@@ -580,7 +590,9 @@ impl<'a> Reader<'a> {
         if n.saturating_mul(min_each as u64) > left {
             return bad(
                 at,
-                format!("a metadata record declares {n} entries or bytes, but only {left} bytes follow"),
+                format!(
+                    "a metadata record declares {n} entries or bytes, but only {left} bytes follow"
+                ),
             );
         }
         Ok(n as usize)
@@ -604,11 +616,10 @@ impl<'a> Reader<'a> {
                 let v = self.zigzag()?;
                 i16::try_from(v).or_else(|_| bad(at, "a metadata field number is out of range"))?
             } else {
-                last.checked_add(i16::from(delta))
-                    .ok_or(Bad {
-                        at,
-                        what: "a metadata field number is out of range".into(),
-                    })?
+                last.checked_add(i16::from(delta)).ok_or(Bad {
+                    at,
+                    what: "a metadata field number is out of range".into(),
+                })?
             };
             last = id;
             let value = match kind {

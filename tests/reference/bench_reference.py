@@ -176,7 +176,9 @@ def main():
             del lp
             if t2 - t0 > long_run:
                 break
-        objective = -res.fun if model != "min_cvar" else res.fun
+        objective = None
+        if res.status == 0:
+            objective = -res.fun if model != "min_cvar" else res.fun
         status = {0: "optimal", 1: "time_limit", 2: "infeasible", 3: "unbounded"}.get(res.status, "failed")
         print(
             json.dumps(
@@ -185,7 +187,7 @@ def main():
                     "build_seconds": float(np.median(builds)),
                     "solve_seconds": float(np.median(solves)),
                     "runs": len(builds),
-                    "objective": float(objective) if res.status == 0 else None,
+                    "objective": None if objective is None else float(objective),
                     "status": status,
                     "solver": f"scipy {scipy.__version__} linprog(method='highs')",
                 }

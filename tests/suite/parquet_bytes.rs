@@ -163,9 +163,7 @@ pub fn write(dates: &[String], assets: &[(&str, &[f64])], damage: Damage) -> (Ve
         h.end();
         h.end();
         let offset = file.len() as i64;
-        if first_price
-            && matches!(damage, Damage::PageDecodedSize | Damage::PageStoredSize)
-        {
+        if first_price && matches!(damage, Damage::PageDecodedSize | Damage::PageStoredSize) {
             damaged_at = file.len();
         }
         let len = (h.out.len() + body.len()) as i64;
