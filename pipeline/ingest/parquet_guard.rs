@@ -168,26 +168,23 @@ fn check_chunk(
             ),
         );
     }
-    if c.num_values > limits.values {
-        return bad(
-            c.at,
-            format!(
-                "a column chunk declares {} values, far more than a file of {} bytes can hold",
-                c.num_values,
-                bytes.len()
-            ),
-        );
-    }
-    if c.uncompressed > limits.decoded {
-        return bad(
-            c.at,
-            format!(
-                "a column chunk declares {} decoded bytes, far more than a file of {} bytes can hold",
-                c.uncompressed,
-                bytes.len()
-            ),
-        );
-    }
+    let n = bytes.len();
+    within(
+        c.at,
+        "column chunk",
+        "values",
+        c.num_values,
+        limits.values,
+        n,
+    )?;
+    within(
+        c.at,
+        "column chunk",
+        "decoded bytes",
+        c.uncompressed,
+        limits.decoded,
+        n,
+    )?;
     // A flat column holds one value (or null) per row.
     if c.num_values != group_rows {
         return bad(
@@ -224,27 +221,11 @@ fn check_chunk(
                 ),
             );
         }
-        decoded = decoded.saturating_add(page.uncompressed);
-        if decoded > limits.decoded {
-            return bad(
-                pos,
-                format!(
-                    "a page declares {} decoded bytes, far more than a file of {} bytes can hold",
-                    page.uncompressed,
-                    bytes.len()
-                ),
-            );
-        }
-        if page.values > limits.values {
-            return bad(
-                pos,
-                format!(
-                    "a page declares {} values, far more than a file of {} bytes can hold",
-                    page.values,
-                    bytes.len()
-                ),
-            );
-        }
+        // The chunk's pages share one allowance of decoded bytes; `decoded` never exceeds it.
+        let room = limits.decoded - decoded;
+        within(pos, "page", "decoded bytes", page.uncompressed, room, n)?;
+        decoded += page.uncompressed;
+        within(pos, "page", "values", page.values, limits.values, n)?;
         if page.is_data {
             seen += page.values;
             if seen > c.num_values {
@@ -260,6 +241,27 @@ fn check_chunk(
         pos = body + page.compressed as usize;
     }
     Ok(())
+}
+
+/// Refuses a `noun` (column chunk, page) at byte `at` that declares more `counted` (values, decoded bytes)
+/// than `limit`, what is left of the allowance of a file of `file_len` bytes.
+fn within(
+    at: usize,
+    noun: &str,
+    counted: &str,
+    declared: u64,
+    limit: u64,
+    file_len: usize,
+) -> Check<()> {
+    if declared <= limit {
+        return Ok(());
+    }
+    bad(
+        at,
+        format!(
+            "a {noun} declares {declared} {counted}, far more than a file of {file_len} bytes can hold"
+        ),
+    )
 }
 
 /// What the checks need from `FileMetaData`.
