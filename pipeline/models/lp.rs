@@ -419,26 +419,18 @@ impl Lp {
             other => Failure::Solver(other.to_string()),
         })?;
         let x: Vec<f64> = v.iter().map(|&var| solved.value(var)).collect();
-        Ok(self.read(
+        Ok(read_solution(
             &x,
             objective,
+            &self.weights,
+            self.scale,
+            &self.tracked,
             Timing {
                 build: built,
                 solve: start.elapsed() - built,
                 runs: 1,
             },
         ))
-    }
-
-    fn read(&self, x: &[f64], objective: &Lin, timing: Timing) -> Solved {
-        read_solution(
-            x,
-            objective,
-            &self.weights,
-            self.scale,
-            &self.tracked,
-            timing,
-        )
     }
 }
 
