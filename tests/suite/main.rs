@@ -10,6 +10,7 @@ mod demo;
 mod faults;
 mod models;
 mod parquet_bytes;
+mod parquet_seeds;
 mod properties;
 mod report;
 mod risk;
