@@ -49,9 +49,9 @@ pub struct BenchOptions {
     /// Runs per LP (the median is reported).
     pub runs: usize,
     pub reference: Option<Reference>,
-    /// Where the cutting-plane method is used, also time the direct LP.
-    pub direct_too: bool,
-    /// Wall-clock limit per LP run for the direct LPs at large sizes and the reference, in seconds.
+    /// Also time the method tailpack does not choose at each size (direct LP or cutting planes).
+    pub other_too: bool,
+    /// Wall-clock limit per LP run for the other method and the reference, in seconds.
     pub time_limit: f64,
     /// A config to build end to end, with stage timings.
     pub demo: Option<PathBuf>,
@@ -298,7 +298,7 @@ fn rel_diff(a: Option<f64>, b: Option<f64>) -> String {
     }
 }
 
-const HEADER: &str = "| N | S | model | method | rounds | runs | build ms | solve ms | total ms | direct total ms | direct / cuts | direct Δobj | ref build ms | ref solve ms | tailpack / ref | ref Δobj |\n|---:|---:|---|---|---:|---:|---:|---:|---:|---:|---:|---:|---:|---:|---:|---:|";
+const HEADER: &str = "| N | S | model | method | rounds | runs | build ms | solve ms | total ms | other method | other total ms | other / used | other Δobj | ref build ms | ref solve ms | tailpack / ref | ref Δobj |\n|---:|---:|---|---|---:|---:|---:|---:|---:|---|---:|---:|---:|---:|---:|---:|---:|";
 
 /// Runs the benchmark, writing the table to `out` as it goes.
 pub fn run(opts: &BenchOptions, out: &mut dyn Write) -> Result<()> {
@@ -354,58 +354,87 @@ fn bench_size(opts: &BenchOptions, n: usize, s: usize, out: &mut dyn Write) -> R
         }
         None => vec![],
     };
+    let other_method = match method {
+        Method::Direct => Method::Cuts,
+        Method::Cuts => Method::Direct,
+    };
     for model in MODELS {
         let auto = measure(&p, &sy, model, method, opts.runs);
-        let direct = (method == Method::Cuts && opts.direct_too).then(|| {
+        let other = opts.other_too.then(|| {
             lp::set_time_limit(Some(opts.time_limit));
-            let d = measure(&p, &sy, model, Method::Direct, opts.runs);
+            let d = measure(&p, &sy, model, other_method, opts.runs);
             lp::set_time_limit(None);
             d
         });
         let r = reference.iter().find(|(m, _)| m == model).map(|(_, r)| r);
-        let cell = |v: Option<String>| v.unwrap_or_else(|| "-".into());
-        let line = format!(
-            "| {n} | {s} | {model} | {} | {} | {} | {} | {} | {} | {} | {} | {} | {} | {} | {} | {} |",
-            match method {
-                Method::Direct => "direct",
-                Method::Cuts => "cuts",
-            },
-            auto.rounds,
-            auto.runs,
-            ms(auto.build),
-            ms(auto.solve),
-            if auto.status == "optimal" {
-                ms(auto.total())
-            } else {
-                auto.status.clone()
-            },
-            cell(direct.as_ref().map(|d| limited(d, opts.time_limit))),
-            cell(direct.as_ref().map(|d| format!(
-                "{}{:.1}×",
-                if d.status == "optimal" { "" } else { "> " },
-                d.total().as_secs_f64() / auto.total().as_secs_f64()
-            ))),
-            cell(
-                direct
-                    .as_ref()
-                    .map(|d| rel_diff(auto.objective, d.objective))
-            ),
-            cell(r.map(|r| ms(r.build))),
-            cell(r.map(|r| if r.status == "optimal" {
-                ms(r.solve)
-            } else {
-                format!("{} ({})", ms(r.solve), r.status)
-            })),
-            cell(r.map(|r| format!(
-                "{:.2}",
-                auto.total().as_secs_f64() / (r.build + r.solve).as_secs_f64()
-            ))),
-            cell(r.map(|r| rel_diff(auto.objective, r.objective))),
+        let _ = writeln!(
+            out,
+            "{}",
+            row(
+                n,
+                s,
+                model,
+                (method, &auto),
+                (other_method, other.as_ref()),
+                r,
+                opts.time_limit
+            )
         );
-        let _ = writeln!(out, "{line}");
         let _ = out.flush();
     }
     Ok(())
+}
+
+fn method_name(m: Method) -> &'static str {
+    match m {
+        Method::Direct => "direct",
+        Method::Cuts => "cuts",
+    }
+}
+
+/// One table row: the method tailpack uses, the other method, the reference.
+fn row(
+    n: usize,
+    s: usize,
+    model: &str,
+    (method, auto): (Method, &Measured),
+    (other_method, other): (Method, Option<&Measured>),
+    r: Option<&RefMeasured>,
+    time_limit: f64,
+) -> String {
+    let cell = |v: Option<String>| v.unwrap_or_else(|| "-".into());
+    format!(
+        "| {n} | {s} | {model} | {} | {} | {} | {} | {} | {} | {} | {} | {} | {} | {} | {} | {} | {} |",
+        method_name(method),
+        auto.rounds,
+        auto.runs,
+        ms(auto.build),
+        ms(auto.solve),
+        if auto.status == "optimal" {
+            ms(auto.total())
+        } else {
+            auto.status.clone()
+        },
+        cell(other.map(|_| method_name(other_method).to_string())),
+        cell(other.map(|d| limited(d, time_limit))),
+        cell(other.map(|d| format!(
+            "{}{:.1}×",
+            if d.status == "optimal" { "" } else { "> " },
+            d.total().as_secs_f64() / auto.total().as_secs_f64()
+        ))),
+        cell(other.map(|d| rel_diff(auto.objective, d.objective))),
+        cell(r.map(|r| ms(r.build))),
+        cell(r.map(|r| if r.status == "optimal" {
+            ms(r.solve)
+        } else {
+            format!("{} ({})", ms(r.solve), r.status)
+        })),
+        cell(r.map(|r| format!(
+            "{:.2}",
+            auto.total().as_secs_f64() / (r.build + r.solve).as_secs_f64()
+        ))),
+        cell(r.map(|r| rel_diff(auto.objective, r.objective))),
+    )
 }
 
 fn limited(d: &Measured, limit: f64) -> String {

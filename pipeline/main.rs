@@ -57,10 +57,10 @@ enum Command {
         /// The interpreter for the reference script.
         #[arg(long, default_value = "python3")]
         python: String,
-        /// Where the cutting-plane method is used, do not also time the direct LP.
+        /// Time only the method tailpack chooses at each size, not also the other one (direct LP or cutting planes).
         #[arg(long)]
-        no_direct: bool,
-        /// Seconds allowed per direct or reference LP run.
+        chosen_only: bool,
+        /// Seconds allowed per LP run of the other method and of the reference.
         #[arg(long, default_value_t = 900.0)]
         time_limit: f64,
         /// Build this config's pack end to end with stage timings (e.g. config-demo/fund.yaml).
@@ -142,7 +142,7 @@ fn main() {
             runs,
             reference,
             python,
-            no_direct,
+            chosen_only,
             time_limit,
             demo,
             work,
@@ -153,7 +153,7 @@ fn main() {
                 program: python.clone(),
                 script: script.clone(),
             }),
-            !*no_direct,
+            !*chosen_only,
             *time_limit,
             demo.clone(),
             work.clone(),

@@ -308,7 +308,11 @@ fn solve_models(
             max_violation: None,
         }
     } else {
-        models::outcome(p, p.max_ratio(), None, None, || {
+        let solved = match pre.min_cvar {
+            Some(m) => p.max_ratio_knowing(m),
+            None => p.max_ratio(),
+        };
+        models::outcome(p, solved, None, None, || {
             "the scaled feasible set is empty".into()
         })
     };

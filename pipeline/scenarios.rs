@@ -9,6 +9,12 @@ use crate::config::ScenarioOptions;
 use crate::error::{Error, Result};
 use crate::ingest::MarketData;
 use chrono::NaiveDate;
+use rayon::prelude::*;
+
+/// Return-matrix size (S·N entries) from which per-scenario work is split across threads.
+pub const PARALLEL_FROM: usize = 1 << 20;
+/// Scenarios per parallel task; fixed, so chunked sums never depend on the thread count.
+pub const ROWS_PER_TASK: usize = 2048;
 
 /// The scenario set: `returns` is row-major, one row of `assets.len()` returns per scenario.
 #[derive(Debug, Clone)]
@@ -61,11 +67,26 @@ impl ScenarioSet {
         mu
     }
 
-    /// Portfolio returns per scenario, r_k · x.
+    /// Portfolio returns per scenario, r_k · x. Large sets are split across threads; each entry is its
+    /// own dot product, so the result does not depend on how many threads ran.
     pub fn portfolio_returns(&self, x: &[f64]) -> Vec<f64> {
-        (0..self.len())
-            .map(|k| self.row(k).iter().zip(x).map(|(r, w)| r * w).sum())
-            .collect()
+        let n = self.width();
+        let dot = |row: &[f64]| row.iter().zip(x).map(|(r, w)| r * w).sum::<f64>();
+        if n == 0 {
+            return vec![0.0; self.len()];
+        }
+        if self.returns.len() < PARALLEL_FROM {
+            return self.returns.chunks(n).map(dot).collect();
+        }
+        let mut out = vec![0.0; self.len()];
+        out.par_chunks_mut(ROWS_PER_TASK)
+            .zip(self.returns.par_chunks(ROWS_PER_TASK * n))
+            .for_each(|(o, rows)| {
+                o.iter_mut()
+                    .zip(rows.chunks(n))
+                    .for_each(|(v, r)| *v = dot(r))
+            });
+        out
     }
 
     /// A scenario set from explicit data (tests, benchmarks); probabilities must be positive and sum to 1.

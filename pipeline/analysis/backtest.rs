@@ -170,7 +170,11 @@ fn decide(
             models::outcome(&p, p.max_return(Some(cap)), Some(cap), None, String::new),
             models::outcome(&p, p.min_cvar(Some(floor)), None, Some(floor), String::new),
             if pre.holds {
-                models::outcome(&p, p.max_ratio(), None, None, String::new)
+                let solved = match min_x {
+                    Some(m) => p.max_ratio_knowing(m),
+                    None => p.max_ratio(),
+                };
+                models::outcome(&p, solved, None, None, String::new)
             } else {
                 models::Outcome {
                     status: Status::NotApplicable,

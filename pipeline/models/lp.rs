@@ -14,10 +14,11 @@
 
 use super::FeasibleSet;
 use crate::config::Backend;
-use crate::scenarios::ScenarioSet;
+use crate::scenarios::{PARALLEL_FROM, ROWS_PER_TASK, ScenarioSet};
 use good_lp::solvers::clarabel::clarabel;
 use good_lp::{Expression, ProblemVariables, ResolutionError, Solution, SolverModel, variable};
 use highs::{HighsModelStatus, RowProblem, Sense};
+use rayon::prelude::*;
 use std::sync::atomic::{AtomicU64, Ordering};
 use std::time::{Duration, Instant};
 
@@ -460,20 +461,36 @@ pub struct CutColumns {
 
 /// The cut w + mass·ℓ + Σ_i a_i x_i ≥ 0 for a scenario subset K, with mass = Σ_{k∈K} p_k and
 /// a = Σ_{k∈K} p_k r_k — that is w ≥ Σ_{k∈K} p_k (−r_k·x − ℓ) (Künzi-Bay & Mayer 2006, eq. 9).
+/// The sums run over fixed blocks of K, in parallel for large sets, and the blocks are added in order,
+/// so the cut is the same whatever the number of threads.
 pub fn cut_terms(
     set: &ScenarioSet,
     cut: &[usize],
     weights: &[Col],
     cc: CutColumns,
 ) -> Vec<(Col, f64)> {
+    let block = |ks: &[usize]| {
+        let mut coef = vec![0.0; set.width()];
+        let mut mass = 0.0;
+        for &k in ks {
+            let p = set.probabilities[k];
+            mass += p;
+            for (a, r) in coef.iter_mut().zip(set.row(k)) {
+                *a += p * r;
+            }
+        }
+        (mass, coef)
+    };
+    let blocks: Vec<(f64, Vec<f64>)> = if cut.len() * set.width() < PARALLEL_FROM {
+        cut.chunks(ROWS_PER_TASK).map(block).collect()
+    } else {
+        cut.par_chunks(ROWS_PER_TASK).map(block).collect()
+    };
     let mut coef = vec![0.0; set.width()];
     let mut mass = 0.0;
-    for &k in cut {
-        let p = set.probabilities[k];
-        mass += p;
-        for (a, r) in coef.iter_mut().zip(set.row(k)) {
-            *a += p * r;
-        }
+    for (m, c) in blocks {
+        mass += m;
+        coef.iter_mut().zip(c).for_each(|(a, b)| *a += b);
     }
     let mut terms = Vec::with_capacity(weights.len() + 2);
     terms.push((cc.w, 1.0));

@@ -127,7 +127,8 @@ pub const MAX_CUT_ROUNDS: usize = 400;
 enum Kind {
     MaxReturn(Option<f64>),
     MinCvar(Option<f64>),
-    Ratio,
+    /// With the minimum CVaR over X when the caller already knows it (the cutting-plane method needs it).
+    Ratio(Option<f64>),
 }
 
 impl Problem<'_> {
@@ -165,9 +166,24 @@ impl Problem<'_> {
         self.solve(Kind::MinCvar(floor), method)
     }
 
+    /// [`Problem::max_ratio`] when the minimum CVaR over X is already known (as from the precondition
+    /// check), which spares the cutting-plane method its auxiliary LP.
+    pub fn max_ratio_knowing(&self, min_cvar: f64) -> Result<Solved, Failure> {
+        self.max_ratio_knowing_by(min_cvar, self.method())
+    }
+
+    /// [`Problem::max_ratio_knowing`] with an explicit method.
+    pub fn max_ratio_knowing_by(&self, min_cvar: f64, method: Method) -> Result<Solved, Failure> {
+        self.max_ratio_of(Kind::Ratio(Some(min_cvar)), method)
+    }
+
     /// [`Problem::max_ratio`] with an explicit method.
     pub fn max_ratio_by(&self, method: Method) -> Result<Solved, Failure> {
-        let mut solved = self.solve(Kind::Ratio, method)?;
+        self.max_ratio_of(Kind::Ratio(None), method)
+    }
+
+    fn max_ratio_of(&self, kind: Kind, method: Method) -> Result<Solved, Failure> {
+        let mut solved = self.solve(kind, method)?;
         let t = solved.scale.unwrap_or(0.0);
         if t <= MIN_SCALE {
             return Err(Failure::Solver(format!(
@@ -182,7 +198,7 @@ impl Problem<'_> {
         match method {
             Method::Direct => {
                 let start = Instant::now();
-                let mut lp = Lp::new(self.feasible, matches!(kind, Kind::Ratio));
+                let mut lp = Lp::new(self.feasible, matches!(kind, Kind::Ratio(_)));
                 let block = match kind {
                     Kind::MaxReturn(None) => Lin::default(),
                     _ => lp.cvar(self.set, self.confidence),
@@ -214,7 +230,7 @@ impl Problem<'_> {
                 }
                 (block, false)
             }
-            Kind::Ratio => {
+            Kind::Ratio(_) => {
                 lp.at_most(block, 1.0);
                 (lp.expected_return(&self.mu), true)
             }
@@ -235,24 +251,26 @@ impl Problem<'_> {
         let mut timing = Timing::default();
         // The relaxed ratio LP is unbounded until enough cuts exist; t = 1/CVaR(x) ≤ 1/min CVaR over X is a
         // valid bound that keeps every relaxation bounded without cutting off the optimum.
-        let t_max = match kind {
-            Kind::Ratio => match self.min_cvar_by(None, Method::Cuts) {
-                Ok(m) if m.objective > 0.0 => {
-                    timing.absorb(m.timing);
-                    Some((1.0 + 1e-6) / m.objective)
-                }
-                Ok(m) => {
-                    return Err(Failure::Solver(format!(
-                        "minimum CVaR {:.3e} ≤ 0: the ratio LP does not apply",
-                        m.objective
-                    )));
-                }
-                Err(e) => return Err(e),
-            },
+        let min_cvar = match kind {
+            Kind::Ratio(Some(m)) => Some(m),
+            Kind::Ratio(None) => {
+                let m = self.min_cvar_by(None, Method::Cuts)?;
+                timing.absorb(m.timing);
+                Some(m.objective)
+            }
             _ => None,
         };
+        let t_max = match min_cvar {
+            Some(m) if m > 0.0 => Some((1.0 + 1e-6) / m),
+            Some(m) => {
+                return Err(Failure::Solver(format!(
+                    "minimum CVaR {m:.3e} ≤ 0: the ratio LP does not apply"
+                )));
+            }
+            None => None,
+        };
         let aux = start.elapsed();
-        let mut lp = Lp::new(self.feasible, matches!(kind, Kind::Ratio));
+        let mut lp = Lp::new(self.feasible, matches!(kind, Kind::Ratio(_)));
         let (block, cc) = lp.cvar_cuts(self.confidence);
         if let (Some(t), Some(bound)) = (lp.scale, t_max) {
             lp.at_most(Lin(vec![(t, 1.0)]), bound);

@@ -120,3 +120,48 @@ fn bench_command_prints_a_row_per_model() {
         bad.stderr
     );
 }
+
+/// Above `scenarios::PARALLEL_FROM` entries the portfolio losses and the cut sums run on several threads.
+/// Same inputs, same bytes: the results must be bit for bit those of one thread, and each portfolio return
+/// must equal the plain dot product r_k · x computed here.
+#[test]
+fn parallel_losses_and_cuts_do_not_depend_on_the_thread_count() {
+    use tailpack::models::lp::{self, Lp};
+    let sy = bench::synthetic(600, 2_000, 5);
+    assert!(sy.set.returns.len() >= tailpack::scenarios::PARALLEL_FROM);
+    let n = sy.set.width();
+    let x: Vec<f64> = (0..n)
+        .map(|i| 1.0 / n as f64 + 1e-4 * (i % 7) as f64)
+        .collect();
+    let in_pool = |threads: usize| {
+        let pool = rayon::ThreadPoolBuilder::new()
+            .num_threads(threads)
+            .build()
+            .unwrap();
+        pool.install(|| {
+            let r = sy.set.portfolio_returns(&x);
+            let mut l = Lp::new(&sy.feasible, false);
+            let (_, cc) = l.cvar_cuts(sy.confidence);
+            let tail: Vec<usize> = (0..sy.set.len()).filter(|k| r[*k] < 0.0).collect();
+            let cut: Vec<f64> = lp::cut_terms(&sy.set, &tail, &l.weights, cc)
+                .iter()
+                .map(|t| t.1)
+                .collect();
+            (r, cut)
+        })
+    };
+    let (one, cut_one) = in_pool(1);
+    let (two, cut_two) = in_pool(2);
+    assert_eq!(
+        one.iter().map(|v| v.to_bits()).collect::<Vec<_>>(),
+        two.iter().map(|v| v.to_bits()).collect::<Vec<_>>()
+    );
+    assert_eq!(
+        cut_one.iter().map(|v| v.to_bits()).collect::<Vec<_>>(),
+        cut_two.iter().map(|v| v.to_bits()).collect::<Vec<_>>()
+    );
+    for k in [0, 777, sy.set.len() - 1] {
+        let plain: f64 = sy.set.row(k).iter().zip(&x).map(|(r, w)| r * w).sum();
+        assert_eq!(one[k], plain, "scenario {k}");
+    }
+}

@@ -484,6 +484,17 @@ fn cutting_planes_reach_the_direct_lp_optimum() {
                 p.max_ratio_by(Method::Direct).unwrap().objective,
                 p.max_ratio_by(Method::Cuts).unwrap().objective,
             ),
+            // The ratio's cut loop bounds t by 1/min CVaR; given that minimum from a direct LP, as a run
+            // passes the one from its precondition check, it must reach the same optimum.
+            (
+                p.max_ratio_by(Method::Direct).unwrap().objective,
+                p.max_ratio_knowing_by(
+                    p.min_cvar_by(None, Method::Direct).unwrap().objective,
+                    Method::Cuts,
+                )
+                .unwrap()
+                .objective,
+            ),
         ];
         for (k, (direct, cuts)) in pairs.iter().enumerate() {
             assert!(
