@@ -398,8 +398,11 @@ fn column_to_text(path: &Path, col: &Column) -> Result<Vec<Option<String>>> {
         let ca = f.f64().map_err(|e| Error::data(path, e.to_string()))?;
         return Ok(ca.iter().map(|v| v.map(|x| format!("{x:?}"))).collect());
     }
+    if dtype == DataType::Date {
+        return date_column_to_text(path, col);
+    }
     let s = match dtype {
-        DataType::String | DataType::Date => col.cast(&DataType::String),
+        DataType::String => col.cast(&DataType::String),
         other => {
             return Err(Error::data(
                 path,
@@ -413,6 +416,37 @@ fn column_to_text(path: &Path, col: &Column) -> Result<Vec<Option<String>>> {
     .map_err(|e| Error::data(path, format!("column `{}`: {e}", col.name())))?;
     let ca = s.str().map_err(|e| Error::data(path, e.to_string()))?;
     Ok(ca.iter().map(|v| v.map(str::to_string)).collect())
+}
+
+/// A Parquet date column (days since 1970-01-01, Parquet format specification, logical type DATE) as ISO text.
+///
+/// Done here rather than by polars' cast to text, which panics on a day count outside the calendar it
+/// supports (found by fuzzing); such a value is bad data and is reported with its row.
+fn date_column_to_text(path: &Path, col: &Column) -> Result<Vec<Option<String>>> {
+    let days = col
+        .date()
+        .map_err(|e| Error::data(path, format!("column `{}`: {e}", col.name())))?
+        .physical();
+    let epoch = chrono::NaiveDate::from_ymd_opt(1970, 1, 1).expect("1970-01-01 is a date");
+    days.iter()
+        .enumerate()
+        .map(|(row, d)| {
+            let Some(d) = d else { return Ok(None) };
+            epoch
+                .checked_add_signed(chrono::TimeDelta::days(i64::from(d)))
+                .map(|date| Some(date.format("%Y-%m-%d").to_string()))
+                .ok_or_else(|| {
+                    Error::data(
+                        path,
+                        format!(
+                            "row {}, column `{}`: the date is {d} days from 1970-01-01, outside any calendar; write the file again from its source",
+                            row + 1,
+                            col.name()
+                        ),
+                    )
+                })
+        })
+        .collect()
 }
 
 /// First `n` characters of `s`, with an ellipsis when cut (keeps messages short for huge lines).

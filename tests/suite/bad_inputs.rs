@@ -102,6 +102,7 @@ cases!(
     prices_huge_header,
     parquet_wrong_column_types,
     parquet_text_date_column_garbage,
+    parquet_date_outside_calendar,
     parquet_truncated,
     parquet_csv_in_disguise,
     parquet_footer_length_beyond_file,
@@ -373,6 +374,32 @@ fn generate(what: &str, dir: &Path) -> Vec<String> {
             let (mut dates, cols) = good_columns(&good);
             dates[2] = "03.01.2024".into();
             let date = polars::prelude::Column::new("date".into(), dates);
+            write_parquet(
+                &dir.join("prices.parquet"),
+                date,
+                vec![
+                    ("AS01", Some(cols[0].clone()), None),
+                    ("AS02", Some(cols[1].clone()), None),
+                    ("AS03", Some(cols[2].clone()), None),
+                ],
+            );
+            vec![]
+        }
+        "parquet_date_outside_calendar" => {
+            // Regression case from fuzzing: polars' own Date-to-text cast panicked on such a value.
+            use polars::prelude::*;
+            let (dates, cols) = good_columns(&good);
+            let mut days: Vec<i32> = date_column(&dates)
+                .date()
+                .unwrap()
+                .physical()
+                .iter()
+                .map(Option::unwrap)
+                .collect();
+            days[2] = 2_000_000_000;
+            let date = Column::new("date".into(), days)
+                .cast(&DataType::Date)
+                .unwrap();
             write_parquet(
                 &dir.join("prices.parquet"),
                 date,
