@@ -418,9 +418,9 @@ fn row(
         cell(other.map(|_| method_name(other_method).to_string())),
         cell(other.map(|d| limited(d, time_limit))),
         cell(other.map(|d| format!(
-            "{}{:.1}×",
+            "{}{}×",
             if d.status == "optimal" { "" } else { "> " },
-            d.total().as_secs_f64() / auto.total().as_secs_f64()
+            ratio(d.total().as_secs_f64() / auto.total().as_secs_f64())
         ))),
         cell(other.map(|d| rel_diff(auto.objective, d.objective))),
         cell(r.map(|r| ms(r.build))),
@@ -435,6 +435,17 @@ fn row(
         ))),
         cell(r.map(|r| rel_diff(auto.objective, r.objective))),
     )
+}
+
+/// A time ratio with two or three significant figures.
+fn ratio(x: f64) -> String {
+    if x >= 100.0 {
+        format!("{x:.0}")
+    } else if x >= 10.0 {
+        format!("{x:.1}")
+    } else {
+        format!("{x:.2}")
+    }
 }
 
 fn limited(d: &Measured, limit: f64) -> String {

@@ -678,6 +678,13 @@ fn run_facts(r: &RunResult, pack_id: &str, is_final: bool) -> Vec<Pair> {
             crate::models::lp::backend_description(r.backend).to_string(),
         ),
         pair(
+            "CVaR programs",
+            crate::models::method_description(crate::models::method_for(
+                r.scenarios.len(),
+                r.backend,
+            )),
+        ),
+        pair(
             "Status",
             if is_final {
                 "FINAL (every required role has signed)"
