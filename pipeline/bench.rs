@@ -298,7 +298,7 @@ fn rel_diff(a: Option<f64>, b: Option<f64>) -> String {
     }
 }
 
-const HEADER: &str = "| N | S | model | method | rounds | runs | build ms | solve ms | total ms | other method | other total ms | other / used | other Δobj | ref build ms | ref solve ms | tailpack / ref | ref Δobj |\n|---:|---:|---|---|---:|---:|---:|---:|---:|---|---:|---:|---:|---:|---:|---:|---:|";
+const HEADER: &str = "| N | S | model | method | rounds | runs | build ms | solve ms | total ms | other method | other total ms | other / used | other Δobj | ref build ms | ref solve ms | used / ref | direct / ref | ref Δobj |\n|---:|---:|---|---|---:|---:|---:|---:|---:|---|---:|---:|---:|---:|---:|---:|---:|---:|";
 
 /// Runs the benchmark, writing the table to `out` as it goes.
 pub fn run(opts: &BenchOptions, out: &mut dyn Write) -> Result<()> {
@@ -404,7 +404,7 @@ fn row(
 ) -> String {
     let cell = |v: Option<String>| v.unwrap_or_else(|| "-".into());
     format!(
-        "| {n} | {s} | {model} | {} | {} | {} | {} | {} | {} | {} | {} | {} | {} | {} | {} | {} | {} |",
+        "| {n} | {s} | {model} | {} | {} | {} | {} | {} | {} | {} | {} | {} | {} | {} | {} | {} | {} | {} |",
         method_name(method),
         auto.rounds,
         auto.runs,
@@ -429,12 +429,29 @@ fn row(
         } else {
             format!("{} ({})", ms(r.solve), r.status)
         })),
-        cell(r.map(|r| format!(
-            "{:.2}",
-            auto.total().as_secs_f64() / (r.build + r.solve).as_secs_f64()
-        ))),
+        cell(r.map(|r| against_reference(auto, r))),
+        cell(r.and_then(|r| {
+            // The reference solves the direct LP: this column compares like with like.
+            let direct = if method == Method::Direct {
+                Some(auto)
+            } else {
+                other
+            };
+            direct.map(|d| against_reference(d, r))
+        })),
         cell(r.map(|r| rel_diff(auto.objective, r.objective))),
     )
+}
+
+/// tailpack's time over the reference's, as a bound when either side stopped at the time limit.
+fn against_reference(d: &Measured, r: &RefMeasured) -> String {
+    let x = d.total().as_secs_f64() / (r.build + r.solve).as_secs_f64();
+    match (d.status == "optimal", r.status == "optimal") {
+        (true, true) => ratio(x),
+        (true, false) => format!("< {}", ratio(x)),
+        (false, true) => format!("> {}", ratio(x)),
+        (false, false) => "both stopped".into(),
+    }
 }
 
 /// A time ratio with two or three significant figures.
