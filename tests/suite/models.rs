@@ -506,3 +506,27 @@ fn cutting_planes_reach_the_direct_lp_optimum() {
         assert!(models::verify(&p, &w, None, None) < 1e-7);
     }
 }
+
+/// The method is chosen from the scenario count alone: cutting planes from `CUTS_FROM_SCENARIOS` with HiGHS
+/// (warm-started), from `CUTS_FROM_SCENARIOS_REBUILT` with Clarabel; below, the direct LP. The thresholds are
+/// this project's own, set from `tailpack bench` measurements (README, "Performance").
+#[test]
+fn the_cutting_plane_method_is_chosen_by_scenario_count() {
+    use tailpack::models::{CUTS_FROM_SCENARIOS, CUTS_FROM_SCENARIOS_REBUILT, Method, method_for};
+    let h = CUTS_FROM_SCENARIOS;
+    let c = CUTS_FROM_SCENARIOS_REBUILT;
+    assert!(h < c);
+    assert_eq!(method_for(h - 1, Backend::Highs), Method::Direct);
+    assert_eq!(method_for(h, Backend::Highs), Method::Cuts);
+    assert_eq!(method_for(c - 1, Backend::Clarabel), Method::Direct);
+    assert_eq!(method_for(c, Backend::Clarabel), Method::Cuts);
+    let i = instance(2);
+    let p = Problem {
+        set: &i.set,
+        mu: i.set.mean(),
+        confidence: i.c,
+        feasible: &i.fs,
+        backend: Backend::Highs,
+    };
+    assert_eq!(p.method(), method_for(i.set.len(), Backend::Highs));
+}
