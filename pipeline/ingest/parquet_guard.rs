@@ -119,6 +119,7 @@ fn check_body(bytes: &[u8]) -> Check<()> {
     let limits = Limits::for_size(n);
     let mut r = Reader::new(&bytes[..len_at], meta_start);
     let meta = r.read_struct(0)?;
+    typed(&meta, &FILE_META_DATA)?;
     let file = FileMeta::from(&meta, meta_start, limits)?;
     for (g, group) in file.row_groups.iter().enumerate() {
         if group.columns.len() != file.leaves {
@@ -210,6 +211,7 @@ fn check_chunk(
         }
         let mut r = Reader::new(&bytes[..end], pos);
         let header = r.read_struct(0)?;
+        typed(&header, &PAGE_HEADER)?;
         let page = PageMeta::from(&header, pos)?;
         let body = r.pos;
         if page.compressed > (end - body) as u64 {
@@ -489,6 +491,9 @@ enum Value<'a> {
 struct Node<'a> {
     /// Byte offset in the file where the value starts.
     start: usize,
+    /// The Thrift compact type the file declares for it (1 or 2 boolean, 3 byte, 4–6 integers, 7 double,
+    /// 8 binary, 9 list, 10 set, 11 map, 12 struct).
+    kind: u8,
     value: Value<'a>,
 }
 
@@ -532,6 +537,7 @@ impl<'a> Node<'a> {
             Some(Node {
                 value: Value::Int(v),
                 start,
+                ..
             }) => {
                 if *v < 0 {
                     bad(*start, format!("{what} is negative ({v})"))
@@ -624,13 +630,19 @@ impl<'a> Reader<'a> {
                 })?
             };
             last = id;
+            // Readers keep the last of repeated fields, these checks the first: refuse repeats.
+            if fields.iter().any(|(i, _)| *i == id) {
+                return bad(at, format!("a metadata record has field {id} twice"));
+            }
             let value = match kind {
                 1 => Node {
                     start: at,
+                    kind,
                     value: Value::Int(1),
                 },
                 2 => Node {
                     start: at,
+                    kind,
                     value: Value::Int(0),
                 },
                 _ => self.read_value(kind, depth + 1)?,
@@ -639,6 +651,7 @@ impl<'a> Reader<'a> {
         }
         Ok(Node {
             start,
+            kind: 12,
             value: Value::Struct(fields),
         })
     }
@@ -694,6 +707,334 @@ impl<'a> Reader<'a> {
             12 => return self.read_struct(depth),
             other => return bad(start, format!("a metadata field has unknown type {other}")),
         };
-        Ok(Node { start, value })
+        Ok(Node { start, kind, value })
     }
 }
+
+/// The Thrift type of a Parquet metadata field, as `parquet.thrift` declares it.
+#[derive(Debug, Clone, Copy)]
+enum Ty {
+    Bool,
+    I8,
+    I16,
+    I32,
+    I64,
+    Binary,
+    List(&'static Ty),
+    Struct(&'static Record),
+}
+
+/// A Thrift struct of `parquet.thrift`: its name and the types of its fields by id.
+#[derive(Debug)]
+struct Record {
+    name: &'static str,
+    fields: &'static [(i16, Ty)],
+}
+
+impl Ty {
+    fn accepts(self, kind: u8) -> bool {
+        match self {
+            Ty::Bool => kind == 1 || kind == 2,
+            Ty::I8 => kind == 3,
+            Ty::I16 => kind == 4,
+            Ty::I32 => kind == 5,
+            Ty::I64 => kind == 6,
+            Ty::Binary => kind == 8,
+            Ty::List(_) => kind == 9,
+            Ty::Struct(_) => kind == 12,
+        }
+    }
+
+    fn name(self) -> String {
+        let s = match self {
+            Ty::Bool => "a boolean",
+            Ty::I8 => "an 8-bit integer",
+            Ty::I16 => "a 16-bit integer",
+            Ty::I32 => "a 32-bit integer",
+            Ty::I64 => "a 64-bit integer",
+            Ty::Binary => "a string",
+            Ty::List(_) => "a list",
+            Ty::Struct(r) => return format!("a struct ({})", r.name),
+        };
+        s.into()
+    }
+}
+
+/// The name of a Thrift compact type code, for messages.
+fn kind_name(kind: u8) -> &'static str {
+    match kind {
+        1 | 2 => "a boolean",
+        3 => "an 8-bit integer",
+        4 => "a 16-bit integer",
+        5 => "a 32-bit integer",
+        6 => "a 64-bit integer",
+        7 => "a double",
+        8 => "a string",
+        9 => "a list",
+        10 => "a set",
+        11 => "a map",
+        _ => "a struct",
+    }
+}
+
+/// Checks that every field `parquet.thrift` defines has the type it defines there, in `node` (a struct of
+/// `record`) and below. Readers go by field number and read the type they expect whatever the file
+/// declares (polars' footer decoder and the generated page-header code alike), while this module's reader
+/// goes by the declared type: a field declared as a string but read as a list would let bytes these checks
+/// skipped be taken for a list length, and ask for gigabytes. Fields the format does not define are
+/// skipped by every reader by their declared type, so they need no check.
+fn typed(node: &Node<'_>, record: &'static Record) -> Check<()> {
+    let Value::Struct(fields) = &node.value else {
+        return bad(
+            node.start,
+            format!("a {} record is not a struct", record.name),
+        );
+    };
+    for (id, field) in fields {
+        let Some((_, ty)) = record.fields.iter().find(|(i, _)| i == id) else {
+            continue;
+        };
+        check_type(field, *ty, &|| format!("field {id} of {}", record.name))?;
+    }
+    Ok(())
+}
+
+fn check_type(node: &Node<'_>, ty: Ty, what: &dyn Fn() -> String) -> Check<()> {
+    if !ty.accepts(node.kind) {
+        return bad(
+            node.start,
+            format!(
+                "{} is {} where the format has {}",
+                what(),
+                kind_name(node.kind),
+                ty.name()
+            ),
+        );
+    }
+    match (ty, &node.value) {
+        (Ty::Struct(r), _) => typed(node, r),
+        (Ty::List(elem), Value::List(items)) => {
+            for (k, item) in items.iter().enumerate() {
+                check_type(item, *elem, &|| format!("entry {} of {}", k + 1, what()))?;
+            }
+            Ok(())
+        }
+        _ => Ok(()),
+    }
+}
+
+// The records below follow `parquet.thrift` of the Apache Parquet format (field numbers and types; enums
+// are 32-bit integers, unions are structs). Only what a reader of this project's files decodes is needed,
+// but every defined field is listed so that a file is held to the format as a whole.
+const EMPTY: Record = Record {
+    name: "a marker without fields",
+    fields: &[],
+};
+const STATISTICS: Record = Record {
+    name: "Statistics",
+    fields: &[
+        (1, Ty::Binary),
+        (2, Ty::Binary),
+        (3, Ty::I64),
+        (4, Ty::I64),
+        (5, Ty::Binary),
+        (6, Ty::Binary),
+        (7, Ty::Bool),
+        (8, Ty::Bool),
+    ],
+};
+const DECIMAL_TYPE: Record = Record {
+    name: "DecimalType",
+    fields: &[(1, Ty::I32), (2, Ty::I32)],
+};
+const TIME_UNIT: Record = Record {
+    name: "TimeUnit",
+    fields: &[
+        (1, Ty::Struct(&EMPTY)),
+        (2, Ty::Struct(&EMPTY)),
+        (3, Ty::Struct(&EMPTY)),
+    ],
+};
+const TIME_TYPE: Record = Record {
+    name: "TimeType or TimestampType",
+    fields: &[(1, Ty::Bool), (2, Ty::Struct(&TIME_UNIT))],
+};
+const INT_TYPE: Record = Record {
+    name: "IntType",
+    fields: &[(1, Ty::I8), (2, Ty::Bool)],
+};
+const LOGICAL_TYPE: Record = Record {
+    name: "LogicalType",
+    fields: &[
+        (1, Ty::Struct(&EMPTY)),
+        (2, Ty::Struct(&EMPTY)),
+        (3, Ty::Struct(&EMPTY)),
+        (4, Ty::Struct(&EMPTY)),
+        (5, Ty::Struct(&DECIMAL_TYPE)),
+        (6, Ty::Struct(&EMPTY)),
+        (7, Ty::Struct(&TIME_TYPE)),
+        (8, Ty::Struct(&TIME_TYPE)),
+        (10, Ty::Struct(&INT_TYPE)),
+        (11, Ty::Struct(&EMPTY)),
+        (12, Ty::Struct(&EMPTY)),
+        (13, Ty::Struct(&EMPTY)),
+        (14, Ty::Struct(&EMPTY)),
+        (15, Ty::Struct(&EMPTY)),
+    ],
+};
+const SCHEMA_ELEMENT: Record = Record {
+    name: "SchemaElement",
+    fields: &[
+        (1, Ty::I32),
+        (2, Ty::I32),
+        (3, Ty::I32),
+        (4, Ty::Binary),
+        (5, Ty::I32),
+        (6, Ty::I32),
+        (7, Ty::I32),
+        (8, Ty::I32),
+        (9, Ty::I32),
+        (10, Ty::Struct(&LOGICAL_TYPE)),
+    ],
+};
+const KEY_VALUE: Record = Record {
+    name: "KeyValue",
+    fields: &[(1, Ty::Binary), (2, Ty::Binary)],
+};
+const PAGE_ENCODING_STATS: Record = Record {
+    name: "PageEncodingStats",
+    fields: &[(1, Ty::I32), (2, Ty::I32), (3, Ty::I32)],
+};
+const SIZE_STATISTICS: Record = Record {
+    name: "SizeStatistics",
+    fields: &[
+        (1, Ty::I64),
+        (2, Ty::List(&Ty::I64)),
+        (3, Ty::List(&Ty::I64)),
+    ],
+};
+const COLUMN_META_DATA: Record = Record {
+    name: "ColumnMetaData",
+    fields: &[
+        (1, Ty::I32),
+        (2, Ty::List(&Ty::I32)),
+        (3, Ty::List(&Ty::Binary)),
+        (4, Ty::I32),
+        (5, Ty::I64),
+        (6, Ty::I64),
+        (7, Ty::I64),
+        (8, Ty::List(&Ty::Struct(&KEY_VALUE))),
+        (9, Ty::I64),
+        (10, Ty::I64),
+        (11, Ty::I64),
+        (12, Ty::Struct(&STATISTICS)),
+        (13, Ty::List(&Ty::Struct(&PAGE_ENCODING_STATS))),
+        (14, Ty::I64),
+        (15, Ty::I32),
+        (16, Ty::Struct(&SIZE_STATISTICS)),
+    ],
+};
+const COLUMN_KEY: Record = Record {
+    name: "EncryptionWithColumnKey",
+    fields: &[(1, Ty::List(&Ty::Binary)), (2, Ty::Binary)],
+};
+const COLUMN_CRYPTO: Record = Record {
+    name: "ColumnCryptoMetaData",
+    fields: &[(1, Ty::Struct(&EMPTY)), (2, Ty::Struct(&COLUMN_KEY))],
+};
+const COLUMN_CHUNK: Record = Record {
+    name: "ColumnChunk",
+    fields: &[
+        (1, Ty::Binary),
+        (2, Ty::I64),
+        (3, Ty::Struct(&COLUMN_META_DATA)),
+        (4, Ty::I64),
+        (5, Ty::I32),
+        (6, Ty::I64),
+        (7, Ty::I32),
+        (8, Ty::Struct(&COLUMN_CRYPTO)),
+        (9, Ty::Binary),
+    ],
+};
+const SORTING_COLUMN: Record = Record {
+    name: "SortingColumn",
+    fields: &[(1, Ty::I32), (2, Ty::Bool), (3, Ty::Bool)],
+};
+const ROW_GROUP: Record = Record {
+    name: "RowGroup",
+    fields: &[
+        (1, Ty::List(&Ty::Struct(&COLUMN_CHUNK))),
+        (2, Ty::I64),
+        (3, Ty::I64),
+        (4, Ty::List(&Ty::Struct(&SORTING_COLUMN))),
+        (5, Ty::I64),
+        (6, Ty::I64),
+        (7, Ty::I16),
+    ],
+};
+const COLUMN_ORDER: Record = Record {
+    name: "ColumnOrder",
+    fields: &[(1, Ty::Struct(&EMPTY)), (2, Ty::Struct(&EMPTY))],
+};
+const AES_GCM: Record = Record {
+    name: "AesGcmV1 or AesGcmCtrV1",
+    fields: &[(1, Ty::Binary), (2, Ty::Binary), (3, Ty::Bool)],
+};
+const ENCRYPTION_ALGORITHM: Record = Record {
+    name: "EncryptionAlgorithm",
+    fields: &[(1, Ty::Struct(&AES_GCM)), (2, Ty::Struct(&AES_GCM))],
+};
+const FILE_META_DATA: Record = Record {
+    name: "FileMetaData",
+    fields: &[
+        (1, Ty::I32),
+        (2, Ty::List(&Ty::Struct(&SCHEMA_ELEMENT))),
+        (3, Ty::I64),
+        (4, Ty::List(&Ty::Struct(&ROW_GROUP))),
+        (5, Ty::List(&Ty::Struct(&KEY_VALUE))),
+        (6, Ty::Binary),
+        (7, Ty::List(&Ty::Struct(&COLUMN_ORDER))),
+        (8, Ty::Struct(&ENCRYPTION_ALGORITHM)),
+        (9, Ty::Binary),
+    ],
+};
+const DATA_PAGE_HEADER: Record = Record {
+    name: "DataPageHeader",
+    fields: &[
+        (1, Ty::I32),
+        (2, Ty::I32),
+        (3, Ty::I32),
+        (4, Ty::I32),
+        (5, Ty::Struct(&STATISTICS)),
+    ],
+};
+const DICTIONARY_PAGE_HEADER: Record = Record {
+    name: "DictionaryPageHeader",
+    fields: &[(1, Ty::I32), (2, Ty::I32), (3, Ty::Bool)],
+};
+const DATA_PAGE_HEADER_V2: Record = Record {
+    name: "DataPageHeaderV2",
+    fields: &[
+        (1, Ty::I32),
+        (2, Ty::I32),
+        (3, Ty::I32),
+        (4, Ty::I32),
+        (5, Ty::I32),
+        (6, Ty::I32),
+        (7, Ty::Bool),
+        (8, Ty::Struct(&STATISTICS)),
+    ],
+};
+const PAGE_HEADER: Record = Record {
+    name: "PageHeader",
+    fields: &[
+        (1, Ty::I32),
+        (2, Ty::I32),
+        (3, Ty::I32),
+        (4, Ty::I32),
+        (5, Ty::Struct(&DATA_PAGE_HEADER)),
+        (6, Ty::Struct(&EMPTY)),
+        (7, Ty::Struct(&DICTIONARY_PAGE_HEADER)),
+        (8, Ty::Struct(&DATA_PAGE_HEADER_V2)),
+    ],
+};

@@ -113,6 +113,9 @@ cases!(
     parquet_row_group_list_huge,
     parquet_value_count_huge,
     parquet_chunk_past_end,
+    parquet_field_of_wrong_type,
+    parquet_field_twice,
+    parquet_fuzz_string_read_as_struct,
     metadata_no_class_column,
     metadata_weight_above_one,
     metadata_min_above_max,
@@ -454,6 +457,8 @@ fn generate(what: &str, dir: &Path) -> Vec<String> {
                 "parquet_hand_row_group_list" => Damage::RowGroupListLength,
                 "parquet_hand_value_count" => Damage::ValueCount,
                 "parquet_hand_chunk_past_end" => Damage::ChunkPastEnd,
+                "parquet_hand_logical_type_as_list" => Damage::LogicalTypeAsList,
+                "parquet_hand_row_count_twice" => Damage::RowCountTwice,
                 other => panic!("unknown generator `{other}`"),
             };
             let (dates, cols) = good_columns(&good);
@@ -469,6 +474,16 @@ fn generate(what: &str, dir: &Path) -> Vec<String> {
                 // The writer knows where it put the damaged record; the message must name that byte.
                 vec![format!("byte {at}:")]
             }
+        }
+        "fuzz_regression" => {
+            // An input found by `cargo fuzz run price_parquet`, kept as it was found (fuzz/regressions/).
+            let name = std::fs::read_to_string(dir.join("regression.txt")).unwrap();
+            let from = super::common::repo()
+                .join("fuzz/regressions/price_parquet")
+                .join(name.trim());
+            std::fs::copy(&from, dir.join("prices.parquet"))
+                .unwrap_or_else(|e| panic!("{}: {e}", from.display()));
+            vec![]
         }
         other => panic!("unknown generator `{other}`"),
     }

@@ -25,6 +25,10 @@ pub enum Damage {
     ValueCount,
     /// The last column chunk declares itself 1 MiB long.
     ChunkPastEnd,
+    /// The date column's schema element has field 10 (`logical_type`, a struct) declared as an empty list.
+    LogicalTypeAsList,
+    /// `FileMetaData.num_rows` appears twice, the second time (in the long field form) as 2^40.
+    RowCountTwice,
 }
 
 /// Thrift compact protocol type codes.
@@ -61,6 +65,12 @@ impl W {
         assert!((1..=15).contains(&delta), "fields in order, close together");
         self.out.push(((delta as u8) << 4) | kind);
         *last = id;
+    }
+    /// A field header in the long form (type byte, then the field number), which allows any order.
+    fn field_long(&mut self, id: i16, kind: u8) {
+        self.out.push(kind);
+        self.zigzag(id.into());
+        *self.last.last_mut().expect("inside a struct") = id;
     }
     fn begin(&mut self) {
         self.last.push(0);
@@ -195,6 +205,11 @@ pub fn write(dates: &[String], assets: &[(&str, &[f64])], damage: Damage) -> (Ve
         m.binary(4, name.as_bytes());
         if *kind == 1 {
             m.i32(6, 6); // converted type: DATE
+            if damage == Damage::LogicalTypeAsList {
+                m.field(10, LIST);
+                damaged_at = meta_start + m.out.len();
+                m.out.push(0); // no entries, element type left 0
+            }
         }
         m.end();
     }
@@ -203,6 +218,11 @@ pub fn write(dates: &[String], assets: &[(&str, &[f64])], damage: Damage) -> (Ve
         damaged_at = meta_start + m.out.len() + 1;
     }
     m.i64(3, declared_rows);
+    if damage == Damage::RowCountTwice {
+        damaged_at = meta_start + m.out.len();
+        m.field_long(3, I64);
+        m.zigzag(1 << 40);
+    }
     if damage == Damage::RowGroupListLength {
         damaged_at = meta_start + m.out.len() + 1;
     }
