@@ -662,7 +662,7 @@ impl<'a> Reader<'a> {
             return bad(start, "the metadata is nested too deeply");
         }
         let value = match kind {
-            // In a list, a boolean takes one byte.
+            // Not reached from a struct (its booleans are in the field header) nor from a list (refused).
             1 | 2 => {
                 self.byte()?;
                 Value::Other
@@ -685,6 +685,11 @@ impl<'a> Reader<'a> {
                 let h = self.byte()?;
                 let (size, elem) = (u64::from(h >> 4), h & 0x0f);
                 let size = if size == 15 { self.varint()? } else { size };
+                // Readers disagree on a boolean in a list (one byte, or none when skipped by polars'
+                // footer decoder), and `parquet.thrift` has no list of booleans: refuse one.
+                if size > 0 && (elem == 1 || elem == 2) {
+                    return bad(start, "a metadata list holds booleans, which the format never has");
+                }
                 let n = self.length(size, 1, start)?;
                 let mut items = Vec::with_capacity(n);
                 for _ in 0..n {

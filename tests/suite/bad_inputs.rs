@@ -116,6 +116,8 @@ cases!(
     parquet_field_of_wrong_type,
     parquet_field_twice,
     parquet_fuzz_string_read_as_struct,
+    parquet_fuzz_boolean_list,
+    parquet_fuzz_boolean_list_slow,
     metadata_no_class_column,
     metadata_weight_above_one,
     metadata_min_above_max,
