@@ -688,7 +688,10 @@ impl<'a> Reader<'a> {
                 // Readers disagree on a boolean in a list (one byte, or none when skipped by polars'
                 // footer decoder), and `parquet.thrift` has no list of booleans: refuse one.
                 if size > 0 && (elem == 1 || elem == 2) {
-                    return bad(start, "a metadata list holds booleans, which the format never has");
+                    return bad(
+                        start,
+                        "a metadata list holds booleans, which the format never has",
+                    );
                 }
                 let n = self.length(size, 1, start)?;
                 let mut items = Vec::with_capacity(n);
