@@ -454,14 +454,17 @@ fn against_reference(d: &Measured, r: &RefMeasured) -> String {
     }
 }
 
-/// A time ratio with two or three significant figures.
+/// A time ratio with two or three significant figures (0.0021, 0.97, 12.5, 515).
 fn ratio(x: f64) -> String {
     if x >= 100.0 {
         format!("{x:.0}")
     } else if x >= 10.0 {
         format!("{x:.1}")
-    } else {
+    } else if x >= 0.1 || x <= 0.0 || !x.is_finite() {
         format!("{x:.2}")
+    } else {
+        let decimals = (-x.log10()).floor() as usize + 2;
+        format!("{x:.decimals$}")
     }
 }
 
@@ -506,4 +509,18 @@ pub fn demo_end_to_end(config: &Path, work: &Path) -> Result<String> {
         wall.as_secs_f64(),
         stderr.trim_end()
     ))
+}
+
+#[cfg(test)]
+mod tests {
+    use super::ratio;
+
+    #[test]
+    fn ratios_keep_two_or_three_significant_figures() {
+        assert_eq!(ratio(0.0021), "0.0021");
+        assert_eq!(ratio(0.05), "0.050");
+        assert_eq!(ratio(0.97), "0.97");
+        assert_eq!(ratio(12.54), "12.5");
+        assert_eq!(ratio(515.2), "515");
+    }
 }
