@@ -321,8 +321,9 @@ pub fn run(opts: &BenchOptions, out: &mut dyn Write) -> Result<()> {
     w(
         out,
         &format!(
-            "cutting planes from {} scenarios on; build = assembling the LP and handing it to the solver (plus cut generation), solve = inside the solver",
-            models::CUTS_FROM_SCENARIOS
+            "cutting planes from {} scenarios on (from {} with at least as many assets as scenarios); build = assembling the LP and handing it to the solver (plus cut generation), solve = inside the solver",
+            models::CUTS_FROM_SCENARIOS,
+            models::CUTS_FROM_SCENARIOS_WIDE
         ),
     );
     w(out, "");

@@ -114,27 +114,31 @@ pub enum Method {
     Cuts,
 }
 
-/// From this many scenarios on, the models use the cutting-plane method. Measured with `tailpack bench` in a
-/// release build on this project's 2-core machine: with the HiGHS model kept loaded and warm-started per cut,
-/// cuts beat the direct LP for every model from a few hundred scenarios on (48 × 600: 2.4 / 19 / 38 ms against
-/// 38 / 52 / 62 ms for max-return / min-CVaR / max-ratio; the demo's 48 × 1,284: 2.6 / 14 / 36 ms against
-/// 131 / 93 / 112 ms), while at 40 × 200 the direct LP still wins the ratio model (13 ms against 22 ms).
-pub const CUTS_FROM_SCENARIOS: usize = 500;
-/// The same switch for the interior-point backend, which has no warm start here (each cut round is a fresh
+/// From this many scenarios on, the models use the cutting-plane method with HiGHS. Measured with `tailpack
+/// bench` in a release build on this project's 2-core machine (medians of 5; README, "Performance"): with the
+/// HiGHS model kept loaded and warm-started per cut, cuts take 0.10–0.85 of the direct LP's time for every
+/// model from 300 scenarios on (40 × 300: 4.1 / 8.2 / 17 ms against 13 / 17 / 20 ms for max-return /
+/// min-CVaR / max-ratio; 440 × 400: 12 / 70 / 154 ms against 114 / 178 / 434 ms), while at 200 scenarios
+/// the direct LP still wins the ratio model when assets are fewer than scenarios (40 × 200: 15 ms against
+/// 8.6 ms; 100 × 200: 42 ms against 31 ms).
+pub const CUTS_FROM_SCENARIOS: usize = 300;
+/// With at least as many assets as scenarios, cuts win every model from this many scenarios on (200 × 200:
+/// 0.31 / 0.57 / 0.81 of the direct LP's time; 440 × 200: 0.28 / 0.67 / 0.87).
+pub const CUTS_FROM_SCENARIOS_WIDE: usize = 200;
+/// The switch for the interior-point backend, which has no warm start here (each cut round is a fresh
 /// solve): it keeps the direct LP, an independent formulation for the cross-check, up to large sets.
 pub const CUTS_FROM_SCENARIOS_REBUILT: usize = 20_000;
 
-/// The method used for `scenarios` scenarios with `backend`.
-pub fn method_for(scenarios: usize, backend: Backend) -> Method {
-    let from = match backend {
-        Backend::Highs => CUTS_FROM_SCENARIOS,
-        Backend::Clarabel => CUTS_FROM_SCENARIOS_REBUILT,
+/// The method used for `scenarios` scenarios of `assets` assets with `backend`.
+pub fn method_for(scenarios: usize, assets: usize, backend: Backend) -> Method {
+    let cuts = match backend {
+        Backend::Highs => {
+            scenarios >= CUTS_FROM_SCENARIOS
+                || (scenarios >= CUTS_FROM_SCENARIOS_WIDE && assets >= scenarios)
+        }
+        Backend::Clarabel => scenarios >= CUTS_FROM_SCENARIOS_REBUILT,
     };
-    if scenarios >= from {
-        Method::Cuts
-    } else {
-        Method::Direct
-    }
+    if cuts { Method::Cuts } else { Method::Direct }
 }
 
 /// How the CVaR term is solved, in words for the pack's run facts.
@@ -162,7 +166,7 @@ enum Kind {
 impl Problem<'_> {
     /// The method used for this problem's size.
     pub fn method(&self) -> Method {
-        method_for(self.set.len(), self.backend)
+        method_for(self.set.len(), self.set.width(), self.backend)
     }
 
     /// Maximise μ·x over X, with CVaR_c(x) ≤ cap when a cap is given.
