@@ -21,8 +21,12 @@ pub const EXIT_SOLVER: i32 = 4;
 pub const EXIT_NOTHING_TO_DO: i32 = 5;
 /// Exit code: another run holds the archive lock and did not finish in time.
 pub const EXIT_BUSY: i32 = 6;
-/// Exit code: `verify` found a changed, missing or unlisted file.
+/// Exit code: `verify` found a changed, missing or unlisted file or a signature that does not hold (also
+/// `sign` and `finalize` on such a pack).
 pub const EXIT_VERIFY: i32 = 7;
+/// Exit code: `sign`, `finalize` or `keygen` refused (role not required, key not trusted or not a key
+/// file, role already signed, pack already final, roles still to sign, key file already there).
+pub const EXIT_SIGNOFF: i32 = 8;
 
 /// Every error the library can return.
 #[derive(Debug, thiserror::Error)]
@@ -61,6 +65,23 @@ pub enum Error {
         pack: PathBuf,
         problems: Vec<String>,
     },
+    /// `sign`, `finalize` or `keygen` refused; the message says why.
+    #[error("cannot {action} {}: {message}", path.display())]
+    Refused {
+        action: &'static str,
+        path: PathBuf,
+        message: String,
+    },
+    /// A key file that cannot be used: not a regular file, too large, or not a key.
+    #[error("key file {}: {message}", path.display())]
+    Key { path: PathBuf, message: String },
+    /// `sign` or `finalize` on a pack that fails verification; each line names a file.
+    #[error("cannot {action} {}: the pack fails verification:\n  {}", pack.display(), problems.join("\n  "))]
+    NotIntact {
+        action: &'static str,
+        pack: PathBuf,
+        problems: Vec<String>,
+    },
     /// Anything else that stops a run (e.g. no scenarios could be built).
     #[error("{0}")]
     Run(String),
@@ -93,7 +114,8 @@ impl Error {
             Error::Data { .. } | Error::Quality { .. } => EXIT_DATA,
             Error::Io { .. } | Error::Run(_) => EXIT_FAILURE,
             Error::Busy { .. } => EXIT_BUSY,
-            Error::Verify { .. } => EXIT_VERIFY,
+            Error::Verify { .. } | Error::NotIntact { .. } => EXIT_VERIFY,
+            Error::Refused { .. } | Error::Key { .. } => EXIT_SIGNOFF,
         }
     }
 
@@ -173,6 +195,33 @@ pub mod fs {
             }
         }
         Ok(out)
+    }
+
+    /// What a non-regular file is, for messages ("a folder", "a named pipe (FIFO)", "a device"…).
+    pub fn kind_of(meta: &std::fs::Metadata) -> &'static str {
+        let t = meta.file_type();
+        #[cfg(unix)]
+        {
+            use std::os::unix::fs::FileTypeExt;
+            if t.is_fifo() {
+                return "a named pipe (FIFO)";
+            }
+            if t.is_char_device() || t.is_block_device() {
+                return "a device";
+            }
+            if t.is_socket() {
+                return "a socket";
+            }
+        }
+        if t.is_dir() {
+            "a folder"
+        } else if t.is_symlink() {
+            "a symbolic link"
+        } else if t.is_file() {
+            "a regular file"
+        } else {
+            "not a regular file"
+        }
     }
 
     /// Renames a file or folder.
