@@ -173,10 +173,11 @@ fn multi_summary(outcomes: &[(String, Result<RunReport>)]) -> RunReport {
     RunReport { text, code }
 }
 
-/// `tailpack verify`: recomputes every digest; with `rerun`, also re-runs from the archived inputs and
-/// compares every output byte for byte.
+/// `tailpack verify`: recomputes every digest, accounts for every file, checks every signature and the
+/// signed finalisation; with `rerun`, also re-runs from the archived inputs and compares every output byte
+/// for byte.
 pub fn verify(pack: &Path, rerun: bool) -> Result<String> {
-    let mut problems: Vec<String> = crate::archive::verify(pack)?
+    let mut problems: Vec<String> = crate::signoff::check_pack(pack)?
         .into_iter()
         .map(|f| format!("{}: {}", f.file, f.problem))
         .collect();
@@ -190,13 +191,19 @@ pub fn verify(pack: &Path, rerun: bool) -> Result<String> {
         });
     }
     let id = crate::archive::recorded_id(pack).unwrap_or_default();
+    let rec = crate::signoff::record(pack).unwrap_or_default();
+    let signed = match (&rec.finalised, rec.signatures.len()) {
+        (Some(_), n) => format!("; final, {n} signature(s) and the finalisation hold"),
+        (None, 0) => "; not signed".to_string(),
+        (None, n) => format!("; {n} signature(s) hold, not final"),
+    };
     let how = if rerun {
         "every digest matches and a re-run from the archived inputs gives identical outputs"
     } else {
         "every digest matches"
     };
     Ok(format!(
-        "pack {} verified: {how} (pack id {id})\n",
+        "pack {} verified: {how}{signed} (pack id {id})\n",
         pack.display()
     ))
 }
@@ -217,64 +224,36 @@ fn recompute(pack: &Path, scratch: &Path) -> Result<(run::RunResult, crate::arch
     Ok((run::compute(cfg, data)?, plan))
 }
 
-/// `tailpack finalize PACK`: once every required role has signed, renders `pack-final.pdf` (status FINAL,
-/// sign-off page filled) and records its digest; the pack is immutable from then on.
-pub fn finalize(pack: &Path) -> Result<String> {
-    let refuse = |why: String| {
-        crate::error::Error::Run(format!("cannot finalise {}: {why}", pack.display()))
-    };
-    let problems = crate::archive::verify(pack)?;
-    if let Some(p) = problems.first() {
-        return Err(refuse(format!(
-            "the pack fails verification ({}: {})",
-            p.file, p.problem
-        )));
-    }
-    let mut rec = crate::signoff::record(pack)?;
-    if rec.finalised.is_some() {
-        return Err(refuse(
-            "it is already final; a final pack is immutable".into(),
-        ));
-    }
-    let roles = crate::signoff::roles(pack)?;
-    if roles.is_empty() {
-        return Err(refuse(
-            "its config lists no sign-off roles (signoff.roles)".into(),
-        ));
-    }
-    let signed = crate::signoff::signed_roles(&rec);
-    let missing: Vec<&str> = roles
-        .iter()
-        .filter(|r| !signed.contains(&r.role))
-        .map(|r| r.role.as_str())
-        .collect();
-    if !missing.is_empty() {
-        return Err(refuse(format!(
-            "role(s) not yet signed: {}",
-            missing.join(", ")
-        )));
-    }
+/// `tailpack finalize PACK --role R --key K`: once every required role has signed, renders
+/// `pack-final.pdf` (status FINAL, sign-off page filled) and seals it with a finalisation statement signed
+/// by a required role's key; the pack is immutable from then on.
+pub fn finalize(pack: &Path, role: &str, key: &Path, name: Option<&str>) -> Result<Signed> {
+    let _lock = crate::archive::lock_pack(pack, crate::archive::LOCK_TIMEOUT)?;
+    let fin = crate::signoff::prepare_final(pack, role, key, name)?;
     let scratch = std::env::temp_dir().join(format!("tailpack-final-{}", std::process::id()));
     let (result, plan) = recompute(pack, &scratch)?;
     let mut results: serde_json::Value =
         serde_json::from_slice(&crate::error::fs::read(&pack.join("results.json"))?)
             .unwrap_or_default();
-    results["signoff"] = final_block(&rec, &roles);
+    results["signoff"] = final_block(&fin.record, &fin.roles);
     let pdf = crate::report::render(&result, &results, &plan.pack_id)?;
+    let warnings = fin.warnings.clone();
+    let rec = crate::signoff::seal_final(pack, fin, &pdf, chrono::Utc::now())?;
     let name = crate::archive::FINAL_PDF;
-    crate::error::fs::write(&pack.join(name), &pdf)?;
-    rec.finalised = Some(crate::signoff::Final {
-        pdf: name.into(),
-        sha256: crate::pack::hex(&<sha2::Sha256 as sha2::Digest>::digest(&pdf)),
-    });
+    let tmp = pack.join(format!(".{name}.{}.tmp", std::process::id()));
+    crate::error::fs::write(&tmp, &pdf)?;
+    crate::error::fs::rename(&tmp, &pack.join(name))?;
     crate::signoff::save(pack, &rec)?;
-    if let Some(root) = pack.parent().and_then(Path::parent).and_then(Path::parent) {
+    if let Some(root) = crate::archive::root_of(pack) {
         crate::archive::write_index(root)?;
     }
-    Ok(format!(
-        "finalised {}: {name} written; the pack is now immutable\n",
-        pack.display()
-    ))
+    Ok(Signed {
+        text: format!(
+            "finalised {}: {name} written and sealed by `{role}`; the pack is now immutable\n",
+            pack.display()
+        ),
+        warnings,
+    })
 }
 
 /// The sign-off facts the final PDF prints: status FINAL and one row per role.
@@ -332,13 +311,24 @@ pub fn keygen(prefix: &Path) -> Result<String> {
     crate::signoff::keygen(prefix)
 }
 
-/// `tailpack sign PACK --role R --key KEYFILE [--name N]`.
-pub fn sign(pack: &Path, role: &str, key: &Path, name: Option<&str>) -> Result<String> {
-    let text = crate::signoff::sign(pack, role, key, name, chrono::Utc::now())?;
-    if let Some(root) = pack.parent().and_then(Path::parent).and_then(Path::parent) {
+/// What `sign` or `finalize` did: text for stdout, warnings for stderr.
+pub struct Signed {
+    pub text: String,
+    pub warnings: Vec<String>,
+}
+
+/// `tailpack sign PACK --role R --key KEYFILE [--name N]`, under the pack's lock so concurrent signers
+/// never lose a statement.
+pub fn sign(pack: &Path, role: &str, key: &Path, name: Option<&str>) -> Result<Signed> {
+    let _lock = crate::archive::lock_pack(pack, crate::archive::LOCK_TIMEOUT)?;
+    let done = crate::signoff::sign(pack, role, key, name, chrono::Utc::now())?;
+    if let Some(root) = crate::archive::root_of(pack) {
         crate::archive::write_index(root)?;
     }
-    Ok(text)
+    Ok(Signed {
+        text: done.text,
+        warnings: done.warnings,
+    })
 }
 
 /// `tailpack check`: validates config and data and returns the data-quality report.

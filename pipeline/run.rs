@@ -29,7 +29,7 @@ impl Default for RunOptions {
             as_of: None,
             out: None,
             backend: None,
-            lock_timeout: std::time::Duration::from_secs(600),
+            lock_timeout: crate::archive::LOCK_TIMEOUT,
         }
     }
 }
