@@ -54,17 +54,11 @@ pub struct RunReport {
 pub fn run(config: &Path, opts: &RunOptions, progress: &Progress) -> Result<RunReport> {
     progress.step("reading config and data");
     let mut funds = crate::config::load_all(config)?;
-    if funds.len() == 1 {
-        let cfg = funds.remove(0);
-        let root = opts.out.clone().unwrap_or_else(|| cfg.out_root.clone());
-        let _lock = crate::archive::lock(&root, opts.lock_timeout)?;
-        return run_fund(cfg, opts, progress);
-    }
-    let root = opts
-        .out
-        .clone()
-        .unwrap_or_else(|| funds[0].out_root.clone());
+    let root = output_root(config, &funds[0], opts)?;
     let _lock = crate::archive::lock(&root, opts.lock_timeout)?;
+    if funds.len() == 1 {
+        return run_fund(funds.remove(0), opts, progress);
+    }
     progress.step(&format!("building {} fund packs in parallel", funds.len()));
     use rayon::prelude::*;
     let quiet = Progress::new(true);
@@ -77,14 +71,57 @@ pub fn run(config: &Path, opts: &RunOptions, progress: &Progress) -> Result<RunR
     Ok(multi_summary(&outcomes))
 }
 
+/// The pack root of a run (`--out`, else `output.root`), refused when it is or lies inside a pack folder:
+/// the archive's lock and index written there would change a pack that verifies only as written.
+fn output_root(config: &Path, cfg: &crate::config::Config, opts: &RunOptions) -> Result<PathBuf> {
+    let (root, key) = match &opts.out {
+        Some(out) => (out.clone(), "--out"),
+        None => (cfg.out_root.clone(), "output.root"),
+    };
+    match enclosing_pack(&root) {
+        Some(pack) => Err(crate::error::Error::config(
+            config,
+            format!(
+                "{key} {}: is inside the pack {} (a folder with {} or {}); a pack must stay as it was written, so choose an output root outside every pack",
+                root.display(),
+                pack.display(),
+                crate::archive::MANIFEST,
+                crate::archive::LISTING
+            ),
+        )),
+        None => Ok(root),
+    }
+}
+
+/// The pack folder `dir` is or lies in, if any: the nearest part of `dir` that exists, with symbolic
+/// links resolved, and every folder above it are looked at.
+fn enclosing_pack(dir: &Path) -> Option<PathBuf> {
+    let existing = dir.ancestors().find_map(|a| {
+        let a = if a.as_os_str().is_empty() {
+            Path::new(".")
+        } else {
+            a
+        };
+        std::fs::canonicalize(a).ok()
+    })?;
+    existing
+        .ancestors()
+        .find(|a| {
+            a.join(crate::archive::MANIFEST).is_file() || a.join(crate::archive::LISTING).is_file()
+        })
+        .map(Path::to_path_buf)
+}
+
 /// One fund: plan, no-op check, compute, write (the caller holds the archive lock).
 fn run_fund(
     cfg: crate::config::Config,
     opts: &RunOptions,
     progress: &Progress,
 ) -> Result<RunReport> {
-    let (cfg, data) = timings::time("ingest", || run::prepare_fund(cfg, opts))?;
-    let plan = timings::time("hashing", || crate::archive::plan(&cfg, data.as_of))?;
+    let prepared = run::prepare_fund(cfg, opts)?;
+    let plan = timings::time("hashing", || {
+        crate::archive::plan(&prepared.cfg, prepared.data.as_of)
+    })?;
     if let Some(existing) = crate::archive::identical(&plan) {
         progress.finish();
         let shown = std::fs::canonicalize(&existing).unwrap_or(existing);
@@ -99,7 +136,7 @@ fn run_fund(
         });
     }
     progress.step("solving the CVaR models, frontier, stress set and backtest");
-    let result = run::compute(cfg, data)?;
+    let result = run::solve(prepared)?;
     progress.step("writing the pack");
     let (dir, text) = crate::pack::write(&result, &plan)?;
     progress.finish();
@@ -331,17 +368,22 @@ pub fn sign(pack: &Path, role: &str, key: &Path, name: Option<&str>) -> Result<S
     })
 }
 
-/// `tailpack check`: validates config and data and returns the data-quality report.
+/// `tailpack check`: every check `run` makes before its first LP, through the same steps (config and
+/// stress file, output root, data and its quality, scenarios, feasible set, stress shocks against the
+/// data), so it refuses what `run` refuses with the same exit code; returns the data-quality report.
 pub fn check(config: &Path, opts: &RunOptions) -> Result<String> {
+    let funds = crate::config::load_all(config)?;
+    output_root(config, &funds[0], opts)?;
     let mut out = String::new();
-    for cfg in crate::config::load_all(config)? {
+    for cfg in funds {
         out.push_str(&check_fund(cfg, opts)?);
     }
     Ok(out)
 }
 
 fn check_fund(cfg: crate::config::Config, opts: &RunOptions) -> Result<String> {
-    let (cfg, data) = run::prepare_fund(cfg, opts)?;
+    let prepared = run::prepare_fund(cfg, opts)?;
+    let (cfg, data) = (&prepared.cfg, &prepared.data);
     let q = &data.quality;
     let mut out = format!(
         "fund {}: config {} is valid\nprices {} ({} layout): {} to {}; as-of {}; scenario window {} to {} ({} observations)\nfill policy: {}\n",
@@ -371,6 +413,16 @@ fn check_fund(cfg: crate::config::Config, opts: &RunOptions) -> Result<String> {
     for f in &q.findings {
         out.push_str(&format!("{}: {}\n", f.level.word(), f.message));
     }
+    out.push_str(&format!(
+        "feasible set: {} assets, {} group limit(s) resolved; {} scenarios; stress file: {}\n",
+        data.assets.len(),
+        prepared.feasible.groups.len(),
+        prepared.scenarios.len(),
+        match &cfg.stress_file {
+            Some(p) => format!("{} shock(s) resolved ({})", prepared.shocks.len(), p.display()),
+            None => "none".into(),
+        }
+    ));
     Ok(out)
 }
 

@@ -224,6 +224,37 @@ pub mod fs {
         }
     }
 
+    /// Why `path` cannot be read as an input file, or `None` when it is a regular file (symbolic links
+    /// followed): "does not exist", "is a folder, not a file", "is a named pipe (FIFO), not a file"…
+    /// Looks at metadata only, so a named pipe is never opened (opening one waits for a writer).
+    pub fn not_a_file(path: &Path) -> Option<String> {
+        match std::fs::metadata(path) {
+            Ok(m) if m.is_file() => None,
+            Ok(m) => Some(format!("is {}, not a file", kind_of(&m))),
+            Err(e) if e.kind() == std::io::ErrorKind::NotFound => {
+                let dangling = std::fs::symlink_metadata(path).is_ok_and(|m| m.is_symlink());
+                Some(if dangling {
+                    "is a symbolic link to something that does not exist".to_string()
+                } else {
+                    "does not exist".to_string()
+                })
+            }
+            Err(e) => Some(format!("cannot be examined: {e}")),
+        }
+    }
+
+    /// Reads at most `max + 1` bytes of a file, so a caller can refuse a file longer than `max` without
+    /// holding all of it (the file may grow after its size was looked at).
+    pub fn read_at_most(path: &Path, max: u64) -> Result<Vec<u8>> {
+        use std::io::Read;
+        let file = std::fs::File::open(path).map_err(io("cannot read", path))?;
+        let mut bytes = Vec::new();
+        file.take(max + 1)
+            .read_to_end(&mut bytes)
+            .map_err(io("cannot read", path))?;
+        Ok(bytes)
+    }
+
     /// Renames a file or folder.
     pub fn rename(from: &Path, to: &Path) -> Result<()> {
         std::fs::rename(from, to).map_err(io("cannot move into place", to))
