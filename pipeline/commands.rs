@@ -71,8 +71,9 @@ pub fn run(config: &Path, opts: &RunOptions, progress: &Progress) -> Result<RunR
     Ok(multi_summary(&outcomes))
 }
 
-/// The pack root of a run (`--out`, else `output.root`), refused when it is or lies inside a pack folder:
-/// the archive's lock and index written there would change a pack that verifies only as written.
+/// The pack root of a run (`--out`, else `output.root`), refused when it is or lies inside a pack folder
+/// (the archive's lock and index written there would change a pack that verifies only as written) or when
+/// a file stands where it or one of its folders must be created.
 fn output_root(config: &Path, cfg: &crate::config::Config, opts: &RunOptions) -> Result<PathBuf> {
     let (root, key) = match &opts.out {
         Some(out) => (out.clone(), "--out"),
@@ -89,7 +90,10 @@ fn output_root(config: &Path, cfg: &crate::config::Config, opts: &RunOptions) ->
                 crate::archive::LISTING
             ),
         )),
-        None => Ok(root),
+        None => {
+            crate::error::fs::creatable_folder(&root)?;
+            Ok(root)
+        }
     }
 }
 

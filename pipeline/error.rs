@@ -243,6 +243,34 @@ pub mod fs {
         }
     }
 
+    /// Refuses a folder path whose nearest existing part is not a folder (a file stands in the way), with
+    /// the error creating it would give; writes nothing.
+    pub fn creatable_folder(path: &Path) -> Result<()> {
+        for part in path.ancestors() {
+            let part = if part.as_os_str().is_empty() {
+                Path::new(".")
+            } else {
+                part
+            };
+            match std::fs::metadata(part) {
+                Ok(m) if m.is_dir() => return Ok(()),
+                Ok(m) => {
+                    let kind = if part == path {
+                        std::io::ErrorKind::AlreadyExists
+                    } else {
+                        std::io::ErrorKind::NotADirectory
+                    };
+                    let why = format!("{} is {}", part.display(), kind_of(&m));
+                    return Err(io("cannot create folder", path)(std::io::Error::new(
+                        kind, why,
+                    )));
+                }
+                Err(_) => continue,
+            }
+        }
+        Ok(())
+    }
+
     /// Reads at most `max + 1` bytes of a file, so a caller can refuse a file longer than `max` without
     /// holding all of it (the file may grow after its size was looked at).
     pub fn read_at_most(path: &Path, max: u64) -> Result<Vec<u8>> {
