@@ -246,40 +246,11 @@ struct Ran {
 const HANG: std::time::Duration = std::time::Duration::from_secs(300);
 
 fn run(dir: &Path, args: &[&str]) -> Ran {
-    use std::io::Read;
-    let mut child = Command::new(env!("CARGO_BIN_EXE_tailpack"))
-        .args(args)
-        .current_dir(dir)
-        .stdout(std::process::Stdio::piped())
-        .stderr(std::process::Stdio::piped())
-        .spawn()
-        .expect("binary runs");
-    let drain = |mut r: Box<dyn Read + Send>| {
-        std::thread::spawn(move || {
-            let mut b = Vec::new();
-            let _ = r.read_to_end(&mut b);
-            String::from_utf8_lossy(&b).into_owned()
-        })
-    };
-    let (out, err) = (
-        drain(Box::new(child.stdout.take().unwrap())),
-        drain(Box::new(child.stderr.take().unwrap())),
-    );
-    let start = std::time::Instant::now();
-    let status = loop {
-        if let Some(s) = child.try_wait().unwrap() {
-            break s;
-        }
-        if start.elapsed() > HANG {
-            let _ = child.kill();
-            panic!("tailpack {args:?} did not finish within {HANG:?}");
-        }
-        std::thread::sleep(std::time::Duration::from_millis(20));
-    };
+    let r = super::common::run_in(dir, args, HANG);
     Ran {
-        code: status.code().unwrap_or(-1),
-        stdout: out.join().unwrap(),
-        stderr: err.join().unwrap(),
+        code: r.code,
+        stdout: r.stdout,
+        stderr: r.stderr,
     }
 }
 
