@@ -423,7 +423,11 @@ fn check_fund(cfg: crate::config::Config, opts: &RunOptions) -> Result<String> {
         prepared.feasible.groups.len(),
         prepared.scenarios.len(),
         match &cfg.stress_file {
-            Some(p) => format!("{} shock(s) resolved ({})", prepared.shocks.len(), p.display()),
+            Some(p) => format!(
+                "{} shock(s) resolved ({})",
+                prepared.shocks.len(),
+                p.display()
+            ),
             None => "none".into(),
         }
     ));

@@ -517,7 +517,10 @@ fn check_shocks(file: &StressFile) -> std::result::Result<(), (String, String)> 
         }
         for (j, m) in s.moves.iter().enumerate() {
             check_move(m).map_err(|(k, why)| {
-                (format!("shocks[{i}].moves[{j}]{k}"), format!("in shock `{name}`: {why}"))
+                (
+                    format!("shocks[{i}].moves[{j}]{k}"),
+                    format!("in shock `{name}`: {why}"),
+                )
             })?;
         }
     }

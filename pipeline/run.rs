@@ -3,10 +3,10 @@
 //! This module wires the stages together and resolves the rules that depend on earlier results (the CVaR
 //! cap "times the minimum", the return floor "plus current"). It computes nothing itself beyond that.
 
+use crate::analysis::stress::{self, Shock};
 use crate::config::{self, Backend, Config, GroupSelector};
 use crate::diag::{Check, Level};
 use crate::error::{Error, Result};
-use crate::analysis::stress::{self, Shock};
 use crate::ingest::{self, MarketData};
 use crate::models::{self, FeasibleSet, Group, Outcome, Preconditions, Problem, Status, lp};
 use crate::risk::{self, RiskProfile};
@@ -101,8 +101,7 @@ pub fn prepare_fund(mut cfg: Config, opts: &RunOptions) -> Result<Prepared> {
 
 /// The checks after ingest: scenarios, the feasible set, the stress shocks against the data.
 pub fn validate(cfg: Config, data: MarketData) -> Result<Prepared> {
-    let scenarios =
-        crate::timings::time("scenarios", || scenarios::build(&data, &cfg.scenarios))?;
+    let scenarios = crate::timings::time("scenarios", || scenarios::build(&data, &cfg.scenarios))?;
     let feasible = feasible_set(&cfg, &data)?;
     let shocks = match (&cfg.stress_file, &cfg.stress) {
         (Some(path), Some(file)) => stress::defined(path, file, &data)?,

@@ -429,7 +429,10 @@ mod tests {
         assert!(m.starts_with("fund.name: a text of 201 characters"), "{m}");
         assert!(m.ends_with("at line 2 column 9"), "{m}");
         let ok = "y".repeat(MAX_PARAGRAPH_CHARS);
-        assert_eq!(overlong_text(&format!("shocks:\n  - description: {ok}\n")), None);
+        assert_eq!(
+            overlong_text(&format!("shocks:\n  - description: {ok}\n")),
+            None
+        );
         let m = overlong_text(&format!("shocks:\n  - description: {ok}z\n")).unwrap();
         assert!(m.contains("a description may have at most 4000"), "{m}");
         assert_eq!(overlong_text(&format!("data:\n  prices: {long}\n")), None);

@@ -343,7 +343,10 @@ fn check_refuses_what_run_refuses_before_solving() {
         let config = format!("{name}/fund.yaml");
         let mut args: Vec<&str> = vec!["check", &config];
         for pair in e.args.chunks(2) {
-            assert_eq!(pair[0], "--as-of", "{name}: check takes only --as-of of the run options");
+            assert_eq!(
+                pair[0], "--as-of",
+                "{name}: check takes only --as-of of the run options"
+            );
             args.extend(pair.iter().map(String::as_str));
         }
         let ran = run(tmp.path(), &args);
@@ -360,7 +363,10 @@ fn check_refuses_what_run_refuses_before_solving() {
             continue;
         }
         let file = format!("{name}/{}", e.file.as_ref().unwrap());
-        for n in [&file, e.place.as_ref().unwrap()].into_iter().chain(&needles) {
+        for n in [&file, e.place.as_ref().unwrap()]
+            .into_iter()
+            .chain(&needles)
+        {
             assert!(ran.stderr.contains(n.as_str()), "must say `{n}`; {shown}");
         }
         assert!(ran.stderr.len() <= MAX_STDERR, "{shown}");

@@ -35,10 +35,17 @@ fn both_refuse(f: &Fixture, config: &str, code: i32, needles: &[&str]) {
             _ => vec!["check", config],
         };
         let (ran, took) = timed(f, &args);
-        let shown = format!("{cmd} {config}: exit {}, {took:?}\n{}", ran.code, ran.stderr);
+        let shown = format!(
+            "{cmd} {config}: exit {}, {took:?}\n{}",
+            ran.code, ran.stderr
+        );
         assert_eq!(ran.code, code, "{shown}");
         assert!(took < FAST, "too slow: {shown}");
-        assert!(ran.stderr.len() < 1500, "message too long: {}", &shown[..1500]);
+        assert!(
+            ran.stderr.len() < 1500,
+            "message too long: {}",
+            &shown[..1500]
+        );
         for n in needles {
             assert!(ran.stderr.contains(n), "missing `{n}`: {shown}");
         }
@@ -48,7 +55,10 @@ fn both_refuse(f: &Fixture, config: &str, code: i32, needles: &[&str]) {
 
 /// The 1-based line of the first line of `text` that contains `needle`.
 fn line_of(text: &str, needle: &str) -> usize {
-    text.lines().position(|l| l.contains(needle)).expect("needle in text") + 1
+    text.lines()
+        .position(|l| l.contains(needle))
+        .expect("needle in text")
+        + 1
 }
 
 /// Configs (and stress files) holding one huge text in different places: (what, config, stress file).
@@ -61,7 +71,9 @@ fn huge_texts(value: &str) -> Vec<(&'static str, String, Option<String>)> {
         .map(|c| format!("    {}\n", std::str::from_utf8(c).unwrap()))
         .collect();
     let multi = base.replace("fund:\n  name: Test Fund (fictional)\n", "")
-        + &format!("funds:\n  - fund: {{ name: Fund A (fictional) }}\n  - fund:\n      name: Fund B (fictional)\n      prepared_for: {value}\n");
+        + &format!(
+            "funds:\n  - fund: {{ name: Fund A (fictional) }}\n  - fund:\n      name: Fund B (fictional)\n      prepared_for: {value}\n"
+        );
     vec![
         (
             "fund.name",
@@ -175,7 +187,9 @@ fn long_metadata_cells_are_data_errors_naming_row_and_column() {
     let long = "m".repeat(5 << 20);
     let cases = [
         (
-            format!("asset,class,name\nAS01,equity,x\nAS02,bond,{long}\nAS03,equity,x\nAS04,bond,x\n"),
+            format!(
+                "asset,class,name\nAS01,equity,x\nAS02,bond,{long}\nAS03,equity,x\nAS04,bond,x\n"
+            ),
             "row 2 (line 3), column `name`",
         ),
         (
@@ -183,24 +197,46 @@ fn long_metadata_cells_are_data_errors_naming_row_and_column() {
             "row 3 (line 4), column `class`",
         ),
         (
-            format!("asset,class,region\nAS01,equity,north\nAS02,bond,north\nAS03,equity,north\nAS04,bond,{}\n", &long[..201]),
+            format!(
+                "asset,class,region\nAS01,equity,north\nAS02,bond,north\nAS03,equity,north\nAS04,bond,{}\n",
+                &long[..201]
+            ),
             "row 4 (line 5), column `region`",
         ),
         (
-            format!("asset,class\nAS01,equity\nAS02,bond\nAS03,equity\nAS04,bond\n{},bond\n", &long[..300]),
+            format!(
+                "asset,class\nAS01,equity\nAS02,bond\nAS03,equity\nAS04,bond\n{},bond\n",
+                &long[..300]
+            ),
             "row 5 (line 6), column `asset`",
         ),
     ];
     for (csv, place) in cases {
         f.write("data/assets.csv", &csv);
-        both_refuse(&f, "fund.yaml", 3, &["assets.csv", place, "at most 200 characters"]);
+        both_refuse(
+            &f,
+            "fund.yaml",
+            3,
+            &["assets.csv", place, "at most 200 characters"],
+        );
     }
     for (csv, place) in [
-        ("asset,class\nAS01,equity\nAS02,\nAS03,equity\nAS04,bond\n", "row 2 (line 3)"),
-        ("asset,class\nAS01,equity\nAS02,bond\nAS03,equity\nAS04,\t \n", "row 4 (line 5)"),
+        (
+            "asset,class\nAS01,equity\nAS02,\nAS03,equity\nAS04,bond\n",
+            "row 2 (line 3)",
+        ),
+        (
+            "asset,class\nAS01,equity\nAS02,bond\nAS03,equity\nAS04,\t \n",
+            "row 4 (line 5)",
+        ),
     ] {
         f.write("data/assets.csv", csv);
-        both_refuse(&f, "fund.yaml", 3, &["assets.csv", place, "column `class`", "blank asset class"]);
+        both_refuse(
+            &f,
+            "fund.yaml",
+            3,
+            &["assets.csv", place, "column `class`", "blank asset class"],
+        );
     }
 }
 
@@ -215,7 +251,10 @@ fn make(f: &Fixture, name: &str, kind: &str) -> String {
             format!("{name} is a folder, not a file")
         }
         "fifo" => {
-            let made = std::process::Command::new("mkfifo").arg(&p).status().unwrap();
+            let made = std::process::Command::new("mkfifo")
+                .arg(&p)
+                .status()
+                .unwrap();
             assert!(made.success());
             format!("{name} is a named pipe (FIFO), not a file")
         }
@@ -251,7 +290,11 @@ fn input_paths_that_are_not_files_say_what_they_are() {
     let keys = [
         ("data.prices", "prices: data/prices.csv", "prices: odd.csv"),
         ("data.assets", "assets: data/assets.csv", "assets: odd.csv"),
-        ("data.holdings", "holdings: data/holdings.csv", "holdings: odd.csv"),
+        (
+            "data.holdings",
+            "holdings: data/holdings.csv",
+            "holdings: odd.csv",
+        ),
     ];
     for kind in NOT_FILES {
         for (key, from, to) in keys {
@@ -312,26 +355,43 @@ fn an_output_root_in_a_pack_is_refused_and_the_pack_still_verifies() {
         let ran = f.run_within(&["run", "fund.yaml", "--quiet", "--out", out], HANG);
         assert_eq!(ran.code, 2, "--out {out}: {}", ran.stderr);
         for n in ["--out", out, "is inside the pack", &shown] {
-            assert!(ran.stderr.contains(n), "--out {out}: `{n}` missing: {}", ran.stderr);
+            assert!(
+                ran.stderr.contains(n),
+                "--out {out}: `{n}` missing: {}",
+                ran.stderr
+            );
         }
     }
     // The same through output.root (relative to the config file), for one fund and for several.
-    let rel = pack.strip_prefix(std::fs::canonicalize(f.path("")).unwrap()).unwrap();
+    let rel = pack
+        .strip_prefix(std::fs::canonicalize(f.path("")).unwrap())
+        .unwrap();
     let root = format!("  root: {}/inputs\n", rel.display());
     let one = config("").replace("  root: out\n", &root);
     let several = one.replace("fund:\n  name: Test Fund (fictional)\n", "")
         + "funds:\n  - fund: { name: Fund A (fictional) }\n  - fund: { name: Fund B (fictional) }\n";
     for cfg in [one, several] {
         f.write("fund.yaml", &cfg);
-        for args in [vec!["run", "fund.yaml", "--quiet"], vec!["check", "fund.yaml"]] {
+        for args in [
+            vec!["run", "fund.yaml", "--quiet"],
+            vec!["check", "fund.yaml"],
+        ] {
             let ran = f.run_within(&args, HANG);
             assert_eq!(ran.code, 2, "{args:?}: {}", ran.stderr);
             for n in ["output.root", "is inside the pack", &shown] {
-                assert!(ran.stderr.contains(n), "{args:?}: `{n}` missing: {}", ran.stderr);
+                assert!(
+                    ran.stderr.contains(n),
+                    "{args:?}: `{n}` missing: {}",
+                    ran.stderr
+                );
             }
         }
     }
-    assert_eq!(snapshot(&pack), before, "nothing in the pack changed, nothing was added");
+    assert_eq!(
+        snapshot(&pack),
+        before,
+        "nothing in the pack changed, nothing was added"
+    );
     assert!(!pack.join("sub").exists());
     let ran = f.run_within(&["verify", pack.to_str().unwrap()], HANG);
     assert_eq!(ran.code, 0, "{}", ran.stderr);
@@ -355,13 +415,45 @@ fn check_refuses_what_run_refuses_and_run_refuses_it_before_any_lp() {
     let f = fund();
     let shocks = "shocks:\n  - name: Fall\n    moves: [{ tag: \"class:equity\", return: -0.2 }]\n";
     let cases: [(&str, &str, &[&str]); 7] = [
-        ("shocks:\n  - name: Fall\n    moves: [{ tag: x\n  - name: B\n", "", &["stress.yaml", "line 4"]),
-        ("shocks:\n  - name: Fall\n    moves: [{ asset: AS09, return: -0.2 }]\n", "", &["stress.yaml", "shock `Fall`", "unknown asset `AS09`"]),
-        ("shocks:\n  - name: Fall\n    moves: [{ tag: \"region:north\", return: -0.2 }]\n", "", &["stress.yaml", "tag `region:north` matches no asset"]),
-        ("shocks:\n  - name: Fall\n    moves: []\n  - name: Rise\n    moves: []\n  - name: Fall\n    moves: []\n", "", &["stress.yaml", "shocks[2].name (line 6)", "already the name of shocks[0]"]),
-        (shocks, "limits:\n  groups:\n    - { name: Core, assets: [AS01, AS9] }\n", &["fund.yaml", "limits.groups `Core`", "unknown asset `AS9`"]),
-        (shocks, "limits:\n  groups:\n    - { name: Core, tag: \"sector:tech\" }\n", &["fund.yaml", "limits.groups `Core`", "no column `sector`"]),
-        (shocks, "limits:\n  groups:\n    - { name: Core, tag: \"class:cash\" }\n", &["fund.yaml", "limits.groups `Core`", "selects no asset"]),
+        (
+            "shocks:\n  - name: Fall\n    moves: [{ tag: x\n  - name: B\n",
+            "",
+            &["stress.yaml", "line 4"],
+        ),
+        (
+            "shocks:\n  - name: Fall\n    moves: [{ asset: AS09, return: -0.2 }]\n",
+            "",
+            &["stress.yaml", "shock `Fall`", "unknown asset `AS09`"],
+        ),
+        (
+            "shocks:\n  - name: Fall\n    moves: [{ tag: \"region:north\", return: -0.2 }]\n",
+            "",
+            &["stress.yaml", "tag `region:north` matches no asset"],
+        ),
+        (
+            "shocks:\n  - name: Fall\n    moves: []\n  - name: Rise\n    moves: []\n  - name: Fall\n    moves: []\n",
+            "",
+            &[
+                "stress.yaml",
+                "shocks[2].name (line 6)",
+                "already the name of shocks[0]",
+            ],
+        ),
+        (
+            shocks,
+            "limits:\n  groups:\n    - { name: Core, assets: [AS01, AS9] }\n",
+            &["fund.yaml", "limits.groups `Core`", "unknown asset `AS9`"],
+        ),
+        (
+            shocks,
+            "limits:\n  groups:\n    - { name: Core, tag: \"sector:tech\" }\n",
+            &["fund.yaml", "limits.groups `Core`", "no column `sector`"],
+        ),
+        (
+            shocks,
+            "limits:\n  groups:\n    - { name: Core, tag: \"class:cash\" }\n",
+            &["fund.yaml", "limits.groups `Core`", "selects no asset"],
+        ),
     ];
     for (stress, limits, needles) in cases {
         f.write("stress.yaml", stress);
@@ -377,6 +469,11 @@ fn check_refuses_what_run_refuses_and_run_refuses_it_before_any_lp() {
             error.unwrap_or("").to_string()
         };
         assert_eq!(first(&check), first(&run), "the same message");
-        assert_eq!(stage_seconds(&run.stderr, "models"), 0.0, "no LP ran: {}", run.stderr);
+        assert_eq!(
+            stage_seconds(&run.stderr, "models"),
+            0.0,
+            "no LP ran: {}",
+            run.stderr
+        );
     }
 }
