@@ -125,6 +125,7 @@ fn parse_csv(path: &Path, bytes: &[u8]) -> Result<TextTable> {
             ),
         ));
     }
+    table.names = names;
     Ok(table)
 }
 
@@ -228,10 +229,7 @@ fn check_names(path: &Path, csv: &CsvText) -> Result<Vec<String>> {
             format!("line {line} (header): a quoted name is not closed on its line"),
         ));
     }
-    let names: Vec<String> = cells
-        .iter()
-        .map(|c| c.trim().trim_matches('"').trim().to_string())
-        .collect();
+    let names: Vec<String> = cells.iter().map(|c| unquote(c)).collect();
     // A map, not a scan of the names before each one: a header line of megabytes stays linear.
     let mut seen = std::collections::HashMap::with_capacity(names.len());
     for (i, name) in names.iter().enumerate() {
@@ -294,6 +292,18 @@ fn check_rows(path: &Path, csv: &CsvText, width: usize) -> Result<()> {
         }
     }
     Ok(())
+}
+
+/// A header field as RFC 4180 (section 2, rules 5 and 7) reads it: enclosing double quotes removed and a
+/// doubled quote inside read as one (`"AS""02"` is `AS"02`); white space around the name is dropped, as
+/// for every name. The CSV reader keeps a doubled quote in a column name as two, so the table's names are
+/// these.
+fn unquote(cell: &str) -> String {
+    let t = cell.trim();
+    match t.strip_prefix('"').and_then(|rest| rest.strip_suffix('"')) {
+        Some(inner) => inner.replace("\"\"", "\"").trim().to_string(),
+        None => t.to_string(),
+    }
 }
 
 /// Splits one line at commas outside double quotes; the flag says whether a quote was left open.

@@ -414,8 +414,8 @@ fn preconditions_reject_riskless_and_all_losing_universes() {
         backend: Backend::Highs,
     };
     let pre = models::preconditions(
-        p.min_cvar(None).ok().map(|s| s.objective),
-        p.max_return(None).ok().map(|s| s.objective),
+        &p.min_cvar(None).map(|s| s.objective),
+        &p.max_return(None).map(|s| s.objective),
     );
     assert!(!pre.holds);
     assert!(pre.reason.unwrap().contains("minimum CVaR"));
@@ -442,8 +442,8 @@ fn preconditions_reject_riskless_and_all_losing_universes() {
         backend: Backend::Highs,
     };
     let pre = models::preconditions(
-        p.min_cvar(None).ok().map(|s| s.objective),
-        p.max_return(None).ok().map(|s| s.objective),
+        &p.min_cvar(None).map(|s| s.objective),
+        &p.max_return(None).map(|s| s.objective),
     );
     assert!(!pre.holds);
     assert!(pre.reason.unwrap().contains("maximum expected return"));
