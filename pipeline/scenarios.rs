@@ -67,7 +67,7 @@ impl ScenarioSet {
         let n = self.width().max(1);
         self.returns
             .iter()
-            .position(|r| !(r.abs() <= MAX_ABS_RETURN))
+            .position(|r| !r.is_finite() || r.abs() > MAX_ABS_RETURN)
             .map(|j| (j / n, j % n, self.returns[j]))
     }
 
