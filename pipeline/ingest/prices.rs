@@ -21,9 +21,11 @@ pub struct PriceHistory {
     pub values: Vec<Vec<Option<f64>>>,
     /// Where each row came from in the file, for messages ("row 3 (line 5)").
     pub places: Vec<String>,
-    /// Long layout only: where each price came from, `cells[asset][row]` (blank where the file has no row
-    /// for that date and asset), since one date spans several file rows there.
-    pub cells: Option<Vec<Vec<String>>>,
+    /// Long layout only: the file's data row of each price, `cells[asset][row]` (`u32::MAX` where the
+    /// file has no row for that date and asset), since one date spans several file rows there.
+    pub cells: Option<Vec<Vec<u32>>>,
+    /// File line of data row 0 for a CSV (`None` for Parquet), to name a long-layout row.
+    pub first_line: Option<usize>,
     /// The layout that was used (after detection).
     pub layout: Layout,
 }
@@ -41,10 +43,10 @@ impl PriceHistory {
     }
 
     /// The file row of asset `a`'s price on row `r` ("row 7 (line 9)"): its own row in the long layout.
-    pub fn places_of(&self, a: usize, r: usize) -> &str {
-        match self.cells.as_ref().map(|c| &c[a][r]) {
-            Some(place) if !place.is_empty() => place,
-            _ => &self.places[r],
+    pub fn places_of(&self, a: usize, r: usize) -> String {
+        match self.cells.as_ref().map(|c| c[a][r]) {
+            Some(row) if row != u32::MAX => super::table::row_place(row as usize, self.first_line),
+            _ => self.places[r].clone(),
         }
     }
 
@@ -56,7 +58,7 @@ impl PriceHistory {
             *col = order.iter().map(|&i| col[i]).collect();
         }
         for col in self.cells.iter_mut().flatten() {
-            *col = order.iter().map(|&i| col[i].clone()).collect();
+            *col = order.iter().map(|&i| col[i]).collect();
         }
     }
 }
@@ -256,6 +258,7 @@ fn wide(path: &Path, t: &TextTable, date_col: usize) -> Result<PriceHistory> {
         values,
         places,
         cells: None,
+        first_line: None,
         layout: Layout::Wide,
     })
 }
@@ -270,7 +273,7 @@ fn long(path: &Path, t: &TextTable, date_col: usize) -> Result<PriceHistory> {
         })
     };
     let (asset_col, price_col) = (need("asset")?, need("price")?);
-    type Cell = (Option<f64>, String);
+    type Cell = (Option<f64>, u32);
     let mut by_date: BTreeMap<NaiveDate, (String, BTreeMap<String, Cell>)> = BTreeMap::new();
     let mut assets: Vec<String> = Vec::new();
     for row in 0..t.rows() {
@@ -297,11 +300,8 @@ fn long(path: &Path, t: &TextTable, date_col: usize) -> Result<PriceHistory> {
         let entry = by_date
             .entry(date)
             .or_insert_with(|| (place.clone(), BTreeMap::new()));
-        if entry
-            .1
-            .insert(asset.clone(), (price, place.clone()))
-            .is_some()
-        {
+        let row32 = u32::try_from(row).unwrap_or(u32::MAX - 1);
+        if entry.1.insert(asset.clone(), (price, row32)).is_some() {
             return Err(Error::data(
                 path,
                 format!(
@@ -319,12 +319,7 @@ fn long(path: &Path, t: &TextTable, date_col: usize) -> Result<PriceHistory> {
     for a in &assets {
         let column: Vec<Option<&Cell>> = by_date.values().map(|(_, m)| m.get(a)).collect();
         values.push(column.iter().map(|c| c.and_then(|c| c.0)).collect());
-        cells.push(
-            column
-                .iter()
-                .map(|c| c.map(|c| c.1.clone()).unwrap_or_default())
-                .collect(),
-        );
+        cells.push(column.iter().map(|c| c.map_or(u32::MAX, |c| c.1)).collect());
     }
     Ok(PriceHistory {
         dates,
@@ -332,6 +327,7 @@ fn long(path: &Path, t: &TextTable, date_col: usize) -> Result<PriceHistory> {
         values,
         places,
         cells: Some(cells),
+        first_line: t.is_csv.then_some(t.first_line),
         layout: Layout::Long,
     })
 }

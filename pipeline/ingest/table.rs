@@ -29,11 +29,7 @@ impl TextTable {
 
     /// "row 3 (line 5)" for CSV, "row 3" for Parquet; rows count from 1 after the header.
     pub fn place(&self, row: usize) -> String {
-        if self.is_csv {
-            format!("row {} (line {})", row + 1, row + self.first_line)
-        } else {
-            format!("row {}", row + 1)
-        }
+        row_place(row, self.is_csv.then_some(self.first_line))
     }
 
     /// Where the header is, for messages: "line 2 (header)" for CSV, "the column list" for Parquet.
@@ -50,6 +46,15 @@ impl TextTable {
         self.names
             .iter()
             .position(|n| n.trim().eq_ignore_ascii_case(name))
+    }
+}
+
+/// "row 3 (line 5)" for data row index 2 of a CSV whose data start at `first_line` 3, "row 3" without
+/// line numbers (Parquet).
+pub fn row_place(row: usize, first_line: Option<usize>) -> String {
+    match first_line {
+        Some(first) => format!("row {} (line {})", row + 1, row + first),
+        None => format!("row {}", row + 1),
     }
 }
 
