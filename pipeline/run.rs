@@ -257,9 +257,9 @@ pub fn compute(cfg: Config, data: MarketData) -> Result<RunResult> {
 }
 
 /// The two auxiliary LPs over X: minimum CVaR and maximum expected return (or why each has no optimum).
-pub struct Aux {
-    pub min_cvar: Result<f64, lp::Failure>,
-    pub max_return: Result<f64, lp::Failure>,
+struct Aux {
+    min_cvar: Result<f64, lp::Failure>,
+    max_return: Result<f64, lp::Failure>,
 }
 
 impl Aux {

@@ -1,10 +1,10 @@
 //! Data-quality checks and the fill policy, applied to the price history up to as-of.
 //!
 //! Blocking problems (non-positive prices, prices of one asset more than a millionfold apart, duplicate
-//! dates, too few scenarios) are `fail` findings; the caller turns them into an error. Everything else is a `warn` or
-//! `pass` finding that travels with the results. The fill policy: a missing price is carried forward from
-//! the last observation for at most `max_fill` consecutive observations; an asset with a longer gap inside
-//! the scenario window, or with no price at the window's start, is dropped with a warning.
+//! dates, too few scenarios) are `fail` findings; the caller turns them into an error. Everything else is a
+//! `warn` or `pass` finding that travels with the results. The fill policy: a missing price is carried
+//! forward from the last observation for at most `max_fill` consecutive observations; an asset with a
+//! longer gap inside the scenario window, or with no price at the window's start, is dropped with a warning.
 
 use super::prices::PriceHistory;
 use crate::config::QualityOptions;
