@@ -256,7 +256,10 @@ pub fn lock(root: &Path, timeout: Duration) -> Result<ArchiveLock> {
                     return Err(Error::Busy { path });
                 }
                 if !told {
-                    eprintln!(
+                    // Not `eprintln!`, which panics when stderr's reader has gone away.
+                    use std::io::Write as _;
+                    let _ = writeln!(
+                        std::io::stderr(),
                         "waiting for another tailpack run on this archive to finish (lock {})",
                         path.display()
                     );
@@ -410,29 +413,39 @@ pub fn write_index(root: &Path) -> Result<()> {
         "fund,as_of,revision,pack_id,status,signers,final_pdf_sha256,manifest_sha256,path\n",
     );
     for r in &rows {
-        let s = |k: &str| r[k].as_str().map(str::to_string).unwrap_or_default();
-        let signers: Vec<&str> = r["signers"]
-            .as_array()
-            .map(|a| a.iter().filter_map(Value::as_str).collect())
-            .unwrap_or_default();
-        csv.push_str(&format!(
-            "{},{},{},{},{},{},{},{},{}\n",
-            s("fund"),
-            s("as_of"),
-            r["revision"],
-            s("pack_id"),
-            s("status"),
-            signers.join(";"),
-            s("final_pdf_sha256"),
-            s("manifest_sha256"),
-            s("path")
-        ));
+        csv.push_str(&index_csv_row(r));
+        csv.push('\n');
     }
     atomic_write(&root.join("index.csv"), csv.as_bytes())?;
     atomic_write(
         &root.join("index.json"),
         (serde_json::to_string_pretty(&rows).expect("json") + "\n").as_bytes(),
     )
+}
+
+/// One `index.csv` row, every field quoted per RFC 4180 ([`crate::csv_out`]): a fund folder, path or
+/// signer name with a comma, quote or line break stays inside its field and cannot forge a row. The
+/// signers field holds one `role:name` per line (a quoted multi-line field): `sign` refuses names with
+/// control characters, so a line break is the one separator no name can contain (a `;` or `,` can).
+fn index_csv_row(r: &Value) -> String {
+    let s = |k: &str| r[k].as_str().map(str::to_string).unwrap_or_default();
+    let signers: Vec<&str> = r["signers"]
+        .as_array()
+        .map(|a| a.iter().filter_map(Value::as_str).collect())
+        .unwrap_or_default();
+    let revision = r["revision"].to_string();
+    let signers = signers.join("\n");
+    crate::csv_out::row([
+        s("fund").as_str(),
+        &s("as_of"),
+        &revision,
+        &s("pack_id"),
+        &s("status"),
+        &signers,
+        &s("final_pdf_sha256"),
+        &s("manifest_sha256"),
+        &s("path"),
+    ])
 }
 
 fn sorted_dirs(dir: &Path) -> Vec<PathBuf> {

@@ -21,6 +21,8 @@ use std::path::Path;
 
 use chrono::{Datelike, NaiveDate, Weekday};
 
+use crate::csv_out;
+
 /// The seed behind every number in the demo files; changing it changes them all.
 pub const DEMO_SEED: u64 = 0x7A11_9ACC_2014_1130;
 
@@ -735,7 +737,7 @@ fn render_prices(dates: &[NaiveDate], prices: &[Vec<Option<f64>>]) -> String {
     let mut out = synthetic_header("not real market prices");
     out.push_str("date");
     for a in &ASSETS {
-        write!(out, ",{}", a.code).expect("write to String");
+        write!(out, ",{}", csv_out::field(a.code)).expect("write to String");
     }
     out.push('\n');
     for (date, row) in dates.iter().zip(prices) {
@@ -763,7 +765,8 @@ fn render_assets() -> String {
     for a in &ASSETS {
         let (class, region) = (a.kind.class(), a.region.label());
         let max = weight_text(a.max_units);
-        writeln!(out, "{},{},{class},{region},0,{max}", a.code, a.name).expect("write to String");
+        let text = csv_out::row([a.code, a.name, class, region]);
+        writeln!(out, "{text},0,{max}").expect("write to String");
     }
     out
 }
@@ -772,7 +775,8 @@ fn render_holdings() -> String {
     let mut out = synthetic_header("an invented demonstration fund, not a real portfolio");
     out.push_str("asset,weight\n");
     for a in ASSETS.iter().filter(|a| a.held_units > 0) {
-        writeln!(out, "{},{}", a.code, weight_text(a.held_units)).expect("write to String");
+        let code = csv_out::field(a.code);
+        writeln!(out, "{code},{}", weight_text(a.held_units)).expect("write to String");
     }
     out
 }

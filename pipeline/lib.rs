@@ -15,14 +15,16 @@
 //! - [`commands`]: one function per CLI subcommand; the binary is a thin layer over these.
 //!
 //! Cross-cutting: [`error`] (typed errors, exit codes, path-naming file helpers), [`diag`] (findings that
-//! travel with results), [`demo`] (the deterministic generator of the invented demo data), [`timings`]
-//! (time per stage, peak memory), [`bench`] (synthetic LP benchmarks).
+//! travel with results), [`csv_out`] (RFC 4180 quoting of every CSV written), [`demo`] (the deterministic
+//! generator of the invented demo data), [`timings`] (time per stage, peak memory), [`bench`] (synthetic LP
+//! benchmarks).
 
 pub mod analysis;
 pub mod archive;
 pub mod bench;
 pub mod commands;
 pub mod config;
+pub mod csv_out;
 pub mod demo;
 pub mod diag;
 pub mod error;

@@ -1,5 +1,8 @@
 //! The `tailpack` binary: parses arguments, calls one library function per subcommand, prints the result
 //! or the error (once, with its causes), and exits with the documented code.
+//!
+//! Nothing here uses `print!`/`eprint!`, which panic when the reader has gone away: `tailpack run … |
+//! head -1` closes stdout while the pack is being written, and the run must still exit with its own code.
 
 use clap::{Parser, Subcommand};
 use std::path::PathBuf;
@@ -153,7 +156,7 @@ fn main() {
             let r =
                 tailpack::commands::run(config, &opts, &tailpack::commands::Progress::new(*quiet));
             if *timings {
-                eprint!("{}", tailpack::commands::timings(start.elapsed()));
+                let _ = emit(Stream::Err, &tailpack::commands::timings(start.elapsed()));
             }
             r.map(|r| (r.text, r.code))
         }
@@ -205,22 +208,59 @@ fn main() {
     };
     match result {
         Ok((text, code)) => {
-            print!("{text}");
-            let _ = std::io::Write::flush(&mut std::io::stdout());
+            if let Err(e) = emit(Stream::Out, &text) {
+                let _ = emit(
+                    Stream::Err,
+                    &format!("error: cannot write the results to stdout: {e}\n"),
+                );
+                std::process::exit(tailpack::error::EXIT_FAILURE);
+            }
             std::process::exit(code);
         }
         Err(e) => {
-            let text = e.to_string();
-            eprintln!("error: {text}");
-            let mut source = std::error::Error::source(&e);
-            while let Some(s) = source {
-                let cause = s.to_string();
-                if !text.contains(&cause) {
-                    eprintln!("  caused by: {cause}");
-                }
-                source = s.source();
-            }
+            let _ = emit(Stream::Err, &error_text(&e));
             std::process::exit(e.exit_code());
         }
+    }
+}
+
+/// The error line and each cause not already in it.
+fn error_text(e: &tailpack::error::Error) -> String {
+    let text = e.to_string();
+    let mut out = format!("error: {text}\n");
+    let mut source = std::error::Error::source(e);
+    while let Some(s) = source {
+        let cause = s.to_string();
+        if !text.contains(&cause) {
+            out.push_str(&format!("  caused by: {cause}\n"));
+        }
+        source = s.source();
+    }
+    out
+}
+
+enum Stream {
+    Out,
+    Err,
+}
+
+/// Writes `text` to stdout or stderr and flushes. A reader that has gone away (broken pipe) is not a
+/// failure of the command — the pack is already written — so it is ignored and the exit code stays the
+/// command's own; any other write error is returned.
+fn emit(to: Stream, text: &str) -> std::io::Result<()> {
+    use std::io::Write;
+    let written = match to {
+        Stream::Out => {
+            let mut h = std::io::stdout().lock();
+            h.write_all(text.as_bytes()).and_then(|()| h.flush())
+        }
+        Stream::Err => {
+            let mut h = std::io::stderr().lock();
+            h.write_all(text.as_bytes()).and_then(|()| h.flush())
+        }
+    };
+    match written {
+        Err(e) if e.kind() == std::io::ErrorKind::BrokenPipe => Ok(()),
+        other => other,
     }
 }

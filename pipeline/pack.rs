@@ -5,6 +5,7 @@
 //! built under a temporary name beside its final place and renamed into place only when complete, so a
 //! failed or interrupted run never leaves a partial pack behind.
 
+use crate::csv_out;
 use crate::error::{Result, fs};
 use crate::models::Status;
 use crate::run::{ModelReport, RunResult};
@@ -32,7 +33,8 @@ pub fn hex(bytes: &[u8]) -> String {
         })
 }
 
-/// `scenarios.csv`: `scenario[,probability],<assets…>`, one row per scenario, round-trip f64 text.
+/// `scenarios.csv`: `scenario[,probability],<assets…>`, one row per scenario, round-trip f64 text; text
+/// fields quoted per RFC 4180 ([`csv_out`]).
 pub fn scenarios_csv(r: &RunResult) -> String {
     let s = &r.scenarios;
     let mut out = String::with_capacity(s.len() * s.width() * 22);
@@ -42,11 +44,11 @@ pub fn scenarios_csv(r: &RunResult) -> String {
     }
     for a in &s.assets {
         out.push(',');
-        out.push_str(a);
+        out.push_str(&csv_out::field(a));
     }
     out.push('\n');
     for k in 0..s.len() {
-        out.push_str(&s.label(k));
+        out.push_str(&csv_out::field(&s.label(k)));
         if !s.equal_probabilities {
             let _ = write!(out, ",{:?}", s.probabilities[k]);
         }
@@ -58,18 +60,19 @@ pub fn scenarios_csv(r: &RunResult) -> String {
     out
 }
 
-/// `weights.csv`: one row per asset; columns current (if any) and each model (blank when not optimal).
+/// `weights.csv`: one row per asset; columns current (if any) and each model (blank when not optimal);
+/// asset codes and classes quoted per RFC 4180 ([`csv_out`]).
 pub fn weights_csv(r: &RunResult) -> String {
     let mut out = String::from("asset,class");
     if r.data.holdings.is_some() {
         out.push_str(",current");
     }
     for m in &r.models {
-        let _ = write!(out, ",{}", m.name);
+        let _ = write!(out, ",{}", csv_out::field(m.name));
     }
     out.push('\n');
     for (i, a) in r.data.assets.iter().enumerate() {
-        let _ = write!(out, "{a},{}", r.data.meta[i].class);
+        out.push_str(&csv_out::row([a.as_str(), &r.data.meta[i].class]));
         if let Some(h) = &r.data.holdings {
             let _ = write!(out, ",{:?}", h[i]);
         }

@@ -8,7 +8,9 @@ use crate::config::{self, Backend, Config, GroupSelector};
 use crate::diag::{Check, Level};
 use crate::error::{Error, Result};
 use crate::ingest::{self, MarketData};
-use crate::models::{self, FeasibleSet, Group, Outcome, Preconditions, Problem, Status, lp};
+use crate::models::{
+    self, Emptiness, FeasibleSet, Group, Outcome, Preconditions, Problem, Status, lp,
+};
 use crate::risk::{self, RiskProfile};
 use crate::scenarios::{self, ScenarioSet};
 use chrono::NaiveDate;
@@ -37,6 +39,26 @@ impl Default for RunOptions {
 
 /// The names of the three model families, in report order.
 pub const MODEL_NAMES: [&str; 3] = ["max_return", "min_cvar", "max_ratio"];
+
+/// Every scenario return must be finite and within ±[`scenarios::MAX_ABS_RETURN`]; ingest's price-range
+/// check ensures it, and this names the cell should anything get past it: a data error, never a model
+/// diagnosis.
+fn usable_returns(cfg: &Config, set: &ScenarioSet) -> Result<()> {
+    let Some((k, i, r)) = set.unusable_return() else {
+        return Ok(());
+    };
+    Err(Error::data(
+        &cfg.prices,
+        format!(
+            "column `{}`: the return over scenario {} (prices dated {} and {}) is {r:e}, beyond ±{:e}; the prices on those dates are not a usable price series: check those cells",
+            set.assets[i],
+            set.label(k),
+            set.starts[k],
+            set.ends[k],
+            scenarios::MAX_ABS_RETURN
+        ),
+    ))
+}
 
 /// A model's outcome with the risk profile of its portfolio.
 #[derive(Debug, Clone)]
@@ -102,6 +124,7 @@ pub fn prepare_fund(mut cfg: Config, opts: &RunOptions) -> Result<Prepared> {
 /// The checks after ingest: scenarios, the feasible set, the stress shocks against the data.
 pub fn validate(cfg: Config, data: MarketData) -> Result<Prepared> {
     let scenarios = crate::timings::time("scenarios", || scenarios::build(&data, &cfg.scenarios))?;
+    usable_returns(&cfg, &scenarios)?;
     let feasible = feasible_set(&cfg, &data)?;
     let shocks = match (&cfg.stress_file, &cfg.stress) {
         (Some(path), Some(file)) => stress::defined(path, file, &data)?,
@@ -229,27 +252,21 @@ pub fn solve(prepared: Prepared) -> Result<RunResult> {
         .as_ref()
         .map(|h| risk::profile(&set, h, &cfg.levels, c));
     let empty = models::explain_empty(&fs, &data.assets, cfg.backend);
-    let (min_over_x, max_over_x) = match &empty {
-        Some(_) => (None, None),
-        None => (
-            p.min_cvar(None).ok().map(|s| s.objective),
-            p.max_return(None).ok().map(|s| s.objective),
-        ),
+    let aux = match &empty {
+        Emptiness::NotEmpty => Aux {
+            min_cvar: p.min_cvar(None).map(|s| s.objective),
+            max_return: p.max_return(None).map(|s| s.objective),
+        },
+        Emptiness::Empty(_) | Emptiness::Unknown(_) => Aux::unsolved(),
     };
-    let pre = models::preconditions(min_over_x, max_over_x);
+    let pre = match &empty {
+        Emptiness::NotEmpty => models::preconditions(&aux.min_cvar, &aux.max_return),
+        other => models::preconditions_without_portfolio(other),
+    };
+    let min_over_x = aux.min_cvar.as_ref().ok().copied();
     let cap = models::resolve_cap(cfg.cap, min_over_x, current.as_ref().map(|r| r.at(c).cvar));
     let floor = models::resolve_floor(cfg.floor, current.as_ref().map(|r| r.expected_return));
-    let reports = solve_models(
-        &p,
-        &pre,
-        cap,
-        floor,
-        empty.as_deref(),
-        min_over_x,
-        max_over_x,
-        &data,
-        &cfg,
-    );
+    let reports = solve_models(&p, &pre, (cap, floor), &empty, &aux, &data, &cfg);
     crate::timings::add("models", models_start.elapsed());
     let mut portfolios: Vec<(String, Vec<f64>)> = data
         .holdings
@@ -282,88 +299,158 @@ pub fn solve(prepared: Prepared) -> Result<RunResult> {
     })
 }
 
-#[allow(clippy::too_many_arguments)]
+/// The two auxiliary LPs over X: minimum CVaR and maximum expected return (or why each has no optimum).
+struct Aux {
+    min_cvar: Result<f64, lp::Failure>,
+    max_return: Result<f64, lp::Failure>,
+}
+
+impl Aux {
+    /// Not solved, because X is empty or has no known portfolio.
+    fn unsolved() -> Aux {
+        let not = || {
+            Err(lp::Failure::Solver(
+                "not solved: the feasible set has no known portfolio".into(),
+            ))
+        };
+        Aux {
+            min_cvar: not(),
+            max_return: not(),
+        }
+    }
+}
+
+/// The three models, each with an outcome whose message claims only what was established: a feasible set
+/// called empty only when it was shown empty, a cap or floor called out of reach only against a solved
+/// auxiliary LP, and a solver's "infeasible" that a known portfolio contradicts reported as a solver error.
 fn solve_models(
     p: &Problem,
     pre: &Preconditions,
-    cap: f64,
-    floor: f64,
-    empty: Option<&str>,
-    min_x: Option<f64>,
-    max_x: Option<f64>,
+    (cap, floor): (f64, f64),
+    empty: &Emptiness,
+    aux: &Aux,
     data: &MarketData,
     cfg: &Config,
 ) -> Vec<ModelReport> {
-    let infeasible_x = |what: &str| Outcome {
-        status: Status::Infeasible,
-        message: Some(format!(
-            "{what}: the feasible set is empty: {}",
-            empty.unwrap_or("")
-        )),
-        weights: None,
-        objective: None,
-        scale: None,
-        max_violation: None,
+    let outcomes = match empty {
+        Emptiness::Empty(why) => MODEL_NAMES.map(|name| {
+            Outcome::failed(
+                Status::Infeasible,
+                format!("{name}: the feasible set is empty: {why}"),
+            )
+        }),
+        Emptiness::Unknown(why) => MODEL_NAMES.map(|_| {
+            Outcome::failed(
+                Status::SolverError,
+                format!("{why}; whether any portfolio meets the limits is not established, so no model was solved"),
+            )
+        }),
+        Emptiness::NotEmpty => [
+            max_return_model(p, cap, &aux.min_cvar, cfg),
+            min_cvar_model(p, floor, &aux.max_return),
+            max_ratio_model(p, pre),
+        ],
     };
-    let max_return = if empty.is_some() {
-        infeasible_x("max_return")
-    } else {
-        models::outcome(
-            p,
-            p.max_return(Some(cap)),
-            Some(cap),
-            None,
-            || match min_x {
-                Some(m) if cap < m => format!(
-                    "models.max_return.cvar_cap: the CVaR cap {cap:.6} is below the minimum attainable CVaR {m:.6} over the feasible set; raise the cap"
-                ),
-                _ => format!("the CVaR cap {cap:.6} cannot be met together with the feasible set"),
-            },
-        )
-    };
-    let min_cvar = if empty.is_some() {
-        infeasible_x("min_cvar")
-    } else {
-        models::outcome(
-            p,
-            p.min_cvar(Some(floor)),
-            None,
-            Some(floor),
-            || match max_x {
-                Some(m) if floor > m => format!(
-                    "models.min_cvar.return_floor: the return floor {floor:.6} is above the best attainable expected return {m:.6} over the feasible set; lower the floor"
-                ),
-                _ => format!(
-                    "the return floor {floor:.6} cannot be met together with the feasible set"
-                ),
-            },
-        )
-    };
-    let max_ratio = if empty.is_some() {
-        infeasible_x("max_ratio")
-    } else if !pre.holds {
-        Outcome {
-            status: Status::NotApplicable,
-            message: pre.reason.clone(),
-            weights: None,
-            objective: None,
-            scale: None,
-            max_violation: None,
-        }
-    } else {
-        let solved = match pre.min_cvar {
-            Some(m) => p.max_ratio_knowing(m),
-            None => p.max_ratio(),
-        };
-        models::outcome(p, solved, None, None, || {
-            "the scaled feasible set is empty".into()
-        })
-    };
-    [max_return, min_cvar, max_ratio]
+    outcomes
         .into_iter()
         .zip(MODEL_NAMES)
         .map(|(o, name)| report(name, o, p, data, cfg))
         .collect()
+}
+
+/// max_return under the resolved cap. A cap that could not be resolved (its base is unknown) is said so
+/// rather than handed to the solver as NaN.
+fn max_return_model(
+    p: &Problem,
+    cap: f64,
+    min_x: &Result<f64, lp::Failure>,
+    cfg: &Config,
+) -> Outcome {
+    if cap.is_nan() {
+        let base = match (cfg.cap, min_x) {
+            (config::CapRule::TimesMin(_), Err(f)) => format!(
+                "it is a multiple of the minimum CVaR over the feasible set, and that LP ended without an optimum ({})",
+                models::failure_words(f)
+            ),
+            _ => "its base (the minimum CVaR over the feasible set or the current portfolio's CVaR) is not known".into(),
+        };
+        return Outcome::failed(
+            Status::SolverError,
+            format!(
+                "models.max_return.cvar_cap could not be resolved: {base}; the model was not solved"
+            ),
+        );
+    }
+    let o = models::outcome(
+        p,
+        p.max_return(Some(cap)),
+        Some(cap),
+        None,
+        || match min_x {
+            Ok(m) if cap < *m => format!(
+                "models.max_return.cvar_cap: the CVaR cap {cap:.6} is below the minimum attainable CVaR {m:.6} over the feasible set; raise the cap"
+            ),
+            Ok(_) => format!(
+                "the solver reports the CVaR cap {cap:.6} infeasible together with the feasible set"
+            ),
+            Err(f) => format!(
+                "the solver reports the CVaR cap {cap:.6} infeasible together with the feasible set; the minimum CVaR over the feasible set is not known ({}), so whether the cap is below it is not established",
+                models::failure_words(f)
+            ),
+        },
+    );
+    let witness = min_x.as_ref().ok().filter(|m| cap >= **m).map(|m| {
+        format!("the minimum-CVaR portfolio of the feasible set has CVaR {m:.6} ≤ the cap {cap:.6}")
+    });
+    models::unless_contradicted(o, witness)
+}
+
+/// min_cvar above the resolved return floor, diagnosed against the maximum expected return over X.
+fn min_cvar_model(p: &Problem, floor: f64, max_x: &Result<f64, lp::Failure>) -> Outcome {
+    let o = models::outcome(
+        p,
+        p.min_cvar(Some(floor)),
+        None,
+        Some(floor),
+        || match max_x {
+            Ok(m) if floor > *m => format!(
+                "models.min_cvar.return_floor: the return floor {floor:.6} is above the best attainable expected return {m:.6} over the feasible set; lower the floor"
+            ),
+            Ok(_) => format!(
+                "the solver reports the return floor {floor:.6} infeasible together with the feasible set"
+            ),
+            Err(f) => format!(
+                "the solver reports the return floor {floor:.6} infeasible together with the feasible set; the best attainable expected return is not known ({}), so whether the floor is above it is not established",
+                models::failure_words(f)
+            ),
+        },
+    );
+    let witness = max_x.as_ref().ok().filter(|m| floor <= **m).map(|m| {
+        format!("the maximum-return portfolio of the feasible set has expected return {m:.6} ≥ the floor {floor:.6}")
+    });
+    models::unless_contradicted(o, witness)
+}
+
+/// max_ratio: not applicable when a precondition is shown to fail, a solver error when the preconditions
+/// could not be established, else the Charnes–Cooper LP — whose set is never empty when they hold.
+fn max_ratio_model(p: &Problem, pre: &Preconditions) -> Outcome {
+    if !pre.holds {
+        let status = if pre.established {
+            Status::NotApplicable
+        } else {
+            Status::SolverError
+        };
+        return Outcome::failed(status, pre.reason.clone().unwrap_or_default());
+    }
+    let solved = match pre.min_cvar {
+        Some(m) => p.max_ratio_knowing(m),
+        None => p.max_ratio(),
+    };
+    let o = models::outcome(p, solved, None, None, String::new);
+    models::unless_contradicted(
+        o,
+        Some("the feasible set is not empty and CVaR > 0 on it, so any of its portfolios scaled by t = 1/CVaR satisfies the scaled LP".into()),
+    )
 }
 
 fn report(

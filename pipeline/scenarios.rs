@@ -16,6 +16,11 @@ pub const PARALLEL_FROM: usize = 1 << 20;
 /// Scenarios per parallel task; fixed, so chunked sums never depend on the thread count.
 pub const ROWS_PER_TASK: usize = 2048;
 
+/// Largest scenario return magnitude the models accept. Ingest bounds every asset's price range by
+/// `ingest::quality::MAX_PRICE_RANGE` = 10^6, which keeps every return below this; a return beyond it (or
+/// not finite) would make LP coefficients and sums over scenarios meaningless or infinite.
+pub const MAX_ABS_RETURN: f64 = 1e6;
+
 /// The scenario set: `returns` is row-major, one row of `assets.len()` returns per scenario.
 #[derive(Debug, Clone)]
 pub struct ScenarioSet {
@@ -54,6 +59,16 @@ impl ScenarioSet {
     /// Label of scenario k: `start/end`.
     pub fn label(&self, k: usize) -> String {
         format!("{}/{}", self.starts[k], self.ends[k])
+    }
+
+    /// The first return (scenario, asset, value) that is not finite or exceeds [`MAX_ABS_RETURN`] in
+    /// magnitude, if any.
+    pub fn unusable_return(&self) -> Option<(usize, usize, f64)> {
+        let n = self.width().max(1);
+        self.returns
+            .iter()
+            .position(|r| !r.is_finite() || r.abs() > MAX_ABS_RETURN)
+            .map(|j| (j / n, j % n, self.returns[j]))
     }
 
     /// Probability-weighted mean return per asset, μ_i = Σ_k p_k r_ki.
@@ -100,6 +115,11 @@ impl ScenarioSet {
             return Err(Error::Run(format!(
                 "scenario matrix shape: {} values for {s} scenarios × {n} assets",
                 returns.len()
+            )));
+        }
+        if let Some(v) = returns.iter().find(|r| !r.is_finite()) {
+            return Err(Error::Run(format!(
+                "scenario matrix: return {v} is not a finite number"
             )));
         }
         let total: f64 = probabilities.iter().sum();

@@ -11,7 +11,7 @@
 use super::vartest::{self, LrTest, Zone};
 use crate::config::Config;
 use crate::ingest::MarketData;
-use crate::models::{self, FeasibleSet, Problem, Status};
+use crate::models::{self, FeasibleSet, Problem, Status, lp};
 use crate::risk;
 use crate::run::MODEL_NAMES;
 use crate::scenarios;
@@ -149,42 +149,52 @@ fn decide(
         .holdings
         .as_ref()
         .map(|h| risk::profile(&set, h, &[c], c));
-    let min_x = p.min_cvar(None).ok().map(|s| s.objective);
-    let max_x = p.max_return(None).ok().map(|s| s.objective);
+    let min_r = p.min_cvar(None).map(|s| s.objective);
+    let max_r = p.max_return(None).map(|s| s.objective);
+    let (min_x, max_x) = (min_r.as_ref().ok().copied(), max_r.as_ref().ok().copied());
     let cap = models::resolve_cap(cfg.cap, min_x, reference.as_ref().map(|r| r.at(c).cvar));
     let floor = models::resolve_floor(cfg.floor, reference.as_ref().map(|r| r.expected_return));
-    let pre = models::preconditions(min_x, max_x);
-    // X empty this month: no model has a portfolio (and a cap relative to min CVaR has no base).
-    let empty = || models::Outcome {
-        status: Status::Infeasible,
-        message: Some("the feasible set is empty".into()),
-        weights: None,
-        objective: None,
-        scale: None,
-        max_violation: None,
-    };
-    let outcomes = if min_x.is_none() && max_x.is_none() {
-        [empty(), empty(), empty()]
+    let pre = models::preconditions(&min_r, &max_r);
+    // Both auxiliary LPs infeasible: X is empty this month (their CVaR rows hold for any x, so only X can
+    // fail them), and no model has a portfolio. Any other failure of theirs establishes nothing about X.
+    let empty = matches!(
+        (&min_r, &max_r),
+        (Err(lp::Failure::Infeasible), Err(lp::Failure::Infeasible))
+    );
+    let outcomes = if empty {
+        [(); 3].map(|()| {
+            models::Outcome::failed(Status::Infeasible, "the feasible set is empty".into())
+        })
     } else {
+        let ratio = if pre.holds {
+            let solved = match min_x {
+                Some(m) => p.max_ratio_knowing(m),
+                None => p.max_ratio(),
+            };
+            let o = models::outcome(&p, solved, None, None, String::new);
+            models::unless_contradicted(o, Some("the preconditions hold".into()))
+        } else if pre.established {
+            models::Outcome::failed(Status::NotApplicable, pre.reason.unwrap_or_default())
+        } else {
+            models::Outcome::failed(Status::SolverError, pre.reason.unwrap_or_default())
+        };
+        let within = |ok: bool, what: &str| ok.then(|| what.to_string());
         [
-            models::outcome(&p, p.max_return(Some(cap)), Some(cap), None, String::new),
-            models::outcome(&p, p.min_cvar(Some(floor)), None, Some(floor), String::new),
-            if pre.holds {
-                let solved = match min_x {
-                    Some(m) => p.max_ratio_knowing(m),
-                    None => p.max_ratio(),
-                };
-                models::outcome(&p, solved, None, None, String::new)
-            } else {
-                models::Outcome {
-                    status: Status::NotApplicable,
-                    message: pre.reason,
-                    weights: None,
-                    objective: None,
-                    scale: None,
-                    max_violation: None,
-                }
-            },
+            models::unless_contradicted(
+                models::outcome(&p, p.max_return(Some(cap)), Some(cap), None, String::new),
+                within(
+                    min_x.is_some_and(|m| cap >= m),
+                    "the minimum-CVaR portfolio meets the cap",
+                ),
+            ),
+            models::unless_contradicted(
+                models::outcome(&p, p.min_cvar(Some(floor)), None, Some(floor), String::new),
+                within(
+                    max_x.is_some_and(|m| floor <= m),
+                    "the maximum-return portfolio meets the floor",
+                ),
+            ),
+            ratio,
         ]
     };
     Ok(outcomes

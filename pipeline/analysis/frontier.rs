@@ -26,8 +26,9 @@ pub struct Frontier {
     pub points: Vec<FrontierPoint>,
 }
 
-/// Sweeps the CVaR cap over `k` evenly spaced values; `None` when the feasible set is empty. Points are
-/// solved in parallel; each is an independent LP, so the result does not depend on scheduling.
+/// Sweeps the CVaR cap over `k` evenly spaced values; `None` when either end (the minimum-CVaR or the
+/// maximum-return LP) has no optimum. Points are solved in parallel; each is an independent LP, so the
+/// result does not depend on scheduling.
 pub fn sweep(p: &Problem, k: usize) -> Option<Frontier> {
     let low = p.min_cvar(None).ok()?;
     let high = p.max_return(None).ok()?;
@@ -41,7 +42,7 @@ pub fn sweep(p: &Problem, k: usize) -> Option<Frontier> {
     let caps: Vec<f64> = (0..k)
         .map(|j| lo + (hi - lo) * j as f64 / (k - 1) as f64 + if j == 0 { slack } else { 0.0 })
         .collect();
-    let points = caps.par_iter().map(|&cap| point(p, cap)).collect();
+    let points = caps.par_iter().map(|&cap| point(p, cap, lo)).collect();
     Some(Frontier {
         min_cvar: lo,
         max_return_cvar: hi,
@@ -49,10 +50,16 @@ pub fn sweep(p: &Problem, k: usize) -> Option<Frontier> {
     })
 }
 
-fn point(p: &Problem, cap: f64) -> FrontierPoint {
+/// One point; every cap is at least the minimum CVaR `lo`, so a solver's "infeasible" there is a numerical
+/// failure (`solver_error`), not an infeasible cap.
+fn point(p: &Problem, cap: f64, lo: f64) -> FrontierPoint {
     let o = crate::models::outcome(p, p.max_return(Some(cap)), Some(cap), None, || {
         format!("CVaR cap {cap:.6} infeasible")
     });
+    let o = crate::models::unless_contradicted(
+        o,
+        (cap >= lo).then(|| format!("the minimum-CVaR portfolio has CVaR {lo:.6} ≤ the cap")),
+    );
     let tails = o.weights.as_ref().map(|w| {
         let losses: Vec<f64> = p.set.portfolio_returns(w).iter().map(|r| -r).collect();
         risk::var_cvar(&losses, &p.set.probabilities, p.confidence)

@@ -216,11 +216,7 @@ fn is_last_business_day(d: NaiveDate) -> bool {
 
 fn cut_after(h: &mut PriceHistory, as_of: NaiveDate) {
     let keep = h.dates.partition_point(|d| *d <= as_of);
-    h.dates.truncate(keep);
-    h.places.truncate(keep);
-    for col in &mut h.values {
-        col.truncate(keep);
-    }
+    h.keep_rows(&(0..keep).collect::<Vec<_>>());
 }
 
 fn build(

@@ -1,8 +1,9 @@
 //! Turning a text table into a dated price history, long or wide.
 //!
 //! Dates must be ISO (`YYYY-MM-DD`); a price is a finite decimal number, a blank, `NA` or `NaN` cell is a
-//! missing value (handled later by the fill policy), but a column without a single price is an error. Errors
-//! name the file, the row and the column.
+//! missing value (handled later by the fill policy), but a column without a single price is an error. An
+//! asset code may hold any printable text (commas and quotes included: every CSV written quotes them), but
+//! no control character such as a line break, tab or NUL. Errors name the file, the row and the column.
 
 use super::table::{TextTable, truncate};
 use crate::config::Layout;
@@ -20,8 +21,46 @@ pub struct PriceHistory {
     pub values: Vec<Vec<Option<f64>>>,
     /// Where each row came from in the file, for messages ("row 3 (line 5)").
     pub places: Vec<String>,
+    /// Long layout only: the file's data row of each price, `cells[asset][row]` (`u32::MAX` where the
+    /// file has no row for that date and asset), since one date spans several file rows there.
+    pub cells: Option<Vec<Vec<u32>>>,
+    /// File line of data row 0 for a CSV (`None` for Parquet), to name a long-layout row.
+    pub first_line: Option<usize>,
     /// The layout that was used (after detection).
     pub layout: Layout,
+}
+
+impl PriceHistory {
+    /// Where the price of asset `a` on row `r` is, for messages: "row 3 (line 5), column `AS01`" in the
+    /// wide layout, "row 7 (line 9), column `price` (asset `AS01`)" in the long one.
+    pub fn cell(&self, a: usize, r: usize) -> String {
+        let asset = &self.assets[a];
+        let place = self.places_of(a, r);
+        match self.cells {
+            Some(_) => format!("{place}, column `price` (asset `{asset}`)"),
+            None => format!("{place}, column `{asset}`"),
+        }
+    }
+
+    /// The file row of asset `a`'s price on row `r` ("row 7 (line 9)"): its own row in the long layout.
+    pub fn places_of(&self, a: usize, r: usize) -> String {
+        match self.cells.as_ref().map(|c| c[a][r]) {
+            Some(row) if row != u32::MAX => super::table::row_place(row as usize, self.first_line),
+            _ => self.places[r].clone(),
+        }
+    }
+
+    /// Keeps the rows `order` names, in that order (sorting, cutting at as-of).
+    pub fn keep_rows(&mut self, order: &[usize]) {
+        self.dates = order.iter().map(|&i| self.dates[i]).collect();
+        self.places = order.iter().map(|&i| self.places[i].clone()).collect();
+        for col in &mut self.values {
+            *col = order.iter().map(|&i| col[i]).collect();
+        }
+        for col in self.cells.iter_mut().flatten() {
+            *col = order.iter().map(|&i| col[i]).collect();
+        }
+    }
 }
 
 /// Parses an ISO date, naming the place on failure.
@@ -59,6 +98,22 @@ fn iso_date(t: &str) -> Option<NaiveDate> {
     shape
         .then(|| NaiveDate::parse_from_str(t, "%Y-%m-%d").ok())
         .flatten()
+}
+
+/// An asset code with a control character (line break, tab, NUL…) cannot be printed in the PDF or read
+/// back from a spreadsheet as one code: refused, naming the place and the character.
+pub fn check_code(path: &Path, place: &str, code: &str) -> Result<()> {
+    let Some(c) = code.chars().find(|c| c.is_control()) else {
+        return Ok(());
+    };
+    Err(Error::data(
+        path,
+        format!(
+            "{place}: the asset code `{}` contains the control character U+{:04X}; asset codes must be printable text (letters, digits, punctuation and spaces)",
+            truncate(&code.escape_debug().to_string(), 60),
+            c as u32
+        ),
+    ))
 }
 
 /// Parses a price cell: `None` for a missing value, an error for text or a non-finite number.
@@ -180,6 +235,11 @@ fn wide(path: &Path, t: &TextTable, date_col: usize) -> Result<PriceHistory> {
     let mut assets = Vec::new();
     let mut values = Vec::new();
     for (c, name) in t.names.iter().enumerate().filter(|(c, _)| *c != date_col) {
+        check_code(
+            path,
+            &format!("{}, column {}", t.header_place(), c + 1),
+            name.trim(),
+        )?;
         let col: Result<Vec<_>> = (0..t.rows())
             .map(|r| parse_price(path, &places[r], name, t.columns[c][r].as_deref()))
             .collect();
@@ -197,6 +257,8 @@ fn wide(path: &Path, t: &TextTable, date_col: usize) -> Result<PriceHistory> {
         assets,
         values,
         places,
+        cells: None,
+        first_line: None,
         layout: Layout::Wide,
     })
 }
@@ -211,7 +273,8 @@ fn long(path: &Path, t: &TextTable, date_col: usize) -> Result<PriceHistory> {
         })
     };
     let (asset_col, price_col) = (need("asset")?, need("price")?);
-    let mut by_date: BTreeMap<NaiveDate, (String, BTreeMap<String, Option<f64>>)> = BTreeMap::new();
+    type Cell = (Option<f64>, u32);
+    let mut by_date: BTreeMap<NaiveDate, (String, BTreeMap<String, Cell>)> = BTreeMap::new();
     let mut assets: Vec<String> = Vec::new();
     for row in 0..t.rows() {
         let place = t.place(row);
@@ -232,11 +295,13 @@ fn long(path: &Path, t: &TextTable, date_col: usize) -> Result<PriceHistory> {
                 format!("{place}, column `asset`: the asset code is blank"),
             ));
         }
+        check_code(path, &format!("{place}, column `asset`"), &asset)?;
         let price = parse_price(path, &place, "price", t.columns[price_col][row].as_deref())?;
         let entry = by_date
             .entry(date)
             .or_insert_with(|| (place.clone(), BTreeMap::new()));
-        if entry.1.insert(asset.clone(), price).is_some() {
+        let row32 = u32::try_from(row).unwrap_or(u32::MAX - 1);
+        if entry.1.insert(asset.clone(), (price, row32)).is_some() {
             return Err(Error::data(
                 path,
                 format!(
@@ -250,20 +315,19 @@ fn long(path: &Path, t: &TextTable, date_col: usize) -> Result<PriceHistory> {
     }
     let dates: Vec<NaiveDate> = by_date.keys().copied().collect();
     let places = by_date.values().map(|(p, _)| p.clone()).collect();
-    let values = assets
-        .iter()
-        .map(|a| {
-            by_date
-                .values()
-                .map(|(_, m)| m.get(a).copied().flatten())
-                .collect()
-        })
-        .collect();
+    let (mut values, mut cells) = (Vec::new(), Vec::new());
+    for a in &assets {
+        let column: Vec<Option<&Cell>> = by_date.values().map(|(_, m)| m.get(a)).collect();
+        values.push(column.iter().map(|c| c.and_then(|c| c.0)).collect());
+        cells.push(column.iter().map(|c| c.map_or(u32::MAX, |c| c.1)).collect());
+    }
     Ok(PriceHistory {
         dates,
         assets,
         values,
         places,
+        cells: Some(cells),
+        first_line: t.is_csv.then_some(t.first_line),
         layout: Layout::Long,
     })
 }

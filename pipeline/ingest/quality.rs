@@ -1,10 +1,10 @@
 //! Data-quality checks and the fill policy, applied to the price history up to as-of.
 //!
-//! Blocking problems (non-positive prices, prices whose ratio overflows, duplicate dates, too few
-//! scenarios) are `fail` findings; the caller turns them into an error. Everything else is a `warn` or
-//! `pass` finding that travels with the results. The fill policy: a missing price is carried forward from
-//! the last observation for at most `max_fill` consecutive observations; an asset with a longer gap inside
-//! the scenario window, or with no price at the window's start, is dropped with a warning.
+//! Blocking problems (non-positive prices, prices of one asset more than a millionfold apart, duplicate
+//! dates, too few scenarios) are `fail` findings; the caller turns them into an error. Everything else is a
+//! `warn` or `pass` finding that travels with the results. The fill policy: a missing price is carried
+//! forward from the last observation for at most `max_fill` consecutive observations; an asset with a
+//! longer gap inside the scenario window, or with no price at the window's start, is dropped with a warning.
 
 use super::prices::PriceHistory;
 use crate::config::QualityOptions;
@@ -173,45 +173,92 @@ fn count_extreme(values: &[f64], threshold: f64) -> usize {
 /// Non-positive prices anywhere up to as-of: blocking.
 pub fn non_positive(path: &str, h: &PriceHistory) -> Vec<Check> {
     let mut out = Vec::new();
-    for (a, col) in h.assets.iter().zip(&h.values) {
+    for (a, col) in h.values.iter().enumerate() {
         if let Some((r, p)) = col
             .iter()
             .enumerate()
             .find_map(|(r, v)| v.filter(|p| *p <= 0.0).map(|p| (r, p)))
         {
             out.push(Check::fail("quality.non_positive", format!(
-                "{path}: {}, column `{a}`: price {p} on {} is not positive; prices must be > 0 (correct the feed or leave the cell blank)",
-                h.places[r], h.dates[r])));
+                "{path}: {}: price {p} on {} is not positive; prices must be > 0 (correct the feed or leave the cell blank)",
+                h.cell(a, r), h.dates[r])));
         }
     }
     out
 }
 
-/// Prices whose ratio overflows a 64-bit float: blocking. Every return of the run is a ratio of two prices
-/// of one asset, so the largest over the smallest must be finite; otherwise scenarios would hold infinite
-/// returns (a subnormal price such as 1e-320 is the usual cause: a feed in the wrong units or a corrupt
-/// cell), which no LP can solve and no statistic survives.
+/// The most the highest price of one asset may be above its lowest, up to as-of: a factor of 10^6. Every
+/// return tailpack computes from an asset's prices — scenario windows, daily and monthly backtest returns,
+/// historical stress windows — is a ratio of two of them minus 1, so this bounds every return to
+/// −1 + 10^-6 ≤ r ≤ 10^6 − 1: finite, and small enough that LP coefficients, expected returns and losses
+/// summed over scenarios stay finite. A sanity rule (common practice, not a published standard): a traded
+/// price that moves a millionfold within one history is a corrupt cell, a misplaced exponent or mixed units.
+pub const MAX_PRICE_RANGE: f64 = 1e6;
+
+/// Prices of one asset whose ratio overflows a 64-bit float or exceeds [`MAX_PRICE_RANGE`]: blocking (at
+/// most ten assets are listed). The message names first the cell farther from the asset's median price
+/// (on a log scale) — the likely culprit, such as a subnormal 1e-320 or a 1e308 — then the cell at the
+/// other end of the range, each with its row, line and date.
 pub fn overflowing_range(path: &str, h: &PriceHistory) -> Vec<Check> {
-    let mut out = Vec::new();
-    for (a, col) in h.assets.iter().zip(&h.values) {
-        let priced = || {
-            col.iter()
-                .enumerate()
-                .filter_map(|(r, v)| v.filter(|p| *p > 0.0).map(|p| (r, p)))
-        };
-        let (Some(lo), Some(hi)) = (
-            priced().min_by(|x, y| x.1.total_cmp(&y.1)),
-            priced().max_by(|x, y| x.1.total_cmp(&y.1)),
-        ) else {
-            continue;
-        };
-        if !(hi.1 / lo.1).is_finite() {
-            out.push(Check::fail("quality.price_range", format!(
-                "{path}: {}, column `{a}`: price {:e} is so small next to {:e} (at {}) that their ratio overflows; returns cannot be computed: check the prices' units or the cell",
-                h.places[lo.0], lo.1, hi.1, h.places[hi.0])));
-        }
+    (0..h.assets.len())
+        .filter_map(|a| range_problem(path, h, a))
+        .take(10)
+        .collect()
+}
+
+fn range_problem(path: &str, h: &PriceHistory, a: usize) -> Option<Check> {
+    let priced: Vec<(usize, f64)> = h.values[a]
+        .iter()
+        .enumerate()
+        .filter_map(|(r, v)| v.filter(|p| *p > 0.0).map(|p| (r, p)))
+        .collect();
+    let lo = *priced.iter().min_by(|x, y| x.1.total_cmp(&y.1))?;
+    let hi = *priced.iter().max_by(|x, y| x.1.total_cmp(&y.1))?;
+    let ratio = hi.1 / lo.1;
+    if ratio.is_finite() && ratio <= MAX_PRICE_RANGE {
+        return None;
     }
-    out
+    let median = median(priced.iter().map(|p| p.1).collect());
+    let off = |p: f64| (p.ln() - median.ln()).abs();
+    let (bad, other) = if off(lo.1) >= off(hi.1) {
+        (lo, hi)
+    } else {
+        (hi, lo)
+    };
+    let what = if ratio.is_finite() {
+        format!(
+            "their ratio is {ratio:.3e}, more than the {MAX_PRICE_RANGE:e} one asset's prices may span"
+        )
+    } else {
+        "their ratio overflows a 64-bit float".to_string()
+    };
+    Some(Check::fail(
+        "quality.price_range",
+        format!(
+            "{path}: {}: price {} on {} against {} at {} on {}: {what} (a sanity rule: every return is a ratio of two prices of one asset), so returns between them cannot be used: check the cell, its units or its exponent",
+            h.cell(a, bad.0),
+            number(bad.1),
+            h.dates[bad.0],
+            number(other.1),
+            h.places_of(a, other.0),
+            h.dates[other.0],
+        ),
+    ))
+}
+
+/// A price as written in a plain feed (`92.5565`), or in exponent form when very large or small (`1e308`).
+fn number(v: f64) -> String {
+    if (1e-4..1e9).contains(&v.abs()) {
+        v.to_string()
+    } else {
+        format!("{v:e}")
+    }
+}
+
+/// The median of positive values (the lower middle one for an even count).
+fn median(mut v: Vec<f64>) -> f64 {
+    let mid = (v.len() - 1) / 2;
+    *v.select_nth_unstable_by(mid, f64::total_cmp).1
 }
 
 /// Duplicate dates: blocking, with both rows named.
@@ -341,11 +388,7 @@ pub fn sort_dates(h: &mut PriceHistory) -> Option<Check> {
     );
     let mut idx: Vec<usize> = (0..h.dates.len()).collect();
     idx.sort_by_key(|&i| (h.dates[i], i));
-    h.dates = idx.iter().map(|&i| h.dates[i]).collect();
-    h.places = idx.iter().map(|&i| h.places[i].clone()).collect();
-    for col in &mut h.values {
-        *col = idx.iter().map(|&i| col[i]).collect();
-    }
+    h.keep_rows(&idx);
     Some(Check::warn("quality.unsorted", msg))
 }
 

@@ -29,11 +29,7 @@ impl TextTable {
 
     /// "row 3 (line 5)" for CSV, "row 3" for Parquet; rows count from 1 after the header.
     pub fn place(&self, row: usize) -> String {
-        if self.is_csv {
-            format!("row {} (line {})", row + 1, row + self.first_line)
-        } else {
-            format!("row {}", row + 1)
-        }
+        row_place(row, self.is_csv.then_some(self.first_line))
     }
 
     /// Where the header is, for messages: "line 2 (header)" for CSV, "the column list" for Parquet.
@@ -50,6 +46,15 @@ impl TextTable {
         self.names
             .iter()
             .position(|n| n.trim().eq_ignore_ascii_case(name))
+    }
+}
+
+/// "row 3 (line 5)" for data row index 2 of a CSV whose data start at `first_line` 3, "row 3" without
+/// line numbers (Parquet).
+pub fn row_place(row: usize, first_line: Option<usize>) -> String {
+    match first_line {
+        Some(first) => format!("row {} (line {})", row + 1, row + first),
+        None => format!("row {}", row + 1),
     }
 }
 
@@ -125,6 +130,7 @@ fn parse_csv(path: &Path, bytes: &[u8]) -> Result<TextTable> {
             ),
         ));
     }
+    table.names = names;
     Ok(table)
 }
 
@@ -228,10 +234,7 @@ fn check_names(path: &Path, csv: &CsvText) -> Result<Vec<String>> {
             format!("line {line} (header): a quoted name is not closed on its line"),
         ));
     }
-    let names: Vec<String> = cells
-        .iter()
-        .map(|c| c.trim().trim_matches('"').trim().to_string())
-        .collect();
+    let names: Vec<String> = cells.iter().map(|c| unquote(c)).collect();
     // A map, not a scan of the names before each one: a header line of megabytes stays linear.
     let mut seen = std::collections::HashMap::with_capacity(names.len());
     for (i, name) in names.iter().enumerate() {
@@ -294,6 +297,18 @@ fn check_rows(path: &Path, csv: &CsvText, width: usize) -> Result<()> {
         }
     }
     Ok(())
+}
+
+/// A header field as RFC 4180 (section 2, rules 5 and 7) reads it: enclosing double quotes removed and a
+/// doubled quote inside read as one (`"AS""02"` is `AS"02`); white space around the name is dropped, as
+/// for every name. The CSV reader keeps a doubled quote in a column name as two, so the table's names are
+/// these.
+fn unquote(cell: &str) -> String {
+    let t = cell.trim();
+    match t.strip_prefix('"').and_then(|rest| rest.strip_suffix('"')) {
+        Some(inner) => inner.replace("\"\"", "\"").trim().to_string(),
+        None => t.to_string(),
+    }
 }
 
 /// Splits one line at commas outside double quotes; the flag says whether a quote was left open.

@@ -93,7 +93,8 @@ pub struct Outcome {
 }
 
 impl Outcome {
-    fn failed(status: Status, message: String) -> Outcome {
+    /// An outcome without a portfolio.
+    pub fn failed(status: Status, message: String) -> Outcome {
         Outcome {
             status,
             message: Some(message),
@@ -391,28 +392,87 @@ pub struct Preconditions {
     /// max μ·x over X (must be > 0).
     pub max_return: Option<f64>,
     pub holds: bool,
+    /// Whether both auxiliary LPs reached an optimum, so that `holds` is a finding rather than a gap:
+    /// when not, the ratio model is a solver error, not "not applicable".
+    pub established: bool,
     pub reason: Option<String>,
 }
 
-/// Checks CVaR > 0 on all of X (via the minimum) and that some x ∈ X has μ·x > 0.
-pub fn preconditions(min_cvar: Option<f64>, max_return: Option<f64>) -> Preconditions {
-    let reason = match (min_cvar, max_return) {
-        (None, _) | (_, None) => Some(
-            "the feasible set X is empty, so neither precondition can be established".to_string(),
+/// What an LP's failure says, in words for a message.
+pub fn failure_words(f: &Failure) -> String {
+    match f {
+        Failure::Infeasible => "the solver reports it infeasible".into(),
+        Failure::Unbounded => "the solver reports it unbounded".into(),
+        Failure::Solver(m) => format!("solver: {m}"),
+    }
+}
+
+/// Checks CVaR > 0 on all of X (via the minimum) and that some x ∈ X has μ·x > 0, from the two auxiliary
+/// LPs. An auxiliary LP without an optimum establishes nothing: the reason then says which LP ended how,
+/// and claims nothing about X.
+pub fn preconditions(
+    min_cvar: &Result<f64, Failure>,
+    max_return: &Result<f64, Failure>,
+) -> Preconditions {
+    let unsolved = [
+        ("the minimum CVaR over the feasible set", min_cvar),
+        (
+            "the maximum expected return over the feasible set",
+            max_return,
         ),
-        (Some(m), _) if m <= 0.0 => Some(format!(
+    ]
+    .iter()
+    .filter_map(|(what, r)| {
+        r.as_ref().err().map(|f| {
+            format!(
+                "the LP for {what} ended without an optimum ({})",
+                failure_words(f)
+            )
+        })
+    })
+    .collect::<Vec<_>>();
+    let reason = match (min_cvar, max_return) {
+        _ if !unsolved.is_empty() => Some(format!(
+            "{}; so the Charnes–Cooper preconditions could not be established and the ratio LP was not solved",
+            unsolved.join("; ")
+        )),
+        (Ok(m), _) if *m <= 0.0 => Some(format!(
             "the minimum CVaR over the feasible set is {m:.6} ≤ 0 (a portfolio with no tail loss exists, e.g. a riskless asset allowed at full weight), so the return/CVaR ratio is unbounded or undefined and the Charnes–Cooper LP does not apply"
         )),
-        (_, Some(r)) if r <= 0.0 => Some(format!(
+        (_, Ok(r)) if *r <= 0.0 => Some(format!(
             "the maximum expected return over the feasible set is {r:.6} ≤ 0, so no portfolio has a positive return/CVaR ratio and the Charnes–Cooper LP does not apply"
         )),
         _ => None,
     };
     Preconditions {
-        min_cvar,
-        max_return,
+        min_cvar: min_cvar.as_ref().ok().copied(),
+        max_return: max_return.as_ref().ok().copied(),
         holds: reason.is_none(),
+        established: unsolved.is_empty(),
         reason,
+    }
+}
+
+/// The preconditions when X has no known portfolio: shown empty (then `established`: the ratio model is
+/// infeasible with X) or not established either way.
+pub fn preconditions_without_portfolio(empty: &Emptiness) -> Preconditions {
+    let (established, reason) = match empty {
+        Emptiness::Empty(_) => (
+            true,
+            "the feasible set X is empty, so no portfolio has a ratio".to_string(),
+        ),
+        Emptiness::Unknown(why) => (
+            false,
+            format!("{why}, so neither precondition could be checked"),
+        ),
+        Emptiness::NotEmpty => (false, "the auxiliary LPs were not solved".to_string()),
+    };
+    Preconditions {
+        min_cvar: None,
+        max_return: None,
+        holds: false,
+        established,
+        reason: Some(reason),
     }
 }
 
@@ -526,18 +586,45 @@ pub fn outcome(
     }
 }
 
+/// A model the solver called infeasible although a known portfolio satisfies its constraints (`witness`
+/// names it): that is a numerical failure, not an established infeasibility, so the outcome becomes a
+/// `solver_error` saying so. Any other outcome is returned as it is.
+pub fn unless_contradicted(o: Outcome, witness: Option<String>) -> Outcome {
+    match witness {
+        Some(w) if o.status == Status::Infeasible => Outcome::failed(
+            Status::SolverError,
+            format!(
+                "the solver reports the LP infeasible, but {w}, so it is not: a numerical failure of the solver; no optimum is known"
+            ),
+        ),
+        _ => o,
+    }
+}
+
+/// Whether the feasible set X is empty, as far as it was established.
+#[derive(Debug, Clone, PartialEq)]
+pub enum Emptiness {
+    /// A portfolio in X exists (the feasibility LP found one).
+    NotEmpty,
+    /// X is empty; the reason names the constraints.
+    Empty(String),
+    /// The feasibility LP ended without a verdict (a solver failure); nothing is claimed about X.
+    Unknown(String),
+}
+
 /// Explains why X itself is empty by checking simple sums and then relaxing one constraint family at a
-/// time. Returns `None` when X is not empty.
-pub fn explain_empty(fs: &FeasibleSet, names: &[String], backend: Backend) -> Option<String> {
+/// time. Emptiness is claimed only from the sums or from a feasibility LP the solver calls infeasible;
+/// a feasibility LP that fails otherwise leaves it [`Emptiness::Unknown`].
+pub fn explain_empty(fs: &FeasibleSet, names: &[String], backend: Backend) -> Emptiness {
     let lo: f64 = fs.lower.iter().sum();
     let hi: f64 = fs.upper.iter().sum();
     if lo > 1.0 + 1e-12 {
-        return Some(format!(
+        return Emptiness::Empty(format!(
             "the per-asset minimum weights sum to {lo:.4} > 1 (budget Σx = 1)"
         ));
     }
     if hi < 1.0 - 1e-12 {
-        return Some(format!(
+        return Emptiness::Empty(format!(
             "the per-asset maximum weights sum to {hi:.4} < 1 (budget Σx = 1); raise limits.default_max or max_weight"
         ));
     }
@@ -545,53 +632,81 @@ pub fn explain_empty(fs: &FeasibleSet, names: &[String], backend: Backend) -> Op
         let cap: f64 = g.members.iter().map(|&i| fs.upper[i]).sum();
         let floor: f64 = g.members.iter().map(|&i| fs.lower[i]).sum();
         if g.min > cap + 1e-12 {
-            return Some(format!(
+            return Emptiness::Empty(format!(
                 "group `{}` needs at least {:.4} but its members' maximum weights sum to {cap:.4}",
                 g.name, g.min
             ));
         }
         if g.max < floor - 1e-12 {
-            return Some(format!(
+            return Emptiness::Empty(format!(
                 "group `{}` allows at most {:.4} but its members' minimum weights sum to {floor:.4}",
                 g.name, g.max
             ));
         }
     }
-    if is_feasible(fs, backend) {
-        return None;
+    match feasibility(fs, backend) {
+        Ok(()) => Emptiness::NotEmpty,
+        Err(Failure::Infeasible) => Emptiness::Empty(relaxation_hint(fs, names, backend)),
+        Err(f) => Emptiness::Unknown(format!(
+            "the feasibility LP of the budget, bounds, group limits and turnover limit ended without a verdict ({})",
+            failure_words(&f)
+        )),
     }
-    Some(relaxation_hint(fs, names, backend))
 }
 
-fn is_feasible(fs: &FeasibleSet, backend: Backend) -> bool {
+/// Solves X alone (zero objective): `Ok` when a portfolio in X exists. X is bounded (every weight between
+/// its bounds), so HiGHS' "unbounded or infeasible" means infeasible here.
+fn feasibility(fs: &FeasibleSet, backend: Backend) -> Result<(), Failure> {
     let lp = Lp::new(fs, false);
-    lp.solve(&Lin::default(), false, backend).is_ok()
+    lp.solve(&Lin::default(), false, backend).map(|_| ())
 }
 
+/// Which single constraint family, dropped, makes X feasible. A relaxation whose LP fails without a
+/// verdict is named as unchecked rather than counted either way.
 fn relaxation_hint(fs: &FeasibleSet, _names: &[String], backend: Backend) -> String {
     let mut culprits = Vec::new();
+    let mut unchecked = Vec::new();
+    let mut judge = |relaxed: &FeasibleSet, what: String| match feasibility(relaxed, backend) {
+        Ok(()) => culprits.push(what),
+        Err(Failure::Infeasible) => {}
+        Err(f) => unchecked.push(format!("{what} ({})", failure_words(&f))),
+    };
     if let Some(tau) = fs.turnover_max {
         let relaxed = FeasibleSet {
             turnover_max: None,
             ..fs.clone()
         };
-        if is_feasible(&relaxed, backend) {
-            culprits.push(format!("the turnover limit limits.turnover_max = {tau}"));
-        }
+        judge(
+            &relaxed,
+            format!("the turnover limit limits.turnover_max = {tau}"),
+        );
     }
     for (gi, g) in fs.groups.iter().enumerate() {
         let mut relaxed = fs.clone();
         relaxed.groups.remove(gi);
-        if is_feasible(&relaxed, backend) {
-            culprits.push(format!("group `{}` (min {}, max {})", g.name, g.min, g.max));
-        }
+        judge(
+            &relaxed,
+            format!("group `{}` (min {}, max {})", g.name, g.min, g.max),
+        );
     }
-    if culprits.is_empty() {
+    let unchecked = if unchecked.is_empty() {
+        String::new()
+    } else {
+        format!(
+            "; not established whether it becomes feasible without {}",
+            unchecked.join(", or without ")
+        )
+    };
+    if !culprits.is_empty() {
+        format!(
+            "the constraints cannot hold together; it becomes feasible without {}{unchecked}",
+            culprits.join(", or without ")
+        )
+    } else if unchecked.is_empty() {
         "the budget, bounds, group limits and turnover limit cannot hold together; no single limit is to blame".into()
     } else {
         format!(
-            "the constraints cannot hold together; it becomes feasible without {}",
-            culprits.join(", or without ")
+            "the budget, bounds, group limits and turnover limit cannot hold together{unchecked}"
         )
     }
 }

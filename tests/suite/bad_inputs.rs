@@ -74,6 +74,19 @@ cases!(
     prices_overflowing_number,
     prices_subnormal,
     prices_overflowing_range,
+    prices_huge_number,
+    prices_tiny_then_huge,
+    prices_largest_float,
+    prices_ratio_beyond_range,
+    prices_huge_in_unheld_asset,
+    prices_long_huge_number,
+    prices_huge_after_as_of,
+    parquet_huge_number,
+    prices_asset_code_tab,
+    prices_long_asset_code_nul,
+    prices_long_asset_code_next_line,
+    parquet_asset_code_newline,
+    prices_asset_codes_with_commas_and_quotes,
     prices_nan_na_and_blank_cells,
     prices_long_gap_in_held_asset,
     prices_duplicate_dates,
@@ -535,6 +548,34 @@ fn generate(what: &str, dir: &Path) -> Vec<String> {
                 date,
                 vec![
                     ("AS01", Some(cols[0].clone()), None),
+                    ("AS02", Some(cols[1].clone()), None),
+                    ("AS03", Some(cols[2].clone()), None),
+                ],
+            );
+            vec![]
+        }
+        "parquet_huge_number" => {
+            // 1e308 in AS01 on data row 7 (2024-01-09), as a Float64 (no text a CSV check could see).
+            let (dates, mut cols) = good_columns(&good);
+            cols[0][6] = 1e308;
+            write_parquet(
+                &dir.join("prices.parquet"),
+                date_column(&dates),
+                vec![
+                    ("AS01", Some(cols[0].clone()), None),
+                    ("AS02", Some(cols[1].clone()), None),
+                    ("AS03", Some(cols[2].clone()), None),
+                ],
+            );
+            vec![]
+        }
+        "parquet_asset_code_newline" => {
+            let (dates, cols) = good_columns(&good);
+            write_parquet(
+                &dir.join("prices.parquet"),
+                date_column(&dates),
+                vec![
+                    ("AS\n01", Some(cols[0].clone()), None),
                     ("AS02", Some(cols[1].clone()), None),
                     ("AS03", Some(cols[2].clone()), None),
                 ],

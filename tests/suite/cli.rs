@@ -630,3 +630,41 @@ fn excluded_assets_get_zero_weight_in_every_model() {
         ran.stderr
     );
 }
+
+/// `check` applies the price-range bound as `run` does (README, "Data quality"): a price 10^6 times or more
+/// away from the rest of its column, early in the history (before a 1-year scenario window, where only the
+/// backtest and the historical stress windows would read it) or in the window, is exit 3 naming the cell;
+/// just under the bound it passes with the extreme-move warning.
+#[test]
+fn check_and_run_refuse_prices_a_millionfold_apart_anywhere_in_the_history() {
+    let (f, m) = standard();
+    f.write(
+        "fund.yaml",
+        &config("").replace("lookback_years: 2", "lookback_years: 1"),
+    );
+    let n = m.dates.len();
+    for (row, factor, blocks) in [(10, 1e7, true), (n - 30, 1e-7, true), (n - 30, 2e5, false)] {
+        let at = |i: usize, c: &mut Vec<String>| {
+            if i == row {
+                c[3] = format!("{:e}", m.prices[i][2] * factor);
+            }
+        };
+        f.write("data/prices.csv", &edit_rows(&m, at));
+        for cmd in ["check", "run"] {
+            let ran = f.run(&[cmd, "fund.yaml", "--quiet"][..if cmd == "check" { 2 } else { 3 }]);
+            if blocks {
+                assert_eq!(ran.code, 3, "{cmd} {row} {factor}: {}", ran.stderr);
+                let place = format!("row {} (line {}), column `AS03`", row + 1, row + 2);
+                assert!(ran.stderr.contains(&place), "{place}: {}", ran.stderr);
+                assert!(
+                    ran.stderr.contains(&m.dates[row].to_string()),
+                    "{}",
+                    ran.stderr
+                );
+            } else {
+                assert!(ran.code == 0 || ran.code == 5, "{cmd}: {}", ran.stderr);
+                assert!(ran.stdout.contains("`AS03` (2×)"), "{}", ran.stdout);
+            }
+        }
+    }
+}

@@ -414,8 +414,8 @@ fn preconditions_reject_riskless_and_all_losing_universes() {
         backend: Backend::Highs,
     };
     let pre = models::preconditions(
-        p.min_cvar(None).ok().map(|s| s.objective),
-        p.max_return(None).ok().map(|s| s.objective),
+        &p.min_cvar(None).map(|s| s.objective),
+        &p.max_return(None).map(|s| s.objective),
     );
     assert!(!pre.holds);
     assert!(pre.reason.unwrap().contains("minimum CVaR"));
@@ -442,8 +442,8 @@ fn preconditions_reject_riskless_and_all_losing_universes() {
         backend: Backend::Highs,
     };
     let pre = models::preconditions(
-        p.min_cvar(None).ok().map(|s| s.objective),
-        p.max_return(None).ok().map(|s| s.objective),
+        &p.min_cvar(None).map(|s| s.objective),
+        &p.max_return(None).map(|s| s.objective),
     );
     assert!(!pre.holds);
     assert!(pre.reason.unwrap().contains("maximum expected return"));
@@ -541,5 +541,151 @@ fn the_cutting_plane_method_is_chosen_by_scenario_and_asset_count() {
     assert_eq!(
         p.method(),
         method_for(i.set.len(), i.set.width(), Backend::Highs)
+    );
+}
+
+/// A scenario return of 1e300 — finite, but no price series — with otherwise ordinary data: the set X
+/// (bounds and budget) plainly has portfolios, so whatever the solver does with the CVaR LPs, no message
+/// may say X is empty, and the ratio preconditions count as not established rather than failed.
+#[test]
+fn failed_auxiliary_lps_claim_nothing_about_the_feasible_set() {
+    let mut rng = rand::rngs::StdRng::seed_from_u64(11);
+    let s = 40;
+    let mut returns: Vec<f64> = (0..2 * s).map(|_| 0.01 * normal(&mut rng)).collect();
+    returns[7] = 1e300;
+    let set = ScenarioSet::from_matrix(
+        vec!["A".into(), "B".into()],
+        returns,
+        vec![1.0 / s as f64; s],
+    )
+    .unwrap();
+    let fs = FeasibleSet {
+        lower: vec![0.0; 2],
+        upper: vec![1.0; 2],
+        groups: vec![],
+        turnover_max: None,
+        current: None,
+    };
+    // x = (1, 0) meets the bounds and the budget: X is not empty.
+    assert_eq!(
+        models::explain_empty(&fs, &set.assets, Backend::Highs),
+        models::Emptiness::NotEmpty
+    );
+    let p = Problem {
+        set: &set,
+        mu: set.mean(),
+        confidence: 0.95,
+        feasible: &fs,
+        backend: Backend::Highs,
+    };
+    let min = p.min_cvar(None).map(|s| s.objective);
+    let max = p.max_return(None).map(|s| s.objective);
+    assert!(
+        min.is_err() || max.is_err(),
+        "premise: HiGHS refuses coefficients of 1e300 ({min:?}, {max:?})"
+    );
+    let pre = models::preconditions(&min, &max);
+    assert!(!pre.holds && !pre.established);
+    let reason = pre.reason.unwrap();
+    assert!(!reason.contains("empty"), "{reason}");
+    assert!(reason.contains("could not be established"), "{reason}");
+    // The same verdicts from explicit failures: a solver error is no finding about X.
+    let words = models::lp::Failure::Solver("status Error".into());
+    let pre = models::preconditions(&Err(words), &Ok(0.01));
+    assert!(!pre.established && pre.reason.unwrap().contains("solver: status Error"));
+    let pre = models::preconditions(&Ok(0.02), &Ok(-0.01));
+    assert!(pre.established && !pre.holds);
+}
+
+/// A solver's "infeasible" that a known portfolio contradicts is reported as a solver error; without such
+/// a portfolio the infeasibility stands; an optimum is never touched.
+#[test]
+fn an_infeasible_verdict_contradicted_by_a_known_portfolio_is_a_solver_error() {
+    use tailpack::models::{Outcome, Status, unless_contradicted};
+    let infeasible = || Outcome::failed(Status::Infeasible, "cap infeasible".into());
+    let o = unless_contradicted(
+        infeasible(),
+        Some("the minimum-CVaR portfolio meets the cap".into()),
+    );
+    assert_eq!(o.status, Status::SolverError);
+    let msg = o.message.unwrap();
+    assert!(
+        msg.contains("numerical failure") && msg.contains("meets the cap"),
+        "{msg}"
+    );
+    assert_eq!(
+        unless_contradicted(infeasible(), None).status,
+        Status::Infeasible
+    );
+    let optimal = Outcome {
+        status: Status::Optimal,
+        message: None,
+        weights: Some(vec![1.0]),
+        objective: Some(0.1),
+        scale: None,
+        max_violation: Some(0.0),
+    };
+    let o = unless_contradicted(optimal, Some("anything".into()));
+    assert_eq!(o.status, Status::Optimal);
+}
+
+/// X shown empty by its bound sums, or by a feasibility LP: `Empty` with the reason.
+#[test]
+fn an_empty_feasible_set_is_shown_not_assumed() {
+    let two = |lower: Vec<f64>, upper: Vec<f64>, groups: Vec<Group>| FeasibleSet {
+        lower,
+        upper,
+        groups,
+        turnover_max: None,
+        current: None,
+    };
+    let names = vec!["A".to_string(), "B".to_string()];
+    let sums = two(vec![0.6, 0.6], vec![1.0, 1.0], vec![]);
+    assert!(matches!(
+        models::explain_empty(&sums, &names, Backend::Highs),
+        models::Emptiness::Empty(m) if m.contains("sum to 1.2000 > 1")
+    ));
+    // Two groups over the same asset that cannot both hold: only the feasibility LP shows it.
+    let g = |name: &str, min: f64, max: f64| Group {
+        name: name.into(),
+        members: vec![0],
+        min,
+        max,
+    };
+    let clash = two(
+        vec![0.0, 0.0],
+        vec![1.0, 1.0],
+        vec![g("Low", 0.0, 0.3), g("High", 0.5, 1.0)],
+    );
+    match models::explain_empty(&clash, &names, Backend::Highs) {
+        models::Emptiness::Empty(m) => assert!(m.contains("group `Low`"), "{m}"),
+        other => panic!("{other:?}"),
+    }
+}
+
+/// Should a huge price ever get past ingest's range check, the scenario stage stops with a data error
+/// (exit 3) naming the prices file, the asset's column and the dates — before any LP or model message.
+#[test]
+fn a_return_beyond_the_bound_that_reaches_the_models_is_a_data_error() {
+    use super::common::{Fixture, Market, config};
+    let f = Fixture::new();
+    let m = Market::new(3, "2022-01-03", "2024-06-28", 4);
+    f.small_fund(&m, &config("analysis:\n  backtest_years: 0\n"));
+    let opts = tailpack::run::RunOptions::default();
+    let prepared = tailpack::run::prepare(&f.path("fund.yaml"), &opts).unwrap();
+    let (cfg, mut data) = (prepared.cfg, prepared.data);
+    let k = data.dates.len() - 3;
+    let day = data.dates[k];
+    data.prices[1][k] = 1e300;
+    let Err(e) = tailpack::run::compute(cfg, data) else {
+        panic!("a return of about 1e298 must not reach the models");
+    };
+    assert_eq!(e.exit_code(), 3);
+    let msg = e.to_string();
+    assert!(
+        msg.contains("prices.csv")
+            && msg.contains("column `AS02`")
+            && msg.contains(&day.to_string()),
+        "{msg}"
     );
 }
