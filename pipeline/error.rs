@@ -197,6 +197,32 @@ pub mod fs {
         Ok(out)
     }
 
+    /// The real path of `path`: every symbolic link resolved, absolute.
+    pub fn canonicalize(path: &Path) -> Result<std::path::PathBuf> {
+        std::fs::canonicalize(path).map_err(io("cannot resolve", path))
+    }
+
+    /// What `path` itself is, without following a symbolic link.
+    pub fn symlink_metadata(path: &Path) -> Result<std::fs::Metadata> {
+        std::fs::symlink_metadata(path).map_err(io("cannot inspect", path))
+    }
+
+    /// What `path` is, following symbolic links.
+    pub fn metadata(path: &Path) -> Result<std::fs::Metadata> {
+        std::fs::metadata(path).map_err(io("cannot inspect", path))
+    }
+
+    /// The entries of a folder (full paths), sorted so that anything built from them is the same on
+    /// every run.
+    pub fn read_dir_sorted(dir: &Path) -> Result<Vec<std::path::PathBuf>> {
+        let mut out = Vec::new();
+        for entry in std::fs::read_dir(dir).map_err(io("cannot read folder", dir))? {
+            out.push(entry.map_err(io("cannot read folder", dir))?.path());
+        }
+        out.sort();
+        Ok(out)
+    }
+
     /// What a non-regular file is, for messages ("a folder", "a named pipe (FIFO)", "a device"…).
     pub fn kind_of(meta: &std::fs::Metadata) -> &'static str {
         let t = meta.file_type();

@@ -109,10 +109,21 @@ enum Command {
         /// Target folder, e.g. config-demo/data.
         dir: PathBuf,
     },
+    /// Internal: typesets one PDF from a prepared file set on stdin, under the given limits.
+    #[command(name = "typeset-child", hide = true)]
+    TypesetChild {
+        #[arg(long)]
+        memory_mb: u64,
+        #[arg(long)]
+        seconds: u64,
+    },
 }
 
 fn main() {
     let cli = Cli::parse();
+    if let Command::TypesetChild { memory_mb, seconds } = cli.command {
+        std::process::exit(tailpack::report::typeset::serve(memory_mb, seconds));
+    }
     let result = match &cli.command {
         Command::Run {
             config,
@@ -177,6 +188,7 @@ fn main() {
         )
         .map(|t| (t, 0)),
         Command::DemoData { dir } => tailpack::commands::demo_data(dir).map(|t| (t, 0)),
+        Command::TypesetChild { .. } => unreachable!("handled above"),
     };
     match result {
         Ok((text, code)) => {

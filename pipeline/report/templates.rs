@@ -3,10 +3,17 @@
 //!
 //! A custom folder may hold any of the default names (it replaces that file), new files that a custom
 //! partial imports (e.g. a logo), and `.ttf`/`.otf` fonts, which are registered with the typesetter.
+//!
+//! [`custom_files`] is the one listing of the custom folder: the typesetter sees exactly these files and
+//! the archive copies and hashes exactly these (`inputs/templates/`). It resolves every path and refuses
+//! anything whose real path lies outside the folder (a symbolic link to a file or folder elsewhere), links
+//! that cannot be followed (dangling, or a loop), links to a folder that contains them, and anything that
+//! is not a regular file or folder. Links that stay inside the folder are followed. Hidden entries (names
+//! starting with `.`) are skipped, so neither the typesetter nor the archive sees them.
 
 use super::world::{Origin, WorldFile};
-use crate::error::{Result, fs};
-use std::path::Path;
+use crate::error::{Error, Result, fs};
+use std::path::{Path, PathBuf};
 
 /// The default templates, by file name: `main.typ` includes the others in print order.
 pub const DEFAULTS: &[(&str, &str)] = &[
@@ -55,26 +62,185 @@ pub fn load(custom: Option<&Path>) -> Result<(Vec<WorldFile>, Vec<Vec<u8>>)> {
     let Some(dir) = custom else {
         return Ok((files, fonts));
     };
-    for path in fs::files_below(dir)? {
-        let rel = path
-            .strip_prefix(dir)
-            .expect("walked below dir")
-            .to_string_lossy()
-            .replace('\\', "/");
-        let bytes = fs::read(&path)?;
-        if is_font(&path) {
-            fonts.push(bytes);
+    for f in custom_files(dir)? {
+        if is_font(&f.path) {
+            fonts.push(f.bytes);
             continue;
         }
-        let vpath = format!("/{rel}");
-        files.retain(|f| f.vpath != vpath);
+        let vpath = format!("/{}", f.rel);
+        files.retain(|w| w.vpath != vpath);
         files.push(WorldFile {
             vpath,
-            bytes,
-            origin: Origin::Custom(path),
+            bytes: f.bytes,
+            origin: Origin::Custom(f.path),
         });
     }
     Ok((files, fonts))
+}
+
+/// One file of the custom template folder, as the typesetter reads it and the archive keeps it.
+#[derive(Debug, Clone)]
+pub struct CustomFile {
+    /// The path below the folder with `/` separators, as templates name it (`logo.svg`, `parts/x.typ`).
+    pub rel: String,
+    /// The path as listed in the folder (a symbolic link under its own name), for messages.
+    pub path: PathBuf,
+    /// The file's bytes, read from its real path.
+    pub bytes: Vec<u8>,
+}
+
+/// Deepest folder nesting followed below the template folder.
+pub const MAX_DEPTH: usize = 32;
+/// Most files the template folder may hold (links to folders inside it count every file again).
+pub const MAX_FILES: usize = 10_000;
+
+/// Every file of the custom template folder `dir`, in sorted order, each checked to lie inside the folder
+/// once every symbolic link is resolved. The one listing both the report and the archive use.
+pub fn custom_files(dir: &Path) -> Result<Vec<CustomFile>> {
+    let root = fs::canonicalize(dir)?;
+    let mut walk = Walk {
+        root,
+        out: Vec::new(),
+    };
+    let mut above = vec![walk.root.clone()];
+    walk.folder(dir, "", &mut above)?;
+    Ok(walk.out)
+}
+
+/// The state of one walk of the template folder.
+struct Walk {
+    /// The folder's real path.
+    root: PathBuf,
+    out: Vec<CustomFile>,
+}
+
+impl Walk {
+    /// Lists the folder `listed` (named `prefix` below the root); `above` holds the real paths of the
+    /// folders on the way down, so a link back to one of them is caught as a loop.
+    fn folder(&mut self, listed: &Path, prefix: &str, above: &mut Vec<PathBuf>) -> Result<()> {
+        if above.len() > MAX_DEPTH {
+            return Err(refuse(
+                listed,
+                format!(
+                    "is nested more than {MAX_DEPTH} folders deep in the template folder; keep templates in a shallower tree"
+                ),
+            ));
+        }
+        for entry in fs::read_dir_sorted(listed)? {
+            let name = entry
+                .file_name()
+                .map(|n| n.to_string_lossy().into_owned())
+                .unwrap_or_default();
+            if name.starts_with('.') {
+                continue;
+            }
+            let rel = format!("{prefix}{name}");
+            let real = self.real_path(&entry)?;
+            let meta = fs::metadata(&real)?;
+            if meta.is_dir() {
+                if above.contains(&real) {
+                    return Err(refuse(
+                        &entry,
+                        format!(
+                            "is a symbolic link to {}, a folder that contains it (a loop); remove the link",
+                            real.display()
+                        ),
+                    ));
+                }
+                above.push(real);
+                self.folder(&entry, &format!("{rel}/"), above)?;
+                above.pop();
+            } else if meta.is_file() {
+                self.file(entry, rel, &real)?;
+            } else {
+                return Err(refuse(
+                    &entry,
+                    format!(
+                        "is {}, not a regular file; the template folder may hold only files and folders",
+                        fs::kind_of(&meta)
+                    ),
+                ));
+            }
+        }
+        Ok(())
+    }
+
+    fn file(&mut self, listed: PathBuf, rel: String, real: &Path) -> Result<()> {
+        if self.out.len() >= MAX_FILES {
+            return Err(refuse(
+                &listed,
+                format!(
+                    "is one file more than the {MAX_FILES} a template folder may hold (links to folders count their files again)"
+                ),
+            ));
+        }
+        let bytes = fs::read(real)?;
+        self.out.push(CustomFile {
+            rel,
+            path: listed,
+            bytes,
+        });
+        Ok(())
+    }
+
+    /// The real path of an entry, refused when it cannot be resolved or lies outside the folder.
+    fn real_path(&self, entry: &Path) -> Result<PathBuf> {
+        let link = std::fs::read_link(entry).ok();
+        let real = match std::fs::canonicalize(entry) {
+            Ok(real) => real,
+            Err(e) => return Err(unresolvable(entry, link.as_deref(), e)),
+        };
+        if real.starts_with(&self.root) {
+            return Ok(real);
+        }
+        let what = if link.is_some() {
+            "is a symbolic link"
+        } else {
+            "lies on a path through a symbolic link"
+        };
+        Err(refuse(
+            entry,
+            format!(
+                "{what} to {}, outside the custom template folder {} (report.templates); templates may read only files inside that folder: copy the file in instead of linking to it",
+                real.display(),
+                self.root.display()
+            ),
+        ))
+    }
+}
+
+/// The refusal of an entry that cannot be resolved: a dangling link or a loop of links.
+fn unresolvable(entry: &Path, link: Option<&Path>, e: std::io::Error) -> Error {
+    let Some(target) = link else {
+        return Error::Io {
+            action: "cannot resolve",
+            path: entry.to_path_buf(),
+            source: e,
+        };
+    };
+    let why = if e.raw_os_error() == Some(libc::ELOOP) {
+        "it leads back to itself (a loop of symbolic links)".to_string()
+    } else if e.kind() == std::io::ErrorKind::NotFound {
+        "it points to nothing (the target does not exist)".to_string()
+    } else {
+        e.to_string()
+    };
+    refuse(
+        entry,
+        format!(
+            "is a symbolic link to {} that cannot be followed: {why}; remove or fix the link",
+            target.display()
+        ),
+    )
+}
+
+/// A template-folder entry refused by the walk.
+fn refuse(path: &Path, message: String) -> Error {
+    Error::Template {
+        file: path.display().to_string(),
+        line: None,
+        message,
+    }
 }
 
 fn is_font(path: &Path) -> bool {

@@ -15,3 +15,4 @@ mod properties;
 mod report;
 mod risk;
 mod signoff;
+mod templates;
