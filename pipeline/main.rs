@@ -124,6 +124,7 @@ fn main() {
     if let Command::TypesetChild { memory_mb, seconds } = cli.command {
         std::process::exit(tailpack::report::typeset::serve(memory_mb, seconds));
     }
+    tailpack::report::typeset::this_binary_serves();
     let result = match &cli.command {
         Command::Run {
             config,

@@ -223,6 +223,27 @@ mod tests {
     use super::*;
 
     #[test]
+    fn typst_words_for_its_project_root_become_the_template_folder() {
+        // typst 0.15's wording (typst-library, foundations/path.rs, `format_resolve_error`).
+        let m = in_our_terms("path `\"../x.typ\"` would escape the project root");
+        assert_eq!(
+            m,
+            "path `\"../x.typ\"` would escape the template folder (report.templates)"
+        );
+        for hint in [
+            "cannot access files outside of the project sandbox",
+            "you can adjust the project root with the `--root` argument",
+        ] {
+            let h = hint_in_our_terms(hint);
+            assert!(h.contains("report.templates") && !h.contains("root"), "{h}");
+        }
+        assert_eq!(hint_in_our_terms("use forward slashes"), "use forward slashes");
+        let m = in_our_terms("file not found (searched at /etc/passwd)");
+        assert!(m.starts_with("file not found: /etc/passwd is not a file of the custom template folder"));
+        assert!(!m.contains("searched at"));
+    }
+
+    #[test]
     fn every_default_template_is_listed_once() {
         let mut names: Vec<&str> = templates::DEFAULTS.iter().map(|(n, _)| *n).collect();
         names.sort();

@@ -7,7 +7,8 @@
 //! [`Error::Template`] (exit 2) naming the template and the limit.
 //!
 //! A library caller that is not the tailpack binary (a test calling the library in-process) has no
-//! child to start and typesets in-process, without the budget. Either way the same code typesets
+//! child to start and typesets in-process, without the budget: only the binary, which answers the hidden
+//! subcommand, says so at start ([`this_binary_serves`]). Either way the same code typesets
 //! ([`super::typeset_here`]), so the PDF bytes do not depend on where it ran.
 //!
 //! May touch: the child process and its pipes. Reads and writes no file.
@@ -17,6 +18,7 @@ use crate::error::{Error, Result};
 use std::io::{Read, Write};
 use std::path::{Path, PathBuf};
 use std::process::{Child, Command, ExitStatus, Stdio};
+use std::sync::atomic::{AtomicBool, Ordering};
 use std::time::{Duration, Instant};
 
 /// Everything one typesetting run sees besides the shipped templates and fonts.
@@ -47,6 +49,16 @@ pub struct Budget {
 /// The hidden subcommand that runs the child.
 pub const SUBCOMMAND: &str = "typeset-child";
 
+/// Set by the tailpack binary at start: this process can be started again as the typesetter.
+static SERVES: AtomicBool = AtomicBool::new(false);
+
+/// Called by the tailpack binary before it runs a command: this executable answers [`SUBCOMMAND`], so
+/// typesetting may run in a child under the budget. Library callers that do not call it typeset
+/// in-process.
+pub fn this_binary_serves() {
+    SERVES.store(true, Ordering::Relaxed);
+}
+
 /// Typesets `job` in a child process under `budget`, or in-process when this process is not the
 /// tailpack binary.
 pub fn run(job: Job, budget: &Budget) -> Result<Vec<u8>> {
@@ -58,13 +70,15 @@ pub fn run(job: Job, budget: &Budget) -> Result<Vec<u8>> {
 
 /// The binary to start as the typesetter: this one, when it is tailpack.
 fn typesetter() -> Option<PathBuf> {
-    let exe = std::env::current_exe().ok()?;
-    if exe.file_stem()? != "tailpack" {
+    if !SERVES.load(Ordering::Relaxed) {
         return None;
     }
     // The running image itself, even if the file on disk was replaced or removed since it started.
     let own = Path::new("/proc/self/exe");
-    Some(if own.exists() { own.to_path_buf() } else { exe })
+    if own.exists() {
+        return Some(own.to_path_buf());
+    }
+    std::env::current_exe().ok()
 }
 
 /// Starts the child, feeds it the job, waits at most the time budget and reads its answer.

@@ -469,13 +469,13 @@ fn budget_keys_out_of_range_or_of_the_wrong_type_are_config_errors() {
     for (yaml, key, says) in [
         ("  typeset_seconds: 0\n", "report.typeset_seconds", "between 1 and 3600"),
         ("  typeset_seconds: 3601\n", "report.typeset_seconds", "between 1 and 3600"),
-        ("  typeset_seconds: -5\n", "typeset_seconds", "invalid"),
-        ("  typeset_seconds: ten\n", "typeset_seconds", "invalid type"),
-        ("  typeset_seconds: 1.5\n", "typeset_seconds", "invalid type"),
+        ("  typeset_seconds: -5\n", "report.typeset_seconds", "invalid type"),
+        ("  typeset_seconds: ten\n", "report.typeset_seconds", "invalid type"),
+        ("  typeset_seconds: 1.5\n", "report.typeset_seconds", "invalid type"),
         ("  typeset_memory_mb: 0\n", "report.typeset_memory_mb", "between 256 and"),
         ("  typeset_memory_mb: 255\n", "report.typeset_memory_mb", "between 256 and"),
         ("  typeset_memory_mb: 2000000\n", "report.typeset_memory_mb", "between 256 and"),
-        ("  typeset_memory_mb: 99999999999999999999999\n", "typeset_memory_mb", "invalid"),
+        ("  typeset_memory_mb: 99999999999999999999999\n", "report.typeset_memory_mb", "invalid type"),
         ("  typeset_secs: 10\n", "typeset_secs", "did you mean `typeset_seconds`?"),
     ] {
         let f = fixture(yaml);
