@@ -154,6 +154,18 @@ pub mod fs {
         std::fs::read(path).map_err(io("cannot read", path))
     }
 
+    /// Reads a file, but no more than `limit` bytes and one: a result longer than `limit` means the file
+    /// holds more.
+    pub fn read_at_most(path: &Path, limit: u64) -> Result<Vec<u8>> {
+        use std::io::Read;
+        let file = std::fs::File::open(path).map_err(io("cannot read", path))?;
+        let mut out = Vec::new();
+        file.take(limit.saturating_add(1))
+            .read_to_end(&mut out)
+            .map_err(io("cannot read", path))?;
+        Ok(out)
+    }
+
     /// Reads a whole file as UTF-8 text.
     pub fn read_to_string(path: &Path) -> Result<String> {
         std::fs::read_to_string(path).map_err(io("cannot read", path))

@@ -63,23 +63,29 @@ fn budget(cfg: &crate::config::Config) -> typeset::Budget {
 fn job(r: &RunResult, results: &Value, pack_id: &str) -> Result<typeset::Job> {
     let views = data::views(r);
     let report = data::build(r, results, pack_id);
-    let (mut files, fonts) = templates::load(r.config.templates.as_deref())?;
-    files.push(generated(
-        REPORT_JSON,
-        serde_json::to_vec_pretty(&report).expect("display data serialises"),
-    ));
-    files.push(generated(
-        RESULTS_JSON,
-        serde_json::to_vec_pretty(results).expect("results serialise"),
-    ));
+    let (mut files, fonts) = templates::load(&r.config)?;
+    let mut made = vec![
+        generated(
+            REPORT_JSON,
+            serde_json::to_vec_pretty(&report).expect("display data serialises"),
+        ),
+        generated(
+            RESULTS_JSON,
+            serde_json::to_vec_pretty(results).expect("results serialise"),
+        ),
+    ];
     for chart in charts::all(r, &views)?
         .into_iter()
         .chain(further_charts::all(r, &views)?)
     {
-        files.push(generated(
+        made.push(generated(
             &format!("/charts/{}", chart.name),
             chart.svg.into_bytes(),
         ));
+    }
+    for file in made {
+        refuse_shadow(&files, &file.vpath)?;
+        files.push(file);
     }
     Ok(typeset::Job {
         files,
@@ -100,6 +106,21 @@ pub fn typeset_here(job: typeset::Job) -> Result<Vec<u8>> {
     let world = ReportWorld::new(job.files, fonts, MAIN, job.today);
     let doc = compile(&world)?;
     export(&world, &doc, &job.pack_id)
+}
+
+/// A custom template file may not take the name of a generated one: the typesetter would read one of the
+/// two while the archive records the other.
+fn refuse_shadow(files: &[WorldFile], vpath: &str) -> Result<()> {
+    match files.iter().find(|f| f.vpath == vpath) {
+        Some(f) => Err(Error::Template {
+            file: f.origin.describe(vpath),
+            line: None,
+            message: format!(
+                "has the name of a file tailpack generates ({vpath}); rename it: templates read the generated one there"
+            ),
+        }),
+        None => Ok(()),
+    }
 }
 
 fn generated(vpath: &str, bytes: Vec<u8>) -> WorldFile {

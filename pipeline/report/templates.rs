@@ -12,6 +12,7 @@
 //! starting with `.`) are skipped, so neither the typesetter nor the archive sees them.
 
 use super::world::{Origin, WorldFile};
+use crate::config::Config;
 use crate::error::{Error, Result, fs};
 use std::path::{Path, PathBuf};
 
@@ -47,9 +48,9 @@ pub const FONTS: [&[u8]; 4] = [
     include_bytes!("../../templates/fonts/Inter-Bold.otf"),
 ];
 
-/// Template files for the world and any extra font files, defaults first, then the custom folder's files
-/// replacing defaults of the same name.
-pub fn load(custom: Option<&Path>) -> Result<(Vec<WorldFile>, Vec<Vec<u8>>)> {
+/// Template files for the world and any extra font files, defaults first, then the files of the config's
+/// custom folder replacing defaults of the same name.
+pub fn load(cfg: &Config) -> Result<(Vec<WorldFile>, Vec<Vec<u8>>)> {
     let mut files: Vec<WorldFile> = DEFAULTS
         .iter()
         .map(|(name, text)| WorldFile {
@@ -59,10 +60,7 @@ pub fn load(custom: Option<&Path>) -> Result<(Vec<WorldFile>, Vec<Vec<u8>>)> {
         })
         .collect();
     let mut fonts = Vec::new();
-    let Some(dir) = custom else {
-        return Ok((files, fonts));
-    };
-    for f in custom_files(dir)? {
+    for f in custom(cfg)? {
         if is_font(&f.path) {
             fonts.push(f.bytes);
             continue;
@@ -94,13 +92,25 @@ pub const MAX_DEPTH: usize = 32;
 /// Most files the template folder may hold (links to folders inside it count every file again).
 pub const MAX_FILES: usize = 10_000;
 
+/// The files of the config's custom template folder (none without one): the one listing both the report
+/// and the archive use. The folder may hold at most the typesetting memory budget in bytes, as all of it
+/// is handed to the typesetter.
+pub fn custom(cfg: &Config) -> Result<Vec<CustomFile>> {
+    match &cfg.templates {
+        Some(dir) => custom_files(dir, cfg.typeset.memory_mb.saturating_mul(1 << 20)),
+        None => Ok(Vec::new()),
+    }
+}
+
 /// Every file of the custom template folder `dir`, in sorted order, each checked to lie inside the folder
-/// once every symbolic link is resolved. The one listing both the report and the archive use.
-pub fn custom_files(dir: &Path) -> Result<Vec<CustomFile>> {
+/// once every symbolic link is resolved, their bytes together at most `max_bytes`.
+pub fn custom_files(dir: &Path, max_bytes: u64) -> Result<Vec<CustomFile>> {
     let root = fs::canonicalize(dir)?;
     let mut walk = Walk {
         root,
         out: Vec::new(),
+        left: max_bytes,
+        max_bytes,
     };
     let mut above = vec![walk.root.clone()];
     walk.folder(dir, "", &mut above)?;
@@ -112,6 +122,9 @@ struct Walk {
     /// The folder's real path.
     root: PathBuf,
     out: Vec<CustomFile>,
+    /// Bytes the files not yet read may hold together.
+    left: u64,
+    max_bytes: u64,
 }
 
 impl Walk {
@@ -134,6 +147,7 @@ impl Walk {
             if name.starts_with('.') {
                 continue;
             }
+            check_name(&entry)?;
             let rel = format!("{prefix}{name}");
             let real = self.real_path(&entry)?;
             let meta = fs::metadata(&real)?;
@@ -174,7 +188,17 @@ impl Walk {
                 ),
             ));
         }
-        let bytes = fs::read(real)?;
+        let bytes = fs::read_at_most(real, self.left)?;
+        if bytes.len() as u64 > self.left {
+            return Err(refuse(
+                &listed,
+                format!(
+                    "brings the template folder over {} MB, the typesetting memory budget (report.typeset_memory_mb), which the folder's files must fit in; keep large files out of the template folder or raise the budget",
+                    self.max_bytes >> 20
+                ),
+            ));
+        }
+        self.left -= bytes.len() as u64;
         self.out.push(CustomFile {
             rel,
             path: listed,
@@ -206,6 +230,23 @@ impl Walk {
                 self.root.display()
             ),
         ))
+    }
+}
+
+/// Templates name files by UTF-8 paths with `/` between folders: a name that is not UTF-8 or holds a
+/// backslash cannot be named (typst refuses backslashes in paths).
+fn check_name(entry: &Path) -> Result<()> {
+    let name = entry.file_name().unwrap_or_default();
+    match name.to_str() {
+        Some(n) if !n.contains('\\') => Ok(()),
+        Some(_) => Err(refuse(
+            entry,
+            "has a backslash in its name, which no template path can name; rename it".into(),
+        )),
+        None => Err(refuse(
+            entry,
+            "has a name that is not UTF-8 text, which no template path can name; rename it".into(),
+        )),
     }
 }
 

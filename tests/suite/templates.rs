@@ -283,6 +283,46 @@ fn hidden_files_are_neither_readable_nor_archived() {
     );
 }
 
+#[cfg(unix)]
+#[test]
+fn names_no_template_path_can_name_are_refused() {
+    use std::os::unix::ffi::OsStrExt;
+    let f = fixture("");
+    f.write("tpl/a\\b.typ", "x");
+    let (ran, _) = run(&f);
+    refused(&f, &ran, "tpl/a\\b.typ", &["backslash"]);
+    let f = fixture("");
+    let name = std::ffi::OsStr::from_bytes(b"bad-\xff.typ");
+    std::fs::write(f.path("tpl").join(name), "x").unwrap();
+    let (ran, _) = run(&f);
+    refused(&f, &ran, "tpl/bad-", &["not UTF-8"]);
+}
+
+#[test]
+fn a_template_file_may_not_take_the_name_of_generated_data() {
+    for name in ["tpl/data/report.json", "tpl/data/results.json"] {
+        let f = fixture("");
+        f.write(name, "{}");
+        let (ran, _) = run(&f);
+        refused(&f, &ran, name, &["has the name of a file tailpack generates"]);
+    }
+}
+
+#[test]
+fn a_template_folder_larger_than_the_memory_budget_is_refused_before_it_is_read_whole() {
+    let f = fixture("  typeset_memory_mb: 256\n");
+    // A sparse file of 300 MB: cheap to make, and more than the budget of 256 MB.
+    let big = std::fs::File::create(f.path("tpl/big.otf")).unwrap();
+    big.set_len(300 << 20).unwrap();
+    let (ran, _) = run(&f);
+    refused(
+        &f,
+        &ran,
+        "tpl/big.otf",
+        &["over 256 MB", "report.typeset_memory_mb"],
+    );
+}
+
 // Paths in templates.
 
 #[test]
