@@ -258,9 +258,14 @@ mod tests {
             let h = hint_in_our_terms(hint);
             assert!(h.contains("report.templates") && !h.contains("root"), "{h}");
         }
-        assert_eq!(hint_in_our_terms("use forward slashes"), "use forward slashes");
+        assert_eq!(
+            hint_in_our_terms("use forward slashes"),
+            "use forward slashes"
+        );
         let m = in_our_terms("file not found (searched at /etc/passwd)");
-        assert!(m.starts_with("file not found: /etc/passwd is not a file of the custom template folder"));
+        assert!(m.starts_with(
+            "file not found: /etc/passwd is not a file of the custom template folder"
+        ));
         assert!(!m.contains("searched at"));
     }
 

@@ -93,7 +93,12 @@ fn in_child(exe: &Path, job: &Job, budget: &Budget) -> Result<Vec<u8>> {
         .stdout(Stdio::piped())
         .stderr(Stdio::piped())
         .spawn()
-        .map_err(|e| Error::Run(format!("cannot start the typesetter {}: {e}", exe.display())))?;
+        .map_err(|e| {
+            Error::Run(format!(
+                "cannot start the typesetter {}: {e}",
+                exe.display()
+            ))
+        })?;
     let input = encode(job);
     let mut stdin = child.stdin.take().expect("piped stdin");
     // A child that dies early closes the pipe; its exit status says why, so the write error is moot.
@@ -361,10 +366,7 @@ struct Reader<'a> {
 impl<'a> Reader<'a> {
     fn take(&mut self, n: usize) -> std::result::Result<&'a [u8], String> {
         if self.rest.len() < n {
-            return Err(format!(
-                "{n} bytes expected, {} left",
-                self.rest.len()
-            ));
+            return Err(format!("{n} bytes expected, {} left", self.rest.len()));
         }
         let (head, tail) = self.rest.split_at(n);
         self.rest = tail;
@@ -519,7 +521,13 @@ mod tests {
         let seen: Vec<(String, Vec<u8>, String)> = j
             .files
             .iter()
-            .map(|f| (f.vpath.clone(), f.bytes.clone(), f.origin.describe(&f.vpath)))
+            .map(|f| {
+                (
+                    f.vpath.clone(),
+                    f.bytes.clone(),
+                    f.origin.describe(&f.vpath),
+                )
+            })
             .collect();
         assert_eq!(
             seen,
@@ -529,7 +537,11 @@ mod tests {
                     b"= Hello".to_vec(),
                     "templates/main.typ (built-in)".into()
                 ),
-                ("/logo.svg".into(), vec![0, 1, 2, 255], "tpl/logo.svg".into()),
+                (
+                    "/logo.svg".into(),
+                    vec![0, 1, 2, 255],
+                    "tpl/logo.svg".into()
+                ),
                 (
                     "/data/report.json".into(),
                     b"{}".to_vec(),

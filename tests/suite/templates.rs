@@ -128,7 +128,11 @@ fn a_link_to_a_file_outside_the_folder_is_refused_naming_it_and_its_target() {
             &f,
             &ran,
             "tpl/notes.typ",
-            &["symbolic link", "secret.typ", "outside the custom template folder"],
+            &[
+                "symbolic link",
+                "secret.typ",
+                "outside the custom template folder",
+            ],
         );
     }
 }
@@ -150,16 +154,28 @@ fn a_link_to_a_folder_outside_is_refused_even_when_no_template_uses_it() {
     std::fs::create_dir_all(f.path("tpl/a/b")).unwrap();
     link("../../../outside/part.typ", &f.path("tpl/a/b/part.typ"));
     let (ran, _) = run(&f);
-    refused(&f, &ran, "tpl/a/b/part.typ", &["outside the custom template folder"]);
+    refused(
+        &f,
+        &ran,
+        "tpl/a/b/part.typ",
+        &["outside the custom template folder"],
+    );
 }
 
 #[cfg(unix)]
 #[test]
 fn links_to_system_files_and_devices_are_refused_without_reading_them() {
     // /dev/zero and /dev/urandom never end; /proc/self/environ and /etc/passwd hold what no pack may.
-    for (i, target) in ["/etc/passwd", "/etc/hostname", "/dev/zero", "/dev/urandom", "/proc/self/environ", "/"]
-        .iter()
-        .enumerate()
+    for (i, target) in [
+        "/etc/passwd",
+        "/etc/hostname",
+        "/dev/zero",
+        "/dev/urandom",
+        "/proc/self/environ",
+        "/",
+    ]
+    .iter()
+    .enumerate()
     {
         if !Path::new(target).exists() {
             continue;
@@ -179,7 +195,9 @@ fn links_to_system_files_and_devices_are_refused_without_reading_them() {
 fn link_loops_end_in_a_clear_error_not_a_runaway_scan() {
     type Make = fn(&Fixture);
     let cases: [(&str, &str, Make); 5] = [
-        ("itself", "tpl/a.typ", |f| link("a.typ", &f.path("tpl/a.typ"))),
+        ("itself", "tpl/a.typ", |f| {
+            link("a.typ", &f.path("tpl/a.typ"))
+        }),
         ("two links", "tpl/a.typ", |f| {
             link("b.typ", &f.path("tpl/a.typ"));
             link("a.typ", &f.path("tpl/b.typ"));
@@ -188,7 +206,9 @@ fn link_loops_end_in_a_clear_error_not_a_runaway_scan() {
             std::fs::create_dir_all(f.path("tpl/sub")).unwrap();
             link("..", &f.path("tpl/sub/up"));
         }),
-        ("folder to itself", "tpl/here", |f| link(".", &f.path("tpl/here"))),
+        ("folder to itself", "tpl/here", |f| {
+            link(".", &f.path("tpl/here"))
+        }),
         ("folder to the folder's real path", "tpl/deep/root", |f| {
             std::fs::create_dir_all(f.path("tpl/deep")).unwrap();
             link(f.path("tpl"), &f.path("tpl/deep/root"));
@@ -237,14 +257,20 @@ fn links_that_stay_inside_the_folder_are_followed_and_archived_as_read() {
     link("parts", &f.path("tpl/alias"));
     let (ran, _) = run(&f);
     let dir = pack(&ran);
-    let text = pdf_text(&dir.join("pack.pdf")).split_whitespace().collect::<Vec<_>>().join(" ");
+    let text = pdf_text(&dir.join("pack.pdf"))
+        .split_whitespace()
+        .collect::<Vec<_>>()
+        .join(" ");
     assert!(text.contains(body), "the linked summary must be typeset");
     let want = std::fs::read(f.path("tpl/parts/summary.typ")).unwrap();
     for archived in ["summary.typ", "parts/summary.typ", "alias/summary.typ"] {
         let got = std::fs::read(dir.join("inputs/templates").join(archived)).unwrap();
-        assert_eq!(got, want, "inputs/templates/{archived} must hold the file read");
+        assert_eq!(
+            got, want,
+            "inputs/templates/{archived} must hold the file read"
+        );
     }
-    let verified = f.run(&["verify", dir.to_str().unwrap()]);
+    let verified = f.run(&["verify", dir.to_str().unwrap(), "--rerun"]);
     assert_eq!(verified.code, 0, "{}", verified.stderr);
 }
 
@@ -271,14 +297,21 @@ fn hidden_files_are_neither_readable_nor_archived() {
     f.write("tpl/.draft.typ", &format!("{SECRET}\n"));
     summary(&f, "#include \".draft.typ\"");
     let (ran, _) = run(&f);
-    refused(&f, &ran, "tpl/summary.typ", &["file not found", ".draft.typ"]);
+    refused(
+        &f,
+        &ran,
+        "tpl/summary.typ",
+        &["file not found", ".draft.typ"],
+    );
     // Without the include the run goes through, and the hidden file is not in the archive.
     summary(&f, "Plain summary.");
     let (ran, _) = run(&f);
     let dir = pack(&ran);
     let archived: Vec<PathBuf> = files_below(&dir.join("inputs/templates"));
     assert!(
-        archived.iter().all(|p| !p.to_string_lossy().contains(".draft")),
+        archived
+            .iter()
+            .all(|p| !p.to_string_lossy().contains(".draft")),
         "{archived:?}"
     );
 }
@@ -304,7 +337,12 @@ fn a_template_file_may_not_take_the_name_of_generated_data() {
         let f = fixture("");
         f.write(name, "{}");
         let (ran, _) = run(&f);
-        refused(&f, &ran, name, &["has the name of a file tailpack generates"]);
+        refused(
+            &f,
+            &ran,
+            name,
+            &["has the name of a file tailpack generates"],
+        );
     }
 }
 
@@ -353,11 +391,26 @@ fn templates_cannot_reach_outside_the_folder_by_relative_paths() {
 #[test]
 fn absolute_paths_and_packages_name_what_templates_can_read() {
     for (call, says) in [
-        ("#read(\"/etc/passwd\")", "/etc/passwd is not a file of the custom template folder"),
-        ("#read(\"/proc/self/environ\")", "is not a file of the custom template folder"),
-        ("#include \"/secret.typ\"", "/secret.typ is not a file of the custom template folder"),
-        ("#image(\"/etc/hostname\")", "is not a file of the custom template folder"),
-        ("#import \"@preview/example:0.1.0\": *", "does not fetch typst packages"),
+        (
+            "#read(\"/etc/passwd\")",
+            "/etc/passwd is not a file of the custom template folder",
+        ),
+        (
+            "#read(\"/proc/self/environ\")",
+            "is not a file of the custom template folder",
+        ),
+        (
+            "#include \"/secret.typ\"",
+            "/secret.typ is not a file of the custom template folder",
+        ),
+        (
+            "#image(\"/etc/hostname\")",
+            "is not a file of the custom template folder",
+        ),
+        (
+            "#import \"@preview/example:0.1.0\": *",
+            "does not fetch typst packages",
+        ),
     ] {
         let f = fixture("");
         summary(&f, call);
@@ -396,7 +449,11 @@ fn looping_templates_stop_at_the_time_budget_with_exit_2() {
             &f,
             &ran,
             "tpl (custom template folder)",
-            &["did not finish within 3 s", "report.typeset_seconds", "fund.yaml"],
+            &[
+                "did not finish within 3 s",
+                "report.typeset_seconds",
+                "fund.yaml",
+            ],
         );
     }
 }
@@ -404,9 +461,18 @@ fn looping_templates_stop_at_the_time_budget_with_exit_2() {
 /// Templates that ask for far more memory than any pack needs.
 const HOGS: [(&str, &str); 5] = [
     ("a range of 2·10^9 numbers", "#let a = range(2000000000)"),
-    ("an array repeated 2·10^9 times", "#let a = (1, 2) * 1000000000"),
-    ("a string doubled 40 times", "#let s = \"x\"\n#for i in range(40) { s = s + s }"),
-    ("a string repeated 3·10^9 times", "#let s = \"abc\" * 1000000000\n#s.len()"),
+    (
+        "an array repeated 2·10^9 times",
+        "#let a = (1, 2) * 1000000000",
+    ),
+    (
+        "a string doubled 40 times",
+        "#let s = \"x\"\n#for i in range(40) { s = s + s }",
+    ),
+    (
+        "a string repeated 3·10^9 times",
+        "#let s = \"abc\" * 1000000000\n#s.len()",
+    ),
     (
         "an array grown by doubling",
         "#let a = (0,)\n#for i in range(40) { a = a + a }\n#a.len()",
@@ -463,7 +529,10 @@ fn killing_a_run_while_it_typesets_also_ends_the_typesetter_and_leaves_nothing()
         if let Some(c) = children_of(pid).into_iter().next() {
             break c;
         }
-        assert!(start.elapsed() < Duration::from_secs(120), "no typesetter started");
+        assert!(
+            start.elapsed() < Duration::from_secs(120),
+            "no typesetter started"
+        );
         std::thread::sleep(Duration::from_millis(50));
     };
     parent.kill().unwrap();
@@ -500,29 +569,74 @@ fn children_of(pid: u32) -> Vec<u32> {
 #[cfg(target_os = "linux")]
 fn is_zombie(pid: u32) -> bool {
     std::fs::read_to_string(format!("/proc/{pid}/stat"))
-        .map(|s| s.rsplit_once(')').is_some_and(|(_, a)| a.trim_start().starts_with('Z')))
+        .map(|s| {
+            s.rsplit_once(')')
+                .is_some_and(|(_, a)| a.trim_start().starts_with('Z'))
+        })
         .unwrap_or(true)
 }
 
 #[test]
 fn budget_keys_out_of_range_or_of_the_wrong_type_are_config_errors() {
     for (yaml, key, says) in [
-        ("  typeset_seconds: 0\n", "report.typeset_seconds", "between 1 and 3600"),
-        ("  typeset_seconds: 3601\n", "report.typeset_seconds", "between 1 and 3600"),
-        ("  typeset_seconds: -5\n", "report.typeset_seconds", "invalid type"),
-        ("  typeset_seconds: ten\n", "report.typeset_seconds", "invalid type"),
-        ("  typeset_seconds: 1.5\n", "report.typeset_seconds", "invalid type"),
-        ("  typeset_memory_mb: 0\n", "report.typeset_memory_mb", "between 256 and"),
-        ("  typeset_memory_mb: 255\n", "report.typeset_memory_mb", "between 256 and"),
-        ("  typeset_memory_mb: 2000000\n", "report.typeset_memory_mb", "between 256 and"),
-        ("  typeset_memory_mb: 99999999999999999999999\n", "report.typeset_memory_mb", "invalid type"),
-        ("  typeset_secs: 10\n", "typeset_secs", "did you mean `typeset_seconds`?"),
+        (
+            "  typeset_seconds: 0\n",
+            "report.typeset_seconds",
+            "between 1 and 3600",
+        ),
+        (
+            "  typeset_seconds: 3601\n",
+            "report.typeset_seconds",
+            "between 1 and 3600",
+        ),
+        (
+            "  typeset_seconds: -5\n",
+            "report.typeset_seconds",
+            "invalid type",
+        ),
+        (
+            "  typeset_seconds: ten\n",
+            "report.typeset_seconds",
+            "invalid type",
+        ),
+        (
+            "  typeset_seconds: 1.5\n",
+            "report.typeset_seconds",
+            "invalid type",
+        ),
+        (
+            "  typeset_memory_mb: 0\n",
+            "report.typeset_memory_mb",
+            "between 256 and",
+        ),
+        (
+            "  typeset_memory_mb: 255\n",
+            "report.typeset_memory_mb",
+            "between 256 and",
+        ),
+        (
+            "  typeset_memory_mb: 2000000\n",
+            "report.typeset_memory_mb",
+            "between 256 and",
+        ),
+        (
+            "  typeset_memory_mb: 99999999999999999999999\n",
+            "report.typeset_memory_mb",
+            "invalid type",
+        ),
+        (
+            "  typeset_secs: 10\n",
+            "typeset_secs",
+            "did you mean `typeset_seconds`?",
+        ),
     ] {
         let f = fixture(yaml);
         let (ran, _) = run(&f);
         assert_eq!(ran.code, 2, "{yaml}: {}", ran.stderr);
         assert!(
-            ran.stderr.contains("fund.yaml") && ran.stderr.contains(key) && ran.stderr.contains(says),
+            ran.stderr.contains("fund.yaml")
+                && ran.stderr.contains(key)
+                && ran.stderr.contains(says),
             "{yaml}: {}",
             ran.stderr
         );
@@ -538,7 +652,10 @@ fn the_budget_defaults_are_the_ones_the_readme_states() {
         format!("| `report.typeset_seconds` | {} |", d.typeset_seconds),
         format!("| `report.typeset_memory_mb` | {} |", d.typeset_memory_mb),
     ] {
-        assert!(readme.contains(&row), "README config reference lacks `{row}`");
+        assert!(
+            readme.contains(&row),
+            "README config reference lacks `{row}`"
+        );
     }
 }
 
@@ -570,4 +687,45 @@ fn a_pdf_typeset_in_a_child_is_byte_identical_to_one_typeset_in_process() {
         a.display(),
         b.display()
     );
+}
+
+// What a killed run leaves.
+
+#[test]
+fn a_leftover_partial_folder_is_ignored_by_verify_and_the_index_and_removed_by_the_next_run() {
+    let f = fixture("");
+    summary(&f, "First summary.");
+    let r1 = pack(&run(&f).0);
+    // What a run killed while writing leaves: a hidden folder with some outputs in it.
+    let leftover = r1.parent().unwrap().join(".partial-r2-999999");
+    std::fs::create_dir_all(leftover.join("inputs")).unwrap();
+    std::fs::copy(r1.join("results.json"), leftover.join("results.json")).unwrap();
+    std::fs::write(leftover.join("manifest.json"), "{}").unwrap();
+    let verified = f.run(&["verify", r1.to_str().unwrap()]);
+    assert_eq!(verified.code, 0, "{}", verified.stderr);
+    // A run for another month rebuilds the index while the leftover is there.
+    let other = f.run(&["run", "fund.yaml", "--quiet", "--as-of", "2024-05-31"]);
+    pack(&other);
+    let index = std::fs::read_to_string(f.path("out/index.json")).unwrap();
+    assert!(
+        !index.contains(".partial") && !index.contains("999999"),
+        "{index}"
+    );
+    assert!(
+        leftover.exists(),
+        "only a run of the same fund and month removes it"
+    );
+    summary(&f, "Second summary.");
+    let r2 = pack(&run(&f).0);
+    assert!(r2.ends_with("r2"), "{}", r2.display());
+    assert!(
+        !leftover.exists(),
+        "the next run removes what a killed run left"
+    );
+    let index = std::fs::read_to_string(f.path("out/index.json")).unwrap();
+    assert!(!index.contains(".partial"), "{index}");
+    for p in [&r1, &r2] {
+        let verified = f.run(&["verify", p.to_str().unwrap()]);
+        assert_eq!(verified.code, 0, "{}", verified.stderr);
+    }
 }
