@@ -390,7 +390,7 @@ impl Default for RawReport {
         RawReport {
             templates: None,
             typeset_seconds: 300,
-            typeset_memory_mb: 4096,
+            typeset_memory_mb: 2048,
         }
     }
 }
