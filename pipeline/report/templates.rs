@@ -89,8 +89,9 @@ pub struct CustomFile {
 
 /// Deepest folder nesting followed below the template folder.
 pub const MAX_DEPTH: usize = 32;
-/// Most files the template folder may hold (links to folders inside it count every file again).
-pub const MAX_FILES: usize = 10_000;
+/// Most files and folders the walk of the template folder visits (links to folders inside it count what
+/// they hold again), so that links fanning out cannot make the walk run away.
+pub const MAX_ENTRIES: usize = 10_000;
 
 /// The files of the config's custom template folder (none without one): the one listing both the report
 /// and the archive use. The folder may hold at most the typesetting memory budget in bytes, as all of it
@@ -109,6 +110,7 @@ pub fn custom_files(dir: &Path, max_bytes: u64) -> Result<Vec<CustomFile>> {
     let mut walk = Walk {
         root,
         out: Vec::new(),
+        visited: 0,
         left: max_bytes,
         max_bytes,
     };
@@ -122,6 +124,8 @@ struct Walk {
     /// The folder's real path.
     root: PathBuf,
     out: Vec<CustomFile>,
+    /// Files and folders visited so far.
+    visited: usize,
     /// Bytes the files not yet read may hold together.
     left: u64,
     max_bytes: u64,
@@ -148,6 +152,7 @@ impl Walk {
                 continue;
             }
             check_name(&entry)?;
+            self.count(&entry)?;
             let rel = format!("{prefix}{name}");
             let real = self.real_path(&entry)?;
             let meta = fs::metadata(&real)?;
@@ -179,15 +184,21 @@ impl Walk {
         Ok(())
     }
 
-    fn file(&mut self, listed: PathBuf, rel: String, real: &Path) -> Result<()> {
-        if self.out.len() >= MAX_FILES {
-            return Err(refuse(
-                &listed,
-                format!(
-                    "is one file more than the {MAX_FILES} a template folder may hold (links to folders count their files again)"
-                ),
-            ));
+    /// Counts one more entry visited, refusing the one past [`MAX_ENTRIES`].
+    fn count(&mut self, entry: &Path) -> Result<()> {
+        self.visited += 1;
+        if self.visited <= MAX_ENTRIES {
+            return Ok(());
         }
+        Err(refuse(
+            entry,
+            format!(
+                "is one entry more than the {MAX_ENTRIES} files and folders a template folder may hold (links to folders count what they hold again)"
+            ),
+        ))
+    }
+
+    fn file(&mut self, listed: PathBuf, rel: String, real: &Path) -> Result<()> {
         let bytes = fs::read_at_most(real, self.left)?;
         if bytes.len() as u64 > self.left {
             return Err(refuse(

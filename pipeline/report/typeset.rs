@@ -212,8 +212,11 @@ fn describe(status: ExitStatus) -> String {
     }
 }
 
+/// The last line of the child's stderr that says something (a panic's message, not the note after it).
 fn last_line(text: &str) -> Option<&str> {
-    text.lines().map(str::trim).rfind(|l| !l.is_empty())
+    text.lines()
+        .map(str::trim)
+        .rfind(|l| !l.is_empty() && !l.starts_with("note:"))
 }
 
 /// The template error of a budget breach: the template, the limit, and how to raise it.
@@ -558,6 +561,20 @@ mod tests {
             assert!(decode_job(&bytes[..n]).is_err(), "cut at {n}");
         }
         assert!(decode_job(b"%PDF-1.7 something else").is_err());
+    }
+
+    #[test]
+    fn an_abnormal_end_is_read_from_what_the_child_printed() {
+        let status = std::process::Command::new("false").status().unwrap();
+        // Rust's own words for an allocation failure, a stack overflow and a panic.
+        let oom = "memory allocation of 34359738368 bytes failed\n";
+        assert_eq!(cause(status, oom), Some(Limit::Memory));
+        let deep =
+            "\nthread 'main' has overflowed its stack\nfatal runtime error: stack overflow\n";
+        assert_eq!(cause(status, deep), Some(Limit::Stack));
+        let panic = "thread 'main' panicked at src/x.rs:1:1:\nindex out of bounds\nnote: run with `RUST_BACKTRACE=1` environment variable to display a backtrace\n";
+        assert_eq!(cause(status, panic), None);
+        assert_eq!(last_line(panic), Some("index out of bounds"));
     }
 
     #[test]

@@ -225,6 +225,33 @@ fn link_loops_end_in_a_clear_error_not_a_runaway_scan() {
 
 #[cfg(unix)]
 #[test]
+fn links_fanning_out_inside_the_folder_cannot_make_the_scan_run_away() {
+    // d0 holds two links to d1, d1 two to d2, … d24 is empty: 2^24 paths, no loop and no file.
+    let f = fixture("");
+    for i in 0..25 {
+        std::fs::create_dir_all(f.path(&format!("tpl/d{i}"))).unwrap();
+    }
+    for i in 0..24 {
+        for name in ["a", "b"] {
+            link(
+                format!("../d{}", i + 1),
+                &f.path(&format!("tpl/d{i}/{name}")),
+            );
+        }
+    }
+    let (ran, took) = run(&f);
+    assert!(took < Duration::from_secs(60), "took {took:?}");
+    refused(&f, &ran, "tpl/d", &["10000 files and folders"]);
+    // Nesting deeper than 32 folders, without links.
+    let f = fixture("");
+    let deep: String = (0..40).map(|i| format!("n{i}/")).collect();
+    f.write(&format!("tpl/{deep}x.typ"), "x");
+    let (ran, _) = run(&f);
+    refused(&f, &ran, "tpl/n0/n1", &["more than 32 folders deep"]);
+}
+
+#[cfg(unix)]
+#[test]
 fn a_dangling_link_and_a_named_pipe_are_refused_without_waiting() {
     let f = fixture("");
     link("no-such-file.typ", &f.path("tpl/gone.typ"));
