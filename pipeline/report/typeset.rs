@@ -227,10 +227,16 @@ fn breach(b: &Budget, limit: Limit) -> Error {
             "typesetting did not finish within {} s, the time budget (report.typeset_seconds in {config}); a template that loops without end does this: look for a loop or recursion in the templates, or raise report.typeset_seconds if the pack is simply large",
             b.seconds
         ),
-        Limit::Memory => format!(
-            "typesetting needed more than {} MB, the memory budget (report.typeset_memory_mb in {config}); a template that builds a huge array, string or range does this: look for one in the templates, or raise report.typeset_memory_mb if the pack is simply large",
-            b.memory_mb
-        ),
+        Limit::Memory => match inherited_data_limit_mb().filter(|mb| *mb < b.memory_mb) {
+            Some(mb) => format!(
+                "typesetting needed more than {mb} MB, the data-segment limit this process was started with (`ulimit -d`), which is below report.typeset_memory_mb ({} MB in {config}); raise that limit, or look for a template that builds a huge array, string or range",
+                b.memory_mb
+            ),
+            None => format!(
+                "typesetting needed more than {} MB, the memory budget (report.typeset_memory_mb in {config}); a template that builds a huge array, string or range does this: look for one in the templates, or raise report.typeset_memory_mb if the pack is simply large",
+                b.memory_mb
+            ),
+        },
         Limit::Stack => "typesetting ran out of stack: a template nests content or calls too deeply; flatten the nesting".to_string(),
     };
     Error::Template {
@@ -238,6 +244,27 @@ fn breach(b: &Budget, limit: Limit) -> Error {
         line: None,
         message,
     }
+}
+
+/// The data-segment limit this process has (and a child inherits), in MB, when there is one.
+#[cfg(unix)]
+fn inherited_data_limit_mb() -> Option<u64> {
+    let mut now = libc::rlimit {
+        rlim_cur: 0,
+        rlim_max: 0,
+    };
+    // SAFETY: `now` is a valid rlimit for getrlimit to fill.
+    if unsafe { libc::getrlimit(libc::RLIMIT_DATA, &mut now) } != 0
+        || now.rlim_cur == libc::RLIM_INFINITY
+    {
+        return None;
+    }
+    Some(now.rlim_cur as u64 >> 20)
+}
+
+#[cfg(not(unix))]
+fn inherited_data_limit_mb() -> Option<u64> {
+    None
 }
 
 /// The child: caps its own memory and CPU time, reads a job on stdin, typesets it and writes the answer
@@ -301,11 +328,21 @@ type Resource = libc::__rlimit_resource_t;
 #[cfg(all(unix, not(all(target_os = "linux", target_env = "gnu"))))]
 type Resource = libc::c_int;
 
+/// Lowers a resource limit to `soft`/`hard`; a limit the process already has that is stricter stays.
 #[cfg(unix)]
 fn set_limit(resource: Resource, soft: u64, hard: u64) -> std::io::Result<()> {
+    let mut now = libc::rlimit {
+        rlim_cur: 0,
+        rlim_max: 0,
+    };
+    // SAFETY: `now` is a valid rlimit for getrlimit to fill.
+    if unsafe { libc::getrlimit(resource, &mut now) } != 0 {
+        return Err(std::io::Error::last_os_error());
+    }
+    let hard = (hard as libc::rlim_t).min(now.rlim_max);
     let limit = libc::rlimit {
-        rlim_cur: soft as libc::rlim_t,
-        rlim_max: hard as libc::rlim_t,
+        rlim_cur: (soft as libc::rlim_t).min(hard),
+        rlim_max: hard,
     };
     // SAFETY: `limit` is a valid rlimit that outlives the call.
     if unsafe { libc::setrlimit(resource, &limit) } != 0 {
