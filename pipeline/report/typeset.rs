@@ -248,6 +248,7 @@ fn breach(b: &Budget, limit: Limit) -> Error {
 
 /// The data-segment limit this process has (and a child inherits), in MB, when there is one.
 #[cfg(unix)]
+#[allow(clippy::unnecessary_cast)] // rlim_t is u64 on Linux, not on every Unix
 fn inherited_data_limit_mb() -> Option<u64> {
     let mut now = libc::rlimit {
         rlim_cur: 0,
