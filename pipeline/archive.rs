@@ -22,6 +22,8 @@ pub const LISTING: &str = "inputs.sha256";
 pub const MANIFEST: &str = "manifest.json";
 /// Name of the note written into a revision that replaces an earlier one.
 pub const REVISION_NOTE: &str = "revision-note.txt";
+/// How long a run, `sign` or `finalize` waits for another's archive lock by default.
+pub const LOCK_TIMEOUT: Duration = Duration::from_secs(600);
 /// The git commit the binary was built from ("unknown" outside a git checkout).
 pub const GIT_COMMIT: &str = env!("TAILPACK_GIT_COMMIT");
 
@@ -466,143 +468,241 @@ pub struct Finding {
     pub problem: String,
 }
 
-/// Recomputes every digest of a pack; returns the problems found (empty when the pack is intact).
-pub fn verify(pack: &Path) -> Result<Vec<Finding>> {
-    let mut out = Vec::new();
-    let bad = |file: &str, problem: String| Finding {
+fn finding(file: &str, problem: impl Into<String>) -> Finding {
+    Finding {
         file: file.to_string(),
-        problem,
-    };
+        problem: problem.into(),
+    }
+}
+
+/// Recomputes every digest of a pack and accounts for every entry in it; returns the problems found
+/// (empty when the pack is intact). `allowed` names the top-level files the sign-off layer accepts
+/// besides the listed ones (`signoff.json`, and `pack-final.pdf` in a finalised pack).
+pub fn verify(pack: &Path, allowed: &[&str]) -> Result<Vec<Finding>> {
     let manifest: Value = match std::fs::read(pack.join(MANIFEST))
         .ok()
         .and_then(|b| serde_json::from_slice(&b).ok())
     {
         Some(m) => m,
-        None => return Ok(vec![bad(MANIFEST, "is missing or not valid JSON".into())]),
+        None => return Ok(vec![finding(MANIFEST, "is missing or not valid JSON")]),
     };
+    let mut out = Vec::new();
+    let listed = check_listing(pack, &manifest, &mut out);
+    let outputs = check_outputs(pack, &manifest, &mut out);
+    out.extend(unlisted(pack, &listed, &outputs, allowed));
+    out.extend(check_index(pack));
+    Ok(out)
+}
+
+/// Checks `inputs.sha256` against the pack id and every archived input against it; returns the listed
+/// paths (relative to the pack).
+fn check_listing(pack: &Path, manifest: &Value, out: &mut Vec<Finding>) -> Vec<String> {
     let listing = std::fs::read_to_string(pack.join(LISTING)).unwrap_or_default();
     if sha(listing.as_bytes()) != manifest["pack_id"].as_str().unwrap_or("") {
-        out.push(bad(
+        out.push(finding(
             LISTING,
-            "its digest is not the pack id recorded in manifest.json".into(),
+            "its digest is not the pack id recorded in manifest.json",
         ));
     }
     let mut listed = Vec::new();
     for line in listing.lines() {
         let Some((hash, name)) = line.split_once("  ") else {
-            out.push(bad(LISTING, format!("malformed line `{line}`")));
+            out.push(finding(LISTING, format!("malformed line `{line}`")));
             continue;
         };
+        if !name.starts_with("inputs/") || !plain_path(name) {
+            out.push(finding(
+                LISTING,
+                format!("lists `{name}`, which is not a path below inputs/"),
+            ));
+            continue;
+        }
         listed.push(name.to_string());
-        match std::fs::read(pack.join(name)) {
-            Ok(bytes) if sha(&bytes) == hash => {}
-            Ok(_) => out.push(bad(
+        match regular_file(&pack.join(name)) {
+            Some(bytes) if sha(&bytes) == hash => {}
+            Some(_) => out.push(finding(
                 name,
-                "was changed: its SHA-256 differs from inputs.sha256".into(),
+                "was changed: its SHA-256 differs from inputs.sha256",
             )),
-            Err(_) => out.push(bad(name, "is missing".into())),
+            None => out.push(finding(name, "is missing")),
         }
     }
-    for f in fs::files_below(&pack.join("inputs")).unwrap_or_default() {
-        let rel = f
-            .strip_prefix(pack)
-            .expect("below pack")
-            .to_string_lossy()
-            .replace('\\', "/");
-        if !listed.contains(&rel) {
-            out.push(bad(&rel, "is not listed in inputs.sha256".into()));
-        }
-    }
-    out.extend(check_outputs(pack, &manifest));
-    out.extend(check_index(pack));
-    if out.is_empty() && pack.join(SIGNOFF).exists() {
-        let rec = crate::signoff::record(pack)?;
-        let roles = crate::signoff::roles(pack)?;
-        out.extend(
-            crate::signoff::check(pack, &rec, &roles)?
-                .into_iter()
-                .map(|p| Finding {
-                    file: SIGNOFF.into(),
-                    problem: p,
-                }),
-        );
-        if let Some(f) = &rec.finalised {
-            match std::fs::read(pack.join(&f.pdf)) {
-                Ok(b) if sha(&b) == f.sha256 => {}
-                _ => out.push(Finding {
-                    file: f.pdf.clone(),
-                    problem: "was changed or is missing: its SHA-256 differs from signoff.json"
-                        .into(),
-                }),
-            }
-        }
-    }
-    Ok(out)
+    listed
 }
 
-fn check_outputs(pack: &Path, manifest: &Value) -> Vec<Finding> {
-    let mut out = Vec::new();
-    let listed: Vec<&Value> = manifest["outputs"]
-        .as_array()
-        .map(|a| a.iter().collect())
-        .unwrap_or_default();
-    for o in &listed {
+/// A relative path of normal components only (no `..`, `.`, root or empty part).
+fn plain_path(name: &str) -> bool {
+    !name.is_empty()
+        && name
+            .split('/')
+            .all(|c| !c.is_empty() && c != "." && c != "..")
+        && Path::new(name)
+            .components()
+            .all(|c| matches!(c, std::path::Component::Normal(_)))
+}
+
+/// The bytes of a regular file (not through a symbolic link); `None` when it is missing or not one.
+fn regular_file(path: &Path) -> Option<Vec<u8>> {
+    let meta = std::fs::symlink_metadata(path).ok()?;
+    if !meta.is_file() {
+        return None;
+    }
+    std::fs::read(path).ok()
+}
+
+/// Checks every output listed in the manifest; returns their names.
+fn check_outputs(pack: &Path, manifest: &Value, out: &mut Vec<Finding>) -> Vec<String> {
+    let mut names = Vec::new();
+    for o in manifest["outputs"].as_array().into_iter().flatten() {
         let name = o["file"].as_str().unwrap_or("");
-        match std::fs::read(pack.join(name)) {
-            Ok(bytes) if sha(&bytes) == o["sha256"].as_str().unwrap_or("") => {}
-            Ok(_) => out.push(Finding {
-                file: name.into(),
-                problem: "was changed: its SHA-256 differs from manifest.json".into(),
-            }),
-            Err(_) => out.push(Finding {
-                file: name.into(),
-                problem: "is missing".into(),
-            }),
+        if !plain_path(name) || name.contains('/') {
+            out.push(finding(
+                MANIFEST,
+                format!("lists output `{name}`, which is not a file name in the pack folder"),
+            ));
+            continue;
+        }
+        names.push(name.to_string());
+        match regular_file(&pack.join(name)) {
+            Some(bytes) if sha(&bytes) == o["sha256"].as_str().unwrap_or("") => {}
+            Some(_) => out.push(finding(
+                name,
+                "was changed: its SHA-256 differs from manifest.json",
+            )),
+            None => out.push(finding(name, "is missing")),
         }
     }
-    if let Ok(rd) = std::fs::read_dir(pack) {
-        for e in rd.filter_map(|e| e.ok()).filter(|e| e.path().is_file()) {
-            let n = e.file_name().to_string_lossy().into_owned();
-            if n != MANIFEST
-                && n != SIGNOFF
-                && n != FINAL_PDF
-                && !listed.iter().any(|o| o["file"] == n.as_str())
-            {
-                out.push(Finding {
-                    file: n,
-                    problem: "is not listed in manifest.json".into(),
-                });
+    names
+}
+
+/// Every entry of the pack, hidden or not, at any depth, that is neither listed nor allowed: files not in
+/// the manifest or `inputs.sha256`, folders that hold no listed input, symbolic links and special files.
+fn unlisted(pack: &Path, inputs: &[String], outputs: &[String], allowed: &[&str]) -> Vec<Finding> {
+    let mut out = Vec::new();
+    for (rel, meta) in entries_below(pack) {
+        let top = !rel.contains('/');
+        let t = meta.file_type();
+        if t.is_symlink() {
+            out.push(finding(
+                &rel,
+                "is a symbolic link; a pack holds only regular files and folders",
+            ));
+        } else if t.is_dir() {
+            let prefix = format!("{rel}/");
+            if rel != "inputs" && !inputs.iter().any(|i| i.starts_with(&prefix)) {
+                out.push(finding(
+                    &rel,
+                    "is a folder that holds no listed file (not part of the pack)",
+                ));
             }
+        } else if !t.is_file() {
+            out.push(finding(
+                &rel,
+                format!("is {}; a pack holds only regular files", fs::kind_of(&meta)),
+            ));
+        } else if top {
+            if rel != MANIFEST && !allowed.contains(&rel.as_str()) && !outputs.contains(&rel) {
+                out.push(finding(&rel, "is not listed in manifest.json"));
+            }
+        } else if !inputs.contains(&rel) {
+            out.push(finding(&rel, "is not listed in inputs.sha256"));
         }
     }
     out
 }
 
-/// The archive index (two levels above `r<N>/<as-of>/<fund>`) records each manifest's digest.
-fn check_index(pack: &Path) -> Vec<Finding> {
-    let Some(root) = pack.parent().and_then(Path::parent).and_then(Path::parent) else {
-        return vec![];
-    };
-    let Ok(bytes) = std::fs::read(root.join("index.json")) else {
-        return vec![];
-    };
-    let rows: Vec<Value> = serde_json::from_slice(&bytes).unwrap_or_default();
+/// Every entry below `dir` (hidden ones too), by path relative to it with `/`, sorted; symbolic links
+/// are reported as themselves and never followed, so a link loop cannot make the walk run away.
+fn entries_below(dir: &Path) -> Vec<(String, std::fs::Metadata)> {
+    let mut out = Vec::new();
+    let mut stack = vec![dir.to_path_buf()];
+    while let Some(d) = stack.pop() {
+        let Ok(rd) = std::fs::read_dir(&d) else {
+            continue;
+        };
+        for e in rd.filter_map(|e| e.ok()) {
+            let p = e.path();
+            let Ok(meta) = std::fs::symlink_metadata(&p) else {
+                continue;
+            };
+            if meta.is_dir() {
+                stack.push(p.clone());
+            }
+            let rel = p
+                .strip_prefix(dir)
+                .expect("below dir")
+                .to_string_lossy()
+                .replace('\\', "/");
+            out.push((rel, meta));
+        }
+    }
+    out.sort_by(|a, b| a.0.cmp(&b.0));
+    out
+}
+
+/// The archive's root for a pack at `<root>/<fund>/<as-of>/r<N>`.
+pub fn root_of(pack: &Path) -> Option<&Path> {
+    pack.parent().and_then(Path::parent).and_then(Path::parent)
+}
+
+/// The archive index's row for a pack, when the pack sits in an archive with an index.
+pub fn index_row(pack: &Path) -> Option<Value> {
+    let root = root_of(pack)?;
+    let rows: Vec<Value> =
+        serde_json::from_slice(&std::fs::read(root.join("index.json")).ok()?).ok()?;
     let rel = pack
         .strip_prefix(root)
         .unwrap_or(pack)
         .display()
         .to_string();
-    let Some(row) = rows.iter().find(|r| r["path"] == rel.as_str()) else {
+    rows.into_iter().find(|r| r["path"] == rel.as_str())
+}
+
+/// Locks of a pack being signed or finalised: the archive lock when the pack sits in an archive (so the
+/// index is rewritten by one process at a time), and an advisory lock on the pack folder itself, so two
+/// `sign` commands never both read the old record and one statement is lost.
+pub struct PackLock {
+    _archive: Option<ArchiveLock>,
+    _folder: std::fs::File,
+}
+
+/// Takes the pack's locks (waiting up to `timeout` for the archive lock; `Error::Busy` after that).
+pub fn lock_pack(pack: &Path, timeout: Duration) -> Result<PackLock> {
+    let archive = match root_of(pack) {
+        Some(root) if root.join(".tailpack.lock").exists() || root.join("index.json").exists() => {
+            Some(lock(root, timeout)?)
+        }
+        _ => None,
+    };
+    let folder = std::fs::File::open(pack).map_err(|source| Error::Io {
+        action: "cannot open the pack folder",
+        path: pack.to_path_buf(),
+        source,
+    })?;
+    folder.lock().map_err(|source| Error::Io {
+        action: "cannot lock",
+        path: pack.to_path_buf(),
+        source,
+    })?;
+    Ok(PackLock {
+        _archive: archive,
+        _folder: folder,
+    })
+}
+
+/// The archive index (two levels above `r<N>/<as-of>/<fund>`) records each manifest's digest.
+fn check_index(pack: &Path) -> Vec<Finding> {
+    let Some(row) = index_row(pack) else {
         return vec![];
     };
     let actual = std::fs::read(pack.join(MANIFEST))
         .map(|b| sha(&b))
         .unwrap_or_default();
     if row["manifest_sha256"].as_str() != Some(actual.as_str()) {
-        return vec![Finding {
-            file: MANIFEST.into(),
-            problem: "was changed: its SHA-256 differs from the archive index".into(),
-        }];
+        return vec![finding(
+            MANIFEST,
+            "was changed: its SHA-256 differs from the archive index",
+        )];
     }
     vec![]
 }

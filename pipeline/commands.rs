@@ -54,17 +54,11 @@ pub struct RunReport {
 pub fn run(config: &Path, opts: &RunOptions, progress: &Progress) -> Result<RunReport> {
     progress.step("reading config and data");
     let mut funds = crate::config::load_all(config)?;
-    if funds.len() == 1 {
-        let cfg = funds.remove(0);
-        let root = opts.out.clone().unwrap_or_else(|| cfg.out_root.clone());
-        let _lock = crate::archive::lock(&root, opts.lock_timeout)?;
-        return run_fund(cfg, opts, progress);
-    }
-    let root = opts
-        .out
-        .clone()
-        .unwrap_or_else(|| funds[0].out_root.clone());
+    let root = output_root(config, &funds[0], opts)?;
     let _lock = crate::archive::lock(&root, opts.lock_timeout)?;
+    if funds.len() == 1 {
+        return run_fund(funds.remove(0), opts, progress);
+    }
     progress.step(&format!("building {} fund packs in parallel", funds.len()));
     use rayon::prelude::*;
     let quiet = Progress::new(true);
@@ -77,14 +71,61 @@ pub fn run(config: &Path, opts: &RunOptions, progress: &Progress) -> Result<RunR
     Ok(multi_summary(&outcomes))
 }
 
+/// The pack root of a run (`--out`, else `output.root`), refused when it is or lies inside a pack folder
+/// (the archive's lock and index written there would change a pack that verifies only as written) or when
+/// a file stands where it or one of its folders must be created.
+fn output_root(config: &Path, cfg: &crate::config::Config, opts: &RunOptions) -> Result<PathBuf> {
+    let (root, key) = match &opts.out {
+        Some(out) => (out.clone(), "--out"),
+        None => (cfg.out_root.clone(), "output.root"),
+    };
+    match enclosing_pack(&root) {
+        Some(pack) => Err(crate::error::Error::config(
+            config,
+            format!(
+                "{key} {}: is inside the pack {} (a folder with {} or {}); a pack must stay as it was written, so choose an output root outside every pack",
+                root.display(),
+                pack.display(),
+                crate::archive::MANIFEST,
+                crate::archive::LISTING
+            ),
+        )),
+        None => {
+            crate::error::fs::creatable_folder(&root)?;
+            Ok(root)
+        }
+    }
+}
+
+/// The pack folder `dir` is or lies in, if any: the nearest part of `dir` that exists, with symbolic
+/// links resolved, and every folder above it are looked at.
+fn enclosing_pack(dir: &Path) -> Option<PathBuf> {
+    let existing = dir.ancestors().find_map(|a| {
+        let a = if a.as_os_str().is_empty() {
+            Path::new(".")
+        } else {
+            a
+        };
+        std::fs::canonicalize(a).ok()
+    })?;
+    existing
+        .ancestors()
+        .find(|a| {
+            a.join(crate::archive::MANIFEST).is_file() || a.join(crate::archive::LISTING).is_file()
+        })
+        .map(Path::to_path_buf)
+}
+
 /// One fund: plan, no-op check, compute, write (the caller holds the archive lock).
 fn run_fund(
     cfg: crate::config::Config,
     opts: &RunOptions,
     progress: &Progress,
 ) -> Result<RunReport> {
-    let (cfg, data) = timings::time("ingest", || run::prepare_fund(cfg, opts))?;
-    let plan = timings::time("hashing", || crate::archive::plan(&cfg, data.as_of))?;
+    let prepared = run::prepare_fund(cfg, opts)?;
+    let plan = timings::time("hashing", || {
+        crate::archive::plan(&prepared.cfg, prepared.data.as_of)
+    })?;
     if let Some(existing) = crate::archive::identical(&plan) {
         progress.finish();
         let shown = std::fs::canonicalize(&existing).unwrap_or(existing);
@@ -99,7 +140,7 @@ fn run_fund(
         });
     }
     progress.step("solving the CVaR models, frontier, stress set and backtest");
-    let result = run::compute(cfg, data)?;
+    let result = run::solve(prepared)?;
     progress.step("writing the pack");
     let (dir, text) = crate::pack::write(&result, &plan)?;
     progress.finish();
@@ -173,10 +214,11 @@ fn multi_summary(outcomes: &[(String, Result<RunReport>)]) -> RunReport {
     RunReport { text, code }
 }
 
-/// `tailpack verify`: recomputes every digest; with `rerun`, also re-runs from the archived inputs and
-/// compares every output byte for byte.
+/// `tailpack verify`: recomputes every digest, accounts for every file, checks every signature and the
+/// signed finalisation; with `rerun`, also re-runs from the archived inputs and compares every output byte
+/// for byte.
 pub fn verify(pack: &Path, rerun: bool) -> Result<String> {
-    let mut problems: Vec<String> = crate::archive::verify(pack)?
+    let mut problems: Vec<String> = crate::signoff::check_pack(pack)?
         .into_iter()
         .map(|f| format!("{}: {}", f.file, f.problem))
         .collect();
@@ -190,13 +232,19 @@ pub fn verify(pack: &Path, rerun: bool) -> Result<String> {
         });
     }
     let id = crate::archive::recorded_id(pack).unwrap_or_default();
+    let rec = crate::signoff::record(pack).unwrap_or_default();
+    let signed = match (&rec.finalised, rec.signatures.len()) {
+        (Some(_), n) => format!("; final, {n} signature(s) and the finalisation hold"),
+        (None, 0) => "; not signed".to_string(),
+        (None, n) => format!("; {n} signature(s) hold, not final"),
+    };
     let how = if rerun {
         "every digest matches and a re-run from the archived inputs gives identical outputs"
     } else {
         "every digest matches"
     };
     Ok(format!(
-        "pack {} verified: {how} (pack id {id})\n",
+        "pack {} verified: {how}{signed} (pack id {id})\n",
         pack.display()
     ))
 }
@@ -217,64 +265,36 @@ fn recompute(pack: &Path, scratch: &Path) -> Result<(run::RunResult, crate::arch
     Ok((run::compute(cfg, data)?, plan))
 }
 
-/// `tailpack finalize PACK`: once every required role has signed, renders `pack-final.pdf` (status FINAL,
-/// sign-off page filled) and records its digest; the pack is immutable from then on.
-pub fn finalize(pack: &Path) -> Result<String> {
-    let refuse = |why: String| {
-        crate::error::Error::Run(format!("cannot finalise {}: {why}", pack.display()))
-    };
-    let problems = crate::archive::verify(pack)?;
-    if let Some(p) = problems.first() {
-        return Err(refuse(format!(
-            "the pack fails verification ({}: {})",
-            p.file, p.problem
-        )));
-    }
-    let mut rec = crate::signoff::record(pack)?;
-    if rec.finalised.is_some() {
-        return Err(refuse(
-            "it is already final; a final pack is immutable".into(),
-        ));
-    }
-    let roles = crate::signoff::roles(pack)?;
-    if roles.is_empty() {
-        return Err(refuse(
-            "its config lists no sign-off roles (signoff.roles)".into(),
-        ));
-    }
-    let signed = crate::signoff::signed_roles(&rec);
-    let missing: Vec<&str> = roles
-        .iter()
-        .filter(|r| !signed.contains(&r.role))
-        .map(|r| r.role.as_str())
-        .collect();
-    if !missing.is_empty() {
-        return Err(refuse(format!(
-            "role(s) not yet signed: {}",
-            missing.join(", ")
-        )));
-    }
+/// `tailpack finalize PACK --role R --key K`: once every required role has signed, renders
+/// `pack-final.pdf` (status FINAL, sign-off page filled) and seals it with a finalisation statement signed
+/// by a required role's key; the pack is immutable from then on.
+pub fn finalize(pack: &Path, role: &str, key: &Path, name: Option<&str>) -> Result<Signed> {
+    let _lock = crate::archive::lock_pack(pack, crate::archive::LOCK_TIMEOUT)?;
+    let fin = crate::signoff::prepare_final(pack, role, key, name)?;
     let scratch = std::env::temp_dir().join(format!("tailpack-final-{}", std::process::id()));
     let (result, plan) = recompute(pack, &scratch)?;
     let mut results: serde_json::Value =
         serde_json::from_slice(&crate::error::fs::read(&pack.join("results.json"))?)
             .unwrap_or_default();
-    results["signoff"] = final_block(&rec, &roles);
+    results["signoff"] = final_block(&fin.record, &fin.roles);
     let pdf = crate::report::render(&result, &results, &plan.pack_id)?;
+    let warnings = fin.warnings.clone();
+    let rec = crate::signoff::seal_final(pack, fin, &pdf, chrono::Utc::now())?;
     let name = crate::archive::FINAL_PDF;
-    crate::error::fs::write(&pack.join(name), &pdf)?;
-    rec.finalised = Some(crate::signoff::Final {
-        pdf: name.into(),
-        sha256: crate::pack::hex(&<sha2::Sha256 as sha2::Digest>::digest(&pdf)),
-    });
+    let tmp = pack.join(format!(".{name}.{}.tmp", std::process::id()));
+    crate::error::fs::write(&tmp, &pdf)?;
+    crate::error::fs::rename(&tmp, &pack.join(name))?;
     crate::signoff::save(pack, &rec)?;
-    if let Some(root) = pack.parent().and_then(Path::parent).and_then(Path::parent) {
+    if let Some(root) = crate::archive::root_of(pack) {
         crate::archive::write_index(root)?;
     }
-    Ok(format!(
-        "finalised {}: {name} written; the pack is now immutable\n",
-        pack.display()
-    ))
+    Ok(Signed {
+        text: format!(
+            "finalised {}: {name} written and sealed by `{role}`; the pack is now immutable\n",
+            pack.display()
+        ),
+        warnings,
+    })
 }
 
 /// The sign-off facts the final PDF prints: status FINAL and one row per role.
@@ -332,26 +352,42 @@ pub fn keygen(prefix: &Path) -> Result<String> {
     crate::signoff::keygen(prefix)
 }
 
-/// `tailpack sign PACK --role R --key KEYFILE [--name N]`.
-pub fn sign(pack: &Path, role: &str, key: &Path, name: Option<&str>) -> Result<String> {
-    let text = crate::signoff::sign(pack, role, key, name, chrono::Utc::now())?;
-    if let Some(root) = pack.parent().and_then(Path::parent).and_then(Path::parent) {
-        crate::archive::write_index(root)?;
-    }
-    Ok(text)
+/// What `sign` or `finalize` did: text for stdout, warnings for stderr.
+pub struct Signed {
+    pub text: String,
+    pub warnings: Vec<String>,
 }
 
-/// `tailpack check`: validates config and data and returns the data-quality report.
+/// `tailpack sign PACK --role R --key KEYFILE [--name N]`, under the pack's lock so concurrent signers
+/// never lose a statement.
+pub fn sign(pack: &Path, role: &str, key: &Path, name: Option<&str>) -> Result<Signed> {
+    let _lock = crate::archive::lock_pack(pack, crate::archive::LOCK_TIMEOUT)?;
+    let done = crate::signoff::sign(pack, role, key, name, chrono::Utc::now())?;
+    if let Some(root) = crate::archive::root_of(pack) {
+        crate::archive::write_index(root)?;
+    }
+    Ok(Signed {
+        text: done.text,
+        warnings: done.warnings,
+    })
+}
+
+/// `tailpack check`: every check `run` makes before its first LP, through the same steps (config and
+/// stress file, output root, data and its quality, scenarios, feasible set, stress shocks against the
+/// data), so it refuses what `run` refuses with the same exit code; returns the data-quality report.
 pub fn check(config: &Path, opts: &RunOptions) -> Result<String> {
+    let funds = crate::config::load_all(config)?;
+    output_root(config, &funds[0], opts)?;
     let mut out = String::new();
-    for cfg in crate::config::load_all(config)? {
+    for cfg in funds {
         out.push_str(&check_fund(cfg, opts)?);
     }
     Ok(out)
 }
 
 fn check_fund(cfg: crate::config::Config, opts: &RunOptions) -> Result<String> {
-    let (cfg, data) = run::prepare_fund(cfg, opts)?;
+    let prepared = run::prepare_fund(cfg, opts)?;
+    let (cfg, data) = (&prepared.cfg, &prepared.data);
     let q = &data.quality;
     let mut out = format!(
         "fund {}: config {} is valid\nprices {} ({} layout): {} to {}; as-of {}; scenario window {} to {} ({} observations)\nfill policy: {}\n",
@@ -381,6 +417,20 @@ fn check_fund(cfg: crate::config::Config, opts: &RunOptions) -> Result<String> {
     for f in &q.findings {
         out.push_str(&format!("{}: {}\n", f.level.word(), f.message));
     }
+    out.push_str(&format!(
+        "feasible set: {} assets, {} group limit(s) resolved; {} scenarios; stress file: {}\n",
+        data.assets.len(),
+        prepared.feasible.groups.len(),
+        prepared.scenarios.len(),
+        match &cfg.stress_file {
+            Some(p) => format!(
+                "{} shock(s) resolved ({})",
+                prepared.shocks.len(),
+                p.display()
+            ),
+            None => "none".into(),
+        }
+    ));
     Ok(out)
 }
 

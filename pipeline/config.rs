@@ -1,12 +1,17 @@
 //! Stage 0, config: the YAML file as written (`RawConfig`) and the validated, resolved form (`Config`).
 //!
-//! Only this module reads the config file. Paths are resolved against the config file's folder, ranges are
-//! checked with messages that name the key, and unknown keys are rejected with the nearest valid key. The
-//! rest of the program only ever sees [`Config`]. Defaults are written once, in the `Default` impls.
+//! Only this module reads the config file and the stress file it names. Both are bounded before they are
+//! parsed (file size, then the length of every text value, see [`yaml`]); paths are resolved against the
+//! config file's folder, ranges are checked with messages that name the key and its line, and unknown keys
+//! are rejected with the nearest valid key. The rest of the program only ever sees [`Config`]. Defaults
+//! are written once, in the `Default` impls.
+
+pub mod yaml;
 
 use crate::error::{Error, Result};
 use serde::Deserialize;
 use std::path::{Path, PathBuf};
+pub use yaml::{MAX_FILE_BYTES, MAX_NAME_CHARS, MAX_PARAGRAPH_CHARS, MAX_PATH_BYTES};
 
 /// The config file as written. Every struct rejects unknown keys.
 #[derive(Debug, Deserialize, Default, Clone)]
@@ -463,6 +468,9 @@ pub struct Config {
     pub out_root: PathBuf,
     pub analysis: AnalysisOptions,
     pub stress_file: Option<PathBuf>,
+    /// The stress file's shocks, read and checked (shape, ranges, unique names) when the config is loaded
+    /// ([`load_all`]); checked against the data in `run::prepare_fund`.
+    pub stress: Option<StressFile>,
     pub stress_loss_limit: Option<f64>,
     pub stress_windows: usize,
     /// Custom template folder (`report.templates`), resolved and checked to be a folder.
@@ -500,44 +508,128 @@ pub struct MoveSpec {
     pub ret: f64,
 }
 
-/// Reads and checks a stress file (shape and ranges; asset and tag names are checked against the data later).
+/// Reads and checks a stress file: its size and text lengths, its shape and ranges, and that every shock
+/// has a name of its own (asset and tag names are checked against the data in `run::prepare_fund`).
 pub fn load_stress(path: &Path) -> Result<StressFile> {
-    let text = crate::error::fs::read_to_string(path)?;
+    let text = read_yaml(path, "stress file")?;
+    parse_stress(path, &text)
+}
+
+/// Parses and checks the text of a stress file; `path` names it in messages, which also give the line.
+pub fn parse_stress(path: &Path, text: &str) -> Result<StressFile> {
+    if let Some(why) = yaml::overlong_text(text) {
+        return Err(Error::config(path, why));
+    }
     let file: StressFile =
-        serde_yaml_ng::from_str(&text).map_err(|e| Error::config(path, describe_yaml_error(&e)))?;
+        serde_yaml_ng::from_str(text).map_err(|e| Error::config(path, describe_yaml_error(&e)))?;
+    check_shocks(&file).map_err(|(key, why)| Error::config(path, at_key(text, &key, &why)))?;
+    Ok(file)
+}
+
+fn check_shocks(file: &StressFile) -> std::result::Result<(), (String, String)> {
     for (i, s) in file.shocks.iter().enumerate() {
-        if s.name.trim().is_empty() {
-            return Err(Error::config(
-                path,
-                format!("shocks[{i}].name: is required"),
+        let name = s.name.trim();
+        if name.is_empty() {
+            return Err((
+                format!("shocks[{i}].name"),
+                "is required (the shock's name, printed in the stress table)".into(),
+            ));
+        }
+        if let Some(first) = file.shocks[..i].iter().position(|o| o.name.trim() == name) {
+            return Err((
+                format!("shocks[{i}].name"),
+                format!(
+                    "`{name}` is already the name of shocks[{first}]; give each shock a name of its own"
+                ),
             ));
         }
         for (j, m) in s.moves.iter().enumerate() {
-            let key = format!("shocks[{i}] `{}` moves[{j}]", s.name);
-            if m.tag.is_some() == m.asset.is_some() {
-                return Err(Error::config(
-                    path,
-                    format!("{key}: give exactly one of `tag` or `asset`"),
-                ));
-            }
-            if !(m.ret.is_finite() && m.ret >= -1.0) {
-                return Err(Error::config(
-                    path,
-                    format!(
-                        "{key}.return: {} must be a simple return ≥ −1 (−100%)",
-                        m.ret
-                    ),
-                ));
-            }
-            if m.tag.as_ref().is_some_and(|t| !t.contains(':')) {
-                return Err(Error::config(
-                    path,
-                    format!("{key}.tag: must look like `column:value`, e.g. `class:equity`"),
-                ));
-            }
+            check_move(m).map_err(|(k, why)| {
+                (
+                    format!("shocks[{i}].moves[{j}]{k}"),
+                    format!("in shock `{name}`: {why}"),
+                )
+            })?;
         }
     }
-    Ok(file)
+    Ok(())
+}
+
+fn check_move(m: &MoveSpec) -> std::result::Result<(), (&'static str, String)> {
+    if m.tag.is_some() == m.asset.is_some() {
+        return Err(("", "give exactly one of `tag` or `asset`".into()));
+    }
+    if !(m.ret.is_finite() && m.ret >= -1.0) {
+        return Err((
+            ".return",
+            format!("{} must be a simple return ≥ −1 (−100%)", m.ret),
+        ));
+    }
+    if let Some(t) = &m.tag {
+        check_tag(t).map_err(|why| (".tag", why))?;
+    }
+    if m.asset.as_ref().is_some_and(|a| a.trim().is_empty()) {
+        return Err((".asset", "is blank; give an asset code".into()));
+    }
+    Ok(())
+}
+
+/// A `column:value` tag with neither part blank.
+fn check_tag(t: &str) -> std::result::Result<(&str, &str), String> {
+    match t.split_once(':') {
+        Some((c, v)) if !c.trim().is_empty() && !v.trim().is_empty() => Ok((c.trim(), v.trim())),
+        Some(_) => Err(format!(
+            "`{t}` has a blank column or value; it must look like `column:value`, e.g. `class:equity`"
+        )),
+        None => Err(format!(
+            "must look like `column:value`, e.g. `class:equity`, got `{t}`"
+        )),
+    }
+}
+
+/// "key (line L): why", with the line of the key in `text` when it is there, else "key: why".
+fn at_key(text: &str, key: &str, why: &str) -> String {
+    match yaml::locate(text, key).filter(|p| p.exact) {
+        Some(p) => format!("{key} (line {}): {why}", p.line),
+        None => format!("{key}: {why}"),
+    }
+}
+
+/// Reads a config or stress file as text. A path that is not a regular file is refused by what it is,
+/// without being opened (a named pipe would wait for a writer); so is a file over [`MAX_FILE_BYTES`],
+/// after reading no more than that. The text must be UTF-8; a leading byte-order mark is dropped.
+fn read_yaml(path: &Path, what: &str) -> Result<String> {
+    if let Some(why) = crate::error::fs::not_a_file(path) {
+        let hint = if why.starts_with("is ") {
+            format!("the {what} must be a YAML file")
+        } else {
+            "check the path".to_string()
+        };
+        return Err(Error::config(path, format!("{why}; {hint}")));
+    }
+    let bytes = crate::error::fs::read_at_most(path, MAX_FILE_BYTES)?;
+    if bytes.len() as u64 > MAX_FILE_BYTES {
+        return Err(Error::config(path, too_large(what)));
+    }
+    let text = String::from_utf8(bytes).map_err(|e| {
+        let at = e.utf8_error().valid_up_to();
+        let line = e.as_bytes()[..at].iter().filter(|b| **b == b'\n').count() + 1;
+        Error::config(
+            path,
+            format!("line {line}, byte {at}: not UTF-8 text; save the {what} as UTF-8"),
+        )
+    })?;
+    Ok(match text.strip_prefix('\u{feff}') {
+        Some(rest) => rest.to_string(),
+        None => text,
+    })
+}
+
+fn too_large(what: &str) -> String {
+    format!(
+        "is larger than {MAX_FILE_BYTES} bytes ({} MiB), the most a {what} may have; a {what} is a few KB of YAML, so this is not one",
+        MAX_FILE_BYTES >> 20
+    )
 }
 
 /// Every top-level and nested key, for suggestions on unknown keys.
@@ -627,54 +719,25 @@ pub fn load(path: &Path) -> Result<Config> {
     Ok(all.remove(0))
 }
 
-/// Reads a config and resolves one [`Config`] per fund (one for a single-fund config).
+/// Reads a config and resolves one [`Config`] per fund (one for a single-fund config), with the shocks of
+/// its stress file.
 pub fn load_all(path: &Path) -> Result<Vec<Config>> {
-    let bytes = crate::error::fs::read(path)?;
-    let text = std::str::from_utf8(&bytes).map_err(|e| {
-        let at = e.valid_up_to();
-        let line = bytes[..at].iter().filter(|b| **b == b'\n').count() + 1;
-        Error::config(
-            path,
-            format!("line {line}, byte {at}: not UTF-8 text; save the config as UTF-8"),
-        )
-    })?;
-    let raw = parse(path, text)?;
-    expand(path, raw)
+    let text = read_yaml(path, "config")?;
+    let raw = parse(path, &text)?;
+    expand(path, &text, raw)
 }
 
-fn expand(path: &Path, raw: RawConfig) -> Result<Vec<Config>> {
-    if raw.funds.is_empty() {
-        return Ok(vec![resolve(path, raw)?]);
-    }
-    let configs: Vec<Config> = raw
-        .funds
-        .iter()
-        .enumerate()
-        .map(|(i, m)| {
-            let mut one = raw.clone();
-            one.funds.clear();
-            one.fund = m.fund.clone();
-            if m.holdings.is_some() {
-                one.data.holdings = m.holdings.clone();
-            }
-            if let Some(l) = &m.limits {
-                one.limits = l.clone();
-            }
-            if let Some(mo) = &m.models {
-                one.models = mo.clone();
-            }
-            if let Some(so) = &m.signoff {
-                one.signoff = so.clone();
-            }
-            resolve(path, one).map_err(|e| match e {
-                Error::Config { path, message } => Error::Config {
-                    path,
-                    message: format!("funds[{i}]: {message}"),
-                },
-                other => other,
-            })
-        })
-        .collect::<Result<_>>()?;
+fn expand(path: &Path, text: &str, mut raw: RawConfig) -> Result<Vec<Config>> {
+    let mandates = std::mem::take(&mut raw.funds);
+    let mut configs: Vec<Config> = if mandates.is_empty() {
+        vec![resolve_in(path, text, None, raw)?]
+    } else {
+        mandates
+            .iter()
+            .enumerate()
+            .map(|(i, m)| resolve_in(path, text, Some(i), mandate(&raw, m)))
+            .collect::<Result<_>>()?
+    };
     for (i, c) in configs.iter().enumerate() {
         if configs[..i].iter().any(|o| o.short_name == c.short_name) {
             return Err(Error::config(
@@ -686,7 +749,70 @@ fn expand(path: &Path, raw: RawConfig) -> Result<Vec<Config>> {
             ));
         }
     }
+    if let Some(file) = configs[0].stress_file.clone() {
+        let stress = load_stress(&file)?;
+        for c in &mut configs {
+            c.stress = Some(stress.clone());
+        }
+    }
     Ok(configs)
+}
+
+/// The shared settings with one mandate's overrides (`raw` holds no `funds` any more).
+fn mandate(raw: &RawConfig, m: &RawMandate) -> RawConfig {
+    let mut one = raw.clone();
+    one.fund = m.fund.clone();
+    if m.holdings.is_some() {
+        one.data.holdings = m.holdings.clone();
+    }
+    if let Some(l) = &m.limits {
+        one.limits = l.clone();
+    }
+    if let Some(mo) = &m.models {
+        one.models = mo.clone();
+    }
+    if let Some(so) = &m.signoff {
+        one.signoff = so.clone();
+    }
+    one
+}
+
+/// Resolves one fund; messages give the line of the key: for fund `i` of a multi-fund config, the line of
+/// its own override where it has one, else of the shared setting, and start with `funds[i]`.
+fn resolve_in(path: &Path, text: &str, fund: Option<usize>, raw: RawConfig) -> Result<Config> {
+    let resolved = resolve_at(path, raw, &|key| line_of(text, fund, key));
+    match fund {
+        None => resolved,
+        Some(i) => resolved.map_err(|e| match e {
+            Error::Config { path, message } => Error::Config {
+                path,
+                message: format!("funds[{i}]: {message}"),
+            },
+            other => other,
+        }),
+    }
+}
+
+/// The line of `key` in the config text: exact where the key is written, else the line of the longest
+/// part of it that is (the `fund` section for a missing `fund.name`).
+fn line_of(text: &str, fund: Option<usize>, key: &str) -> Option<usize> {
+    let mut candidates = Vec::new();
+    if let Some(i) = fund {
+        candidates.push((format!("funds[{i}].{key}"), 3));
+        if let Some(k) = key.strip_prefix("data.") {
+            candidates.push((format!("funds[{i}].{k}"), 3));
+        }
+    }
+    candidates.push((key.to_string(), 1));
+    let places: Vec<yaml::Place> = candidates
+        .iter()
+        .filter_map(|(k, least)| yaml::locate(text, k).filter(|p| p.matched >= *least))
+        .collect();
+    places
+        .iter()
+        .find(|p| p.exact)
+        .or_else(|| places.iter().max_by_key(|p| p.matched))
+        .map(|p| p.line)
 }
 
 /// One fund of a (possibly multi-fund) config, by short name.
@@ -709,7 +835,7 @@ pub fn load_fund(path: &Path, short_name: Option<&str>) -> Result<Config> {
 /// (`prices.*`, `assets.*`, `holdings.*`, `stress.yaml`, `templates/`) instead of the original paths.
 pub fn load_archived(inputs: &Path) -> Result<Config> {
     let path = inputs.join("config.yaml");
-    let text = crate::error::fs::read_to_string(&path)?;
+    let text = read_yaml(&path, "config")?;
     let mut raw = parse(&path, &text)?;
     let find = |role: &str| -> Option<PathBuf> {
         let mut names: Vec<String> = std::fs::read_dir(inputs)
@@ -737,7 +863,7 @@ pub fn load_archived(inputs: &Path) -> Result<Config> {
         .and_then(|b| serde_json::from_slice(&b).ok())
         .unwrap_or_default();
     let wanted = run["fund"].as_str().map(str::to_string);
-    let all = expand(&path, raw)?;
+    let all = expand(&path, &text, raw)?;
     match wanted {
         Some(n) => all
             .into_iter()
@@ -751,19 +877,27 @@ pub fn load_archived(inputs: &Path) -> Result<Config> {
 }
 
 /// Parses YAML text into the raw config, turning serde errors into messages with line and a suggestion.
+/// Text over [`MAX_FILE_BYTES`], or with a text value longer than its bound ([`yaml`]), is refused first.
 pub fn parse(path: &Path, text: &str) -> Result<RawConfig> {
+    let text = text.strip_prefix('\u{feff}').unwrap_or(text);
     if text.trim().is_empty() {
         return Err(Error::config(
             path,
             "line 1: the file is empty; see config-demo/fund.yaml for a complete example",
         ));
     }
+    if text.len() as u64 > MAX_FILE_BYTES {
+        return Err(Error::config(path, too_large("config")));
+    }
+    if let Some(why) = yaml::overlong_text(text) {
+        return Err(Error::config(path, why));
+    }
     serde_yaml_ng::from_str::<RawConfig>(text)
         .map_err(|e| Error::config(path, describe_yaml_error(&e)))
 }
 
 fn describe_yaml_error(e: &serde_yaml_ng::Error) -> String {
-    let msg = e.to_string();
+    let msg = yaml::message(e);
     let Some(unknown) = between(&msg, "unknown field `", "`") else {
         return msg;
     };
@@ -809,9 +943,23 @@ fn levenshtein(a: &str, b: &str) -> usize {
     row[b.len()]
 }
 
-/// Validates ranges and resolves paths; messages name the key.
+/// Validates ranges and resolves paths; messages name the key. The config has no stress shocks yet
+/// ([`load_all`] reads the stress file once for all funds).
 pub fn resolve(path: &Path, raw: RawConfig) -> Result<Config> {
-    let bad = |key: &str, why: String| Error::config(path, format!("{key}: {why}"));
+    resolve_at(path, raw, &|_| None)
+}
+
+/// [`resolve`], with messages that also give the line `line(key)` of the key.
+fn resolve_at(path: &Path, raw: RawConfig, line: &dyn Fn(&str) -> Option<usize>) -> Result<Config> {
+    let bad = |key: &str, why: String| {
+        Error::config(
+            path,
+            match line(key) {
+                Some(l) => format!("{key} (line {l}): {why}"),
+                None => format!("{key}: {why}"),
+            },
+        )
+    };
     let base = path.parent().map(Path::to_path_buf).unwrap_or_default();
     let join = |p: &PathBuf| {
         if p.is_absolute() {
@@ -841,6 +989,7 @@ pub fn resolve(path: &Path, raw: RawConfig) -> Result<Config> {
     check_quality(&raw.quality).map_err(|(k, m)| bad(k, m))?;
     check_levels(&raw.risk).map_err(|(k, m)| bad(k, m))?;
     check_limits(&raw.limits, raw.data.holdings.is_some()).map_err(|(k, m)| bad(k, m))?;
+    check_exclude(&raw.limits.exclude).map_err(|(k, m)| bad(&k, m))?;
     let groups = resolve_groups(&raw.limits.groups).map_err(|(k, m)| bad(&k, m))?;
     let cap = resolve_cap(&raw.models.max_return.cvar_cap)
         .map_err(|m| bad("models.max_return.cvar_cap", m))?;
@@ -881,11 +1030,11 @@ pub fn resolve(path: &Path, raw: RawConfig) -> Result<Config> {
     ] {
         if let Some(f) = file {
             let full = join(f);
-            if !full.is_file() {
+            if let Some(why) = crate::error::fs::not_a_file(&full) {
                 return Err(bad(
                     key,
                     format!(
-                        "file {} does not exist (paths are relative to the config file's folder)",
+                        "{} {why} (paths are relative to the config file's folder)",
                         full.display()
                     ),
                 ));
@@ -900,10 +1049,14 @@ pub fn resolve(path: &Path, raw: RawConfig) -> Result<Config> {
         .unwrap_or_else(|| PathBuf::from("out"));
     let templates = raw.report.templates.as_ref().map(&join);
     if let Some(t) = templates.as_ref().filter(|t| !t.is_dir()) {
+        let what = match std::fs::metadata(t) {
+            Ok(m) => format!("it is {}", crate::error::fs::kind_of(&m)),
+            Err(_) => "it does not exist".to_string(),
+        };
         return Err(bad(
             "report.templates",
             format!(
-                "{} is not a folder (custom templates go in a folder whose files replace the built-in ones)",
+                "{} is not a folder ({what}; custom templates go in a folder whose files replace the built-in ones)",
                 t.display()
             ),
         ));
@@ -936,6 +1089,7 @@ pub fn resolve(path: &Path, raw: RawConfig) -> Result<Config> {
         fund: raw.fund,
         analysis: raw.analysis,
         stress_file: raw.stress.file.as_ref().map(&join),
+        stress: None,
         stress_loss_limit: raw.stress.loss_limit,
         stress_windows: raw.stress.historical_windows,
         signoff: raw.signoff.roles,
@@ -978,6 +1132,12 @@ fn check_signoff(s: &RawSignoff) -> std::result::Result<(), (String, String)> {
             return Err((
                 key("role"),
                 "is required (e.g. preparer, risk_reviewer, approver)".into(),
+            ));
+        }
+        if r.title.as_ref().is_some_and(|t| t.trim().is_empty()) {
+            return Err((
+                key("title"),
+                "is blank; leave it out to print the role's name".into(),
             ));
         }
         if s.roles.iter().filter(|o| o.role == r.role).count() > 1 {
@@ -1129,6 +1289,16 @@ fn check_limits(l: &RawLimits, has_holdings: bool) -> std::result::Result<(), Ke
     }
 }
 
+fn check_exclude(exclude: &[String]) -> std::result::Result<(), (String, String)> {
+    match exclude.iter().position(|x| x.trim().is_empty()) {
+        Some(j) => Err((
+            format!("limits.exclude[{j}]"),
+            "is blank; give an asset code".into(),
+        )),
+        None => Ok(()),
+    }
+}
+
 fn resolve_groups(raw: &[RawGroup]) -> std::result::Result<Vec<GroupSpec>, (String, String)> {
     raw.iter()
         .enumerate()
@@ -1143,18 +1313,21 @@ fn resolve_group(i: usize, g: &RawGroup) -> std::result::Result<GroupSpec, (Stri
     }
     let selector = match (&g.tag, &g.assets) {
         (Some(t), None) => {
-            let (column, value) = t.split_once(':').ok_or_else(|| {
-                (
-                    key("tag"),
-                    format!("must look like `column:value` (e.g. `class:equity`), got `{t}`"),
-                )
-            })?;
+            let (column, value) = check_tag(t).map_err(|why| (key("tag"), why))?;
             GroupSelector::Tag {
-                column: column.trim().to_string(),
-                value: value.trim().to_string(),
+                column: column.to_string(),
+                value: value.to_string(),
             }
         }
-        (None, Some(a)) if !a.is_empty() => GroupSelector::Assets(a.clone()),
+        (None, Some(a)) if !a.is_empty() => {
+            if let Some(j) = a.iter().position(|x| x.trim().is_empty()) {
+                return Err((
+                    key(&format!("assets[{j}]")),
+                    "is blank; give an asset code".into(),
+                ));
+            }
+            GroupSelector::Assets(a.clone())
+        }
         _ => {
             return Err((
                 key("tag"),

@@ -154,18 +154,6 @@ pub mod fs {
         std::fs::read(path).map_err(io("cannot read", path))
     }
 
-    /// Reads a file, but no more than `limit` bytes and one: a result longer than `limit` means the file
-    /// holds more.
-    pub fn read_at_most(path: &Path, limit: u64) -> Result<Vec<u8>> {
-        use std::io::Read;
-        let file = std::fs::File::open(path).map_err(io("cannot read", path))?;
-        let mut out = Vec::new();
-        file.take(limit.saturating_add(1))
-            .read_to_end(&mut out)
-            .map_err(io("cannot read", path))?;
-        Ok(out)
-    }
-
     /// Reads a whole file as UTF-8 text.
     pub fn read_to_string(path: &Path) -> Result<String> {
         std::fs::read_to_string(path).map_err(io("cannot read", path))
@@ -186,37 +174,9 @@ pub mod fs {
         std::fs::remove_dir_all(path).map_err(io("cannot remove folder", path))
     }
 
-    /// Every regular file below `dir`, hidden entries skipped, in sorted order (so anything built from the
-    /// listing is the same on every run).
-    pub fn files_below(dir: &Path) -> Result<Vec<std::path::PathBuf>> {
-        let mut entries: Vec<std::path::PathBuf> = std::fs::read_dir(dir)
-            .map_err(io("cannot read folder", dir))?
-            .filter_map(|e| e.ok().map(|e| e.path()))
-            .filter(|p| {
-                !p.file_name()
-                    .is_some_and(|n| n.to_string_lossy().starts_with('.'))
-            })
-            .collect();
-        entries.sort();
-        let mut out = Vec::new();
-        for p in entries {
-            if p.is_dir() {
-                out.extend(files_below(&p)?);
-            } else if p.is_file() {
-                out.push(p);
-            }
-        }
-        Ok(out)
-    }
-
     /// The real path of `path`: every symbolic link resolved, absolute.
     pub fn canonicalize(path: &Path) -> Result<std::path::PathBuf> {
         std::fs::canonicalize(path).map_err(io("cannot resolve", path))
-    }
-
-    /// What `path` itself is, without following a symbolic link.
-    pub fn symlink_metadata(path: &Path) -> Result<std::fs::Metadata> {
-        std::fs::symlink_metadata(path).map_err(io("cannot inspect", path))
     }
 
     /// What `path` is, following symbolic links.
@@ -260,6 +220,65 @@ pub mod fs {
         } else {
             "not a regular file"
         }
+    }
+
+    /// Why `path` cannot be read as an input file, or `None` when it is a regular file (symbolic links
+    /// followed): "does not exist", "is a folder, not a file", "is a named pipe (FIFO), not a file"…
+    /// Looks at metadata only, so a named pipe is never opened (opening one waits for a writer).
+    pub fn not_a_file(path: &Path) -> Option<String> {
+        match std::fs::metadata(path) {
+            Ok(m) if m.is_file() => None,
+            Ok(m) => Some(format!("is {}, not a file", kind_of(&m))),
+            Err(e) if e.kind() == std::io::ErrorKind::NotFound => {
+                let dangling = std::fs::symlink_metadata(path).is_ok_and(|m| m.is_symlink());
+                Some(if dangling {
+                    "is a symbolic link to something that does not exist".to_string()
+                } else {
+                    "does not exist".to_string()
+                })
+            }
+            Err(e) => Some(format!("cannot be examined: {e}")),
+        }
+    }
+
+    /// Refuses a folder path whose nearest existing part is not a folder (a file stands in the way), with
+    /// the error creating it would give; writes nothing.
+    pub fn creatable_folder(path: &Path) -> Result<()> {
+        for part in path.ancestors() {
+            let part = if part.as_os_str().is_empty() {
+                Path::new(".")
+            } else {
+                part
+            };
+            match std::fs::metadata(part) {
+                Ok(m) if m.is_dir() => return Ok(()),
+                Ok(m) => {
+                    let kind = if part == path {
+                        std::io::ErrorKind::AlreadyExists
+                    } else {
+                        std::io::ErrorKind::NotADirectory
+                    };
+                    let why = format!("{} is {}", part.display(), kind_of(&m));
+                    return Err(io("cannot create folder", path)(std::io::Error::new(
+                        kind, why,
+                    )));
+                }
+                Err(_) => continue,
+            }
+        }
+        Ok(())
+    }
+
+    /// Reads at most `max + 1` bytes of a file, so a caller can refuse a file longer than `max` without
+    /// holding all of it (the file may grow after its size was looked at).
+    pub fn read_at_most(path: &Path, max: u64) -> Result<Vec<u8>> {
+        use std::io::Read;
+        let file = std::fs::File::open(path).map_err(io("cannot read", path))?;
+        let mut bytes = Vec::new();
+        file.take(max + 1)
+            .read_to_end(&mut bytes)
+            .map_err(io("cannot read", path))?;
+        Ok(bytes)
     }
 
     /// Renames a file or folder.

@@ -36,7 +36,7 @@ enum Command {
         #[arg(long)]
         quiet: bool,
         /// Seconds to wait for another run's lock on the same archive (then exit 6).
-        #[arg(long, default_value_t = 600)]
+        #[arg(long, default_value_t = tailpack::archive::LOCK_TIMEOUT.as_secs())]
         lock_timeout: u64,
         /// Print the wall time of each stage and the peak memory on stderr at the end.
         #[arg(long)]
@@ -88,8 +88,20 @@ enum Command {
         #[arg(long)]
         name: Option<String>,
     },
-    /// Render the final PDF once every required role has signed; the pack is immutable afterwards.
-    Finalize { pack: PathBuf },
+    /// Render the final PDF once every required role has signed and seal it with one of their keys; the
+    /// pack is immutable afterwards.
+    Finalize {
+        pack: PathBuf,
+        /// The required role that seals the final PDF (any role that has signed, e.g. the last signer).
+        #[arg(long)]
+        role: String,
+        /// That role's secret key file.
+        #[arg(long)]
+        key: PathBuf,
+        /// The name recorded for the finalisation (default: the role).
+        #[arg(long)]
+        name: Option<String>,
+    },
     /// Recompute every digest of a pack; any changed, missing or unlisted file fails (exit 7).
     Verify {
         /// The pack folder, e.g. out/<fund>/<as-of>/r1.
@@ -117,6 +129,14 @@ enum Command {
         #[arg(long)]
         seconds: u64,
     },
+}
+
+/// Prints a sign-off command's warnings on stderr; its text goes to stdout with exit 0.
+fn signed(s: tailpack::commands::Signed) -> (String, i32) {
+    for w in &s.warnings {
+        eprintln!("warning: {w}");
+    }
+    (s.text, 0)
 }
 
 fn main() {
@@ -177,8 +197,13 @@ fn main() {
             role,
             key,
             name,
-        } => tailpack::commands::sign(pack, role, key, name.as_deref()).map(|t| (t, 0)),
-        Command::Finalize { pack } => tailpack::commands::finalize(pack).map(|t| (t, 0)),
+        } => tailpack::commands::sign(pack, role, key, name.as_deref()).map(signed),
+        Command::Finalize {
+            pack,
+            role,
+            key,
+            name,
+        } => tailpack::commands::finalize(pack, role, key, name.as_deref()).map(signed),
         Command::Verify { pack, rerun } => tailpack::commands::verify(pack, *rerun).map(|t| (t, 0)),
         Command::Check { config, as_of } => tailpack::commands::check(
             config,

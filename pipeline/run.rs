@@ -3,6 +3,7 @@
 //! This module wires the stages together and resolves the rules that depend on earlier results (the CVaR
 //! cap "times the minimum", the return floor "plus current"). It computes nothing itself beyond that.
 
+use crate::analysis::stress::{self, Shock};
 use crate::config::{self, Backend, Config, GroupSelector};
 use crate::diag::{Check, Level};
 use crate::error::{Error, Result};
@@ -29,7 +30,7 @@ impl Default for RunOptions {
             as_of: None,
             out: None,
             backend: None,
-            lock_timeout: std::time::Duration::from_secs(600),
+            lock_timeout: crate::archive::LOCK_TIMEOUT,
         }
     }
 }
@@ -66,21 +67,53 @@ pub struct RunResult {
     pub analysis: crate::analysis::Analysis,
 }
 
-/// Loads and validates config and data (the `check` command stops here).
-pub fn prepare(config_path: &std::path::Path, opts: &RunOptions) -> Result<(Config, MarketData)> {
+/// One fund after everything `run` checks before its first LP: the config with the command-line overrides,
+/// the loaded and checked data, the scenarios, the feasible set (groups, bounds, exclusions resolved) and
+/// the stress file's shocks resolved against the assets. `check` stops here; `run` solves from here.
+#[derive(Debug, Clone)]
+pub struct Prepared {
+    pub cfg: Config,
+    pub data: MarketData,
+    pub scenarios: ScenarioSet,
+    pub feasible: FeasibleSet,
+    /// The stress file's shocks (none without a stress file), in file order.
+    pub shocks: Vec<Shock>,
+}
+
+/// Loads a single-fund config and prepares it ([`prepare_fund`]).
+pub fn prepare(config_path: &std::path::Path, opts: &RunOptions) -> Result<Prepared> {
     prepare_fund(config::load(config_path)?, opts)
 }
 
-/// Applies the command-line overrides to one fund's config and loads its data.
-pub fn prepare_fund(mut cfg: Config, opts: &RunOptions) -> Result<(Config, MarketData)> {
+/// Applies the command-line overrides to one fund's config, loads its data and runs every check that
+/// needs no LP ([`validate`]): the one step both `run` and `check` take, so they refuse the same inputs
+/// with the same exit codes.
+pub fn prepare_fund(mut cfg: Config, opts: &RunOptions) -> Result<Prepared> {
     if let Some(out) = &opts.out {
         cfg.out_root = out.clone();
     }
     if let Some(b) = opts.backend {
         cfg.backend = b;
     }
-    let data = ingest::load(&cfg, opts.as_of)?;
-    Ok((cfg, data))
+    let data = crate::timings::time("ingest", || ingest::load(&cfg, opts.as_of))?;
+    validate(cfg, data)
+}
+
+/// The checks after ingest: scenarios, the feasible set, the stress shocks against the data.
+pub fn validate(cfg: Config, data: MarketData) -> Result<Prepared> {
+    let scenarios = crate::timings::time("scenarios", || scenarios::build(&data, &cfg.scenarios))?;
+    let feasible = feasible_set(&cfg, &data)?;
+    let shocks = match (&cfg.stress_file, &cfg.stress) {
+        (Some(path), Some(file)) => stress::defined(path, file, &data)?,
+        _ => vec![],
+    };
+    Ok(Prepared {
+        cfg,
+        data,
+        scenarios,
+        feasible,
+        shocks,
+    })
 }
 
 /// Builds the feasible set X from config, metadata and holdings.
@@ -168,11 +201,21 @@ fn resolve_group(cfg: &Config, data: &MarketData, g: &config::GroupSpec) -> Resu
     })
 }
 
-/// Solves everything for prepared data.
+/// Checks and solves everything for loaded data ([`validate`], then [`solve`]).
 pub fn compute(cfg: Config, data: MarketData) -> Result<RunResult> {
-    let set = crate::timings::time("scenarios", || scenarios::build(&data, &cfg.scenarios))?;
+    solve(validate(cfg, data)?)
+}
+
+/// Solves the models, frontier, stress set and backtest of a prepared fund.
+pub fn solve(prepared: Prepared) -> Result<RunResult> {
+    let Prepared {
+        cfg,
+        data,
+        scenarios: set,
+        feasible: fs,
+        shocks,
+    } = prepared;
     let models_start = std::time::Instant::now();
-    let fs = feasible_set(&cfg, &data)?;
     let c = cfg.confidence;
     let p = Problem {
         set: &set,
@@ -218,7 +261,7 @@ pub fn compute(cfg: Config, data: MarketData) -> Result<RunResult> {
             .iter()
             .filter_map(|r| r.outcome.weights.clone().map(|w| (r.name.to_string(), w))),
     );
-    let analysis = crate::analysis::analyse(&cfg, &data, &p, &fs, &portfolios)?;
+    let analysis = crate::analysis::analyse(&cfg, &data, &p, &fs, &portfolios, shocks);
     let mut checks = data.quality.findings.clone();
     checks.extend(model_checks(&pre, &reports, &cfg));
     checks.extend(crate::analysis::checks(&analysis, &cfg));

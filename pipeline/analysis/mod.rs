@@ -10,7 +10,6 @@ pub mod vartest;
 
 use crate::config::Config;
 use crate::diag::Check;
-use crate::error::Result;
 use crate::ingest::MarketData;
 use crate::models::{FeasibleSet, Problem};
 use crate::timings;
@@ -24,22 +23,21 @@ pub struct Analysis {
     pub backtest: Option<backtest::Backtest>,
 }
 
-/// Computes frontier, stress set and backtest. `portfolios` are (name, weights) of current and each model.
+/// Computes frontier, stress set and backtest. `portfolios` are (name, weights) of current and each model;
+/// `defined` are the stress file's shocks, resolved against the data before any LP (`run::prepare_fund`).
 pub fn analyse(
     cfg: &Config,
     data: &MarketData,
     p: &Problem,
     fs: &FeasibleSet,
     portfolios: &[(String, Vec<f64>)],
-) -> Result<Analysis> {
+    defined: Vec<stress::Shock>,
+) -> Analysis {
     let frontier = timings::time("frontier", || {
         frontier::sweep(p, cfg.analysis.frontier_points)
     });
     let stress_start = std::time::Instant::now();
-    let mut shocks = match &cfg.stress_file {
-        Some(path) => stress::defined(path, &crate::config::load_stress(path)?, data)?,
-        None => vec![],
-    };
+    let mut shocks = defined;
     let reference = data
         .holdings
         .clone()
@@ -57,12 +55,12 @@ pub fn analyse(
         .collect();
     timings::add("stress", stress_start.elapsed());
     let backtest = timings::time("backtest", || backtest::run(cfg, data, fs));
-    Ok(Analysis {
+    Analysis {
         frontier,
         shocks,
         stress,
         backtest,
-    })
+    }
 }
 
 /// Checks that summarise the analysis for the checks table.

@@ -84,11 +84,20 @@ fn meta_row(
             .to_string()
     };
     let place = t.place(row);
+    check_lengths(path, t, row)?;
     let code = cell(asset);
     if code.is_empty() {
         return Err(Error::data(
             path,
             format!("{place}, column `asset`: blank asset code"),
+        ));
+    }
+    if cell(class).is_empty() {
+        return Err(Error::data(
+            path,
+            format!(
+                "{place}, column `class`: blank asset class for `{code}`; every asset needs a class (e.g. equity, government, credit, cash)"
+            ),
         ));
     }
     let weight = |name: &str| -> Result<Option<f64>> {
@@ -140,6 +149,28 @@ fn meta_row(
     })
 }
 
+/// Every text cell of a metadata row (codes, names, classes, tags: they reach the pack) within the bound
+/// of a name in the config, [`crate::config::MAX_NAME_CHARS`].
+fn check_lengths(path: &Path, t: &TextTable, row: usize) -> Result<()> {
+    let max = crate::config::MAX_NAME_CHARS;
+    for (c, name) in t.names.iter().enumerate() {
+        let n = t.columns[c][row]
+            .as_deref()
+            .map_or(0, |v| v.trim().chars().count());
+        if n > max {
+            return Err(Error::data(
+                path,
+                format!(
+                    "{}, column `{}`: a text of {n} characters; a code, name, class or tag may have at most {max} characters",
+                    t.place(row),
+                    super::table::truncate(name.trim(), 40)
+                ),
+            ));
+        }
+    }
+    Ok(())
+}
+
 /// Reads current holdings (`asset,weight`), checks them against the asset list and returns weights in
 /// `assets` order (absent assets get 0).
 pub fn read_holdings(path: &Path, assets: &[String]) -> Result<Vec<f64>> {
@@ -159,11 +190,17 @@ pub fn read_holdings(path: &Path, assets: &[String]) -> Result<Vec<f64>> {
     for row in 0..t.rows() {
         let place = t.place(row);
         let code = t.columns[a][row].as_deref().unwrap_or("").trim();
+        if code.is_empty() {
+            return Err(Error::data(
+                path,
+                format!("{place}, column `asset`: blank asset code"),
+            ));
+        }
         let text = t.columns[w][row].as_deref().unwrap_or("").trim();
         let value: f64 = text.parse().ok().filter(|v: &f64| v.is_finite() && *v >= 0.0)
-            .ok_or_else(|| Error::data(path, format!("{place}, column `weight`: `{text}` must be a non-negative number (long-only holdings)")))?;
+            .ok_or_else(|| Error::data(path, format!("{place}, column `weight`: `{}` must be a non-negative number (long-only holdings)", super::table::truncate(text, 40))))?;
         let i = assets.iter().position(|x| x == code)
-            .ok_or_else(|| Error::data(path, format!("{place}: asset `{code}` is not in the price data (or was dropped by the fill policy)")))?;
+            .ok_or_else(|| Error::data(path, format!("{place}: asset `{}` is not in the price data (or was dropped by the fill policy)", super::table::truncate(code, 40))))?;
         if std::mem::replace(&mut seen[i], true) {
             return Err(Error::data(
                 path,

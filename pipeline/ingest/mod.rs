@@ -90,7 +90,8 @@ fn check_universe(cfg: &Config, hist: &PriceHistory, meta: &[AssetMeta]) -> Resu
         return Err(Error::data(
             &cfg.assets,
             format!(
-                "column `asset`: has no row for asset `{a}`, which is in the price file {}; every priced asset needs a row with at least its class",
+                "column `asset`: has no row for asset `{}`, which is in the price file {}; every priced asset needs a row with at least its class",
+                table::truncate(a, 40),
                 cfg.prices.display()
             ),
         ));

@@ -265,3 +265,115 @@ fn several_funds_build_in_parallel_and_one_failure_does_not_stop_the_others() {
     ]);
     assert_eq!(v.code, 0, "{}", v.stderr);
 }
+
+/// Plants an entry with `make`, expects `verify` to fail (exit 7) naming `name`, then removes it.
+fn planted_fails(f: &Fixture, pack: &std::path::Path, name: &str, make: &dyn Fn(&std::path::Path)) {
+    let p = pack.to_str().unwrap();
+    let path = pack.join(name);
+    make(&path);
+    let ran = f.run(&["verify", p]);
+    assert_eq!(ran.code, 7, "{name} must be reported: {}", ran.stderr);
+    assert!(ran.stderr.contains(name), "{name}: {}", ran.stderr);
+    let meta = std::fs::symlink_metadata(&path).unwrap();
+    if meta.is_dir() {
+        std::fs::remove_dir_all(&path).unwrap();
+    } else {
+        std::fs::remove_file(&path).unwrap();
+    }
+    assert_eq!(f.run(&["verify", p]).code, 0, "removed {name}");
+}
+
+#[test]
+fn every_entry_of_a_pack_hidden_or_not_at_any_depth_is_listed_or_reported() {
+    let (f, _) = fixture();
+    let pack = last_line(&f.run(&["run", "fund.yaml", "--quiet"]).stdout);
+    let file = |p: &std::path::Path| std::fs::write(p, "x\n").unwrap();
+    let folder = |p: &std::path::Path| std::fs::create_dir_all(p).unwrap();
+    let folder_with_file = |p: &std::path::Path| {
+        std::fs::create_dir_all(p).unwrap();
+        std::fs::write(p.join("notes.txt"), "x\n").unwrap();
+    };
+    for name in [
+        "inputs/.hidden",
+        "inputs/templates/.hidden.typ",
+        "inputs/extra.csv",
+        ".hidden-top",
+        ".signoff.json.tmp",
+    ] {
+        planted_fails(&f, &pack, name, &file);
+    }
+    for name in [
+        "extra",
+        ".extra",
+        "inputs/empty",
+        "inputs/.git",
+        "inputs/templates/sub",
+    ] {
+        planted_fails(&f, &pack, name, &folder);
+    }
+    for name in ["attachments", ".cache", "inputs/more"] {
+        planted_fails(&f, &pack, name, &folder_with_file);
+    }
+    // Symbolic links, even to a listed file of the same pack, and special files.
+    #[cfg(unix)]
+    {
+        let link_to_results =
+            |p: &std::path::Path| std::os::unix::fs::symlink(pack.join("results.json"), p).unwrap();
+        planted_fails(&f, &pack, "results-link.json", &link_to_results);
+        planted_fails(&f, &pack, "inputs/link.csv", &link_to_results);
+        let loop_link = |p: &std::path::Path| std::os::unix::fs::symlink(p, p).unwrap();
+        planted_fails(&f, &pack, "inputs/loop", &loop_link);
+        let fifo = |p: &std::path::Path| {
+            assert!(
+                std::process::Command::new("mkfifo")
+                    .arg(p)
+                    .status()
+                    .unwrap()
+                    .success()
+            )
+        };
+        planted_fails(&f, &pack, "inputs/pipe", &fifo);
+    }
+    // A listed output replaced by a symbolic link to a copy with the same bytes is reported too.
+    #[cfg(unix)]
+    {
+        let results = pack.join("results.json");
+        let copy = f.path("results-copy.json");
+        std::fs::copy(&results, &copy).unwrap();
+        std::fs::remove_file(&results).unwrap();
+        std::os::unix::fs::symlink(&copy, &results).unwrap();
+        let ran = f.run(&["verify", pack.to_str().unwrap()]);
+        assert_eq!(ran.code, 7, "{}", ran.stderr);
+        assert!(ran.stderr.contains("results.json"), "{}", ran.stderr);
+    }
+}
+
+#[test]
+fn listings_that_point_outside_the_pack_are_reported() {
+    let (f, _) = fixture();
+    let pack = last_line(&f.run(&["run", "fund.yaml", "--quiet"]).stdout);
+    // A manifest output named with a path outside the pack folder (digest of the outside file given).
+    let outside = f.write("secret.txt", "outside\n");
+    let mut manifest: serde_json::Value =
+        serde_json::from_str(&std::fs::read_to_string(pack.join("manifest.json")).unwrap())
+            .unwrap();
+    let digest = {
+        use sha2::Digest;
+        sha2::Sha256::digest(std::fs::read(&outside).unwrap())
+            .iter()
+            .map(|b| format!("{b:02x}"))
+            .collect::<String>()
+    };
+    manifest["outputs"]
+        .as_array_mut()
+        .unwrap()
+        .push(serde_json::json!({"file": "../../../../secret.txt", "sha256": digest}));
+    std::fs::write(pack.join("manifest.json"), manifest.to_string()).unwrap();
+    let ran = f.run(&["verify", pack.to_str().unwrap()]);
+    assert_eq!(ran.code, 7, "{}", ran.stderr);
+    assert!(
+        ran.stderr.contains("../../../../secret.txt"),
+        "{}",
+        ran.stderr
+    );
+}

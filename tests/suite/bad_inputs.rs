@@ -163,7 +163,48 @@ cases!(
     config_tab_indentation,
     config_not_utf8,
     output_root_is_a_file,
-    output_pack_folder_is_a_file
+    output_pack_folder_is_a_file,
+    config_unknown_key_on_first_line,
+    config_unknown_key_after_byte_order_mark,
+    config_unknown_key_nested_on_first_line,
+    config_unknown_key_in_fund_list,
+    config_unknown_key_too_long,
+    config_fund_name_too_long,
+    config_role_title_too_long,
+    config_group_name_too_long,
+    config_prepared_by_many_lines,
+    config_long_value_in_fund_list,
+    config_fifty_megabyte_value,
+    config_group_blank_asset,
+    config_group_tag_blank_value,
+    config_exclude_blank,
+    config_role_blank_title,
+    config_prices_is_a_folder,
+    config_holdings_is_dev_null,
+    config_prices_is_dev_zero,
+    config_assets_is_a_named_pipe,
+    config_holdings_is_a_broken_symlink,
+    config_prices_is_a_socket,
+    metadata_blank_class,
+    metadata_whitespace_class,
+    metadata_name_too_long,
+    metadata_tag_too_long,
+    holdings_blank_asset,
+    stress_broken_yaml,
+    stress_duplicate_shock_name,
+    stress_blank_shock_name,
+    stress_description_too_long,
+    stress_unknown_asset,
+    stress_tag_matches_no_asset,
+    stress_tag_blank_column,
+    stress_return_below_minus_one,
+    stress_unknown_key_on_first_line,
+    stress_file_is_a_folder,
+    stress_file_missing,
+    stress_file_is_a_named_pipe,
+    stress_fifty_megabyte_file,
+    output_root_is_a_pack,
+    output_root_inside_a_pack,
 );
 
 #[test]
@@ -208,31 +249,52 @@ struct Ran {
     stderr: String,
 }
 
+/// Longest a run of a corpus case may take before it counts as hanging (a named pipe opened for reading
+/// waits for a writer forever): it is killed and the case fails.
+const HANG: std::time::Duration = std::time::Duration::from_secs(300);
+
 fn run(dir: &Path, args: &[&str]) -> Ran {
-    let out = Command::new(env!("CARGO_BIN_EXE_tailpack"))
-        .args(args)
-        .current_dir(dir)
-        .output()
-        .expect("binary runs");
+    let r = super::common::run_in(dir, args, HANG);
     Ran {
-        code: out.status.code().unwrap_or(-1),
-        stdout: String::from_utf8_lossy(&out.stdout).into(),
-        stderr: String::from_utf8_lossy(&out.stderr).into(),
+        code: r.code,
+        stdout: r.stdout,
+        stderr: r.stderr,
+    }
+}
+
+/// A case copied beside `_good/` into a temporary folder, its generated inputs written.
+struct Setup {
+    tmp: tempfile::TempDir,
+    expect: Expect,
+    /// Fragments the message must contain: `says` and what the generator adds.
+    needles: Vec<String>,
+}
+
+fn setup(name: &str) -> Setup {
+    let text = std::fs::read_to_string(corpus().join(name).join("expect.yaml")).unwrap();
+    let expect: Expect =
+        serde_yaml_ng::from_str(&text).unwrap_or_else(|err| panic!("{name}/expect.yaml: {err}"));
+    let tmp = tempfile::tempdir().unwrap();
+    copy_dir(&corpus().join("_good"), &tmp.path().join("_good"));
+    copy_dir(&corpus().join(name), &tmp.path().join(name));
+    let mut needles: Vec<String> = expect.says.clone();
+    if let Some(g) = &expect.generate {
+        needles.extend(generate(g, &tmp.path().join(name)));
+    }
+    Setup {
+        tmp,
+        expect,
+        needles,
     }
 }
 
 fn run_case(name: &str) {
-    let text = std::fs::read_to_string(corpus().join(name).join("expect.yaml")).unwrap();
-    let e: Expect =
-        serde_yaml_ng::from_str(&text).unwrap_or_else(|err| panic!("{name}/expect.yaml: {err}"));
-    let tmp = tempfile::tempdir().unwrap();
+    let Setup {
+        tmp,
+        expect: e,
+        needles,
+    } = setup(name);
     let root = tmp.path();
-    copy_dir(&corpus().join("_good"), &root.join("_good"));
-    copy_dir(&corpus().join(name), &root.join(name));
-    let mut needles: Vec<String> = e.says.clone();
-    if let Some(g) = &e.generate {
-        needles.extend(generate(g, &root.join(name)));
-    }
     let config = format!("{name}/fund.yaml");
     let mut args: Vec<&str> = vec!["run", &config, "--quiet"];
     if e.output.as_deref() != Some("config") {
@@ -253,6 +315,69 @@ fn run_case(name: &str) {
         passed(name, &e, root, &ran, &shown);
     } else {
         failed(name, &e, root, &ran, &needles, &shown);
+    }
+}
+
+/// Cases that `run` refuses only at or after solving, which `check` (it solves nothing and writes
+/// nothing) cannot refuse, and why.
+const REFUSED_AFTER_SOLVING: &[(&str, &str)] = &[
+    (
+        "config_template_typst_error",
+        "custom templates are compiled when the PDF is rendered, from the solved results",
+    ),
+    (
+        "output_pack_folder_is_a_file",
+        "the finished pack is moved into place after solving; check builds no pack",
+    ),
+];
+
+/// `check` runs the same steps as `run` up to its first LP, so every case `run` refuses before solving,
+/// `check` refuses with the same exit code and a message naming the same file and place; every case
+/// that runs through passes `check`.
+#[test]
+fn check_refuses_what_run_refuses_before_solving() {
+    for (name, _) in REFUSED_AFTER_SOLVING {
+        assert!(CASES.contains(name), "{name} is not a corpus case");
+    }
+    for name in CASES {
+        if REFUSED_AFTER_SOLVING.iter().any(|(n, _)| n == name) {
+            continue;
+        }
+        let Setup {
+            tmp,
+            expect: e,
+            needles,
+        } = setup(name);
+        let config = format!("{name}/fund.yaml");
+        let mut args: Vec<&str> = vec!["check", &config];
+        for pair in e.args.chunks(2) {
+            assert_eq!(
+                pair[0], "--as-of",
+                "{name}: check takes only --as-of of the run options"
+            );
+            args.extend(pair.iter().map(String::as_str));
+        }
+        let ran = run(tmp.path(), &args);
+        let shown = format!(
+            "check of case {name} ({}):\nexit {}\nstdout: {}\nstderr: {}",
+            e.what,
+            ran.code,
+            &ran.stdout[..ran.stdout.len().min(2000)],
+            ran.stderr
+        );
+        assert_eq!(ran.code, e.exit, "exit code; {shown}");
+        if e.exit == 0 {
+            assert!(ran.stdout.contains("is valid"), "{shown}");
+            continue;
+        }
+        let file = format!("{name}/{}", e.file.as_ref().unwrap());
+        for n in [&file, e.place.as_ref().unwrap()]
+            .into_iter()
+            .chain(&needles)
+        {
+            assert!(ran.stderr.contains(n.as_str()), "must say `{n}`; {shown}");
+        }
+        assert!(ran.stderr.len() <= MAX_STDERR, "{shown}");
     }
 }
 
@@ -484,6 +609,43 @@ fn generate(what: &str, dir: &Path) -> Vec<String> {
                 // The writer knows where it put the damaged record; the message must name that byte.
                 vec![format!("byte {at}:")]
             }
+        }
+        "huge_config_value" => {
+            // The case's config with a fund name of 50 MB.
+            let path = dir.join("fund.yaml");
+            let text = std::fs::read_to_string(&path).unwrap().replace(
+                "name: Corpus Test Fund (fictional)",
+                &format!("name: {}", "n".repeat(50 << 20)),
+            );
+            assert!(text.len() > 50 << 20);
+            std::fs::write(path, text).unwrap();
+            vec![]
+        }
+        "huge_stress_file" => {
+            let text = format!(
+                "shocks:\n  - name: Long\n    description: {}\n    moves: [{{ tag: \"class:equity\", return: -0.2 }}]\n",
+                "d".repeat(50 << 20)
+            );
+            std::fs::write(dir.join("stress.yaml"), text).unwrap();
+            vec![]
+        }
+        g if g.starts_with("fifo:") => {
+            let made = Command::new("mkfifo")
+                .arg(dir.join(&g["fifo:".len()..]))
+                .status()
+                .expect("mkfifo (coreutils) runs");
+            assert!(made.success());
+            vec![]
+        }
+        g if g.starts_with("socket:") => {
+            // The socket file stays after the listener is dropped; nothing listens on it.
+            std::os::unix::net::UnixListener::bind(dir.join(&g["socket:".len()..])).unwrap();
+            vec![]
+        }
+        g if g.starts_with("dangling_symlink:") => {
+            let link = dir.join(&g["dangling_symlink:".len()..]);
+            std::os::unix::fs::symlink(dir.join("no-such-target.csv"), link).unwrap();
+            vec![]
         }
         "fuzz_regression" => {
             // An input found by `cargo fuzz run price_parquet`, kept as it was found (fuzz/regressions/).

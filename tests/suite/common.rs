@@ -49,6 +49,12 @@ impl Fixture {
         }
     }
 
+    /// Runs the tailpack binary with `args` in the fixture folder, killing it and failing the test if it
+    /// has not finished within `limit` (an input that makes it wait forever must not hang the suite).
+    pub fn run_within(&self, args: &[&str], limit: std::time::Duration) -> Ran {
+        run_in(self.dir.path(), args, limit)
+    }
+
     /// A complete small fund: `market` prices, metadata, holdings, and a config with `extra` YAML appended
     /// under `limits:`-free top-level keys (caller supplies whole sections).
     pub fn small_fund(&self, market: &Market, config: &str) -> PathBuf {
@@ -68,6 +74,47 @@ impl Fixture {
                 .collect(),
             Err(_) => vec![],
         }
+    }
+}
+
+/// Runs the tailpack binary with `args` in `dir`; kills it and panics when it has not finished within
+/// `limit`. Output is read while it runs, so a long report cannot fill a pipe and stall it.
+pub fn run_in(dir: &Path, args: &[&str], limit: std::time::Duration) -> Ran {
+    use std::io::Read;
+    let mut child = Command::new(env!("CARGO_BIN_EXE_tailpack"))
+        .args(args)
+        .current_dir(dir)
+        .stdout(std::process::Stdio::piped())
+        .stderr(std::process::Stdio::piped())
+        .spawn()
+        .expect("binary runs");
+    let drain = |mut r: Box<dyn Read + Send>| {
+        std::thread::spawn(move || {
+            let mut b = Vec::new();
+            let _ = r.read_to_end(&mut b);
+            String::from_utf8_lossy(&b).into_owned()
+        })
+    };
+    let (out, err) = (
+        drain(Box::new(child.stdout.take().expect("piped"))),
+        drain(Box::new(child.stderr.take().expect("piped"))),
+    );
+    let start = std::time::Instant::now();
+    let status = loop {
+        if let Some(s) = child.try_wait().expect("wait") {
+            break s;
+        }
+        if start.elapsed() > limit {
+            let _ = child.kill();
+            let _ = child.wait();
+            panic!("tailpack {args:?} did not finish within {limit:?}");
+        }
+        std::thread::sleep(std::time::Duration::from_millis(10));
+    };
+    Ran {
+        code: status.code().unwrap_or(-1),
+        stdout: out.join().expect("stdout"),
+        stderr: err.join().expect("stderr"),
     }
 }
 

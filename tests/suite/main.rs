@@ -8,6 +8,7 @@ mod cli;
 mod common;
 mod demo;
 mod faults;
+mod inputs;
 mod models;
 mod parquet_bytes;
 mod parquet_seeds;
