@@ -139,7 +139,7 @@ impl Walk {
             return Err(refuse(
                 listed,
                 format!(
-                    "is nested more than {MAX_DEPTH} folders deep in the template folder; keep templates in a shallower tree"
+                    "is nested more than {MAX_DEPTH} folders deep in the custom template folder (report.templates); keep templates in a shallower tree"
                 ),
             ));
         }
@@ -161,7 +161,7 @@ impl Walk {
                     return Err(refuse(
                         &entry,
                         format!(
-                            "is a symbolic link to {}, a folder that contains it (a loop); remove the link",
+                            "is a symbolic link to {}, a folder that contains it (a loop); remove the link from the custom template folder (report.templates)",
                             real.display()
                         ),
                     ));
@@ -175,7 +175,7 @@ impl Walk {
                 return Err(refuse(
                     &entry,
                     format!(
-                        "is {}, not a regular file; the template folder may hold only files and folders",
+                        "is {}, not a regular file; the custom template folder (report.templates) may hold only files and folders",
                         fs::kind_of(&meta)
                     ),
                 ));
@@ -193,7 +193,7 @@ impl Walk {
         Err(refuse(
             entry,
             format!(
-                "is one entry more than the {MAX_ENTRIES} files and folders a template folder may hold (links to folders count what they hold again)"
+                "is one entry more than the {MAX_ENTRIES} files and folders the custom template folder (report.templates) may hold (links to folders count what they hold again)"
             ),
         ))
     }
@@ -204,7 +204,7 @@ impl Walk {
             return Err(refuse(
                 &listed,
                 format!(
-                    "brings the template folder over {} MB, the typesetting memory budget (report.typeset_memory_mb), which the folder's files must fit in; keep large files out of the template folder or raise the budget",
+                    "brings the custom template folder (report.templates) over {} MB, the typesetting memory budget (report.typeset_memory_mb), which the folder's files must fit in; keep large files out of the template folder or raise the budget",
                     self.max_bytes >> 20
                 ),
             ));
@@ -252,11 +252,11 @@ fn check_name(entry: &Path) -> Result<()> {
         Some(n) if !n.contains('\\') => Ok(()),
         Some(_) => Err(refuse(
             entry,
-            "has a backslash in its name, which no template path can name; rename it".into(),
+            "has a backslash in its name, which no template path can name; rename it in the custom template folder (report.templates)".into(),
         )),
         None => Err(refuse(
             entry,
-            "has a name that is not UTF-8 text, which no template path can name; rename it".into(),
+            "has a name that is not UTF-8 text, which no template path can name; rename it in the custom template folder (report.templates)".into(),
         )),
     }
 }
@@ -280,7 +280,7 @@ fn unresolvable(entry: &Path, link: Option<&Path>, e: std::io::Error) -> Error {
     refuse(
         entry,
         format!(
-            "is a symbolic link to {} that cannot be followed: {why}; remove or fix the link",
+            "is a symbolic link to {} that cannot be followed: {why}; remove or fix the link in the custom template folder (report.templates)",
             target.display()
         ),
     )
