@@ -525,6 +525,37 @@ fn allocating_templates_stop_at_the_memory_budget_with_exit_2() {
 }
 
 #[test]
+fn funds_of_one_config_each_stop_at_the_budget_and_leave_nothing() {
+    let f = fixture("  typeset_seconds: 2\n");
+    summary(&f, LOOPS[0].1);
+    let base = std::fs::read_to_string(f.path("fund.yaml")).unwrap();
+    f.write(
+        "fund.yaml",
+        &format!(
+            "{base}funds:\n  - fund: {{ name: Alpha Mandate (fictional), short_name: alpha }}\n  - fund: {{ name: Beta Mandate (fictional), short_name: beta }}\n"
+        ),
+    );
+    let (ran, took) = run(&f);
+    assert_eq!(ran.code, 2, "{}\n{}", ran.stdout, ran.stderr);
+    assert!(took < Duration::from_secs(60), "took {took:?}");
+    for fund in ["alpha", "beta"] {
+        assert!(
+            ran.stdout.contains(&format!("{fund}: FAILED"))
+                && ran.stdout.contains("did not finish within 2 s"),
+            "{}",
+            ran.stdout
+        );
+    }
+    for p in files_below(&f.path("out")) {
+        let name = p.to_string_lossy().into_owned();
+        assert!(
+            !name.contains(".partial-") && !name.ends_with("pack.pdf"),
+            "left behind: {name}"
+        );
+    }
+}
+
+#[test]
 fn deep_recursion_and_nesting_end_in_a_template_error() {
     for body in [
         "#let f(n) = f(n + 1)\n#f(0)",
