@@ -566,6 +566,12 @@ fn deep_recursion_and_nesting_end_in_a_template_error() {
         summary(&f, body);
         let (ran, _) = run(&f);
         refused(&f, &ran, "tpl", &["template "]);
+        // typst's own depth limits, or the stack of the typesetter child running out.
+        assert!(
+            ran.stderr.contains("maximum") || ran.stderr.contains("ran out of stack"),
+            "{body}: {}",
+            ran.stderr
+        );
     }
 }
 
