@@ -479,10 +479,26 @@ pub fn outputs(r: &RunResult, plan: &crate::archive::Plan) -> Result<Outputs> {
         ];
         (files, results)
     });
-    files.push(("pack.pdf", crate::report::render(r, &results, id)?));
+    let pdf = crate::report::render_with(r, &results, id, recorded_templates(plan))?;
+    files.push(("pack.pdf", pdf));
     let summary = summary(r);
     files.push(("summary.txt", summary.clone().into_bytes()));
     Ok(Outputs { files, summary })
+}
+
+/// The custom template files as the plan read and recorded them (built-in ones have no source file).
+fn recorded_templates(plan: &crate::archive::Plan) -> Vec<crate::report::templates::CustomFile> {
+    plan.files
+        .iter()
+        .filter(|f| f.role == "template")
+        .filter_map(|f| {
+            Some(crate::report::templates::CustomFile {
+                rel: f.name.strip_prefix("templates/")?.to_string(),
+                path: f.source.clone()?,
+                bytes: f.bytes.clone(),
+            })
+        })
+        .collect()
 }
 
 /// Writes made outputs into `dir`.
@@ -498,4 +514,48 @@ pub fn fill(r: &RunResult, dir: &Path, plan: &crate::archive::Plan) -> Result<St
     let made = outputs(r, plan)?;
     timings::time("writing", || store(&made, dir))?;
     Ok(made.summary)
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::archive::{Archived, Plan};
+
+    fn archived(role: &'static str, name: &str, source: Option<&str>, bytes: &[u8]) -> Archived {
+        Archived {
+            role,
+            name: name.into(),
+            source: source.map(PathBuf::from),
+            bytes: bytes.to_vec(),
+            sha256: String::new(),
+        }
+    }
+
+    #[test]
+    fn the_typesetter_gets_the_custom_templates_the_plan_recorded() {
+        let plan = Plan {
+            files: vec![
+                archived("config", "config.yaml", Some("fund.yaml"), b"fund: {}"),
+                archived("template", "templates/main.typ", None, b"built-in"),
+                archived(
+                    "template",
+                    "templates/parts/summary.typ",
+                    Some("tpl/parts/summary.typ"),
+                    b"as hashed",
+                ),
+            ],
+            listing: String::new(),
+            pack_id: String::new(),
+            folder: PathBuf::new(),
+        };
+        let got = recorded_templates(&plan);
+        assert_eq!(
+            got.len(),
+            1,
+            "built-in templates and other inputs are not custom files"
+        );
+        assert_eq!(got[0].rel, "parts/summary.typ");
+        assert_eq!(got[0].path, PathBuf::from("tpl/parts/summary.typ"));
+        assert_eq!(got[0].bytes, b"as hashed");
+    }
 }

@@ -41,7 +41,18 @@ pub const RESULTS_JSON: &str = "/data/results.json";
 /// Typesets the pack PDF of a run. `results` is the `results.json` document and `pack_id` its identifier.
 /// Everything is prepared in memory first; typesetting then runs under the config's budget.
 pub fn render(r: &RunResult, results: &Value, pack_id: &str) -> Result<Vec<u8>> {
-    let job = crate::timings::time("charts", || job(r, results, pack_id))?;
+    render_with(r, results, pack_id, templates::custom(&r.config)?)
+}
+
+/// [`render`] with the custom template files already read: the pack writer passes the ones the archive
+/// recorded, so the PDF is typeset from exactly the bytes the pack id covers.
+pub fn render_with(
+    r: &RunResult,
+    results: &Value,
+    pack_id: &str,
+    custom: Vec<templates::CustomFile>,
+) -> Result<Vec<u8>> {
+    let job = crate::timings::time("charts", || job(r, results, pack_id, custom))?;
     let budget = budget(&r.config);
     crate::timings::time("typesetting", || typeset::run(job, &budget))
 }
@@ -60,10 +71,15 @@ fn budget(cfg: &crate::config::Config) -> typeset::Budget {
     }
 }
 
-fn job(r: &RunResult, results: &Value, pack_id: &str) -> Result<typeset::Job> {
+fn job(
+    r: &RunResult,
+    results: &Value,
+    pack_id: &str,
+    custom: Vec<templates::CustomFile>,
+) -> Result<typeset::Job> {
     let views = data::views(r);
     let report = data::build(r, results, pack_id);
-    let (mut files, fonts) = templates::load(&r.config)?;
+    let (mut files, fonts) = templates::load_from(custom);
     let mut made = vec![
         generated(
             REPORT_JSON,

@@ -4,12 +4,13 @@
 //! A custom folder may hold any of the default names (it replaces that file), new files that a custom
 //! partial imports (e.g. a logo), and `.ttf`/`.otf` fonts, which are registered with the typesetter.
 //!
-//! [`custom_files`] is the one listing of the custom folder: the typesetter sees exactly these files and
-//! the archive copies and hashes exactly these (`inputs/templates/`). It resolves every path and refuses
-//! anything whose real path lies outside the folder (a symbolic link to a file or folder elsewhere), links
-//! that cannot be followed (dangling, or a loop), links to a folder that contains them, and anything that
-//! is not a regular file or folder. Links that stay inside the folder are followed. Hidden entries (names
-//! starting with `.`) are skipped, so neither the typesetter nor the archive sees them.
+//! [`custom`] ([`custom_files`]) is the one listing of the custom folder: the archive copies and hashes
+//! exactly these files (`inputs/templates/`) and the typesetter is handed exactly their bytes. It resolves
+//! every path and refuses anything whose real path lies outside the folder (a symbolic link to a file or
+//! folder elsewhere), links that cannot be followed (dangling, or a loop), links to a folder that contains
+//! them, and anything that is not a regular file or folder. Links that stay inside the folder are
+//! followed. Hidden entries (names starting with `.`) are skipped, so neither the typesetter nor the
+//! archive sees them.
 
 use super::world::{Origin, WorldFile};
 use crate::config::Config;
@@ -51,6 +52,13 @@ pub const FONTS: [&[u8]; 4] = [
 /// Template files for the world and any extra font files, defaults first, then the files of the config's
 /// custom folder replacing defaults of the same name.
 pub fn load(cfg: &Config) -> Result<(Vec<WorldFile>, Vec<Vec<u8>>)> {
+    Ok(load_from(custom(cfg)?))
+}
+
+/// [`load`] from custom files already read (those the archive recorded for this run). Fonts are taken in
+/// the order of their names, however the files were listed, so their order never changes the PDF.
+pub fn load_from(mut custom: Vec<CustomFile>) -> (Vec<WorldFile>, Vec<Vec<u8>>) {
+    custom.sort_by(|a, b| a.rel.cmp(&b.rel));
     let mut files: Vec<WorldFile> = DEFAULTS
         .iter()
         .map(|(name, text)| WorldFile {
@@ -60,7 +68,7 @@ pub fn load(cfg: &Config) -> Result<(Vec<WorldFile>, Vec<Vec<u8>>)> {
         })
         .collect();
     let mut fonts = Vec::new();
-    for f in custom(cfg)? {
+    for f in custom {
         if is_font(&f.path) {
             fonts.push(f.bytes);
             continue;
@@ -73,7 +81,7 @@ pub fn load(cfg: &Config) -> Result<(Vec<WorldFile>, Vec<Vec<u8>>)> {
             origin: Origin::Custom(f.path),
         });
     }
-    Ok((files, fonts))
+    (files, fonts)
 }
 
 /// One file of the custom template folder, as the typesetter reads it and the archive keeps it.
