@@ -122,23 +122,17 @@ pub fn plan(cfg: &Config, as_of: NaiveDate) -> Result<Plan> {
     })
 }
 
-/// The effective template files: built-in defaults not overridden, plus every file of the custom folder.
+/// The effective template files: built-in defaults not overridden, plus every file of the custom folder
+/// as the typesetter sees it (`report::templates::custom`, the one checked listing of the folder).
 fn templates(cfg: &Config) -> Result<Vec<Archived>> {
     let mut custom = Vec::new();
-    if let Some(dir) = &cfg.templates {
-        for p in fs::files_below(dir)? {
-            let rel = p
-                .strip_prefix(dir)
-                .expect("below dir")
-                .to_string_lossy()
-                .replace('\\', "/");
-            custom.push(archived(
-                "template",
-                format!("templates/{rel}"),
-                Some(p.clone()),
-                fs::read(&p)?,
-            ));
-        }
+    for f in crate::report::templates::custom(cfg)? {
+        custom.push(archived(
+            "template",
+            format!("templates/{}", f.rel),
+            Some(f.path),
+            f.bytes,
+        ));
     }
     let mut out: Vec<Archived> = crate::report::templates::DEFAULTS
         .iter()

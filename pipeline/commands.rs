@@ -374,7 +374,8 @@ pub fn sign(pack: &Path, role: &str, key: &Path, name: Option<&str>) -> Result<S
 
 /// `tailpack check`: every check `run` makes before its first LP, through the same steps (config and
 /// stress file, output root, data and its quality, scenarios, feasible set, stress shocks against the
-/// data), so it refuses what `run` refuses with the same exit code; returns the data-quality report.
+/// data, the custom template folder), so it refuses what `run` refuses with the same exit code; returns
+/// the data-quality report.
 pub fn check(config: &Path, opts: &RunOptions) -> Result<String> {
     let funds = crate::config::load_all(config)?;
     output_root(config, &funds[0], opts)?;
@@ -388,6 +389,8 @@ pub fn check(config: &Path, opts: &RunOptions) -> Result<String> {
 fn check_fund(cfg: crate::config::Config, opts: &RunOptions) -> Result<String> {
     let prepared = run::prepare_fund(cfg, opts)?;
     let (cfg, data) = (&prepared.cfg, &prepared.data);
+    // `run` reads the template folder when it plans the pack, before its first LP.
+    crate::report::templates::custom(cfg)?;
     let q = &data.quality;
     let mut out = format!(
         "fund {}: config {} is valid\nprices {} ({} layout): {} to {}; as-of {}; scenario window {} to {} ({} observations)\nfill policy: {}\n",

@@ -378,13 +378,39 @@ pub struct RawOutput {
 }
 
 /// Settings of the PDF pack.
-#[derive(Debug, Deserialize, Default, Clone)]
+#[derive(Debug, Deserialize, Clone)]
 #[serde(deny_unknown_fields, default)]
 pub struct RawReport {
     /// Folder of custom typst templates, relative to the config file; its files replace the built-in
     /// templates of the same name, file by file.
     pub templates: Option<PathBuf>,
+    /// Wall-clock seconds the typesetter may take for one PDF before it is stopped.
+    pub typeset_seconds: u64,
+    /// Megabytes of memory the typesetter may allocate for one PDF.
+    pub typeset_memory_mb: u64,
 }
+
+impl Default for RawReport {
+    fn default() -> Self {
+        RawReport {
+            templates: None,
+            typeset_seconds: 300,
+            typeset_memory_mb: 2048,
+        }
+    }
+}
+
+/// The typesetter's budget for one PDF (`report.typeset_seconds`, `report.typeset_memory_mb`).
+#[derive(Debug, Clone, Copy)]
+pub struct TypesetBudget {
+    pub seconds: u64,
+    pub memory_mb: u64,
+}
+
+/// Allowed `report.typeset_seconds`: at least a second, at most an hour.
+pub const TYPESET_SECONDS: std::ops::RangeInclusive<u64> = 1..=3600;
+/// Allowed `report.typeset_memory_mb`: enough for the typesetter to start, at most 1 TiB.
+pub const TYPESET_MEMORY_MB: std::ops::RangeInclusive<u64> = 256..=1_048_576;
 
 /// A group limit with its members resolved later against the asset list.
 #[derive(Debug, Clone, serde::Serialize)]
@@ -449,6 +475,8 @@ pub struct Config {
     pub stress_windows: usize,
     /// Custom template folder (`report.templates`), resolved and checked to be a folder.
     pub templates: Option<PathBuf>,
+    /// Time and memory the typesetter may use for one PDF.
+    pub typeset: TypesetBudget,
     /// Required sign-off roles, in signing order.
     pub signoff: Vec<SignRole>,
 }
@@ -666,6 +694,8 @@ const KNOWN_KEYS: &[&str] = &[
     "return",
     "report",
     "templates",
+    "typeset_seconds",
+    "typeset_memory_mb",
     "signoff",
     "roles",
     "role",
@@ -991,6 +1021,7 @@ fn resolve_at(path: &Path, raw: RawConfig, line: &dyn Fn(&str) -> Option<usize>)
     }
     check_analysis(&raw.analysis, &raw.stress).map_err(|(k, m)| bad(k, m))?;
     check_signoff(&raw.signoff).map_err(|(k, m)| bad(&k, m))?;
+    check_report(&raw.report).map_err(|(k, m)| bad(k, m))?;
     for (key, file) in [
         ("data.prices", Some(prices)),
         ("data.assets", Some(assets)),
@@ -1051,6 +1082,10 @@ fn resolve_at(path: &Path, raw: RawConfig, line: &dyn Fn(&str) -> Option<usize>)
         backend: raw.solver.backend,
         out_root,
         templates,
+        typeset: TypesetBudget {
+            seconds: raw.report.typeset_seconds,
+            memory_mb: raw.report.typeset_memory_mb,
+        },
         fund: raw.fund,
         analysis: raw.analysis,
         stress_file: raw.stress.file.as_ref().map(&join),
@@ -1127,6 +1162,32 @@ fn check_signoff(s: &RawSignoff) -> std::result::Result<(), (String, String)> {
                 format!("`{k}` is not an Ed25519 public key (64 hex digits)"),
             ));
         }
+    }
+    Ok(())
+}
+
+fn check_report(r: &RawReport) -> std::result::Result<(), KeyError> {
+    if !TYPESET_SECONDS.contains(&r.typeset_seconds) {
+        return Err((
+            "report.typeset_seconds",
+            format!(
+                "must be between {} and {} seconds, got {}",
+                TYPESET_SECONDS.start(),
+                TYPESET_SECONDS.end(),
+                r.typeset_seconds
+            ),
+        ));
+    }
+    if !TYPESET_MEMORY_MB.contains(&r.typeset_memory_mb) {
+        return Err((
+            "report.typeset_memory_mb",
+            format!(
+                "must be between {} and {} MB, got {}",
+                TYPESET_MEMORY_MB.start(),
+                TYPESET_MEMORY_MB.end(),
+                r.typeset_memory_mb
+            ),
+        ));
     }
     Ok(())
 }

@@ -174,26 +174,24 @@ pub mod fs {
         std::fs::remove_dir_all(path).map_err(io("cannot remove folder", path))
     }
 
-    /// Every regular file below `dir`, hidden entries skipped, in sorted order (so anything built from the
-    /// listing is the same on every run).
-    pub fn files_below(dir: &Path) -> Result<Vec<std::path::PathBuf>> {
-        let mut entries: Vec<std::path::PathBuf> = std::fs::read_dir(dir)
-            .map_err(io("cannot read folder", dir))?
-            .filter_map(|e| e.ok().map(|e| e.path()))
-            .filter(|p| {
-                !p.file_name()
-                    .is_some_and(|n| n.to_string_lossy().starts_with('.'))
-            })
-            .collect();
-        entries.sort();
+    /// The real path of `path`: every symbolic link resolved, absolute.
+    pub fn canonicalize(path: &Path) -> Result<std::path::PathBuf> {
+        std::fs::canonicalize(path).map_err(io("cannot resolve", path))
+    }
+
+    /// What `path` is, following symbolic links.
+    pub fn metadata(path: &Path) -> Result<std::fs::Metadata> {
+        std::fs::metadata(path).map_err(io("cannot inspect", path))
+    }
+
+    /// The entries of a folder (full paths), sorted so that anything built from them is the same on
+    /// every run.
+    pub fn read_dir_sorted(dir: &Path) -> Result<Vec<std::path::PathBuf>> {
         let mut out = Vec::new();
-        for p in entries {
-            if p.is_dir() {
-                out.extend(files_below(&p)?);
-            } else if p.is_file() {
-                out.push(p);
-            }
+        for entry in std::fs::read_dir(dir).map_err(io("cannot read folder", dir))? {
+            out.push(entry.map_err(io("cannot read folder", dir))?.path());
         }
+        out.sort();
         Ok(out)
     }
 

@@ -8,7 +8,8 @@
 //! - [`models`]: the three CVaR model families as LPs (HiGHS or Clarabel), with their preconditions.
 //! - [`analysis`]: efficient frontier, stress set, walk-forward backtest with VaR backtests.
 //! - [`run`]: wires the stages into one run and resolves rules that depend on earlier results.
-//! - [`report`]: the committee PDF, typeset in-process by typst from the run's results (PDF/A-2b).
+//! - [`report`]: the committee PDF, typeset by typst from the run's results (PDF/A-2b), in a child process
+//!   under a time and memory budget; custom templates read only inside their folder.
 //! - [`pack`]: writes the pack folder (scenarios, results, weights, summary, PDF).
 //! - [`archive`]: pack identity, revisions, manifest, index, lock and verification.
 //! - [`signoff`]: Ed25519 keys, signed statements over a pack, and their checks.

@@ -124,6 +124,14 @@ enum Command {
         /// Target folder, e.g. config-demo/data.
         dir: PathBuf,
     },
+    /// Internal: typesets one PDF from a prepared file set on stdin, under the given limits.
+    #[command(name = "typeset-child", hide = true)]
+    TypesetChild {
+        #[arg(long)]
+        memory_mb: u64,
+        #[arg(long)]
+        seconds: u64,
+    },
 }
 
 /// Prints a sign-off command's warnings on stderr; its text goes to stdout with exit 0.
@@ -136,6 +144,10 @@ fn signed(s: tailpack::commands::Signed) -> (String, i32) {
 
 fn main() {
     let cli = Cli::parse();
+    if let Command::TypesetChild { memory_mb, seconds } = cli.command {
+        std::process::exit(tailpack::report::typeset::serve(memory_mb, seconds));
+    }
+    tailpack::report::typeset::this_binary_serves();
     let result = match &cli.command {
         Command::Run {
             config,
@@ -205,6 +217,7 @@ fn main() {
         )
         .map(|t| (t, 0)),
         Command::DemoData { dir } => tailpack::commands::demo_data(dir).map(|t| (t, 0)),
+        Command::TypesetChild { .. } => unreachable!("handled above"),
     };
     match result {
         Ok((text, code)) => {

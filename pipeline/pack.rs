@@ -1,9 +1,10 @@
 //! Stage 5, pack: writes a run's results into its pack folder — `scenarios.csv`, `results.json`,
 //! `weights.csv`, `pack.pdf` (typeset by the report stage), `summary.txt` — and prints the summary.
 //!
-//! The folder layout is a contract read by outside checkers (README, "The pack folder"). The folder is
-//! built under a temporary name beside its final place and renamed into place only when complete, so a
-//! failed or interrupted run never leaves a partial pack behind.
+//! The folder layout is a contract read by outside checkers (README, "The pack folder"). Every output is
+//! made in memory first (the PDF typeset under its budget); the folder is then written under a hidden
+//! temporary name (`.partial-*`) beside its final place and renamed into place only when complete, so a
+//! failed run leaves no partial pack behind, and a killed one only a hidden folder the next run removes.
 
 use crate::csv_out;
 use crate::error::{Result, fs};
@@ -374,34 +375,27 @@ pub fn summary(r: &RunResult) -> String {
 
 /// Writes the pack as the next revision of its fund/as-of folder, atomically, and updates the archive
 /// index. Returns the pack folder and the summary text. Call with the archive lock held.
+///
+/// Every output, the PDF included, is made in memory before any folder is created, so while the hidden
+/// temporary folder exists only plain file writes happen; a [`Partial`] guard removes it on every error
+/// and panic. A process killed mid-write leaves it hidden, and the next run removes it under the lock.
 pub fn write(r: &RunResult, plan: &crate::archive::Plan) -> Result<(PathBuf, String)> {
+    let made = outputs(r, plan)?;
     let folder = &plan.folder;
+    let mut guard = Partial::new(folder);
     fs::create_dir_all(folder)?;
     crate::archive::clean_partials(folder);
     let revs = crate::archive::revisions(folder);
     let revision = revs.last().map_or(1, |(k, _)| k + 1);
     let previous = revs.last().map(|(_, p)| p.clone());
     let dir = folder.join(format!("r{revision}"));
-    let tmp = folder.join(format!(".partial-r{revision}-{}", std::process::id()));
-    fs::create_dir_all(&tmp)?;
-    let result = fill(r, &tmp, plan).and_then(|text| {
-        timings::time("hashing", || {
-            crate::archive::seal(&tmp, plan, &r.config, revision, previous.as_deref())
-        })?;
-        Ok(text)
-    });
-    if result.is_err() {
-        // Leave nothing behind: the temporary folder, and the fund/as-of folders if this run made them.
-        let _ = std::fs::remove_dir_all(&tmp);
-        let _ = std::fs::remove_dir(folder);
-        let _ = folder.parent().map(std::fs::remove_dir);
-    }
-    let text = result?;
-    if let Err(e) = fs::rename(&tmp, &dir) {
-        // Something in the way of the final folder (a file, say): leave no half-placed pack behind.
-        let _ = std::fs::remove_dir_all(&tmp);
-        return Err(e);
-    }
+    let tmp = guard.create(format!(".partial-r{revision}-{}", std::process::id()))?;
+    timings::time("writing", || store(&made, &tmp))?;
+    timings::time("hashing", || {
+        crate::archive::seal(&tmp, plan, &r.config, revision, previous.as_deref())
+    })?;
+    fs::rename(&tmp, &dir)?;
+    guard.placed();
     timings::time("writing", || {
         crate::archive::write_index(&r.config.out_root)
     })?;
@@ -417,27 +411,154 @@ pub fn write(r: &RunResult, plan: &crate::archive::Plan) -> Result<(PathBuf, Str
         .unwrap_or_default();
     Ok((
         shown.clone(),
-        format!("{text}{note}pack: {}\n", shown.display()),
+        format!("{}{note}pack: {}\n", made.summary, shown.display()),
     ))
+}
+
+/// The hidden temporary folder of a pack being written, removed when dropped unless it was renamed into
+/// place — on an error return and on a panic alike — together with the fund and as-of folders if they
+/// are left empty.
+struct Partial {
+    folder: PathBuf,
+    tmp: Option<PathBuf>,
+    placed: bool,
+}
+
+impl Partial {
+    fn new(folder: &Path) -> Self {
+        Partial {
+            folder: folder.to_path_buf(),
+            tmp: None,
+            placed: false,
+        }
+    }
+
+    /// Creates the temporary folder `name` inside the fund/as-of folder.
+    fn create(&mut self, name: String) -> Result<PathBuf> {
+        let tmp = self.folder.join(name);
+        self.tmp = Some(tmp.clone());
+        fs::create_dir_all(&tmp)?;
+        Ok(tmp)
+    }
+
+    /// The folder was renamed into place: nothing to remove.
+    fn placed(mut self) {
+        self.placed = true;
+    }
+}
+
+impl Drop for Partial {
+    fn drop(&mut self) {
+        if self.placed {
+            return;
+        }
+        if let Some(tmp) = &self.tmp {
+            let _ = std::fs::remove_dir_all(tmp);
+        }
+        // Only empty folders go: the fund/as-of folders this run made, never earlier revisions.
+        let _ = std::fs::remove_dir(&self.folder);
+        let _ = self.folder.parent().map(std::fs::remove_dir);
+    }
+}
+
+/// The output files of a run, made in memory, and the summary text.
+pub struct Outputs {
+    /// File name and bytes, in writing order.
+    pub files: Vec<(&'static str, Vec<u8>)>,
+    pub summary: String,
+}
+
+/// Makes every output of a run in memory: scenarios, weights, results, the typeset PDF, the summary.
+pub fn outputs(r: &RunResult, plan: &crate::archive::Plan) -> Result<Outputs> {
+    let inputs = crate::archive::input_list(plan);
+    let id = &plan.pack_id;
+    let (mut files, results) = timings::time("writing", || {
+        let results = results_json(r, &inputs, id);
+        let json = serde_json::to_string_pretty(&results).expect("results serialise") + "\n";
+        let files = vec![
+            ("scenarios.csv", scenarios_csv(r).into_bytes()),
+            ("weights.csv", weights_csv(r).into_bytes()),
+            ("results.json", json.into_bytes()),
+        ];
+        (files, results)
+    });
+    let pdf = crate::report::render_with(r, &results, id, recorded_templates(plan))?;
+    files.push(("pack.pdf", pdf));
+    let summary = summary(r);
+    files.push(("summary.txt", summary.clone().into_bytes()));
+    Ok(Outputs { files, summary })
+}
+
+/// The custom template files as the plan read and recorded them (built-in ones have no source file).
+fn recorded_templates(plan: &crate::archive::Plan) -> Vec<crate::report::templates::CustomFile> {
+    plan.files
+        .iter()
+        .filter(|f| f.role == "template")
+        .filter_map(|f| {
+            Some(crate::report::templates::CustomFile {
+                rel: f.name.strip_prefix("templates/")?.to_string(),
+                path: f.source.clone()?,
+                bytes: f.bytes.clone(),
+            })
+        })
+        .collect()
+}
+
+/// Writes made outputs into `dir`.
+pub fn store(made: &Outputs, dir: &Path) -> Result<()> {
+    for (name, bytes) in &made.files {
+        fs::write(&dir.join(name), bytes)?;
+    }
+    Ok(())
 }
 
 /// Writes the outputs of a run into `dir` (results, scenarios, weights, summary, PDF).
 pub fn fill(r: &RunResult, dir: &Path, plan: &crate::archive::Plan) -> Result<String> {
-    let inputs = crate::archive::input_list(plan);
-    let id = &plan.pack_id;
-    let results = timings::time("writing", || -> Result<Value> {
-        fs::write(&dir.join("scenarios.csv"), scenarios_csv(r))?;
-        fs::write(&dir.join("weights.csv"), weights_csv(r))?;
-        let results = results_json(r, &inputs, id);
-        let json = serde_json::to_string_pretty(&results).expect("results serialise");
-        fs::write(&dir.join("results.json"), json + "\n")?;
-        Ok(results)
-    })?;
-    let pdf = crate::report::render(r, &results, id)?;
-    timings::time("writing", || {
-        fs::write(&dir.join("pack.pdf"), pdf)?;
-        let text = summary(r);
-        fs::write(&dir.join("summary.txt"), &text)?;
-        Ok(text)
-    })
+    let made = outputs(r, plan)?;
+    timings::time("writing", || store(&made, dir))?;
+    Ok(made.summary)
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::archive::{Archived, Plan};
+
+    fn archived(role: &'static str, name: &str, source: Option<&str>, bytes: &[u8]) -> Archived {
+        Archived {
+            role,
+            name: name.into(),
+            source: source.map(PathBuf::from),
+            bytes: bytes.to_vec(),
+            sha256: String::new(),
+        }
+    }
+
+    #[test]
+    fn the_typesetter_gets_the_custom_templates_the_plan_recorded() {
+        let plan = Plan {
+            files: vec![
+                archived("config", "config.yaml", Some("fund.yaml"), b"fund: {}"),
+                archived("template", "templates/main.typ", None, b"built-in"),
+                archived(
+                    "template",
+                    "templates/parts/summary.typ",
+                    Some("tpl/parts/summary.typ"),
+                    b"as hashed",
+                ),
+            ],
+            listing: String::new(),
+            pack_id: String::new(),
+            folder: PathBuf::new(),
+        };
+        let got = recorded_templates(&plan);
+        assert_eq!(
+            got.len(),
+            1,
+            "built-in templates and other inputs are not custom files"
+        );
+        assert_eq!(got[0].rel, "parts/summary.typ");
+        assert_eq!(got[0].path, PathBuf::from("tpl/parts/summary.typ"));
+        assert_eq!(got[0].bytes, b"as hashed");
+    }
 }

@@ -47,12 +47,30 @@ pub fn take() -> Vec<(&'static str, Duration)> {
     out
 }
 
-/// The peak resident memory of this process in bytes (`VmHWM` in /proc/self/status; Linux only).
+/// The peak resident memory in bytes of this process (`VmHWM` in /proc/self/status; Linux only) or of its
+/// largest finished child (the typesetter), whichever is larger.
 pub fn peak_memory() -> Option<u64> {
     let status = std::fs::read_to_string("/proc/self/status").ok()?;
     let line = status.lines().find(|l| l.starts_with("VmHWM:"))?;
     let kib: u64 = line.split_whitespace().nth(1)?.parse().ok()?;
-    Some(kib * 1024)
+    Some((kib * 1024).max(children_peak()))
+}
+
+/// The peak resident memory of the largest child this process waited for, in bytes.
+#[cfg(target_os = "linux")]
+fn children_peak() -> u64 {
+    // SAFETY: getrusage fills the zeroed struct it is given and touches nothing else.
+    let mut usage: libc::rusage = unsafe { std::mem::zeroed() };
+    if unsafe { libc::getrusage(libc::RUSAGE_CHILDREN, &mut usage) } != 0 {
+        return 0;
+    }
+    // Linux reports ru_maxrss in kibibytes.
+    u64::try_from(usage.ru_maxrss).unwrap_or(0) * 1024
+}
+
+#[cfg(not(target_os = "linux"))]
+fn children_peak() -> u64 {
+    0
 }
 
 /// The stage table printed by `tailpack run --timings`.

@@ -8,7 +8,7 @@
 use chrono::Datelike;
 use std::collections::HashMap;
 use std::path::PathBuf;
-use typst::diag::{FileError, FileResult};
+use typst::diag::{FileError, FileResult, PackageError};
 use typst::foundations::{Bytes, Datetime, Duration};
 use typst::syntax::{FileId, RootedPath, Source, VirtualPath, VirtualRoot};
 use typst::text::{Font, FontBook};
@@ -123,8 +123,17 @@ impl ReportWorld {
         self.files.get(&id).and_then(|e| e.source.as_ref())
     }
 
+    /// The error for a file outside this world; packages are never fetched.
     fn missing(id: FileId) -> FileError {
-        FileError::NotFound(id.vpath().get_with_slash().into())
+        match id.root() {
+            VirtualRoot::Package(spec) => FileError::Package(PackageError::Other(Some(
+                format!(
+                    "{spec}: tailpack does not fetch typst packages; copy the files you need into the custom template folder (report.templates) and import them by path"
+                )
+                .into(),
+            ))),
+            VirtualRoot::Project => FileError::NotFound(id.vpath().get_with_slash().into()),
+        }
     }
 }
 

@@ -161,6 +161,21 @@ cases!(
     config_templates_folder_missing,
     config_templates_folder_without_templates,
     config_template_typst_error,
+    config_template_escapes_folder,
+    config_template_reads_absolute_path,
+    config_template_imports_package,
+    config_template_loops_forever,
+    config_template_allocates_huge_range,
+    config_typeset_seconds_zero,
+    config_typeset_memory_mb_too_small,
+    config_typeset_seconds_not_a_number,
+    config_template_link_to_file_outside,
+    config_template_link_to_folder_outside,
+    config_template_link_to_system_file,
+    config_template_link_to_itself,
+    config_template_link_to_its_own_folder,
+    config_template_dangling_link,
+    config_template_named_pipe,
     config_horizon_out_of_range,
     config_horizon_negative,
     config_two_cap_forms,
@@ -329,6 +344,26 @@ const REFUSED_AFTER_SOLVING: &[(&str, &str)] = &[
     (
         "config_template_typst_error",
         "custom templates are compiled when the PDF is rendered, from the solved results",
+    ),
+    (
+        "config_template_escapes_folder",
+        "paths in templates are resolved when the PDF is typeset",
+    ),
+    (
+        "config_template_reads_absolute_path",
+        "paths in templates are resolved when the PDF is typeset",
+    ),
+    (
+        "config_template_imports_package",
+        "imports in templates are resolved when the PDF is typeset",
+    ),
+    (
+        "config_template_loops_forever",
+        "the typesetting budget applies when the PDF is typeset",
+    ),
+    (
+        "config_template_allocates_huge_range",
+        "the typesetting budget applies when the PDF is typeset",
     ),
     (
         "output_pack_folder_is_a_file",
@@ -678,6 +713,17 @@ fn generate(what: &str, dir: &Path) -> Vec<String> {
         g if g.starts_with("dangling_symlink:") => {
             let link = dir.join(&g["dangling_symlink:".len()..]);
             std::os::unix::fs::symlink(dir.join("no-such-target.csv"), link).unwrap();
+            vec![]
+        }
+        g if g.starts_with("symlink:") => {
+            // `symlink:LINK -> TARGET`: LINK below the case folder, TARGET as written (relative to LINK's
+            // folder, or absolute).
+            let (link, target) = g["symlink:".len()..]
+                .split_once(" -> ")
+                .expect("symlink:LINK -> TARGET");
+            let at = dir.join(link.trim());
+            std::fs::create_dir_all(at.parent().unwrap()).unwrap();
+            std::os::unix::fs::symlink(target.trim(), at).unwrap();
             vec![]
         }
         "fuzz_regression" => {

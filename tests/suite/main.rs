@@ -18,3 +18,4 @@ mod properties;
 mod report;
 mod risk;
 mod signoff;
+mod templates;
