@@ -156,6 +156,11 @@ impl Kind {
         match self {
             Kind::Name => chars(MAX_NAME_CHARS, "a name, title, code, tag or key"),
             Kind::Paragraph => chars(MAX_PARAGRAPH_CHARS, "a description"),
+            Kind::Path if s.chars().any(char::is_control) => Some(
+                "a path with a line break, tab or another control character; inputs are archived and \
+                 listed one file per line (inputs.sha256), so rename the file or folder"
+                    .into(),
+            ),
             Kind::Path => (s.len() > MAX_PATH_BYTES).then(|| {
                 format!(
                     "a path of {} bytes; a path may have at most {MAX_PATH_BYTES} bytes",

@@ -185,6 +185,8 @@ cases!(
     output_root_is_a_file,
     output_pack_folder_is_a_file,
     config_unknown_key_on_first_line,
+    config_data_path_with_line_break,
+    config_output_root_with_tab,
     config_unknown_key_after_byte_order_mark,
     config_unknown_key_nested_on_first_line,
     config_unknown_key_in_fund_list,
