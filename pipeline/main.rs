@@ -20,6 +20,22 @@ struct Cli {
     command: Command,
 }
 
+/// A pack, a required role and that role's key: what `sign` and `finalize` take.
+#[derive(clap::Args)]
+struct SignArgs {
+    /// The pack folder, e.g. out/<fund>/<as-of>/r1.
+    pack: PathBuf,
+    /// The role, as listed under signoff.roles in the config.
+    #[arg(long)]
+    role: String,
+    /// The role's secret key file made by `tailpack keygen`.
+    #[arg(long)]
+    key: PathBuf,
+    /// The signer's name: printed on the sign-off page, or recorded in the finalisation (default: the role).
+    #[arg(long)]
+    name: Option<String>,
+}
+
 #[derive(Subcommand)]
 enum Command {
     /// Build the pack for one month-end: scenarios, the three CVaR models, results and summary.
@@ -79,32 +95,10 @@ enum Command {
         prefix: PathBuf,
     },
     /// Sign a pack for one role with that role's key; refused if the pack fails verify or the role signed.
-    Sign {
-        pack: PathBuf,
-        /// The role signing, as listed under signoff.roles in the config.
-        #[arg(long)]
-        role: String,
-        /// The secret key file made by `tailpack keygen`.
-        #[arg(long)]
-        key: PathBuf,
-        /// The signer's name as printed on the sign-off page (default: the role).
-        #[arg(long)]
-        name: Option<String>,
-    },
-    /// Render the final PDF once every required role has signed and seal it with one of their keys; the
-    /// pack is immutable afterwards.
-    Finalize {
-        pack: PathBuf,
-        /// The required role that seals the final PDF (any role that has signed, e.g. the last signer).
-        #[arg(long)]
-        role: String,
-        /// That role's secret key file.
-        #[arg(long)]
-        key: PathBuf,
-        /// The name recorded for the finalisation (default: the role).
-        #[arg(long)]
-        name: Option<String>,
-    },
+    Sign(SignArgs),
+    /// Render the final PDF once every required role has signed and seal it with one of their keys (any
+    /// role that has signed, e.g. the last signer); the pack is immutable afterwards.
+    Finalize(SignArgs),
     /// Recompute every digest of a pack; any changed, missing or unlisted file fails (exit 7).
     Verify {
         /// The pack folder, e.g. out/<fund>/<as-of>/r1.
@@ -195,18 +189,12 @@ fn main() {
         )
         .map(|t| (t, 0)),
         Command::Keygen { prefix } => tailpack::commands::keygen(prefix).map(|t| (t, 0)),
-        Command::Sign {
-            pack,
-            role,
-            key,
-            name,
-        } => tailpack::commands::sign(pack, role, key, name.as_deref()).map(signed),
-        Command::Finalize {
-            pack,
-            role,
-            key,
-            name,
-        } => tailpack::commands::finalize(pack, role, key, name.as_deref()).map(signed),
+        Command::Sign(a) => {
+            tailpack::commands::sign(&a.pack, &a.role, &a.key, a.name.as_deref()).map(signed)
+        }
+        Command::Finalize(a) => {
+            tailpack::commands::finalize(&a.pack, &a.role, &a.key, a.name.as_deref()).map(signed)
+        }
         Command::Verify { pack, rerun } => tailpack::commands::verify(pack, *rerun).map(|t| (t, 0)),
         Command::Check { config, as_of } => tailpack::commands::check(
             config,

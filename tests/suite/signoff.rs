@@ -70,6 +70,22 @@ fn finalised() -> Signed {
     s
 }
 
+/// `sign` for the preparer role with the key file at `key` (relative to the fixture) and an optional name.
+fn sign_as_preparer(s: &Signed, key: &str, name: Option<&str>) -> Ran {
+    let mut args = vec![
+        "sign",
+        s.pack.to_str().unwrap(),
+        "--role",
+        "preparer",
+        "--key",
+        key,
+    ];
+    if let Some(n) = name {
+        args.extend(["--name", n]);
+    }
+    s.f.run(&args)
+}
+
 fn verify(s: &Signed) -> Ran {
     s.f.run(&["verify", s.pack.to_str().unwrap()])
 }
@@ -501,14 +517,7 @@ fn malformed_key_files_are_refused_naming_the_file() {
     for (name, bytes) in cases {
         let path = format!("keys/{name}.key");
         std::fs::write(s.f.path(&path), bytes).unwrap();
-        let ran = s.f.run(&[
-            "sign",
-            s.pack.to_str().unwrap(),
-            "--role",
-            "preparer",
-            "--key",
-            &path,
-        ]);
+        let ran = sign_as_preparer(&s, &path, None);
         assert_eq!(ran.code, 8, "{name}: {}", ran.stderr);
         assert!(
             ran.stderr.contains(&path) && !ran.stderr.contains("panicked"),
@@ -535,14 +544,7 @@ fn malformed_key_files_are_refused_naming_the_file() {
         specials.push((fifo.to_str().unwrap().to_string(), "FIFO"));
     }
     for (path, what) in specials {
-        let ran = s.f.run(&[
-            "sign",
-            s.pack.to_str().unwrap(),
-            "--role",
-            "preparer",
-            "--key",
-            &path,
-        ]);
+        let ran = sign_as_preparer(&s, &path, None);
         assert_eq!(ran.code, 8, "{path}: {}", ran.stderr);
         assert!(
             ran.stderr.contains(&path) && ran.stderr.contains(what),
@@ -608,30 +610,12 @@ fn malformed_signatures_fail_verify_naming_the_record() {
 fn a_signer_name_cannot_break_a_line() {
     let s = setup();
     for name in ["Ann, Lee\n1,2,3,final", "tab\tname", "", "   "] {
-        let ran = s.f.run(&[
-            "sign",
-            s.pack.to_str().unwrap(),
-            "--role",
-            "preparer",
-            "--key",
-            "keys/preparer.key",
-            "--name",
-            name,
-        ]);
+        let ran = sign_as_preparer(&s, "keys/preparer.key", Some(name));
         assert_eq!(ran.code, 8, "{name:?}: {}", ran.stderr);
         assert!(ran.stderr.contains("--name"), "{}", ran.stderr);
     }
     let long = "x".repeat(500);
-    let ran = s.f.run(&[
-        "sign",
-        s.pack.to_str().unwrap(),
-        "--role",
-        "preparer",
-        "--key",
-        "keys/preparer.key",
-        "--name",
-        &long,
-    ]);
+    let ran = sign_as_preparer(&s, "keys/preparer.key", Some(&long));
     assert_eq!(ran.code, 8, "{}", ran.stderr);
     assert!(
         ran.stderr.len() < 1500,
