@@ -9,7 +9,6 @@
 
 use crate::config::Config;
 use crate::error::{Error, Result, fs};
-use crate::pack::{InputFile, hex};
 use chrono::NaiveDate;
 use serde_json::{Value, json};
 use sha2::{Digest, Sha256};
@@ -26,6 +25,26 @@ pub const REVISION_NOTE: &str = "revision-note.txt";
 pub const LOCK_TIMEOUT: Duration = Duration::from_secs(600);
 /// The git commit the binary was built from ("unknown" outside a git checkout).
 pub const GIT_COMMIT: &str = env!("TAILPACK_GIT_COMMIT");
+
+/// An input file with its digest, as listed in results.json and the manifest.
+#[derive(Debug, Clone, serde::Serialize)]
+pub struct InputFile {
+    pub role: &'static str,
+    pub path: String,
+    pub sha256: String,
+    pub bytes: u64,
+}
+
+/// Lower-case hex encoding (of digests, keys and signatures).
+pub fn hex(bytes: &[u8]) -> String {
+    use std::fmt::Write as _;
+    bytes
+        .iter()
+        .fold(String::with_capacity(bytes.len() * 2), |mut s, b| {
+            let _ = write!(s, "{b:02x}");
+            s
+        })
+}
 
 /// One archived input: where it came from and its bytes.
 #[derive(Debug, Clone)]
@@ -371,8 +390,19 @@ pub const SIGNOFF: &str = "signoff.json";
 /// The final PDF written by `finalize` (its digest is kept in the sign-off record).
 pub const FINAL_PDF: &str = "pack-final.pdf";
 
-/// Rebuilds `index.csv` and `index.json` at the archive root from every pack's manifest.
-pub fn write_index(root: &Path) -> Result<()> {
+/// A pack's sign-off as the index shows it; the sign-off layer above the archive reads it from the pack.
+pub struct IndexSignoff {
+    /// `draft`, `signing` or `final`.
+    pub status: &'static str,
+    /// `role:name` of every signature, in signing order.
+    pub signers: Vec<String>,
+    /// The final PDF's SHA-256, once final.
+    pub final_sha: Option<String>,
+}
+
+/// Rebuilds `index.csv` and `index.json` at the archive root from every pack's manifest and its sign-off
+/// (`signoff` tells a pack's; the archive itself knows nothing of signatures).
+pub fn write_index(root: &Path, signoff: &dyn Fn(&Path) -> IndexSignoff) -> Result<()> {
     let mut rows = Vec::new();
     for fund in sorted_dirs(root) {
         for as_of in sorted_dirs(&fund) {
@@ -380,19 +410,11 @@ pub fn write_index(root: &Path) -> Result<()> {
                 let m: Value =
                     serde_json::from_slice(&fs::read(&pack.join(MANIFEST))?).unwrap_or(Value::Null);
                 let manifest_sha = sha(&fs::read(&pack.join(MANIFEST))?);
-                let rec = crate::signoff::record(&pack).unwrap_or_default();
-                let signers: Vec<String> = crate::signoff::statements(&rec)
-                    .iter()
-                    .map(|s| format!("{}:{}", s.role, s.name))
-                    .collect();
-                let status = if rec.finalised.is_some() {
-                    "final"
-                } else if signers.is_empty() {
-                    "draft"
-                } else {
-                    "signing"
-                };
-                let final_sha = rec.finalised.as_ref().map(|f| f.sha256.clone());
+                let IndexSignoff {
+                    status,
+                    signers,
+                    final_sha,
+                } = signoff(&pack);
                 rows.push(json!({
                     "fund": fund.file_name().map(|n| n.to_string_lossy().into_owned()),
                     "as_of": as_of.file_name().map(|n| n.to_string_lossy().into_owned()),

@@ -66,7 +66,7 @@ pub fn run(config: &Path, opts: &RunOptions, progress: &Progress) -> Result<RunR
         .into_par_iter()
         .map(|cfg| (cfg.short_name.clone(), run_fund(cfg, opts, &quiet)))
         .collect();
-    crate::archive::write_index(&root)?;
+    crate::signoff::write_index(&root)?;
     progress.finish();
     Ok(multi_summary(&outcomes))
 }
@@ -143,6 +143,9 @@ fn run_fund(
     let result = run::solve(prepared)?;
     progress.step("writing the pack");
     let (dir, text) = crate::pack::write(&result, &plan)?;
+    timings::time("writing", || {
+        crate::signoff::write_index(&result.config.out_root)
+    })?;
     progress.finish();
     let failed = result
         .models
@@ -286,7 +289,7 @@ pub fn finalize(pack: &Path, role: &str, key: &Path, name: Option<&str>) -> Resu
     crate::error::fs::rename(&tmp, &pack.join(name))?;
     crate::signoff::save(pack, &rec)?;
     if let Some(root) = crate::archive::root_of(pack) {
-        crate::archive::write_index(root)?;
+        crate::signoff::write_index(root)?;
     }
     Ok(Signed {
         text: format!(
@@ -364,7 +367,7 @@ pub fn sign(pack: &Path, role: &str, key: &Path, name: Option<&str>) -> Result<S
     let _lock = crate::archive::lock_pack(pack, crate::archive::LOCK_TIMEOUT)?;
     let done = crate::signoff::sign(pack, role, key, name, chrono::Utc::now())?;
     if let Some(root) = crate::archive::root_of(pack) {
-        crate::archive::write_index(root)?;
+        crate::signoff::write_index(root)?;
     }
     Ok(Signed {
         text: done.text,

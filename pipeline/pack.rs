@@ -15,25 +15,6 @@ use serde_json::{Map, Value, json};
 use std::fmt::Write as _;
 use std::path::{Path, PathBuf};
 
-/// An input file with its digest.
-#[derive(Debug, Clone, serde::Serialize)]
-pub struct InputFile {
-    pub role: &'static str,
-    pub path: String,
-    pub sha256: String,
-    pub bytes: u64,
-}
-
-/// Lower-case hex encoding.
-pub fn hex(bytes: &[u8]) -> String {
-    bytes
-        .iter()
-        .fold(String::with_capacity(bytes.len() * 2), |mut s, b| {
-            let _ = write!(s, "{b:02x}");
-            s
-        })
-}
-
 /// `scenarios.csv`: `scenario[,probability],<assets…>`, one row per scenario, round-trip f64 text; text
 /// fields quoted per RFC 4180 ([`csv_out`]).
 pub fn scenarios_csv(r: &RunResult) -> String {
@@ -161,7 +142,7 @@ fn constraints_json(r: &RunResult) -> Value {
 }
 
 /// The full `results.json` document.
-pub fn results_json(r: &RunResult, inputs: &[InputFile], pack_id: &str) -> Value {
+pub fn results_json(r: &RunResult, inputs: &[crate::archive::InputFile], pack_id: &str) -> Value {
     let models: Map<String, Value> = r
         .models
         .iter()
@@ -373,8 +354,9 @@ pub fn summary(r: &RunResult) -> String {
     s
 }
 
-/// Writes the pack as the next revision of its fund/as-of folder, atomically, and updates the archive
-/// index. Returns the pack folder and the summary text. Call with the archive lock held.
+/// Writes the pack as the next revision of its fund/as-of folder, atomically (the caller then rebuilds the
+/// archive index, which needs the sign-off layer). Returns the pack folder and the summary text. Call with
+/// the archive lock held.
 ///
 /// Every output, the PDF included, is made in memory before any folder is created, so while the hidden
 /// temporary folder exists only plain file writes happen; a [`Partial`] guard removes it on every error
@@ -396,9 +378,6 @@ pub fn write(r: &RunResult, plan: &crate::archive::Plan) -> Result<(PathBuf, Str
     })?;
     fs::rename(&tmp, &dir)?;
     guard.placed();
-    timings::time("writing", || {
-        crate::archive::write_index(&r.config.out_root)
-    })?;
     let shown = std::fs::canonicalize(&dir).unwrap_or(dir);
     let note = previous
         .map(|p| {

@@ -13,10 +13,9 @@
 //! This module sits above the archive: the archive checks digests and unlisted files, this module adds the
 //! signature checks and tells the archive which sign-off files a pack may hold.
 
-use crate::archive::{FINAL_PDF, Finding, MANIFEST, SIGNOFF};
+use crate::archive::{FINAL_PDF, Finding, MANIFEST, SIGNOFF, hex};
 use crate::config::SignRole;
 use crate::error::{Error, Result, fs};
-use crate::pack::hex;
 use ed25519_dalek::{Signature, Signer, SigningKey, VerifyingKey};
 use serde::{Deserialize, Serialize};
 use sha2::{Digest, Sha256};
@@ -794,6 +793,32 @@ pub fn seal_final(
         signature,
     });
     Ok(rec)
+}
+
+/// A pack's sign-off for the archive index: status, signers and final PDF digest, as its record says.
+pub fn index_entry(pack: &Path) -> crate::archive::IndexSignoff {
+    let rec = record(pack).unwrap_or_default();
+    let signers: Vec<String> = statements(&rec)
+        .iter()
+        .map(|s| format!("{}:{}", s.role, s.name))
+        .collect();
+    let status = if rec.finalised.is_some() {
+        "final"
+    } else if signers.is_empty() {
+        "draft"
+    } else {
+        "signing"
+    };
+    crate::archive::IndexSignoff {
+        status,
+        signers,
+        final_sha: rec.finalised.map(|f| f.sha256),
+    }
+}
+
+/// Rebuilds the archive index at `root` with every pack's sign-off.
+pub fn write_index(root: &Path) -> Result<()> {
+    crate::archive::write_index(root, &index_entry)
 }
 
 /// Roles that have signed.
