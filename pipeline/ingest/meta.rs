@@ -163,7 +163,7 @@ fn check_lengths(path: &Path, t: &TextTable, row: usize) -> Result<()> {
                 format!(
                     "{}, column `{}`: a text of {n} characters; a code, name, class or tag may have at most {max} characters",
                     t.place(row),
-                    super::table::truncate(name.trim(), 40)
+                    super::truncate(name.trim(), 40)
                 ),
             ));
         }
@@ -198,9 +198,9 @@ pub fn read_holdings(path: &Path, assets: &[String]) -> Result<Vec<f64>> {
         }
         let text = t.columns[w][row].as_deref().unwrap_or("").trim();
         let value: f64 = text.parse().ok().filter(|v: &f64| v.is_finite() && *v >= 0.0)
-            .ok_or_else(|| Error::data(path, format!("{place}, column `weight`: `{}` must be a non-negative number (long-only holdings)", super::table::truncate(text, 40))))?;
+            .ok_or_else(|| Error::data(path, format!("{place}, column `weight`: `{}` must be a non-negative number (long-only holdings)", super::truncate(text, 40))))?;
         let i = assets.iter().position(|x| x == code)
-            .ok_or_else(|| Error::data(path, format!("{place}: asset `{}` is not in the price data (or was dropped by the fill policy)", super::table::truncate(code, 40))))?;
+            .ok_or_else(|| Error::data(path, format!("{place}: asset `{}` is not in the price data (or was dropped by the fill policy)", super::truncate(code, 40))))?;
         if std::mem::replace(&mut seen[i], true) {
             return Err(Error::data(
                 path,

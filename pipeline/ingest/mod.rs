@@ -91,7 +91,7 @@ fn check_universe(cfg: &Config, hist: &PriceHistory, meta: &[AssetMeta]) -> Resu
             &cfg.assets,
             format!(
                 "column `asset`: has no row for asset `{}`, which is in the price file {}; every priced asset needs a row with at least its class",
-                table::truncate(a, 40),
+                truncate(a, 40),
                 cfg.prices.display()
             ),
         ));
@@ -325,5 +325,14 @@ fn window_check(file: &str, rows: usize, horizon: usize, step: usize) -> Check {
                 "{scenarios} scenarios from {rows} observations (horizon {horizon}, step {step})"
             ),
         )
+    }
+}
+
+/// First `n` characters of `s`, with an ellipsis when cut (keeps messages short for huge lines).
+pub fn truncate(s: &str, n: usize) -> String {
+    if s.chars().count() <= n {
+        s.to_string()
+    } else {
+        format!("{}…", s.chars().take(n).collect::<String>())
     }
 }

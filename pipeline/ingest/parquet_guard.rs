@@ -365,7 +365,7 @@ fn check_schema(schema: &[Node<'_>], at: usize, file_len: u64) -> Check<usize> {
                 e.start,
                 format!(
                     "column `{}` is a nested group; a price file holds flat columns (dates, text, numbers)",
-                    crate::ingest::table::truncate(&name, 40)
+                    super::truncate(&name, 40)
                 ),
             );
         }

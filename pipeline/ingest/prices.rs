@@ -5,7 +5,8 @@
 //! asset code may hold any printable text (commas and quotes included: every CSV written quotes them), but
 //! no control character such as a line break, tab or NUL. Errors name the file, the row and the column.
 
-use super::table::{TextTable, truncate};
+use super::table::TextTable;
+use super::truncate;
 use crate::config::Layout;
 use crate::error::{Error, Result};
 use chrono::NaiveDate;

@@ -6,6 +6,7 @@
 //! checked here (encoding, line ends, header names, one field per header column on every row), so that a
 //! malformed file is reported at its line rather than misread or reported without a place.
 
+use super::truncate;
 use crate::error::{Error, Result};
 use polars::prelude::*;
 use std::path::Path;
@@ -462,13 +463,4 @@ fn date_column_to_text(path: &Path, col: &Column) -> Result<Vec<Option<String>>>
                 })
         })
         .collect()
-}
-
-/// First `n` characters of `s`, with an ellipsis when cut (keeps messages short for huge lines).
-pub fn truncate(s: &str, n: usize) -> String {
-    if s.chars().count() <= n {
-        s.to_string()
-    } else {
-        format!("{}…", s.chars().take(n).collect::<String>())
-    }
 }
