@@ -1,6 +1,7 @@
 //! tailpack: month-end prices in, a committee-ready CVaR risk and allocation pack out.
 //!
-//! Data flows one way through one module per stage; a stage only reads the outputs of earlier stages:
+//! Data flows one way through one module per stage (numbered 0–9 in their module docs, in this order; `run`
+//! and `commands` wire them); a stage only reads the outputs of earlier stages:
 //! - [`config`]: the YAML config, validated and resolved (paths, ranges, unknown keys).
 //! - [`ingest`]: price history, asset metadata and holdings; as-of cut; data-quality report and fill policy.
 //! - [`scenarios`]: overlapping horizon windows of returns and their probabilities.
@@ -11,8 +12,9 @@
 //! - [`report`]: the committee PDF, typeset by typst from the run's results (PDF/A-2b), in a child process
 //!   under a time and memory budget; custom templates read only inside their folder.
 //! - [`pack`]: writes the pack folder (scenarios, results, weights, summary, PDF).
-//! - [`archive`]: pack identity, revisions, manifest, index, lock and verification.
-//! - [`signoff`]: Ed25519 keys, signed statements over a pack, and their checks.
+//! - [`archive`]: pack identity, revisions, manifest, index rows, locks, and the digests of verification.
+//! - [`signoff`]: above the archive: Ed25519 keys, signed statements and the signed finalisation, every
+//!   check `verify` makes, and the index with each pack's sign-off.
 //! - [`commands`]: one function per CLI subcommand; the binary is a thin layer over these.
 //!
 //! Cross-cutting: [`error`] (typed errors, exit codes, path-naming file helpers), [`diag`] (findings that

@@ -109,7 +109,9 @@ pub struct RiskProfile {
     pub component_cvar: Vec<f64>,
     pub worst_loss: f64,
     pub worst_scenario: String,
-    /// 1 / Σ w².
+    /// 1 / Σ w²: the inverse of the Herfindahl–Hirschman concentration index of the weights, read as the
+    /// number of equal holdings with the same concentration (the "numbers-equivalent" of Adelman 1969,
+    /// Review of Economics and Statistics 51(1); cited from memory).
     pub effective_holdings: f64,
 }
 

@@ -188,7 +188,10 @@ pub fn from_prices(
     })
 }
 
-/// Exponentially decaying weights p_k ∝ 2^(−age_k / half_life), normalised to sum to 1.
+/// Exponentially decaying weights p_k ∝ 2^(−age_k / half_life), normalised to sum to 1: the age-weighted
+/// historical simulation of Boudoukh, Richardson & Whitelaw (1998, "The best of both worlds", Risk 11(5)),
+/// whose weights fall by a factor λ per observation of age, here written with λ = 2^(−1/half_life) so that
+/// the weight halves every `half_life` observations (the reference is cited from memory).
 pub fn decayed(ages: impl Iterator<Item = f64>, half_life: f64) -> Vec<f64> {
     let raw: Vec<f64> = ages
         .map(|a| (-a * std::f64::consts::LN_2 / half_life).exp())

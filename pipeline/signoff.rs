@@ -1,4 +1,4 @@
-//! Sign-off: Ed25519 key pairs, signed statements over a pack, the signed finalisation, and their checks.
+//! Stage 9, sign-off: Ed25519 keys, signed statements over a pack, the signed finalisation, their checks.
 //!
 //! A statement names the role, the signer, the UTC time, the pack id and the SHA-256 of the pack's
 //! manifest, and is signed with Ed25519 (RFC 8032) by a key listed for that role in the pack's archived

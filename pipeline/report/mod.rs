@@ -1,4 +1,4 @@
-//! Report stage: the committee PDF (`pack.pdf`), typeset by typst from the run's results.
+//! Stage 6, report: the committee PDF (`pack.pdf`), typeset by typst from the run's results.
 //!
 //! [`data`] turns the results into display data with every number formatted ([`format`]), [`further`] does
 //! the same for the analysis results (frontier, stress, backtest), [`text`] writes the sentences that depend
