@@ -11,6 +11,7 @@
 use crate::config::Backend;
 use crate::demo::Rng;
 use crate::error::{Error, Result};
+use crate::models::Family;
 use crate::models::lp::{self, Solved};
 use crate::models::{self, FeasibleSet, Group, Method, Problem};
 use crate::risk;
@@ -119,8 +120,12 @@ pub fn synthetic(n: usize, s: usize, seed: u64) -> Synthetic {
     }
 }
 
-/// The three models, by name.
-pub const MODELS: [&str; 3] = ["max_return", "min_cvar", "max_ratio"];
+/// The models, by name, in report order.
+pub const MODELS: [&str; 3] = [
+    Family::MaxReturn.name(),
+    Family::MinCvar.name(),
+    Family::MaxRatio.name(),
+];
 
 fn solve_model(
     p: &Problem,
@@ -128,9 +133,9 @@ fn solve_model(
     model: &str,
     method: Method,
 ) -> std::result::Result<Solved, lp::Failure> {
-    match model {
-        "max_return" => p.max_return_by(Some(sy.cap), method),
-        "min_cvar" => p.min_cvar_by(Some(sy.floor), method),
+    match Family::from_name(model) {
+        Some(Family::MaxReturn) => p.max_return_by(Some(sy.cap), method),
+        Some(Family::MinCvar) => p.min_cvar_by(Some(sy.floor), method),
         _ => p.max_ratio_by(method),
     }
 }

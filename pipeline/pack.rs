@@ -8,7 +8,7 @@
 
 use crate::csv_out;
 use crate::error::{Result, fs};
-use crate::models::Status;
+use crate::models::{Family, Status};
 use crate::run::{ModelReport, RunResult};
 use crate::timings;
 use serde_json::{Map, Value, json};
@@ -94,7 +94,7 @@ fn model_json(r: &RunResult, m: &ModelReport) -> Value {
         o.insert("expected_return".into(), json!(pr.expected_return));
         o.insert("var".into(), json!(t.var));
         o.insert("cvar".into(), json!(t.cvar));
-        if m.name == "max_ratio" {
+        if m.family == Family::MaxRatio {
             o.insert("ratio".into(), json!(m.outcome.objective));
             o.insert("scale_t".into(), json!(m.outcome.scale));
         }
@@ -321,7 +321,7 @@ pub fn summary(r: &RunResult) -> String {
     if let Some(m) = r
         .models
         .iter()
-        .find(|m| m.name == "max_ratio" && m.outcome.status == Status::Optimal)
+        .find(|m| m.family == Family::MaxRatio && m.outcome.status == Status::Optimal)
     {
         let _ = writeln!(
             s,

@@ -9,7 +9,7 @@ use crate::diag::{Check, Level};
 use crate::error::{Error, Result};
 use crate::ingest::{self, MarketData};
 use crate::models::{
-    self, Emptiness, FeasibleSet, Group, Outcome, Preconditions, Problem, Status, lp,
+    self, Emptiness, Family, FeasibleSet, Group, Outcome, Preconditions, Problem, Status, lp,
 };
 use crate::risk::{self, RiskProfile};
 use crate::scenarios::{self, ScenarioSet};
@@ -37,9 +37,6 @@ impl Default for RunOptions {
     }
 }
 
-/// The names of the three model families, in report order.
-pub const MODEL_NAMES: [&str; 3] = ["max_return", "min_cvar", "max_ratio"];
-
 /// Every scenario return must be finite and within ±[`scenarios::MAX_ABS_RETURN`]; ingest's price-range
 /// check ensures it, and this names the cell should anything get past it: a data error, never a model
 /// diagnosis.
@@ -63,6 +60,8 @@ fn usable_returns(cfg: &Config, set: &ScenarioSet) -> Result<()> {
 /// A model's outcome with the risk profile of its portfolio.
 #[derive(Debug, Clone)]
 pub struct ModelReport {
+    pub family: Family,
+    /// The family's serialised name (`family.name()`).
     pub name: &'static str,
     pub outcome: Outcome,
     pub profile: Option<RiskProfile>,
@@ -333,13 +332,13 @@ fn solve_models(
     cfg: &Config,
 ) -> Vec<ModelReport> {
     let outcomes = match empty {
-        Emptiness::Empty(why) => MODEL_NAMES.map(|name| {
+        Emptiness::Empty(why) => Family::ALL.map(|f| {
             Outcome::failed(
                 Status::Infeasible,
-                format!("{name}: the feasible set is empty: {why}"),
+                format!("{}: the feasible set is empty: {why}", f.name()),
             )
         }),
-        Emptiness::Unknown(why) => MODEL_NAMES.map(|_| {
+        Emptiness::Unknown(why) => Family::ALL.map(|_| {
             Outcome::failed(
                 Status::SolverError,
                 format!("{why}; whether any portfolio meets the limits is not established, so no model was solved"),
@@ -353,8 +352,8 @@ fn solve_models(
     };
     outcomes
         .into_iter()
-        .zip(MODEL_NAMES)
-        .map(|(o, name)| report(name, o, p, data, cfg))
+        .zip(Family::ALL)
+        .map(|(o, family)| report(family, o, p, data, cfg))
         .collect()
 }
 
@@ -454,7 +453,7 @@ fn max_ratio_model(p: &Problem, pre: &Preconditions) -> Outcome {
 }
 
 fn report(
-    name: &'static str,
+    family: Family,
     mut outcome: Outcome,
     p: &Problem,
     data: &MarketData,
@@ -464,7 +463,7 @@ fn report(
         .weights
         .as_ref()
         .map(|w| risk::profile(p.set, w, &cfg.levels, cfg.confidence));
-    if name == "max_ratio" {
+    if family == Family::MaxRatio {
         if let (Some(pr), Some(_)) = (&profile, outcome.objective) {
             outcome.objective = Some(pr.expected_return / pr.at(cfg.confidence).cvar);
         }
@@ -484,7 +483,8 @@ fn report(
     let at_upper = bound(&|i, w| p.feasible.upper[i] > 0.0 && w >= p.feasible.upper[i] - 1e-9);
     let at_lower = bound(&|i, w| p.feasible.lower[i] > 0.0 && w <= p.feasible.lower[i] + 1e-9);
     ModelReport {
-        name,
+        family,
+        name: family.name(),
         outcome,
         profile,
         turnover,

@@ -11,9 +11,8 @@
 use super::vartest::{self, LrTest, Zone};
 use crate::config::Config;
 use crate::ingest::MarketData;
-use crate::models::{self, FeasibleSet, Problem, Status, lp};
+use crate::models::{self, Family, FeasibleSet, Problem, Status, lp};
 use crate::risk;
-use crate::run::MODEL_NAMES;
 use crate::scenarios;
 use chrono::{Datelike, Months, NaiveDate};
 use rayon::prelude::*;
@@ -270,7 +269,7 @@ fn assemble(cfg: &Config, data: &MarketData, months: &[Month]) -> Backtest {
                 .map(|e| (data.full_dates[m.row], e.clone()))
         })
         .collect();
-    let tracks = (0..MODEL_NAMES.len())
+    let tracks = (0..Family::ALL.len())
         .map(|k| track(cfg, data, months, k))
         .collect();
     Backtest {
@@ -328,7 +327,7 @@ fn track(cfg: &Config, data: &MarketData, months: &[Month], k: usize) -> Track {
             exception,
         });
     }
-    summarise(cfg, data, MODEL_NAMES[k], rows)
+    summarise(cfg, data, Family::ALL[k].name(), rows)
 }
 
 fn summarise(cfg: &Config, data: &MarketData, model: &'static str, rows: Vec<TrackRow>) -> Track {

@@ -10,7 +10,10 @@
 //!
 //! Every reported optimum is re-checked against its constraints in code ([`verify`]).
 
+mod family;
 pub mod lp;
+
+pub use family::Family;
 
 use crate::config::{Backend, CapRule, FloorRule};
 use crate::risk;

@@ -9,6 +9,7 @@
 use super::data::{View, class_order, class_sum};
 use super::format;
 use crate::error::{Error, Result};
+use crate::models::Family;
 use crate::run::RunResult;
 use plotters::coord::Shift;
 use plotters::prelude::*;
@@ -54,27 +55,27 @@ pub const LOOKS: [Look; 4] = [
         marker_name: "circle",
     },
     Look {
-        key: "max_return",
-        label: "Max return",
-        aim: "highest expected return with CVaR within the cap",
+        key: Family::MaxReturn.name(),
+        label: Family::MaxReturn.label(),
+        aim: Family::MaxReturn.aim(),
         hex: "#c8621c",
         rgb: RGBColor(0xc8, 0x62, 0x1c),
         marker: Marker::Triangle,
         marker_name: "triangle",
     },
     Look {
-        key: "min_cvar",
-        label: "Min CVaR",
-        aim: "lowest CVaR with expected return at or above the floor",
+        key: Family::MinCvar.name(),
+        label: Family::MinCvar.label(),
+        aim: Family::MinCvar.aim(),
         hex: "#2c72ad",
         rgb: RGBColor(0x2c, 0x72, 0xad),
         marker: Marker::Square,
         marker_name: "square",
     },
     Look {
-        key: "max_ratio",
-        label: "Max ratio",
-        aim: "highest expected return per unit of CVaR",
+        key: Family::MaxRatio.name(),
+        label: Family::MaxRatio.label(),
+        aim: Family::MaxRatio.aim(),
         hex: "#dba72e",
         rgb: RGBColor(0xdb, 0xa7, 0x2e),
         marker: Marker::Diamond,
@@ -309,13 +310,13 @@ pub(super) type Cartesian<'a, 'b> = ChartContext<
 /// The CVaR cap and return floor (in %) worth drawing: only those of a model that was solved, since an
 /// unreachable limit would stretch the axes and say nothing about the portfolios shown.
 fn limits_to_draw(r: &RunResult) -> (Option<f64>, Option<f64>) {
-    let solved = |name: &str| {
+    let solved = |family: Family| {
         r.models
             .iter()
-            .any(|m| m.name == name && super::data::solved(m))
+            .any(|m| m.family == family && super::data::solved(m))
     };
-    let cap = Some(r.cvar_cap * 100.0).filter(|v| v.is_finite() && solved("max_return"));
-    let floor = Some(r.return_floor * 100.0).filter(|v| v.is_finite() && solved("min_cvar"));
+    let cap = Some(r.cvar_cap * 100.0).filter(|v| v.is_finite() && solved(Family::MaxReturn));
+    let floor = Some(r.return_floor * 100.0).filter(|v| v.is_finite() && solved(Family::MinCvar));
     (cap, floor)
 }
 

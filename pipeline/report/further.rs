@@ -136,7 +136,7 @@ pub fn max_ratio_point(r: &RunResult) -> Option<(f64, f64)> {
     let m = r
         .models
         .iter()
-        .find(|m| m.name == "max_ratio")
+        .find(|m| m.family == crate::models::Family::MaxRatio)
         .filter(|m| super::data::solved(m))?;
     let p = m.profile.as_ref()?;
     Some((p.at(r.config.confidence).cvar, p.expected_return))

@@ -16,6 +16,7 @@ use super::format;
 use super::further::{Solved, max_ratio_point, result_of, solved_points};
 use crate::analysis::backtest::{Backtest, Track, TrackRow};
 use crate::error::Result;
+use crate::models::Family;
 use crate::run::RunResult;
 use chrono::Datelike;
 use plotters::prelude::*;
@@ -111,7 +112,7 @@ fn frontier(area: &Area, r: &RunResult, views: &[&View], pts: &[Solved]) -> Draw
             seg.to_vec(),
             7,
             5,
-            look("max_ratio").rgb.stroke_width(2),
+            look(Family::MaxRatio.name()).rgb.stroke_width(2),
         ))?;
     }
     chart.draw_series(LineSeries::new(
@@ -161,7 +162,7 @@ fn frontier_legend(area: &Area, ray: bool) -> Drawn {
     ))?;
     if ray {
         let x = 110 + text_width("Efficient frontier", 13.0) + 30;
-        let gold = look("max_ratio").rgb;
+        let gold = look(Family::MaxRatio.name()).rgb;
         area.draw(&PathElement::new(
             vec![(x, y), (x + 9, y)],
             gold.stroke_width(2),
