@@ -205,7 +205,6 @@ pub struct LoadedKey {
 /// Reads a secret key file: a regular file of at most [`KEY_FILE_MAX_BYTES`] holding 64 hex digits.
 /// Devices, pipes and folders are refused without reading them.
 pub fn read_key(path: &Path) -> Result<LoadedKey> {
-    use std::io::Read;
     let meta = std::fs::metadata(path).map_err(|source| Error::Io {
         action: "cannot read key file",
         path: path.to_path_buf(),
@@ -226,14 +225,8 @@ pub fn read_key(path: &Path) -> Result<LoadedKey> {
             ),
         ));
     }
-    let mut bytes = Vec::new();
-    std::fs::File::open(path)
-        .and_then(|f| f.take(KEY_FILE_MAX_BYTES + 1).read_to_end(&mut bytes))
-        .map_err(|source| Error::Io {
-            action: "cannot read key file",
-            path: path.to_path_buf(),
-            source,
-        })?;
+    // A file that grew past the bound after its size was looked at fails the 64-digit check below.
+    let bytes = fs::read_at_most(path, KEY_FILE_MAX_BYTES)?;
     let secret = std::str::from_utf8(&bytes)
         .ok()
         .and_then(parse_hex::<32>)

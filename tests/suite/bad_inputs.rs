@@ -255,7 +255,7 @@ fn every_corpus_folder_has_its_test_and_there_are_at_least_forty() {
 #[test]
 fn the_good_fund_the_cases_break_is_valid() {
     let dir = tempfile::tempdir().unwrap();
-    copy_dir(&corpus().join("_good"), &dir.path().join("_good"));
+    super::common::copy_dir(&corpus().join("_good"), &dir.path().join("_good"));
     let ran = run(
         dir.path(),
         &["run", "_good/fund.yaml", "--quiet", "--out", "out"],
@@ -297,8 +297,8 @@ fn setup(name: &str) -> Setup {
     let expect: Expect =
         serde_yaml_ng::from_str(&text).unwrap_or_else(|err| panic!("{name}/expect.yaml: {err}"));
     let tmp = tempfile::tempdir().unwrap();
-    copy_dir(&corpus().join("_good"), &tmp.path().join("_good"));
-    copy_dir(&corpus().join(name), &tmp.path().join(name));
+    super::common::copy_dir(&corpus().join("_good"), &tmp.path().join("_good"));
+    super::common::copy_dir(&corpus().join(name), &tmp.path().join(name));
     let mut needles: Vec<String> = expect.says.clone();
     if let Some(g) = &expect.generate {
         needles.extend(generate(g, &tmp.path().join(name)));
@@ -797,19 +797,6 @@ fn write_parquet(
     ParquetWriter::new(std::fs::File::create(path).unwrap())
         .finish(&mut df)
         .unwrap();
-}
-
-fn copy_dir(from: &Path, to: &Path) {
-    std::fs::create_dir_all(to).unwrap();
-    for entry in std::fs::read_dir(from).unwrap() {
-        let entry = entry.unwrap();
-        let target = to.join(entry.file_name());
-        if entry.file_type().unwrap().is_dir() {
-            copy_dir(&entry.path(), &target);
-        } else {
-            std::fs::copy(entry.path(), target).unwrap();
-        }
-    }
 }
 
 /// The first path under `dir` (recursively) for which `hit` holds.

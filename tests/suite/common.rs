@@ -292,3 +292,17 @@ pub fn pdf_pages(pdf: &Path) -> usize {
         .unwrap_or_else(|| panic!("pdfinfo printed no page count: {text}"));
     line["Pages:".len()..].trim().parse().expect("a page count")
 }
+
+/// Copies a folder tree (files and folders) to `to`.
+pub fn copy_dir(from: &Path, to: &Path) {
+    std::fs::create_dir_all(to).unwrap();
+    for entry in std::fs::read_dir(from).unwrap() {
+        let entry = entry.unwrap();
+        let target = to.join(entry.file_name());
+        if entry.file_type().unwrap().is_dir() {
+            copy_dir(&entry.path(), &target);
+        } else {
+            std::fs::copy(entry.path(), target).unwrap();
+        }
+    }
+}

@@ -201,7 +201,7 @@ fn a_fund_folder_with_a_comma_and_quote_is_quoted_in_the_index() {
     let pack = run_pack(&f);
     // A copy of the pack under a fund folder whose name needs quoting; the next run rebuilds the index.
     let odd = f.path("out/odd, \"name\"\nfund/2024-06-28/r1");
-    copy_dir(&pack, &odd);
+    super::common::copy_dir(&pack, &odd);
     f.write(
         "data/holdings.csv",
         "asset,weight\nAS01,0.5\nAS02,0.3\nAS03,0.2\n",
@@ -273,17 +273,4 @@ fn signer_names_with_commas_quotes_and_line_breaks_cannot_forge_a_row() {
         assert_eq!(ran.code, 8, "{}", ran.stderr);
     }
     assert!(rows.iter().all(|r| r[0] != "fake-fund"));
-}
-
-fn copy_dir(from: &Path, to: &Path) {
-    std::fs::create_dir_all(to).unwrap();
-    for entry in std::fs::read_dir(from).unwrap() {
-        let entry = entry.unwrap();
-        let target = to.join(entry.file_name());
-        if entry.file_type().unwrap().is_dir() {
-            copy_dir(&entry.path(), &target);
-        } else {
-            std::fs::copy(entry.path(), target).unwrap();
-        }
-    }
 }
