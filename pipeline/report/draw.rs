@@ -222,3 +222,25 @@ pub fn bars(
     }
     Ok(())
 }
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn a_chart_that_cannot_be_drawn_is_a_chart_error_naming_it() {
+        let e = match draw("broken.svg", 100, |_| Err("no room for the legend".into())) {
+            Err(e) => e,
+            Ok(_) => panic!("a failing chart function must fail the chart"),
+        };
+        assert!(
+            matches!(&e, Error::Chart { name, .. } if name == "broken.svg"),
+            "{e:?}"
+        );
+        assert_eq!(
+            e.to_string(),
+            "chart charts/broken.svg: no room for the legend"
+        );
+        assert_eq!(e.exit_code(), crate::error::EXIT_FAILURE);
+    }
+}

@@ -163,4 +163,75 @@ mod tests {
         assert_eq!(names.len(), templates::DEFAULTS.len());
         assert!(names.contains(&"main.typ"));
     }
+
+    /// The files of `report` with their height in the graph of the module doc: a file may import only
+    /// files lower than itself (rank 0 is the bottom).
+    const GRAPH: &[(&str, u8, &str)] = &[
+        ("view", 0, include_str!("view.rs")),
+        ("format", 0, include_str!("format.rs")),
+        ("draw", 1, include_str!("draw.rs")),
+        ("text", 1, include_str!("text.rs")),
+        ("charts", 2, include_str!("charts.rs")),
+        ("frontier", 2, include_str!("further/frontier.rs")),
+        ("stress", 2, include_str!("further/stress.rs")),
+        ("backtest", 2, include_str!("further/backtest.rs")),
+        ("further", 3, include_str!("further/mod.rs")),
+        ("display", 4, include_str!("display.rs")),
+        ("world", 0, include_str!("world.rs")),
+        ("templates", 1, include_str!("templates.rs")),
+        ("pdf", 2, include_str!("pdf.rs")),
+        ("typeset", 3, include_str!("typeset.rs")),
+    ];
+
+    /// The `report` files a source names in code (not in comments or its tests): `super::x`,
+    /// `super::super::x` and `crate::report::x`, where `further::x` names the part `x`.
+    fn named(src: &str) -> Vec<String> {
+        let code = src.split("#[cfg(test)]").next().unwrap_or_default();
+        let ident = |s: &str| -> String {
+            s.chars()
+                .take_while(|c| c.is_ascii_alphanumeric() || *c == '_')
+                .collect()
+        };
+        let mut out = Vec::new();
+        for line in code.lines().filter_map(|l| l.split("//").next()) {
+            let paths = line
+                .match_indices("crate::report::")
+                .chain(line.match_indices("super::"))
+                .map(|(at, prefix)| line[at + prefix.len()..].trim_start_matches("super::"));
+            for path in paths {
+                let mut name = ident(path);
+                if let Some(part) = path.strip_prefix("further::").map(ident)
+                    && !part.is_empty()
+                {
+                    name = part;
+                }
+                if GRAPH.iter().any(|(n, _, _)| *n == name) && !out.contains(&name) {
+                    out.push(name);
+                }
+            }
+        }
+        out
+    }
+
+    #[test]
+    fn report_files_import_only_files_below_them() {
+        for (file, rank, src) in GRAPH {
+            for name in named(src) {
+                let (_, below, _) = GRAPH.iter().find(|(n, _, _)| *n == name).unwrap();
+                assert!(
+                    below < rank,
+                    "{file} imports {name}, which is not below it in the graph of report/mod.rs"
+                );
+            }
+        }
+        // The check can fail: a part naming another part is caught.
+        assert_eq!(
+            named("use crate::report::further::stress::worst_stress;"),
+            ["stress"]
+        );
+        assert_eq!(
+            named("use super::super::text::Caveat; // super::draw"),
+            ["text"]
+        );
+    }
 }
