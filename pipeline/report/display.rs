@@ -187,7 +187,7 @@ pub struct Input {
 pub fn build(r: &RunResult, shown: &[Portfolio], results: &Value, pack_id: &str) -> Report {
     Report {
         meta: meta(r, results, pack_id),
-        portfolios: shown.iter().map(|v| portfolio(r, v)).collect(),
+        portfolios: shown.iter().map(|v| portfolio_row(r, v)).collect(),
         levels: r.config.levels.iter().map(|&c| format::level(c)).collect(),
         summary: text::summary(r, shown),
         classes: classes(r, shown),
@@ -255,7 +255,7 @@ fn ratio(p: &RiskProfile, c: f64) -> String {
     }
 }
 
-fn portfolio(r: &RunResult, v: &Portfolio) -> PortfolioRow {
+fn portfolio_row(r: &RunResult, v: &Portfolio) -> PortfolioRow {
     let c = r.config.confidence;
     let f = |g: &dyn Fn(&RiskProfile) -> String| v.profile.map_or(NONE.to_string(), g);
     let model = v.model;
