@@ -82,6 +82,17 @@ pub enum Error {
         pack: PathBuf,
         problems: Vec<String>,
     },
+    /// The typesetter failed for a reason that is not the templates': its child process (`program`) could
+    /// not be started or waited for or gave an answer that cannot be read, or typst refused the PDF/A-2b
+    /// export settings (`program` is `None` when typesetting ran in-process).
+    #[error("typesetter{}: {message}", program.as_ref().map_or(String::new(), |p| format!(" {}", p.display())))]
+    Typesetter {
+        program: Option<PathBuf>,
+        message: String,
+    },
+    /// A chart of the pack (`charts/<name>` in the typesetter's files) could not be drawn.
+    #[error("chart charts/{name}: {message}")]
+    Chart { name: String, message: String },
     /// Anything else that stops a run (e.g. no scenarios could be built).
     #[error("{0}")]
     Run(String),
@@ -113,6 +124,7 @@ impl Error {
             Error::Config { .. } | Error::Template { .. } => EXIT_CONFIG,
             Error::Data { .. } | Error::Quality { .. } => EXIT_DATA,
             Error::Io { .. } | Error::Run(_) => EXIT_FAILURE,
+            Error::Typesetter { .. } | Error::Chart { .. } => EXIT_FAILURE,
             Error::Busy { .. } => EXIT_BUSY,
             Error::Verify { .. } | Error::NotIntact { .. } => EXIT_VERIFY,
             Error::Refused { .. } | Error::Key { .. } => EXIT_SIGNOFF,

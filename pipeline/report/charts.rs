@@ -1,122 +1,27 @@
-//! The pack's charts, one function per chart, drawn as SVG with plotters and embedded by typst.
+//! The charts of the summary and allocation sections, one function per chart: risk against return, the
+//! class mix, the largest holdings, the tail curve and CVaR by class. Drawn with the chart kit
+//! ([`super::draw`]) in the portfolios' colours and markers ([`super::view`]); the "Further analysis"
+//! charts live with their section ([`super::further`]).
 //!
-//! One palette serves every chart and table: the same portfolio always has the same colour and marker.
-//! The portfolio colours are our own, chosen to stay apart under the common colour-vision deficiencies by
-//! differing in lightness as well as hue (dark charcoal, mid orange, mid blue, light gold); the marker shape
-//! carries the same information again, so nothing depends on colour alone. Chart text names the Inter
-//! family that the typst world ships, so chart and page type match. Axes say their units.
+//! May read: the [`RunResult`], the view model, [`super::format`] and the chart kit.
 
-use super::data::{View, class_order, class_sum};
+use super::draw::{
+    Area, Cartesian, Chart, Drawn, FAMILY, GRID, INK, MUTED, WIDTH, bar_frame, bars, bars_height,
+    class_colour, colour, draw, font, legend, mark, muted, padded, ry, text_width, tick,
+    tick_decimals,
+};
 use super::format;
-use crate::error::{Error, Result};
+use super::view::{Identity, Portfolio, class_order, class_sum, solved};
+use crate::error::Result;
 use crate::models::Family;
 use crate::run::RunResult;
-use plotters::coord::Shift;
 use plotters::prelude::*;
 use plotters::style::text_anchor::{HPos, Pos, VPos};
 
-/// The font family of all chart text (shipped in `templates/fonts/`).
-pub const FAMILY: &str = "Inter";
-/// Width of every chart in SVG pixels; typst scales it to the text width (about 0.25 mm per pixel).
-pub(super) const WIDTH: u32 = 680;
-pub(super) const INK: RGBColor = RGBColor(0x2b, 0x2f, 0x36);
-pub(super) const MUTED: RGBColor = RGBColor(0x6b, 0x71, 0x7a);
-pub(super) const GRID: RGBColor = RGBColor(0xe4, 0xe6, 0xe9);
-
-/// A marker shape, drawn the same way in charts and (by name) in the tables' legends.
-#[derive(Debug, Clone, Copy)]
-pub enum Marker {
-    Circle,
-    Triangle,
-    Square,
-    Diamond,
-}
-
-/// How one portfolio looks everywhere in the pack.
-pub struct Look {
-    pub key: &'static str,
-    pub label: &'static str,
-    pub aim: &'static str,
-    pub hex: &'static str,
-    pub rgb: RGBColor,
-    pub marker: Marker,
-    pub marker_name: &'static str,
-}
-
-/// The portfolio palette, in report order.
-pub const LOOKS: [Look; 4] = [
-    Look {
-        key: "current",
-        label: "Current",
-        aim: "holdings at the as-of date",
-        hex: "#3b414b",
-        rgb: RGBColor(0x3b, 0x41, 0x4b),
-        marker: Marker::Circle,
-        marker_name: "circle",
-    },
-    Look {
-        key: Family::MaxReturn.name(),
-        label: Family::MaxReturn.label(),
-        aim: Family::MaxReturn.aim(),
-        hex: "#c8621c",
-        rgb: RGBColor(0xc8, 0x62, 0x1c),
-        marker: Marker::Triangle,
-        marker_name: "triangle",
-    },
-    Look {
-        key: Family::MinCvar.name(),
-        label: Family::MinCvar.label(),
-        aim: Family::MinCvar.aim(),
-        hex: "#2c72ad",
-        rgb: RGBColor(0x2c, 0x72, 0xad),
-        marker: Marker::Square,
-        marker_name: "square",
-    },
-    Look {
-        key: Family::MaxRatio.name(),
-        label: Family::MaxRatio.label(),
-        aim: Family::MaxRatio.aim(),
-        hex: "#dba72e",
-        rgb: RGBColor(0xdb, 0xa7, 0x2e),
-        marker: Marker::Diamond,
-        marker_name: "diamond",
-    },
-];
-
-/// The look of a portfolio key (`current` or a model name).
-pub fn look(key: &str) -> &'static Look {
-    LOOKS.iter().find(|l| l.key == key).unwrap_or(&LOOKS[0])
-}
-
-/// Colours of asset classes in first-seen order, alternating dark and light so neighbours in a stacked bar
-/// stay apart; the last one (grey) is for "other".
-const CLASS_COLOURS: [RGBColor; 9] = [
-    RGBColor(0x1f, 0x4e, 0x79),
-    RGBColor(0xf0, 0xbf, 0x7a),
-    RGBColor(0xa8, 0x4f, 0x1f),
-    RGBColor(0x9d, 0xc4, 0xe3),
-    RGBColor(0x5e, 0x48, 0x82),
-    RGBColor(0xcf, 0xd8, 0xa0),
-    RGBColor(0x2f, 0x86, 0x80),
-    RGBColor(0xe6, 0xa3, 0xad),
-    RGBColor(0xb8, 0xbc, 0xc2),
-];
-
-/// A class colour by position; positions past the palette share the "other" grey.
-pub fn class_colour(i: usize) -> RGBColor {
-    CLASS_COLOURS[i.min(CLASS_COLOURS.len() - 1)]
-}
-
-/// A chart ready for the world: its virtual file name and SVG text.
-pub struct Chart {
-    pub name: &'static str,
-    pub svg: String,
-}
-
-/// Every chart of the pack; a chart whose data is missing (no solved portfolio) is left out and the
-/// template says so.
-pub fn all(r: &RunResult, views: &[View]) -> Result<Vec<Chart>> {
-    let solved: Vec<&View> = views
+/// The charts of the summary and allocation sections; a chart whose data is missing (no solved portfolio)
+/// is left out and the template says so.
+pub fn all(r: &RunResult, shown: &[Portfolio]) -> Result<Vec<Chart>> {
+    let solved: Vec<&Portfolio> = shown
         .iter()
         .filter(|v| v.profile.is_some() && v.weights.is_some())
         .collect();
@@ -147,114 +52,10 @@ pub fn all(r: &RunResult, views: &[View]) -> Result<Vec<Chart>> {
 /// How many assets the holdings chart shows before it sums the rest as "other".
 pub const TOP_HOLDINGS: usize = 10;
 
-/// Height of a grouped bar chart: room for axis and legend plus 8 + 7 pixels per bar and row.
-pub(super) fn bars_height(rows: usize, bars: usize) -> u32 {
-    (80 + rows * (8 + 7 * bars)) as u32
-}
-
-pub(super) type Area<'a> = DrawingArea<SVGBackend<'a>, Shift>;
-pub(super) type Drawn = std::result::Result<(), Box<dyn std::error::Error>>;
-
-/// Runs one chart function on a white canvas of the common width and returns its SVG.
-pub(super) fn draw(
-    name: &'static str,
-    height: u32,
-    f: impl FnOnce(&Area) -> Drawn,
-) -> Result<Chart> {
-    let mut svg = String::new();
-    {
-        let area = SVGBackend::with_string(&mut svg, (WIDTH, height)).into_drawing_area();
-        let run = area
-            .fill(&WHITE)
-            .map_err(|e| e.into())
-            .and_then(|_| f(&area))
-            .and_then(|_| area.present().map_err(|e| e.into()));
-        run.map_err(|e| Error::Run(format!("chart charts/{name}: {e}")))?;
-    }
-    Ok(Chart { name, svg })
-}
-
-pub(super) fn font(size: f64) -> TextStyle<'static> {
-    (FAMILY, size).into_font().color(&INK)
-}
-
-pub(super) fn muted(size: f64) -> TextStyle<'static> {
-    (FAMILY, size).into_font().color(&MUTED)
-}
-
-/// Decimals of the tick labels of an axis spanning `span` percent: the same for every tick of the axis.
-pub(super) fn tick_decimals(span: f64) -> usize {
-    if span < 1.5 {
-        2
-    } else if span < 12.0 {
-        1
-    } else {
-        0
-    }
-}
-
-pub(super) fn tick(v: f64, decimals: usize) -> String {
-    format!("{}%", format::number(v, decimals))
-}
-
-/// Lower and upper ends of a value range with `pad` of its width on each side (never empty).
-pub(super) fn padded(
-    values: impl Iterator<Item = f64>,
-    pad: f64,
-    include_zero: bool,
-) -> (f64, f64) {
-    let (mut lo, mut hi) = values.fold((f64::INFINITY, f64::NEG_INFINITY), |(a, b), v| {
-        (a.min(v), b.max(v))
-    });
-    if include_zero {
-        lo = lo.min(0.0);
-        hi = hi.max(0.0);
-    }
-    let span = (hi - lo).max(1e-3);
-    (lo - pad * span, hi + pad * span)
-}
-
-pub(super) fn marker(area: &Area, at: (i32, i32), m: Marker, colour: RGBColor) -> Drawn {
-    let style = colour.filled();
-    let outline = WHITE.stroke_width(1);
-    let (x, y) = at;
-    match m {
-        Marker::Circle => {
-            area.draw(&Circle::new(at, 6, style))?;
-            area.draw(&Circle::new(at, 6, outline))?;
-        }
-        Marker::Square => area.draw(&Rectangle::new([(x - 5, y - 5), (x + 5, y + 5)], style))?,
-        Marker::Triangle => area.draw(&Polygon::new(
-            vec![(x, y - 7), (x + 7, y + 5), (x - 7, y + 5)],
-            style,
-        ))?,
-        Marker::Diamond => area.draw(&Polygon::new(
-            vec![(x, y - 7), (x + 7, y), (x, y + 7), (x - 7, y)],
-            style,
-        ))?,
-    }
-    Ok(())
-}
-
-/// A one-line legend of portfolios (marker + label) starting at `origin`.
-pub(super) fn legend(area: &Area, views: &[&View], origin: (i32, i32)) -> Drawn {
-    let mut x = origin.0;
-    for v in views {
-        marker(area, (x + 6, origin.1), v.look.marker, v.look.rgb)?;
-        area.draw(&Text::new(
-            v.look.label,
-            (x + 17, origin.1),
-            font(13.0).pos(Pos::new(HPos::Left, VPos::Center)),
-        ))?;
-        x += 36 + text_width(v.look.label, 13.0);
-    }
-    Ok(())
-}
-
 /// Expected return against CVaR at the model level, with the CVaR cap and the return floor.
-fn risk_return(area: &Area, r: &RunResult, views: &[&View]) -> Drawn {
+fn risk_return(area: &Area, r: &RunResult, shown: &[&Portfolio]) -> Drawn {
     let c = r.config.confidence;
-    let pts: Vec<(f64, f64)> = views
+    let pts: Vec<(f64, f64)> = shown
         .iter()
         .map(|v| {
             v.profile
@@ -288,11 +89,11 @@ fn risk_return(area: &Area, r: &RunResult, views: &[&View]) -> Drawn {
         .y_desc("Expected return over one horizon (%)")
         .draw()?;
     reference_lines(area, &mut chart, (cap, floor), (x0, x1), (y0, y1))?;
-    for (v, p) in views.iter().zip(&pts) {
+    for (v, p) in shown.iter().zip(&pts) {
         let at = chart.backend_coord(p);
-        marker(area, at, v.look.marker, v.look.rgb)?;
+        mark(area, at, v.identity)?;
         area.draw(&Text::new(
-            v.look.label,
+            v.identity.label,
             (at.0 + 11, at.1 - 11),
             font(12.5).pos(Pos::new(HPos::Left, VPos::Center)),
         ))?;
@@ -300,26 +101,16 @@ fn risk_return(area: &Area, r: &RunResult, views: &[&View]) -> Drawn {
     Ok(())
 }
 
-pub(super) type Cartesian<'a, 'b> = ChartContext<
-    'a,
-    SVGBackend<'b>,
-    Cartesian2d<plotters::coord::types::RangedCoordf64, plotters::coord::types::RangedCoordf64>,
->;
-
-/// Dashed lines at the CVaR cap (vertical) and the return floor (horizontal), each labelled.
 /// The CVaR cap and return floor (in %) worth drawing: only those of a model that was solved, since an
 /// unreachable limit would stretch the axes and say nothing about the portfolios shown.
 fn limits_to_draw(r: &RunResult) -> (Option<f64>, Option<f64>) {
-    let solved = |family: Family| {
-        r.models
-            .iter()
-            .any(|m| m.family == family && super::data::solved(m))
-    };
+    let solved = |family: Family| r.models.iter().any(|m| m.family == family && solved(m));
     let cap = Some(r.cvar_cap * 100.0).filter(|v| v.is_finite() && solved(Family::MaxReturn));
     let floor = Some(r.return_floor * 100.0).filter(|v| v.is_finite() && solved(Family::MinCvar));
     (cap, floor)
 }
 
+/// Dashed lines at the CVaR cap (vertical) and the return floor (horizontal), each labelled.
 fn reference_lines(
     area: &Area,
     chart: &mut Cartesian,
@@ -359,42 +150,6 @@ fn reference_lines(
     Ok(())
 }
 
-/// Horizontal bar layout shared by the bar charts: plot area, x range, and a label per row at the left.
-pub(super) fn bar_frame<'a, 'b>(
-    area: &'a Area<'b>,
-    xs: (f64, f64),
-    rows: usize,
-    left: u32,
-    top: u32,
-    desc: &str,
-) -> std::result::Result<Cartesian<'a, 'b>, Box<dyn std::error::Error>> {
-    let mut chart = ChartBuilder::on(area)
-        .margin(12)
-        .margin_top(top)
-        .x_label_area_size(42)
-        .y_label_area_size(left)
-        .build_cartesian_2d(xs.0..xs.1, 0.0..rows as f64)?;
-    let dx = tick_decimals(xs.1 - xs.0);
-    chart
-        .configure_mesh()
-        .disable_y_mesh()
-        .y_labels(0)
-        .max_light_lines(0)
-        .bold_line_style(GRID)
-        .axis_style(MUTED)
-        .label_style(font(12.0))
-        .axis_desc_style(font(12.5))
-        .x_label_formatter(&|v| tick(*v, dx))
-        .x_desc(desc)
-        .draw()?;
-    Ok(chart)
-}
-
-/// The y coordinate of the point `f` (0 top, 1 bottom) of row `i` of `n`, rows counted from the top.
-pub(super) fn ry(n: usize, i: usize, f: f64) -> f64 {
-    n as f64 - i as f64 - f
-}
-
 /// A row label right-aligned against the plot's left edge, at the middle of row `i` of `n`.
 fn row_label(
     area: &Area,
@@ -413,19 +168,19 @@ fn row_label(
 }
 
 /// Weight by asset class, one stacked bar per portfolio; segments of 8% or more carry their figure.
-fn class_mix(area: &Area, r: &RunResult, views: &[&View]) -> Drawn {
+fn class_mix(area: &Area, r: &RunResult, shown: &[&Portfolio]) -> Drawn {
     let classes = class_order(r);
     let xs = (0.0, 100.0);
     let top = 20 + 20 * class_legend_lines(&classes);
     let chart = bar_frame(
         area,
         xs,
-        views.len(),
+        shown.len(),
         LEGEND_LEFT as u32,
         top,
         "Weight (% of portfolio value)",
     )?;
-    for (i, v) in views.iter().enumerate() {
+    for (i, v) in shown.iter().enumerate() {
         let w = v.weights.expect("solved");
         let mut left = 0.0;
         for (j, class) in classes.iter().enumerate() {
@@ -434,13 +189,13 @@ fn class_mix(area: &Area, r: &RunResult, views: &[&View]) -> Drawn {
                 area,
                 &chart,
                 (left, left + share),
-                (i, views.len()),
+                (i, shown.len()),
                 class_colour(j),
                 j % 2 == 1,
             )?;
             left += share;
         }
-        row_label(area, &chart, xs, (i, views.len()), v.look.label)?;
+        row_label(area, &chart, xs, (i, shown.len()), v.identity.label)?;
     }
     class_legend(area, &classes, (LEGEND_LEFT, 14))
 }
@@ -514,11 +269,6 @@ fn class_legend(area: &Area, classes: &[String], origin: (i32, i32)) -> Drawn {
     Ok(())
 }
 
-/// Estimated width in pixels of `text` set in Inter at `size` (average advance about 0.56 em).
-pub(super) fn text_width(text: &str, size: f64) -> i32 {
-    (0.56 * size * text.chars().count() as f64).ceil() as i32
-}
-
 /// One row of a grouped bar chart: a label and one value per portfolio, drawn as bars or, for a row whose
 /// values would crush the scale (the "other" holdings), written out as figures.
 struct Row {
@@ -529,10 +279,10 @@ struct Row {
 
 /// The `n` assets with the largest weight in any portfolio, one bar per portfolio; the rest summed as
 /// "Other", written as figures so that the scale stays readable for the named holdings.
-fn top_holdings(area: &Area, r: &RunResult, views: &[&View], n: usize) -> Drawn {
+fn top_holdings(area: &Area, r: &RunResult, shown: &[&Portfolio], n: usize) -> Drawn {
     let m = r.data.assets.len();
-    let weight = |v: &View, i: usize| v.weights.expect("solved")[i] * 100.0;
-    let largest = |i: usize| views.iter().map(|v| weight(v, i)).fold(0.0, f64::max);
+    let weight = |v: &Portfolio, i: usize| v.weights.expect("solved")[i] * 100.0;
+    let largest = |i: usize| shown.iter().map(|v| weight(v, i)).fold(0.0, f64::max);
     let mut order: Vec<usize> = (0..m).collect();
     order.sort_by(|&a, &b| largest(b).total_cmp(&largest(a)).then(a.cmp(&b)));
     order.truncate(n.min(m));
@@ -540,23 +290,29 @@ fn top_holdings(area: &Area, r: &RunResult, views: &[&View], n: usize) -> Drawn 
         .iter()
         .map(|&i| Row {
             label: r.data.assets[i].clone(),
-            values: views.iter().map(|v| weight(v, i)).collect(),
+            values: shown.iter().map(|v| weight(v, i)).collect(),
             as_figures: false,
         })
         .collect();
     if m > order.len() {
-        let rest = |v: &View| 100.0 - order.iter().map(|&i| weight(v, i)).sum::<f64>();
+        let rest = |v: &Portfolio| 100.0 - order.iter().map(|&i| weight(v, i)).sum::<f64>();
         rows.push(Row {
             label: format!("Other ({} assets)", m - order.len()),
-            values: views.iter().map(|v| rest(v)).collect(),
+            values: shown.iter().map(|v| rest(v)).collect(),
             as_figures: true,
         });
     }
-    grouped_bars(area, views, &rows, "Weight (% of portfolio value)", false)
+    grouped_bars(area, shown, &rows, "Weight (% of portfolio value)", false)
 }
 
 /// One row per label, one thin bar per portfolio in the palette's colours; a legend on top.
-fn grouped_bars(area: &Area, views: &[&View], rows: &[Row], desc: &str, zero_line: bool) -> Drawn {
+fn grouped_bars(
+    area: &Area,
+    shown: &[&Portfolio],
+    rows: &[Row],
+    desc: &str,
+    zero_line: bool,
+) -> Drawn {
     let (lo, hi) = padded(
         rows.iter()
             .filter(|r| !r.as_figures)
@@ -566,12 +322,13 @@ fn grouped_bars(area: &Area, views: &[&View], rows: &[Row], desc: &str, zero_lin
     );
     let xs = (if lo < 0.0 { lo } else { 0.0 }, hi);
     let chart = bar_frame(area, xs, rows.len(), 132, 36, desc)?;
+    let ids = identities(shown);
     let n = rows.len();
     for (i, row) in rows.iter().enumerate() {
         if row.as_figures {
-            figures(area, &chart, views, &row.values, (xs, i, n))?;
+            figures(area, &chart, shown, &row.values, (xs, i, n))?;
         } else {
-            bars(area, &chart, views, &row.values, (i, n))?;
+            bars(area, &chart, &ids, &row.values, (i, n))?;
         }
         row_label(area, &chart, xs, (i, n), &row.label)?;
     }
@@ -582,40 +339,21 @@ fn grouped_bars(area: &Area, views: &[&View], rows: &[Row], desc: &str, zero_lin
         );
         area.draw(&PathElement::new(vec![a, b], INK.stroke_width(1)))?;
     }
-    legend(area, views, (132, 14))
-}
-
-pub(super) fn bars(
-    area: &Area,
-    chart: &Cartesian,
-    views: &[&View],
-    values: &[f64],
-    (i, n): (usize, usize),
-) -> Drawn {
-    let k = views.len() as f64;
-    for (j, (v, x)) in views.iter().zip(values).enumerate() {
-        let y0 = 0.1 + 0.8 * j as f64 / k;
-        let (a, b) = (
-            chart.backend_coord(&(0.0, ry(n, i, y0))),
-            chart.backend_coord(&(*x, ry(n, i, y0 + 0.8 / k))),
-        );
-        area.draw(&Rectangle::new([a, b], v.look.rgb.filled()))?;
-    }
-    Ok(())
+    legend(area, &ids, (132, 14))
 }
 
 /// A row's values as marker + figure pairs spread along the row.
 fn figures(
     area: &Area,
     chart: &Cartesian,
-    views: &[&View],
+    shown: &[&Portfolio],
     values: &[f64],
     (xs, i, n): ((f64, f64), usize, usize),
 ) -> Drawn {
     let (left, y) = chart.backend_coord(&(xs.0, ry(n, i, 0.5)));
-    for (j, (v, x)) in views.iter().zip(values).enumerate() {
+    for (j, (v, x)) in shown.iter().zip(values).enumerate() {
         let at = (left + 12 + 110 * j as i32, y);
-        marker(area, (at.0 + 6, at.1), v.look.marker, v.look.rgb)?;
+        mark(area, (at.0 + 6, at.1), v.identity)?;
         area.draw(&Text::new(
             format::pct(*x / 100.0, format::Style::Weight),
             (at.0 + 17, at.1),
@@ -625,12 +363,17 @@ fn figures(
     Ok(())
 }
 
+/// The identities of the portfolios shown, in the same order.
+fn identities<'a>(shown: &[&Portfolio<'a>]) -> Vec<&'static Identity> {
+    shown.iter().map(|v| v.identity).collect()
+}
+
 /// Probability of a loss larger than each level, over the worst quarter of scenarios, per portfolio; the
 /// model's tail probability 1 − c is marked, so each curve crosses it at that portfolio's VaR.
-fn tail_curve(area: &Area, r: &RunResult, views: &[&View]) -> Drawn {
+fn tail_curve(area: &Area, r: &RunResult, shown: &[&Portfolio]) -> Drawn {
     let c = r.config.confidence;
     let reach = (3.0 * (1.0 - c)).clamp(0.1, 0.5);
-    let curves: Vec<Vec<(f64, f64)>> = views
+    let curves: Vec<Vec<(f64, f64)>> = shown
         .iter()
         .map(|v| exceedance(r, v.weights.unwrap(), reach))
         .collect();
@@ -668,16 +411,16 @@ fn tail_curve(area: &Area, r: &RunResult, views: &[&View]) -> Drawn {
         (at.0 - 6, at.1 - 4),
         muted(11.5).pos(Pos::new(HPos::Right, VPos::Bottom)),
     ))?;
-    for (v, pts) in views.iter().zip(&curves) {
+    for (v, pts) in shown.iter().zip(&curves) {
         chart.draw_series(LineSeries::new(
             pts.iter().copied(),
-            v.look.rgb.stroke_width(2),
+            colour(v.identity).stroke_width(2),
         ))?;
         if let Some(last) = pts.last() {
-            marker(area, chart.backend_coord(last), v.look.marker, v.look.rgb)?;
+            mark(area, chart.backend_coord(last), v.identity)?;
         }
     }
-    legend(area, views, (80, 14))
+    legend(area, &identities(shown), (80, 14))
 }
 
 /// Points (loss %, P(L ≥ loss) %) of a step curve over the largest losses up to probability `reach`.
@@ -705,12 +448,12 @@ fn exceedance(r: &RunResult, w: &[f64], reach: f64) -> Vec<(f64, f64)> {
 }
 
 /// CVaR contribution of each asset class, one bar per portfolio; negative bars are classes that lower it.
-fn cvar_by_class(area: &Area, r: &RunResult, views: &[&View]) -> Drawn {
+fn cvar_by_class(area: &Area, r: &RunResult, shown: &[&Portfolio]) -> Drawn {
     let rows: Vec<Row> = class_order(r)
         .iter()
         .map(|class| Row {
             label: format::title(class),
-            values: views
+            values: shown
                 .iter()
                 .map(|v| class_sum(r, &v.profile.unwrap().component_cvar, class) * 100.0)
                 .collect(),
@@ -721,5 +464,5 @@ fn cvar_by_class(area: &Area, r: &RunResult, views: &[&View]) -> Drawn {
         "Contribution to CVaR {} (% of portfolio value)",
         format::level(r.config.confidence)
     );
-    grouped_bars(area, views, &rows, &desc, true)
+    grouped_bars(area, shown, &rows, &desc, true)
 }

@@ -1,5 +1,6 @@
 //! How numbers are printed in the PDF. Every figure of the pack is formatted here, in Rust, before typst
-//! sees it, so the PDF, the tests and the README agree on "formatted as printed".
+//! sees it, so the PDF, the tests and the README agree on "formatted as printed". Also the two text helpers
+//! every part shares: a sentence that ends in a full stop, and a shortened list of names.
 //!
 //! The rule for percentages (README, "The PDF pack"): two decimals everywhere; returns and differences
 //! carry a sign (`+0.31%`, `−0.12%`); losses (VaR, CVaR, worst loss, CVaR contributions) and weights are
@@ -18,6 +19,9 @@ pub enum Style {
     /// A difference between two percentages, in percentage points: always signed, unit ` pp`.
     Points,
 }
+
+/// What a cell prints when there is no figure (an unsolved portfolio, a part that did not run): an em dash.
+pub const NONE: &str = "\u{2014}";
 
 /// The minus sign used in every printed number.
 pub const MINUS: char = '\u{2212}';
@@ -113,6 +117,25 @@ pub fn title(raw: &str) -> String {
     match chars.next() {
         Some(first) => first.to_uppercase().chain(chars).collect(),
         None => String::new(),
+    }
+}
+
+/// Text ending in a full stop (descriptions in the stress file may or may not have one).
+pub fn sentence(text: &str) -> String {
+    let t = text.trim();
+    if t.is_empty() || t.ends_with(['.', '!', '?']) {
+        t.to_string()
+    } else {
+        format!("{t}.")
+    }
+}
+
+/// The first `n` names joined by commas, and how many more there are: `A, B and 3 more`.
+pub fn shortlist(names: &[String], n: usize) -> String {
+    if names.len() <= n {
+        names.join(", ")
+    } else {
+        format!("{} and {} more", names[..n].join(", "), names.len() - n)
     }
 }
 

@@ -1,38 +1,55 @@
 //! Stage 6, report: the committee PDF (`pack.pdf`), typeset by typst from the run's results.
 //!
-//! [`data`] turns the results into display data with every number formatted ([`format`]), [`further`] does
-//! the same for the analysis results (frontier, stress, backtest), [`text`] writes the sentences that depend
-//! on the run, [`charts`] and [`further_charts`] draw the SVG charts, [`templates`] supplies the typst
-//! templates (built-in or a custom folder's), and [`world`] is the only door through which the typesetter
-//! sees files, fonts and the date. [`typeset`] runs the typesetter in a child process under a time and
-//! memory budget (`report.typeset_seconds`, `report.typeset_memory_mb`). The PDF claims PDF/A-2b, is dated
-//! by the as-of date and identified by the pack id, so the same inputs give the same bytes.
+//! The run's results become a view model, then display data, sentences and charts, then a file set that
+//! typst typesets. Imports inside `report` go one way, down this graph (a file imports only files below it;
+//! files on one line do not import each other):
+//!
+//! ```text
+//! mod.rs        render: builds the typesetting job and hands it to typeset
+//!   display.rs  the display model, /data/report.json (tables, facts, checks, inputs)
+//!   further/    "Further analysis": mod.rs (the `further` part of the display model, its charts) over
+//!               frontier.rs, stress.rs, backtest.rs (each part's display data and charts)
+//!   charts.rs   the summary and allocation charts (SVG)
+//!   text.rs     the sentences that depend on the run (summary points, caveats)
+//!   draw.rs     the chart kit: canvas, type, axes, markers, legends, bars
+//!   view.rs     the view model: the portfolios shown, their identities (label, aim, colour, marker),
+//!               class order and sums, shared rows (column head, label-value pair)
+//!   format.rs   the one number format (beside the view model; imports nothing)
+//!
+//!   typeset.rs  the typesetter child process under its budget
+//!   pdf.rs      typesetting in this process: compile, PDF/A-2b export, template errors
+//!   templates.rs  built-in templates, the custom folder's listing, fonts
+//!   world.rs    the typst World: the only door to files, fonts and the date
+//! ```
+//!
+//! `display`, `charts`, `text` and the `further` parts read the portfolios, their identities and the
+//! class order from [`view`], and format every figure with [`format`]; the charts draw with [`draw`].
+//! [`typeset`] runs the typesetter in a child process under a time and memory budget
+//! (`report.typeset_seconds`, `report.typeset_memory_mb`), or in-process through [`pdf`]. The PDF claims
+//! PDF/A-2b, is dated by the as-of date and identified by the pack id, so the same inputs give the same
+//! bytes.
 //!
 //! May read: the [`RunResult`], the `results.json` value and the custom template folder. Writes nothing:
 //! the pack writer stores the returned bytes.
 
 pub mod charts;
-pub mod data;
+pub mod display;
+pub mod draw;
 pub mod format;
 pub mod further;
-pub mod further_charts;
+pub mod pdf;
 pub mod templates;
 pub mod text;
 pub mod typeset;
+pub mod view;
 pub mod world;
 
 use crate::error::{Error, Result};
 use crate::run::RunResult;
+use pdf::MAIN;
 use serde_json::Value;
-use typst::WorldExt;
-use typst::diag::{Severity, SourceDiagnostic};
-use typst::foundations::{Bytes, Smart};
-use typst_layout::PagedDocument;
-use typst_pdf::{PdfOptions, PdfStandard, PdfStandards};
-use world::{Origin, ReportWorld, WorldFile};
+use world::{Origin, WorldFile};
 
-/// The entry template.
-pub const MAIN: &str = "/main.typ";
 /// The display data file as templates read it.
 pub const REPORT_JSON: &str = "/data/report.json";
 /// The full results document as templates may read it.
@@ -76,9 +93,9 @@ fn job(
     results: &Value,
     pack_id: &str,
     custom: Vec<templates::CustomFile>,
-) -> Result<typeset::Job> {
-    let views = data::views(r);
-    let report = data::build(r, results, pack_id);
+) -> Result<pdf::Job> {
+    let shown = view::portfolios(r);
+    let report = display::build(r, &shown, results, pack_id);
     let (mut files, fonts) = templates::load_from(custom);
     let mut made = vec![
         generated(
@@ -90,9 +107,9 @@ fn job(
             serde_json::to_vec_pretty(results).expect("results serialise"),
         ),
     ];
-    for chart in charts::all(r, &views)?
+    for chart in charts::all(r, &shown)?
         .into_iter()
-        .chain(further_charts::all(r, &views)?)
+        .chain(further::charts(r, &shown)?)
     {
         made.push(generated(
             &format!("/charts/{}", chart.name),
@@ -103,25 +120,12 @@ fn job(
         refuse_shadow(&files, &file.vpath)?;
         files.push(file);
     }
-    Ok(typeset::Job {
+    Ok(pdf::Job {
         files,
         fonts,
         today: r.data.as_of,
         pack_id: pack_id.to_string(),
     })
-}
-
-/// Typesets a prepared job in this process (the typesetter child, or a library caller without one).
-pub fn typeset_here(job: typeset::Job) -> Result<Vec<u8>> {
-    let fonts = job
-        .fonts
-        .into_iter()
-        .map(Bytes::new)
-        .chain(templates::FONTS.into_iter().map(Bytes::new))
-        .collect();
-    let world = ReportWorld::new(job.files, fonts, MAIN, job.today);
-    let doc = compile(&world)?;
-    export(&world, &doc, &job.pack_id)
 }
 
 /// A custom template file may not take the name of a generated one: the typesetter would read one of the
@@ -147,143 +151,9 @@ fn generated(vpath: &str, bytes: Vec<u8>) -> WorldFile {
     }
 }
 
-fn compile(world: &ReportWorld) -> Result<PagedDocument> {
-    typst::compile::<PagedDocument>(world)
-        .output
-        .map_err(|diags| template_error(world, &diags))
-}
-
-/// PDF/A-2b, identified by the pack id; the document date comes from the template (`set document`),
-/// which takes precedence over any timestamp here.
-fn export(world: &ReportWorld, doc: &PagedDocument, pack_id: &str) -> Result<Vec<u8>> {
-    let standards = PdfStandards::new(&[PdfStandard::A_2b])
-        .map_err(|e| Error::Run(format!("PDF/A-2b settings: {}", e.message())))?;
-    let options = PdfOptions {
-        ident: Smart::Custom(pack_id.to_string()),
-        creator: Smart::Custom(Some(format!("tailpack {}", env!("CARGO_PKG_VERSION")))),
-        standards,
-        ..PdfOptions::default()
-    };
-    typst_pdf::pdf(doc, &options).map_err(|diags| template_error(world, &diags))
-}
-
-/// The first error of a failed compilation as a [`Error::Template`] naming file, line and column.
-fn template_error(world: &ReportWorld, diags: &[SourceDiagnostic]) -> Error {
-    let errors: Vec<&SourceDiagnostic> = diags
-        .iter()
-        .filter(|d| d.severity == Severity::Error)
-        .collect();
-    let Some(first) = errors.first().copied().or(diags.first()) else {
-        return Error::Template {
-            file: MAIN.trim_start_matches('/').into(),
-            line: None,
-            message: "typesetting failed without a diagnostic".into(),
-        };
-    };
-    let spans = std::iter::once(first.span).chain(first.trace.iter().map(|t| t.span.into()));
-    let place = spans.filter_map(|s| locate(world, s)).next();
-    let mut message = in_our_terms(&first.message);
-    let mut hints: Vec<String> = Vec::new();
-    for hint in first.hints.iter().map(|h| hint_in_our_terms(&h.v)) {
-        if !hints.contains(&hint) {
-            hints.push(hint);
-        }
-    }
-    for hint in hints {
-        message.push_str(&format!("; hint: {hint}"));
-    }
-    if errors.len() > 1 {
-        message.push_str(&format!(" (and {} more error(s))", errors.len() - 1));
-    }
-    match place {
-        Some((file, line, column)) => Error::Template {
-            file,
-            line: Some((line, column)),
-            message,
-        },
-        None => Error::Template {
-            file: MAIN.trim_start_matches('/').into(),
-            line: None,
-            message,
-        },
-    }
-}
-
-/// What templates can read, for messages that would otherwise speak of typst's project root.
-const READABLE: &str = "templates can read only the files of the custom template folder (report.templates), the built-in templates and the generated /data and /charts files; copy the file into the template folder and name it by its path there";
-
-/// A typst message in tailpack's terms: tailpack has no project root or `--root` option, only the
-/// custom template folder; a file typst did not find was looked for among the files templates can read.
-fn in_our_terms(message: &str) -> String {
-    if let Some(path) = message
-        .strip_prefix("file not found (searched at ")
-        .and_then(|m| m.strip_suffix(')'))
-    {
-        return format!(
-            "file not found: {path} is not a file of the custom template folder (report.templates), a built-in template or generated data"
-        );
-    }
-    message
-        .replace("the project root", "the template folder (report.templates)")
-        .replace("project root", "template folder")
-        .replace("project sandbox", "template folder")
-}
-
-/// A typst hint in tailpack's terms: hints about widening the project root become what templates can
-/// read.
-fn hint_in_our_terms(hint: &str) -> String {
-    let about_root = ["root", "sandbox"].iter().any(|w| hint.contains(w));
-    if about_root {
-        READABLE.to_string()
-    } else {
-        hint.to_string()
-    }
-}
-
-/// File description, 1-based line and column of a diagnostic span, if it points into a known file.
-fn locate(world: &ReportWorld, span: typst::syntax::DiagSpan) -> Option<(String, usize, usize)> {
-    let id = span.id()?;
-    let origin = world.origin(id)?;
-    let range = world.range(span)?;
-    let (line, column) = match world.parsed(id) {
-        Some(source) => source
-            .lines()
-            .byte_to_line_column(range.start)
-            .map(|(l, c)| (l + 1, c + 1))?,
-        None => (1, range.start + 1),
-    };
-    Some((origin.describe(id.vpath().get_with_slash()), line, column))
-}
-
 #[cfg(test)]
 mod tests {
     use super::*;
-
-    #[test]
-    fn typst_words_for_its_project_root_become_the_template_folder() {
-        // typst 0.15's wording (typst-library, foundations/path.rs, `format_resolve_error`).
-        let m = in_our_terms("path `\"../x.typ\"` would escape the project root");
-        assert_eq!(
-            m,
-            "path `\"../x.typ\"` would escape the template folder (report.templates)"
-        );
-        for hint in [
-            "cannot access files outside of the project sandbox",
-            "you can adjust the project root with the `--root` argument",
-        ] {
-            let h = hint_in_our_terms(hint);
-            assert!(h.contains("report.templates") && !h.contains("root"), "{h}");
-        }
-        assert_eq!(
-            hint_in_our_terms("use forward slashes"),
-            "use forward slashes"
-        );
-        let m = in_our_terms("file not found (searched at /etc/passwd)");
-        assert!(m.starts_with(
-            "file not found: /etc/passwd is not a file of the custom template folder"
-        ));
-        assert!(!m.contains("searched at"));
-    }
 
     #[test]
     fn every_default_template_is_listed_once() {
@@ -292,5 +162,76 @@ mod tests {
         names.dedup();
         assert_eq!(names.len(), templates::DEFAULTS.len());
         assert!(names.contains(&"main.typ"));
+    }
+
+    /// The files of `report` with their height in the graph of the module doc: a file may import only
+    /// files lower than itself (rank 0 is the bottom).
+    const GRAPH: &[(&str, u8, &str)] = &[
+        ("view", 0, include_str!("view.rs")),
+        ("format", 0, include_str!("format.rs")),
+        ("draw", 1, include_str!("draw.rs")),
+        ("text", 1, include_str!("text.rs")),
+        ("charts", 2, include_str!("charts.rs")),
+        ("frontier", 2, include_str!("further/frontier.rs")),
+        ("stress", 2, include_str!("further/stress.rs")),
+        ("backtest", 2, include_str!("further/backtest.rs")),
+        ("further", 3, include_str!("further/mod.rs")),
+        ("display", 4, include_str!("display.rs")),
+        ("world", 0, include_str!("world.rs")),
+        ("templates", 1, include_str!("templates.rs")),
+        ("pdf", 2, include_str!("pdf.rs")),
+        ("typeset", 3, include_str!("typeset.rs")),
+    ];
+
+    /// The `report` files a source names in code (not in comments or its tests): `super::x`,
+    /// `super::super::x` and `crate::report::x`, where `further::x` names the part `x`.
+    fn named(src: &str) -> Vec<String> {
+        let code = src.split("#[cfg(test)]").next().unwrap_or_default();
+        let ident = |s: &str| -> String {
+            s.chars()
+                .take_while(|c| c.is_ascii_alphanumeric() || *c == '_')
+                .collect()
+        };
+        let mut out = Vec::new();
+        for line in code.lines().filter_map(|l| l.split("//").next()) {
+            let paths = line
+                .match_indices("crate::report::")
+                .chain(line.match_indices("super::"))
+                .map(|(at, prefix)| line[at + prefix.len()..].trim_start_matches("super::"));
+            for path in paths {
+                let mut name = ident(path);
+                if let Some(part) = path.strip_prefix("further::").map(ident)
+                    && !part.is_empty()
+                {
+                    name = part;
+                }
+                if GRAPH.iter().any(|(n, _, _)| *n == name) && !out.contains(&name) {
+                    out.push(name);
+                }
+            }
+        }
+        out
+    }
+
+    #[test]
+    fn report_files_import_only_files_below_them() {
+        for (file, rank, src) in GRAPH {
+            for name in named(src) {
+                let (_, below, _) = GRAPH.iter().find(|(n, _, _)| *n == name).unwrap();
+                assert!(
+                    below < rank,
+                    "{file} imports {name}, which is not below it in the graph of report/mod.rs"
+                );
+            }
+        }
+        // The check can fail: a part naming another part is caught.
+        assert_eq!(
+            named("use crate::report::further::stress::worst_stress;"),
+            ["stress"]
+        );
+        assert_eq!(
+            named("use super::super::text::Caveat; // super::draw"),
+            ["text"]
+        );
     }
 }

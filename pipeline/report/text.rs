@@ -2,14 +2,22 @@
 //!
 //! Each sentence states a number the run produced and what it means for reading the pack; none gives a
 //! recommendation. Figures go through [`super::format`] like every other number in the PDF.
+//!
+//! May read: the [`RunResult`] and the view model ([`super::view`]).
 
-use super::charts::look;
-use super::data::{View, solved, status_word};
-use super::format::{self, Style, pct};
-use super::further;
+use super::format::{self, Style, pct, shortlist};
+use super::view::{CURRENT, Portfolio, identity, solved, status_word, stress_result};
 use crate::config::{CapRule, FloorRule};
 use crate::diag::Level;
 use crate::run::RunResult;
+use serde::Serialize;
+
+/// One caveat: a short title and the sentence that explains it.
+#[derive(Serialize)]
+pub struct Caveat {
+    pub title: String,
+    pub text: String,
+}
 
 /// How the CVaR cap was set, in words.
 pub fn cap_rule(rule: CapRule) -> String {
@@ -34,7 +42,7 @@ pub fn floor_rule(rule: FloorRule) -> String {
 }
 
 /// The summary's key points, in print order.
-pub fn summary(r: &RunResult, views: &[View]) -> Vec<String> {
+pub fn summary(r: &RunResult, shown: &[Portfolio]) -> Vec<String> {
     let c = format::level(r.config.confidence);
     let mut out = vec![format!(
         "{} scenarios of {} price observations each, from {} to {}. VaR and CVaR at {c} are the fraction of portfolio value lost over one horizon.",
@@ -43,9 +51,9 @@ pub fn summary(r: &RunResult, views: &[View]) -> Vec<String> {
         first_start(r),
         last_end(r)
     )];
-    let current = views
+    let current = shown
         .iter()
-        .find(|v| v.key == "current")
+        .find(|v| v.key == CURRENT)
         .and_then(|v| v.profile);
     if let Some(p) = current {
         out.push(format!(
@@ -56,19 +64,19 @@ pub fn summary(r: &RunResult, views: &[View]) -> Vec<String> {
         ));
     }
     out.extend(
-        views
+        shown
             .iter()
             .filter(|v| v.model.is_some())
             .map(|v| model_point(r, v, current)),
     );
     out.push(checks_point(r));
-    out.push(stress_point(r, views));
+    out.push(stress_point(r, shown));
     out.push(backtest_point(r));
     out
 }
 
 /// The stress tests in one sentence: how many scenarios, and who breaches the loss limit where.
-fn stress_point(r: &RunResult, views: &[View]) -> String {
+fn stress_point(r: &RunResult, shown: &[Portfolio]) -> String {
     let a = &r.analysis;
     if a.shocks.is_empty() || a.stress.is_empty() {
         return "Stress tests: none was run (section 4.2 says why).".into();
@@ -83,10 +91,10 @@ fn stress_point(r: &RunResult, views: &[View]) -> String {
     let Some(limit) = r.config.stress_loss_limit else {
         return out;
     };
-    let over: Vec<&str> = views
+    let over: Vec<&str> = shown
         .iter()
-        .filter(|v| further::result_of(r, v.key).is_some_and(|s| !s.breaches.is_empty()))
-        .map(|v| v.look.label)
+        .filter(|v| stress_result(r, v.key).is_some_and(|s| !s.breaches.is_empty()))
+        .map(|v| v.identity.label)
         .collect();
     out.push_str(&match over.len() {
         0 => format!(
@@ -118,14 +126,14 @@ fn backtest_point(r: &RunResult) -> String {
     let counts: Vec<String> = b
         .tracks
         .iter()
-        .map(|t| format!("{} ({})", t.exceptions, look(t.model).label))
+        .map(|t| format!("{} ({})", t.exceptions, identity(t.model).label))
         .collect();
     let counts: Vec<&str> = counts.iter().map(String::as_str).collect();
     let rejected: Vec<&str> = b
         .tracks
         .iter()
         .filter(|t| t.kupiec.is_some_and(|k| k.p_value < 0.05))
-        .map(|t| look(t.model).label)
+        .map(|t| identity(t.model).label)
         .collect();
     let verdict = match rejected.len() {
         0 => "no model's exception rate is rejected at 5%".to_string(),
@@ -152,12 +160,12 @@ fn list(names: &[&str]) -> String {
     }
 }
 
-fn model_point(r: &RunResult, v: &View, current: Option<&crate::risk::RiskProfile>) -> String {
+fn model_point(r: &RunResult, v: &Portfolio, current: Option<&crate::risk::RiskProfile>) -> String {
     let m = v.model.expect("a model view");
     let Some(p) = v.profile.filter(|_| solved(m)) else {
         return format!(
             "{}: {}. {}",
-            v.look.label,
+            v.identity.label,
             status_word(v),
             m.outcome
                 .message
@@ -176,7 +184,7 @@ fn model_point(r: &RunResult, v: &View, current: Option<&crate::risk::RiskProfil
     });
     format!(
         "{}: expected return {}{}, CVaR {}{}{turnover}.",
-        v.look.label,
+        v.identity.label,
         pct(p.expected_return, Style::Return),
         versus(p.expected_return, current.map(|q| q.expected_return)),
         pct(p.at(c).cvar, Style::Loss),
@@ -211,9 +219,9 @@ fn last_end(r: &RunResult) -> String {
 }
 
 /// The caveats that apply to this run, general ones first, then one per model where it matters.
-pub fn caveats(r: &RunResult, views: &[View]) -> Vec<super::data::Caveat> {
-    let mut out = vec![history(r, views), tail_count(r), estimates()];
-    out.extend(views.iter().filter_map(|v| binding(r, v)));
+pub fn caveats(r: &RunResult, shown: &[Portfolio]) -> Vec<Caveat> {
+    let mut out = vec![history(r, shown), tail_count(r), estimates()];
+    out.extend(shown.iter().filter_map(|v| binding(r, v)));
     out.extend(stress_caveats(r));
     out.extend(backtest_caveats(r));
     out.push(caveat("Costs and liquidity", "The models include no transaction costs, market impact, liquidity or taxes; the turnover limit is the only trading constraint. Implementing a candidate in full may cost more, and take longer, than the figures suggest."));
@@ -224,15 +232,15 @@ pub fn caveats(r: &RunResult, views: &[View]) -> Vec<super::data::Caveat> {
     out
 }
 
-fn caveat(title: &str, text: &str) -> super::data::Caveat {
-    super::data::Caveat {
+fn caveat(title: &str, text: &str) -> Caveat {
+    Caveat {
         title: title.into(),
         text: text.into(),
     }
 }
 
-fn history(r: &RunResult, views: &[View]) -> super::data::Caveat {
-    let worst = views
+fn history(r: &RunResult, shown: &[Portfolio]) -> Caveat {
+    let worst = shown
         .iter()
         .filter_map(|v| v.profile)
         .map(|p| p.worst_loss)
@@ -249,7 +257,7 @@ fn history(r: &RunResult, views: &[View]) -> super::data::Caveat {
 }
 
 /// How many scenarios a tail average rests on, and how many windows are independent.
-fn tail_count(r: &RunResult) -> super::data::Caveat {
+fn tail_count(r: &RunResult) -> Caveat {
     let s = &r.scenarios;
     let independent = (s.len() * s.step) / s.horizon.max(1);
     let levels: Vec<String> = r
@@ -282,7 +290,7 @@ fn tail_count(r: &RunResult) -> super::data::Caveat {
     )
 }
 
-fn estimates() -> super::data::Caveat {
+fn estimates() -> Caveat {
     caveat(
         "Expected returns are estimates",
         "Expected returns are the scenario means. They are estimated far less precisely than risk, and optimisers lean on exactly those errors (Michaud 1989, \"The Markowitz optimization enigma: is optimized optimal?\", Financial Analysts Journal 45(1)). Differences of a few tenths of a percentage point between candidates are within that error.",
@@ -290,11 +298,11 @@ fn estimates() -> super::data::Caveat {
 }
 
 /// Which limits bind a solved model: assets at their upper bound, the turnover limit, group limits.
-fn binding(r: &RunResult, v: &View) -> Option<super::data::Caveat> {
+fn binding(r: &RunResult, v: &Portfolio) -> Option<Caveat> {
     let m = v.model?;
     if !solved(m) {
         return Some(caveat(
-            &format!("{}: {}", v.look.label, status_word(v)),
+            &format!("{}: {}", v.identity.label, status_word(v)),
             m.outcome
                 .message
                 .as_deref()
@@ -334,20 +342,12 @@ fn binding(r: &RunResult, v: &View) -> Option<super::data::Caveat> {
             ));
         }
     }
-    (!parts.is_empty()).then(|| caveat(&format!("{}: limits that bind", v.look.label), &format!(
+    (!parts.is_empty()).then(|| caveat(&format!("{}: limits that bind", v.identity.label), &format!(
         "This portfolio is shaped by its limits: {}. Loosening a binding limit would change the portfolio; the limits come from the fund's policy, not from the data.", parts.join("; "))))
 }
 
-fn shortlist(names: &[String], n: usize) -> String {
-    if names.len() <= n {
-        names.join(", ")
-    } else {
-        format!("{} and {} more", names[..n].join(", "), names.len() - n)
-    }
-}
-
 /// What limits the reading of the stress results: configured magnitudes, and windows chosen for one portfolio.
-fn stress_caveats(r: &RunResult) -> Vec<super::data::Caveat> {
+fn stress_caveats(r: &RunResult) -> Vec<Caveat> {
     let a = &r.analysis;
     let mut out = Vec::new();
     let defined = a.shocks.iter().filter(|s| s.kind == "defined").count();
@@ -374,7 +374,7 @@ fn stress_caveats(r: &RunResult) -> Vec<super::data::Caveat> {
 }
 
 /// What limits the reading of the backtest: thin evidence, rejected models, skipped months, or no backtest.
-fn backtest_caveats(r: &RunResult) -> Vec<super::data::Caveat> {
+fn backtest_caveats(r: &RunResult) -> Vec<Caveat> {
     let Some(b) = &r.analysis.backtest else {
         return vec![caveat(
             "No out-of-sample evidence",
@@ -400,7 +400,7 @@ fn backtest_caveats(r: &RunResult) -> Vec<super::data::Caveat> {
         } else {
             "less often than the level allows, so the model's VaR may overstate the tail"
         };
-        out.push(caveat(&format!("{}: backtest rejects the exception rate", look(t.model).label), &format!(
+        out.push(caveat(&format!("{}: backtest rejects the exception rate", identity(t.model).label), &format!(
             "{} losses beyond the predicted VaR {level} in {} months against {} expected: Kupiec's test rejects that rate at 5% (p-value {p}). Losses beyond VaR came {reading}.",
             t.exceptions, t.observations, format::number(t.expected_exceptions, 1))));
     }

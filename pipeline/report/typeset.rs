@@ -9,10 +9,11 @@
 //! A library caller that is not the tailpack binary (a test calling the library in-process) has no
 //! child to start and typesets in-process, without the budget: only the binary, which answers the hidden
 //! subcommand, says so at start ([`this_binary_serves`]). Either way the same code typesets
-//! ([`super::typeset_here`]), so the PDF bytes do not depend on where it ran.
+//! ([`super::pdf::typeset_here`]), so the PDF bytes do not depend on where it ran.
 //!
 //! May touch: the child process and its pipes. Reads and writes no file.
 
+use super::pdf::{Job, typeset_here};
 use super::world::{Origin, WorldFile};
 use crate::error::{Error, Result};
 use std::io::{Read, Write};
@@ -20,18 +21,6 @@ use std::path::{Path, PathBuf};
 use std::process::{Child, Command, ExitStatus, Stdio};
 use std::sync::atomic::{AtomicBool, Ordering};
 use std::time::{Duration, Instant};
-
-/// Everything one typesetting run sees besides the shipped templates and fonts.
-pub struct Job {
-    /// Template files (built-in and custom) and the generated data and chart files.
-    pub files: Vec<WorldFile>,
-    /// Font files of the custom template folder (the shipped ones are added where it is typeset).
-    pub fonts: Vec<Vec<u8>>,
-    /// The date `datetime.today()` returns: the as-of date.
-    pub today: chrono::NaiveDate,
-    /// The pack id the PDF is identified by.
-    pub pack_id: String,
-}
 
 /// The limits of one typesetting run, and what a breach message names.
 #[derive(Debug, Clone)]
@@ -64,7 +53,7 @@ pub fn this_binary_serves() {
 pub fn run(job: Job, budget: &Budget) -> Result<Vec<u8>> {
     match typesetter() {
         Some(exe) => in_child(&exe, &job, budget),
-        None => super::typeset_here(job),
+        None => typeset_here(job),
     }
 }
 
@@ -93,23 +82,27 @@ fn in_child(exe: &Path, job: &Job, budget: &Budget) -> Result<Vec<u8>> {
         .stdout(Stdio::piped())
         .stderr(Stdio::piped())
         .spawn()
-        .map_err(|e| {
-            Error::Run(format!(
-                "cannot start the typesetter {}: {e}",
-                exe.display()
-            ))
-        })?;
+        .map_err(|e| failed(exe, format!("cannot be started: {e}")))?;
     let input = encode(job);
     let mut stdin = child.stdin.take().expect("piped stdin");
     // A child that dies early closes the pipe; its exit status says why, so the write error is moot.
     let writer = std::thread::spawn(move || stdin.write_all(&input));
     let stdout = drain(child.stdout.take().expect("piped stdout"));
     let stderr = drain(child.stderr.take().expect("piped stderr"));
-    let ended = wait(&mut child, Duration::from_secs(budget.seconds));
+    let ended = wait(&mut child, Duration::from_secs(budget.seconds))
+        .map_err(|e| failed(exe, format!("cannot be waited for: {e}")));
     let _ = writer.join();
     let out = stdout.join().unwrap_or_default();
     let err = String::from_utf8_lossy(&stderr.join().unwrap_or_default()).into_owned();
-    answer(ended?, &out, &err, budget)
+    answer(ended?, (&out, &err), budget, exe)
+}
+
+/// A typesetter failure that is not the templates' fault.
+fn failed(exe: &Path, message: String) -> Error {
+    Error::Typesetter {
+        program: Some(exe.to_path_buf()),
+        message,
+    }
 }
 
 /// Reads a pipe to its end on a thread of its own (so neither pipe can fill up and stall the child).
@@ -122,11 +115,11 @@ fn drain(mut pipe: impl Read + Send + 'static) -> std::thread::JoinHandle<Vec<u8
 }
 
 /// Waits for the child to end, or until `limit` has passed and then kills it.
-fn wait(child: &mut Child, limit: Duration) -> Result<Ended> {
+fn wait(child: &mut Child, limit: Duration) -> std::io::Result<Ended> {
     let start = Instant::now();
     let mut pause = Duration::from_millis(1);
     loop {
-        if let Some(status) = child.try_wait().map_err(wait_error)? {
+        if let Some(status) = child.try_wait()? {
             return Ok(Ended::Exited(status));
         }
         if start.elapsed() >= limit {
@@ -139,24 +132,20 @@ fn wait(child: &mut Child, limit: Duration) -> Result<Ended> {
     }
 }
 
-fn wait_error(e: std::io::Error) -> Error {
-    Error::Run(format!("cannot wait for the typesetter: {e}"))
-}
-
 /// How the child ended.
 enum Ended {
     Exited(ExitStatus),
     TimedOut,
 }
 
-/// The PDF, or the error the child's end means.
-fn answer(ended: Ended, out: &[u8], err: &str, budget: &Budget) -> Result<Vec<u8>> {
+/// The PDF, or the error the child's end means; `out` and `err` are what the child printed.
+fn answer(ended: Ended, (out, err): (&[u8], &str), budget: &Budget, exe: &Path) -> Result<Vec<u8>> {
     let status = match ended {
         Ended::TimedOut => return Err(breach(budget, Limit::Time)),
         Ended::Exited(status) => status,
     };
     if status.success() {
-        return decode_answer(out);
+        return decode_answer(out, exe);
     }
     Err(match cause(status, err) {
         Some(limit) => breach(budget, limit),
@@ -288,7 +277,7 @@ pub fn serve(memory_mb: u64, seconds: u64) -> i32 {
         }
     };
     drop(input);
-    let out = encode_answer(&super::typeset_here(job));
+    let out = encode_answer(&typeset_here(job));
     match std::io::stdout().lock().write_all(&out) {
         Ok(()) => 0,
         Err(e) => {
@@ -474,7 +463,8 @@ fn builtin_name(name: &str) -> std::result::Result<&'static str, String> {
         .ok_or_else(|| format!("no built-in template {name}"))
 }
 
-/// The child's answer: the PDF, or the template error with its place.
+/// The child's answer: the PDF, or the template error with its place (any other error as its message,
+/// with no file).
 fn encode_answer(result: &Result<Vec<u8>>) -> Vec<u8> {
     let mut out = Vec::new();
     match result {
@@ -490,6 +480,7 @@ fn encode_answer(result: &Result<Vec<u8>>) -> Vec<u8> {
                     line,
                     message,
                 } => (file.clone(), *line, message.clone()),
+                Error::Typesetter { message, .. } => (String::new(), None, message.clone()),
                 other => (String::new(), None, other.to_string()),
             };
             put(&mut out, file.as_bytes());
@@ -502,8 +493,10 @@ fn encode_answer(result: &Result<Vec<u8>>) -> Vec<u8> {
     out
 }
 
-fn decode_answer(out: &[u8]) -> Result<Vec<u8>> {
-    let broken = |why: String| Error::Run(format!("the typesetter's answer is malformed: {why}"));
+/// The PDF or the error in the answer of the typesetter `exe`: a template error as such, any other error
+/// of the child as the typesetter's.
+fn decode_answer(out: &[u8], exe: &Path) -> Result<Vec<u8>> {
+    let broken = |why: String| failed(exe, format!("its answer is malformed: {why}"));
     match out.split_first() {
         Some((&PDF, pdf)) => Ok(pdf.to_vec()),
         Some((&FAILED, rest)) => {
@@ -512,7 +505,7 @@ fn decode_answer(out: &[u8]) -> Result<Vec<u8>> {
             let (l, c) = (r.u64().map_err(broken)?, r.u64().map_err(broken)?);
             let message = r.text().map_err(broken)?;
             if file.is_empty() {
-                return Err(Error::Run(message));
+                return Err(failed(exe, message));
             }
             Err(Error::Template {
                 file,
@@ -617,8 +610,9 @@ mod tests {
 
     #[test]
     fn answers_read_back_as_written() {
+        let exe = Path::new("/opt/tailpack");
         assert_eq!(
-            decode_answer(&encode_answer(&Ok(b"%PDF".to_vec()))).unwrap(),
+            decode_answer(&encode_answer(&Ok(b"%PDF".to_vec())), exe).unwrap(),
             b"%PDF"
         );
         let e = Error::Template {
@@ -626,11 +620,38 @@ mod tests {
             line: Some((3, 2)),
             message: "unknown variable: x".into(),
         };
-        let back = decode_answer(&encode_answer(&Err(e))).unwrap_err();
+        let back = decode_answer(&encode_answer(&Err(e)), exe).unwrap_err();
         assert_eq!(
             back.to_string(),
             "template tpl/summary.typ, line 3, column 2: unknown variable: x"
         );
-        assert!(decode_answer(b"").is_err());
+    }
+
+    #[test]
+    fn a_child_that_fails_outside_the_templates_is_a_typesetter_error_naming_the_program() {
+        let exe = Path::new("/opt/tailpack");
+        let refused = Error::Typesetter {
+            program: None,
+            message: "PDF/A-2b settings refused: x".into(),
+        };
+        let back = decode_answer(&encode_answer(&Err(refused)), exe).unwrap_err();
+        assert!(
+            matches!(&back, Error::Typesetter { program: Some(p), .. } if p == exe),
+            "{back:?}"
+        );
+        assert_eq!(
+            back.to_string(),
+            "typesetter /opt/tailpack: PDF/A-2b settings refused: x"
+        );
+        assert_eq!(back.exit_code(), crate::error::EXIT_FAILURE);
+        for garbled in [&b""[..], b"E\x01", b"?%PDF"] {
+            let e = decode_answer(garbled, exe).unwrap_err();
+            assert!(
+                matches!(e, Error::Typesetter { .. })
+                    && e.to_string()
+                        .starts_with("typesetter /opt/tailpack: its answer is malformed: "),
+                "{e}"
+            );
+        }
     }
 }

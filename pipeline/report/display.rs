@@ -1,53 +1,26 @@
-//! The display data handed to typst as `/data/report.json`: every figure already formatted by
-//! [`super::format`], every list already in print order, so templates only lay out.
+//! The display model: everything the templates print, handed to typst as `/data/report.json`. Every figure
+//! is already formatted by [`super::format`], every list already in print order, so templates only lay out.
 //!
-//! Reads the run's results ([`RunResult`]) and the `results.json` document (for the input digests); computes
-//! nothing new beyond sums for display (weights by class and group) and each portfolio's return per unit of
-//! CVaR. The "Further analysis" part comes from [`super::further`].
+//! Reads the run's results ([`RunResult`]) through the view model ([`super::view`]) and the `results.json`
+//! document (for the input digests); computes nothing new beyond sums for display (weights by class and
+//! group) and each portfolio's return per unit of CVaR. The sentences come from [`super::text`], the
+//! "Further analysis" part from [`super::further`].
 
-use super::charts::{Look, look};
-use super::format::{self, Style, pct};
-use super::text;
+use super::format::{self, NONE, Style, pct};
+use super::further::{self, Further};
+use super::text::{self, Caveat};
+use super::view::{Pair, Portfolio, class_order, class_sum, pair, status_word};
 use crate::diag::Level;
-use crate::models::Status;
 use crate::risk::RiskProfile;
-use crate::run::{ModelReport, RunResult};
+use crate::run::RunResult;
 use serde::Serialize;
 use serde_json::Value;
-
-/// A portfolio as the report shows it: the current holdings or one model's answer.
-pub struct View<'a> {
-    pub key: &'static str,
-    pub look: &'static Look,
-    pub weights: Option<&'a [f64]>,
-    pub profile: Option<&'a RiskProfile>,
-    pub model: Option<&'a ModelReport>,
-}
-
-/// The current portfolio (when holdings were given) followed by the three models, in report order.
-pub fn views(r: &RunResult) -> Vec<View<'_>> {
-    let current = r.data.holdings.as_deref().map(|h| View {
-        key: "current",
-        look: look("current"),
-        weights: Some(h),
-        profile: r.current.as_ref(),
-        model: None,
-    });
-    let models = r.models.iter().map(|m| View {
-        key: m.name,
-        look: look(m.name),
-        weights: m.outcome.weights.as_deref(),
-        profile: m.profile.as_ref(),
-        model: Some(m),
-    });
-    current.into_iter().chain(models).collect()
-}
 
 /// Everything the templates print.
 #[derive(Serialize)]
 pub struct Report {
     pub meta: Meta,
-    pub portfolios: Vec<Portfolio>,
+    pub portfolios: Vec<PortfolioRow>,
     pub levels: Vec<String>,
     pub summary: Vec<String>,
     pub classes: Vec<ClassRow>,
@@ -64,7 +37,7 @@ pub struct Report {
     pub inputs: Vec<Input>,
     pub run: Vec<Pair>,
     /// The "Further analysis" section: efficient frontier, stress set, backtest.
-    pub further: super::further::Further,
+    pub further: Further,
 }
 
 /// Cover and running-header facts.
@@ -94,27 +67,13 @@ pub struct Meta {
     pub scenarios: String,
 }
 
-/// A label and a value, for definition lists.
-#[derive(Serialize)]
-pub struct Pair {
-    pub label: String,
-    pub value: String,
-}
-
-fn pair(label: &str, value: impl Into<String>) -> Pair {
-    Pair {
-        label: label.into(),
-        value: value.into(),
-    }
-}
-
 /// One portfolio's line in the summary and tail tables.
 #[derive(Serialize)]
-pub struct Portfolio {
+pub struct PortfolioRow {
     pub key: &'static str,
     pub label: &'static str,
     pub aim: &'static str,
-    pub colour: &'static str,
+    pub colour: String,
     pub marker: &'static str,
     pub solved: bool,
     pub status: String,
@@ -195,13 +154,6 @@ pub struct CheckRow {
     pub message: String,
 }
 
-/// One caveat: a short title and the sentence that explains it.
-#[derive(Serialize)]
-pub struct Caveat {
-    pub title: String,
-    pub text: String,
-}
-
 /// The data-quality appendix.
 #[derive(Serialize)]
 pub struct Quality {
@@ -231,30 +183,29 @@ pub struct Input {
     pub sha256: String,
 }
 
-/// Builds the display data of one run.
-pub fn build(r: &RunResult, results: &Value, pack_id: &str) -> Report {
-    let views = views(r);
+/// Builds the display data of one run; `shown` are its portfolios ([`super::view::portfolios`]).
+pub fn build(r: &RunResult, shown: &[Portfolio], results: &Value, pack_id: &str) -> Report {
     Report {
         meta: meta(r, results, pack_id),
-        portfolios: views.iter().map(|v| portfolio(r, v)).collect(),
+        portfolios: shown.iter().map(|v| portfolio_row(r, v)).collect(),
         levels: r.config.levels.iter().map(|&c| format::level(c)).collect(),
-        summary: text::summary(r, &views),
-        classes: classes(r, &views),
-        assets: assets(r, &views),
-        groups: groups(r, &views),
+        summary: text::summary(r, shown),
+        classes: classes(r, shown),
+        assets: assets(r, shown),
+        groups: groups(r, shown),
         limits: limits(r),
-        contributors: contributors(r, &views, 10),
-        contributors_basis: views
+        contributors: contributors(r, shown, 10),
+        contributors_basis: shown
             .iter()
             .find(|v| v.profile.is_some())
-            .map_or(String::new(), |v| v.look.label.to_string()),
+            .map_or(String::new(), |v| v.identity.label.to_string()),
         checks: checks(r),
-        caveats: text::caveats(r, &views),
+        caveats: text::caveats(r, shown),
         scenarios: scenarios(r),
         quality: quality(r),
         inputs: inputs(results),
         run: run_facts(r, pack_id, results["signoff"]["status"] == "FINAL"),
-        further: super::further::build(r, &views),
+        further: further::build(r, shown),
     }
 }
 
@@ -304,27 +255,17 @@ fn ratio(p: &RiskProfile, c: f64) -> String {
     }
 }
 
-/// The status as printed: `held` for the current portfolio, else the model status in words.
-pub fn status_word(v: &View) -> String {
-    match v.model {
-        None => "held".into(),
-        Some(m) => m.outcome.status.word().replace('_', " "),
-    }
-}
-
-const NONE: &str = "\u{2014}";
-
-fn portfolio(r: &RunResult, v: &View) -> Portfolio {
+fn portfolio_row(r: &RunResult, v: &Portfolio) -> PortfolioRow {
     let c = r.config.confidence;
     let f = |g: &dyn Fn(&RiskProfile) -> String| v.profile.map_or(NONE.to_string(), g);
     let model = v.model;
-    let stress = super::further::worst_stress(r, v.key);
-    Portfolio {
+    let stress = further::stress::worst_stress(r, v.key);
+    PortfolioRow {
         key: v.key,
-        label: v.look.label,
-        aim: v.look.aim,
-        colour: v.look.hex,
-        marker: v.look.marker_name,
+        label: v.identity.label,
+        aim: v.identity.aim,
+        colour: v.identity.hex(),
+        marker: v.identity.marker.name(),
         solved: v.profile.is_some(),
         status: status_word(v),
         message: model.and_then(|m| m.outcome.message.clone()),
@@ -357,40 +298,18 @@ fn portfolio(r: &RunResult, v: &View) -> Portfolio {
     }
 }
 
-/// Asset classes in first-seen order of the asset list.
-pub fn class_order(r: &RunResult) -> Vec<String> {
-    let mut out: Vec<String> = Vec::new();
-    for m in &r.data.meta {
-        if !out.contains(&m.class) {
-            out.push(m.class.clone());
-        }
-    }
-    out
-}
-
-/// Σ of `values` over the assets of `class`.
-pub fn class_sum(r: &RunResult, values: &[f64], class: &str) -> f64 {
-    r.data
-        .meta
-        .iter()
-        .zip(values)
-        .filter(|(m, _)| m.class == class)
-        .map(|(_, v)| v)
-        .sum()
-}
-
-fn classes(r: &RunResult, views: &[View]) -> Vec<ClassRow> {
+fn classes(r: &RunResult, shown: &[Portfolio]) -> Vec<ClassRow> {
     class_order(r)
         .into_iter()
         .map(|class| ClassRow {
-            weights: views
+            weights: shown
                 .iter()
                 .map(|v| {
                     v.weights
                         .map_or(NONE.into(), |w| format::weight(class_sum(r, w, &class)))
                 })
                 .collect(),
-            contributions: views
+            contributions: shown
                 .iter()
                 .map(|v| {
                     v.profile.map_or(NONE.into(), |p| {
@@ -415,7 +334,7 @@ fn bounds(r: &RunResult, i: usize) -> String {
     )
 }
 
-fn assets(r: &RunResult, views: &[View]) -> Vec<AssetRow> {
+fn assets(r: &RunResult, shown: &[Portfolio]) -> Vec<AssetRow> {
     r.data
         .assets
         .iter()
@@ -425,7 +344,7 @@ fn assets(r: &RunResult, views: &[View]) -> Vec<AssetRow> {
             name: r.data.meta[i].name.clone(),
             class: format::title(&r.data.meta[i].class),
             bounds: bounds(r, i),
-            weights: views
+            weights: shown
                 .iter()
                 .map(|v| v.weights.map_or(NONE.into(), |w| format::weight(w[i])))
                 .collect(),
@@ -433,7 +352,7 @@ fn assets(r: &RunResult, views: &[View]) -> Vec<AssetRow> {
         .collect()
 }
 
-fn groups(r: &RunResult, views: &[View]) -> Vec<GroupRow> {
+fn groups(r: &RunResult, shown: &[Portfolio]) -> Vec<GroupRow> {
     r.feasible
         .groups
         .iter()
@@ -445,7 +364,7 @@ fn groups(r: &RunResult, views: &[View]) -> Vec<GroupRow> {
                 pct(g.min, Style::Weight),
                 pct(g.max, Style::Weight)
             ),
-            exposures: views
+            exposures: shown
                 .iter()
                 .map(|v| {
                     v.weights.map_or(NONE.into(), |w| {
@@ -501,8 +420,8 @@ fn limits(r: &RunResult) -> Vec<Pair> {
 }
 
 /// The `n` assets with the largest CVaR contribution in the first solved portfolio, largest first.
-fn contributors(r: &RunResult, views: &[View], n: usize) -> Vec<Contributor> {
-    let Some(base) = views.iter().find_map(|v| v.profile) else {
+fn contributors(r: &RunResult, shown: &[Portfolio], n: usize) -> Vec<Contributor> {
+    let Some(base) = shown.iter().find_map(|v| v.profile) else {
         return vec![];
     };
     let mut order: Vec<usize> = (0..r.data.assets.len()).collect();
@@ -517,7 +436,7 @@ fn contributors(r: &RunResult, views: &[View], n: usize) -> Vec<Contributor> {
         .map(|i| Contributor {
             asset: r.data.assets[i].clone(),
             class: format::title(&r.data.meta[i].class),
-            contributions: views
+            contributions: shown
                 .iter()
                 .map(|v| {
                     v.profile
@@ -694,9 +613,4 @@ fn run_facts(r: &RunResult, pack_id: &str, is_final: bool) -> Vec<Pair> {
             },
         ),
     ]
-}
-
-/// True when a model has an optimal solution.
-pub fn solved(m: &ModelReport) -> bool {
-    m.outcome.status == Status::Optimal && m.profile.is_some()
 }
