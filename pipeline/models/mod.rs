@@ -11,11 +11,16 @@
 //! Every reported optimum is re-checked against its constraints in code ([`verify`]).
 
 mod family;
+mod feasible;
 pub mod lp;
+mod solve;
 
 pub use family::Family;
+pub use feasible::feasible_set;
+pub use solve::{Auxiliary, FamilyOutcome, Premises, Solution, Targets, solve_all, solve_all_by};
 
 use crate::config::{Backend, CapRule, FloorRule};
+use crate::diag::{Check, Level};
 use crate::risk;
 use crate::scenarios::ScenarioSet;
 use lp::{Failure, Lin, Lp, Solved, Timing};
@@ -399,6 +404,47 @@ pub struct Preconditions {
     /// when not, the ratio model is a solver error, not "not applicable".
     pub established: bool,
     pub reason: Option<String>,
+}
+
+impl Preconditions {
+    /// The preconditions taken as holding without an auxiliary LP ([`Premises::Given`]): nothing was
+    /// solved, so nothing is established and the ratio LP finds the minimum CVaR itself where it needs it.
+    pub fn given() -> Preconditions {
+        Preconditions {
+            min_cvar: None,
+            max_return: None,
+            holds: true,
+            established: false,
+            reason: None,
+        }
+    }
+
+    /// The two precondition checks of the ratio family for the checks table: minimum CVaR over X at
+    /// `confidence` and maximum expected return over X, each must be > 0.
+    pub fn checks(&self, confidence: f64) -> [Check; 2] {
+        let fmt = |v: Option<f64>| v.map_or("n/a".to_string(), |x| format!("{x:.6}"));
+        let level = |ok: bool| if ok { Level::Pass } else { Level::Warn };
+        let ratio = Family::MaxRatio.name();
+        [
+            Check::new(
+                format!("{ratio}.cvar_positive"),
+                level(self.min_cvar.is_some_and(|m| m > 0.0)),
+                format!(
+                    "Charnes–Cooper precondition: minimum CVaR {:.1}% over the feasible set = {} (must be > 0)",
+                    confidence * 100.0,
+                    fmt(self.min_cvar)
+                ),
+            ),
+            Check::new(
+                format!("{ratio}.return_positive"),
+                level(self.max_return.is_some_and(|m| m > 0.0)),
+                format!(
+                    "Charnes–Cooper precondition: maximum expected return over the feasible set = {} (must be > 0)",
+                    fmt(self.max_return)
+                ),
+            ),
+        ]
+    }
 }
 
 /// What an LP's failure says, in words for a message.
