@@ -638,3 +638,62 @@ fn a_return_beyond_the_bound_that_reaches_the_models_is_a_data_error() {
         "{msg}"
     );
 }
+
+/// Issue 15: the run and the walk-forward backtest take their models from one function
+/// (`models::solve_all`), so they cannot drift apart. The backtest rebuilds its first month-end D from prices
+/// dated on or before D with the run's lookback, limits and rules; its decision for each family must then be
+/// the run's own outcome for as-of D and that of a direct `solve_all` on the prepared problem of D — same
+/// status, bit-identical weights. The rules used (cap a multiple of the minimum CVaR over X, floor the
+/// current return, a turnover limit) need both auxiliary LPs and the current holdings, so a backtest that
+/// resolved them, screened X or solved a family another way would fail here.
+#[test]
+fn the_backtest_decides_each_month_as_the_run_solves() {
+    use super::common::{Fixture, Market, config};
+    use tailpack::models::{Family, Premises, Targets};
+    use tailpack::run::{self, RunOptions};
+    let f = Fixture::new();
+    let m = Market::new(4, "2020-01-01", "2024-06-28", 23);
+    let tail = "limits:\n  turnover_max: 0.8\nmodels:\n  max_return:\n    cvar_cap: { times_min: 1.2 }\n  min_cvar:\n    return_floor: { plus_current: 0.0 }\nanalysis:\n  frontier_points: 2\n  backtest_years: 1\n";
+    let path = f.small_fund(&m, &config(tail));
+    let latest = run::solve(run::prepare(&path, &RunOptions::default()).unwrap()).unwrap();
+    let backtest = latest.analysis.backtest.expect("one year of backtest");
+    let first = backtest.rebalances[0];
+    let opts = RunOptions {
+        as_of: Some(first),
+        ..RunOptions::default()
+    };
+    let then = run::prepare(&path, &opts).unwrap();
+    assert_eq!(then.data.as_of, first);
+    let c = then.cfg.confidence;
+    let p = Problem {
+        backend: then.cfg.backend,
+        ..problem(&then.scenarios, &then.feasible, c)
+    };
+    let current = then
+        .data
+        .holdings
+        .as_ref()
+        .map(|h| tailpack::risk::profile(&then.scenarios, h, &[c], c));
+    let targets = Targets {
+        cap: then.cfg.cap,
+        floor: then.cfg.floor,
+        current: current.as_ref(),
+    };
+    let direct = models::solve_all(&p, &targets, Premises::Establish);
+    let run_then = run::solve(then.clone()).unwrap();
+    let mut optimal = 0;
+    for (k, family) in Family::ALL.into_iter().enumerate() {
+        let (track, reported) = (&backtest.tracks[k], &run_then.models[k]);
+        assert_eq!((track.model, reported.family), (family.name(), family));
+        let (row, o) = (&track.rows[0], direct.outcome(family));
+        assert_eq!(row.date, first);
+        assert_eq!(row.status, o.status.word(), "{family:?}");
+        assert_eq!(row.weights, o.weights, "{family:?}: backtest vs direct solve");
+        assert_eq!(
+            reported.outcome.weights, o.weights,
+            "{family:?}: run vs direct solve"
+        );
+        optimal += usize::from(o.weights.is_some());
+    }
+    assert_eq!(optimal, Family::ALL.len(), "every family has a portfolio to compare");
+}
