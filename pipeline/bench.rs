@@ -201,7 +201,10 @@ pub fn measure(sy: &Synthetic, method: Method, runs: usize) -> Vec<(Family, Meas
     let mut rounds = Vec::new();
     for _ in 0..runs.max(1) {
         let solution = models::solve_all_by(&p, &targets, Premises::Given, method);
-        let long = solution.families.iter().any(|f| spent(f).total() > LONG_RUN);
+        let long = solution
+            .families
+            .iter()
+            .any(|f| spent(f).total() > LONG_RUN);
         rounds.push(solution);
         if long {
             break;

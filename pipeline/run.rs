@@ -153,32 +153,76 @@ pub fn solve(prepared: Prepared) -> Result<RunResult> {
         shocks,
     } = prepared;
     let models_start = std::time::Instant::now();
-    let c = cfg.confidence;
     let p = Problem {
         set: &set,
         mu: set.mean(),
-        confidence: c,
+        confidence: cfg.confidence,
         feasible: &fs,
         backend: cfg.backend,
     };
+    let solved = solve_models(&p, &cfg, &data);
+    crate::timings::add("models", models_start.elapsed());
+    let portfolios = named_portfolios(&data, &solved.reports);
+    let analysis = crate::analysis::analyse(&cfg, &data, &p, &fs, &portfolios, shocks);
+    let mut checks = data.quality.findings.clone();
+    checks.extend(model_checks(&solved.preconditions, &solved.reports, &cfg));
+    checks.extend(crate::analysis::checks(&analysis, &cfg));
+    let backend = cfg.backend;
+    Ok(RunResult {
+        config: cfg,
+        data,
+        scenarios: set,
+        feasible: fs,
+        cvar_cap: solved.cap,
+        return_floor: solved.floor,
+        preconditions: solved.preconditions,
+        current: solved.current,
+        models: solved.reports,
+        checks,
+        backend,
+        analysis,
+    })
+}
+
+/// What the models stage hands on: the current portfolio's profile, the resolved cap and floor, the ratio's
+/// preconditions and every family's report.
+struct Solved {
+    current: Option<RiskProfile>,
+    cap: f64,
+    floor: f64,
+    preconditions: Preconditions,
+    reports: Vec<ModelReport>,
+}
+
+/// The models stage: every family solved on the fund's problem ([`models::solve_all`]), the rules "times
+/// current" and "plus current" against the fund's holdings, each portfolio with its risk profile.
+fn solve_models(p: &Problem, cfg: &Config, data: &MarketData) -> Solved {
     let current = data
         .holdings
         .as_ref()
-        .map(|h| risk::profile(&set, h, &cfg.levels, c));
+        .map(|h| risk::profile(p.set, h, &cfg.levels, cfg.confidence));
     let targets = Targets {
         cap: cfg.cap,
         floor: cfg.floor,
         current: current.as_ref(),
     };
-    let solution = models::solve_all(&p, &targets, Premises::Establish);
-    let (cap, floor) = (solution.cap, solution.floor);
-    let pre = solution.preconditions;
-    let reports: Vec<ModelReport> = solution
+    let solution = models::solve_all(p, &targets, Premises::Establish);
+    let reports = solution
         .families
         .into_iter()
-        .map(|f| report(f.family, f.outcome, &p, &data, &cfg))
+        .map(|f| report(f.family, f.outcome, p, data, cfg))
         .collect();
-    crate::timings::add("models", models_start.elapsed());
+    Solved {
+        current,
+        cap: solution.cap,
+        floor: solution.floor,
+        preconditions: solution.preconditions,
+        reports,
+    }
+}
+
+/// The portfolios the analysis compares, by name: the current holdings (when given), then each family's.
+fn named_portfolios(data: &MarketData, reports: &[ModelReport]) -> Vec<(String, Vec<f64>)> {
     let mut portfolios: Vec<(String, Vec<f64>)> = data
         .holdings
         .iter()
@@ -189,25 +233,7 @@ pub fn solve(prepared: Prepared) -> Result<RunResult> {
             .iter()
             .filter_map(|r| r.outcome.weights.clone().map(|w| (r.name.to_string(), w))),
     );
-    let analysis = crate::analysis::analyse(&cfg, &data, &p, &fs, &portfolios, shocks);
-    let mut checks = data.quality.findings.clone();
-    checks.extend(model_checks(&pre, &reports, &cfg));
-    checks.extend(crate::analysis::checks(&analysis, &cfg));
-    let backend = cfg.backend;
-    Ok(RunResult {
-        config: cfg,
-        data,
-        scenarios: set,
-        feasible: fs,
-        cvar_cap: cap,
-        return_floor: floor,
-        preconditions: pre,
-        current,
-        models: reports,
-        checks,
-        backend,
-        analysis,
-    })
+    portfolios
 }
 
 fn report(

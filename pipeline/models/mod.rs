@@ -286,26 +286,7 @@ impl Problem<'_> {
         }
         let start = Instant::now();
         let mut timing = Timing::default();
-        // The relaxed ratio LP is unbounded until enough cuts exist; t = 1/CVaR(x) ≤ 1/min CVaR over X is a
-        // valid bound that keeps every relaxation bounded without cutting off the optimum.
-        let min_cvar = match kind {
-            Kind::Ratio(Some(m)) => Some(m),
-            Kind::Ratio(None) => {
-                let m = self.min_cvar_by(None, Method::Cuts)?;
-                timing.absorb(m.timing);
-                Some(m.objective)
-            }
-            _ => None,
-        };
-        let t_max = match min_cvar {
-            Some(m) if m > 0.0 => Some((1.0 + 1e-6) / m),
-            Some(m) => {
-                return Err(Failure::Solver(format!(
-                    "minimum CVaR {m:.3e} ≤ 0: the ratio LP does not apply"
-                )));
-            }
-            None => None,
-        };
+        let t_max = self.scale_bound(kind, &mut timing)?;
         let aux = start.elapsed();
         let mut lp = Lp::new(self.feasible, matches!(kind, Kind::Ratio(_)));
         let (block, cc) = lp.cvar_cuts(self.confidence);
@@ -321,17 +302,7 @@ impl Problem<'_> {
         for _ in 0..MAX_CUT_ROUNDS {
             let mut solved = session.solve(&lp, &objective, maximise)?;
             let (ell, w) = (solved.extra[0], solved.extra[1]);
-            let losses: Vec<f64> = self
-                .set
-                .portfolio_returns(&solved.weights)
-                .iter()
-                .map(|r| -r)
-                .collect();
-            let tail: Vec<usize> = (0..losses.len()).filter(|&k| losses[k] > ell).collect();
-            let excess: f64 = tail
-                .iter()
-                .map(|&k| self.set.probabilities[k] * (losses[k] - ell))
-                .sum();
+            let (tail, excess) = self.tail_beyond(&solved.weights, ell);
             if excess <= w + CUT_TOLERANCE * (1.0 + w.abs()) || last_cut == tail {
                 let own = session.timing();
                 timing.absorb(own);
@@ -345,6 +316,42 @@ impl Problem<'_> {
             last_cut = tail;
         }
         self.solve(kind, Method::Direct)
+    }
+}
+
+impl Problem<'_> {
+    /// The bound on the Charnes–Cooper scale t in the ratio's cutting-plane loop (`None` for the other
+    /// families): the relaxed ratio LP is unbounded until enough cuts exist, and t = 1/CVaR(x) ≤ 1/min CVaR
+    /// over X is a valid bound that keeps every relaxation bounded without cutting off the optimum. Solves
+    /// the minimum-CVaR LP when the caller does not know it, adding its timing to `timing`.
+    fn scale_bound(&self, kind: Kind, timing: &mut Timing) -> Result<Option<f64>, Failure> {
+        let min_cvar = match kind {
+            Kind::Ratio(Some(m)) => m,
+            Kind::Ratio(None) => {
+                let m = self.min_cvar_by(None, Method::Cuts)?;
+                timing.absorb(m.timing);
+                m.objective
+            }
+            _ => return Ok(None),
+        };
+        if min_cvar > 0.0 {
+            Ok(Some((1.0 + 1e-6) / min_cvar))
+        } else {
+            Err(Failure::Solver(format!(
+                "minimum CVaR {min_cvar:.3e} ≤ 0: the ratio LP does not apply"
+            )))
+        }
+    }
+
+    /// The scenarios whose loss under weights `x` exceeds ℓ, and the true tail term Σ_k p_k (L_k − ℓ)+.
+    fn tail_beyond(&self, x: &[f64], ell: f64) -> (Vec<usize>, f64) {
+        let losses: Vec<f64> = self.set.portfolio_returns(x).iter().map(|r| -r).collect();
+        let tail: Vec<usize> = (0..losses.len()).filter(|&k| losses[k] > ell).collect();
+        let excess: f64 = tail
+            .iter()
+            .map(|&k| self.set.probabilities[k] * (losses[k] - ell))
+            .sum();
+        (tail, excess)
     }
 }
 

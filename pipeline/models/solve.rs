@@ -174,14 +174,22 @@ fn solve_family(
     method: Method,
 ) -> Step {
     match &s.emptiness {
-        Emptiness::Empty(why) => (Outcome::failed(
-            Status::Infeasible,
-            format!("{}: the feasible set is empty: {why}", family.name()),
-        ), None),
-        Emptiness::Unknown(why) => (Outcome::failed(
-            Status::SolverError,
-            format!("{why}; whether any portfolio meets the limits is not established, so no model was solved"),
-        ), None),
+        Emptiness::Empty(why) => (
+            Outcome::failed(
+                Status::Infeasible,
+                format!("{}: the feasible set is empty: {why}", family.name()),
+            ),
+            None,
+        ),
+        Emptiness::Unknown(why) => (
+            Outcome::failed(
+                Status::SolverError,
+                format!(
+                    "{why}; whether any portfolio meets the limits is not established, so no model was solved"
+                ),
+            ),
+            None,
+        ),
         Emptiness::NotEmpty => match family {
             Family::MaxReturn => max_return(p, s.cap, targets.cap, &s.auxiliary.min_cvar, method),
             Family::MinCvar => min_cvar(p, s.floor, &s.auxiliary.max_return, method),
@@ -249,7 +257,9 @@ fn unresolved_cap(rule: CapRule, min_x: &Result<f64, Failure>) -> Outcome {
     };
     Outcome::failed(
         Status::SolverError,
-        format!("models.max_return.cvar_cap could not be resolved: {base}; the model was not solved"),
+        format!(
+            "models.max_return.cvar_cap could not be resolved: {base}; the model was not solved"
+        ),
     )
 }
 

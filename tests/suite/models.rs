@@ -688,12 +688,19 @@ fn the_backtest_decides_each_month_as_the_run_solves() {
         let (row, o) = (&track.rows[0], direct.outcome(family));
         assert_eq!(row.date, first);
         assert_eq!(row.status, o.status.word(), "{family:?}");
-        assert_eq!(row.weights, o.weights, "{family:?}: backtest vs direct solve");
+        assert_eq!(
+            row.weights, o.weights,
+            "{family:?}: backtest vs direct solve"
+        );
         assert_eq!(
             reported.outcome.weights, o.weights,
             "{family:?}: run vs direct solve"
         );
         optimal += usize::from(o.weights.is_some());
     }
-    assert_eq!(optimal, Family::ALL.len(), "every family has a portfolio to compare");
+    assert_eq!(
+        optimal,
+        Family::ALL.len(),
+        "every family has a portfolio to compare"
+    );
 }
