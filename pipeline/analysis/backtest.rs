@@ -1,9 +1,9 @@
 //! Walk-forward (out-of-sample) backtest of the three models.
 //!
 //! At each month-end m in the backtest range, scenarios are rebuilt from prices dated on or before m only
-//! (the same lookback, horizon, step and probabilities as the live run), the three models are solved on
-//! the live run's constraints, and each portfolio is held to the next month-end, where its realised return
-//! is measured. The turnover limit and the rules "times current" / "plus current" refer to the fund's
+//! (the same lookback, horizon, step and probabilities as the live run), every family is solved on the
+//! live run's constraints by the run's own function (`models::solve_all`), and each portfolio is held to
+//! the next month-end, where its realised return is measured. The turnover limit and the rules "times current" / "plus current" refer to the fund's
 //! current holdings as the reference portfolio at every date, so months are independent and are solved in
 //! parallel; the reported turnover is the trading actually implied between consecutive months' weights.
 //! The predicted VaR of each month is then backtested against the realised losses (see `vartest`).

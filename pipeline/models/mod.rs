@@ -9,6 +9,11 @@
 //!   and the denominator row binds); both are checked by auxiliary LPs every run.
 //!
 //! Every reported optimum is re-checked against its constraints in code ([`verify`]).
+//!
+//! The families are defined once ([`Family`], `family.rs`) and solved together by one function,
+//! [`solve_all`] (`solve.rs`), which the run, the walk-forward backtest and the bench all call; X itself is
+//! built from the config here too ([`feasible_set`], `feasible.rs`). Reads config, ingest, scenarios and
+//! risk; nothing downstream.
 
 mod family;
 mod feasible;
@@ -561,8 +566,8 @@ pub fn resolve_floor(rule: FloorRule, current_return: Option<f64>) -> f64 {
 pub fn verify(p: &Problem, x: &[f64], cap: Option<f64>, floor: Option<f64>) -> f64 {
     let fs = p.feasible;
     let mut worst = (x.iter().sum::<f64>() - 1.0).abs();
-    for i in 0..x.len() {
-        worst = worst.max(fs.lower[i] - x[i]).max(x[i] - fs.upper[i]);
+    for ((xi, lo), hi) in x.iter().zip(&fs.lower).zip(&fs.upper) {
+        worst = worst.max(lo - xi).max(xi - hi);
     }
     for g in &fs.groups {
         let s: f64 = g.members.iter().map(|&i| x[i]).sum();
