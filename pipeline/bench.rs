@@ -8,12 +8,14 @@
 //! feasible set has. The CVaR cap is the equal-weight portfolio's CVaR and the return floor its expected
 //! return, so all three models are feasible by construction and need no auxiliary LP.
 
-use crate::config::Backend;
+use crate::config::{Backend, CapRule, FloorRule};
 use crate::demo::Rng;
 use crate::error::{Error, Result};
-use crate::models::Family;
-use crate::models::lp::{self, Solved};
-use crate::models::{self, FeasibleSet, Group, Method, Problem};
+use crate::models::lp;
+use crate::models::{
+    self, Family, FamilyOutcome, FeasibleSet, Group, Method, Premises, Problem, Solution, Status,
+    Targets,
+};
 use crate::risk;
 use crate::scenarios::ScenarioSet;
 use std::io::Write;
@@ -58,6 +60,32 @@ pub struct BenchOptions {
     pub demo: Option<PathBuf>,
     /// Scratch folder for problem files and the demo pack.
     pub work: PathBuf,
+}
+
+impl Default for BenchOptions {
+    fn default() -> Self {
+        BenchOptions {
+            sizes: DEFAULT_SIZES.to_vec(),
+            runs: 3,
+            reference: None,
+            other_too: true,
+            time_limit: 900.0,
+            demo: None,
+            work: PathBuf::from("out/bench"),
+        }
+    }
+}
+
+/// A size as the command line writes it: `440x200` → (440 assets, 200 scenarios); both at least 1.
+pub fn parse_size(s: &str) -> std::result::Result<(usize, usize), String> {
+    let bad = || format!("`{s}` is not ASSETSxSCENARIOS (e.g. 500x5000) with both at least 1");
+    let (a, b) = s.trim().split_once(['x', 'X']).ok_or_else(bad)?;
+    let n: usize = a.trim().parse().map_err(|_| bad())?;
+    let k: usize = b.trim().parse().map_err(|_| bad())?;
+    if n == 0 || k == 0 {
+        return Err(bad());
+    }
+    Ok((n, k))
 }
 
 /// A synthetic problem.
@@ -120,23 +148,25 @@ pub fn synthetic(n: usize, s: usize, seed: u64) -> Synthetic {
     }
 }
 
-/// The models, by name, in report order.
-pub const MODELS: [&str; 3] = [
-    Family::MaxReturn.name(),
-    Family::MinCvar.name(),
-    Family::MaxRatio.name(),
-];
+impl Synthetic {
+    /// The problem's LPs on the HiGHS backend.
+    pub fn problem(&self) -> Problem<'_> {
+        Problem {
+            set: &self.set,
+            mu: self.set.mean(),
+            confidence: self.confidence,
+            feasible: &self.feasible,
+            backend: Backend::Highs,
+        }
+    }
 
-fn solve_model(
-    p: &Problem,
-    sy: &Synthetic,
-    model: &str,
-    method: Method,
-) -> std::result::Result<Solved, lp::Failure> {
-    match Family::from_name(model) {
-        Some(Family::MaxReturn) => p.max_return_by(Some(sy.cap), method),
-        Some(Family::MinCvar) => p.min_cvar_by(Some(sy.floor), method),
-        _ => p.max_ratio_by(method),
+    /// The cap and floor as fixed values: no auxiliary LP is needed to resolve them.
+    pub fn targets(&self) -> Targets<'static> {
+        Targets {
+            cap: CapRule::Value(self.cap),
+            floor: FloorRule::Value(self.floor),
+            current: None,
+        }
     }
 }
 
@@ -164,38 +194,54 @@ fn median(mut v: Vec<Duration>) -> Duration {
     v[v.len() / 2]
 }
 
-/// Times one model with one method, `runs` times (fewer after a long run).
-pub fn measure(p: &Problem, sy: &Synthetic, model: &str, method: Method, runs: usize) -> Measured {
-    let (mut builds, mut solves) = (Vec::new(), Vec::new());
-    let mut last: Option<std::result::Result<Solved, lp::Failure>> = None;
+/// Times every family with one method: `runs` rounds of [`models::solve_all_by`] on premises given by
+/// construction (fewer rounds after one in which an LP ran longer than [`LONG_RUN`]).
+pub fn measure(sy: &Synthetic, method: Method, runs: usize) -> Vec<(Family, Measured)> {
+    let (p, targets) = (sy.problem(), sy.targets());
+    let mut rounds = Vec::new();
     for _ in 0..runs.max(1) {
-        let start = Instant::now();
-        let r = solve_model(p, sy, model, method);
-        // A failed LP (e.g. one stopped by the time limit) reports no timing: count its wall time as solve.
-        let t = r.as_ref().map(|s| s.timing).unwrap_or(lp::Timing {
-            solve: start.elapsed(),
-            ..lp::Timing::default()
-        });
-        builds.push(t.build);
-        solves.push(t.solve);
-        let long = t.build + t.solve > LONG_RUN;
-        last = Some(r);
+        let solution = models::solve_all_by(&p, &targets, Premises::Given, method);
+        let long = solution
+            .families
+            .iter()
+            .any(|f| spent(f).total() > LONG_RUN);
+        rounds.push(solution);
         if long {
             break;
         }
     }
-    let (objective, status, rounds) = match last.expect("at least one run") {
-        Ok(Solved {
-            objective, timing, ..
-        }) => (Some(objective), "optimal".to_string(), timing.runs),
-        Err(e) => (None, format!("{e:?}"), 0),
+    Family::ALL
+        .iter()
+        .enumerate()
+        .map(|(k, &family)| (family, medians(&rounds, k)))
+        .collect()
+}
+
+/// A family's LP timing; a failed LP (e.g. one stopped by the time limit) reports none, so its wall time
+/// counts as solve.
+fn spent(f: &FamilyOutcome) -> lp::Timing {
+    f.timing.unwrap_or(lp::Timing {
+        solve: f.elapsed,
+        ..lp::Timing::default()
+    })
+}
+
+/// The medians of family `k` over the rounds, with the last round's objective, status and cut rounds.
+fn medians(rounds: &[Solution], k: usize) -> Measured {
+    let times: Vec<lp::Timing> = rounds.iter().map(|r| spent(&r.families[k])).collect();
+    let last = &rounds.last().expect("at least one round").families[k];
+    let o = &last.outcome;
+    let status = match (&o.status, &o.message) {
+        (Status::Optimal, _) => "optimal".to_string(),
+        (s, Some(m)) => format!("{} ({m})", s.word()),
+        (s, None) => s.word().to_string(),
     };
     Measured {
-        runs: builds.len(),
-        build: median(builds),
-        solve: median(solves),
-        rounds,
-        objective,
+        runs: times.len(),
+        build: median(times.iter().map(|t| t.build).collect()),
+        solve: median(times.iter().map(|t| t.solve).collect()),
+        rounds: last.timing.map_or(0, |t| t.runs),
+        objective: o.objective.filter(|_| o.status == Status::Optimal),
         status,
     }
 }
@@ -250,39 +296,46 @@ pub fn run_reference(r: &Reference, problem: &Path) -> Result<Vec<(String, RefMe
         .arg(&r.script)
         .arg(problem)
         .output()
-        .map_err(|e| {
-            Error::Run(format!(
-                "cannot start {} {}: {e}",
-                r.program,
-                r.script.display()
-            ))
+        .map_err(|source| Error::ReferenceMissing {
+            program: r.program.clone(),
+            script: r.script.clone(),
+            source,
         })?;
+    let failed = |message: String| Error::ReferenceFailed {
+        script: r.script.clone(),
+        message,
+    };
     if !out.status.success() {
-        return Err(Error::Run(format!(
-            "the reference script {} failed: {}",
-            r.script.display(),
+        return Err(failed(format!(
+            "failed on {}: {}",
+            problem.display(),
             String::from_utf8_lossy(&out.stderr).trim()
         )));
     }
-    let secs =
-        |v: &serde_json::Value| Duration::from_secs_f64(v.as_f64().unwrap_or(f64::NAN).max(0.0));
     String::from_utf8_lossy(&out.stdout)
         .lines()
         .filter(|l| l.starts_with('{'))
         .map(|l| {
-            let v: serde_json::Value = serde_json::from_str(l)
-                .map_err(|e| Error::Run(format!("reference output `{l}`: {e}")))?;
-            Ok((
-                v["model"].as_str().unwrap_or("?").to_string(),
-                RefMeasured {
-                    build: secs(&v["build_seconds"]),
-                    solve: secs(&v["solve_seconds"]),
-                    objective: v["objective"].as_f64(),
-                    status: v["status"].as_str().unwrap_or("?").to_string(),
-                },
-            ))
+            serde_json::from_str(l)
+                .map(|v| reference_line(&v))
+                .map_err(|e| failed(format!("printed `{l}`, not a result line: {e}")))
         })
         .collect()
+}
+
+/// One model's result line of the reference script.
+fn reference_line(v: &serde_json::Value) -> (String, RefMeasured) {
+    let secs =
+        |v: &serde_json::Value| Duration::from_secs_f64(v.as_f64().unwrap_or(f64::NAN).max(0.0));
+    (
+        v["model"].as_str().unwrap_or("?").to_string(),
+        RefMeasured {
+            build: secs(&v["build_seconds"]),
+            solve: secs(&v["solve_seconds"]),
+            objective: v["objective"].as_f64(),
+            status: v["status"].as_str().unwrap_or("?").to_string(),
+        },
+    )
 }
 
 fn ms(d: Duration) -> String {
@@ -345,14 +398,7 @@ pub fn run(opts: &BenchOptions, out: &mut dyn Write) -> Result<()> {
 
 fn bench_size(opts: &BenchOptions, n: usize, s: usize, out: &mut dyn Write) -> Result<()> {
     let sy = synthetic(n, s, 20_261_130);
-    let p = Problem {
-        set: &sy.set,
-        mu: sy.set.mean(),
-        confidence: sy.confidence,
-        feasible: &sy.feasible,
-        backend: Backend::Highs,
-    };
-    let method = p.method();
+    let method = sy.problem().method();
     let reference = match &opts.reference {
         Some(r) => {
             let file = write_problem(&sy, &opts.work, opts.runs, opts.time_limit)?;
@@ -364,28 +410,24 @@ fn bench_size(opts: &BenchOptions, n: usize, s: usize, out: &mut dyn Write) -> R
         Method::Direct => Method::Cuts,
         Method::Cuts => Method::Direct,
     };
-    for model in MODELS {
-        let auto = measure(&p, &sy, model, method, opts.runs);
-        let other = opts.other_too.then(|| {
-            lp::set_time_limit(Some(opts.time_limit));
-            let d = measure(&p, &sy, model, other_method, opts.runs);
-            lp::set_time_limit(None);
-            d
-        });
-        let r = reference.iter().find(|(m, _)| m == model).map(|(_, r)| r);
-        let _ = writeln!(
-            out,
-            "{}",
-            row(
-                n,
-                s,
-                model,
-                (method, &auto),
-                (other_method, other.as_ref()),
-                r,
-                opts.time_limit
-            )
+    let used = measure(&sy, method, opts.runs);
+    let other = opts.other_too.then(|| {
+        lp::set_time_limit(Some(opts.time_limit));
+        let d = measure(&sy, other_method, opts.runs);
+        lp::set_time_limit(None);
+        d
+    });
+    for (k, (family, auto)) in used.iter().enumerate() {
+        let name = family.name();
+        let r = reference.iter().find(|(m, _)| m == name).map(|(_, r)| r);
+        let line = row(
+            (n, s, name),
+            (method, auto),
+            (other_method, other.as_ref().map(|o| &o[k].1)),
+            r,
+            opts.time_limit,
         );
+        let _ = writeln!(out, "{line}");
         let _ = out.flush();
     }
     Ok(())
@@ -400,9 +442,7 @@ fn method_name(m: Method) -> &'static str {
 
 /// One table row: the method tailpack uses, the other method, the reference.
 fn row(
-    n: usize,
-    s: usize,
-    model: &str,
+    (n, s, model): (usize, usize, &str),
     (method, auto): (Method, &Measured),
     (other_method, other): (Method, Option<&Measured>),
     r: Option<&RefMeasured>,
@@ -487,12 +527,15 @@ fn limited(d: &Measured, limit: f64) -> String {
 /// Builds the pack of `config` into a scratch root with a child `tailpack run --timings` and returns its
 /// stage table, wall time and peak memory.
 pub fn demo_end_to_end(config: &Path, work: &Path) -> Result<String> {
-    let exe = std::env::current_exe()
-        .map_err(|e| Error::Run(format!("cannot find the tailpack binary: {e}")))?;
+    let exe = std::env::current_exe().map_err(|source| Error::Binary {
+        action: "find",
+        path: PathBuf::from("/proc/self/exe"),
+        source,
+    })?;
     let root = work.join("demo-packs");
     let _ = std::fs::remove_dir_all(&root);
     let start = Instant::now();
-    let child = Command::new(exe)
+    let child = Command::new(&exe)
         .arg("run")
         .arg(config)
         .arg("--out")
@@ -500,14 +543,19 @@ pub fn demo_end_to_end(config: &Path, work: &Path) -> Result<String> {
         .arg("--quiet")
         .arg("--timings")
         .output()
-        .map_err(|e| Error::Run(format!("cannot start tailpack run: {e}")))?;
+        .map_err(|source| Error::Binary {
+            action: "start",
+            path: exe.clone(),
+            source,
+        })?;
     let wall = start.elapsed();
     let stderr = String::from_utf8_lossy(&child.stderr);
     if !child.status.success() {
-        return Err(Error::Run(format!(
-            "the demo run failed: {}",
-            stderr.trim()
-        )));
+        return Err(Error::DemoRun {
+            config: config.to_path_buf(),
+            code: child.status.code(),
+            stderr: stderr.trim().to_string(),
+        });
     }
     Ok(format!(
         "demo pack end to end ({}): {:.2} s wall as seen from outside\n{}",

@@ -463,49 +463,7 @@ pub fn timings(wall: Duration) -> String {
 }
 
 /// `tailpack bench`: prints the table as it goes; returns nothing more to print.
-#[allow(clippy::too_many_arguments)]
-pub fn bench(
-    sizes: &[String],
-    runs: usize,
-    reference: Option<crate::bench::Reference>,
-    other_too: bool,
-    time_limit: f64,
-    demo: Option<PathBuf>,
-    work: PathBuf,
-) -> Result<String> {
-    let sizes = if sizes.is_empty() {
-        crate::bench::DEFAULT_SIZES.to_vec()
-    } else {
-        sizes
-            .iter()
-            .map(|s| parse_size(s))
-            .collect::<Result<Vec<_>>>()?
-    };
-    let opts = crate::bench::BenchOptions {
-        sizes,
-        runs,
-        reference,
-        other_too,
-        time_limit,
-        demo,
-        work,
-    };
-    crate::bench::run(&opts, &mut std::io::stdout())?;
+pub fn bench(opts: &crate::bench::BenchOptions) -> Result<String> {
+    crate::bench::run(opts, &mut std::io::stdout())?;
     Ok(String::new())
-}
-
-/// `440x200` → (440, 200).
-fn parse_size(s: &str) -> Result<(usize, usize)> {
-    let bad = || {
-        crate::error::Error::Run(format!(
-            "--sizes: `{s}` is not ASSETSxSCENARIOS (e.g. 500x5000) with both at least 1"
-        ))
-    };
-    let (a, b) = s.trim().split_once(['x', 'X']).ok_or_else(bad)?;
-    let n: usize = a.trim().parse().map_err(|_| bad())?;
-    let k: usize = b.trim().parse().map_err(|_| bad())?;
-    if n == 0 || k == 0 {
-        return Err(bad());
-    }
-    Ok((n, k))
 }

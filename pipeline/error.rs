@@ -93,6 +93,34 @@ pub enum Error {
     /// A chart of the pack (`charts/<name>` in the typesetter's files) could not be drawn.
     #[error("chart charts/{name}: {message}")]
     Chart { name: String, message: String },
+    /// `bench --reference`: the reference script's interpreter cannot be started (not installed, or not
+    /// where `--python` says).
+    #[error("cannot start the reference solver `{program}` for {}: {source}; install it or name the interpreter with --python", script.display())]
+    ReferenceMissing {
+        program: String,
+        script: PathBuf,
+        #[source]
+        source: std::io::Error,
+    },
+    /// `bench --reference`: the reference script ran but failed (e.g. scipy not installed) or printed a
+    /// result line that is not one.
+    #[error("reference script {}: {message}", script.display())]
+    ReferenceFailed { script: PathBuf, message: String },
+    /// `bench --demo`: the running tailpack binary cannot be found or started for the demo run.
+    #[error("cannot {action} the tailpack binary {} for the demo run: {source}", path.display())]
+    Binary {
+        action: &'static str,
+        path: PathBuf,
+        #[source]
+        source: std::io::Error,
+    },
+    /// `bench --demo`: the child `tailpack run` of the demo config failed; its exit code and stderr.
+    #[error("the demo run of {} failed{}: {stderr}", config.display(), code.map_or(String::new(), |c| format!(" (exit {c})")))]
+    DemoRun {
+        config: PathBuf,
+        code: Option<i32>,
+        stderr: String,
+    },
     /// Anything else that stops a run (e.g. no scenarios could be built).
     #[error("{0}")]
     Run(String),
@@ -125,6 +153,8 @@ impl Error {
             Error::Data { .. } | Error::Quality { .. } => EXIT_DATA,
             Error::Io { .. } | Error::Run(_) => EXIT_FAILURE,
             Error::Typesetter { .. } | Error::Chart { .. } => EXIT_FAILURE,
+            Error::ReferenceMissing { .. } | Error::ReferenceFailed { .. } => EXIT_FAILURE,
+            Error::Binary { .. } | Error::DemoRun { .. } => EXIT_FAILURE,
             Error::Busy { .. } => EXIT_BUSY,
             Error::Verify { .. } | Error::NotIntact { .. } => EXIT_VERIFY,
             Error::Refused { .. } | Error::Key { .. } => EXIT_SIGNOFF,

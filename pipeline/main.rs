@@ -6,6 +6,7 @@
 
 use clap::{Parser, Subcommand};
 use std::path::PathBuf;
+use tailpack::bench::{BenchOptions, Reference};
 use tailpack::config::Backend;
 use tailpack::run::RunOptions;
 
@@ -36,6 +37,56 @@ struct SignArgs {
     name: Option<String>,
 }
 
+/// What `bench` takes; the defaults are `BenchOptions::default()`'s.
+#[derive(clap::Args)]
+struct BenchArgs {
+    /// Sizes as ASSETSxSCENARIOS, comma-separated (default: 40x200,440x200,100x2500,500x5000,500x20000,1000x50000).
+    #[arg(long, value_delimiter = ',', value_parser = tailpack::bench::parse_size)]
+    sizes: Vec<(usize, usize)>,
+    /// Runs per LP; the median is printed.
+    #[arg(long, default_value_t = BenchOptions::default().runs)]
+    runs: usize,
+    /// Also solve each problem with this reference script (e.g. tests/reference/bench_reference.py).
+    #[arg(long)]
+    reference: Option<PathBuf>,
+    /// The interpreter for the reference script.
+    #[arg(long, default_value = "python3")]
+    python: String,
+    /// Time only the method tailpack chooses at each size, not also the other one (direct LP or cutting planes).
+    #[arg(long)]
+    chosen_only: bool,
+    /// Seconds allowed per LP run of the other method and of the reference.
+    #[arg(long, default_value_t = BenchOptions::default().time_limit)]
+    time_limit: f64,
+    /// Build this config's pack end to end with stage timings (e.g. config-demo/fund.yaml).
+    #[arg(long)]
+    demo: Option<PathBuf>,
+    /// Scratch folder for problem files and the demo pack.
+    #[arg(long, default_value_os_t = BenchOptions::default().work)]
+    work: PathBuf,
+}
+
+impl BenchArgs {
+    fn options(&self) -> BenchOptions {
+        BenchOptions {
+            sizes: if self.sizes.is_empty() {
+                BenchOptions::default().sizes
+            } else {
+                self.sizes.clone()
+            },
+            runs: self.runs,
+            reference: self.reference.as_ref().map(|script| Reference {
+                program: self.python.clone(),
+                script: script.clone(),
+            }),
+            other_too: !self.chosen_only,
+            time_limit: self.time_limit,
+            demo: self.demo.clone(),
+            work: self.work.clone(),
+        }
+    }
+}
+
 #[derive(Subcommand)]
 enum Command {
     /// Build the pack for one month-end: scenarios, the three CVaR models, results and summary.
@@ -63,32 +114,7 @@ enum Command {
     },
     /// Time the three models on synthetic problems (build and solve apart), optionally beside a reference
     /// solver script, and the demo pack end to end. Prints figures; release builds give meaningful ones.
-    Bench {
-        /// Sizes as ASSETSxSCENARIOS, comma-separated (default: 40x200,440x200,100x2500,500x5000,500x20000,1000x50000).
-        #[arg(long, value_delimiter = ',')]
-        sizes: Vec<String>,
-        /// Runs per LP; the median is printed.
-        #[arg(long, default_value_t = 3)]
-        runs: usize,
-        /// Also solve each problem with this reference script (e.g. tests/reference/bench_reference.py).
-        #[arg(long)]
-        reference: Option<PathBuf>,
-        /// The interpreter for the reference script.
-        #[arg(long, default_value = "python3")]
-        python: String,
-        /// Time only the method tailpack chooses at each size, not also the other one (direct LP or cutting planes).
-        #[arg(long)]
-        chosen_only: bool,
-        /// Seconds allowed per LP run of the other method and of the reference.
-        #[arg(long, default_value_t = 900.0)]
-        time_limit: f64,
-        /// Build this config's pack end to end with stage timings (e.g. config-demo/fund.yaml).
-        #[arg(long)]
-        demo: Option<PathBuf>,
-        /// Scratch folder for problem files and the demo pack.
-        #[arg(long, default_value = "out/bench")]
-        work: PathBuf,
-    },
+    Bench(BenchArgs),
     /// Make an Ed25519 key pair for signing packs: PREFIX.key (secret) and PREFIX.pub (public).
     Keygen {
         /// Path prefix of the two files, e.g. keys/risk-reviewer.
@@ -166,28 +192,7 @@ fn main() {
             }
             r.map(|r| (r.text, r.code))
         }
-        Command::Bench {
-            sizes,
-            runs,
-            reference,
-            python,
-            chosen_only,
-            time_limit,
-            demo,
-            work,
-        } => tailpack::commands::bench(
-            sizes,
-            *runs,
-            reference.as_ref().map(|script| tailpack::bench::Reference {
-                program: python.clone(),
-                script: script.clone(),
-            }),
-            !*chosen_only,
-            *time_limit,
-            demo.clone(),
-            work.clone(),
-        )
-        .map(|t| (t, 0)),
+        Command::Bench(a) => tailpack::commands::bench(&a.options()).map(|t| (t, 0)),
         Command::Keygen { prefix } => tailpack::commands::keygen(prefix).map(|t| (t, 0)),
         Command::Sign(a) => {
             tailpack::commands::sign(&a.pack, &a.role, &a.key, a.name.as_deref()).map(signed)

@@ -1,9 +1,9 @@
 //! Walk-forward (out-of-sample) backtest of the three models.
 //!
 //! At each month-end m in the backtest range, scenarios are rebuilt from prices dated on or before m only
-//! (the same lookback, horizon, step and probabilities as the live run), the three models are solved on
-//! the live run's constraints, and each portfolio is held to the next month-end, where its realised return
-//! is measured. The turnover limit and the rules "times current" / "plus current" refer to the fund's
+//! (the same lookback, horizon, step and probabilities as the live run), every family is solved on the
+//! live run's constraints by the run's own function (`models::solve_all`), and each portfolio is held to
+//! the next month-end, where its realised return is measured. The turnover limit and the rules "times current" / "plus current" refer to the fund's
 //! current holdings as the reference portfolio at every date, so months are independent and are solved in
 //! parallel; the reported turnover is the trading actually implied between consecutive months' weights.
 //! The predicted VaR of each month is then backtested against the realised losses (see `vartest`).
@@ -11,7 +11,7 @@
 use super::vartest::{self, LrTest, Zone};
 use crate::config::Config;
 use crate::ingest::MarketData;
-use crate::models::{self, Family, FeasibleSet, Problem, Status, lp};
+use crate::models::{self, Family, FeasibleSet, Premises, Problem, Status, Targets};
 use crate::risk;
 use crate::scenarios;
 use chrono::{Datelike, Months, NaiveDate};
@@ -123,7 +123,7 @@ pub fn run(cfg: &Config, data: &MarketData, live: &FeasibleSet) -> Option<Backte
     Some(assemble(cfg, data, &months))
 }
 
-/// Solves the three models with data up to row `m` only.
+/// Solves every family with data up to row `m` only, as the run solves them ([`models::solve_all`]).
 fn decide(
     cfg: &Config,
     data: &MarketData,
@@ -148,64 +148,23 @@ fn decide(
         .holdings
         .as_ref()
         .map(|h| risk::profile(&set, h, &[c], c));
-    let min_r = p.min_cvar(None).map(|s| s.objective);
-    let max_r = p.max_return(None).map(|s| s.objective);
-    let (min_x, max_x) = (min_r.as_ref().ok().copied(), max_r.as_ref().ok().copied());
-    let cap = models::resolve_cap(cfg.cap, min_x, reference.as_ref().map(|r| r.at(c).cvar));
-    let floor = models::resolve_floor(cfg.floor, reference.as_ref().map(|r| r.expected_return));
-    let pre = models::preconditions(&min_r, &max_r);
-    // Both auxiliary LPs infeasible: X is empty this month (their CVaR rows hold for any x, so only X can
-    // fail them), and no model has a portfolio. Any other failure of theirs establishes nothing about X.
-    let empty = matches!(
-        (&min_r, &max_r),
-        (Err(lp::Failure::Infeasible), Err(lp::Failure::Infeasible))
-    );
-    let outcomes = if empty {
-        [(); 3].map(|()| {
-            models::Outcome::failed(Status::Infeasible, "the feasible set is empty".into())
-        })
-    } else {
-        let ratio = if pre.holds {
-            let solved = match min_x {
-                Some(m) => p.max_ratio_knowing(m),
-                None => p.max_ratio(),
-            };
-            let o = models::outcome(&p, solved, None, None, String::new);
-            models::unless_contradicted(o, Some("the preconditions hold".into()))
-        } else if pre.established {
-            models::Outcome::failed(Status::NotApplicable, pre.reason.unwrap_or_default())
-        } else {
-            models::Outcome::failed(Status::SolverError, pre.reason.unwrap_or_default())
-        };
-        let within = |ok: bool, what: &str| ok.then(|| what.to_string());
-        [
-            models::unless_contradicted(
-                models::outcome(&p, p.max_return(Some(cap)), Some(cap), None, String::new),
-                within(
-                    min_x.is_some_and(|m| cap >= m),
-                    "the minimum-CVaR portfolio meets the cap",
-                ),
-            ),
-            models::unless_contradicted(
-                models::outcome(&p, p.min_cvar(Some(floor)), None, Some(floor), String::new),
-                within(
-                    max_x.is_some_and(|m| floor <= m),
-                    "the maximum-return portfolio meets the floor",
-                ),
-            ),
-            ratio,
-        ]
+    let targets = Targets {
+        cap: cfg.cap,
+        floor: cfg.floor,
+        current: reference.as_ref(),
     };
-    Ok(outcomes
+    let solution = models::solve_all(&p, &targets, Premises::Establish);
+    Ok(solution
+        .families
         .into_iter()
-        .map(|o| {
-            let tail = o.weights.as_ref().map(|w| {
+        .map(|f| {
+            let tail = f.outcome.weights.as_ref().map(|w| {
                 let pr = risk::profile(&set, w, &[c], c);
                 (pr.expected_return, pr.at(c).var, pr.at(c).cvar)
             });
             Decision {
-                status: o.status,
-                weights: o.weights,
+                status: f.outcome.status,
+                weights: f.outcome.weights,
                 tail,
             }
         })

@@ -373,14 +373,7 @@ impl Lp {
         let v: Vec<good_lp::Variable> = (0..self.col_lo.len())
             .map(|j| vars.add(variable().min(self.col_lo[j]).max(self.col_hi[j])))
             .collect();
-        let expr = |terms: &mut dyn Iterator<Item = (usize, f64)>| {
-            let mut e = Expression::default();
-            for (j, a) in terms {
-                e.add_mul(a, v[j]);
-            }
-            e
-        };
-        let goal = expr(&mut objective.0.iter().map(|(c, a)| (c.0, *a)));
+        let goal = expression(&v, objective.0.iter().map(|(c, a)| (c.0, *a)));
         let unsolved = if maximise {
             vars.maximise(goal)
         } else {
@@ -393,26 +386,7 @@ impl Lp {
             .tol_gap_rel(CLARABEL_TOLERANCE)
             .max_iter(500)
             .verbose(false);
-        for r in 0..self.row_lo.len() {
-            let span = self.row_start[r]..self.row_start[r + 1];
-            let e = expr(
-                &mut self.row_col[span.clone()]
-                    .iter()
-                    .zip(&self.row_val[span])
-                    .map(|(&j, &a)| (j as usize, a)),
-            );
-            let (lo, hi) = (self.row_lo[r], self.row_hi[r]);
-            if lo == hi {
-                m.add_constraint(e.eq(lo));
-            } else {
-                if lo.is_finite() {
-                    m.add_constraint(e.clone().geq(lo));
-                }
-                if hi.is_finite() {
-                    m.add_constraint(e.leq(hi));
-                }
-            }
-        }
+        self.constrain(&mut m, &v);
         let built = start.elapsed();
         let solved = m.solve().map_err(|e| match e {
             ResolutionError::Infeasible => Failure::Infeasible,
@@ -433,6 +407,40 @@ impl Lp {
             },
         ))
     }
+
+    /// Hands every row to a good_lp model over the columns `v`: an equality, or its finite bounds.
+    fn constrain(&self, m: &mut impl SolverModel, v: &[good_lp::Variable]) {
+        for r in 0..self.row_lo.len() {
+            let span = self.row_start[r]..self.row_start[r + 1];
+            let e = expression(
+                v,
+                self.row_col[span.clone()]
+                    .iter()
+                    .zip(&self.row_val[span])
+                    .map(|(&j, &a)| (j as usize, a)),
+            );
+            let (lo, hi) = (self.row_lo[r], self.row_hi[r]);
+            if lo == hi {
+                m.add_constraint(e.eq(lo));
+            } else {
+                if lo.is_finite() {
+                    m.add_constraint(e.clone().geq(lo));
+                }
+                if hi.is_finite() {
+                    m.add_constraint(e.leq(hi));
+                }
+            }
+        }
+    }
+}
+
+/// Σ a·v_j over (column j, coefficient a) terms, in their order.
+fn expression(v: &[good_lp::Variable], terms: impl Iterator<Item = (usize, f64)>) -> Expression {
+    let mut e = Expression::default();
+    for (j, a) in terms {
+        e.add_mul(a, v[j]);
+    }
+    e
 }
 
 fn read_solution(

@@ -9,13 +9,23 @@
 //!   and the denominator row binds); both are checked by auxiliary LPs every run.
 //!
 //! Every reported optimum is re-checked against its constraints in code ([`verify`]).
+//!
+//! The families are defined once ([`Family`], `family.rs`) and solved together by one function,
+//! [`solve_all`] (`solve.rs`), which the run, the walk-forward backtest and the bench all call; X itself is
+//! built from the config here too ([`feasible_set`], `feasible.rs`). Reads config, ingest, scenarios and
+//! risk; nothing downstream.
 
 mod family;
+mod feasible;
 pub mod lp;
+mod solve;
 
 pub use family::Family;
+pub use feasible::feasible_set;
+pub use solve::{Auxiliary, FamilyOutcome, Premises, Solution, Targets, solve_all, solve_all_by};
 
 use crate::config::{Backend, CapRule, FloorRule};
+use crate::diag::{Check, Level};
 use crate::risk;
 use crate::scenarios::ScenarioSet;
 use lp::{Failure, Lin, Lp, Solved, Timing};
@@ -281,26 +291,7 @@ impl Problem<'_> {
         }
         let start = Instant::now();
         let mut timing = Timing::default();
-        // The relaxed ratio LP is unbounded until enough cuts exist; t = 1/CVaR(x) ≤ 1/min CVaR over X is a
-        // valid bound that keeps every relaxation bounded without cutting off the optimum.
-        let min_cvar = match kind {
-            Kind::Ratio(Some(m)) => Some(m),
-            Kind::Ratio(None) => {
-                let m = self.min_cvar_by(None, Method::Cuts)?;
-                timing.absorb(m.timing);
-                Some(m.objective)
-            }
-            _ => None,
-        };
-        let t_max = match min_cvar {
-            Some(m) if m > 0.0 => Some((1.0 + 1e-6) / m),
-            Some(m) => {
-                return Err(Failure::Solver(format!(
-                    "minimum CVaR {m:.3e} ≤ 0: the ratio LP does not apply"
-                )));
-            }
-            None => None,
-        };
+        let t_max = self.scale_bound(kind, &mut timing)?;
         let aux = start.elapsed();
         let mut lp = Lp::new(self.feasible, matches!(kind, Kind::Ratio(_)));
         let (block, cc) = lp.cvar_cuts(self.confidence);
@@ -316,17 +307,7 @@ impl Problem<'_> {
         for _ in 0..MAX_CUT_ROUNDS {
             let mut solved = session.solve(&lp, &objective, maximise)?;
             let (ell, w) = (solved.extra[0], solved.extra[1]);
-            let losses: Vec<f64> = self
-                .set
-                .portfolio_returns(&solved.weights)
-                .iter()
-                .map(|r| -r)
-                .collect();
-            let tail: Vec<usize> = (0..losses.len()).filter(|&k| losses[k] > ell).collect();
-            let excess: f64 = tail
-                .iter()
-                .map(|&k| self.set.probabilities[k] * (losses[k] - ell))
-                .sum();
+            let (tail, excess) = self.tail_beyond(&solved.weights, ell);
             if excess <= w + CUT_TOLERANCE * (1.0 + w.abs()) || last_cut == tail {
                 let own = session.timing();
                 timing.absorb(own);
@@ -340,6 +321,42 @@ impl Problem<'_> {
             last_cut = tail;
         }
         self.solve(kind, Method::Direct)
+    }
+}
+
+impl Problem<'_> {
+    /// The bound on the Charnes–Cooper scale t in the ratio's cutting-plane loop (`None` for the other
+    /// families): the relaxed ratio LP is unbounded until enough cuts exist, and t = 1/CVaR(x) ≤ 1/min CVaR
+    /// over X is a valid bound that keeps every relaxation bounded without cutting off the optimum. Solves
+    /// the minimum-CVaR LP when the caller does not know it, adding its timing to `timing`.
+    fn scale_bound(&self, kind: Kind, timing: &mut Timing) -> Result<Option<f64>, Failure> {
+        let min_cvar = match kind {
+            Kind::Ratio(Some(m)) => m,
+            Kind::Ratio(None) => {
+                let m = self.min_cvar_by(None, Method::Cuts)?;
+                timing.absorb(m.timing);
+                m.objective
+            }
+            _ => return Ok(None),
+        };
+        if min_cvar > 0.0 {
+            Ok(Some((1.0 + 1e-6) / min_cvar))
+        } else {
+            Err(Failure::Solver(format!(
+                "minimum CVaR {min_cvar:.3e} ≤ 0: the ratio LP does not apply"
+            )))
+        }
+    }
+
+    /// The scenarios whose loss under weights `x` exceeds ℓ, and the true tail term Σ_k p_k (L_k − ℓ)+.
+    fn tail_beyond(&self, x: &[f64], ell: f64) -> (Vec<usize>, f64) {
+        let losses: Vec<f64> = self.set.portfolio_returns(x).iter().map(|r| -r).collect();
+        let tail: Vec<usize> = (0..losses.len()).filter(|&k| losses[k] > ell).collect();
+        let excess: f64 = tail
+            .iter()
+            .map(|&k| self.set.probabilities[k] * (losses[k] - ell))
+            .sum();
+        (tail, excess)
     }
 }
 
@@ -399,6 +416,47 @@ pub struct Preconditions {
     /// when not, the ratio model is a solver error, not "not applicable".
     pub established: bool,
     pub reason: Option<String>,
+}
+
+impl Preconditions {
+    /// The preconditions taken as holding without an auxiliary LP ([`Premises::Given`]): nothing was
+    /// solved, so nothing is established and the ratio LP finds the minimum CVaR itself where it needs it.
+    pub fn given() -> Preconditions {
+        Preconditions {
+            min_cvar: None,
+            max_return: None,
+            holds: true,
+            established: false,
+            reason: None,
+        }
+    }
+
+    /// The two precondition checks of the ratio family for the checks table: minimum CVaR over X at
+    /// `confidence` and maximum expected return over X, each must be > 0.
+    pub fn checks(&self, confidence: f64) -> [Check; 2] {
+        let fmt = |v: Option<f64>| v.map_or("n/a".to_string(), |x| format!("{x:.6}"));
+        let level = |ok: bool| if ok { Level::Pass } else { Level::Warn };
+        let ratio = Family::MaxRatio.name();
+        [
+            Check::new(
+                format!("{ratio}.cvar_positive"),
+                level(self.min_cvar.is_some_and(|m| m > 0.0)),
+                format!(
+                    "Charnes–Cooper precondition: minimum CVaR {:.1}% over the feasible set = {} (must be > 0)",
+                    confidence * 100.0,
+                    fmt(self.min_cvar)
+                ),
+            ),
+            Check::new(
+                format!("{ratio}.return_positive"),
+                level(self.max_return.is_some_and(|m| m > 0.0)),
+                format!(
+                    "Charnes–Cooper precondition: maximum expected return over the feasible set = {} (must be > 0)",
+                    fmt(self.max_return)
+                ),
+            ),
+        ]
+    }
 }
 
 /// What an LP's failure says, in words for a message.
@@ -508,8 +566,8 @@ pub fn resolve_floor(rule: FloorRule, current_return: Option<f64>) -> f64 {
 pub fn verify(p: &Problem, x: &[f64], cap: Option<f64>, floor: Option<f64>) -> f64 {
     let fs = p.feasible;
     let mut worst = (x.iter().sum::<f64>() - 1.0).abs();
-    for i in 0..x.len() {
-        worst = worst.max(fs.lower[i] - x[i]).max(x[i] - fs.upper[i]);
+    for ((xi, lo), hi) in x.iter().zip(&fs.lower).zip(&fs.upper) {
+        worst = worst.max(lo - xi).max(xi - hi);
     }
     for g in &fs.groups {
         let s: f64 = g.members.iter().map(|&i| x[i]).sum();

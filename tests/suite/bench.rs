@@ -4,21 +4,10 @@
 
 use crate::common::Fixture;
 use tailpack::bench::{self, Reference};
-use tailpack::config::Backend;
-use tailpack::models::{Method, Problem};
+use tailpack::models::{Family, Method};
 
 fn repo() -> std::path::PathBuf {
     std::path::PathBuf::from(env!("CARGO_MANIFEST_DIR"))
-}
-
-fn problem(sy: &bench::Synthetic) -> Problem<'_> {
-    Problem {
-        set: &sy.set,
-        mu: sy.set.mean(),
-        confidence: sy.confidence,
-        feasible: &sy.feasible,
-        backend: Backend::Highs,
-    }
 }
 
 fn rel(a: f64, b: f64) -> f64 {
@@ -38,13 +27,15 @@ fn bench_problems_match_scipy_highs() {
     };
     let got = bench::run_reference(&reference, &file)
         .expect("python3 with scipy (tests/reference/requirements.txt)");
-    assert_eq!(got.len(), 3, "one line per model");
-    let p = problem(&sy);
+    assert_eq!(got.len(), Family::ALL.len(), "one line per model");
+    let measured = bench::measure(&sy, Method::Direct, 1);
     for (model, r) in got {
         assert_eq!(r.status, "optimal", "{model}");
-        let ours = bench::measure(&p, &sy, &model, Method::Direct, 1)
-            .objective
-            .unwrap();
+        let (_, ours) = measured
+            .iter()
+            .find(|(f, _)| f.name() == model)
+            .unwrap_or_else(|| panic!("the reference names an unknown model `{model}`"));
+        let ours = ours.objective.unwrap();
         let theirs = r.objective.unwrap();
         assert!(
             rel(ours, theirs) < 1e-7,
@@ -59,15 +50,15 @@ fn bench_problems_match_scipy_highs() {
 #[test]
 fn cutting_planes_match_the_direct_lp_on_a_bench_problem() {
     let sy = bench::synthetic(60, 4_000, 11);
-    let p = problem(&sy);
-    for model in bench::MODELS {
-        let direct = bench::measure(&p, &sy, model, Method::Direct, 1);
-        let cuts = bench::measure(&p, &sy, model, Method::Cuts, 1);
+    let p = sy.problem();
+    let direct = bench::measure(&sy, Method::Direct, 1);
+    let cuts = bench::measure(&sy, Method::Cuts, 1);
+    for ((model, direct), (_, cuts)) in direct.iter().zip(&cuts) {
         let (d, c) = (direct.objective.unwrap(), cuts.objective.unwrap());
-        assert!(rel(c, d) < 1e-7, "{model}: cuts {c} vs direct {d}");
+        assert!(rel(c, d) < 1e-7, "{model:?}: cuts {c} vs direct {d}");
         assert!(
             cuts.rounds > 1,
-            "{model}: the cut loop ran more than one LP"
+            "{model:?}: the cut loop ran more than one LP"
         );
     }
     let w = p.max_return_by(Some(sy.cap), Method::Cuts).unwrap().weights;
@@ -104,16 +95,17 @@ fn bench_command_prints_a_row_per_model() {
         .filter(|l| l.starts_with("| 8 |") || l.starts_with("| 12 |"))
         .collect();
     assert_eq!(rows.len(), 6, "{}", r.stdout);
-    for m in bench::MODELS {
+    for m in Family::ALL {
         assert_eq!(
             rows.iter()
-                .filter(|l| l.contains(&format!("| {m} |")))
+                .filter(|l| l.contains(&format!("| {} |", m.name())))
                 .count(),
             2
         );
     }
+    // A malformed size is a command-line error (exit 2), refused before anything is timed.
     let bad = f.run(&["bench", "--sizes", "12by90"]);
-    assert_eq!(bad.code, 1);
+    assert_eq!(bad.code, 2);
     assert!(
         bad.stderr.contains("`12by90` is not ASSETSxSCENARIOS"),
         "{}",

@@ -9,6 +9,67 @@ use tailpack::models::{self, FeasibleSet, Group, Problem};
 use tailpack::risk::cvar_of;
 use tailpack::scenarios::ScenarioSet;
 
+/// Builds a feasible set X for a test: starts long-only (every weight in [0, 1], budget Σx = 1, no group,
+/// no turnover limit) and changes one part per call.
+pub(crate) struct Limits(FeasibleSet);
+
+impl Limits {
+    /// `n` assets, long-only.
+    pub(crate) fn long_only(n: usize) -> Limits {
+        Limits(FeasibleSet {
+            lower: vec![0.0; n],
+            upper: vec![1.0; n],
+            groups: vec![],
+            turnover_max: None,
+            current: None,
+        })
+    }
+
+    pub(crate) fn lower(mut self, lower: Vec<f64>) -> Limits {
+        self.0.lower = lower;
+        self
+    }
+
+    pub(crate) fn upper(mut self, upper: Vec<f64>) -> Limits {
+        self.0.upper = upper;
+        self
+    }
+
+    /// A group limit min ≤ Σ_{i ∈ members} x_i ≤ max.
+    pub(crate) fn group(mut self, name: &str, members: &[usize], min: f64, max: f64) -> Limits {
+        self.0.groups.push(Group {
+            name: name.into(),
+            members: members.to_vec(),
+            min,
+            max,
+        });
+        self
+    }
+
+    /// Current holdings, and a turnover limit Σ|x − current| ≤ max around them when given.
+    pub(crate) fn current(mut self, current: Vec<f64>, turnover_max: Option<f64>) -> Limits {
+        self.0.current = Some(current);
+        self.0.turnover_max = turnover_max;
+        self
+    }
+
+    pub(crate) fn build(self) -> FeasibleSet {
+        self.0
+    }
+}
+
+/// The problem of `set` on X at confidence `c`, solved with HiGHS (`Problem { backend, ..problem(…) }`
+/// for the other backend).
+pub(crate) fn problem<'a>(set: &'a ScenarioSet, fs: &'a FeasibleSet, c: f64) -> Problem<'a> {
+    Problem {
+        set,
+        mu: set.mean(),
+        confidence: c,
+        feasible: fs,
+        backend: Backend::Highs,
+    }
+}
+
 /// A random instance: scenarios, feasible set, confidence, cap and floor.
 struct Instance {
     set: ScenarioSet,
@@ -40,29 +101,15 @@ fn instance(seed: u64) -> Instance {
     let upper: Vec<f64> = (0..n).map(|i| if i % 3 == 0 { 0.3 } else { 0.6 }).collect();
     let mut lower = vec![0.0; n];
     lower[0] = 0.05;
-    let groups = vec![Group {
-        name: "g".into(),
-        members: vec![n - 1, n - 2],
-        min: 0.1,
-        max: 0.5,
-    }];
-    let current: Vec<f64> = vec![1.0 / n as f64; n];
     let turnover = (seed % 3 != 0).then_some(0.4 + 0.1 * (seed % 4) as f64);
-    let fs = FeasibleSet {
-        lower,
-        upper,
-        groups,
-        turnover_max: turnover,
-        current: Some(current),
-    };
+    let fs = Limits::long_only(n)
+        .lower(lower)
+        .upper(upper)
+        .group("g", &[n - 1, n - 2], 0.1, 0.5)
+        .current(vec![1.0 / n as f64; n], turnover)
+        .build();
     let c = [0.9, 0.95, 0.975][seed as usize % 3];
-    let p = Problem {
-        set: &set,
-        mu: set.mean(),
-        confidence: c,
-        feasible: &fs,
-        backend: Backend::Highs,
-    };
+    let p = problem(&set, &fs, c);
     let min_cvar = p.min_cvar(None).unwrap().objective;
     let max_ret = p.max_return(None).unwrap().objective;
     let min_ret = p
@@ -75,6 +122,12 @@ fn instance(seed: u64) -> Instance {
         set,
         fs,
         c,
+    }
+}
+
+impl Instance {
+    fn problem(&self) -> Problem<'_> {
+        problem(&self.set, &self.fs, self.c)
     }
 }
 
@@ -120,13 +173,7 @@ fn optima_match_scipy_highs_on_random_instances() {
     for seed in 0..8u64 {
         let i = instance(seed);
         let r = reference(&i);
-        let p = Problem {
-            set: &i.set,
-            mu: i.set.mean(),
-            confidence: i.c,
-            feasible: &i.fs,
-            backend: Backend::Highs,
-        };
+        let p = i.problem();
         let mr = p.max_return(Some(i.cap)).unwrap();
         assert_eq!(r["max_return"]["status"], "optimal");
         close(
@@ -172,25 +219,13 @@ fn optima_match_scipy_highs_on_random_instances() {
 #[test]
 fn infeasible_cap_and_floor_agree_with_scipy() {
     let mut i = instance(3);
-    let p = Problem {
-        set: &i.set,
-        mu: i.set.mean(),
-        confidence: i.c,
-        feasible: &i.fs,
-        backend: Backend::Highs,
-    };
+    let p = i.problem();
     let min_cvar = p.min_cvar(None).unwrap().objective;
     let max_ret = p.max_return(None).unwrap().objective;
     i.cap = 0.5 * min_cvar;
     i.floor = max_ret + 0.01;
     let r = reference(&i);
-    let p = Problem {
-        set: &i.set,
-        mu: i.set.mean(),
-        confidence: i.c,
-        feasible: &i.fs,
-        backend: Backend::Highs,
-    };
+    let p = i.problem();
     assert!(p.max_return(Some(i.cap)).is_err());
     assert!(p.min_cvar(Some(i.floor)).is_err());
     assert_eq!(r["max_return"]["status"], "infeasible");
@@ -224,21 +259,9 @@ fn three_assets_beat_or_match_every_grid_point() {
         vec![1.0 / s as f64; s],
     )
     .unwrap();
-    let fs = FeasibleSet {
-        lower: vec![0.0; 3],
-        upper: vec![1.0; 3],
-        groups: vec![],
-        turnover_max: None,
-        current: None,
-    };
+    let fs = Limits::long_only(3).build();
     let c = 0.9;
-    let p = Problem {
-        set: &set,
-        mu: set.mean(),
-        confidence: c,
-        feasible: &fs,
-        backend: Backend::Highs,
-    };
+    let p = problem(&set, &fs, c);
     let grid: Vec<([f64; 3], f64, f64)> = simplex_grid(0.005)
         .into_iter()
         .map(|x| (x, models::dot(&p.mu, &x), cvar_of(&set, &x, c)))
@@ -276,13 +299,7 @@ fn three_assets_beat_or_match_every_grid_point() {
 #[test]
 fn max_ratio_dominates_a_fifty_point_min_cvar_frontier_and_backends_agree() {
     let i = instance(5);
-    let p = Problem {
-        set: &i.set,
-        mu: i.set.mean(),
-        confidence: i.c,
-        feasible: &i.fs,
-        backend: Backend::Highs,
-    };
+    let p = i.problem();
     let ratio = p.max_ratio().unwrap().objective;
     let lo = models::dot(&p.mu, &p.min_cvar(None).unwrap().weights);
     let hi = p.max_return(None).unwrap().objective;
@@ -298,8 +315,7 @@ fn max_ratio_dominates_a_fifty_point_min_cvar_frontier_and_backends_agree() {
     // Simplex (HiGHS) and interior point (Clarabel) agree to 1e-6 on every model.
     let q = Problem {
         backend: Backend::Clarabel,
-        mu: p.mu.clone(),
-        ..p
+        ..i.problem()
     };
     close(
         q.max_ratio().unwrap().objective,
@@ -338,25 +354,14 @@ fn hand_worked_models_on_five_scenarios() {
         vec![0.2; 5],
     )
     .unwrap();
-    let fs = FeasibleSet {
-        lower: vec![0.0; 3],
-        upper: vec![1.0, 0.5, 1.0],
-        groups: vec![Group {
-            name: "BC".into(),
-            members: vec![1, 2],
-            min: 0.0,
-            max: 0.8,
-        }],
-        turnover_max: None,
-        current: None,
-    };
+    let fs = Limits::long_only(3)
+        .upper(vec![1.0, 0.5, 1.0])
+        .group("BC", &[1, 2], 0.0, 0.8)
+        .build();
     for backend in [Backend::Highs, Backend::Clarabel] {
         let p = Problem {
-            set: &set,
-            mu: set.mean(),
-            confidence: 0.6,
-            feasible: &fs,
             backend,
+            ..problem(&set, &fs, 0.6)
         };
         let tol = if backend == Backend::Highs {
             1e-10
@@ -399,20 +404,8 @@ fn preconditions_reject_riskless_and_all_losing_universes() {
         vec![1.0 / s as f64; s],
     )
     .unwrap();
-    let fs = FeasibleSet {
-        lower: vec![0.0; 2],
-        upper: vec![1.0; 2],
-        groups: vec![],
-        turnover_max: None,
-        current: None,
-    };
-    let p = Problem {
-        set: &set,
-        mu: set.mean(),
-        confidence: 0.95,
-        feasible: &fs,
-        backend: Backend::Highs,
-    };
+    let fs = Limits::long_only(2).build();
+    let p = problem(&set, &fs, 0.95);
     let pre = models::preconditions(
         &p.min_cvar(None).map(|s| s.objective),
         &p.max_return(None).map(|s| s.objective),
@@ -434,13 +427,7 @@ fn preconditions_reject_riskless_and_all_losing_universes() {
         vec![1.0 / s as f64; s],
     )
     .unwrap();
-    let p = Problem {
-        set: &set,
-        mu: set.mean(),
-        confidence: 0.95,
-        feasible: &fs,
-        backend: Backend::Highs,
-    };
+    let p = problem(&set, &fs, 0.95);
     let pre = models::preconditions(
         &p.min_cvar(None).map(|s| s.objective),
         &p.max_return(None).map(|s| s.objective),
@@ -456,13 +443,7 @@ fn cutting_planes_reach_the_direct_lp_optimum() {
     use tailpack::models::Method;
     for seed in [2u64, 7] {
         let i = instance(seed);
-        let p = Problem {
-            set: &i.set,
-            mu: i.set.mean(),
-            confidence: i.c,
-            feasible: &i.fs,
-            backend: Backend::Highs,
-        };
+        let p = i.problem();
         let pairs = [
             (
                 p.max_return_by(Some(i.cap), Method::Direct)
@@ -531,13 +512,7 @@ fn the_cutting_plane_method_is_chosen_by_scenario_and_asset_count() {
     assert_eq!(method_for(c - 1, 1_000, Backend::Clarabel), Method::Direct);
     assert_eq!(method_for(c, 40, Backend::Clarabel), Method::Cuts);
     let i = instance(2);
-    let p = Problem {
-        set: &i.set,
-        mu: i.set.mean(),
-        confidence: i.c,
-        feasible: &i.fs,
-        backend: Backend::Highs,
-    };
+    let p = i.problem();
     assert_eq!(
         p.method(),
         method_for(i.set.len(), i.set.width(), Backend::Highs)
@@ -559,25 +534,13 @@ fn failed_auxiliary_lps_claim_nothing_about_the_feasible_set() {
         vec![1.0 / s as f64; s],
     )
     .unwrap();
-    let fs = FeasibleSet {
-        lower: vec![0.0; 2],
-        upper: vec![1.0; 2],
-        groups: vec![],
-        turnover_max: None,
-        current: None,
-    };
+    let fs = Limits::long_only(2).build();
     // x = (1, 0) meets the bounds and the budget: X is not empty.
     assert_eq!(
         models::explain_empty(&fs, &set.assets, Backend::Highs),
         models::Emptiness::NotEmpty
     );
-    let p = Problem {
-        set: &set,
-        mu: set.mean(),
-        confidence: 0.95,
-        feasible: &fs,
-        backend: Backend::Highs,
-    };
+    let p = problem(&set, &fs, 0.95);
     let min = p.min_cvar(None).map(|s| s.objective);
     let max = p.max_return(None).map(|s| s.objective);
     assert!(
@@ -632,31 +595,17 @@ fn an_infeasible_verdict_contradicted_by_a_known_portfolio_is_a_solver_error() {
 /// X shown empty by its bound sums, or by a feasibility LP: `Empty` with the reason.
 #[test]
 fn an_empty_feasible_set_is_shown_not_assumed() {
-    let two = |lower: Vec<f64>, upper: Vec<f64>, groups: Vec<Group>| FeasibleSet {
-        lower,
-        upper,
-        groups,
-        turnover_max: None,
-        current: None,
-    };
     let names = vec!["A".to_string(), "B".to_string()];
-    let sums = two(vec![0.6, 0.6], vec![1.0, 1.0], vec![]);
+    let sums = Limits::long_only(2).lower(vec![0.6, 0.6]).build();
     assert!(matches!(
         models::explain_empty(&sums, &names, Backend::Highs),
         models::Emptiness::Empty(m) if m.contains("sum to 1.2000 > 1")
     ));
     // Two groups over the same asset that cannot both hold: only the feasibility LP shows it.
-    let g = |name: &str, min: f64, max: f64| Group {
-        name: name.into(),
-        members: vec![0],
-        min,
-        max,
-    };
-    let clash = two(
-        vec![0.0, 0.0],
-        vec![1.0, 1.0],
-        vec![g("Low", 0.0, 0.3), g("High", 0.5, 1.0)],
-    );
+    let clash = Limits::long_only(2)
+        .group("Low", &[0], 0.0, 0.3)
+        .group("High", &[0], 0.5, 1.0)
+        .build();
     match models::explain_empty(&clash, &names, Backend::Highs) {
         models::Emptiness::Empty(m) => assert!(m.contains("group `Low`"), "{m}"),
         other => panic!("{other:?}"),
@@ -687,5 +636,71 @@ fn a_return_beyond_the_bound_that_reaches_the_models_is_a_data_error() {
             && msg.contains("column `AS02`")
             && msg.contains(&day.to_string()),
         "{msg}"
+    );
+}
+
+/// Issue 15: the run and the walk-forward backtest take their models from one function
+/// (`models::solve_all`), so they cannot drift apart. The backtest rebuilds its first month-end D from prices
+/// dated on or before D with the run's lookback, limits and rules; its decision for each family must then be
+/// the run's own outcome for as-of D and that of a direct `solve_all` on the prepared problem of D — same
+/// status, bit-identical weights. The rules used (cap a multiple of the minimum CVaR over X, floor the
+/// current return, a turnover limit) need both auxiliary LPs and the current holdings, so a backtest that
+/// resolved them, screened X or solved a family another way would fail here.
+#[test]
+fn the_backtest_decides_each_month_as_the_run_solves() {
+    use super::common::{Fixture, Market, config};
+    use tailpack::models::{Family, Premises, Targets};
+    use tailpack::run::{self, RunOptions};
+    let f = Fixture::new();
+    let m = Market::new(4, "2020-01-01", "2024-06-28", 23);
+    let tail = "limits:\n  turnover_max: 0.8\nmodels:\n  max_return:\n    cvar_cap: { times_min: 1.2 }\n  min_cvar:\n    return_floor: { plus_current: 0.0 }\nanalysis:\n  frontier_points: 2\n  backtest_years: 1\n";
+    let path = f.small_fund(&m, &config(tail));
+    let latest = run::solve(run::prepare(&path, &RunOptions::default()).unwrap()).unwrap();
+    let backtest = latest.analysis.backtest.expect("one year of backtest");
+    let first = backtest.rebalances[0];
+    let opts = RunOptions {
+        as_of: Some(first),
+        ..RunOptions::default()
+    };
+    let then = run::prepare(&path, &opts).unwrap();
+    assert_eq!(then.data.as_of, first);
+    let c = then.cfg.confidence;
+    let p = Problem {
+        backend: then.cfg.backend,
+        ..problem(&then.scenarios, &then.feasible, c)
+    };
+    let current = then
+        .data
+        .holdings
+        .as_ref()
+        .map(|h| tailpack::risk::profile(&then.scenarios, h, &[c], c));
+    let targets = Targets {
+        cap: then.cfg.cap,
+        floor: then.cfg.floor,
+        current: current.as_ref(),
+    };
+    let direct = models::solve_all(&p, &targets, Premises::Establish);
+    let run_then = run::solve(then.clone()).unwrap();
+    let mut optimal = 0;
+    for (k, family) in Family::ALL.into_iter().enumerate() {
+        let (track, reported) = (&backtest.tracks[k], &run_then.models[k]);
+        assert_eq!((track.model, reported.family), (family.name(), family));
+        let (row, o) = (&track.rows[0], direct.outcome(family));
+        assert_eq!(row.date, first);
+        assert_eq!(row.status, o.status.word(), "{family:?}");
+        assert_eq!(
+            row.weights, o.weights,
+            "{family:?}: backtest vs direct solve"
+        );
+        assert_eq!(
+            reported.outcome.weights, o.weights,
+            "{family:?}: run vs direct solve"
+        );
+        optimal += usize::from(o.weights.is_some());
+    }
+    assert_eq!(
+        optimal,
+        Family::ALL.len(),
+        "every family has a portfolio to compare"
     );
 }

@@ -1,0 +1,96 @@
+//! The feasible set X from the config: per-asset bounds from the asset metadata (or the config's
+//! defaults), exclusions, group limits resolved against the assets (by a metadata tag or by name) and the
+//! turnover limit around the current holdings. Every model family and the backtest share this one X.
+//!
+//! Reads the resolved config and the loaded data (earlier stages); the only place group selectors meet the
+//! asset list, so an unknown asset or tag column is a config error named here (exit 2).
+
+use super::{FeasibleSet, Group};
+use crate::config::{self, Config, GroupSelector};
+use crate::error::{Error, Result};
+use crate::ingest::MarketData;
+
+/// Builds the feasible set X from config, metadata and holdings.
+pub fn feasible_set(cfg: &Config, data: &MarketData) -> Result<FeasibleSet> {
+    let n = data.assets.len();
+    let mut lower: Vec<f64> = data
+        .meta
+        .iter()
+        .map(|m| m.min_weight.unwrap_or(cfg.default_min))
+        .collect();
+    let mut upper: Vec<f64> = data
+        .meta
+        .iter()
+        .map(|m| m.max_weight.unwrap_or(cfg.default_max))
+        .collect();
+    for (i, a) in data.assets.iter().enumerate() {
+        if cfg.exclude.contains(a) {
+            lower[i] = 0.0;
+            upper[i] = 0.0;
+        }
+    }
+    let groups = cfg
+        .groups
+        .iter()
+        .map(|g| resolve_group(cfg, data, g))
+        .collect::<Result<Vec<_>>>()?;
+    debug_assert_eq!(lower.len(), n);
+    Ok(FeasibleSet {
+        lower,
+        upper,
+        groups,
+        turnover_max: cfg.turnover_max,
+        current: data.holdings.clone(),
+    })
+}
+
+fn resolve_group(cfg: &Config, data: &MarketData, g: &config::GroupSpec) -> Result<Group> {
+    let members: Vec<usize> = match &g.selector {
+        GroupSelector::Tag { column, value } => {
+            let col = column.to_ascii_lowercase();
+            if data.meta.first().is_some_and(|m| m.tag(&col).is_none()) {
+                return Err(Error::config(
+                    &cfg.path,
+                    format!(
+                        "limits.groups `{}`: the asset metadata has no column `{column}`",
+                        g.name
+                    ),
+                ));
+            }
+            (0..data.assets.len())
+                .filter(|&i| {
+                    data.meta[i]
+                        .tag(&col)
+                        .is_some_and(|v| v.eq_ignore_ascii_case(value))
+                })
+                .collect()
+        }
+        GroupSelector::Assets(list) => list
+            .iter()
+            .map(|a| {
+                data.assets.iter().position(|x| x == a).ok_or_else(|| {
+                    let names: Vec<&str> = data.assets.iter().map(String::as_str).collect();
+                    let hint = config::nearest(a, &names)
+                        .map(|n| format!("; did you mean `{n}`?"))
+                        .unwrap_or_default();
+                    Error::config(
+                        &cfg.path,
+                        format!("limits.groups `{}`: unknown asset `{a}`{hint}", g.name),
+                    )
+                })
+            })
+            .collect::<Result<_>>()?,
+    };
+    if members.is_empty() {
+        return Err(Error::config(
+            &cfg.path,
+            format!("limits.groups `{}`: selects no asset", g.name),
+        ));
+    }
+    Ok(Group {
+        name: g.name.clone(),
+        members,
+        min: g.min,
+        max: g.max,
+    })
+}
