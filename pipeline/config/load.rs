@@ -193,3 +193,54 @@ pub fn load_archived(inputs: &Path, overrides: &Overrides) -> Result<Config> {
             .ok_or_else(|| Error::config(&path, "lists no fund")),
     }
 }
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::config::Backend;
+    use std::path::PathBuf;
+
+    fn demo() -> PathBuf {
+        Path::new(env!("CARGO_MANIFEST_DIR")).join("config-demo/fund.yaml")
+    }
+
+    /// The demo config says `solver.backend: highs` and `output.root: ../out`; each override replaces
+    /// its setting in the loaded config, and nothing else.
+    #[test]
+    fn overrides_replace_the_configs_settings_as_it_is_loaded() {
+        let plain = load(&demo(), &Overrides::default()).unwrap();
+        assert_eq!(plain.backend, Backend::Highs);
+        assert_eq!(plain.out_root, demo().parent().unwrap().join("../out"));
+        assert_eq!(plain.as_of, None);
+        let as_of = chrono::NaiveDate::from_ymd_opt(2026, 6, 30);
+        let given = Overrides {
+            as_of,
+            out: Some(PathBuf::from("elsewhere")),
+            backend: Some(Backend::Clarabel),
+        };
+        let c = load(&demo(), &given).unwrap();
+        assert_eq!(c.backend, Backend::Clarabel);
+        assert_eq!(c.out_root, PathBuf::from("elsewhere"));
+        assert_eq!(c.as_of, as_of);
+        assert_eq!(c.prices, plain.prices);
+    }
+
+    /// Without `output.root` or `--out`, packs go to `out/` in the current folder (README, "The pack
+    /// folder").
+    #[test]
+    fn the_default_pack_root_is_the_one_the_readme_states() {
+        let data = demo().parent().unwrap().join("data");
+        let text = format!(
+            "fund: {{ name: A fund (fictional) }}\ndata: {{ prices: {}, assets: {} }}\nmodels:\n  max_return: {{ cvar_cap: {{ times_min: 1.5 }} }}\n  min_cvar: {{ return_floor: {{ value: 0.0 }} }}\n",
+            data.join("prices.csv").display(),
+            data.join("assets.csv").display()
+        );
+        let path = Path::new("fund.yaml");
+        let c = crate::config::resolve(path, parse(path, &text).unwrap()).unwrap();
+        assert_eq!(c.out_root, PathBuf::from("out"));
+        let readme =
+            std::fs::read_to_string(Path::new(env!("CARGO_MANIFEST_DIR")).join("README.md"))
+                .unwrap();
+        assert!(readme.contains("(default root `out/` in the current"));
+    }
+}

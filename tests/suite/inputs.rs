@@ -1,6 +1,7 @@
 //! Config, stress and input files at their limits, through the real binary: text bounds (a 50 MB value
 //! is refused in seconds), paths that are not files, output roots inside a pack, and `check` refusing
-//! what `run` refuses before its first LP. Single cases of each kind are also in the bad-input corpus.
+//! what `run` refuses before its first LP. Single cases of each kind are also in the bad-input corpus. And
+//! every kind of input the registry (`config::Input`) lists: archived, hashed and read back on a re-run.
 
 use super::common::{Fixture, Market, Ran, config};
 use std::time::{Duration, Instant};
