@@ -8,6 +8,7 @@
 //! folder inside the archive and renamed into place when complete; a file lock serialises runs.
 
 use crate::config::Config;
+use crate::config::inputs::{Input, RunRecord};
 use crate::error::{Error, Result, fs};
 use chrono::NaiveDate;
 use serde_json::{Value, json};
@@ -81,51 +82,13 @@ fn archived(role: &'static str, name: String, source: Option<PathBuf>, bytes: Ve
     }
 }
 
-fn ext(p: &Path) -> String {
-    p.extension()
-        .and_then(|e| e.to_str())
-        .map(|e| format!(".{e}"))
-        .unwrap_or_default()
-}
-
-/// Reads every input of a run (config, data files, stress file, effective templates, run options).
+/// Reads every input of a run, as the registry of inputs lists them ([`Input::ALL`]: config, data files,
+/// stress file, effective templates, run record), and derives the listing and the pack id from them.
 pub fn plan(cfg: &Config, as_of: NaiveDate) -> Result<Plan> {
-    let mut files = vec![archived(
-        "config",
-        "config.yaml".into(),
-        Some(cfg.path.clone()),
-        fs::read(&cfg.path)?,
-    )];
-    let mut add = |role: &'static str, p: &Path| -> Result<()> {
-        files.push(archived(
-            role,
-            format!("{role}{}", ext(p)),
-            Some(p.to_path_buf()),
-            fs::read(p)?,
-        ));
-        Ok(())
-    };
-    add("prices", &cfg.prices)?;
-    add("assets", &cfg.assets)?;
-    if let Some(h) = &cfg.holdings {
-        add("holdings", h)?;
+    let mut files = Vec::new();
+    for &kind in Input::ALL {
+        files.extend(archive_input(cfg, kind, as_of)?);
     }
-    if let Some(s) = &cfg.stress_file {
-        files.push(archived(
-            "stress",
-            "stress.yaml".into(),
-            Some(s.clone()),
-            fs::read(s)?,
-        ));
-    }
-    files.extend(templates(cfg)?);
-    let run = json!({"as_of": as_of.to_string(), "backend": cfg.backend.name(), "fund": cfg.short_name, "tool": format!("tailpack {}", env!("CARGO_PKG_VERSION"))});
-    files.push(archived(
-        "run",
-        "run.json".into(),
-        None,
-        (serde_json::to_string_pretty(&run).expect("json") + "\n").into_bytes(),
-    ));
     files.sort_by(|a, b| a.name.cmp(&b.name));
     let listing: String = files
         .iter()
@@ -141,25 +104,53 @@ pub fn plan(cfg: &Config, as_of: NaiveDate) -> Result<Plan> {
     })
 }
 
+/// The archived files of one kind of input: none when the config names no such input.
+fn archive_input(cfg: &Config, kind: Input, as_of: NaiveDate) -> Result<Vec<Archived>> {
+    match kind {
+        Input::Config | Input::Prices | Input::Assets | Input::Holdings | Input::Stress => {
+            let Some(p) = cfg.input(kind) else {
+                return Ok(vec![]);
+            };
+            Ok(vec![archived(
+                kind.role(),
+                kind.archived_name(p),
+                Some(p.to_path_buf()),
+                fs::read(p)?,
+            )])
+        }
+        Input::Templates => templates(cfg),
+        Input::Run => Ok(vec![archived(
+            kind.role(),
+            kind.archived_name(Path::new("")),
+            None,
+            RunRecord::of(cfg, as_of).bytes(),
+        )]),
+    }
+}
+
 /// The effective template files: built-in defaults not overridden, plus every file of the custom folder
 /// as the typesetter sees it (`report::templates::custom`, the one checked listing of the folder).
 fn templates(cfg: &Config) -> Result<Vec<Archived>> {
     let mut custom = Vec::new();
+    let (role, folder) = (
+        Input::Templates.role(),
+        Input::Templates.archived_name(Path::new("")),
+    );
     for f in crate::report::templates::custom(cfg)? {
         custom.push(archived(
-            "template",
-            format!("templates/{}", f.rel),
+            role,
+            format!("{folder}/{}", f.rel),
             Some(f.path),
             f.bytes,
         ));
     }
     let mut out: Vec<Archived> = crate::report::templates::DEFAULTS
         .iter()
-        .filter(|(name, _)| !custom.iter().any(|c| c.name == format!("templates/{name}")))
+        .filter(|(name, _)| !custom.iter().any(|c| c.name == format!("{folder}/{name}")))
         .map(|(name, text)| {
             archived(
-                "template",
-                format!("templates/{name}"),
+                role,
+                format!("{folder}/{name}"),
                 None,
                 text.as_bytes().to_vec(),
             )

@@ -53,31 +53,32 @@ pub struct RunReport {
 /// the others, and the worst outcome sets the exit code.
 pub fn run(config: &Path, opts: &RunOptions, progress: &Progress) -> Result<RunReport> {
     progress.step("reading config and data");
-    let mut funds = crate::config::load_all(config)?;
+    let mut funds = crate::config::load_all(config, &opts.overrides)?;
     let root = output_root(config, &funds[0], opts)?;
     let _lock = crate::archive::lock(&root, opts.lock_timeout)?;
     if funds.len() == 1 {
-        return run_fund(funds.remove(0), opts, progress);
+        return run_fund(funds.remove(0), progress);
     }
     progress.step(&format!("building {} fund packs in parallel", funds.len()));
     use rayon::prelude::*;
     let quiet = Progress::new(true);
     let outcomes: Vec<(String, Result<RunReport>)> = funds
         .into_par_iter()
-        .map(|cfg| (cfg.short_name.clone(), run_fund(cfg, opts, &quiet)))
+        .map(|cfg| (cfg.short_name.clone(), run_fund(cfg, &quiet)))
         .collect();
     crate::signoff::write_index(&root)?;
     progress.finish();
     Ok(multi_summary(&outcomes))
 }
 
-/// The pack root of a run (`--out`, else `output.root`), refused when it is or lies inside a pack folder
+/// The pack root of a run (`--out`, else `output.root`, as the config resolved it), refused when it is or lies inside a pack folder
 /// (the archive's lock and index written there would change a pack that verifies only as written) or when
 /// a file stands where it or one of its folders must be created.
 fn output_root(config: &Path, cfg: &crate::config::Config, opts: &RunOptions) -> Result<PathBuf> {
-    let (root, key) = match &opts.out {
-        Some(out) => (out.clone(), "--out"),
-        None => (cfg.out_root.clone(), "output.root"),
+    let root = cfg.out_root.clone();
+    let key = match &opts.overrides.out {
+        Some(_) => "--out",
+        None => "output.root",
     };
     match enclosing_pack(&root) {
         Some(pack) => Err(crate::error::Error::config(
@@ -117,12 +118,8 @@ fn enclosing_pack(dir: &Path) -> Option<PathBuf> {
 }
 
 /// One fund: plan, no-op check, compute, write (the caller holds the archive lock).
-fn run_fund(
-    cfg: crate::config::Config,
-    opts: &RunOptions,
-    progress: &Progress,
-) -> Result<RunReport> {
-    let prepared = run::prepare_fund(cfg, opts)?;
+fn run_fund(cfg: crate::config::Config, progress: &Progress) -> Result<RunReport> {
+    let prepared = run::prepare_fund(cfg)?;
     let plan = timings::time("hashing", || {
         crate::archive::plan(&prepared.cfg, prepared.data.as_of)
     })?;
@@ -254,16 +251,12 @@ pub fn verify(pack: &Path, rerun: bool) -> Result<String> {
 
 /// Recomputes a pack's run from its archived inputs alone.
 fn recompute(pack: &Path, scratch: &Path) -> Result<(run::RunResult, crate::archive::Plan)> {
-    let mut cfg = crate::config::load_archived(&pack.join("inputs"))?;
-    let run: serde_json::Value =
-        serde_json::from_slice(&crate::error::fs::read(&pack.join("inputs/run.json"))?)
-            .unwrap_or_default();
-    let as_of = run["as_of"].as_str().and_then(|d| d.parse().ok());
-    if let Some(b) = run["backend"].as_str().and_then(|b| b.parse().ok()) {
-        cfg.backend = b;
-    }
-    cfg.out_root = scratch.to_path_buf();
-    let data = crate::ingest::load(&cfg, as_of)?;
+    let overrides = crate::config::Overrides {
+        out: Some(scratch.to_path_buf()),
+        ..Default::default()
+    };
+    let cfg = crate::config::load_archived(&pack.join("inputs"), &overrides)?;
+    let data = crate::ingest::load(&cfg)?;
     let plan = crate::archive::plan(&cfg, data.as_of)?;
     Ok((run::compute(cfg, data)?, plan))
 }
@@ -380,17 +373,17 @@ pub fn sign(pack: &Path, role: &str, key: &Path, name: Option<&str>) -> Result<S
 /// data, the custom template folder), so it refuses what `run` refuses with the same exit code; returns
 /// the data-quality report.
 pub fn check(config: &Path, opts: &RunOptions) -> Result<String> {
-    let funds = crate::config::load_all(config)?;
+    let funds = crate::config::load_all(config, &opts.overrides)?;
     output_root(config, &funds[0], opts)?;
     let mut out = String::new();
     for cfg in funds {
-        out.push_str(&check_fund(cfg, opts)?);
+        out.push_str(&check_fund(cfg)?);
     }
     Ok(out)
 }
 
-fn check_fund(cfg: crate::config::Config, opts: &RunOptions) -> Result<String> {
-    let prepared = run::prepare_fund(cfg, opts)?;
+fn check_fund(cfg: crate::config::Config) -> Result<String> {
+    let prepared = run::prepare_fund(cfg)?;
     let (cfg, data) = (&prepared.cfg, &prepared.data);
     // `run` reads the template folder when it plans the pack, before its first LP.
     crate::report::templates::custom(cfg)?;

@@ -7,7 +7,7 @@
 use clap::{Parser, Subcommand};
 use std::path::PathBuf;
 use tailpack::bench::{BenchOptions, Reference};
-use tailpack::config::Backend;
+use tailpack::config::{Backend, Overrides};
 use tailpack::run::RunOptions;
 
 #[derive(Parser)]
@@ -179,9 +179,11 @@ fn main() {
             timings,
         } => {
             let opts = RunOptions {
-                as_of: *as_of,
-                out: out.clone(),
-                backend: *solver,
+                overrides: Overrides {
+                    as_of: *as_of,
+                    out: out.clone(),
+                    backend: *solver,
+                },
                 lock_timeout: std::time::Duration::from_secs(*lock_timeout),
             };
             let start = std::time::Instant::now();
@@ -204,7 +206,10 @@ fn main() {
         Command::Check { config, as_of } => tailpack::commands::check(
             config,
             &RunOptions {
-                as_of: *as_of,
+                overrides: Overrides {
+                    as_of: *as_of,
+                    ..Default::default()
+                },
                 ..Default::default()
             },
         )

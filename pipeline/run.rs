@@ -13,15 +13,12 @@ use crate::models::{
 };
 use crate::risk::{self, RiskProfile};
 use crate::scenarios::{self, ScenarioSet};
-use chrono::NaiveDate;
-use std::path::PathBuf;
 
-/// Command-line overrides of the config.
+/// The command line's settings of a run or check: overrides of the config, applied when it is loaded, and
+/// how long to wait for the archive lock.
 #[derive(Debug, Clone)]
 pub struct RunOptions {
-    pub as_of: Option<NaiveDate>,
-    pub out: Option<PathBuf>,
-    pub backend: Option<Backend>,
+    pub overrides: config::Overrides,
     /// How long to wait for another run's archive lock.
     pub lock_timeout: std::time::Duration,
 }
@@ -29,9 +26,7 @@ pub struct RunOptions {
 impl Default for RunOptions {
     fn default() -> Self {
         RunOptions {
-            as_of: None,
-            out: None,
-            backend: None,
+            overrides: config::Overrides::default(),
             lock_timeout: crate::archive::LOCK_TIMEOUT,
         }
     }
@@ -88,8 +83,8 @@ pub struct RunResult {
     pub analysis: crate::analysis::Analysis,
 }
 
-/// One fund after everything `run` checks before its first LP: the config with the command-line overrides,
-/// the loaded and checked data, the scenarios, the feasible set (groups, bounds, exclusions resolved) and
+/// One fund after everything `run` checks before its first LP: the config (command-line overrides applied
+/// when it was loaded), the loaded and checked data, the scenarios, the feasible set (groups, bounds, exclusions resolved) and
 /// the stress file's shocks resolved against the assets. `check` stops here; `run` solves from here.
 #[derive(Debug, Clone)]
 pub struct Prepared {
@@ -103,20 +98,13 @@ pub struct Prepared {
 
 /// Loads a single-fund config and prepares it ([`prepare_fund`]).
 pub fn prepare(config_path: &std::path::Path, opts: &RunOptions) -> Result<Prepared> {
-    prepare_fund(config::load(config_path)?, opts)
+    prepare_fund(config::load(config_path, &opts.overrides)?)
 }
 
-/// Applies the command-line overrides to one fund's config, loads its data and runs every check that
-/// needs no LP ([`validate`]): the one step both `run` and `check` take, so they refuse the same inputs
-/// with the same exit codes.
-pub fn prepare_fund(mut cfg: Config, opts: &RunOptions) -> Result<Prepared> {
-    if let Some(out) = &opts.out {
-        cfg.out_root = out.clone();
-    }
-    if let Some(b) = opts.backend {
-        cfg.backend = b;
-    }
-    let data = crate::timings::time("ingest", || ingest::load(&cfg, opts.as_of))?;
+/// Loads one fund's data and runs every check that needs no LP ([`validate`]): the one step both `run`
+/// and `check` take, so they refuse the same inputs with the same exit codes.
+pub fn prepare_fund(cfg: Config) -> Result<Prepared> {
+    let data = crate::timings::time("ingest", || ingest::load(&cfg))?;
     validate(cfg, data)
 }
 

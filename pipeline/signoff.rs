@@ -293,7 +293,8 @@ fn manifest_digest(pack: &Path) -> Result<String> {
 
 /// The roles required by the pack's archived config.
 pub fn roles(pack: &Path) -> Result<Vec<SignRole>> {
-    Ok(crate::config::load_archived(&pack.join("inputs"))?.signoff)
+    let overrides = crate::config::Overrides::default();
+    Ok(crate::config::load_archived(&pack.join("inputs"), &overrides)?.signoff)
 }
 
 /// Whether `public` (hex) is trusted for `role`.

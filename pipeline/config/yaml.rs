@@ -24,8 +24,18 @@ pub const MAX_PATH_BYTES: usize = 4096;
 
 /// Keys whose value is a paragraph.
 const PARAGRAPH_KEYS: &[&str] = &["description"];
-/// Keys whose scalar value is a path (a list under `assets` is a list of asset codes).
-const PATH_KEYS: &[&str] = &["prices", "assets", "holdings", "file", "root", "templates"];
+/// Keys whose scalar value is a path besides those of the input files ([`super::inputs`]): the pack root.
+/// (A list under `assets` is a list of asset codes.)
+const OTHER_PATH_KEYS: &[&str] = &["root"];
+
+/// Whether a key's scalar value is a path: the last part of an input file's config key, or another path.
+fn is_path_key(key: &str) -> bool {
+    OTHER_PATH_KEYS.contains(&key)
+        || super::inputs::Input::ALL
+            .iter()
+            .filter_map(|k| k.key())
+            .any(|k| super::inputs::leaf(k) == key)
+}
 
 /// The first text value longer than its bound, as "key.path: a text of N characters; …at line L column C";
 /// `None` when every text fits (or the YAML is broken, which the typed parse reports).
@@ -130,7 +140,7 @@ impl Kind {
     fn of_key(key: &str) -> Kind {
         if PARAGRAPH_KEYS.contains(&key) {
             Kind::Paragraph
-        } else if PATH_KEYS.contains(&key) {
+        } else if is_path_key(key) {
             Kind::Path
         } else {
             Kind::Name

@@ -47,13 +47,14 @@ pub struct MarketData {
 }
 
 /// Reads, cuts at as-of, checks and fills. Blocking quality problems are returned as [`Error::Quality`].
-pub fn load(cfg: &Config, as_of: Option<NaiveDate>) -> Result<MarketData> {
+/// The as-of date is the config's (`--as-of`), else the latest month-end in the data.
+pub fn load(cfg: &Config) -> Result<MarketData> {
     let table = table::read_table(&cfg.prices)?;
     let mut hist = prices::from_table(&cfg.prices, &table, cfg.layout)?;
     let meta = meta::read_assets(&cfg.assets)?;
     check_universe(cfg, &hist, &meta)?;
     let mut findings: Vec<Check> = quality::sort_dates(&mut hist).into_iter().collect();
-    let as_of = resolve_as_of(cfg, &hist, as_of)?;
+    let as_of = resolve_as_of(cfg, &hist, cfg.as_of)?;
     cut_after(&mut hist, as_of);
     let file = cfg.prices.display().to_string();
     findings.extend(quality::duplicate_dates(&file, &hist));

@@ -354,10 +354,9 @@ fn stress_caveats(r: &RunResult) -> Vec<Caveat> {
     if defined > 0 {
         let file = r
             .config
-            .stress_file
+            .stress_name
             .as_ref()
-            .and_then(|p| p.file_name())
-            .map_or(String::new(), |n| format!(" ({})", n.to_string_lossy()));
+            .map_or(String::new(), |n| format!(" ({n})"));
         out.push(caveat("Stress magnitudes are configured, not calibrated", &format!(
             "The {defined} defined shocks are the fund's configured scenarios{file}: their magnitudes were set by the fund, not estimated from data; they carry no probability and are not forecasts. Each moves an asset by the one entry that matches it (its own, else the first matching tag), with no second-round effects; an asset a shock does not name does not move.")));
     }

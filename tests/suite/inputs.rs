@@ -1,6 +1,7 @@
 //! Config, stress and input files at their limits, through the real binary: text bounds (a 50 MB value
 //! is refused in seconds), paths that are not files, output roots inside a pack, and `check` refusing
-//! what `run` refuses before its first LP. Single cases of each kind are also in the bad-input corpus.
+//! what `run` refuses before its first LP. Single cases of each kind are also in the bad-input corpus. And
+//! every kind of input the registry (`config::Input`) lists: archived, hashed and read back on a re-run.
 
 use super::common::{Fixture, Market, Ran, config};
 use std::time::{Duration, Instant};
@@ -475,5 +476,222 @@ fn check_refuses_what_run_refuses_and_run_refuses_it_before_any_lp() {
             "no LP ran: {}",
             run.stderr
         );
+    }
+}
+
+// Every input the registry lists is archived, hashed and re-read.
+
+use tailpack::config::Input;
+
+/// Where the fixture of [`every_input`] keeps each kind of input (for the template folder, the one file
+/// it holds; none for the run record), and how to change its bytes but not what it means — an exhaustive
+/// match, so a new kind of input does not compile here until this test knows how to give it.
+fn source_of(kind: Input) -> Option<&'static str> {
+    match kind {
+        Input::Config => Some("fund.yaml"),
+        Input::Prices => Some("data/prices.csv"),
+        Input::Assets => Some("data/assets.csv"),
+        Input::Holdings => Some("data/holdings.csv"),
+        Input::Stress => Some("shocks/set.yaml"),
+        Input::Templates => Some("tpl/summary.typ"),
+        Input::Run => None,
+    }
+}
+
+/// The same input in other bytes: a comment in YAML and typst, a quoted header cell in CSV; the run
+/// record asks for the other backend (its bytes are written by the run, so only a change it reads back
+/// shows that it was read).
+fn other_bytes(kind: Input, bytes: &[u8]) -> Vec<u8> {
+    let text = String::from_utf8(bytes.to_vec()).expect("text input");
+    let quoted = |t: &str| {
+        t.replacen("asset", "\"asset\"", 1)
+            .replacen("date", "\"date\"", 1)
+    };
+    match kind {
+        Input::Config | Input::Stress => text + "# the same, in other bytes\n",
+        Input::Templates => text + "// the same, in other bytes\n",
+        Input::Prices | Input::Assets | Input::Holdings => quoted(&text),
+        Input::Run => text.replace("\"highs\"", "\"clarabel\""),
+    }
+    .into_bytes()
+}
+
+/// A small fund that names every input the registry lists, none at a path that is also its archived name
+/// (so a re-run that is not pointed at an archived copy finds nothing).
+fn every_input() -> super::common::Fixture {
+    let f = Fixture::new();
+    let m = Market::new(3, "2023-01-02", "2024-06-28", 31);
+    f.small_fund(
+        &m,
+        &config(
+            "analysis:\n  backtest_years: 0\n  daily_var_check: false\n  frontier_points: 3\nstress:\n  file: shocks/set.yaml\nreport:\n  templates: tpl\n",
+        ),
+    );
+    f.write(
+        "shocks/set.yaml",
+        "shocks:\n  - name: Equity fall\n    moves:\n      - { tag: \"class:equity\", return: -0.2 }\n",
+    );
+    f.write(
+        "tpl/summary.typ",
+        "#import \"style.typ\": *\n= Summary\nA summary of our own.\n",
+    );
+    f
+}
+
+/// SHA-256 of a file by coreutils `sha256sum`, a tool outside the project.
+fn sha256sum(path: &std::path::Path) -> String {
+    let out = std::process::Command::new("sha256sum")
+        .arg(path)
+        .output()
+        .expect("sha256sum runs");
+    String::from_utf8_lossy(&out.stdout)
+        .split_whitespace()
+        .next()
+        .expect("a digest")
+        .to_string()
+}
+
+/// The archived files of one role, as the manifest lists them: (file below the pack, source, sha256).
+fn listed_in_manifest(pack: &std::path::Path, role: &str) -> Vec<(String, Option<String>, String)> {
+    let manifest = super::common::json(&pack.join("manifest.json"));
+    manifest["inputs"]
+        .as_array()
+        .expect("inputs")
+        .iter()
+        .filter(|i| i["role"] == role)
+        .map(|i| {
+            (
+                i["file"].as_str().unwrap().to_string(),
+                i["source"].as_str().map(str::to_string),
+                i["sha256"].as_str().unwrap().to_string(),
+            )
+        })
+        .collect()
+}
+
+/// Each kind's archived copies are in the pack, under the registry's name, with the bytes of their source,
+/// and listed with their digest in inputs.sha256 (whose digest is the pack id), the manifest and
+/// results.json.
+fn assert_archived_and_hashed(f: &Fixture, pack: &std::path::Path, kind: Input) {
+    let listing = std::fs::read_to_string(pack.join("inputs.sha256")).unwrap();
+    let results = super::common::json(&pack.join("results.json"));
+    let files = listed_in_manifest(pack, kind.role());
+    assert!(
+        !files.is_empty(),
+        "{kind:?}: no `{}` input in the manifest",
+        kind.role()
+    );
+    for (file, source, sha) in &files {
+        let digest = sha256sum(&pack.join(file));
+        assert_eq!(&digest, sha, "{kind:?}: {file}");
+        assert!(
+            listing.contains(&format!("{digest}  {file}\n")),
+            "{kind:?}: {file} not in the listing"
+        );
+        let in_results = results["inputs"].as_array().unwrap().iter().any(|i| {
+            i["path"] == file.as_str() && i["sha256"] == digest.as_str() && i["role"] == kind.role()
+        });
+        assert!(in_results, "{kind:?}: {file} not in results.json");
+        if let Some(src) = source.as_ref().filter(|_| kind != Input::Templates) {
+            let name = file.strip_prefix("inputs/").unwrap();
+            assert_eq!(
+                name,
+                kind.archived_name(std::path::Path::new(src)),
+                "{kind:?}"
+            );
+        }
+    }
+    if let Some(src) = source_of(kind) {
+        let copy = files
+            .iter()
+            .find(|(_, s, _)| s.as_deref().is_some_and(|s| s.ends_with(src)))
+            .unwrap_or_else(|| panic!("{kind:?}: no copy of {src} in {files:?}"));
+        assert_eq!(
+            std::fs::read(pack.join(&copy.0)).unwrap(),
+            std::fs::read(f.path(src)).unwrap(),
+            "{kind:?}: the copy differs from {src}"
+        );
+    }
+}
+
+/// Rewrites inputs.sha256 and the manifest's pack id after an archived input was changed, so the digests
+/// agree again and only a re-run can tell.
+fn reseal(pack: &std::path::Path) {
+    let listing: String = std::fs::read_to_string(pack.join("inputs.sha256"))
+        .unwrap()
+        .lines()
+        .map(|l| {
+            let name = l.split_once("  ").unwrap().1;
+            format!("{}  {name}\n", sha256sum(&pack.join(name)))
+        })
+        .collect();
+    std::fs::write(pack.join("inputs.sha256"), &listing).unwrap();
+    let id = sha256sum(&pack.join("inputs.sha256"));
+    let mut manifest = super::common::json(&pack.join("manifest.json"));
+    manifest["pack_id"] = id.as_str().into();
+    for o in manifest["outputs"].as_array_mut().unwrap() {
+        if o["file"] == "inputs.sha256" {
+            o["sha256"] = id.as_str().into();
+            o["bytes"] = listing.len().into();
+        }
+    }
+    std::fs::write(
+        pack.join("manifest.json"),
+        serde_json::to_string_pretty(&manifest).unwrap(),
+    )
+    .unwrap();
+}
+
+#[test]
+fn every_input_the_registry_lists_is_archived_hashed_and_read_back_on_rerun() {
+    let f = every_input();
+    let ran = f.run(&["run", "fund.yaml", "--quiet"]);
+    assert_eq!(ran.code, 0, "{}", ran.stderr);
+    let pack = std::path::PathBuf::from(ran.stdout.lines().last().unwrap());
+    for &kind in Input::ALL {
+        assert_archived_and_hashed(&f, &pack, kind);
+    }
+    // Away from its archive and its original inputs, the pack re-runs from its archived copies alone.
+    let moved = f.path("moved/fund/as-of/r1");
+    std::fs::create_dir_all(moved.parent().unwrap()).unwrap();
+    std::fs::rename(&pack, &moved).unwrap();
+    for gone in ["data", "tpl", "shocks", "fund.yaml"] {
+        let p = f.path(gone);
+        let _ = std::fs::remove_dir_all(&p).or_else(|_| std::fs::remove_file(&p));
+    }
+    let m = moved.to_str().unwrap();
+    let ran = f.run(&["verify", m, "--rerun"]);
+    assert_eq!(ran.code, 0, "{}", ran.stderr);
+    // Each archived copy in other bytes: the digests agree once resealed, and the re-run reads the changed
+    // copy — it hashes to the resealed pack id, so only the outputs that record it differ.
+    let original = f.path("original");
+    super::common::copy_dir(&moved, &original);
+    for &kind in Input::ALL {
+        let (file, _, _) = listed_in_manifest(&moved, kind.role())
+            .into_iter()
+            .find(|(_, s, _)| match (source_of(kind), s) {
+                (Some(src), Some(s)) => s.ends_with(src),
+                (None, _) => true,
+                (Some(_), None) => false,
+            })
+            .expect("archived");
+        let path = moved.join(&file);
+        let changed = other_bytes(kind, &std::fs::read(&path).unwrap());
+        assert_ne!(changed, std::fs::read(&path).unwrap(), "{kind:?}");
+        std::fs::write(&path, changed).unwrap();
+        reseal(&moved);
+        let ran = f.run(&["verify", m]);
+        assert_eq!(ran.code, 0, "{kind:?}, resealed: {}", ran.stderr);
+        let ran = f.run(&["verify", m, "--rerun"]);
+        assert_eq!(ran.code, 7, "{kind:?}: {}", ran.stderr);
+        assert!(
+            ran.stderr.contains("results.json") && !ran.stderr.contains("inputs.sha256"),
+            "{kind:?}: {}",
+            ran.stderr
+        );
+        std::fs::remove_dir_all(&moved).unwrap();
+        super::common::copy_dir(&original, &moved);
+        let ran = f.run(&["verify", m]);
+        assert_eq!(ran.code, 0, "{kind:?}, restored: {}", ran.stderr);
     }
 }

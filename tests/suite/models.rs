@@ -659,7 +659,10 @@ fn the_backtest_decides_each_month_as_the_run_solves() {
     let backtest = latest.analysis.backtest.expect("one year of backtest");
     let first = backtest.rebalances[0];
     let opts = RunOptions {
-        as_of: Some(first),
+        overrides: tailpack::config::Overrides {
+            as_of: Some(first),
+            ..Default::default()
+        },
         ..RunOptions::default()
     };
     let then = run::prepare(&path, &opts).unwrap();

@@ -732,7 +732,10 @@ fn a_pdf_typeset_in_a_child_is_byte_identical_to_one_typeset_in_process() {
     let ran = f.run(&["run", "fund.yaml", "--quiet", "--out", "by-binary"]);
     let a = pack(&ran).join("pack.pdf");
     let opts = tailpack::run::RunOptions {
-        out: Some(f.path("in-process")),
+        overrides: tailpack::config::Overrides {
+            out: Some(f.path("in-process")),
+            ..Default::default()
+        },
         ..Default::default()
     };
     let here = std::env::current_dir().unwrap();

@@ -1,0 +1,284 @@
+//! The range and shape checks of the raw config, section by section, and the rules resolved from them
+//! (group limits, the CVaR cap, the return floor). Each returns the key at fault and why; [`super::resolve`]
+//! turns that into a message with the key's line.
+
+use super::raw::{
+    AnalysisOptions, QualityOptions, RawCap, RawFloor, RawGroup, RawLimits, RawReport, RawRisk,
+    RawSignoff, RawStress, ScenarioOptions, TYPESET_MEMORY_MB, TYPESET_SECONDS,
+};
+use super::stress::check_tag;
+use super::{CapRule, FloorRule, GroupSelector, GroupSpec};
+
+/// A fixed key and what is wrong with its value.
+pub(super) type KeyError = (&'static str, String);
+/// A key with an index in it (`limits.groups[2].name`) and what is wrong with its value.
+pub(super) type PlaceError = (String, String);
+
+pub(super) fn resolve_groups(raw: &[RawGroup]) -> Result<Vec<GroupSpec>, PlaceError> {
+    raw.iter()
+        .enumerate()
+        .map(|(i, g)| resolve_group(i, g))
+        .collect()
+}
+
+pub(super) fn resolve_group(i: usize, g: &RawGroup) -> Result<GroupSpec, PlaceError> {
+    let key = |k: &str| format!("limits.groups[{i}].{k}");
+    if g.name.trim().is_empty() {
+        return Err((key("name"), "is required".into()));
+    }
+    let selector = match (&g.tag, &g.assets) {
+        (Some(t), None) => {
+            let (column, value) = check_tag(t).map_err(|why| (key("tag"), why))?;
+            GroupSelector::Tag {
+                column: column.to_string(),
+                value: value.to_string(),
+            }
+        }
+        (None, Some(a)) if !a.is_empty() => {
+            if let Some(j) = a.iter().position(|x| x.trim().is_empty()) {
+                return Err((
+                    key(&format!("assets[{j}]")),
+                    "is blank; give an asset code".into(),
+                ));
+            }
+            GroupSelector::Assets(a.clone())
+        }
+        _ => {
+            return Err((
+                key("tag"),
+                "give exactly one of `tag` or a non-empty `assets` list".into(),
+            ));
+        }
+    };
+    let (min, max) = (g.min.unwrap_or(0.0), g.max.unwrap_or(1.0));
+    if !(min.is_finite() && max.is_finite() && 0.0 <= min && min <= max && max <= 1.0) {
+        return Err((
+            key("min"),
+            format!("need 0 ≤ min ≤ max ≤ 1, got min {min}, max {max}"),
+        ));
+    }
+    Ok(GroupSpec {
+        name: g.name.clone(),
+        selector,
+        min,
+        max,
+    })
+}
+
+pub(super) fn resolve_cap(c: &RawCap) -> Result<CapRule, String> {
+    let rule = match (c.value, c.times_current, c.times_min) {
+        (Some(v), None, None) => CapRule::Value(v),
+        (None, Some(v), None) => CapRule::TimesCurrent(v),
+        (None, None, Some(v)) => CapRule::TimesMin(v),
+        _ => return Err("give exactly one of `value`, `times_current`, `times_min`".into()),
+    };
+    let (CapRule::Value(v) | CapRule::TimesCurrent(v) | CapRule::TimesMin(v)) = rule;
+    if !v.is_finite()
+        || (matches!(rule, CapRule::TimesMin(_)) && v < 1.0)
+        || (!matches!(rule, CapRule::Value(_)) && v <= 0.0)
+    {
+        return Err(format!(
+            "out of range: {v} (times_min must be ≥ 1, times_current > 0)"
+        ));
+    }
+    Ok(rule)
+}
+
+pub(super) fn resolve_floor(f: &RawFloor) -> Result<FloorRule, String> {
+    match (f.value, f.plus_current) {
+        (Some(v), None) if v.is_finite() => Ok(FloorRule::Value(v)),
+        (None, Some(v)) if v.is_finite() => Ok(FloorRule::PlusCurrent(v)),
+        _ => Err("give exactly one finite `value` or `plus_current`".into()),
+    }
+}
+
+pub(super) fn check_scenarios(s: &ScenarioOptions) -> Result<(), KeyError> {
+    if s.horizon == 0 || s.horizon > 260 {
+        return Err((
+            "scenarios.horizon",
+            format!("must be between 1 and 260 observations, got {}", s.horizon),
+        ));
+    }
+    if s.step == 0 {
+        return Err(("scenarios.step", "must be at least 1".into()));
+    }
+    if s.lookback_years == 0 || s.lookback_years > 100 {
+        return Err((
+            "scenarios.lookback_years",
+            format!("must be between 1 and 100, got {}", s.lookback_years),
+        ));
+    }
+    match s.half_life {
+        Some(h) if !(h.is_finite() && h > 0.0) => Err((
+            "scenarios.half_life",
+            format!("must be a positive number of observations, got {h}"),
+        )),
+        _ => Ok(()),
+    }
+}
+
+pub(super) fn check_signoff(s: &RawSignoff) -> Result<(), PlaceError> {
+    for (i, r) in s.roles.iter().enumerate() {
+        let key = |k: &str| format!("signoff.roles[{i}].{k}");
+        if r.role.trim().is_empty() {
+            return Err((
+                key("role"),
+                "is required (e.g. preparer, risk_reviewer, approver)".into(),
+            ));
+        }
+        if r.title.as_ref().is_some_and(|t| t.trim().is_empty()) {
+            return Err((
+                key("title"),
+                "is blank; leave it out to print the role's name".into(),
+            ));
+        }
+        if s.roles.iter().filter(|o| o.role == r.role).count() > 1 {
+            return Err((key("role"), format!("role `{}` is listed twice", r.role)));
+        }
+        if r.keys.is_empty() {
+            return Err((
+                key("keys"),
+                format!(
+                    "role `{}` needs at least one trusted public key (made by `tailpack keygen`)",
+                    r.role
+                ),
+            ));
+        }
+        if let Some(k) = r
+            .keys
+            .iter()
+            .find(|k| k.len() != 64 || !k.chars().all(|c| c.is_ascii_hexdigit()))
+        {
+            return Err((
+                key("keys"),
+                format!("`{k}` is not an Ed25519 public key (64 hex digits)"),
+            ));
+        }
+    }
+    Ok(())
+}
+
+pub(super) fn check_report(r: &RawReport) -> Result<(), KeyError> {
+    if !TYPESET_SECONDS.contains(&r.typeset_seconds) {
+        return Err((
+            "report.typeset_seconds",
+            format!(
+                "must be between {} and {} seconds, got {}",
+                TYPESET_SECONDS.start(),
+                TYPESET_SECONDS.end(),
+                r.typeset_seconds
+            ),
+        ));
+    }
+    if !TYPESET_MEMORY_MB.contains(&r.typeset_memory_mb) {
+        return Err((
+            "report.typeset_memory_mb",
+            format!(
+                "must be between {} and {} MB, got {}",
+                TYPESET_MEMORY_MB.start(),
+                TYPESET_MEMORY_MB.end(),
+                r.typeset_memory_mb
+            ),
+        ));
+    }
+    Ok(())
+}
+
+pub(super) fn check_analysis(a: &AnalysisOptions, s: &RawStress) -> Result<(), KeyError> {
+    if a.frontier_points < 2 || a.frontier_points > 500 {
+        return Err((
+            "analysis.frontier_points",
+            format!("must be between 2 and 500, got {}", a.frontier_points),
+        ));
+    }
+    if a.backtest_years > 50 {
+        return Err((
+            "analysis.backtest_years",
+            format!("must be between 0 and 50, got {}", a.backtest_years),
+        ));
+    }
+    if let Some(l) = s.loss_limit
+        && !(l.is_finite() && l > 0.0 && l <= 1.0)
+    {
+        return Err((
+            "stress.loss_limit",
+            format!("must be a loss fraction in (0, 1], got {l}"),
+        ));
+    }
+    if s.historical_windows > 20 {
+        return Err((
+            "stress.historical_windows",
+            format!("must be between 0 and 20, got {}", s.historical_windows),
+        ));
+    }
+    Ok(())
+}
+
+pub(super) fn check_quality(q: &QualityOptions) -> Result<(), KeyError> {
+    if !(q.extreme_move.is_finite() && q.extreme_move > 0.0) {
+        return Err((
+            "quality.extreme_move",
+            format!("must be a positive return, got {}", q.extreme_move),
+        ));
+    }
+    if q.stale_run < 2 {
+        return Err((
+            "quality.stale_run",
+            format!("must be at least 2 observations, got {}", q.stale_run),
+        ));
+    }
+    Ok(())
+}
+
+pub(super) fn check_levels(r: &RawRisk) -> Result<(), KeyError> {
+    let open_unit = |c: f64| c.is_finite() && c > 0.0 && c < 1.0;
+    if !open_unit(r.confidence) {
+        return Err((
+            "risk.confidence",
+            format!("must lie strictly between 0 and 1, got {}", r.confidence),
+        ));
+    }
+    if let Some(c) = r.levels.iter().find(|c| !open_unit(**c)) {
+        return Err((
+            "risk.levels",
+            format!("every level must lie strictly between 0 and 1, got {c}"),
+        ));
+    }
+    Ok(())
+}
+
+pub(super) fn check_limits(l: &RawLimits, has_holdings: bool) -> Result<(), KeyError> {
+    if !(l.default_min.is_finite() && l.default_min >= 0.0) {
+        return Err((
+            "limits.default_min",
+            format!("must be ≥ 0 (long-only), got {}", l.default_min),
+        ));
+    }
+    if !(l.default_max.is_finite() && l.default_max >= l.default_min && l.default_max <= 1.0) {
+        return Err((
+            "limits.default_max",
+            format!("must lie in [default_min, 1], got {}", l.default_max),
+        ));
+    }
+    match l.turnover_max {
+        Some(t) if !(t.is_finite() && (0.0..=2.0).contains(&t)) => Err((
+            "limits.turnover_max",
+            format!("must lie in [0, 2] (Σ|x − current|), got {t}"),
+        )),
+        Some(_) if !has_holdings => Err((
+            "limits.turnover_max",
+            "needs current holdings: set data.holdings".into(),
+        )),
+        _ => Ok(()),
+    }
+}
+
+pub(super) fn check_exclude(exclude: &[String]) -> Result<(), PlaceError> {
+    match exclude.iter().position(|x| x.trim().is_empty()) {
+        Some(j) => Err((
+            format!("limits.exclude[{j}]"),
+            "is blank; give an asset code".into(),
+        )),
+        None => Ok(()),
+    }
+}

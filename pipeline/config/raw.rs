@@ -1,0 +1,401 @@
+//! The config file as written: one serde struct per section, each rejecting unknown keys, with the
+//! defaults written once in their `Default` impls. Nothing here checks a range or resolves a path; that
+//! is [`super::resolve`]'s work, and only the resolved [`super::Config`] leaves the config module.
+
+use serde::Deserialize;
+use std::path::PathBuf;
+
+/// The config file as written. Every struct rejects unknown keys.
+#[derive(Debug, Deserialize, Default, Clone)]
+#[serde(deny_unknown_fields, default)]
+pub struct RawConfig {
+    pub fund: RawFund,
+    pub data: RawData,
+    pub quality: QualityOptions,
+    pub scenarios: ScenarioOptions,
+    pub risk: RawRisk,
+    pub limits: RawLimits,
+    pub models: RawModels,
+    pub solver: SolverOptions,
+    pub output: RawOutput,
+    pub analysis: AnalysisOptions,
+    pub stress: RawStress,
+    pub report: RawReport,
+    pub signoff: RawSignoff,
+    /// Several funds (mandates) in one config: each entry overrides `fund` and, where given, the holdings,
+    /// limits, models and sign-off of the shared settings; prices and asset metadata are shared.
+    pub funds: Vec<RawMandate>,
+}
+
+/// One fund of a multi-fund config.
+#[derive(Debug, Deserialize, Default, Clone)]
+#[serde(deny_unknown_fields, default)]
+pub struct RawMandate {
+    pub fund: RawFund,
+    pub holdings: Option<PathBuf>,
+    pub limits: Option<RawLimits>,
+    pub models: Option<RawModels>,
+    pub signoff: Option<RawSignoff>,
+}
+
+/// Sign-off roles: who must sign a pack before it can be finalised, with the public keys trusted per role.
+#[derive(Debug, Deserialize, Default, Clone)]
+#[serde(deny_unknown_fields, default)]
+pub struct RawSignoff {
+    pub roles: Vec<SignRole>,
+}
+
+/// One required role with its printed title and trusted Ed25519 public keys (64 hex digits each).
+#[derive(Debug, Deserialize, Default, Clone, serde::Serialize)]
+#[serde(deny_unknown_fields, default)]
+pub struct SignRole {
+    pub role: String,
+    pub title: Option<String>,
+    pub keys: Vec<String>,
+}
+
+/// Frontier and walk-forward backtest settings.
+#[derive(Debug, Deserialize, Clone, serde::Serialize)]
+#[serde(deny_unknown_fields, default)]
+pub struct AnalysisOptions {
+    /// Points on the efficient frontier, from the min-CVaR to the max-return portfolio.
+    pub frontier_points: usize,
+    /// Years of month-ends before as-of at which the walk-forward backtest rebalances (0 turns it off).
+    pub backtest_years: u32,
+    /// Also backtest a daily 99% VaR over the last 250 observations (Basel traffic light).
+    pub daily_var_check: bool,
+}
+
+impl Default for AnalysisOptions {
+    fn default() -> Self {
+        AnalysisOptions {
+            frontier_points: 21,
+            backtest_years: 5,
+            daily_var_check: true,
+        }
+    }
+}
+
+/// The stress set: a file of named shocks, a loss limit and the number of historical windows replayed.
+#[derive(Debug, Deserialize, Clone)]
+#[serde(deny_unknown_fields, default)]
+pub struct RawStress {
+    /// YAML file of named shocks, relative to the config file.
+    pub file: Option<PathBuf>,
+    /// A stress loss above this fraction of portfolio value is flagged as a breach.
+    pub loss_limit: Option<f64>,
+    /// Worst non-overlapping horizon windows of the full history replayed on each portfolio.
+    pub historical_windows: usize,
+}
+
+impl Default for RawStress {
+    fn default() -> Self {
+        RawStress {
+            file: None,
+            loss_limit: None,
+            historical_windows: 3,
+        }
+    }
+}
+
+/// Who the pack is for.
+#[derive(Debug, Deserialize, Default, Clone)]
+#[serde(deny_unknown_fields, default)]
+pub struct RawFund {
+    pub name: String,
+    /// Folder-safe short name; derived from `name` when empty.
+    pub short_name: Option<String>,
+    pub prepared_for: Option<String>,
+    pub prepared_by: Option<String>,
+}
+
+/// Where the input files are.
+#[derive(Debug, Deserialize, Default, Clone)]
+#[serde(deny_unknown_fields, default)]
+pub struct RawData {
+    pub prices: Option<PathBuf>,
+    pub layout: Layout,
+    pub assets: Option<PathBuf>,
+    pub holdings: Option<PathBuf>,
+}
+
+/// Shape of the price file.
+#[derive(Debug, Deserialize, Default, Clone, Copy, PartialEq, Eq, serde::Serialize)]
+#[serde(rename_all = "snake_case")]
+pub enum Layout {
+    /// Detect: `date, asset, price` columns mean long, anything else with a `date` column means wide.
+    #[default]
+    Auto,
+    /// One row per (date, asset): columns `date`, `asset`, `price`.
+    Long,
+    /// One row per date: `date` then one column per asset.
+    Wide,
+}
+
+impl Layout {
+    /// The word used in config files and messages.
+    pub fn word(self) -> &'static str {
+        match self {
+            Layout::Auto => "auto",
+            Layout::Long => "long",
+            Layout::Wide => "wide",
+        }
+    }
+}
+
+/// Data-quality thresholds and the fill policy.
+#[derive(Debug, Deserialize, Clone, serde::Serialize)]
+#[serde(deny_unknown_fields, default)]
+pub struct QualityOptions {
+    /// Forward-fill a missing price from the last observation for at most this many consecutive
+    /// observations; a longer gap drops the asset with a warning.
+    pub max_fill: usize,
+    /// This many or more consecutive identical prices are flagged as a stale run.
+    pub stale_run: usize,
+    /// A single-period simple return larger than this in absolute value is flagged.
+    pub extreme_move: f64,
+    /// Rule of thumb (common practice, not a theorem): at least this many observations per asset.
+    pub min_obs_per_asset: usize,
+}
+
+impl Default for QualityOptions {
+    fn default() -> Self {
+        QualityOptions {
+            max_fill: 3,
+            stale_run: 10,
+            extreme_move: 0.25,
+            min_obs_per_asset: 10,
+        }
+    }
+}
+
+/// How scenarios are cut from the price history.
+#[derive(Debug, Deserialize, Clone, serde::Serialize)]
+#[serde(deny_unknown_fields, default)]
+pub struct ScenarioOptions {
+    /// Horizon h in observations (21 business days ≈ one month).
+    pub horizon: usize,
+    /// Distance between the starts of consecutive windows.
+    pub step: usize,
+    /// Years of history before as-of used for scenarios.
+    pub lookback_years: u32,
+    /// Half-life of exponentially decaying probabilities, in observations; absent means equal.
+    pub half_life: Option<f64>,
+}
+
+impl Default for ScenarioOptions {
+    fn default() -> Self {
+        ScenarioOptions {
+            horizon: 21,
+            step: 1,
+            lookback_years: 5,
+            half_life: None,
+        }
+    }
+}
+
+/// Confidence levels.
+#[derive(Debug, Deserialize, Clone)]
+#[serde(deny_unknown_fields, default)]
+pub struct RawRisk {
+    /// Levels reported for every portfolio.
+    pub levels: Vec<f64>,
+    /// The level the models constrain or minimise.
+    pub confidence: f64,
+}
+
+impl Default for RawRisk {
+    fn default() -> Self {
+        RawRisk {
+            levels: vec![0.95, 0.975, 0.99],
+            confidence: 0.95,
+        }
+    }
+}
+
+/// The feasible set shared by all models.
+#[derive(Debug, Deserialize, Clone)]
+#[serde(deny_unknown_fields, default)]
+pub struct RawLimits {
+    /// Lower weight bound for assets whose metadata gives none.
+    pub default_min: f64,
+    /// Upper weight bound for assets whose metadata gives none.
+    pub default_max: f64,
+    /// Assets that must get zero weight.
+    pub exclude: Vec<String>,
+    pub groups: Vec<RawGroup>,
+    /// Σ|x − current| ≤ turnover_max; needs current holdings.
+    pub turnover_max: Option<f64>,
+}
+
+impl Default for RawLimits {
+    fn default() -> Self {
+        RawLimits {
+            default_min: 0.0,
+            default_max: 1.0,
+            exclude: vec![],
+            groups: vec![],
+            turnover_max: None,
+        }
+    }
+}
+
+/// A group limit: members chosen by a metadata tag (`class:equity`) or listed.
+#[derive(Debug, Deserialize, Default, Clone)]
+#[serde(deny_unknown_fields, default)]
+pub struct RawGroup {
+    pub name: String,
+    /// `column:value` against the asset metadata, e.g. `class:equity`.
+    pub tag: Option<String>,
+    /// Explicit member list.
+    pub assets: Option<Vec<String>>,
+    pub min: Option<f64>,
+    pub max: Option<f64>,
+}
+
+/// Model-specific settings.
+#[derive(Debug, Deserialize, Default, Clone)]
+#[serde(deny_unknown_fields, default)]
+pub struct RawModels {
+    pub max_return: RawMaxReturn,
+    pub min_cvar: RawMinCvar,
+}
+
+/// Settings of the max-return model.
+#[derive(Debug, Deserialize, Clone)]
+#[serde(deny_unknown_fields, default)]
+pub struct RawMaxReturn {
+    pub cvar_cap: RawCap,
+}
+
+impl Default for RawMaxReturn {
+    fn default() -> Self {
+        RawMaxReturn {
+            cvar_cap: RawCap {
+                value: None,
+                times_current: None,
+                times_min: Some(1.5),
+            },
+        }
+    }
+}
+
+/// A CVaR cap: exactly one of the three forms.
+#[derive(Debug, Deserialize, Default, Clone)]
+#[serde(deny_unknown_fields, default)]
+pub struct RawCap {
+    /// Absolute cap on CVaR (a loss fraction, 0.05 = 5%).
+    pub value: Option<f64>,
+    /// Cap = this multiple of the current portfolio's CVaR.
+    pub times_current: Option<f64>,
+    /// Cap = this multiple of the minimum attainable CVaR over the feasible set.
+    pub times_min: Option<f64>,
+}
+
+/// Settings of the min-CVaR model.
+#[derive(Debug, Deserialize, Clone)]
+#[serde(deny_unknown_fields, default)]
+pub struct RawMinCvar {
+    pub return_floor: RawFloor,
+}
+
+impl Default for RawMinCvar {
+    fn default() -> Self {
+        RawMinCvar {
+            return_floor: RawFloor {
+                value: None,
+                plus_current: Some(0.0),
+            },
+        }
+    }
+}
+
+/// An expected-return floor: exactly one of the two forms.
+#[derive(Debug, Deserialize, Default, Clone)]
+#[serde(deny_unknown_fields, default)]
+pub struct RawFloor {
+    /// Absolute floor on expected horizon return.
+    pub value: Option<f64>,
+    /// Floor = current portfolio's expected return plus this.
+    pub plus_current: Option<f64>,
+}
+
+/// Which LP backend solves the models.
+#[derive(Debug, Deserialize, Clone, Copy, PartialEq, Eq, Default, serde::Serialize)]
+#[serde(rename_all = "snake_case")]
+pub enum Backend {
+    /// HiGHS dual simplex (default).
+    #[default]
+    Highs,
+    /// Clarabel interior point (cross-check).
+    Clarabel,
+}
+
+impl std::str::FromStr for Backend {
+    type Err = String;
+    fn from_str(s: &str) -> std::result::Result<Self, String> {
+        match s {
+            "highs" => Ok(Backend::Highs),
+            "clarabel" => Ok(Backend::Clarabel),
+            other => Err(format!(
+                "unknown solver backend `{other}`; expected `highs` or `clarabel`"
+            )),
+        }
+    }
+}
+
+impl Backend {
+    /// The name used in results and on the command line.
+    pub fn name(self) -> &'static str {
+        match self {
+            Backend::Highs => "highs",
+            Backend::Clarabel => "clarabel",
+        }
+    }
+}
+
+/// Solver settings.
+#[derive(Debug, Deserialize, Clone, Default, serde::Serialize)]
+#[serde(deny_unknown_fields, default)]
+pub struct SolverOptions {
+    pub backend: Backend,
+}
+
+/// Output settings.
+#[derive(Debug, Deserialize, Default, Clone)]
+#[serde(deny_unknown_fields, default)]
+pub struct RawOutput {
+    /// Pack root, relative to the config file; without it, [`DEFAULT_OUT_ROOT`].
+    pub root: Option<PathBuf>,
+}
+
+/// The pack root when neither `--out` nor `output.root` gives one, relative to the current folder.
+pub const DEFAULT_OUT_ROOT: &str = "out";
+
+/// Settings of the PDF pack.
+#[derive(Debug, Deserialize, Clone)]
+#[serde(deny_unknown_fields, default)]
+pub struct RawReport {
+    /// Folder of custom typst templates, relative to the config file; its files replace the built-in
+    /// templates of the same name, file by file.
+    pub templates: Option<PathBuf>,
+    /// Wall-clock seconds the typesetter may take for one PDF before it is stopped.
+    pub typeset_seconds: u64,
+    /// Megabytes of memory the typesetter may allocate for one PDF.
+    pub typeset_memory_mb: u64,
+}
+
+impl Default for RawReport {
+    fn default() -> Self {
+        RawReport {
+            templates: None,
+            typeset_seconds: 300,
+            typeset_memory_mb: 2048,
+        }
+    }
+}
+
+/// Allowed `report.typeset_seconds`: at least a second, at most an hour.
+pub const TYPESET_SECONDS: std::ops::RangeInclusive<u64> = 1..=3600;
+/// Allowed `report.typeset_memory_mb`: enough for the typesetter to start, at most 1 TiB.
+pub const TYPESET_MEMORY_MB: std::ops::RangeInclusive<u64> = 256..=1_048_576;
