@@ -82,7 +82,12 @@ pub enum Error {
         pack: PathBuf,
         problems: Vec<String>,
     },
-    /// Anything else that stops a run (e.g. no scenarios could be built).
+    /// A scenario set that cannot be built from what it was given: a matrix of the wrong shape, a
+    /// non-finite return, probabilities that are negative or do not sum to 1, or fewer observations than
+    /// the horizon. The run's data checks stop such data first, so from a run this is a defect.
+    #[error("{0}")]
+    Scenarios(String),
+    /// Anything else that stops a run.
     #[error("{0}")]
     Run(String),
 }
@@ -112,7 +117,7 @@ impl Error {
         match self {
             Error::Config { .. } | Error::Template { .. } => EXIT_CONFIG,
             Error::Data { .. } | Error::Quality { .. } => EXIT_DATA,
-            Error::Io { .. } | Error::Run(_) => EXIT_FAILURE,
+            Error::Io { .. } | Error::Scenarios(_) | Error::Run(_) => EXIT_FAILURE,
             Error::Busy { .. } => EXIT_BUSY,
             Error::Verify { .. } | Error::NotIntact { .. } => EXIT_VERIFY,
             Error::Refused { .. } | Error::Key { .. } => EXIT_SIGNOFF,

@@ -10,6 +10,7 @@
 //! no pack folder — finished or partial — anywhere after an error. Inputs of megabytes and Parquet files
 //! are generated here (`generate`) rather than committed.
 
+use super::common::with_cell;
 use serde::Deserialize;
 use std::path::{Path, PathBuf};
 use std::process::Command;
@@ -519,11 +520,7 @@ fn generate(what: &str, dir: &Path) -> Vec<String> {
         "huge_cell" => {
             // 4 MB in the AS02 cell of data row 5 (file line 7): digits with one letter in the middle.
             let cell = format!("{}x{}", "1".repeat(2 << 20), "2".repeat(2 << 20));
-            let mut lines: Vec<String> = good.lines().map(String::from).collect();
-            let mut cells: Vec<String> = lines[6].split(',').map(String::from).collect();
-            cells[2] = cell;
-            lines[6] = cells.join(",");
-            std::fs::write(dir.join("prices.csv"), lines.join("\n") + "\n").unwrap();
+            std::fs::write(dir.join("prices.csv"), with_cell(&good, 4, 2, &cell)).unwrap();
             vec![]
         }
         "huge_header" => {
