@@ -205,10 +205,16 @@ pub struct LoadedKey {
 /// Reads a secret key file: a regular file of at most [`KEY_FILE_MAX_BYTES`] holding 64 hex digits.
 /// Devices, pipes and folders are refused without reading them.
 pub fn read_key(path: &Path) -> Result<LoadedKey> {
-    let meta = std::fs::metadata(path).map_err(|source| Error::Io {
-        action: "cannot read key file",
-        path: path.to_path_buf(),
-        source,
+    let meta = std::fs::metadata(path).map_err(|source| match source.kind() {
+        std::io::ErrorKind::NotFound => key_error(
+            path,
+            "does not exist: give the secret key file (PREFIX.key) that `tailpack keygen` made for the role",
+        ),
+        _ => Error::Io {
+            action: "cannot read key file",
+            path: path.to_path_buf(),
+            source,
+        },
     })?;
     if !meta.is_file() {
         return Err(key_error(
