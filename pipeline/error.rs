@@ -121,9 +121,11 @@ pub enum Error {
         code: Option<i32>,
         stderr: String,
     },
-    /// Anything else that stops a run (e.g. no scenarios could be built).
+    /// A scenario set that cannot be built from what it was given: a matrix of the wrong shape, a
+    /// non-finite return, probabilities that are negative or do not sum to 1, or fewer observations than
+    /// the horizon. The run's data checks stop such data first, so from a run this is a defect.
     #[error("{0}")]
-    Run(String),
+    Scenarios(String),
 }
 
 /// What to do about the common I/O failures, appended to their message.
@@ -151,7 +153,7 @@ impl Error {
         match self {
             Error::Config { .. } | Error::Template { .. } => EXIT_CONFIG,
             Error::Data { .. } | Error::Quality { .. } => EXIT_DATA,
-            Error::Io { .. } | Error::Run(_) => EXIT_FAILURE,
+            Error::Io { .. } | Error::Scenarios(_) => EXIT_FAILURE,
             Error::Typesetter { .. } | Error::Chart { .. } => EXIT_FAILURE,
             Error::ReferenceMissing { .. } | Error::ReferenceFailed { .. } => EXIT_FAILURE,
             Error::Binary { .. } | Error::DemoRun { .. } => EXIT_FAILURE,

@@ -11,16 +11,17 @@
 //! - [`run`]: wires the stages into one run and resolves rules that depend on earlier results.
 //! - [`report`]: the committee PDF, typeset by typst from the run's results (PDF/A-2b), in a child process
 //!   under a time and memory budget; custom templates read only inside their folder.
-//! - [`pack`]: writes the pack folder (scenarios, results, weights, summary, PDF).
 //! - [`archive`]: pack identity, revisions, manifest, index rows, locks, and the digests of verification.
+//! - [`pack`]: writes the pack folder (scenarios, results, weights, summary, PDF) into the archive.
 //! - [`signoff`]: above the archive: Ed25519 keys, signed statements and the signed finalisation, every
 //!   check `verify` makes, and the index with each pack's sign-off.
+//! - [`bench`]: synthetic LP benchmarks of the models, beside a reference solver, and the demo end to end.
 //! - [`commands`]: one function per CLI subcommand; the binary is a thin layer over these.
 //!
 //! Cross-cutting: [`error`] (typed errors, exit codes, path-naming file helpers), [`diag`] (findings that
 //! travel with results), [`csv_out`] (RFC 4180 quoting of every CSV written), [`demo`] (the deterministic
-//! generator of the invented demo data), [`timings`] (time per stage, peak memory), [`bench`] (synthetic LP
-//! benchmarks).
+//! generator of the invented demo data), [`timings`] (time per stage, peak memory). A stage imports only
+//! the stages above it and these; the suite's `layers` test holds every file to that.
 
 pub mod analysis;
 pub mod archive;

@@ -251,6 +251,14 @@ fn loss(x: f64) -> String {
 
 /// The short text summary printed to stdout and kept as `summary.txt`.
 pub fn summary(r: &RunResult) -> String {
+    let mut s = summary_heading(r);
+    summary_rows(&mut s, r);
+    summary_checks(&mut s, r);
+    s
+}
+
+/// The summary's first lines: the fund, the data, and the column heads with their units.
+fn summary_heading(r: &RunResult) -> String {
     let c = r.config.confidence;
     let mut s = String::new();
     let _ = writeln!(
@@ -274,6 +282,12 @@ pub fn summary(r: &RunResult) -> String {
         r.scenarios.horizon,
         c * 100.0
     );
+    s
+}
+
+/// One row per portfolio (the current one first), and the max-ratio model's ratio when it was solved.
+fn summary_rows(s: &mut String, r: &RunResult) {
+    let c = r.config.confidence;
     if let Some(pr) = &r.current {
         let t = pr.at(c);
         let _ = writeln!(
@@ -325,33 +339,26 @@ pub fn summary(r: &RunResult) -> String {
     {
         let _ = writeln!(
             s,
-            "max_ratio: expected return / CVaR = {:.4}",
+            "{}: expected return / CVaR = {:.4}",
+            Family::MaxRatio.name(),
             m.outcome.objective.unwrap_or(f64::NAN)
         );
     }
-    let warns = r
-        .checks
-        .iter()
-        .filter(|c| c.level == crate::diag::Level::Warn)
-        .count();
-    let fails = r
-        .checks
-        .iter()
-        .filter(|c| c.level == crate::diag::Level::Fail)
-        .count();
+}
+
+/// The count of checks by level, then every check that did not pass.
+fn summary_checks(s: &mut String, r: &RunResult) {
+    use crate::diag::Level;
+    let count = |l: Level| r.checks.iter().filter(|c| c.level == l).count();
+    let (warns, fails) = (count(Level::Warn), count(Level::Fail));
     let _ = writeln!(
         s,
         "checks: {} pass, {warns} warn, {fails} fail (see results.json \"checks\")",
         r.checks.len() - warns - fails
     );
-    for c in r
-        .checks
-        .iter()
-        .filter(|c| c.level != crate::diag::Level::Pass)
-    {
+    for c in r.checks.iter().filter(|c| c.level != Level::Pass) {
         let _ = writeln!(s, "  {}: {}", c.level.word(), c.message);
     }
-    s
 }
 
 /// Writes the pack as the next revision of its fund/as-of folder, atomically (the caller then rebuilds the

@@ -112,19 +112,19 @@ impl ScenarioSet {
     ) -> Result<Self> {
         let (n, s) = (assets.len(), probabilities.len());
         if n == 0 || returns.len() != n * s || s == 0 {
-            return Err(Error::Run(format!(
+            return Err(Error::Scenarios(format!(
                 "scenario matrix shape: {} values for {s} scenarios × {n} assets",
                 returns.len()
             )));
         }
         if let Some(v) = returns.iter().find(|r| !r.is_finite()) {
-            return Err(Error::Run(format!(
+            return Err(Error::Scenarios(format!(
                 "scenario matrix: return {v} is not a finite number"
             )));
         }
         let total: f64 = probabilities.iter().sum();
         if probabilities.iter().any(|p| !(*p >= 0.0)) || (total - 1.0).abs() > 1e-9 {
-            return Err(Error::Run(format!(
+            return Err(Error::Scenarios(format!(
                 "scenario probabilities must be ≥ 0 and sum to 1 (sum {total})"
             )));
         }
@@ -160,7 +160,7 @@ pub fn from_prices(
     let rows = dates.len();
     let h = opts.horizon;
     if rows <= h {
-        return Err(Error::Run(format!(
+        return Err(Error::Scenarios(format!(
             "{rows} observations cannot make a {h}-observation scenario"
         )));
     }

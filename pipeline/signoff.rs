@@ -205,10 +205,16 @@ pub struct LoadedKey {
 /// Reads a secret key file: a regular file of at most [`KEY_FILE_MAX_BYTES`] holding 64 hex digits.
 /// Devices, pipes and folders are refused without reading them.
 pub fn read_key(path: &Path) -> Result<LoadedKey> {
-    let meta = std::fs::metadata(path).map_err(|source| Error::Io {
-        action: "cannot read key file",
-        path: path.to_path_buf(),
-        source,
+    let meta = std::fs::metadata(path).map_err(|source| match source.kind() {
+        std::io::ErrorKind::NotFound => key_error(
+            path,
+            "does not exist: give the secret key file (PREFIX.key) that `tailpack keygen` made for the role",
+        ),
+        _ => Error::Io {
+            action: "cannot read key file",
+            path: path.to_path_buf(),
+            source,
+        },
     })?;
     if !meta.is_file() {
         return Err(key_error(
@@ -263,10 +269,7 @@ fn readable_by_others(_: &Path, _: &std::fs::Metadata) -> Option<String> {
 /// Reads a pack's sign-off record (empty when absent); a malformed record is a verification finding.
 pub fn record(pack: &Path) -> std::result::Result<Record, Finding> {
     let path = pack.join(SIGNOFF);
-    let bad = |problem: String| Finding {
-        file: SIGNOFF.into(),
-        problem,
-    };
+    let bad = |problem: String| finding(SIGNOFF, problem);
     let meta = match std::fs::symlink_metadata(&path) {
         Err(_) => return Ok(Record::default()),
         Ok(m) => m,
@@ -383,6 +386,14 @@ fn check_signatures(rec: &Record, roles: &[SignRole], b: &Binding) -> (Vec<Strin
     (out, valid)
 }
 
+/// A problem with one file of the pack.
+fn finding(file: &str, problem: impl Into<String>) -> Finding {
+    Finding {
+        file: file.to_string(),
+        problem: problem.into(),
+    }
+}
+
 /// Checks the finalisation: every required role signed validly, and the signed finalisation statement
 /// covers this pack, this final PDF and exactly the record's signatures.
 fn check_final(
@@ -393,93 +404,94 @@ fn check_final(
     valid: &[String],
     b: &Binding,
 ) -> Vec<Finding> {
-    let mut out = Vec::new();
-    let mut bad = |file: &str, problem: String| {
-        out.push(Finding {
-            file: file.into(),
-            problem,
-        })
+    let mut out: Vec<Finding> = final_roles(roles, valid)
+        .into_iter()
+        .map(|problem| finding(SIGNOFF, problem))
+        .collect();
+    if f.pdf != FINAL_PDF {
+        out.push(finding(
+            SIGNOFF,
+            format!(
+                "names `{}` as the final PDF; it is always {FINAL_PDF}",
+                f.pdf
+            ),
+        ));
+        return out;
+    }
+    let Ok(st) = serde_json::from_str::<FinalStatement>(&f.statement) else {
+        out.push(finding(
+            SIGNOFF,
+            "the finalisation statement is missing or not valid: nothing signed covers the final PDF",
+        ));
+        return out;
     };
+    out.extend(
+        final_statement(rec, f, &st, roles, b)
+            .into_iter()
+            .map(|problem| finding(SIGNOFF, problem)),
+    );
+    match std::fs::read(pack.join(FINAL_PDF)) {
+        Ok(bytes) if hex(&Sha256::digest(&bytes)) == st.final_pdf_sha256 => {}
+        Ok(_) => out.push(finding(
+            FINAL_PDF,
+            "was changed: its SHA-256 differs from the signed finalisation",
+        )),
+        Err(_) => out.push(finding(FINAL_PDF, "is missing")),
+    }
+    out
+}
+
+/// A final record needs required roles, every one of them with a valid signature.
+fn final_roles(roles: &[SignRole], valid: &[String]) -> Option<String> {
     let missing: Vec<&str> = roles
         .iter()
         .filter(|r| !valid.contains(&r.role))
         .map(|r| r.role.as_str())
         .collect();
     if roles.is_empty() {
-        bad(
-            SIGNOFF,
-            "is marked final, but the pack's config requires no sign-off roles".into(),
-        );
+        Some("is marked final, but the pack's config requires no sign-off roles".into())
     } else if !missing.is_empty() {
-        bad(
-            SIGNOFF,
-            format!(
-                "is marked final without a valid signature of: {}",
-                missing.join(", ")
-            ),
-        );
+        Some(format!(
+            "is marked final without a valid signature of: {}",
+            missing.join(", ")
+        ))
+    } else {
+        None
     }
-    if f.pdf != FINAL_PDF {
-        bad(
-            SIGNOFF,
-            format!(
-                "names `{}` as the final PDF; it is always {FINAL_PDF}",
-                f.pdf
-            ),
-        );
-        return out;
-    }
-    let Ok(st) = serde_json::from_str::<FinalStatement>(&f.statement) else {
-        bad(
-            SIGNOFF,
-            "the finalisation statement is missing or not valid: nothing signed covers the final PDF"
-                .into(),
-        );
-        return out;
-    };
+}
+
+/// What is wrong with a parsed finalisation statement: its signature, its key's trust, the pack and
+/// manifest it names, the role signatures it sealed, and the final PDF digest it signed.
+fn final_statement(
+    rec: &Record,
+    f: &Final,
+    st: &FinalStatement,
+    roles: &[SignRole],
+    b: &Binding,
+) -> Vec<String> {
+    let mut out = Vec::new();
     if !signature_valid(&st.public_key, &f.statement, &f.signature) {
-        bad(
-            SIGNOFF,
+        out.push(
             "the finalisation signature does not match its statement (forged, altered or malformed)"
                 .into(),
         );
     }
     if !trusted(roles, &st.role, &st.public_key) {
-        bad(
-            SIGNOFF,
-            format!(
-                "the finalisation key {} is not trusted for role `{}`",
-                fingerprint(&st.public_key),
-                st.role
-            ),
-        );
+        out.push(format!(
+            "the finalisation key {} is not trusted for role `{}`",
+            fingerprint(&st.public_key),
+            st.role
+        ));
     }
     if st.pack_id != b.pack_id || st.manifest_sha256 != b.manifest || st.final_pdf != f.pdf {
-        bad(
-            SIGNOFF,
-            "the finalisation statement was signed for a different pack or manifest".into(),
-        );
+        out.push("the finalisation statement was signed for a different pack or manifest".into());
     }
     let sigs: Vec<&str> = rec.signatures.iter().map(|e| e.signature.trim()).collect();
     if st.signatures.iter().map(|s| s.trim()).collect::<Vec<_>>() != sigs {
-        bad(
-            SIGNOFF,
-            "the role signatures differ from those the finalisation sealed (a signature was removed, added or replaced)".into(),
-        );
+        out.push("the role signatures differ from those the finalisation sealed (a signature was removed, added or replaced)".into());
     }
     if st.final_pdf_sha256 != f.sha256 {
-        bad(
-            SIGNOFF,
-            "the final PDF digest differs from the one the finalisation signed".into(),
-        );
-    }
-    match std::fs::read(pack.join(FINAL_PDF)) {
-        Ok(bytes) if hex(&Sha256::digest(&bytes)) == st.final_pdf_sha256 => {}
-        Ok(_) => bad(
-            FINAL_PDF,
-            "was changed: its SHA-256 differs from the signed finalisation".into(),
-        ),
-        Err(_) => bad(FINAL_PDF, "is missing".into()),
+        out.push("the final PDF digest differs from the one the finalisation signed".into());
     }
     out
 }
@@ -487,6 +499,12 @@ fn check_final(
 /// Every check `verify` makes on a pack: the archive's digests and listings, then (when those hold) every
 /// signature, the finalisation, and the archive index's view of the sign-off. Returns the problems found.
 pub fn check_pack(pack: &Path) -> Result<Vec<Finding>> {
+    Ok(inspect(pack)?.0)
+}
+
+/// [`check_pack`]'s findings, and the sign-off record as read for them (`None` when it is malformed,
+/// which is then one of the findings).
+fn inspect(pack: &Path) -> Result<(Vec<Finding>, Option<Record>)> {
     let rec = record(pack);
     // The sign-off files a pack may hold besides its listed ones: the record, and the final PDF only when
     // a record marks the pack final.
@@ -499,27 +517,24 @@ pub fn check_pack(pack: &Path) -> Result<Vec<Finding>> {
         Ok(r) => r,
         Err(f) => {
             out.push(f);
-            return Ok(out);
+            return Ok((out, None));
         }
     };
     if !out.is_empty() {
-        return Ok(out);
+        return Ok((out, Some(rec)));
     }
     out.extend(check_index(pack, &rec));
     if rec.signatures.is_empty() && rec.finalised.is_none() {
-        return Ok(out);
+        return Ok((out, Some(rec)));
     }
     let roles = roles(pack)?;
     let b = binding(pack)?;
     let (problems, valid) = check_signatures(&rec, &roles, &b);
-    out.extend(problems.into_iter().map(|p| Finding {
-        file: SIGNOFF.into(),
-        problem: p,
-    }));
+    out.extend(problems.into_iter().map(|p| finding(SIGNOFF, p)));
     if let Some(f) = &rec.finalised {
         out.extend(check_final(pack, &rec, f, &roles, &valid, &b));
     }
-    Ok(out)
+    Ok((out, Some(rec)))
 }
 
 /// The archive index records each pack's signers and final PDF: a record with fewer signatures than the
@@ -531,33 +546,36 @@ fn check_index(pack: &Path, rec: &Record) -> Vec<Finding> {
     let mut out = Vec::new();
     let listed = row["signers"].as_array().map_or(0, Vec::len);
     if listed > rec.signatures.len() {
-        out.push(Finding {
-            file: SIGNOFF.into(),
-            problem: format!(
+        out.push(finding(
+            SIGNOFF,
+            format!(
                 "holds {} signature(s), but the archive index lists {listed}: signatures were removed",
                 rec.signatures.len()
             ),
-        });
+        ));
     }
     let final_sha = row["final_pdf_sha256"].as_str();
     if final_sha.is_some() && final_sha != rec.finalised.as_ref().map(|f| f.sha256.as_str()) {
-        out.push(Finding {
-            file: SIGNOFF.into(),
-            problem: "differs from the archive index's final PDF record".into(),
-        });
+        out.push(finding(
+            SIGNOFF,
+            "differs from the archive index's final PDF record",
+        ));
     }
     out
 }
 
 /// Fails with the pack's verification problems (exit 7) when it is not intact.
-fn require_intact(action: &'static str, pack: &Path, ignore_final_pdf: bool) -> Result<()> {
-    let problems: Vec<String> = check_pack(pack)?
+/// Returns the pack's sign-off record, read once for the checks and the change.
+fn require_intact(action: &'static str, pack: &Path, ignore_final_pdf: bool) -> Result<Record> {
+    let (findings, rec) = inspect(pack)?;
+    let problems: Vec<String> = findings
         .into_iter()
         .filter(|f| !(ignore_final_pdf && f.file == FINAL_PDF))
         .map(|f| format!("{}: {}", f.file, f.problem))
         .collect();
-    if problems.is_empty() {
-        return Ok(());
+    match rec {
+        Some(rec) if problems.is_empty() => return Ok(rec),
+        _ => {}
     }
     Err(Error::NotIntact {
         action,
@@ -582,8 +600,7 @@ pub fn sign(
     now: chrono::DateTime<chrono::Utc>,
 ) -> Result<Outcome> {
     let refuse = |why: String| refused("sign", pack, why);
-    require_intact("sign", pack, false)?;
-    let mut rec = record(pack).map_err(|f| refuse(f.problem))?;
+    let mut rec = require_intact("sign", pack, false)?;
     if rec.finalised.is_some() {
         return Err(refuse(
             "the pack is final; a final pack is immutable".into(),
@@ -621,27 +638,33 @@ pub fn sign(
         signature,
     });
     save(pack, &rec)?;
+    Ok(Outcome {
+        text: signed_text(pack, &st, &roles, &rec),
+        warnings: loaded.warning.into_iter().collect(),
+    })
+}
+
+/// What `sign` prints: who signed with which key, and the roles still to sign (or that finalising is next).
+fn signed_text(pack: &Path, st: &Statement, roles: &[SignRole], rec: &Record) -> String {
+    let signed = signed_roles(rec);
     let missing: Vec<&str> = roles
         .iter()
-        .filter(|r| !signed_roles(&rec).contains(&r.role))
+        .filter(|r| !signed.contains(&r.role))
         .map(|r| r.role.as_str())
         .collect();
-    let text = format!(
-        "signed {} as `{role}` ({}, key {}); {}\n",
+    format!(
+        "signed {} as `{}` ({}, key {}); {}\n",
         pack.display(),
+        st.role,
         st.name,
-        fingerprint(&public),
+        fingerprint(&st.public_key),
         if missing.is_empty() {
             "every required role has signed: run `tailpack finalize` with one of their keys"
                 .to_string()
         } else {
             format!("still to sign: {}", missing.join(", "))
         }
-    );
-    Ok(Outcome {
-        text,
-        warnings: loaded.warning.into_iter().collect(),
-    })
+    )
 }
 
 fn stamp(now: chrono::DateTime<chrono::Utc>) -> String {
@@ -707,8 +730,7 @@ pub fn prepare_final(
     name: Option<&str>,
 ) -> Result<Finalising> {
     let refuse = |why: String| refused("finalise", pack, why);
-    require_intact("finalise", pack, true)?;
-    let record = record(pack).map_err(|f| refuse(f.problem))?;
+    let record = require_intact("finalise", pack, true)?;
     if record.finalised.is_some() {
         return Err(refuse(
             "it is already final; a final pack is immutable".into(),

@@ -69,6 +69,18 @@ pub fn read_assets(path: &Path) -> Result<Vec<AssetMeta>> {
     Ok(out)
 }
 
+/// Metadata columns with a meaning of their own; every other column is a tag (`region`, `style`, …).
+const RESERVED: [&str; 5] = ["asset", "class", "name", "min_weight", "max_weight"];
+
+/// The trimmed text of one cell, empty when the cell is blank.
+fn cell(t: &TextTable, c: usize, row: usize) -> String {
+    t.columns[c][row]
+        .as_deref()
+        .map(str::trim)
+        .unwrap_or("")
+        .to_string()
+}
+
 fn meta_row(
     path: &Path,
     t: &TextTable,
@@ -76,23 +88,16 @@ fn meta_row(
     asset: usize,
     class: usize,
 ) -> Result<AssetMeta> {
-    let cell = |c: usize| {
-        t.columns[c][row]
-            .as_deref()
-            .map(str::trim)
-            .unwrap_or("")
-            .to_string()
-    };
     let place = t.place(row);
     check_lengths(path, t, row)?;
-    let code = cell(asset);
+    let code = cell(t, asset, row);
     if code.is_empty() {
         return Err(Error::data(
             path,
             format!("{place}, column `asset`: blank asset code"),
         ));
     }
-    if cell(class).is_empty() {
+    if cell(t, class, row).is_empty() {
         return Err(Error::data(
             path,
             format!(
@@ -100,11 +105,44 @@ fn meta_row(
             ),
         ));
     }
+    let (min_weight, max_weight) = weight_bounds(path, t, row, &code)?;
+    let tags = t
+        .names
+        .iter()
+        .enumerate()
+        .filter(|(_, n)| !RESERVED.contains(&n.trim().to_ascii_lowercase().as_str()))
+        .map(|(c, n)| (n.trim().to_ascii_lowercase(), cell(t, c, row)))
+        .collect();
+    let name = t
+        .find("name")
+        .map(|c| cell(t, c, row))
+        .filter(|n| !n.is_empty())
+        .unwrap_or_else(|| code.clone());
+    Ok(AssetMeta {
+        asset: code,
+        name,
+        class: cell(t, class, row).to_ascii_lowercase(),
+        tags,
+        min_weight,
+        max_weight,
+        place,
+    })
+}
+
+/// The row's optional `min_weight` and `max_weight`: each blank or a weight in [0, 1], the minimum not
+/// above the maximum.
+fn weight_bounds(
+    path: &Path,
+    t: &TextTable,
+    row: usize,
+    code: &str,
+) -> Result<(Option<f64>, Option<f64>)> {
+    let place = t.place(row);
     let weight = |name: &str| -> Result<Option<f64>> {
         let Some(c) = t.find(name) else {
             return Ok(None);
         };
-        let v = cell(c);
+        let v = cell(t, c, row);
         if v.is_empty() {
             return Ok(None);
         }
@@ -125,28 +163,7 @@ fn meta_row(
             ));
         }
     }
-    let reserved = ["asset", "class", "name", "min_weight", "max_weight"];
-    let tags = t
-        .names
-        .iter()
-        .enumerate()
-        .filter(|(_, n)| !reserved.contains(&n.trim().to_ascii_lowercase().as_str()))
-        .map(|(c, n)| (n.trim().to_ascii_lowercase(), cell(c)))
-        .collect();
-    let name = t
-        .find("name")
-        .map(cell)
-        .filter(|n| !n.is_empty())
-        .unwrap_or_else(|| code.clone());
-    Ok(AssetMeta {
-        asset: code,
-        name,
-        class: cell(class).to_ascii_lowercase(),
-        tags,
-        min_weight,
-        max_weight,
-        place,
-    })
+    Ok((min_weight, max_weight))
 }
 
 /// Every text cell of a metadata row (codes, names, classes, tags: they reach the pack) within the bound

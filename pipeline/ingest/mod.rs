@@ -220,6 +220,15 @@ fn cut_after(h: &mut PriceHistory, as_of: NaiveDate) {
     h.keep_rows(&(0..keep).collect::<Vec<_>>());
 }
 
+/// The kept assets of the scenario window, their filled prices and metadata, and every asset's quality.
+struct Kept {
+    assets: Vec<String>,
+    prices: Vec<Vec<f64>>,
+    full: Vec<Vec<f64>>,
+    metas: Vec<AssetMeta>,
+    per_asset: Vec<quality::AssetQuality>,
+}
+
 fn build(
     cfg: &Config,
     hist: PriceHistory,
@@ -227,56 +236,12 @@ fn build(
     as_of: NaiveDate,
     mut findings: Vec<Check>,
 ) -> Result<MarketData> {
-    let window_start = as_of
-        .checked_sub_months(Months::new(12 * cfg.scenarios.lookback_years))
-        .unwrap_or(hist.dates[0]);
-    let start = hist.dates.partition_point(|d| *d < window_start);
-    if start == 0 && hist.dates[0] > window_start {
-        findings.push(Check::warn("quality.lookback", format!(
-            "the price history starts on {}, after the lookback start {window_start} ({} years before as-of); all of it is used",
-            hist.dates[0], cfg.scenarios.lookback_years)));
-    }
-    let (mut assets, mut prices, mut metas, mut per_asset, mut full) =
-        (vec![], vec![], vec![], vec![], vec![]);
-    for (a, series) in hist.assets.iter().zip(&hist.values) {
-        let f = quality::fill_asset(a, series, start, &cfg.quality);
-        findings.extend(f.note);
-        if !f.quality.dropped {
-            assets.push(a.clone());
-            prices.push(f.values);
-            full.push(quality::fill_forward(series, cfg.quality.max_fill));
-            metas.push(
-                meta.iter()
-                    .find(|m| &m.asset == a)
-                    .expect("checked")
-                    .clone(),
-            );
-        }
-        per_asset.push(f.quality);
-    }
+    let start = window_start(cfg, &hist, as_of, &mut findings);
+    let filled = fill(cfg, &hist, &meta, start, &mut findings);
     let dates = hist.dates[start..].to_vec();
-    findings.extend(quality::series_findings(&per_asset, &cfg.quality));
-    findings.push(window_check(
-        &cfg.prices.display().to_string(),
-        dates.len(),
-        cfg.scenarios.horizon,
-        cfg.scenarios.step,
-    ));
-    if assets.is_empty() {
-        findings.push(Check::fail(
-            "quality.no_assets",
-            "every asset was dropped by the fill policy; nothing to optimise",
-        ));
-    } else {
-        findings.push(quality::history_length(
-            dates.len(),
-            assets.len(),
-            cfg.scenarios.horizon,
-            &cfg.quality,
-        ));
-    }
+    findings.extend(window_findings(cfg, &filled, dates.len()));
     let holdings = match &cfg.holdings {
-        Some(p) if !assets.is_empty() => Some(meta::read_holdings(p, &assets)?),
+        Some(p) if !filled.assets.is_empty() => Some(meta::read_holdings(p, &filled.assets)?),
         _ => None,
     };
     let quality = QualityReport {
@@ -287,7 +252,7 @@ fn build(
         window_start: dates.first().copied().unwrap_or(as_of),
         window_end: dates.last().copied().unwrap_or(as_of),
         observations: dates.len(),
-        assets: per_asset,
+        assets: filled.per_asset,
         findings,
     };
     let history = (hist.dates[0], *hist.dates.last().expect("non-empty"));
@@ -295,15 +260,95 @@ fn build(
         as_of,
         history,
         dates,
-        assets,
-        prices,
+        assets: filled.assets,
+        prices: filled.prices,
         full_dates: hist.dates,
-        full_prices: full,
-        meta: metas,
+        full_prices: filled.full,
+        meta: filled.metas,
         holdings,
         quality,
         layout: hist.layout,
     })
+}
+
+/// The first row of the scenario window (`scenarios.lookback_years` before as-of), with a warning when
+/// the history starts later.
+fn window_start(
+    cfg: &Config,
+    hist: &PriceHistory,
+    as_of: NaiveDate,
+    findings: &mut Vec<Check>,
+) -> usize {
+    let window_start = as_of
+        .checked_sub_months(Months::new(12 * cfg.scenarios.lookback_years))
+        .unwrap_or(hist.dates[0]);
+    let start = hist.dates.partition_point(|d| *d < window_start);
+    if start == 0 && hist.dates[0] > window_start {
+        findings.push(Check::warn("quality.lookback", format!(
+            "the price history starts on {}, after the lookback start {window_start} ({} years before as-of); all of it is used",
+            hist.dates[0], cfg.scenarios.lookback_years)));
+    }
+    start
+}
+
+/// Applies the fill policy to every asset from row `start` on; an asset the policy drops is left out.
+fn fill(
+    cfg: &Config,
+    hist: &PriceHistory,
+    meta: &[AssetMeta],
+    start: usize,
+    findings: &mut Vec<Check>,
+) -> Kept {
+    let mut out = Kept {
+        assets: vec![],
+        prices: vec![],
+        full: vec![],
+        metas: vec![],
+        per_asset: vec![],
+    };
+    for (a, series) in hist.assets.iter().zip(&hist.values) {
+        let f = quality::fill_asset(a, series, start, &cfg.quality);
+        findings.extend(f.note);
+        if !f.quality.dropped {
+            out.assets.push(a.clone());
+            out.prices.push(f.values);
+            out.full
+                .push(quality::fill_forward(series, cfg.quality.max_fill));
+            out.metas.push(
+                meta.iter()
+                    .find(|m| &m.asset == a)
+                    .expect("checked")
+                    .clone(),
+            );
+        }
+        out.per_asset.push(f.quality);
+    }
+    out
+}
+
+/// The findings on the window as a whole: per-series rules, the scenario count, and the history length.
+fn window_findings(cfg: &Config, filled: &Kept, rows: usize) -> Vec<Check> {
+    let mut findings = quality::series_findings(&filled.per_asset, &cfg.quality);
+    findings.push(window_check(
+        &cfg.prices.display().to_string(),
+        rows,
+        cfg.scenarios.horizon,
+        cfg.scenarios.step,
+    ));
+    if filled.assets.is_empty() {
+        findings.push(Check::fail(
+            "quality.no_assets",
+            "every asset was dropped by the fill policy; nothing to optimise",
+        ));
+    } else {
+        findings.push(quality::history_length(
+            rows,
+            filled.assets.len(),
+            cfg.scenarios.horizon,
+            &cfg.quality,
+        ));
+    }
+    findings
 }
 
 fn window_check(file: &str, rows: usize, horizon: usize, step: usize) -> Check {

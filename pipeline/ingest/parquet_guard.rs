@@ -150,6 +150,19 @@ fn check_chunk(
     group_rows: u64,
     limits: Limits,
 ) -> Check<()> {
+    let (start, end) = chunk_extent(bytes.len(), meta_start, c, group_rows, limits)?;
+    check_pages(bytes, c, start, end, limits)
+}
+
+/// The chunk's byte range `(start, end)`, once its declared place, size and counts are within the file
+/// and the limits.
+fn chunk_extent(
+    n: usize,
+    meta_start: usize,
+    c: &ChunkMeta,
+    group_rows: u64,
+    limits: Limits,
+) -> Check<(usize, usize)> {
     let start = c.dictionary_page_offset.unwrap_or(c.data_page_offset);
     let data_end = meta_start as u64;
     if start < 4 || start >= data_end {
@@ -169,7 +182,6 @@ fn check_chunk(
             ),
         );
     }
-    let n = bytes.len();
     within(
         c.at,
         "column chunk",
@@ -196,7 +208,12 @@ fn check_chunk(
             ),
         );
     }
-    let (start, end) = (start as usize, (start + c.compressed) as usize);
+    Ok((start as usize, (start + c.compressed) as usize))
+}
+
+/// The chunk's pages in `bytes[start..end]`, one by one, until its declared number of values is seen.
+fn check_pages(bytes: &[u8], c: &ChunkMeta, start: usize, end: usize, limits: Limits) -> Check<()> {
+    let n = bytes.len();
     let mut pos = start;
     let (mut seen, mut decoded) = (0u64, 0u64);
     while seen < c.num_values {
@@ -681,41 +698,47 @@ impl<'a> Reader<'a> {
                 self.pos += n;
                 Value::Bytes(&self.buf[a..a + n])
             }
-            9 | 10 => {
-                let h = self.byte()?;
-                let (size, elem) = (u64::from(h >> 4), h & 0x0f);
-                let size = if size == 15 { self.varint()? } else { size };
-                // Readers disagree on a boolean in a list (one byte, or none when skipped by polars'
-                // footer decoder), and `parquet.thrift` has no list of booleans: refuse one.
-                if size > 0 && (elem == 1 || elem == 2) {
-                    return bad(
-                        start,
-                        "a metadata list holds booleans, which the format never has",
-                    );
-                }
-                let n = self.length(size, 1, start)?;
-                let mut items = Vec::with_capacity(n);
-                for _ in 0..n {
-                    items.push(self.read_value(elem, depth + 1)?);
-                }
-                Value::List(items)
-            }
-            11 => {
-                let size = self.varint()?;
-                let n = self.length(size, 2, start)?;
-                if n > 0 {
-                    let kv = self.byte()?;
-                    for _ in 0..n {
-                        self.read_value(kv >> 4, depth + 1)?;
-                        self.read_value(kv & 0x0f, depth + 1)?;
-                    }
-                }
-                Value::Other
-            }
+            9 | 10 => self.read_list(start, depth)?,
+            11 => self.read_map(start, depth)?,
             12 => return self.read_struct(depth),
             other => return bad(start, format!("a metadata field has unknown type {other}")),
         };
         Ok(Node { start, kind, value })
+    }
+
+    /// A list or set (compact types 9, 10) whose header starts at `start`.
+    fn read_list(&mut self, start: usize, depth: usize) -> Check<Value<'a>> {
+        let h = self.byte()?;
+        let (size, elem) = (u64::from(h >> 4), h & 0x0f);
+        let size = if size == 15 { self.varint()? } else { size };
+        // Readers disagree on a boolean in a list (one byte, or none when skipped by polars'
+        // footer decoder), and `parquet.thrift` has no list of booleans: refuse one.
+        if size > 0 && (elem == 1 || elem == 2) {
+            return bad(
+                start,
+                "a metadata list holds booleans, which the format never has",
+            );
+        }
+        let n = self.length(size, 1, start)?;
+        let mut items = Vec::with_capacity(n);
+        for _ in 0..n {
+            items.push(self.read_value(elem, depth + 1)?);
+        }
+        Ok(Value::List(items))
+    }
+
+    /// A map (compact type 11) whose header starts at `start`: read through, its content not kept.
+    fn read_map(&mut self, start: usize, depth: usize) -> Check<Value<'a>> {
+        let size = self.varint()?;
+        let n = self.length(size, 2, start)?;
+        if n > 0 {
+            let kv = self.byte()?;
+            for _ in 0..n {
+                self.read_value(kv >> 4, depth + 1)?;
+                self.read_value(kv & 0x0f, depth + 1)?;
+            }
+        }
+        Ok(Value::Other)
     }
 }
 

@@ -264,6 +264,11 @@ fn wide(path: &Path, t: &TextTable, date_col: usize) -> Result<PriceHistory> {
     })
 }
 
+/// A long-layout price and the table row it came from.
+type LongCell = (Option<f64>, u32);
+/// The long layout's rows grouped by date (with the place of the date's first row), then by asset.
+type ByDate = BTreeMap<NaiveDate, (String, BTreeMap<String, LongCell>)>;
+
 fn long(path: &Path, t: &TextTable, date_col: usize) -> Result<PriceHistory> {
     let need = |n: &str| {
         t.find(n).ok_or_else(|| {
@@ -273,31 +278,12 @@ fn long(path: &Path, t: &TextTable, date_col: usize) -> Result<PriceHistory> {
             )
         })
     };
-    let (asset_col, price_col) = (need("asset")?, need("price")?);
-    type Cell = (Option<f64>, u32);
-    let mut by_date: BTreeMap<NaiveDate, (String, BTreeMap<String, Cell>)> = BTreeMap::new();
+    let cols = [date_col, need("asset")?, need("price")?];
+    let mut by_date = ByDate::new();
     let mut assets: Vec<String> = Vec::new();
     for row in 0..t.rows() {
+        let (date, asset, price) = long_row(path, t, row, cols)?;
         let place = t.place(row);
-        let date = parse_date(
-            path,
-            &place,
-            "date",
-            t.columns[date_col][row].as_deref().unwrap_or(""),
-        )?;
-        let asset = t.columns[asset_col][row]
-            .as_deref()
-            .unwrap_or("")
-            .trim()
-            .to_string();
-        if asset.is_empty() {
-            return Err(Error::data(
-                path,
-                format!("{place}, column `asset`: the asset code is blank"),
-            ));
-        }
-        check_code(path, &format!("{place}, column `asset`"), &asset)?;
-        let price = parse_price(path, &place, "price", t.columns[price_col][row].as_deref())?;
         let entry = by_date
             .entry(date)
             .or_insert_with(|| (place.clone(), BTreeMap::new()));
@@ -316,12 +302,7 @@ fn long(path: &Path, t: &TextTable, date_col: usize) -> Result<PriceHistory> {
     }
     let dates: Vec<NaiveDate> = by_date.keys().copied().collect();
     let places = by_date.values().map(|(p, _)| p.clone()).collect();
-    let (mut values, mut cells) = (Vec::new(), Vec::new());
-    for a in &assets {
-        let column: Vec<Option<&Cell>> = by_date.values().map(|(_, m)| m.get(a)).collect();
-        values.push(column.iter().map(|c| c.and_then(|c| c.0)).collect());
-        cells.push(column.iter().map(|c| c.map_or(u32::MAX, |c| c.1)).collect());
-    }
+    let (values, cells) = pivot(&by_date, &assets);
     Ok(PriceHistory {
         dates,
         assets,
@@ -331,4 +312,48 @@ fn long(path: &Path, t: &TextTable, date_col: usize) -> Result<PriceHistory> {
         first_line: t.is_csv.then_some(t.first_line),
         layout: Layout::Long,
     })
+}
+
+/// One long-layout row: its date, asset code (checked) and price (blank is `None`). `cols` are the
+/// date, asset and price columns.
+fn long_row(
+    path: &Path,
+    t: &TextTable,
+    row: usize,
+    cols: [usize; 3],
+) -> Result<(NaiveDate, String, Option<f64>)> {
+    let [date_col, asset_col, price_col] = cols;
+    let place = t.place(row);
+    let date = parse_date(
+        path,
+        &place,
+        "date",
+        t.columns[date_col][row].as_deref().unwrap_or(""),
+    )?;
+    let asset = t.columns[asset_col][row]
+        .as_deref()
+        .unwrap_or("")
+        .trim()
+        .to_string();
+    if asset.is_empty() {
+        return Err(Error::data(
+            path,
+            format!("{place}, column `asset`: the asset code is blank"),
+        ));
+    }
+    check_code(path, &format!("{place}, column `asset`"), &asset)?;
+    let price = parse_price(path, &place, "price", t.columns[price_col][row].as_deref())?;
+    Ok((date, asset, price))
+}
+
+/// The wide form of long rows: per asset, its price on each date (`None` where it has no row) and the
+/// table row of each (`u32::MAX` where none).
+fn pivot(by_date: &ByDate, assets: &[String]) -> (Vec<Vec<Option<f64>>>, Vec<Vec<u32>>) {
+    let (mut values, mut cells) = (Vec::new(), Vec::new());
+    for a in assets {
+        let column: Vec<Option<&LongCell>> = by_date.values().map(|(_, m)| m.get(a)).collect();
+        values.push(column.iter().map(|c| c.and_then(|c| c.0)).collect());
+        cells.push(column.iter().map(|c| c.map_or(u32::MAX, |c| c.1)).collect());
+    }
+    (values, cells)
 }

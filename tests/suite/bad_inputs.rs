@@ -10,6 +10,7 @@
 //! no pack folder — finished or partial — anywhere after an error. Inputs of megabytes and Parquet files
 //! are generated here (`generate`) rather than committed.
 
+use super::common::with_cell;
 use serde::Deserialize;
 use std::path::{Path, PathBuf};
 use std::process::Command;
@@ -236,11 +237,23 @@ fn every_corpus_folder_has_its_test_and_there_are_at_least_forty() {
         .map(|e| e.unwrap())
         .filter(|e| e.file_type().unwrap().is_dir())
         .map(|e| e.file_name().to_string_lossy().into_owned())
-        .filter(|n| n != "_good")
+        .filter(|n| n != "_good" && n != "_snapshots")
         .collect();
     folders.sort();
     let mut listed: Vec<String> = CASES.iter().map(|s| s.to_string()).collect();
     listed.sort();
+    // A pinned message whose case is gone would go unnoticed by the snapshot tool.
+    for e in std::fs::read_dir(corpus().join("_snapshots")).unwrap() {
+        let n = e.unwrap().file_name().to_string_lossy().into_owned();
+        if n.ends_with(".snap.new") {
+            continue; // a changed message awaiting review, reported by its own case
+        }
+        let case = n.strip_suffix(".snap").unwrap_or(&n);
+        assert!(
+            listed.iter().any(|c| c == case),
+            "_snapshots/{n} pins the message of no listed case"
+        );
+    }
     assert_eq!(
         folders, listed,
         "every folder of tests/fixtures/bad needs a line in cases!(…) and the reverse"
@@ -423,6 +436,20 @@ fn check_refuses_what_run_refuses_before_solving() {
     }
 }
 
+/// Pins the whole message, as a committee's administrator would read it, in
+/// `tests/fixtures/bad/_snapshots/<case>.snap` (the temporary folder's path shown as `[case folder]`), so a
+/// change of wording anywhere shows up in review. A new case's snapshot is written with `INSTA_UPDATE=always`
+/// and read before it is committed (tests/fixtures/bad/README.md).
+fn pin_message(name: &str, e: &Expect, root: &Path, stderr: &str) {
+    let message = stderr.replace(&root.display().to_string(), "[case folder]");
+    let mut settings = insta::Settings::clone_current();
+    settings.set_snapshot_path("../fixtures/bad/_snapshots");
+    settings.set_prepend_module_to_snapshot(false);
+    settings.set_omit_expression(true);
+    settings.set_description(e.what.clone());
+    settings.bind(|| insta::assert_snapshot!(name.to_string(), message));
+}
+
 /// An error: file, place and fragments named, the message short, no pack anywhere.
 fn failed(name: &str, e: &Expect, root: &Path, ran: &Ran, needles: &[String], shown: &str) {
     let file = e
@@ -454,6 +481,7 @@ fn failed(name: &str, e: &Expect, root: &Path, ran: &Ran, needles: &[String], sh
         ran.stderr.len(),
         &shown[..shown.len().min(3000)]
     );
+    pin_message(name, e, root, &ran.stderr);
     let pack = find(root, &|p| {
         let n = p
             .file_name()
@@ -519,11 +547,7 @@ fn generate(what: &str, dir: &Path) -> Vec<String> {
         "huge_cell" => {
             // 4 MB in the AS02 cell of data row 5 (file line 7): digits with one letter in the middle.
             let cell = format!("{}x{}", "1".repeat(2 << 20), "2".repeat(2 << 20));
-            let mut lines: Vec<String> = good.lines().map(String::from).collect();
-            let mut cells: Vec<String> = lines[6].split(',').map(String::from).collect();
-            cells[2] = cell;
-            lines[6] = cells.join(",");
-            std::fs::write(dir.join("prices.csv"), lines.join("\n") + "\n").unwrap();
+            std::fs::write(dir.join("prices.csv"), with_cell(&good, 4, 2, &cell)).unwrap();
             vec![]
         }
         "huge_header" => {

@@ -1,6 +1,6 @@
 //! The real binary on fixture folders: the pack-folder contract, no look-ahead, layouts, errors.
 
-use super::common::{Fixture, Market, config, json, repo};
+use super::common::{Fixture, Market, config, edit_csv_rows, json, repo, with_cell};
 
 fn pack_dir(ran: &super::common::Ran) -> std::path::PathBuf {
     assert_eq!(ran.code, 0, "stderr: {}", ran.stderr);
@@ -304,26 +304,7 @@ fn config_errors_name_key_line_and_suggestion() {
 #[test]
 fn bad_data_names_file_row_and_column_and_leaves_no_pack() {
     let (f, m) = standard();
-    let mut text = m.wide_csv();
-    text = text.replacen(
-        &format!("{},", m.dates[10]),
-        &format!("{},abc,", m.dates[10]),
-        1,
-    );
-    let text: String = text
-        .lines()
-        .map(|l| {
-            if l.starts_with(&m.dates[10].to_string()) {
-                let mut p: Vec<&str> = l.split(',').collect();
-                p.remove(2);
-                p.join(",")
-            } else {
-                l.to_string()
-            }
-        })
-        .collect::<Vec<_>>()
-        .join("\n")
-        + "\n";
+    let text = with_cell(&m.wide_csv(), 10, 1, "abc");
     f.write("data/prices.csv", &text);
     let ran = f.run(&["check", "fund.yaml"]);
     assert_eq!(ran.code, 3, "{}", ran.stderr);
@@ -334,26 +315,7 @@ fn bad_data_names_file_row_and_column_and_leaves_no_pack() {
         "{}",
         ran.stderr
     );
-    let mut neg = m.wide_csv();
-    neg = neg.replacen(
-        &format!("{},", m.dates[20]),
-        &format!("{},-1.0,", m.dates[20]),
-        1,
-    );
-    let neg: String = neg
-        .lines()
-        .map(|l| {
-            if l.starts_with(&m.dates[20].to_string()) {
-                let mut p: Vec<&str> = l.split(',').collect();
-                p.remove(2);
-                p.join(",")
-            } else {
-                l.to_string()
-            }
-        })
-        .collect::<Vec<_>>()
-        .join("\n")
-        + "\n";
+    let neg = with_cell(&m.wide_csv(), 20, 1, "-1.0");
     f.write("data/prices.csv", &neg);
     let ran = f.run(&["run", "fund.yaml", "--quiet"]);
     assert_eq!(ran.code, 3);
@@ -368,11 +330,7 @@ fn bad_data_names_file_row_and_column_and_leaves_no_pack() {
 #[test]
 fn check_reports_data_quality() {
     let (f, m) = standard();
-    let mut text = m.wide_csv();
-    let line = text.lines().nth(m.dates.len() - 30).unwrap().to_string();
-    let mut parts: Vec<String> = line.split(',').map(String::from).collect();
-    parts[3] = String::new();
-    text = text.replace(&line, &parts.join(","));
+    let text = with_cell(&m.wide_csv(), m.dates.len() - 31, 3, "");
     f.write("data/prices.csv", &text);
     let ran = f.run(&["check", "fund.yaml"]);
     assert_eq!(ran.code, 0, "{}", ran.stderr);
@@ -480,16 +438,9 @@ fn missing_input_file_is_a_config_error_naming_the_key() {
     );
 }
 
-/// Rewrites the fixture's wide CSV with `edit(row index, cells)` applied to each data row.
+/// The fixture's wide CSV with `edit(row index, cells)` applied to each data row.
 fn edit_rows(m: &Market, edit: impl Fn(usize, &mut Vec<String>)) -> String {
-    let text = m.wide_csv();
-    let mut out: Vec<String> = vec![text.lines().next().unwrap().to_string()];
-    for (i, line) in text.lines().skip(1).enumerate() {
-        let mut cells: Vec<String> = line.split(',').map(String::from).collect();
-        edit(i, &mut cells);
-        out.push(cells.join(","));
-    }
-    out.join("\n") + "\n"
+    edit_csv_rows(&m.wide_csv(), edit)
 }
 
 fn check_out(f: &Fixture) -> super::common::Ran {

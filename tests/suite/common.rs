@@ -306,3 +306,29 @@ pub fn copy_dir(from: &Path, to: &Path) {
         }
     }
 }
+
+/// Rewrites a plain CSV (no quoted fields; `#` comment lines, then a header line) with `edit(data row
+/// index, cells)` applied to each data row; comments and header are kept, the text ends with a newline.
+pub fn edit_csv_rows(text: &str, edit: impl Fn(usize, &mut Vec<String>)) -> String {
+    let mut lines = text.lines().peekable();
+    let mut out: Vec<String> = Vec::new();
+    while let Some(comment) = lines.next_if(|l| l.starts_with('#')) {
+        out.push(comment.to_string());
+    }
+    out.extend(lines.next().map(String::from));
+    for (i, line) in lines.enumerate() {
+        let mut cells: Vec<String> = line.split(',').map(String::from).collect();
+        edit(i, &mut cells);
+        out.push(cells.join(","));
+    }
+    out.join("\n") + "\n"
+}
+
+/// A plain CSV with the cell of data row `row` (0-based, after the header) and column `col` set to `value`.
+pub fn with_cell(text: &str, row: usize, col: usize, value: &str) -> String {
+    edit_csv_rows(text, |i, cells| {
+        if i == row {
+            cells[col] = value.to_string();
+        }
+    })
+}

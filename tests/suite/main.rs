@@ -10,6 +10,7 @@ mod csv_quoting;
 mod demo;
 mod faults;
 mod inputs;
+mod layers;
 mod models;
 mod parquet_bytes;
 mod parquet_seeds;

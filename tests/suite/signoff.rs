@@ -552,6 +552,14 @@ fn malformed_key_files_are_refused_naming_the_file() {
             ran.stderr
         );
     }
+    // A key file that is not there is a refusal like a malformed one (exit 8), not an I/O failure.
+    let ran = sign_as_preparer(&s, "keys/missing.key", None);
+    assert_eq!(ran.code, 8, "{}", ran.stderr);
+    assert!(
+        ran.stderr.contains("keys/missing.key") && ran.stderr.contains("does not exist"),
+        "{}",
+        ran.stderr
+    );
     assert!(!s.pack.join("signoff.json").exists(), "nothing was signed");
 }
 
