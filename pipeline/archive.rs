@@ -1,4 +1,4 @@
-//! Stage 8, archive: pack identity, revisions, the manifest, the index, the archive lock, and verification.
+//! Stage 7, archive: pack identity, revisions, the manifest, the index, the archive lock, and verification.
 //!
 //! A pack is a folder `<root>/<fund>/<as-of>/r<N>/` holding its outputs, a copy of every input under
 //! `inputs/` and `manifest.json`. `inputs.sha256` lists every archived input in `sha256sum` format, sorted

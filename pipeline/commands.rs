@@ -3,8 +3,9 @@
 //! Progress goes to stderr through [`Progress`] (silenced by `--quiet`); results go to stdout; errors are
 //! returned to the binary, which prints them once with their causes.
 
+use crate::config::Overrides;
 use crate::error::Result;
-use crate::run::{self, RunOptions};
+use crate::run;
 use crate::timings;
 use std::path::{Path, PathBuf};
 use std::time::Duration;
@@ -40,6 +41,47 @@ impl Progress {
     }
 }
 
+/// The command line's settings of `tailpack run`.
+#[derive(Debug, Clone)]
+pub struct RunOptions {
+    /// Settings that replace the config's, applied when it is loaded.
+    pub overrides: Overrides,
+    /// How long to wait for another run's archive lock.
+    pub lock_timeout: Duration,
+    /// No progress line on stderr.
+    pub quiet: bool,
+    /// Also measure the wall time of each stage and the peak memory.
+    pub timings: bool,
+}
+
+impl Default for RunOptions {
+    fn default() -> Self {
+        RunOptions {
+            overrides: Overrides::default(),
+            lock_timeout: crate::archive::LOCK_TIMEOUT,
+            quiet: true,
+            timings: false,
+        }
+    }
+}
+
+/// What `tailpack run` gives back: the outcome, and the timing table when asked for, also after a failure.
+pub struct Ran {
+    pub outcome: Result<RunReport>,
+    /// The stage timings table for stderr (`--timings`).
+    pub timings: Option<String>,
+}
+
+/// `tailpack run` as the binary calls it: [`run`] with its progress line, timed when asked.
+pub fn run_timed(config: &Path, opts: &RunOptions) -> Ran {
+    let start = std::time::Instant::now();
+    let outcome = run(config, opts, &Progress::new(opts.quiet));
+    Ran {
+        outcome,
+        timings: opts.timings.then(|| timings(start.elapsed())),
+    }
+}
+
 /// What `tailpack run` did.
 pub struct RunReport {
     /// Text for stdout; its last line is the pack folder.
@@ -54,7 +96,7 @@ pub struct RunReport {
 pub fn run(config: &Path, opts: &RunOptions, progress: &Progress) -> Result<RunReport> {
     progress.step("reading config and data");
     let mut funds = crate::config::load_all(config, &opts.overrides)?;
-    let root = output_root(config, &funds[0], opts)?;
+    let root = output_root(config, &funds[0], &opts.overrides)?;
     let _lock = crate::archive::lock(&root, opts.lock_timeout)?;
     if funds.len() == 1 {
         return run_fund(funds.remove(0), progress);
@@ -74,9 +116,13 @@ pub fn run(config: &Path, opts: &RunOptions, progress: &Progress) -> Result<RunR
 /// The pack root of a run (`--out`, else `output.root`, as the config resolved it), refused when it is or lies inside a pack folder
 /// (the archive's lock and index written there would change a pack that verifies only as written) or when
 /// a file stands where it or one of its folders must be created.
-fn output_root(config: &Path, cfg: &crate::config::Config, opts: &RunOptions) -> Result<PathBuf> {
+fn output_root(
+    config: &Path,
+    cfg: &crate::config::Config,
+    overrides: &Overrides,
+) -> Result<PathBuf> {
     let root = cfg.out_root.clone();
-    let key = match &opts.overrides.out {
+    let key = match &overrides.out {
         Some(_) => "--out",
         None => "output.root",
     };
@@ -372,9 +418,9 @@ pub fn sign(pack: &Path, role: &str, key: &Path, name: Option<&str>) -> Result<S
 /// stress file, output root, data and its quality, scenarios, feasible set, stress shocks against the
 /// data, the custom template folder), so it refuses what `run` refuses with the same exit code; returns
 /// the data-quality report.
-pub fn check(config: &Path, opts: &RunOptions) -> Result<String> {
-    let funds = crate::config::load_all(config, &opts.overrides)?;
-    output_root(config, &funds[0], opts)?;
+pub fn check(config: &Path, overrides: &Overrides) -> Result<String> {
+    let funds = crate::config::load_all(config, overrides)?;
+    output_root(config, &funds[0], overrides)?;
     let mut out = String::new();
     for cfg in funds {
         out.push_str(&check_fund(cfg)?);

@@ -7,8 +7,8 @@
 use clap::{Parser, Subcommand};
 use std::path::PathBuf;
 use tailpack::bench::{BenchOptions, Reference};
+use tailpack::commands::RunOptions;
 use tailpack::config::{Backend, Overrides};
-use tailpack::run::RunOptions;
 
 #[derive(Parser)]
 #[command(
@@ -35,6 +35,46 @@ struct SignArgs {
     /// The signer's name: printed on the sign-off page, or recorded in the finalisation (default: the role).
     #[arg(long)]
     name: Option<String>,
+}
+
+/// What `run` takes.
+#[derive(clap::Args)]
+struct RunArgs {
+    /// The fund's YAML config.
+    config: PathBuf,
+    /// Pack root folder (overrides output.root).
+    #[arg(long)]
+    out: Option<PathBuf>,
+    /// As-of date YYYY-MM-DD (default: the latest month-end in the data).
+    #[arg(long)]
+    as_of: Option<chrono::NaiveDate>,
+    /// LP backend: highs (simplex, default) or clarabel (interior point).
+    #[arg(long)]
+    solver: Option<Backend>,
+    /// No progress output on stderr.
+    #[arg(long)]
+    quiet: bool,
+    /// Seconds to wait for another run's lock on the same archive (then exit 6).
+    #[arg(long, default_value_t = RunOptions::default().lock_timeout.as_secs())]
+    lock_timeout: u64,
+    /// Print the wall time of each stage and the peak memory on stderr at the end.
+    #[arg(long)]
+    timings: bool,
+}
+
+impl RunArgs {
+    fn options(&self) -> RunOptions {
+        RunOptions {
+            overrides: Overrides {
+                as_of: self.as_of,
+                out: self.out.clone(),
+                backend: self.solver,
+            },
+            lock_timeout: std::time::Duration::from_secs(self.lock_timeout),
+            quiet: self.quiet,
+            timings: self.timings,
+        }
+    }
 }
 
 /// What `bench` takes; the defaults are `BenchOptions::default()`'s.
@@ -90,28 +130,7 @@ impl BenchArgs {
 #[derive(Subcommand)]
 enum Command {
     /// Build the pack for one month-end: scenarios, the three CVaR models, results and summary.
-    Run {
-        /// The fund's YAML config.
-        config: PathBuf,
-        /// Pack root folder (overrides output.root).
-        #[arg(long)]
-        out: Option<PathBuf>,
-        /// As-of date YYYY-MM-DD (default: the latest month-end in the data).
-        #[arg(long)]
-        as_of: Option<chrono::NaiveDate>,
-        /// LP backend: highs (simplex, default) or clarabel (interior point).
-        #[arg(long)]
-        solver: Option<Backend>,
-        /// No progress output on stderr.
-        #[arg(long)]
-        quiet: bool,
-        /// Seconds to wait for another run's lock on the same archive (then exit 6).
-        #[arg(long, default_value_t = tailpack::archive::LOCK_TIMEOUT.as_secs())]
-        lock_timeout: u64,
-        /// Print the wall time of each stage and the peak memory on stderr at the end.
-        #[arg(long)]
-        timings: bool,
-    },
+    Run(RunArgs),
     /// Time the three models on synthetic problems (build and solve apart), optionally beside a reference
     /// solver script, and the demo pack end to end. Prints figures; release builds give meaningful ones.
     Bench(BenchArgs),
@@ -169,30 +188,12 @@ fn main() {
     }
     tailpack::report::typeset::this_binary_serves();
     let result = match &cli.command {
-        Command::Run {
-            config,
-            out,
-            as_of,
-            solver,
-            quiet,
-            lock_timeout,
-            timings,
-        } => {
-            let opts = RunOptions {
-                overrides: Overrides {
-                    as_of: *as_of,
-                    out: out.clone(),
-                    backend: *solver,
-                },
-                lock_timeout: std::time::Duration::from_secs(*lock_timeout),
-            };
-            let start = std::time::Instant::now();
-            let r =
-                tailpack::commands::run(config, &opts, &tailpack::commands::Progress::new(*quiet));
-            if *timings {
-                let _ = emit(Stream::Err, &tailpack::commands::timings(start.elapsed()));
+        Command::Run(a) => {
+            let ran = tailpack::commands::run_timed(&a.config, &a.options());
+            if let Some(t) = &ran.timings {
+                let _ = emit(Stream::Err, t);
             }
-            r.map(|r| (r.text, r.code))
+            ran.outcome.map(|r| (r.text, r.code))
         }
         Command::Bench(a) => tailpack::commands::bench(&a.options()).map(|t| (t, 0)),
         Command::Keygen { prefix } => tailpack::commands::keygen(prefix).map(|t| (t, 0)),
@@ -205,11 +206,8 @@ fn main() {
         Command::Verify { pack, rerun } => tailpack::commands::verify(pack, *rerun).map(|t| (t, 0)),
         Command::Check { config, as_of } => tailpack::commands::check(
             config,
-            &RunOptions {
-                overrides: Overrides {
-                    as_of: *as_of,
-                    ..Default::default()
-                },
+            &Overrides {
+                as_of: *as_of,
                 ..Default::default()
             },
         )

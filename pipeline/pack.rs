@@ -1,4 +1,4 @@
-//! Stage 7, pack: writes a run's results into its pack folder — `scenarios.csv`, `results.json`,
+//! Stage 8, pack: writes a run's results into its pack folder — `scenarios.csv`, `results.json`,
 //! `weights.csv`, `pack.pdf` (typeset by the report stage), `summary.txt` — and prints the summary.
 //!
 //! The folder layout is a contract read by outside checkers (README, "The pack folder"). Every output is

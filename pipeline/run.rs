@@ -14,24 +14,6 @@ use crate::models::{
 use crate::risk::{self, RiskProfile};
 use crate::scenarios::{self, ScenarioSet};
 
-/// The command line's settings of a run or check: overrides of the config, applied when it is loaded, and
-/// how long to wait for the archive lock.
-#[derive(Debug, Clone)]
-pub struct RunOptions {
-    pub overrides: config::Overrides,
-    /// How long to wait for another run's archive lock.
-    pub lock_timeout: std::time::Duration,
-}
-
-impl Default for RunOptions {
-    fn default() -> Self {
-        RunOptions {
-            overrides: config::Overrides::default(),
-            lock_timeout: crate::archive::LOCK_TIMEOUT,
-        }
-    }
-}
-
 /// Every scenario return must be finite and within ±[`scenarios::MAX_ABS_RETURN`]; ingest's price-range
 /// check ensures it, and this names the cell should anything get past it: a data error, never a model
 /// diagnosis.
@@ -96,9 +78,9 @@ pub struct Prepared {
     pub shocks: Vec<Shock>,
 }
 
-/// Loads a single-fund config and prepares it ([`prepare_fund`]).
-pub fn prepare(config_path: &std::path::Path, opts: &RunOptions) -> Result<Prepared> {
-    prepare_fund(config::load(config_path, &opts.overrides)?)
+/// Loads a single-fund config with the command line's overrides and prepares it ([`prepare_fund`]).
+pub fn prepare(config_path: &std::path::Path, overrides: &config::Overrides) -> Result<Prepared> {
+    prepare_fund(config::load(config_path, overrides)?)
 }
 
 /// Loads one fund's data and runs every check that needs no LP ([`validate`]): the one step both `run`

@@ -86,7 +86,11 @@ fn stages_import_only_earlier_stages() {
     rust_files(&root, &mut files);
     let mut wrong = Vec::new();
     for f in &files {
-        let rel = f.strip_prefix(&root).unwrap().to_string_lossy().into_owned();
+        let rel = f
+            .strip_prefix(&root)
+            .unwrap()
+            .to_string_lossy()
+            .into_owned();
         let top = rel.split('/').next().unwrap().trim_end_matches(".rs");
         if top == "lib" || top == "main" {
             continue;
@@ -113,7 +117,11 @@ fn stages_import_only_earlier_stages() {
             }
         }
     }
-    assert!(wrong.is_empty(), "imports against the flow:\n{}", wrong.join("\n"));
+    assert!(
+        wrong.is_empty(),
+        "imports against the flow:\n{}",
+        wrong.join("\n")
+    );
 }
 
 /// The check itself reads imports as written: a test that it sees what it must.

@@ -620,8 +620,11 @@ fn a_return_beyond_the_bound_that_reaches_the_models_is_a_data_error() {
     let f = Fixture::new();
     let m = Market::new(3, "2022-01-03", "2024-06-28", 4);
     f.small_fund(&m, &config("analysis:\n  backtest_years: 0\n"));
-    let opts = tailpack::run::RunOptions::default();
-    let prepared = tailpack::run::prepare(&f.path("fund.yaml"), &opts).unwrap();
+    let prepared = tailpack::run::prepare(
+        &f.path("fund.yaml"),
+        &tailpack::config::Overrides::default(),
+    )
+    .unwrap();
     let (cfg, mut data) = (prepared.cfg, prepared.data);
     let k = data.dates.len() - 3;
     let day = data.dates[k];
@@ -649,23 +652,24 @@ fn a_return_beyond_the_bound_that_reaches_the_models_is_a_data_error() {
 #[test]
 fn the_backtest_decides_each_month_as_the_run_solves() {
     use super::common::{Fixture, Market, config};
+    use tailpack::config::Overrides;
     use tailpack::models::{Family, Premises, Targets};
-    use tailpack::run::{self, RunOptions};
+    use tailpack::run;
     let f = Fixture::new();
     let m = Market::new(4, "2020-01-01", "2024-06-28", 23);
     let tail = "limits:\n  turnover_max: 0.8\nmodels:\n  max_return:\n    cvar_cap: { times_min: 1.2 }\n  min_cvar:\n    return_floor: { plus_current: 0.0 }\nanalysis:\n  frontier_points: 2\n  backtest_years: 1\n";
     let path = f.small_fund(&m, &config(tail));
-    let latest = run::solve(run::prepare(&path, &RunOptions::default()).unwrap()).unwrap();
+    let latest = run::solve(run::prepare(&path, &Overrides::default()).unwrap()).unwrap();
     let backtest = latest.analysis.backtest.expect("one year of backtest");
     let first = backtest.rebalances[0];
-    let opts = RunOptions {
-        overrides: tailpack::config::Overrides {
+    let then = run::prepare(
+        &path,
+        &Overrides {
             as_of: Some(first),
             ..Default::default()
         },
-        ..RunOptions::default()
-    };
-    let then = run::prepare(&path, &opts).unwrap();
+    )
+    .unwrap();
     assert_eq!(then.data.as_of, first);
     let c = then.cfg.confidence;
     let p = Problem {

@@ -731,7 +731,7 @@ fn a_pdf_typeset_in_a_child_is_byte_identical_to_one_typeset_in_process() {
     summary(&f, "Custom summary.");
     let ran = f.run(&["run", "fund.yaml", "--quiet", "--out", "by-binary"]);
     let a = pack(&ran).join("pack.pdf");
-    let opts = tailpack::run::RunOptions {
+    let opts = tailpack::commands::RunOptions {
         overrides: tailpack::config::Overrides {
             out: Some(f.path("in-process")),
             ..Default::default()
