@@ -115,7 +115,11 @@ fn check_universe(cfg: &Config, hist: &PriceHistory, meta: &[AssetMeta]) -> Resu
             ),
         ));
     }
-    if let Some(x) = cfg.exclude.iter().find(|x| !hist.assets.contains(x)) {
+    if let Some(x) = cfg
+        .exclude
+        .iter()
+        .find(|x| !hist.assets.contains(x) || reference::is_reference(cfg, meta, x))
+    {
         return Err(Error::config(
             &cfg.path,
             format!("limits.exclude: unknown asset `{x}`"),

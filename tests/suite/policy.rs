@@ -206,7 +206,20 @@ fn active_risk_recomputed_from_the_scenario_files_for_every_portfolio() {
                 "{name} at {c}"
             );
         }
-        assert!((got["active_cvar"].as_f64().unwrap() - ru_cvar(&losses, 0.95)).abs() < tol);
+        let cvar = got["active_cvar"].as_f64().unwrap();
+        assert!((cvar - ru_cvar(&losses, 0.95)).abs() < tol);
+        // The Euler split adds up to the active CVaR (positive homogeneity, Tasche 1999).
+        let split: f64 = got["active_cvar_by_class"]
+            .as_object()
+            .unwrap()
+            .values()
+            .map(|v| v.as_f64().unwrap())
+            .sum::<f64>()
+            + got["active_cvar_benchmark"].as_f64().unwrap();
+        assert!(
+            (split - cvar).abs() < tol,
+            "{name}: split {split} vs {cvar}"
+        );
         // Exposure per line: Σ of the class's weights (AS01, AS03 equity; AS02, AS04 bond).
         let e = &p["portfolios"][name.as_str()]["exposure"];
         assert!(
@@ -334,5 +347,64 @@ fn a_price_column_without_metadata_is_still_refused_unless_the_policy_names_it()
         ran.stderr.contains("no row for asset `REF-EQ`"),
         "{}",
         ran.stderr
+    );
+}
+
+#[test]
+fn a_non_investable_series_cannot_be_excluded_as_an_asset() {
+    let f = Fixture::new();
+    let policy = format!("limits:\n  exclude: [REF-EQ]\n{POLICY}");
+    let cfg = fund_with_reference(&f, &policy, false);
+    let ran = f.run(&["run", cfg.to_str().unwrap(), "--quiet"]);
+    assert_eq!(ran.code, 2, "stderr: {}", ran.stderr);
+    assert!(
+        ran.stderr
+            .contains("limits.exclude: unknown asset `REF-EQ`"),
+        "{}",
+        ran.stderr
+    );
+}
+
+#[test]
+fn tracking_error_uses_the_scenario_probabilities() {
+    // With decaying probabilities (scenarios.half_life), scenarios.csv gains a probability column and the
+    // tracking error is √Σ p_k (a_k − ā)² with those p_k (Grinold & Kahn's standard deviation, weighted).
+    let f = Fixture::new();
+    let cfg = fund_with_reference(&f, POLICY, false);
+    let text = std::fs::read_to_string(&cfg).unwrap();
+    f.write(
+        "fund.yaml",
+        &text.replace("  horizon: 5\n", "  horizon: 5\n  half_life: 60\n"),
+    );
+    let dir = run_pack(&f, &cfg);
+    let r = json(&dir.join("results.json"));
+    let (cols, _, rows) = table(&dir.join("scenarios.csv"));
+    let (_, _, ref_rows) = table(&dir.join("reference-scenarios.csv"));
+    assert_eq!(cols[0], "probability");
+    let x = [0.25; 4];
+    let a: Vec<(f64, f64)> = rows
+        .iter()
+        .zip(&ref_rows)
+        .map(|(row, s)| {
+            let rx: f64 = row[1..].iter().zip(&x).map(|(r, w)| r * w).sum();
+            (row[0], rx - (0.6 * s[0] + 0.4 * row[2]))
+        })
+        .collect();
+    let mean: f64 = a.iter().map(|(p, v)| p * v).sum();
+    let te = a
+        .iter()
+        .map(|(p, v)| p * (v - mean).powi(2))
+        .sum::<f64>()
+        .sqrt();
+    let got = r["policy"]["active"]["current"]["tracking_error"]
+        .as_f64()
+        .unwrap();
+    assert!((got - te).abs() < 1e-9, "{got} vs {te}");
+    let equal = (a.iter().map(|(_, v)| v * v).sum::<f64>() / a.len() as f64
+        - (a.iter().map(|(_, v)| v).sum::<f64>() / a.len() as f64).powi(2))
+    .sqrt();
+    assert!(
+        (te - equal).abs() > 1e-7,
+        "the weighting must matter in this test"
     );
 }
