@@ -350,6 +350,7 @@ fn options(cfg: &Config) -> Value {
         "default_min": cfg.default_min, "default_max": cfg.default_max, "exclude": cfg.exclude, "groups": cfg.groups,
         "turnover_max": cfg.turnover_max, "cvar_cap": cfg.cap, "return_floor": cfg.floor, "analysis": cfg.analysis,
         "stress_loss_limit": cfg.stress_loss_limit, "stress_windows": cfg.stress_windows,
+        "policy": cfg.policy,
     })
 }
 

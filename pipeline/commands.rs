@@ -371,6 +371,7 @@ fn rerun_differences(pack: &Path) -> Result<Vec<String>> {
     for name in [
         "results.json",
         "scenarios.csv",
+        "reference-scenarios.csv",
         "weights.csv",
         "summary.txt",
         "pack.pdf",

@@ -16,6 +16,7 @@ pub mod checks;
 pub mod inputs;
 pub mod keys;
 pub mod load;
+pub mod policy;
 pub mod raw;
 pub mod read;
 pub mod resolve;
@@ -76,6 +77,39 @@ pub enum GroupSelector {
     Assets(Vec<String>),
 }
 
+/// The policy portfolio (`policy`): its lines and whether the models keep to its ranges.
+#[derive(Debug, Clone, serde::Serialize)]
+pub struct Policy {
+    pub lines: Vec<PolicyLine>,
+    /// `policy.ranges_as_limits`: each line's range is a group limit of every model.
+    pub ranges_as_limits: bool,
+}
+
+/// One policy line, its members resolved later against the asset list (as a group's are).
+#[derive(Debug, Clone, serde::Serialize)]
+pub struct PolicyLine {
+    pub name: String,
+    pub selector: GroupSelector,
+    pub target: f64,
+    pub min: f64,
+    pub max: f64,
+    /// The price-file series that measures the line in the policy benchmark.
+    pub benchmark: String,
+}
+
+impl Policy {
+    /// The benchmark series, each once, in the order the lines first name them.
+    pub fn series(&self) -> Vec<&str> {
+        let mut out: Vec<&str> = Vec::new();
+        for l in &self.lines {
+            if !out.contains(&l.benchmark.as_str()) {
+                out.push(&l.benchmark);
+            }
+        }
+        out
+    }
+}
+
 /// A resolved CVaR cap rule.
 #[derive(Debug, Clone, Copy, serde::Serialize)]
 pub enum CapRule {
@@ -116,6 +150,8 @@ pub struct Config {
     pub exclude: Vec<String>,
     pub groups: Vec<GroupSpec>,
     pub turnover_max: Option<f64>,
+    /// The policy portfolio, when configured.
+    pub policy: Option<Policy>,
     pub cap: CapRule,
     pub floor: FloorRule,
     /// `--solver`, else `solver.backend`.

@@ -62,9 +62,11 @@ pub fn write_demo_data(dir: &Path) -> std::io::Result<DemoSummary> {
 #[must_use]
 pub fn render_demo_files() -> Vec<(&'static str, String)> {
     let dates = business_days();
-    let prices = apply_feed_defects(&dates, simulate_prices(&dates));
+    let clean = simulate_prices(&dates);
+    let series = benchmark_series(&clean);
+    let prices = apply_feed_defects(&dates, clean);
     vec![
-        ("prices.csv", render_prices(&dates, &prices)),
+        ("prices.csv", render_prices(&dates, &prices, &series)),
         ("assets.csv", render_assets()),
         ("holdings.csv", render_holdings()),
     ]
@@ -673,6 +675,45 @@ fn simulate_prices(dates: &[NaiveDate]) -> Vec<Vec<f64>> {
 }
 
 // ---------------------------------------------------------------------------
+// Benchmark series: price-file columns without a metadata row (not investable)
+// ---------------------------------------------------------------------------
+
+/// Invented benchmark series of the demo policy: each follows the equally weighted daily return of one
+/// class's assets plus a small tracking noise of its own, so the fund can track but never hold it.
+const BENCHMARKS: [(&str, &str); 4] = [
+    ("REF-EQUITY", "equity"),
+    ("REF-GOVT", "government"),
+    ("REF-CREDIT", "credit"),
+    ("REF-CMDTY", "commodity"),
+];
+
+/// Daily standard deviation of a benchmark series' own noise (about 0.5% a year).
+const BENCHMARK_NOISE: f64 = 0.0003;
+
+/// Prices of the [`BENCHMARKS`] per day (starting at 100), from the clean asset prices and a generator of
+/// their own, so the assets' prices do not depend on them.
+fn benchmark_series(clean: &[Vec<f64>]) -> Vec<Vec<f64>> {
+    let mut rng = Rng::from_seed(DEMO_SEED ^ 0xBE4C_4A7C);
+    let mut level = [100.0; BENCHMARKS.len()];
+    let mut out = vec![level.to_vec()];
+    for day in 1..clean.len() {
+        for (b, (_, class)) in BENCHMARKS.iter().enumerate() {
+            let members: Vec<usize> = (0..ASSETS.len())
+                .filter(|&i| ASSETS[i].kind.class() == *class)
+                .collect();
+            let mean = members
+                .iter()
+                .map(|&i| clean[day][i] / clean[day - 1][i] - 1.0)
+                .sum::<f64>()
+                / members.len() as f64;
+            level[b] *= 1.0 + mean + BENCHMARK_NOISE * rng.normal();
+        }
+        out.push(level.to_vec());
+    }
+    out
+}
+
+// ---------------------------------------------------------------------------
 // Planted data-quality defects: the report should flag them, the run should not stop.
 // ---------------------------------------------------------------------------
 
@@ -733,20 +774,24 @@ fn synthetic_header(what: &str) -> String {
     )
 }
 
-fn render_prices(dates: &[NaiveDate], prices: &[Vec<Option<f64>>]) -> String {
+fn render_prices(dates: &[NaiveDate], prices: &[Vec<Option<f64>>], series: &[Vec<f64>]) -> String {
     let mut out = synthetic_header("not real market prices");
     out.push_str("date");
-    for a in &ASSETS {
-        write!(out, ",{}", csv_out::field(a.code)).expect("write to String");
+    let codes = ASSETS.iter().map(|a| a.code);
+    for code in codes.chain(BENCHMARKS.iter().map(|b| b.0)) {
+        write!(out, ",{}", csv_out::field(code)).expect("write to String");
     }
     out.push('\n');
-    for (date, row) in dates.iter().zip(prices) {
+    for ((date, row), bench) in dates.iter().zip(prices).zip(series) {
         write!(out, "{date}").expect("write to String");
         for price in row {
             match price {
                 Some(p) => write!(out, ",{p:.4}").expect("write to String"),
                 None => out.push(','),
             }
+        }
+        for p in bench {
+            write!(out, ",{p:.4}").expect("write to String");
         }
         out.push('\n');
     }
@@ -915,7 +960,13 @@ mod tests {
     #[test]
     fn calendar_is_every_weekday_up_to_the_last_month_end() {
         let p = parse_prices();
-        assert_eq!(p.codes.len(), 48);
+        // 48 assets, then the 4 benchmark series the asset metadata does not list.
+        assert_eq!(p.codes.len(), 52);
+        let assets = file("assets.csv");
+        for (code, _) in BENCHMARKS {
+            assert!(p.codes.contains(&code.to_string()), "{code}");
+            assert!(!assets.contains(code), "{code} must have no metadata row");
+        }
         assert_eq!(p.dates.first(), Some(&ymd(2014, 1, 1)));
         assert_eq!(p.dates.last(), Some(&ymd(2026, 11, 30)));
         assert!(p.dates.iter().all(|d| is_weekday(*d)));
@@ -924,7 +975,7 @@ mod tests {
                 .windows(2)
                 .all(|w| w[0] < w[1] && (w[1] - w[0]).num_days() <= 3)
         );
-        assert!(p.cells.iter().all(|row| row.len() == 48));
+        assert!(p.cells.iter().all(|row| row.len() == 52));
     }
 
     #[test]

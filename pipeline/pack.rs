@@ -1,4 +1,5 @@
-//! Stage 8, pack: writes a run's results into its pack folder — `scenarios.csv`, `results.json`,
+//! Stage 8, pack: writes a run's results into its pack folder — `scenarios.csv` (and
+//! `reference-scenarios.csv` when the policy names non-investable benchmark series), `results.json`,
 //! `weights.csv`, `pack.pdf` (typeset by the report stage), `summary.txt` — and prints the summary.
 //!
 //! The folder layout is a contract read by outside checkers (README, "The pack folder"). Every output is
@@ -40,6 +41,30 @@ pub fn scenarios_csv(r: &RunResult) -> String {
         out.push('\n');
     }
     out
+}
+
+/// `reference-scenarios.csv`: `scenario,<series…>`, the scenario returns of the policy's non-investable
+/// benchmark series, rows in the order of `scenarios.csv` (same labels, round-trip f64 text); `None` when
+/// the policy names no such series.
+pub fn reference_scenarios_csv(r: &RunResult) -> Option<String> {
+    let s = &r.reference;
+    if s.width() == 0 {
+        return None;
+    }
+    let mut out = String::from("scenario");
+    for a in &s.assets {
+        out.push(',');
+        out.push_str(&csv_out::field(a));
+    }
+    out.push('\n');
+    for k in 0..s.len() {
+        out.push_str(&csv_out::field(&s.label(k)));
+        for v in s.row(k) {
+            let _ = write!(out, ",{v:?}");
+        }
+        out.push('\n');
+    }
+    Some(out)
 }
 
 /// `weights.csv`: one row per asset; columns current (if any) and each model (blank when not optimal);
@@ -176,6 +201,53 @@ pub fn results_json(r: &RunResult, inputs: &[crate::archive::InputFile], pack_id
         "frontier": frontier_json(r),
         "stress": stress_json(r),
         "backtest": backtest_json(r),
+        "policy": policy_json(r),
+    })
+}
+
+/// The policy block: lines, benchmark weights, each portfolio's exposure and breaches, and active risk
+/// against the policy benchmark; `null` without a policy (a `policy.not_configured` check says so).
+fn policy_json(r: &RunResult) -> Value {
+    let Some(p) = &r.policy else {
+        return Value::Null;
+    };
+    let lines: Vec<Value> = p.lines.iter().map(|l| json!({
+        "name": l.name, "members": l.members, "target": l.target, "min": l.min, "max": l.max, "benchmark": l.benchmark,
+    })).collect();
+    let portfolios: Map<String, Value> = p.positions.iter().map(|x| (x.portfolio.clone(), json!({
+        "exposure": x.exposure,
+        "distance": x.exposure.iter().zip(&p.lines).map(|(e, l)| e - l.target).collect::<Vec<_>>(),
+        "breaches": x.breaches,
+    }))).collect();
+    let active: Map<String, Value> = p
+        .positions
+        .iter()
+        .map(|x| (x.portfolio.clone(), active_json(r, &x.active)))
+        .collect();
+    json!({
+        "lines": lines,
+        "benchmark_weights": Value::Object(p.benchmark_weights.iter().map(|(s, w)| (s.clone(), json!(w))).collect()),
+        "ranges_as_limits": p.ranges_as_limits,
+        "horizons_per_year": p.horizons_per_year,
+        "annualisation": "tracking_error_annualised = tracking_error × √horizons_per_year; horizons_per_year = observations a year in the scenario window ((rows − 1) over its calendar years of 365.25 days) ÷ the horizon in observations",
+        "portfolios": portfolios,
+        "active": active,
+    })
+}
+
+/// One portfolio's active risk: horizon figures, active VaR/CVaR per level, Euler contributions to
+/// active CVaR at the model confidence by class and the benchmark's side.
+fn active_json(r: &RunResult, a: &crate::risk::ActiveRisk) -> Value {
+    let classes: Vec<String> = r.data.meta.iter().map(|m| m.class.clone()).collect();
+    let by_class = crate::risk::by_group(&a.component, &classes);
+    json!({
+        "active_return": a.active_return,
+        "tracking_error": a.tracking_error,
+        "tracking_error_annualised": a.tracking_error_annualised,
+        "active_cvar": a.at(r.config.confidence).cvar,
+        "levels": a.tails,
+        "active_cvar_by_class": Value::Object(by_class.into_iter().map(|(k, v)| (k, json!(v))).collect()),
+        "active_cvar_benchmark": a.benchmark_component,
     })
 }
 
@@ -466,6 +538,10 @@ pub fn outputs(r: &RunResult, plan: &crate::archive::Plan) -> Result<Outputs> {
             ("weights.csv", weights_csv(r).into_bytes()),
             ("results.json", json.into_bytes()),
         ];
+        let mut files = files;
+        if let Some(csv) = reference_scenarios_csv(r) {
+            files.push(("reference-scenarios.csv", csv.into_bytes()));
+        }
         (files, results)
     });
     let pdf = crate::report::render_with(r, &results, id, recorded_templates(plan))?;

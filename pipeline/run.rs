@@ -63,6 +63,10 @@ pub struct RunResult {
     pub checks: Vec<Check>,
     pub backend: Backend,
     pub analysis: crate::analysis::Analysis,
+    /// The scenario returns of the policy's non-investable benchmark series (no columns without them).
+    pub reference: ScenarioSet,
+    /// Every portfolio against the policy, when one is configured.
+    pub policy: Option<crate::analysis::policy::PolicyReport>,
 }
 
 /// One fund after everything `run` checks before its first LP: the config (command-line overrides applied
@@ -76,6 +80,10 @@ pub struct Prepared {
     pub feasible: FeasibleSet,
     /// The stress file's shocks (none without a stress file), in file order.
     pub shocks: Vec<Shock>,
+    /// The scenario returns of the policy's non-investable benchmark series, rows as in `scenarios`.
+    pub reference: ScenarioSet,
+    /// The members (asset indices) of every policy line, in line order; empty without a policy.
+    pub policy_members: Vec<Vec<usize>>,
 }
 
 /// Loads a single-fund config with the command line's overrides and prepares it ([`prepare_fund`]).
@@ -94,6 +102,9 @@ pub fn prepare_fund(cfg: Config) -> Result<Prepared> {
 pub fn validate(cfg: Config, data: MarketData) -> Result<Prepared> {
     let scenarios = crate::timings::time("scenarios", || scenarios::build(&data, &cfg.scenarios))?;
     usable_returns(&cfg, &scenarios)?;
+    let reference = scenarios::reference(&data, &cfg.scenarios)?;
+    usable_returns(&cfg, &reference)?;
+    let policy_members = models::policy_lines(&cfg, &data)?;
     let feasible = models::feasible_set(&cfg, &data)?;
     let shocks = match (&cfg.stress_file, &cfg.stress) {
         (Some(path), Some(file)) => stress::defined(path, file, &data)?,
@@ -105,6 +116,8 @@ pub fn validate(cfg: Config, data: MarketData) -> Result<Prepared> {
         scenarios,
         feasible,
         shocks,
+        reference,
+        policy_members,
     })
 }
 
@@ -121,6 +134,8 @@ pub fn solve(prepared: Prepared) -> Result<RunResult> {
         scenarios: set,
         feasible: fs,
         shocks,
+        reference,
+        policy_members,
     } = prepared;
     let models_start = std::time::Instant::now();
     let p = Problem {
@@ -134,9 +149,18 @@ pub fn solve(prepared: Prepared) -> Result<RunResult> {
     crate::timings::add("models", models_start.elapsed());
     let portfolios = named_portfolios(&data, &solved.reports);
     let analysis = crate::analysis::analyse(&cfg, &data, &p, &fs, &portfolios, shocks);
+    let policy = crate::analysis::policy::report(
+        &cfg,
+        &data,
+        &set,
+        &reference,
+        &policy_members,
+        &portfolios,
+    );
     let mut checks = data.quality.findings.clone();
     checks.extend(model_checks(&solved.preconditions, &solved.reports, &cfg));
     checks.extend(crate::analysis::checks(&analysis, &cfg));
+    checks.extend(crate::analysis::policy::checks(policy.as_ref()));
     let backend = cfg.backend;
     Ok(RunResult {
         config: cfg,
@@ -151,6 +175,8 @@ pub fn solve(prepared: Prepared) -> Result<RunResult> {
         checks,
         backend,
         analysis,
+        reference,
+        policy,
     })
 }
 

@@ -199,3 +199,36 @@ pub fn decayed(ages: impl Iterator<Item = f64>, half_life: f64) -> Vec<f64> {
     let total: f64 = raw.iter().sum();
     raw.iter().map(|w| w / total).collect()
 }
+
+/// The scenario returns of the policy's non-investable benchmark series (`data.reference`), cut from the
+/// same windows as [`build`]: row k of both sets is the same window. Without such series the set has no
+/// columns.
+pub fn reference(data: &MarketData, opts: &ScenarioOptions) -> Result<ScenarioSet> {
+    from_prices(&data.reference, &data.dates, &data.reference_prices, opts)
+}
+
+/// Where a series' scenario returns are: a column of the universe's set or of the reference set.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum Column {
+    Universe(usize),
+    Reference(usize),
+}
+
+/// The return of a fixed mix of series in every scenario, b_k = Σ_j w_j · s_kj, each series a column of
+/// the universe's set or of the reference set (same rows).
+pub fn mix_returns(
+    universe: &ScenarioSet,
+    reference: &ScenarioSet,
+    mix: &[(Column, f64)],
+) -> Vec<f64> {
+    (0..universe.len())
+        .map(|k| {
+            mix.iter()
+                .map(|&(c, w)| match c {
+                    Column::Universe(i) => w * universe.row(k)[i],
+                    Column::Reference(j) => w * reference.row(k)[j],
+                })
+                .sum()
+        })
+        .collect()
+}

@@ -5,6 +5,7 @@
 
 pub mod backtest;
 pub mod frontier;
+pub mod policy;
 pub mod stress;
 pub mod vartest;
 

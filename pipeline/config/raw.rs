@@ -15,6 +15,8 @@ pub struct RawConfig {
     pub scenarios: ScenarioOptions,
     pub risk: RawRisk,
     pub limits: RawLimits,
+    /// The policy portfolio: targets, ranges and the benchmark series of each line.
+    pub policy: Option<RawPolicy>,
     pub models: RawModels,
     pub solver: SolverOptions,
     pub output: RawOutput,
@@ -251,6 +253,45 @@ pub struct RawGroup {
     pub assets: Option<Vec<String>>,
     pub min: Option<f64>,
     pub max: Option<f64>,
+}
+
+/// The policy portfolio: the fund's strategic targets with their permitted ranges, and per line the series
+/// that measures it in the policy benchmark.
+#[derive(Debug, Deserialize, Clone)]
+#[serde(deny_unknown_fields, default)]
+pub struct RawPolicy {
+    /// The models keep every portfolio inside the policy ranges (each line's min and max become a group
+    /// limit).
+    pub ranges_as_limits: bool,
+    pub lines: Vec<RawPolicyLine>,
+}
+
+impl Default for RawPolicy {
+    fn default() -> Self {
+        RawPolicy {
+            ranges_as_limits: true,
+            lines: vec![],
+        }
+    }
+}
+
+/// One line of the policy: its members (an asset class, a metadata tag or a list of assets), its target
+/// weight, its permitted range and the price-file series that measures it.
+#[derive(Debug, Deserialize, Default, Clone)]
+#[serde(deny_unknown_fields, default)]
+pub struct RawPolicyLine {
+    pub name: String,
+    /// Members: the assets of this class (`class` column of the asset metadata).
+    pub class: Option<String>,
+    /// Members: `column:value` against the asset metadata, e.g. `region:north`.
+    pub tag: Option<String>,
+    /// Members: an explicit asset list.
+    pub assets: Option<Vec<String>>,
+    pub target: Option<f64>,
+    pub min: Option<f64>,
+    pub max: Option<f64>,
+    /// A price-file column: an asset of the universe, or a series without a metadata row (not investable).
+    pub benchmark: Option<String>,
 }
 
 /// Model-specific settings.

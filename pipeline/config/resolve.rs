@@ -7,7 +7,7 @@ use super::checks::{self, KeyError, PlaceError};
 use super::inputs::{Input, raw_slot};
 use super::raw::{DEFAULT_OUT_ROOT, RawConfig, RawFund};
 use super::stress::{StressFile, load_stress};
-use super::{CapRule, Config, FloorRule, Fund, GroupSpec, Overrides, TypesetBudget};
+use super::{CapRule, Config, FloorRule, Fund, GroupSpec, Overrides, Policy, TypesetBudget};
 use crate::error::{Error, Result};
 use std::collections::BTreeMap;
 use std::path::{Path, PathBuf};
@@ -120,11 +120,12 @@ fn check_sections(cx: &Context, raw: &RawConfig) -> Result<()> {
     checks::check_exclude(&raw.limits.exclude).map_err(|e| cx.place_error(e))
 }
 
-/// The group limits, the CVaR cap and the return floor.
+/// The group limits, the CVaR cap, the return floor and the policy portfolio.
 struct Rules {
     groups: Vec<GroupSpec>,
     cap: CapRule,
     floor: FloorRule,
+    policy: Option<Policy>,
 }
 
 const NEEDS_HOLDINGS: &str = "is relative to the current portfolio, but data.holdings is not set";
@@ -143,7 +144,18 @@ fn rules(cx: &Context, raw: &RawConfig) -> Result<Rules> {
             return Err(cx.bad("models.min_cvar.return_floor.plus_current", NEEDS_HOLDINGS));
         }
     }
-    Ok(Rules { groups, cap, floor })
+    let policy = raw
+        .policy
+        .as_ref()
+        .map(super::policy::resolve_policy)
+        .transpose()
+        .map_err(|e| cx.place_error(e))?;
+    Ok(Rules {
+        groups,
+        cap,
+        floor,
+        policy,
+    })
 }
 
 /// `fund.short_name` made folder-safe, or the fund's name made so.
@@ -230,6 +242,7 @@ fn assemble(
         exclude: raw.limits.exclude,
         groups: rules.groups,
         turnover_max: raw.limits.turnover_max,
+        policy: rules.policy,
         cap: rules.cap,
         floor: rules.floor,
         backend: cx.overrides.backend.unwrap_or(raw.solver.backend),

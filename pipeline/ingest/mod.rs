@@ -8,6 +8,7 @@ pub mod meta;
 pub mod parquet_guard;
 pub mod prices;
 pub mod quality;
+pub mod reference;
 pub mod table;
 
 use crate::config::Config;
@@ -31,6 +32,11 @@ pub struct MarketData {
     pub dates: Vec<NaiveDate>,
     /// Assets kept for the run, in price-file order.
     pub assets: Vec<String>,
+    /// Non-investable benchmark series named by the policy (price-file columns without a metadata row), in
+    /// price-file order: kept apart from `assets`, never in the models, weights or holdings.
+    pub reference: Vec<String>,
+    /// Filled window prices of the `reference` series, `reference_prices[series][row]` on `dates`.
+    pub reference_prices: Vec<Vec<f64>>,
     /// Filled prices of the window, `prices[asset][row]`.
     pub prices: Vec<Vec<f64>>,
     /// Every observation date up to as-of (for the backtest and historical stress windows).
@@ -53,6 +59,7 @@ pub fn load(cfg: &Config) -> Result<MarketData> {
     let mut hist = prices::from_table(&cfg.prices, &table, cfg.layout)?;
     let meta = meta::read_assets(&cfg.assets)?;
     check_universe(cfg, &hist, &meta)?;
+    reference::check_named(cfg, &hist)?;
     let mut findings: Vec<Check> = quality::sort_dates(&mut hist).into_iter().collect();
     let as_of = resolve_as_of(cfg, &hist, cfg.as_of)?;
     cut_after(&mut hist, as_of);
@@ -86,12 +93,12 @@ fn check_universe(cfg: &Config, hist: &PriceHistory, meta: &[AssetMeta]) -> Resu
     if let Some(a) = hist
         .assets
         .iter()
-        .find(|a| !meta.iter().any(|m| &m.asset == *a))
+        .find(|a| !meta.iter().any(|m| &m.asset == *a) && !reference::is_reference(cfg, meta, a))
     {
         return Err(Error::data(
             &cfg.assets,
             format!(
-                "column `asset`: has no row for asset `{}`, which is in the price file {}; every priced asset needs a row with at least its class",
+                "column `asset`: has no row for asset `{}`, which is in the price file {}; every priced asset needs a row with at least its class (a benchmark series the policy names needs none)",
                 truncate(a, 40),
                 cfg.prices.display()
             ),
@@ -108,7 +115,11 @@ fn check_universe(cfg: &Config, hist: &PriceHistory, meta: &[AssetMeta]) -> Resu
             ),
         ));
     }
-    if let Some(x) = cfg.exclude.iter().find(|x| !hist.assets.contains(x)) {
+    if let Some(x) = cfg
+        .exclude
+        .iter()
+        .find(|x| !hist.assets.contains(x) || reference::is_reference(cfg, meta, x))
+    {
         return Err(Error::config(
             &cfg.path,
             format!("limits.exclude: unknown asset `{x}`"),
@@ -227,6 +238,9 @@ struct Kept {
     full: Vec<Vec<f64>>,
     metas: Vec<AssetMeta>,
     per_asset: Vec<quality::AssetQuality>,
+    reference: Vec<String>,
+    reference_prices: Vec<Vec<f64>>,
+    reference_quality: Vec<quality::AssetQuality>,
 }
 
 fn build(
@@ -237,7 +251,8 @@ fn build(
     mut findings: Vec<Check>,
 ) -> Result<MarketData> {
     let start = window_start(cfg, &hist, as_of, &mut findings);
-    let filled = fill(cfg, &hist, &meta, start, &mut findings);
+    let filled = fill(cfg, &hist, &meta, start, &mut findings)?;
+    reference::check_kept(cfg, &hist, &filled.assets, start)?;
     let dates = hist.dates[start..].to_vec();
     findings.extend(window_findings(cfg, &filled, dates.len()));
     let holdings = match &cfg.holdings {
@@ -253,6 +268,7 @@ fn build(
         window_end: dates.last().copied().unwrap_or(as_of),
         observations: dates.len(),
         assets: filled.per_asset,
+        reference_series: filled.reference_quality,
         findings,
     };
     let history = (hist.dates[0], *hist.dates.last().expect("non-empty"));
@@ -261,6 +277,8 @@ fn build(
         history,
         dates,
         assets: filled.assets,
+        reference: filled.reference,
+        reference_prices: filled.reference_prices,
         prices: filled.prices,
         full_dates: hist.dates,
         full_prices: filled.full,
@@ -291,22 +309,33 @@ fn window_start(
     start
 }
 
-/// Applies the fill policy to every asset from row `start` on; an asset the policy drops is left out.
+/// Applies the fill policy to every asset from row `start` on; an asset the policy drops is left out. The
+/// policy's non-investable benchmark series are filled apart ([`reference::fill_series`]).
 fn fill(
     cfg: &Config,
     hist: &PriceHistory,
     meta: &[AssetMeta],
     start: usize,
     findings: &mut Vec<Check>,
-) -> Kept {
+) -> Result<Kept> {
     let mut out = Kept {
         assets: vec![],
         prices: vec![],
         full: vec![],
         metas: vec![],
         per_asset: vec![],
+        reference: vec![],
+        reference_prices: vec![],
+        reference_quality: vec![],
     };
-    for (a, series) in hist.assets.iter().zip(&hist.values) {
+    for (j, (a, series)) in hist.assets.iter().zip(&hist.values).enumerate() {
+        if reference::is_reference(cfg, meta, a) {
+            let (prices, q) = reference::fill_series(cfg, hist, j, start)?;
+            out.reference.push(a.clone());
+            out.reference_prices.push(prices);
+            out.reference_quality.push(q);
+            continue;
+        }
         let f = quality::fill_asset(a, series, start, &cfg.quality);
         findings.extend(f.note);
         if !f.quality.dropped {
@@ -323,12 +352,18 @@ fn fill(
         }
         out.per_asset.push(f.quality);
     }
-    out
+    Ok(out)
 }
 
 /// The findings on the window as a whole: per-series rules, the scenario count, and the history length.
 fn window_findings(cfg: &Config, filled: &Kept, rows: usize) -> Vec<Check> {
-    let mut findings = quality::series_findings(&filled.per_asset, &cfg.quality);
+    let every: Vec<quality::AssetQuality> = filled
+        .per_asset
+        .iter()
+        .chain(&filled.reference_quality)
+        .cloned()
+        .collect();
+    let mut findings = quality::series_findings(&every, &cfg.quality);
     findings.push(window_check(
         &cfg.prices.display().to_string(),
         rows,

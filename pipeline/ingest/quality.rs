@@ -37,6 +37,9 @@ pub struct QualityReport {
     pub window_end: NaiveDate,
     pub observations: usize,
     pub assets: Vec<AssetQuality>,
+    /// The policy's non-investable benchmark series, counted by the same rules (never dropped: a gap the
+    /// fill policy cannot fill is an error).
+    pub reference_series: Vec<AssetQuality>,
     pub findings: Vec<Check>,
 }
 

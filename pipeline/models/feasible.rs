@@ -1,6 +1,8 @@
 //! The feasible set X from the config: per-asset bounds from the asset metadata (or the config's
 //! defaults), exclusions, group limits resolved against the assets (by a metadata tag or by name) and the
-//! turnover limit around the current holdings. Every model family and the backtest share this one X.
+//! turnover limit around the current holdings, and the policy ranges as group limits when
+//! `policy.ranges_as_limits` is on (a portfolio outside the policy is then not a candidate). Every model
+//! family and the backtest share this one X.
 //!
 //! Reads the resolved config and the loaded data (earlier stages); the only place group selectors meet the
 //! asset list, so an unknown asset or tag column is a config error named here (exit 2).
@@ -29,11 +31,24 @@ pub fn feasible_set(cfg: &Config, data: &MarketData) -> Result<FeasibleSet> {
             upper[i] = 0.0;
         }
     }
-    let groups = cfg
+    let mut groups = cfg
         .groups
         .iter()
         .map(|g| resolve_group(cfg, data, g))
         .collect::<Result<Vec<_>>>()?;
+    if let Some(p) = cfg.policy.as_ref().filter(|p| p.ranges_as_limits) {
+        groups.extend(
+            policy_lines(cfg, data)?
+                .into_iter()
+                .zip(&p.lines)
+                .map(|(members, l)| Group {
+                    name: format!("policy: {}", l.name),
+                    members,
+                    min: l.min,
+                    max: l.max,
+                }),
+        );
+    }
     debug_assert_eq!(lower.len(), n);
     Ok(FeasibleSet {
         lower,
@@ -44,17 +59,49 @@ pub fn feasible_set(cfg: &Config, data: &MarketData) -> Result<FeasibleSet> {
     })
 }
 
+/// The members of every policy line (asset indices), in line order; empty without a policy. A line that
+/// selects no asset, an unknown asset or tag column is a config error naming the line.
+pub fn policy_lines(cfg: &Config, data: &MarketData) -> Result<Vec<Vec<usize>>> {
+    let Some(p) = &cfg.policy else {
+        return Ok(vec![]);
+    };
+    p.lines
+        .iter()
+        .map(|l| {
+            members(
+                cfg,
+                data,
+                &format!("policy.lines `{}`", l.name),
+                &l.selector,
+            )
+        })
+        .collect()
+}
+
 fn resolve_group(cfg: &Config, data: &MarketData, g: &config::GroupSpec) -> Result<Group> {
-    let members: Vec<usize> = match &g.selector {
+    let label = format!("limits.groups `{}`", g.name);
+    Ok(Group {
+        name: g.name.clone(),
+        members: members(cfg, data, &label, &g.selector)?,
+        min: g.min,
+        max: g.max,
+    })
+}
+
+/// The assets a selector picks; `label` (`limits.groups `Equity``) starts every message.
+fn members(
+    cfg: &Config,
+    data: &MarketData,
+    label: &str,
+    selector: &GroupSelector,
+) -> Result<Vec<usize>> {
+    let members: Vec<usize> = match selector {
         GroupSelector::Tag { column, value } => {
             let col = column.to_ascii_lowercase();
             if data.meta.first().is_some_and(|m| m.tag(&col).is_none()) {
                 return Err(Error::config(
                     &cfg.path,
-                    format!(
-                        "limits.groups `{}`: the asset metadata has no column `{column}`",
-                        g.name
-                    ),
+                    format!("{label}: the asset metadata has no column `{column}`"),
                 ));
             }
             (0..data.assets.len())
@@ -73,10 +120,7 @@ fn resolve_group(cfg: &Config, data: &MarketData, g: &config::GroupSpec) -> Resu
                     let hint = config::nearest(a, &names)
                         .map(|n| format!("; did you mean `{n}`?"))
                         .unwrap_or_default();
-                    Error::config(
-                        &cfg.path,
-                        format!("limits.groups `{}`: unknown asset `{a}`{hint}", g.name),
-                    )
+                    Error::config(&cfg.path, format!("{label}: unknown asset `{a}`{hint}"))
                 })
             })
             .collect::<Result<_>>()?,
@@ -84,13 +128,8 @@ fn resolve_group(cfg: &Config, data: &MarketData, g: &config::GroupSpec) -> Resu
     if members.is_empty() {
         return Err(Error::config(
             &cfg.path,
-            format!("limits.groups `{}`: selects no asset", g.name),
+            format!("{label}: selects no asset"),
         ));
     }
-    Ok(Group {
-        name: g.name.clone(),
-        members,
-        min: g.min,
-        max: g.max,
-    })
+    Ok(members)
 }

@@ -21,7 +21,7 @@ pub mod lp;
 mod solve;
 
 pub use family::Family;
-pub use feasible::feasible_set;
+pub use feasible::{feasible_set, policy_lines};
 pub use solve::{Auxiliary, FamilyOutcome, Premises, Solution, Targets, solve_all, solve_all_by};
 
 use crate::config::{Backend, CapRule, FloorRule};

@@ -15,6 +15,7 @@ mod models;
 mod parquet_bytes;
 mod parquet_seeds;
 mod pipes;
+mod policy;
 mod properties;
 mod report;
 mod risk;

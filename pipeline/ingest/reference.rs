@@ -1,0 +1,101 @@
+//! Benchmark series of the policy (`policy.lines[].benchmark`): a series is an asset of the universe or a
+//! price-file column without a metadata row, which the fund cannot buy. Those non-investable series are
+//! read with the same data-quality rules as the assets (the file-wide checks run on every column), but
+//! kept apart: they never enter the universe, the models, the scenarios of `scenarios.csv`, the weights
+//! or the holdings. A benchmark series is never dropped: a gap the fill policy cannot fill is an error
+//! naming the series and the date, as is a series the price file does not have.
+
+use super::meta::AssetMeta;
+use super::prices::PriceHistory;
+use super::quality::{self, AssetQuality};
+use crate::config::Config;
+use crate::error::{Error, Result};
+
+/// The policy's benchmark series, each once.
+fn named(cfg: &Config) -> Vec<&str> {
+    cfg.policy.as_ref().map_or(vec![], |p| p.series())
+}
+
+/// The first policy line measured by `series`, for messages.
+fn line_of<'a>(cfg: &'a Config, series: &str) -> &'a str {
+    cfg.policy
+        .iter()
+        .flat_map(|p| &p.lines)
+        .find(|l| l.benchmark == series)
+        .map_or("", |l| l.name.as_str())
+}
+
+/// A price-file column the policy names as a benchmark series and the asset metadata does not list.
+pub fn is_reference(cfg: &Config, meta: &[AssetMeta], column: &str) -> bool {
+    named(cfg).contains(&column) && !meta.iter().any(|m| m.asset == column)
+}
+
+/// Every benchmark series the policy names is a column of the price file.
+pub fn check_named(cfg: &Config, hist: &PriceHistory) -> Result<()> {
+    match named(cfg)
+        .into_iter()
+        .find(|s| !hist.assets.iter().any(|a| a.as_str() == *s))
+    {
+        None => Ok(()),
+        Some(s) => Err(Error::config(
+            &cfg.path,
+            format!(
+                "policy.lines `{}`: benchmark series `{s}` is not in the price file {} (neither an asset nor a series of its own); name a column of the price file",
+                line_of(cfg, s),
+                cfg.prices.display()
+            ),
+        )),
+    }
+}
+
+/// The window prices of benchmark series `a` after the fill policy, with its quality counts; an error
+/// naming the series and date where the policy cannot fill it.
+pub fn fill_series(
+    cfg: &Config,
+    hist: &PriceHistory,
+    a: usize,
+    start: usize,
+) -> Result<(Vec<f64>, AssetQuality)> {
+    let full = quality::fill_forward(&hist.values[a], cfg.quality.max_fill);
+    unfilled(cfg, hist, a, &full, start)?;
+    let f = quality::fill_asset(&hist.assets[a], &hist.values[a], start, &cfg.quality);
+    Ok((full[start..].to_vec(), f.quality))
+}
+
+/// A benchmark series that is an asset of the universe must not have been dropped by the fill policy.
+pub fn check_kept(cfg: &Config, hist: &PriceHistory, kept: &[String], start: usize) -> Result<()> {
+    for s in named(cfg) {
+        if let Some(a) = hist.assets.iter().position(|x| x == s)
+            && !kept.iter().any(|k| k == s)
+        {
+            let full = quality::fill_forward(&hist.values[a], cfg.quality.max_fill);
+            unfilled(cfg, hist, a, &full, start)?;
+        }
+    }
+    Ok(())
+}
+
+/// The first window row of a filled series that is still missing, as an error.
+fn unfilled(cfg: &Config, hist: &PriceHistory, a: usize, full: &[f64], start: usize) -> Result<()> {
+    let Some(r) = (start..full.len()).find(|&r| full[r].is_nan()) else {
+        return Ok(());
+    };
+    let series = &hist.assets[a];
+    let why = if hist.values[a][..=r].iter().all(Option::is_none) {
+        "its history starts later than the scenario window".to_string()
+    } else {
+        format!(
+            "the date lies in a gap of more than quality.max_fill = {} consecutive missing prices",
+            cfg.quality.max_fill
+        )
+    };
+    Err(Error::data(
+        &cfg.prices,
+        format!(
+            "{}: benchmark series `{series}` of policy line `{}` has no price on {} ({why}); a benchmark series is never dropped: supply its prices from the start of the scenario window on, or raise quality.max_fill",
+            hist.cell(a, r),
+            line_of(cfg, series),
+            hist.dates[r],
+        ),
+    ))
+}
