@@ -182,3 +182,89 @@ fn without_holdings_nothing_is_charged_and_a_check_says_so() {
         "{checks:?}"
     );
 }
+
+/// Issue 16: the walk-forward backtest pays each month's rebalance cost, Σ rate × |w − drifted w|, from the
+/// wealth, recomputed here from the prices file, the months' weights and the config's rates: the drifted
+/// weight of asset i after a month is w_i (1 + r_i) / (1 + r_p), r_i = P(next)/P(date) − 1.
+#[test]
+fn the_backtest_charges_each_rebalance_from_the_drifted_weights() {
+    let f = Fixture::new();
+    costed_fund(
+        &f,
+        &format!("  value: {VALUE}\n  base_currency: XTS\n"),
+        true,
+    );
+    let text = std::fs::read_to_string(f.path("fund.yaml")).unwrap();
+    f.write(
+        "fund.yaml",
+        &text.replace("backtest_years: 0", "backtest_years: 1"),
+    );
+    let (r, _) = run(&f);
+    let prices = std::fs::read_to_string(f.path("data/prices.csv")).unwrap();
+    let mut lines = prices.lines();
+    let assets: Vec<String> = lines
+        .next()
+        .unwrap()
+        .split(',')
+        .skip(1)
+        .map(String::from)
+        .collect();
+    let by_date: BTreeMap<String, Vec<f64>> = lines
+        .map(|l| {
+            let mut cells = l.split(',');
+            let d = cells.next().unwrap().to_string();
+            (d, cells.map(|c| c.parse().unwrap()).collect())
+        })
+        .collect();
+    let rates = config_rates();
+    let rate: Vec<f64> = assets.iter().map(|a| rates[a.as_str()]).collect();
+    let mut charged = 0;
+    for (name, t) in r["backtest"]["models"].as_object().unwrap() {
+        let mut held: Vec<f64> = vec![0.4, 0.3, 0.2, 0.1];
+        let (mut wealth, mut total) = (1.0, 0.0);
+        for m in t["months"].as_array().unwrap() {
+            if m["weights"].is_null() {
+                continue;
+            }
+            let w: Vec<f64> = assets
+                .iter()
+                .map(|a| m["weights"][a].as_f64().unwrap())
+                .collect();
+            let cost: f64 = (0..w.len()).map(|i| rate[i] * (w[i] - held[i]).abs()).sum();
+            let got = m["cost"].as_f64().unwrap();
+            assert!(
+                (got - cost).abs() <= 1e-12,
+                "{name} {}: cost {got} vs {cost}",
+                m["date"]
+            );
+            let (p0, p1) = (
+                &by_date[m["date"].as_str().unwrap()],
+                &by_date[m["next"].as_str().unwrap()],
+            );
+            let r_i: Vec<f64> = (0..w.len()).map(|i| p1[i] / p0[i] - 1.0).collect();
+            let rp: f64 = (0..w.len()).map(|i| w[i] * r_i[i]).sum();
+            total += cost * wealth;
+            wealth *= (1.0 - cost) * (1.0 + rp);
+            let net = m["realised_return_net"].as_f64().unwrap();
+            assert!(
+                (net - ((1.0 - cost) * (1.0 + rp) - 1.0)).abs() <= 1e-12,
+                "{name}: net return"
+            );
+            assert!(
+                (m["wealth"].as_f64().unwrap() - wealth).abs() <= 1e-12,
+                "{name}: wealth net of costs"
+            );
+            held = (0..w.len())
+                .map(|i| w[i] * (1.0 + r_i[i]) / (1.0 + rp))
+                .collect();
+            charged += usize::from(cost > 0.0);
+        }
+        let paid = t["total_cost"].as_f64().unwrap();
+        assert!(
+            (paid - total).abs() <= 1e-12,
+            "{name}: total cost {paid} vs {total}"
+        );
+        assert!((t["final_wealth"].as_f64().unwrap() - wealth).abs() <= 1e-12);
+    }
+    assert!(charged > 10, "rebalances pay costs");
+}
