@@ -374,12 +374,28 @@ fn summary_rows(s: &mut String, r: &RunResult) {
         .iter()
         .find(|m| m.family == Family::MaxRatio && m.outcome.status == Status::Optimal)
     {
+        let net = if r.feasible.charges_costs() {
+            " net of transaction costs"
+        } else {
+            ""
+        };
         let _ = writeln!(
             s,
-            "{}: expected return / CVaR = {:.4}",
+            "{}: expected return{net} / CVaR = {:.4}",
             Family::MaxRatio.name(),
             m.outcome.objective.unwrap_or(f64::NAN)
         );
+        if r.feasible.charges_costs() {
+            let _ = writeln!(
+                s,
+                "transaction cost of getting there (basis points of the fund's value): {}",
+                r.models
+                    .iter()
+                    .filter_map(|m| m.cost.map(|c| format!("{} {:.1}", m.name, c * 1e4)))
+                    .collect::<Vec<_>>()
+                    .join(", ")
+            );
+        }
     }
 }
 
