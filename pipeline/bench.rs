@@ -135,6 +135,7 @@ pub fn synthetic(n: usize, s: usize, seed: u64) -> Synthetic {
         groups,
         turnover_max: Some(0.8),
         current: Some(equal.clone()),
+        cost_rates: vec![],
     };
     let confidence = 0.95;
     let cap = risk::cvar_of(&set, &equal, confidence);

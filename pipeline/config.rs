@@ -52,6 +52,46 @@ pub struct Fund {
     pub name: String,
     pub prepared_for: Option<String>,
     pub prepared_by: Option<String>,
+    /// The fund's value and its base currency (`fund.value`, `fund.base_currency`), when given: the
+    /// pack shows money figures (trades, costs) only with them.
+    pub money: Option<Money>,
+}
+
+/// The fund's value in its base currency.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Money {
+    pub value: f64,
+    /// ISO 4217 code: three upper-case letters.
+    pub currency: String,
+}
+
+/// One-way transaction cost rates as fractions of the amount traded (`costs.class_bps`,
+/// `costs.asset_bps` divided by 10,000), resolved per asset by [`CostRates::rate`].
+#[derive(Debug, Clone, Default, PartialEq)]
+pub struct CostRates {
+    /// Per asset class, lower case (as the asset metadata's classes are read).
+    pub class: std::collections::BTreeMap<String, f64>,
+    /// Per asset code.
+    pub asset: std::collections::BTreeMap<String, f64>,
+}
+
+impl CostRates {
+    /// The rate of `asset` of class `class`: its own, else its class's, else 0.
+    pub fn rate(&self, asset: &str, class: &str) -> f64 {
+        self.asset
+            .get(asset)
+            .or_else(|| self.class.get(&class.to_ascii_lowercase()))
+            .copied()
+            .unwrap_or(0.0)
+    }
+
+    /// Whether any rate is positive.
+    pub fn any(&self) -> bool {
+        self.class
+            .values()
+            .chain(self.asset.values())
+            .any(|&r| r > 0.0)
+    }
 }
 
 /// The typesetter's budget for one PDF (`report.typeset_seconds`, `report.typeset_memory_mb`).
@@ -154,6 +194,8 @@ pub struct Config {
     pub policy: Option<Policy>,
     pub cap: CapRule,
     pub floor: FloorRule,
+    /// Transaction cost rates (`costs`); all zero when the section is absent.
+    pub costs: CostRates,
     /// `--solver`, else `solver.backend`.
     pub backend: Backend,
     /// The pack root: `--out`, else `output.root`, else [`DEFAULT_OUT_ROOT`].

@@ -125,6 +125,8 @@ fn model_json(r: &RunResult, m: &ModelReport) -> Value {
         }
         o.insert("objective".into(), json!(m.outcome.objective));
         o.insert("turnover".into(), json!(m.turnover));
+        o.insert("cost".into(), json!(m.cost));
+        o.insert("expected_return_net".into(), json!(m.expected_return_net));
         o.insert("at_upper_bound".into(), json!(m.at_upper));
         o.insert("at_lower_bound".into(), json!(m.at_lower));
         o.insert("max_violation".into(), json!(m.outcome.max_violation));
@@ -166,6 +168,36 @@ fn constraints_json(r: &RunResult) -> Value {
     })
 }
 
+/// `costs`: each asset's one-way cost rate as a fraction of the amount traded.
+fn costs_json(r: &RunResult) -> Value {
+    let rates: Vec<f64> = (0..r.data.assets.len())
+        .map(|i| r.feasible.cost_rates.get(i).copied().unwrap_or(0.0))
+        .collect();
+    json!({"rates": weight_map(&r.data.assets, &rates)})
+}
+
+/// `trades`: per model with a portfolio, the amount bought (positive) or sold (negative) of each asset
+/// traded, in the base currency: value × (weight − current weight). Null without a fund value or current
+/// holdings (no money figures, or nothing to trade from).
+fn trades_json(r: &RunResult) -> Value {
+    let (Some(money), Some(current)) = (&r.config.fund.money, &r.data.holdings) else {
+        return Value::Null;
+    };
+    let trades: Map<String, Value> = r
+        .models
+        .iter()
+        .filter_map(|m| m.outcome.weights.as_ref().map(|w| (m.name, w)))
+        .map(|(name, w)| {
+            let list: Map<String, Value> = crate::models::trades(current, w)
+                .into_iter()
+                .map(|(i, dw)| (r.data.assets[i].clone(), json!(money.value * dw)))
+                .collect();
+            (name.to_string(), Value::Object(list))
+        })
+        .collect();
+    Value::Object(trades)
+}
+
 /// The full `results.json` document.
 pub fn results_json(r: &RunResult, inputs: &[crate::archive::InputFile], pack_id: &str) -> Value {
     let models: Map<String, Value> = r
@@ -179,6 +211,10 @@ pub fn results_json(r: &RunResult, inputs: &[crate::archive::InputFile], pack_id
         "pack_id": pack_id,
         "fund": {"name": r.config.fund.name, "short_name": r.config.short_name,
                  "prepared_for": r.config.fund.prepared_for, "prepared_by": r.config.fund.prepared_by},
+        "fund_value": r.config.fund.money.as_ref().map(|m| m.value),
+        "base_currency": r.config.fund.money.as_ref().map(|m| &m.currency),
+        "costs": costs_json(r),
+        "trades": trades_json(r),
         "as_of": r.data.as_of.to_string(),
         "confidence": r.config.confidence,
         "tail_fraction": 1.0 - r.config.confidence,
@@ -295,12 +331,13 @@ fn backtest_json(r: &RunResult) -> Value {
     let models: Map<String, Value> = b.tracks.iter().map(|t| (t.model.to_string(), json!({
         "observations": t.observations, "exceptions": t.exceptions, "expected_exceptions": t.expected_exceptions,
         "kupiec": t.kupiec, "christoffersen": t.christoffersen, "mean_prediction_error": t.mean_prediction_error,
-        "final_wealth": t.final_wealth, "daily_var_99": t.daily,
+        "final_wealth": t.final_wealth, "daily_var_99": t.daily, "total_cost": t.total_cost,
         "months": t.rows.iter().map(|row| json!({
             "date": row.date.to_string(), "next": row.next.to_string(), "status": row.status,
             "predicted_return": row.predicted_return, "realised_return": row.realised_return,
             "predicted_minus_realised": row.predicted_return.zip(row.realised_return).map(|(p, q)| p - q),
             "predicted_var": row.predicted_var, "predicted_cvar": row.predicted_cvar, "turnover": row.turnover,
+            "cost": row.cost, "realised_return_net": row.realised_return_net,
             "wealth": row.wealth, "exception": row.exception,
             "weights": row.weights.as_ref().map(|w| weight_map(&r.data.assets, w)),
         })).collect::<Vec<_>>(),
@@ -409,12 +446,28 @@ fn summary_rows(s: &mut String, r: &RunResult) {
         .iter()
         .find(|m| m.family == Family::MaxRatio && m.outcome.status == Status::Optimal)
     {
+        let net = if r.feasible.charges_costs() {
+            " net of transaction costs"
+        } else {
+            ""
+        };
         let _ = writeln!(
             s,
-            "{}: expected return / CVaR = {:.4}",
+            "{}: expected return{net} / CVaR = {:.4}",
             Family::MaxRatio.name(),
             m.outcome.objective.unwrap_or(f64::NAN)
         );
+        if r.feasible.charges_costs() {
+            let _ = writeln!(
+                s,
+                "transaction cost of getting there (basis points of the fund's value): {}",
+                r.models
+                    .iter()
+                    .filter_map(|m| m.cost.map(|c| format!("{} {:.1}", m.name, c * 1e4)))
+                    .collect::<Vec<_>>()
+                    .join(", ")
+            );
+        }
     }
 }
 

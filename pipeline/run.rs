@@ -43,6 +43,11 @@ pub struct ModelReport {
     pub outcome: Outcome,
     pub profile: Option<RiskProfile>,
     pub turnover: Option<f64>,
+    /// The one-way cost of moving from the current holdings to the portfolio, as a fraction of the fund's
+    /// value (0 without holdings or cost rates; `None` without a portfolio).
+    pub cost: Option<f64>,
+    /// Expected return net of that cost (`None` without a portfolio).
+    pub expected_return_net: Option<f64>,
     /// Assets at their upper / lower bound (lower only when that bound is positive).
     pub at_upper: Vec<String>,
     pub at_lower: Vec<String>,
@@ -243,9 +248,17 @@ fn report(
         .weights
         .as_ref()
         .map(|w| risk::profile(p.set, w, &cfg.levels, cfg.confidence));
-    if let (Some(pr), Some(lp)) = (&profile, outcome.objective) {
+    let cost = outcome
+        .weights
+        .as_ref()
+        .map(|w| models::cost(p.feasible, w));
+    let expected_return_net = profile
+        .as_ref()
+        .zip(cost)
+        .map(|(pr, c)| pr.expected_return - c);
+    if let (Some(pr), Some(lp), Some(net)) = (&profile, outcome.objective, expected_return_net) {
         let cvar = pr.at(cfg.confidence).cvar;
-        outcome.objective = Some(family.reported_objective(lp, pr.expected_return, cvar));
+        outcome.objective = Some(family.reported_objective(lp, net, cvar));
     }
     let turnover = match (&outcome.weights, &data.holdings) {
         (Some(w), Some(h)) => Some(models::turnover(w, h)),
@@ -267,6 +280,8 @@ fn report(
         outcome,
         profile,
         turnover,
+        cost,
+        expected_return_net,
         at_upper,
         at_lower,
     }
@@ -274,6 +289,7 @@ fn report(
 
 fn model_checks(pre: &Preconditions, reports: &[ModelReport], cfg: &Config) -> Vec<Check> {
     let mut out = Vec::from(pre.checks(cfg.confidence));
+    out.extend(money_checks(cfg));
     for r in reports {
         let o = &r.outcome;
         let lvl = match o.status {
@@ -308,6 +324,32 @@ fn model_checks(pre: &Preconditions, reports: &[ModelReport], cfg: &Config) -> V
             models::FEASIBILITY_TOLERANCE
         ),
     ));
+    out
+}
+
+/// What the pack says about money and costs: the note that money figures are not shown without
+/// `fund.value`, and how transaction costs entered the models (or why they did not).
+fn money_checks(cfg: &Config) -> Vec<Check> {
+    let mut out = Vec::new();
+    if cfg.fund.money.is_none() {
+        out.push(Check::pass(
+            "fund.value",
+            "no fund value configured (fund.value, fund.base_currency): weights and costs are shown as fractions of the fund's value; trade amounts in money are not shown",
+        ));
+    }
+    if cfg.costs.any() {
+        out.push(if cfg.holdings.is_none() {
+            Check::warn(
+                "costs.no_holdings",
+                "cost rates are configured but there are no current holdings (data.holdings): costs are charged on trades from the current holdings, so none is charged and the models' returns are gross",
+            )
+        } else {
+            Check::pass(
+                "costs.net",
+                "the models work net of one-way transaction costs: expected return minus Σ rate × |weight − current weight| (costs section)",
+            )
+        });
+    }
     out
 }
 

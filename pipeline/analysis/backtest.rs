@@ -6,6 +6,9 @@
 //! the next month-end, where its realised return is measured. The turnover limit and the rules "times current" / "plus current" refer to the fund's
 //! current holdings as the reference portfolio at every date, so months are independent and are solved in
 //! parallel; the reported turnover is the trading actually implied between consecutive months' weights.
+//! Each rebalance pays its transaction cost, Σ rate_i·|w_i − drifted w_i| of the wealth at that date
+//! (the live run's cost rates; the first month is measured from the reference holdings, and costs
+//! nothing without them), so cumulative wealth is net of costs.
 //! The predicted VaR of each month is then backtested against the realised losses (see `vartest`).
 
 use super::vartest::{self, LrTest, Zone};
@@ -36,6 +39,12 @@ pub struct TrackRow {
     pub realised_return: Option<f64>,
     /// Σ|w_m − drifted w_{m−1}|; the first month is measured from the reference holdings.
     pub turnover: Option<f64>,
+    /// The rebalance's transaction cost Σ rate_i·|w_m,i − drifted w_{m−1},i|, as a fraction of the
+    /// wealth at that date (None where turnover is).
+    pub cost: Option<f64>,
+    /// The month's return after paying the rebalance's cost: (1 − cost)(1 + realised) − 1.
+    pub realised_return_net: Option<f64>,
+    /// Cumulative wealth net of costs (1 at the start).
     pub wealth: f64,
     pub exception: Option<bool>,
 }
@@ -64,6 +73,9 @@ pub struct Track {
     /// Mean of predicted − realised return over the months with both.
     pub mean_prediction_error: Option<f64>,
     pub final_wealth: f64,
+    /// Transaction costs paid over the backtest, as a fraction of the starting wealth (each rebalance's
+    /// cost times the wealth it was paid from).
+    pub total_cost: f64,
     pub daily: Option<DailyCheck>,
 }
 
@@ -120,7 +132,7 @@ pub fn run(cfg: &Config, data: &MarketData, live: &FeasibleSet) -> Option<Backte
             decisions: decide(cfg, data, live, m),
         })
         .collect();
-    Some(assemble(cfg, data, &months))
+    Some(assemble(cfg, data, live, &months))
 }
 
 /// Solves every family with data up to row `m` only, as the run solves them ([`models::solve_all`]).
@@ -218,7 +230,7 @@ fn realised(data: &MarketData, w: &[f64], from: usize, to: usize) -> (f64, Vec<f
     (models::dot(w, &r), r)
 }
 
-fn assemble(cfg: &Config, data: &MarketData, months: &[Month]) -> Backtest {
+fn assemble(cfg: &Config, data: &MarketData, live: &FeasibleSet, months: &[Month]) -> Backtest {
     let skipped = months
         .iter()
         .filter_map(|m| {
@@ -229,7 +241,7 @@ fn assemble(cfg: &Config, data: &MarketData, months: &[Month]) -> Backtest {
         })
         .collect();
     let tracks = (0..Family::ALL.len())
-        .map(|k| track(cfg, data, months, k))
+        .map(|k| track(cfg, data, months, k, &live.cost_rates))
         .collect();
     Backtest {
         confidence: cfg.confidence,
@@ -239,9 +251,10 @@ fn assemble(cfg: &Config, data: &MarketData, months: &[Month]) -> Backtest {
     }
 }
 
-fn track(cfg: &Config, data: &MarketData, months: &[Month], k: usize) -> Track {
+fn track(cfg: &Config, data: &MarketData, months: &[Month], k: usize, rates: &[f64]) -> Track {
     let mut rows = Vec::with_capacity(months.len());
     let (mut wealth, mut held): (f64, Option<Vec<f64>>) = (1.0, data.holdings.clone());
+    let mut total_cost = 0.0;
     for m in months {
         let d = m.decisions.as_ref().ok().map(|v| &v[k]);
         let (date, next) = (data.full_dates[m.row], data.full_dates[m.next]);
@@ -249,6 +262,10 @@ fn track(cfg: &Config, data: &MarketData, months: &[Month], k: usize) -> Track {
         let weights = d.and_then(|d| d.weights.clone());
         let turnover = match (&weights, &held) {
             (Some(w), Some(h)) => Some(models::turnover(w, h)),
+            _ => None,
+        };
+        let cost = match (&weights, &held) {
+            (Some(w), Some(h)) => Some(rebalance_cost(rates, w, h)),
             _ => None,
         };
         let (realised_return, drifted) = match &weights {
@@ -263,6 +280,10 @@ fn track(cfg: &Config, data: &MarketData, months: &[Month], k: usize) -> Track {
             }
             None => (None, None),
         };
+        let paid = cost.unwrap_or(0.0);
+        total_cost += paid * wealth;
+        let realised_return_net = realised_return.map(|r| (1.0 - paid) * (1.0 + r) - 1.0);
+        wealth *= 1.0 - paid;
         wealth *= 1.0 + realised_return.unwrap_or(0.0);
         if drifted.is_some() {
             held = drifted;
@@ -282,11 +303,24 @@ fn track(cfg: &Config, data: &MarketData, months: &[Month], k: usize) -> Track {
             predicted_cvar: tail.map(|t| t.2),
             realised_return,
             turnover,
+            cost,
+            realised_return_net,
             wealth,
             exception,
         });
     }
-    summarise(cfg, data, Family::ALL[k].name(), rows)
+    let mut t = summarise(cfg, data, Family::ALL[k].name(), rows);
+    t.total_cost = total_cost;
+    t
+}
+
+/// Σ rate_i·|w_i − held_i|: the one-way cost of trading from `held` to `w` (rates empty: free).
+fn rebalance_cost(rates: &[f64], w: &[f64], held: &[f64]) -> f64 {
+    rates
+        .iter()
+        .zip(w.iter().zip(held))
+        .map(|(r, (a, b))| r * (a - b).abs())
+        .sum()
 }
 
 fn summarise(cfg: &Config, data: &MarketData, model: &'static str, rows: Vec<TrackRow>) -> Track {
@@ -312,6 +346,7 @@ fn summarise(cfg: &Config, data: &MarketData, model: &'static str, rows: Vec<Tra
         mean_prediction_error: (!gaps.is_empty())
             .then(|| gaps.iter().sum::<f64>() / gaps.len() as f64),
         final_wealth: rows.last().map_or(1.0, |r| r.wealth),
+        total_cost: 0.0,
         rows,
         daily,
     }

@@ -3,11 +3,12 @@
 //! turns that into a message with the key's line.
 
 use super::raw::{
-    AnalysisOptions, QualityOptions, RawCap, RawFloor, RawGroup, RawLimits, RawReport, RawRisk,
-    RawSignoff, RawStress, ScenarioOptions, TYPESET_MEMORY_MB, TYPESET_SECONDS,
+    AnalysisOptions, MAX_COST_BPS, QualityOptions, RawCap, RawCosts, RawFloor, RawFund, RawGroup,
+    RawLimits, RawReport, RawRisk, RawSignoff, RawStress, ScenarioOptions, TYPESET_MEMORY_MB,
+    TYPESET_SECONDS,
 };
 use super::stress::check_tag;
-use super::{CapRule, FloorRule, GroupSelector, GroupSpec};
+use super::{CapRule, CostRates, FloorRule, GroupSelector, GroupSpec, Money};
 
 /// A fixed key and what is wrong with its value.
 pub(super) type KeyError = (&'static str, String);
@@ -281,4 +282,67 @@ pub(super) fn check_exclude(exclude: &[String]) -> Result<(), PlaceError> {
         )),
         None => Ok(()),
     }
+}
+
+/// `fund.value` and `fund.base_currency`: both or neither; a positive finite value and an ISO 4217 code
+/// (three upper-case letters; the code is not looked up, so a code reserved for testing, such as XTS,
+/// serves a demo).
+pub(super) fn resolve_money(f: &RawFund) -> Result<Option<Money>, KeyError> {
+    match (f.value, &f.base_currency) {
+        (None, None) => Ok(None),
+        (Some(_), None) => Err((
+            "fund.base_currency",
+            "is required with fund.value (the currency of the value: an ISO 4217 code such as CHF)"
+                .into(),
+        )),
+        (None, Some(_)) => Err((
+            "fund.value",
+            "is required with fund.base_currency (the fund's value in that currency)".into(),
+        )),
+        (Some(v), Some(_)) if !(v.is_finite() && v > 0.0) => Err((
+            "fund.value",
+            format!("must be a positive amount in the base currency, got {v}"),
+        )),
+        (Some(_), Some(c)) if !(c.len() == 3 && c.chars().all(|ch| ch.is_ascii_uppercase())) => {
+            Err((
+                "fund.base_currency",
+                format!(
+                    "must be an ISO 4217 code of three upper-case letters (e.g. CHF), got `{c}`"
+                ),
+            ))
+        }
+        (Some(value), Some(c)) => Ok(Some(Money {
+            value,
+            currency: c.clone(),
+        })),
+    }
+}
+
+/// `costs.class_bps` and `costs.asset_bps`: every rate in [0, [`MAX_COST_BPS`]] basis points, no blank
+/// name; returned as fractions, classes in lower case. Whether the names exist is checked against the
+/// data (`models::feasible_set`).
+pub(super) fn resolve_costs(c: &RawCosts) -> Result<CostRates, PlaceError> {
+    let table = |key: &str, raw: &std::collections::BTreeMap<String, f64>, lower: bool| {
+        raw.iter()
+            .map(|(name, &bps)| {
+                if name.trim().is_empty() {
+                    return Err((format!("costs.{key}"), "has a blank name; give a code".into()));
+                }
+                if !(bps.is_finite() && (0.0..=MAX_COST_BPS).contains(&bps)) {
+                    return Err((
+                        format!("costs.{key}.{name}"),
+                        format!(
+                            "must be a one-way rate in basis points between 0 and {MAX_COST_BPS} (10 = 0.10%), got {bps}"
+                        ),
+                    ));
+                }
+                let name = if lower { name.to_ascii_lowercase() } else { name.clone() };
+                Ok((name, bps / 10_000.0))
+            })
+            .collect::<Result<std::collections::BTreeMap<_, _>, PlaceError>>()
+    };
+    Ok(CostRates {
+        class: table("class_bps", &c.class_bps, true)?,
+        asset: table("asset_bps", &c.asset_bps, false)?,
+    })
 }

@@ -3,6 +3,7 @@
 //! is [`super::resolve`]'s work, and only the resolved [`super::Config`] leaves the config module.
 
 use serde::Deserialize;
+use std::collections::BTreeMap;
 use std::path::PathBuf;
 
 /// The config file as written. Every struct rejects unknown keys.
@@ -18,6 +19,7 @@ pub struct RawConfig {
     /// The policy portfolio: targets, ranges and the benchmark series of each line.
     pub policy: Option<RawPolicy>,
     pub models: RawModels,
+    pub costs: RawCosts,
     pub solver: SolverOptions,
     pub output: RawOutput,
     pub analysis: AnalysisOptions,
@@ -109,6 +111,10 @@ pub struct RawFund {
     pub short_name: Option<String>,
     pub prepared_for: Option<String>,
     pub prepared_by: Option<String>,
+    /// The fund's value in its base currency; money figures (trades, costs) need it.
+    pub value: Option<f64>,
+    /// The base currency's ISO 4217 code (three upper-case letters); given together with `value`.
+    pub base_currency: Option<String>,
 }
 
 /// Where the input files are.
@@ -301,6 +307,20 @@ pub struct RawModels {
     pub max_return: RawMaxReturn,
     pub min_cvar: RawMinCvar,
 }
+
+/// Transaction cost rates: one way (a purchase or a sale each pays it), in basis points of the amount
+/// traded. An asset's own rate beats its class's; an asset named in neither trades free.
+#[derive(Debug, Deserialize, Default, Clone)]
+#[serde(deny_unknown_fields, default)]
+pub struct RawCosts {
+    /// Rate per asset class (the asset metadata's `class`), e.g. `equity: 10`.
+    pub class_bps: BTreeMap<String, f64>,
+    /// Rate per asset code, e.g. `EQEM-01: 25`.
+    pub asset_bps: BTreeMap<String, f64>,
+}
+
+/// Highest one-way cost rate accepted, in basis points (10%): a larger figure is a unit mistake.
+pub const MAX_COST_BPS: f64 = 1000.0;
 
 /// Settings of the max-return model.
 #[derive(Debug, Deserialize, Clone)]

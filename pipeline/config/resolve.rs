@@ -7,7 +7,9 @@ use super::checks::{self, KeyError, PlaceError};
 use super::inputs::{Input, raw_slot};
 use super::raw::{DEFAULT_OUT_ROOT, RawConfig, RawFund};
 use super::stress::{StressFile, load_stress};
-use super::{CapRule, Config, FloorRule, Fund, GroupSpec, Overrides, Policy, TypesetBudget};
+use super::{
+    CapRule, Config, CostRates, FloorRule, Fund, GroupSpec, Money, Overrides, Policy, TypesetBudget,
+};
 use crate::error::{Error, Result};
 use std::collections::BTreeMap;
 use std::path::{Path, PathBuf};
@@ -88,6 +90,8 @@ pub(super) fn resolve_at(cx: &Context, mut raw: RawConfig) -> Result<Config> {
     check_sections(cx, &raw)?;
     let rules = rules(cx, &raw)?;
     let short_name = short_name(cx, &raw.fund)?;
+    let money = checks::resolve_money(&raw.fund).map_err(|e| cx.key_error(e))?;
+    let costs = checks::resolve_costs(&raw.costs).map_err(|e| cx.place_error(e))?;
     checks::check_analysis(&raw.analysis, &raw.stress).map_err(|e| cx.key_error(e))?;
     checks::check_signoff(&raw.signoff).map_err(|e| cx.place_error(e))?;
     checks::check_report(&raw.report).map_err(|e| cx.key_error(e))?;
@@ -96,7 +100,16 @@ pub(super) fn resolve_at(cx: &Context, mut raw: RawConfig) -> Result<Config> {
         Some(p) => Some((cx.stress)(p)?),
         None => None,
     };
-    Ok(assemble(cx, raw, short_name, rules, inputs, stress))
+    let money_and_costs = (money, costs);
+    Ok(assemble(
+        cx,
+        raw,
+        short_name,
+        rules,
+        inputs,
+        stress,
+        money_and_costs,
+    ))
 }
 
 /// Every required input is named.
@@ -213,6 +226,7 @@ fn assemble(
     rules: Rules,
     mut inputs: BTreeMap<Input, PathBuf>,
     stress: Option<StressFile>,
+    (money, costs): (Option<Money>, CostRates),
 ) -> Config {
     let mut input = |k: Input| inputs.remove(&k);
     let out_root = match (&cx.overrides.out, &raw.output.root) {
@@ -226,6 +240,7 @@ fn assemble(
             name: raw.fund.name,
             prepared_for: raw.fund.prepared_for,
             prepared_by: raw.fund.prepared_by,
+            money,
         },
         short_name,
         as_of: cx.overrides.as_of,
@@ -245,6 +260,7 @@ fn assemble(
         policy: rules.policy,
         cap: rules.cap,
         floor: rules.floor,
+        costs,
         backend: cx.overrides.backend.unwrap_or(raw.solver.backend),
         out_root,
         analysis: raw.analysis,

@@ -44,10 +44,11 @@ impl Family {
         }
     }
 
-    /// The objective reported for an optimal portfolio with `expected_return` and `cvar` (at the model
-    /// confidence), given its LP's objective `lp`: the LP's own, except for the ratio family, whose
-    /// Charnes–Cooper objective μ·z is reported as the ratio μ·x / CVaR(x) of the portfolio itself —
-    /// equal at the optimum, and computed from the same figures as the rest of the pack.
+    /// The objective reported for an optimal portfolio with `expected_return` (net of transaction costs,
+    /// which is μ·x when nothing is charged) and `cvar` (at the model confidence), given its LP's
+    /// objective `lp`: the LP's own, except for the ratio family, whose Charnes–Cooper objective is
+    /// reported as the ratio (net return) / CVaR(x) of the portfolio itself — equal at the optimum, and
+    /// computed from the same figures as the rest of the pack.
     pub fn reported_objective(self, lp: f64, expected_return: f64, cvar: f64) -> f64 {
         match self {
             Family::MaxReturn | Family::MinCvar => lp,

@@ -2,7 +2,8 @@
 //! defaults), exclusions, group limits resolved against the assets (by a metadata tag or by name) and the
 //! turnover limit around the current holdings, and the policy ranges as group limits when
 //! `policy.ranges_as_limits` is on (a portfolio outside the policy is then not a candidate). Every model
-//! family and the backtest share this one X.
+//! family and the backtest share this one X. The transaction cost rate of each asset travels with it (not
+//! a constraint: the models' returns are net of the cost of moving from the current holdings).
 //!
 //! Reads the resolved config and the loaded data (earlier stages); the only place group selectors meet the
 //! asset list, so an unknown asset or tag column is a config error named here (exit 2).
@@ -56,6 +57,7 @@ pub fn feasible_set(cfg: &Config, data: &MarketData) -> Result<FeasibleSet> {
         groups,
         turnover_max: cfg.turnover_max,
         current: data.holdings.clone(),
+        cost_rates: cost_rates(cfg, data)?,
     })
 }
 
@@ -76,6 +78,47 @@ pub fn policy_lines(cfg: &Config, data: &MarketData) -> Result<Vec<Vec<usize>>> 
             )
         })
         .collect()
+}
+
+/// Each asset's one-way cost rate ([`config::CostRates::rate`]); a class or asset the config names but
+/// the data does not have is a config error (a misspelt name would otherwise trade free).
+fn cost_rates(cfg: &Config, data: &MarketData) -> Result<Vec<f64>> {
+    let names: Vec<&str> = data.assets.iter().map(String::as_str).collect();
+    if let Some(a) = cfg
+        .costs
+        .asset
+        .keys()
+        .find(|a| !names.contains(&a.as_str()))
+    {
+        let hint = config::nearest(a, &names)
+            .map(|n| format!("; did you mean `{n}`?"))
+            .unwrap_or_default();
+        return Err(Error::config(
+            &cfg.path,
+            format!("costs.asset_bps: unknown asset `{a}`{hint}"),
+        ));
+    }
+    let classes: Vec<&str> = data.meta.iter().map(|m| m.class.as_str()).collect();
+    if let Some(c) = cfg
+        .costs
+        .class
+        .keys()
+        .find(|c| !classes.contains(&c.as_str()))
+    {
+        let hint = config::nearest(c, &classes)
+            .map(|n| format!("; did you mean `{n}`?"))
+            .unwrap_or_default();
+        return Err(Error::config(
+            &cfg.path,
+            format!("costs.class_bps: no asset has class `{c}`{hint}"),
+        ));
+    }
+    Ok(data
+        .assets
+        .iter()
+        .zip(&data.meta)
+        .map(|(a, m)| cfg.costs.rate(a, &m.class))
+        .collect())
 }
 
 fn resolve_group(cfg: &Config, data: &MarketData, g: &config::GroupSpec) -> Result<Group> {

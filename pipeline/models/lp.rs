@@ -117,6 +117,9 @@ pub struct Lp {
     row_val: Vec<f64>,
     pub weights: Vec<Col>,
     pub scale: Option<Col>,
+    /// The turnover columns d_i ≥ |x_i − current_i| (scaled: |z_i − current_i·t|), present with current
+    /// holdings and a turnover limit or a positive cost rate; empty otherwise.
+    pub turnover: Vec<Col>,
     /// Further columns whose values the caller wants back (in `Solved::extra`).
     tracked: Vec<Col>,
 }
@@ -136,6 +139,7 @@ impl Lp {
             row_val: Vec::new(),
             weights: Vec::new(),
             scale: None,
+            turnover: Vec::new(),
             tracked: Vec::new(),
         };
         let n = fs.lower.len();
@@ -225,13 +229,15 @@ impl Lp {
                 self.x_row(total, lo, hi);
             }
         }
-        if let (Some(tau), Some(cur)) = (fs.turnover_max, &fs.current) {
-            self.turnover(tau, cur);
+        if let Some(cur) = &fs.current
+            && (fs.turnover_max.is_some() || fs.charges_costs())
+        {
+            self.turnover(fs.turnover_max, cur);
         }
     }
 
-    /// d_i ≥ |x_i − current_i| (scaled: |z_i − current_i·t|), Σ d_i ≤ τ.
-    fn turnover(&mut self, tau: f64, current: &[f64]) {
+    /// d_i ≥ |x_i − current_i| (scaled: |z_i − current_i·t|), and Σ d_i ≤ τ with a turnover limit τ.
+    fn turnover(&mut self, tau: Option<f64>, current: &[f64]) {
         let d: Vec<Col> = (0..current.len()).map(|_| self.column(0.0, INF)).collect();
         for (i, &di) in d.iter().enumerate() {
             let w = self.weights[i];
@@ -239,13 +245,31 @@ impl Lp {
             self.x_row(Lin(vec![(di, 1.0), (w, -1.0)]), -current[i], INF);
             self.x_row(Lin(vec![(di, 1.0), (w, 1.0)]), current[i], INF);
         }
-        let total = Lin(d.iter().map(|&c| (c, 1.0)).collect());
-        self.x_row(total, -INF, tau);
+        if let Some(tau) = tau {
+            let total = Lin(d.iter().map(|&c| (c, 1.0)).collect());
+            self.x_row(total, -INF, tau);
+        }
+        self.turnover = d;
     }
 
     /// μ·x as a function of the portfolio columns.
     pub fn expected_return(&self, mu: &[f64]) -> Lin {
         Lin(self.weights.iter().zip(mu).map(|(&w, &m)| (w, m)).collect())
+    }
+
+    /// μ·x − Σ rate_i·d_i: the expected return net of the one-way cost of moving from the current
+    /// holdings, linear through the turnover columns (with those columns absent, or every rate zero, it is
+    /// μ·x itself). Wherever it is maximised or bounded below, each d_i with a positive rate settles at
+    /// |x_i − current_i|. In the Charnes–Cooper LP the columns are z and t·d, so the same function is the
+    /// scaled net return: homogeneous, it needs no scaling of its own.
+    pub fn net_return(&self, mu: &[f64], rates: &[f64]) -> Lin {
+        let mut f = self.expected_return(mu);
+        for (&d, &r) in self.turnover.iter().zip(rates) {
+            if r > 0.0 {
+                f.add(d, -r);
+            }
+        }
+        f
     }
 
     /// Adds ℓ and u_k with the rows u_k + r_k·x + ℓ ≥ 0, and returns ℓ + 1/(1−c) Σ p_k u_k

@@ -8,6 +8,14 @@
 //!   Valid only when CVaR > 0 on all of X and some x ∈ X has μ·x > 0 (then the optimal ratio is positive
 //!   and the denominator row binds); both are checked by auxiliary LPs every run.
 //!
+//! With transaction cost rates and current holdings h, "return" is net of the cost of getting there:
+//! μ·x − Σ_i rate_i·|x_i − h_i| ([`net_return`]), linear through the turnover columns d_i ≥ |x_i − h_i|
+//! ([`lp::Lp::net_return`]); max_return maximises it, min_cvar's floor bounds it and max_ratio maximises
+//! it per unit of CVaR (a concave numerator over a convex, positive denominator, for which the
+//! Charnes–Cooper transformation stays exact: Schaible 1974, "Parameter-free convex equivalent and dual
+//! programs of fractional programming problems", Zeitschrift für Operations Research 18). Zero rates, or
+//! no holdings, leave every LP as it is without costs.
+//!
 //! Every reported optimum is re-checked against its constraints in code ([`verify`]).
 //!
 //! The families are defined once ([`Family`], `family.rs`) and solved together by one function,
@@ -57,6 +65,16 @@ pub struct FeasibleSet {
     pub groups: Vec<Group>,
     pub turnover_max: Option<f64>,
     pub current: Option<Vec<f64>>,
+    /// One-way transaction cost per unit of weight traded, per asset (a fraction; empty or zero: free).
+    /// Not a constraint: the models' returns are net of Σ rate_i·|x_i − current_i| ([`cost`]).
+    pub cost_rates: Vec<f64>,
+}
+
+impl FeasibleSet {
+    /// Whether moving away from the current holdings costs anything: holdings given and a rate positive.
+    pub fn charges_costs(&self) -> bool {
+        self.current.is_some() && self.cost_rates.iter().any(|&r| r > 0.0)
+    }
 }
 
 /// One problem instance: scenarios, their mean, the model confidence and X.
@@ -263,18 +281,18 @@ impl Problem<'_> {
                 if let Some(cap) = cap {
                     lp.at_most(block, cap);
                 }
-                (lp.expected_return(&self.mu), true)
+                (lp.net_return(&self.mu, &self.feasible.cost_rates), true)
             }
             Kind::MinCvar(floor) => {
                 if let Some(floor) = floor {
-                    let ret = lp.expected_return(&self.mu);
+                    let ret = lp.net_return(&self.mu, &self.feasible.cost_rates);
                     lp.at_least(ret, floor);
                 }
                 (block, false)
             }
             Kind::Ratio(_) => {
                 lp.at_most(block, 1.0);
-                (lp.expected_return(&self.mu), true)
+                (lp.net_return(&self.mu, &self.feasible.cost_rates), true)
             }
         }
     }
@@ -580,9 +598,49 @@ pub fn verify(p: &Problem, x: &[f64], cap: Option<f64>, floor: Option<f64>) -> f
         worst = worst.max(risk::cvar_of(p.set, x, p.confidence) - cap);
     }
     if let Some(floor) = floor {
-        worst = worst.max(floor - dot(&p.mu, x));
+        worst = worst.max(floor - net_return(p, x));
     }
     worst.max(0.0)
+}
+
+/// The one-way cost of moving from the current holdings to `x`, as a fraction of the fund's value:
+/// Σ_i rate_i·|x_i − current_i|; 0 without holdings (there is nothing to trade from).
+pub fn cost(fs: &FeasibleSet, x: &[f64]) -> f64 {
+    match &fs.current {
+        Some(cur) if fs.charges_costs() => x
+            .iter()
+            .zip(cur)
+            .zip(&fs.cost_rates)
+            .map(|((a, b), r)| r * (a - b).abs())
+            .sum(),
+        _ => 0.0,
+    }
+}
+
+/// The expected return of `x` net of the cost of getting there: μ·x − [`cost`] (μ·x itself when nothing
+/// is charged).
+pub fn net_return(p: &Problem, x: &[f64]) -> f64 {
+    let gross = dot(&p.mu, x);
+    if p.feasible.charges_costs() {
+        gross - cost(p.feasible, x)
+    } else {
+        gross
+    }
+}
+
+/// A weight change at most this large is no trade (solver round-off, well below any figure the pack
+/// prints).
+pub const NO_TRADE: f64 = 1e-9;
+
+/// The trades from `current` to `x`: (asset index, weight change x_i − current_i) for every asset whose
+/// weight changes by more than [`NO_TRADE`], in asset order.
+pub fn trades(current: &[f64], x: &[f64]) -> Vec<(usize, f64)> {
+    x.iter()
+        .zip(current)
+        .map(|(a, b)| a - b)
+        .enumerate()
+        .filter(|(_, d)| d.abs() > NO_TRADE)
+        .collect()
 }
 
 /// Σ|x − current|.

@@ -16,6 +16,13 @@ input, with the reason on stderr.
 Notation: S scenarios with probabilities p_k, N assets, simple returns
 r_k (row k of R), loss L_k(x) = -r_k . x, expected return mu . x with
 mu = sum_k p_k r_k, confidence c and tail fraction 1 - c.
+
+Transaction costs (optional ``cost_rates``, one-way fractions per asset,
+with ``current`` holdings h): every "return" is net of the cost of getting
+there, N(x) = mu . x - sum_i rate_i |x_i - h_i|, written with the
+turnover variables d_i >= |x_i - h_i| as mu . x - rate . d (exact where
+N is maximised or bounded below, since rate >= 0). Each result then also
+reports ``cost`` and ``expected_return_net`` of its portfolio.
 """
 
 import json
@@ -90,14 +97,24 @@ def _groups(raw, n):
 
 def _turnover(data, n):
     tau = data.get("turnover_max")
-    if tau is None:
-        return None, None
-    tau = _number(data, "turnover_max")
-    if tau < 0:
-        raise InputError("'turnover_max' must be non-negative")
+    rates = None
+    if data.get("cost_rates") is not None:
+        rates = _vector(data, "cost_rates", n)
+        if np.any(rates < 0):
+            raise InputError("'cost_rates' must be non-negative")
+    if tau is not None:
+        tau = _number(data, "turnover_max")
+        if tau < 0:
+            raise InputError("'turnover_max' must be non-negative")
+    needs_current = tau is not None or (rates is not None and np.any(rates > 0))
+    if not needs_current:
+        return None, None, None
     if data.get("current") is None:
-        raise InputError("'current' is required when 'turnover_max' is set")
-    return tau, _vector(data, "current", n)
+        raise InputError("'current' is required with 'turnover_max' or positive 'cost_rates'")
+    current = _vector(data, "current", n)
+    if rates is None or not np.any(rates > 0):
+        rates = None
+    return tau, current, rates
 
 
 def parse_instance(data):
@@ -118,12 +135,12 @@ def parse_instance(data):
         lower, upper = _bounds(data, "lower", n, -np.inf), _bounds(data, "upper", n, np.inf)
         if np.any(lower > upper) or np.any(lower == np.inf) or np.any(upper == -np.inf):
             raise InputError("'lower'/'upper' are inconsistent for some asset")
-        tau, current = _turnover(data, n)
+        tau, current, rates = _turnover(data, n)
         return {
             "confidence": conf, "probs": probs, "returns": returns,
             "lower": lower, "upper": upper,
             "groups": _groups(data.get("groups"), n),
-            "tau": tau, "current": current,
+            "tau": tau, "current": current, "rates": rates,
             "cvar_cap": _number(data, "cvar_cap"),
             "return_floor": _number(data, "return_floor"),
         }
@@ -167,7 +184,7 @@ def expected_returns(inst):
 # LP construction
 # ---------------------------------------------------------------------------
 #
-# Variable layout: [ x (N) | l (1) | u (S) | d (N, only with turnover) ].
+# Variable layout: [ x (N) | l (1) | u (S) | d (N, only with turnover or costs) ].
 # The l and u blocks are the Rockafellar-Uryasev auxiliaries; they are
 # present only when the model involves CVaR.
 
@@ -180,7 +197,8 @@ class Layout:
         self.l = self.n
         self.u = self.n + 1
         self.d = self.n + (1 + self.s if with_cvar else 0)
-        self.total = self.d + (self.n if inst["tau"] is not None else 0)
+        self.has_d = inst["tau"] is not None or inst["rates"] is not None
+        self.total = self.d + (self.n if self.has_d else 0)
 
     def cvar_row(self, inst):
         """Coefficients of the RU objective l + 1/(1-c) sum_k p_k u_k.
@@ -225,12 +243,14 @@ def _group_block(inst, lay):
 
 
 def _turnover_block(inst, lay):
-    """x_i - d_i <= cur_i, -x_i - d_i <= -cur_i, sum_i d_i <= tau."""
+    """x_i - d_i <= cur_i, -x_i - d_i <= -cur_i, and sum_i d_i <= tau with a turnover limit."""
     n, cur = lay.n, inst["current"]
     eye_x = sp.identity(n, format="csr")
     left = sp.csr_matrix((n, lay.d - n))
     top = sp.hstack([eye_x, left, -eye_x], format="csr")
     mid = sp.hstack([-eye_x, left, -eye_x], format="csr")
+    if inst["tau"] is None:
+        return sp.vstack([top, mid], format="csr"), np.concatenate([cur, -cur])
     total = np.zeros(lay.total)
     total[lay.d:] = 1.0
     a = sp.vstack([top, mid, sp.csr_matrix(total)], format="csr")
@@ -248,7 +268,7 @@ def feasible_set(inst, lay):
     if g_rows:
         blocks.append(sp.csr_matrix(np.array(g_rows)))
         rhs.append(np.array(g_rhs))
-    if inst["tau"] is not None:
+    if lay.has_d:
         a, b = _turnover_block(inst, lay)
         blocks.append(a)
         rhs.append(b)
@@ -280,6 +300,18 @@ def solve_lp(inst, lay, objective, extra_rows=(), extra_rhs=()):
 # The five programs
 # ---------------------------------------------------------------------------
 
+def cost(inst, x):
+    """sum_i rate_i |x_i - h_i|: the one-way cost of trading from h to x."""
+    if inst["rates"] is None:
+        return 0.0
+    return float(inst["rates"] @ np.abs(x - inst["current"]))
+
+
+def net_return(inst, x):
+    """mu . x minus the cost of getting there."""
+    return float(expected_returns(inst) @ x) - cost(inst, x)
+
+
 def _report(inst, status, z, objective):
     if status != "optimal":
         return {"status": status}
@@ -290,17 +322,22 @@ def _report(inst, status, z, objective):
         "weights": x.tolist(),
         "cvar": exact_cvar(inst, x),
         "expected_return": float(expected_returns(inst) @ x),
+        "cost": cost(inst, x),
+        "expected_return_net": net_return(inst, x),
     }
 
 
 def _return_row(inst, lay):
+    """mu . x - rate . d: the (net) expected return as an LP row."""
     row = np.zeros(lay.total)
     row[:lay.n] = expected_returns(inst)
+    if inst["rates"] is not None:
+        row[lay.d:lay.d + lay.n] = -inst["rates"]
     return row
 
 
 def max_return(inst, capped):
-    """max mu.x over X, with CVaR_c(x) <= cvar_cap when capped."""
+    """max N(x) over X, with CVaR_c(x) <= cvar_cap when capped."""
     lay = Layout(inst, with_cvar=capped)
     rows, rhs = ([lay.cvar_row(inst)], [inst["cvar_cap"]]) if capped else ((), ())
     status, z, fun = solve_lp(inst, lay, -_return_row(inst, lay), rows, rhs)
@@ -308,7 +345,7 @@ def max_return(inst, capped):
 
 
 def min_cvar(inst, floored):
-    """min CVaR_c(x) over X, with mu.x >= return_floor when floored."""
+    """min CVaR_c(x) over X, with N(x) >= return_floor when floored."""
     lay = Layout(inst, with_cvar=True)
     rows, rhs = ([-_return_row(inst, lay)], [-inst["return_floor"]]) if floored else ((), ())
     status, z, fun = solve_lp(inst, lay, lay.cvar_row(inst), rows, rhs)
@@ -319,8 +356,8 @@ def parametric_step(inst, lam):
     """Solve F(lam) = max_{x in X} mu.x - lam * CVaR_c(x) as one LP.
 
     Dinkelbach (1967), "On nonlinear fractional programming", Management
-    Science 13(7): F(lam) = max_x N(x) - lam D(x), with N = mu.x and
-    D = CVaR_c; CVaR_c is linearised after Rockafellar & Uryasev (2000),
+    Science 13(7): F(lam) = max_x N(x) - lam D(x), with N = mu.x net of
+    costs (concave) and D = CVaR_c (convex); CVaR_c is linearised after Rockafellar & Uryasev (2000),
     Journal of Risk 2(3), which is exact here because lam >= 0 makes the
     LP minimise the RU function over (l, u).
     """
@@ -359,16 +396,15 @@ def max_ratio(inst, lowest, highest):
     reason = _ratio_preconditions(lowest, highest)
     if reason:
         return _not_applicable(reason)
-    mu = expected_returns(inst)
     lam = 0.0
-    if lowest["expected_return"] > 0.0:
-        lam = lowest["expected_return"] / lowest["cvar"]
+    if lowest["expected_return_net"] > 0.0:
+        lam = lowest["expected_return_net"] / lowest["cvar"]
     best = None
     for iteration in range(1, DINKELBACH_MAX_ITER + 1):
         status, x, f_val = parametric_step(inst, lam)
         if status != "optimal":
             return {"status": status, "iterations": iteration}
-        ret, risk = float(mu @ x), exact_cvar(inst, x)
+        ret, risk = net_return(inst, x), exact_cvar(inst, x)
         new_lam = ret / risk
         if best is None or new_lam >= best[0]:
             best = (new_lam, x)

@@ -25,6 +25,7 @@ fn unbounded_problem_outcome(backend: Backend) -> models::Outcome {
         groups: vec![],
         turnover_max: None,
         current: None,
+        cost_rates: vec![],
     };
     let p = Problem {
         set: &set,

@@ -6,6 +6,7 @@ mod bad_inputs;
 mod bench;
 mod cli;
 mod common;
+mod costs;
 mod csv_quoting;
 mod demo;
 mod faults;

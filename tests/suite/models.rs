@@ -22,6 +22,7 @@ impl Limits {
             groups: vec![],
             turnover_max: None,
             current: None,
+            cost_rates: vec![],
         })
     }
 
@@ -137,7 +138,8 @@ fn to_json(i: &Instance) -> Value {
         "confidence": i.c, "probabilities": i.set.probabilities, "returns": rows,
         "lower": i.fs.lower, "upper": i.fs.upper,
         "groups": i.fs.groups.iter().map(|g| json!({"members": g.members, "min": g.min, "max": g.max})).collect::<Vec<_>>(),
-        "turnover_max": i.fs.turnover_max, "current": if i.fs.turnover_max.is_some() { json!(i.fs.current) } else { Value::Null },
+        "turnover_max": i.fs.turnover_max, "current": if i.fs.turnover_max.is_some() || i.fs.charges_costs() { json!(i.fs.current) } else { Value::Null },
+        "cost_rates": if i.fs.charges_costs() { json!(i.fs.cost_rates) } else { Value::Null },
         "cvar_cap": i.cap, "return_floor": i.floor,
     })
 }
@@ -214,6 +216,152 @@ fn optima_match_scipy_highs_on_random_instances() {
         assert!(models::verify(&p, &mc.weights, None, Some(i.floor)) < 1e-7);
         assert!(models::verify(&p, &ratio.weights, None, None) < 1e-7);
     }
+}
+
+/// `instance(seed)` with one-way cost rates of 10–100 bp per asset (about the size of a month's expected
+/// return, so they move the optima), the cap and floor set again on the net basis.
+fn costed(seed: u64) -> Instance {
+    let mut i = instance(seed);
+    let n = i.set.width();
+    let mut rng = rand::rngs::StdRng::seed_from_u64(1000 + seed);
+    i.fs.cost_rates = (0..n)
+        .map(|_| 0.001 + 0.009 * rng.random::<f64>())
+        .collect();
+    let p = i.problem();
+    let min_cvar = p.min_cvar(None).unwrap();
+    let max_net = p.max_return(None).unwrap().objective;
+    let min_net = models::net_return(&p, &min_cvar.weights);
+    i.cap = min_cvar.objective * 1.3;
+    i.floor = min_net + 0.5 * (max_net - min_net);
+    i
+}
+
+/// Issue 16: the models net of transaction costs against scipy's HiGHS `linprog`
+/// (`tests/reference/cvar_reference.py`, which writes the costs through its own turnover columns, and takes
+/// the ratio by Dinkelbach's method, not Charnes–Cooper), on random instances with cost rates, bounds, a
+/// group and (for two seeds in three) a turnover limit.
+#[test]
+fn cost_aware_optima_match_scipy_highs_on_random_instances() {
+    for seed in 0..8u64 {
+        let i = costed(seed);
+        let r = reference(&i);
+        let p = i.problem();
+        let what = |m: &str| format!("seed {seed} {m} net of costs");
+        let mr = p.max_return(Some(i.cap)).unwrap();
+        assert_eq!(r["max_return"]["status"], "optimal");
+        close(
+            mr.objective,
+            r["max_return"]["objective"].as_f64().unwrap(),
+            1e-7,
+            &what("max_return"),
+        );
+        // The LP's objective is the portfolio's own net return, recomputed from its weights.
+        close(
+            mr.objective,
+            models::net_return(&p, &mr.weights),
+            1e-9,
+            &what("max_return objective"),
+        );
+        let mc = p.min_cvar(Some(i.floor)).unwrap();
+        close(
+            mc.objective,
+            r["min_cvar"]["objective"].as_f64().unwrap(),
+            1e-7,
+            &what("min_cvar"),
+        );
+        assert!(
+            models::net_return(&p, &mc.weights) >= i.floor - 1e-8,
+            "{}",
+            what("floor on the net return")
+        );
+        let ratio = p.max_ratio().unwrap();
+        let got = models::net_return(&p, &ratio.weights) / cvar_of(&i.set, &ratio.weights, i.c);
+        close(
+            got,
+            r["max_ratio"]["objective"].as_f64().unwrap(),
+            1e-6,
+            &what("max_ratio (Dinkelbach reference)"),
+        );
+        close(
+            ratio.objective,
+            got,
+            1e-7,
+            &what("Charnes–Cooper objective equals the net ratio"),
+        );
+        close(
+            p.max_return(None).unwrap().objective,
+            r["max_return_over_x"]["objective"].as_f64().unwrap(),
+            1e-7,
+            &what("max net return over X (ratio precondition)"),
+        );
+        // The reference's cost of its own portfolio is Σ rate·|x − current| (its `cost` field).
+        let x: Vec<f64> = serde_json::from_value(r["max_return"]["weights"].clone()).unwrap();
+        close(
+            models::cost(&i.fs, &x),
+            r["max_return"]["cost"].as_f64().unwrap(),
+            1e-12,
+            &what("cost of a portfolio"),
+        );
+        assert!(models::verify(&p, &mr.weights, Some(i.cap), None) < 1e-7);
+        assert!(models::verify(&p, &mc.weights, None, Some(i.floor)) < 1e-7);
+        assert!(models::verify(&p, &ratio.weights, None, None) < 1e-7);
+    }
+}
+
+/// The costs change the answer: on a costed instance, the max-return optimum gross of costs (scipy on the
+/// same instance without rates) earns less net than the net optimum, unless both are the same portfolio.
+#[test]
+fn the_net_optimum_beats_the_gross_optimum_net_of_costs() {
+    let i = costed(1);
+    let p = i.problem();
+    let gross_fs = FeasibleSet {
+        cost_rates: vec![],
+        ..i.fs.clone()
+    };
+    let gross = problem(&i.set, &gross_fs, i.c)
+        .max_return(Some(i.cap))
+        .unwrap();
+    let net = p.max_return(Some(i.cap)).unwrap();
+    assert!(models::net_return(&p, &net.weights) >= models::net_return(&p, &gross.weights) - 1e-10);
+    assert!(
+        models::turnover(&net.weights, i.fs.current.as_ref().unwrap())
+            < models::turnover(&gross.weights, i.fs.current.as_ref().unwrap()) - 1e-6,
+        "costs of 10–100 bp must make the max-return portfolio trade less"
+    );
+}
+
+/// Issue 16: raising the cost rate lowers turnover. With one rate ρ for every asset the cost is ρ·T(x), and for
+/// ρ₁ < ρ₂ with optima x₁, x₂ of μ·x − ρ·T(x) over the same set, optimality of each gives
+/// (ρ₂ − ρ₁)(T(x₁) − T(x₂)) ≥ 0: turnover cannot rise with the rate. At a rate far above any expected return
+/// the fund stays where it is (the current holdings are in X and within the cap), so turnover falls to 0.
+#[test]
+fn raising_costs_lowers_turnover() {
+    let i = instance(3); // no turnover limit for seed 3
+    assert!(i.fs.turnover_max.is_none());
+    let current = i.fs.current.clone().unwrap();
+    let cap = i.cap.max(cvar_of(&i.set, &current, i.c));
+    let mut last = f64::INFINITY;
+    let mut first = None;
+    for rate in [0.0, 0.0005, 0.001, 0.002, 0.004, 0.008, 0.016, 0.5] {
+        let fs = FeasibleSet {
+            cost_rates: vec![rate; i.set.width()],
+            ..i.fs.clone()
+        };
+        let p = problem(&i.set, &fs, i.c);
+        let x = p.max_return(Some(cap)).unwrap().weights;
+        let t = models::turnover(&x, &current);
+        assert!(
+            t <= last + 1e-8,
+            "rate {rate}: turnover {t} above {last} at a lower rate"
+        );
+        first.get_or_insert(t);
+        last = t;
+    }
+    assert!(first.unwrap() > 0.1, "without costs the optimum trades");
+    assert!(
+        last < 1e-8,
+        "at 50% a trade the fund stays put, turnover {last}"
+    );
 }
 
 #[test]

@@ -255,6 +255,7 @@ fn instance(seed: u64) -> Instance {
         groups,
         turnover_max,
         current: Some(vec![1.0 / n as f64; n]),
+        cost_rates: vec![],
     };
     Instance {
         set,
