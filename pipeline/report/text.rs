@@ -224,12 +224,32 @@ pub fn caveats(r: &RunResult, shown: &[Portfolio]) -> Vec<Caveat> {
     out.extend(shown.iter().filter_map(|v| binding(r, v)));
     out.extend(stress_caveats(r));
     out.extend(backtest_caveats(r));
-    out.push(caveat("Costs and liquidity", "The models include no transaction costs, market impact, liquidity or taxes; the turnover limit is the only trading constraint. Implementing a candidate in full may cost more, and take longer, than the figures suggest."));
+    out.push(costs_caveat(r));
     let warned = r.checks.iter().filter(|c| c.level != Level::Pass).count();
     if warned > 0 {
         out.push(caveat("Open findings", &format!("{warned} check(s) did not pass; each is listed under Checks with its evidence and should be read before the figures are relied on.")));
     }
     out
+}
+
+/// What the figures leave out of the cost of trading: everything without cost rates; market impact,
+/// liquidity and taxes with them (the rates themselves being estimates).
+fn costs_caveat(r: &RunResult) -> Caveat {
+    let tail = "Implementing a candidate in full may cost more, and take longer, than the figures suggest.";
+    let text = if !r.config.costs.any() {
+        format!(
+            "The models include no transaction costs, market impact, liquidity or taxes; the turnover limit is the only trading constraint. {tail}"
+        )
+    } else if r.data.holdings.is_none() {
+        format!(
+            "Transaction cost rates are configured, but without current holdings the models charge none (the backtest charges them on each rebalance after its first month). Market impact, liquidity and taxes are not included. {tail}"
+        )
+    } else {
+        format!(
+            "The models and the backtest charge the configured one-way transaction cost rates, which are estimates; market impact, liquidity and taxes are not included, and the turnover limit is the only trading constraint. {tail}"
+        )
+    };
+    caveat("Costs and liquidity", &text)
 }
 
 fn caveat(title: &str, text: &str) -> Caveat {

@@ -39,6 +39,18 @@ fn config_rates() -> BTreeMap<&'static str, f64> {
     ])
 }
 
+/// The PDF's text with words rejoined where a line break hyphenated them and whitespace squeezed.
+fn pdf_words(pack: &std::path::Path) -> String {
+    let text = super::common::pdf_text(&pack.join("pack.pdf"));
+    let joined = text
+        .lines()
+        .map(str::trim)
+        .collect::<Vec<_>>()
+        .join("\n")
+        .replace("-\n", "");
+    joined.split_whitespace().collect::<Vec<_>>().join(" ")
+}
+
 fn run(f: &Fixture) -> (Value, PathBuf) {
     let ran = f.run(&["run", "fund.yaml", "--quiet"]);
     assert_eq!(ran.code, 0, "{}", ran.stderr);
@@ -74,6 +86,12 @@ fn trades_and_costs_follow_from_the_weights_and_the_config() {
         true,
     );
     let (r, pack) = run(&f);
+    let words = pdf_words(&pack);
+    assert!(
+        words.contains("The models and the backtest charge the configured"),
+        "the caveat says costs are charged: {words}"
+    );
+    assert!(!words.contains("include no transaction costs"), "{words}");
     assert_eq!(r["fund_value"].as_f64(), Some(VALUE));
     assert_eq!(r["base_currency"], "XTS");
     let rates = config_rates();
@@ -166,7 +184,11 @@ fn without_holdings_nothing_is_charged_and_a_check_says_so() {
         &format!("  value: {VALUE}\n  base_currency: XTS\n"),
         false,
     );
-    let (r, _) = run(&f);
+    let (r, pack) = run(&f);
+    assert!(
+        pdf_words(&pack).contains("without current holdings the models charge none"),
+        "the caveat says why nothing is charged"
+    );
     assert!(r["trades"].is_null());
     for m in r["models"].as_object().unwrap().values() {
         if m["status"] == "optimal" {
@@ -199,7 +221,12 @@ fn the_backtest_charges_each_rebalance_from_the_drifted_weights() {
         "fund.yaml",
         &text.replace("backtest_years: 0", "backtest_years: 1"),
     );
-    let (r, _) = run(&f);
+    let (r, pack) = run(&f);
+    let words = pdf_words(&pack);
+    assert!(
+        words.contains("net of each month") && !words.contains("before costs"),
+        "the backtest's wealth is labelled net of costs: {words}"
+    );
     let prices = std::fs::read_to_string(f.path("data/prices.csv")).unwrap();
     let mut lines = prices.lines();
     let assets: Vec<String> = lines

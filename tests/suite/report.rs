@@ -469,6 +469,11 @@ fn stress_and_backtest_figures_are_printed_as_computed_by_hand_and_in_results_js
     let dir = pack_dir(&f.run(&["run", "fund.yaml", "--quiet"]));
     let text = pdf_text(&dir.join("pack.pdf"));
     let (flat, rows) = (squeeze(&text), rows(&text));
+    assert!(
+        flat.contains("before costs (no transaction cost rates are configured)")
+            && flat.contains("include no transaction costs"),
+        "without cost rates, wealth and the caveat say no costs are charged"
+    );
     // By hand: equal holdings of 20% in five assets, three equities (AS01, AS03, AS05, Market::new) at −30%
     // and two bonds at +2%: 3 × 0.2 × (−0.30) + 2 × 0.2 × 0.02 = −0.172.
     assert!(

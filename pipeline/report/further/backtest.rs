@@ -32,6 +32,8 @@ pub struct BacktestShow {
     pub daily_window: Option<String>,
     pub daily_absent: Option<String>,
     pub skipped: Vec<Pair>,
+    /// How wealth and returns treat transaction costs, as the end of a sentence.
+    pub costs: String,
 }
 
 /// A model's backtest: its VaR exceptions with the two likelihood-ratio tests and the verdict in words, and
@@ -71,6 +73,16 @@ pub struct DailyRow {
     pub zone_key: &'static str,
 }
 
+/// How the backtest's wealth treats costs: net of each rebalance's cost when rates are configured (the
+/// backtest charges them from the drifted weights), else before costs.
+fn costs_phrase(r: &RunResult) -> String {
+    if r.config.costs.any() {
+        "net of each month's transaction cost (the configured one-way rates on the trade from the drifted weights)".into()
+    } else {
+        "before costs (no transaction cost rates are configured)".into()
+    }
+}
+
 /// The backtest's tables, or the sentence that says why there are none.
 pub fn show(r: &RunResult) -> Result<BacktestShow, String> {
     let years = r.config.analysis.backtest_years;
@@ -82,6 +94,7 @@ pub fn show(r: &RunResult) -> Result<BacktestShow, String> {
     let level = format::level(b.confidence);
     let (daily, daily_window, daily_absent) = daily(r, b);
     Ok(BacktestShow {
+        costs: costs_phrase(r),
         facts: facts(r, b),
         scores: b.tracks.iter().map(|t| score(t, &level)).collect(),
         daily,
