@@ -434,6 +434,17 @@ pub struct Preconditions {
     /// when not, the ratio model is a solver error, not "not applicable".
     pub established: bool,
     pub reason: Option<String>,
+    /// Whether `max_return` (and the ratio's numerator) is net of transaction costs.
+    pub net: bool,
+}
+
+/// How the messages name the models' return: net of costs when the models charge them.
+pub fn return_words(net: bool) -> &'static str {
+    if net {
+        "expected return net of transaction costs"
+    } else {
+        "expected return"
+    }
 }
 
 impl Preconditions {
@@ -446,6 +457,7 @@ impl Preconditions {
             holds: true,
             established: false,
             reason: None,
+            net: false,
         }
     }
 
@@ -469,7 +481,8 @@ impl Preconditions {
                 format!("{ratio}.return_positive"),
                 level(self.max_return.is_some_and(|m| m > 0.0)),
                 format!(
-                    "Charnes–Cooper precondition: maximum expected return over the feasible set = {} (must be > 0)",
+                    "Charnes–Cooper precondition: maximum {} over the feasible set = {} (must be > 0)",
+                    return_words(self.net),
                     fmt(self.max_return)
                 ),
             ),
@@ -492,13 +505,13 @@ pub fn failure_words(f: &Failure) -> String {
 pub fn preconditions(
     min_cvar: &Result<f64, Failure>,
     max_return: &Result<f64, Failure>,
+    net: bool,
 ) -> Preconditions {
+    let ret = return_words(net);
+    let max_return_lp = format!("the maximum {ret} over the feasible set");
     let unsolved = [
         ("the minimum CVaR over the feasible set", min_cvar),
-        (
-            "the maximum expected return over the feasible set",
-            max_return,
-        ),
+        (max_return_lp.as_str(), max_return),
     ]
     .iter()
     .filter_map(|(what, r)| {
@@ -519,7 +532,7 @@ pub fn preconditions(
             "the minimum CVaR over the feasible set is {m:.6} ≤ 0 (a portfolio with no tail loss exists, e.g. a riskless asset allowed at full weight), so the return/CVaR ratio is unbounded or undefined and the Charnes–Cooper LP does not apply"
         )),
         (_, Ok(r)) if *r <= 0.0 => Some(format!(
-            "the maximum expected return over the feasible set is {r:.6} ≤ 0, so no portfolio has a positive return/CVaR ratio and the Charnes–Cooper LP does not apply"
+            "the maximum {ret} over the feasible set is {r:.6} ≤ 0, so no portfolio has a positive return/CVaR ratio and the Charnes–Cooper LP does not apply"
         )),
         _ => None,
     };
@@ -529,6 +542,7 @@ pub fn preconditions(
         holds: reason.is_none(),
         established: unsolved.is_empty(),
         reason,
+        net,
     }
 }
 
@@ -552,6 +566,7 @@ pub fn preconditions_without_portfolio(empty: &Emptiness) -> Preconditions {
         holds: false,
         established,
         reason: Some(reason),
+        net: false,
     }
 }
 

@@ -114,9 +114,11 @@ pub fn solve_all_by(
     let (emptiness, auxiliary) = screen(p, premises, method);
     let preconditions = match (premises, &emptiness) {
         (Premises::Given, _) => Preconditions::given(),
-        (Premises::Establish, Emptiness::NotEmpty) => {
-            preconditions(&auxiliary.min_cvar, &auxiliary.max_return)
-        }
+        (Premises::Establish, Emptiness::NotEmpty) => preconditions(
+            &auxiliary.min_cvar,
+            &auxiliary.max_return,
+            p.feasible.charges_costs(),
+        ),
         (Premises::Establish, other) => preconditions_without_portfolio(other),
     };
     let c = p.confidence;
@@ -265,6 +267,7 @@ fn unresolved_cap(rule: CapRule, min_x: &Result<f64, Failure>) -> Outcome {
 
 /// min_cvar above the resolved return floor, diagnosed against the maximum expected return over X.
 fn min_cvar(p: &Problem, floor: f64, max_x: &Result<f64, Failure>, method: Method) -> Step {
+    let ret = super::return_words(p.feasible.charges_costs());
     let (o, timing) = judged(
         p,
         p.min_cvar_by(Some(floor), method),
@@ -272,19 +275,19 @@ fn min_cvar(p: &Problem, floor: f64, max_x: &Result<f64, Failure>, method: Metho
         Some(floor),
         || match max_x {
             Ok(m) if floor > *m => format!(
-                "models.min_cvar.return_floor: the return floor {floor:.6} is above the best attainable expected return {m:.6} over the feasible set; lower the floor"
+                "models.min_cvar.return_floor: the return floor {floor:.6} is above the best attainable {ret} {m:.6} over the feasible set; lower the floor"
             ),
             Ok(_) => format!(
                 "the solver reports the return floor {floor:.6} infeasible together with the feasible set"
             ),
             Err(f) => format!(
-                "the solver reports the return floor {floor:.6} infeasible together with the feasible set; the best attainable expected return is not known ({}), so whether the floor is above it is not established",
+                "the solver reports the return floor {floor:.6} infeasible together with the feasible set; the best attainable {ret} is not known ({}), so whether the floor is above it is not established",
                 failure_words(f)
             ),
         },
     );
     let witness = max_x.as_ref().ok().filter(|m| floor <= **m).map(|m| {
-        format!("the maximum-return portfolio of the feasible set has expected return {m:.6} ≥ the floor {floor:.6}")
+        format!("the maximum-return portfolio of the feasible set has {ret} {m:.6} ≥ the floor {floor:.6}")
     });
     (unless_contradicted(o, witness), timing)
 }

@@ -92,6 +92,20 @@ fn trades_and_costs_follow_from_the_weights_and_the_config() {
         "the caveat says costs are charged: {words}"
     );
     assert!(!words.contains("include no transaction costs"), "{words}");
+    // The ratio's precondition is checked on the returns the models maximise: net of costs.
+    let pre = r["checks"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .find(|c| c["id"] == "max_ratio.return_positive")
+        .expect("the ratio's return precondition is a check");
+    assert!(
+        pre["message"]
+            .as_str()
+            .unwrap()
+            .contains("maximum expected return net of transaction costs"),
+        "{pre}"
+    );
     assert_eq!(r["fund_value"].as_f64(), Some(VALUE));
     assert_eq!(r["base_currency"], "XTS");
     let rates = config_rates();

@@ -557,6 +557,7 @@ fn preconditions_reject_riskless_and_all_losing_universes() {
     let pre = models::preconditions(
         &p.min_cvar(None).map(|s| s.objective),
         &p.max_return(None).map(|s| s.objective),
+        false,
     );
     assert!(!pre.holds);
     assert!(pre.reason.unwrap().contains("minimum CVaR"));
@@ -579,9 +580,21 @@ fn preconditions_reject_riskless_and_all_losing_universes() {
     let pre = models::preconditions(
         &p.min_cvar(None).map(|s| s.objective),
         &p.max_return(None).map(|s| s.objective),
+        false,
     );
     assert!(!pre.holds);
-    assert!(pre.reason.unwrap().contains("maximum expected return"));
+    assert!(pre.reason.unwrap().contains("maximum expected return over"));
+    // Net of costs, the reason names the net return the models maximise.
+    let net = models::preconditions(
+        &p.min_cvar(None).map(|s| s.objective),
+        &p.max_return(None).map(|s| s.objective),
+        true,
+    );
+    assert!(
+        net.reason
+            .unwrap()
+            .contains("maximum expected return net of transaction costs over")
+    );
 }
 
 #[test]
@@ -695,16 +708,16 @@ fn failed_auxiliary_lps_claim_nothing_about_the_feasible_set() {
         min.is_err() || max.is_err(),
         "premise: HiGHS refuses coefficients of 1e300 ({min:?}, {max:?})"
     );
-    let pre = models::preconditions(&min, &max);
+    let pre = models::preconditions(&min, &max, false);
     assert!(!pre.holds && !pre.established);
     let reason = pre.reason.unwrap();
     assert!(!reason.contains("empty"), "{reason}");
     assert!(reason.contains("could not be established"), "{reason}");
     // The same verdicts from explicit failures: a solver error is no finding about X.
     let words = models::lp::Failure::Solver("status Error".into());
-    let pre = models::preconditions(&Err(words), &Ok(0.01));
+    let pre = models::preconditions(&Err(words), &Ok(0.01), false);
     assert!(!pre.established && pre.reason.unwrap().contains("solver: status Error"));
-    let pre = models::preconditions(&Ok(0.02), &Ok(-0.01));
+    let pre = models::preconditions(&Ok(0.02), &Ok(-0.01), false);
     assert!(pre.established && !pre.holds);
 }
 
