@@ -8,6 +8,7 @@
 
 use super::format::{self, NONE, Style, pct};
 use super::further::{self, Further};
+use super::policy::{self, PolicyShow};
 use super::text::{self, Caveat};
 use super::view::{Pair, Portfolio, class_order, class_sum, pair, status_word};
 use crate::diag::Level;
@@ -38,6 +39,9 @@ pub struct Report {
     pub run: Vec<Pair>,
     /// The "Further analysis" section: efficient frontier, stress set, backtest.
     pub further: Further,
+    /// "Position against policy", or `null` with `policy_absent` saying no policy is configured.
+    pub policy: Option<PolicyShow>,
+    pub policy_absent: Option<String>,
 }
 
 /// Cover and running-header facts.
@@ -185,6 +189,10 @@ pub struct Input {
 
 /// Builds the display data of one run; `shown` are its portfolios ([`super::view::portfolios`]).
 pub fn build(r: &RunResult, shown: &[Portfolio], results: &Value, pack_id: &str) -> Report {
+    let (policy, policy_absent) = match policy::show(r, shown) {
+        Ok(p) => (Some(p), None),
+        Err(why) => (None, Some(why)),
+    };
     Report {
         meta: meta(r, results, pack_id),
         portfolios: shown.iter().map(|v| portfolio_row(r, v)).collect(),
@@ -206,6 +214,8 @@ pub fn build(r: &RunResult, shown: &[Portfolio], results: &Value, pack_id: &str)
         inputs: inputs(results),
         run: run_facts(r, pack_id, results["signoff"]["status"] == "FINAL"),
         further: further::build(r, shown),
+        policy,
+        policy_absent,
     }
 }
 

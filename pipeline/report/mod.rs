@@ -9,6 +9,7 @@
 //!   display.rs  the display model, /data/report.json (tables, facts, checks, inputs)
 //!   further/    "Further analysis": mod.rs (the `further` part of the display model, its charts) over
 //!               frontier.rs, stress.rs, backtest.rs (each part's display data and charts)
+//!   policy.rs   "Position against policy": policy lines, exposures, breaches, active risk
 //!   charts.rs   the summary and allocation charts (SVG)
 //!   text.rs     the sentences that depend on the run (summary points, caveats)
 //!   draw.rs     the chart kit: canvas, type, axes, markers, legends, bars
@@ -38,6 +39,7 @@ pub mod draw;
 pub mod format;
 pub mod further;
 pub mod pdf;
+pub mod policy;
 pub mod templates;
 pub mod text;
 pub mod typeset;
@@ -175,6 +177,7 @@ mod tests {
         ("frontier", 2, include_str!("further/frontier.rs")),
         ("stress", 2, include_str!("further/stress.rs")),
         ("backtest", 2, include_str!("further/backtest.rs")),
+        ("policy", 2, include_str!("policy.rs")),
         ("further", 3, include_str!("further/mod.rs")),
         ("display", 4, include_str!("display.rs")),
         ("world", 0, include_str!("world.rs")),

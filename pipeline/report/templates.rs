@@ -24,6 +24,7 @@ pub const DEFAULTS: &[(&str, &str)] = &[
     ("cover.typ", include_str!("../../templates/cover.typ")),
     ("contents.typ", include_str!("../../templates/contents.typ")),
     ("summary.typ", include_str!("../../templates/summary.typ")),
+    ("policy.typ", include_str!("../../templates/policy.typ")),
     (
         "allocations.typ",
         include_str!("../../templates/allocations.typ"),

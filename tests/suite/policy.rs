@@ -8,7 +8,7 @@
 //! 2000, "Optimization of conditional value-at-risk", J. Risk 2(3), Theorem 1), which this file evaluates
 //! at every scenario loss rather than by sorting.
 
-use super::common::{Fixture, Market, config, json};
+use super::common::{Fixture, Market, config, json, pdf_text};
 use std::path::PathBuf;
 use tailpack::scenarios::{Column, ScenarioSet, mix_returns};
 
@@ -283,12 +283,25 @@ fn policy_ranges_stay_out_of_the_models_when_switched_off() {
     let f = Fixture::new();
     let off = POLICY.replace("policy:\n", "policy:\n  ranges_as_limits: false\n");
     let cfg = fund_with_reference(&f, &off, false);
-    let r = json(&run_pack(&f, &cfg).join("results.json"));
+    let dir = run_pack(&f, &cfg);
+    let r = json(&dir.join("results.json"));
     assert_eq!(r["constraints"]["groups"], serde_json::json!([]));
     assert_eq!(r["policy"]["ranges_as_limits"], false);
+    // The policy page says the ranges are for comparison only; with them on, that they bind the models.
+    let said = |dir: &PathBuf| squeeze(&pdf_text(&dir.join("pack.pdf")));
+    let text = said(&dir);
+    assert!(
+        text.contains("The policy ranges do not bind the models (ranges_as_limits is off)"),
+        "the page must say the ranges do not bind the models"
+    );
     let on = Fixture::new();
     let cfg = fund_with_reference(&on, POLICY, false);
-    let r = json(&run_pack(&on, &cfg).join("results.json"));
+    let dir = run_pack(&on, &cfg);
+    let r = json(&dir.join("results.json"));
+    assert!(
+        said(&dir).contains("The policy ranges bind the models"),
+        "the page must say the ranges bind the models"
+    );
     let names: Vec<&str> = r["constraints"]["groups"]
         .as_array()
         .unwrap()
@@ -335,6 +348,25 @@ fn without_a_policy_there_is_no_policy_block_and_a_note_says_so() {
             .iter()
             .any(|c| c["id"] == "policy.not_configured")
     );
+    // The pack keeps its policy page and says plainly that there is no policy.
+    let text = squeeze(&pdf_text(&dir.join("pack.pdf")));
+    assert!(
+        text.contains("2 Position against policy"),
+        "the policy page must be there"
+    );
+    assert!(
+        text.contains("No policy portfolio is configured for this fund (config section `policy`)"),
+        "the page must say no policy is configured"
+    );
+    assert!(
+        !text.contains("Active risk against the policy benchmark"),
+        "no active-risk table without a policy"
+    );
+}
+
+/// Whitespace runs collapsed, so words the PDF layout spread apart still match.
+fn squeeze(text: &str) -> String {
+    text.split_whitespace().collect::<Vec<_>>().join(" ")
 }
 
 #[test]

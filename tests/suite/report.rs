@@ -125,6 +125,92 @@ fn pdf_has_every_section_and_the_figures_of_results_json() {
         );
     }
     further_analysis_matches_results_json(&text, &r);
+    policy_page_matches_results_json(&text, &r);
+}
+
+/// The "Position against policy" page of the demo pack against results.json `policy` (README, "Policy in
+/// results.json"), every figure formatted by the README rule independently of the library: each line's
+/// row (benchmark, target, range, each portfolio's exposure with `below`/`above` outside the range, judged
+/// here from min and max with the README's 1e-6), each portfolio's active-risk row, the breach sentence and
+/// the annualisation factor √(horizons a year).
+fn policy_page_matches_results_json(text: &str, r: &serde_json::Value) {
+    let flat = squeeze(text);
+    let rows = rows(text);
+    assert!(
+        flat.contains("2 Position against policy"),
+        "the policy page must follow the summary"
+    );
+    let p = &r["policy"];
+    let keys = ["current", "max_return", "min_cvar", "max_ratio"];
+    let f = |v: &serde_json::Value| v.as_f64().unwrap();
+    let mut outside = 0;
+    for (i, line) in p["lines"].as_array().unwrap().iter().enumerate() {
+        let (min, max) = (f(&line["min"]), f(&line["max"]));
+        let cells: Vec<String> = keys
+            .iter()
+            .map(|k| {
+                let e = f(&p["portfolios"][*k]["exposure"][i]);
+                let word = if e < min - 1e-6 {
+                    " below"
+                } else if e > max + 1e-6 {
+                    " above"
+                } else {
+                    ""
+                };
+                outside += usize::from(!word.is_empty());
+                format!("{}{word}", printed(e, false))
+            })
+            .collect();
+        let name = line["name"].as_str().unwrap();
+        has_row(
+            &rows,
+            &format!(
+                "{name} {} {} {}–{} {}",
+                line["benchmark"].as_str().unwrap(),
+                printed(f(&line["target"]), false),
+                printed(min, false),
+                printed(max, false),
+                cells.join(" ")
+            ),
+            &format!("policy line {name}"),
+        );
+    }
+    assert!(outside > 0, "the demo's current portfolio breaches a range");
+    let current = &p["portfolios"]["current"];
+    for b in current["breaches"].as_array().unwrap() {
+        let i = p["lines"]
+            .as_array()
+            .unwrap()
+            .iter()
+            .position(|l| l["name"] == *b)
+            .unwrap();
+        let want = format!(
+            "The current portfolio is outside its permitted range in {} at {}",
+            b.as_str().unwrap(),
+            printed(f(&current["exposure"][i]), false)
+        );
+        assert!(flat.contains(&want), "breach sentence `{want}` missing");
+    }
+    for (key, label) in [("current", "Current")].into_iter().chain(MODELS) {
+        let a = &p["active"][key];
+        has_row(
+            &rows,
+            &format!(
+                "{label} {} {} {} {}",
+                printed(f(&a["active_return"]), true),
+                printed(f(&a["tracking_error"]), false),
+                printed(f(&a["tracking_error_annualised"]), false),
+                printed(f(&a["active_cvar"]), false)
+            ),
+            &format!("active risk of {label}"),
+        );
+    }
+    let per_year = f(&p["horizons_per_year"]);
+    let rule = format!(
+        "square root of the {per_year:.2} horizons in a year, {:.2}",
+        per_year.sqrt()
+    );
+    assert!(flat.contains(&rule), "annualisation `{rule}` missing");
 }
 
 /// The models in the order the pack prints them (README, "The PDF pack": current, then the three models).
@@ -165,7 +251,7 @@ fn has_row(rows: &[String], want: &str, what: &str) {
 fn further_analysis_matches_results_json(text: &str, r: &serde_json::Value) {
     let flat = squeeze(text);
     let rows = rows(text);
-    for title in ["4.1 Efficient frontier", "4.2 Stress tests", "4.3 Backtest"] {
+    for title in ["5.1 Efficient frontier", "5.2 Stress tests", "5.3 Backtest"] {
         assert!(flat.contains(title), "subsection `{title}` missing");
     }
     assert!(
@@ -554,7 +640,7 @@ fn a_fund_without_backtest_or_stress_says_so_plainly() {
     let flat = squeeze(&pdf_text(&dir.join("pack.pdf")));
     // The section keeps its three parts; the two that did not run say why (DEVELOPERS.md, "Adding a report
     // section": a section whose data does not exist says so plainly rather than vanishing).
-    for title in ["4.1 Efficient frontier", "4.2 Stress tests", "4.3 Backtest"] {
+    for title in ["5.1 Efficient frontier", "5.2 Stress tests", "5.3 Backtest"] {
         assert!(flat.contains(title), "subsection `{title}` missing");
     }
     assert!(flat.contains("The walk-forward backtest was not run: it is switched off in the config (analysis.backtest_years: 0)."), "backtest absence");
