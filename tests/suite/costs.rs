@@ -238,8 +238,12 @@ fn the_backtest_charges_each_rebalance_from_the_drifted_weights() {
     let (r, pack) = run(&f);
     let words = pdf_words(&pack);
     assert!(
-        words.contains("net of each month") && !words.contains("before costs"),
+        words.contains("net of each month") && !words.contains("before costs (no transaction"),
         "the backtest's wealth is labelled net of costs: {words}"
+    );
+    assert!(
+        words.contains("before costs, predicted and realised alike"),
+        "the mean returns are labelled gross: {words}"
     );
     let prices = std::fs::read_to_string(f.path("data/prices.csv")).unwrap();
     let mut lines = prices.lines();
