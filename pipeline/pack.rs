@@ -20,9 +20,15 @@ use std::path::{Path, PathBuf};
 /// fields quoted per RFC 4180 ([`csv_out`]).
 pub fn scenarios_csv(r: &RunResult) -> String {
     let s = &r.scenarios;
+    scenario_table(s, !s.equal_probabilities)
+}
+
+/// A scenario set as CSV: `scenario[,probability],<column…>`, one row per scenario labelled `start/end`,
+/// values as round-trip f64 text.
+fn scenario_table(s: &crate::scenarios::ScenarioSet, probabilities: bool) -> String {
     let mut out = String::with_capacity(s.len() * s.width() * 22);
     out.push_str("scenario");
-    if !s.equal_probabilities {
+    if probabilities {
         out.push_str(",probability");
     }
     for a in &s.assets {
@@ -32,7 +38,7 @@ pub fn scenarios_csv(r: &RunResult) -> String {
     out.push('\n');
     for k in 0..s.len() {
         out.push_str(&csv_out::field(&s.label(k)));
-        if !s.equal_probabilities {
+        if probabilities {
             let _ = write!(out, ",{:?}", s.probabilities[k]);
         }
         for v in s.row(k) {
@@ -48,23 +54,7 @@ pub fn scenarios_csv(r: &RunResult) -> String {
 /// the policy names no such series.
 pub fn reference_scenarios_csv(r: &RunResult) -> Option<String> {
     let s = &r.reference;
-    if s.width() == 0 {
-        return None;
-    }
-    let mut out = String::from("scenario");
-    for a in &s.assets {
-        out.push(',');
-        out.push_str(&csv_out::field(a));
-    }
-    out.push('\n');
-    for k in 0..s.len() {
-        out.push_str(&csv_out::field(&s.label(k)));
-        for v in s.row(k) {
-            let _ = write!(out, ",{v:?}");
-        }
-        out.push('\n');
-    }
-    Some(out)
+    (s.width() > 0).then(|| scenario_table(s, false))
 }
 
 /// `weights.csv`: one row per asset; columns current (if any) and each model (blank when not optimal);
