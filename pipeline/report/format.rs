@@ -89,7 +89,38 @@ pub fn probability(p: f64) -> String {
 
 /// A count with thousands separators: 1284 → `1,284`.
 pub fn count(n: usize) -> String {
-    let digits = n.to_string();
+    grouped(&n.to_string())
+}
+
+/// An amount of money in whole units of the base currency, with thousands separators and the pack's minus
+/// sign: `money(-1234567.4, Style::Return)` → `−1,234,567`. Returns and differences (`Style::Return`,
+/// `Style::Points`: a purchase, a profit) carry a plus sign when positive; losses and weights do not. An
+/// amount that rounds to zero prints `0` without a sign; non-finite amounts print `n/a`.
+pub fn money(amount: f64, style: Style) -> String {
+    if !amount.is_finite() {
+        return "n/a".into();
+    }
+    let whole = amount.abs().round();
+    if whole > u64::MAX as f64 {
+        return "n/a".into();
+    }
+    let digits = grouped(&format!("{whole:.0}"));
+    let sign = match () {
+        _ if whole == 0.0 => "",
+        _ if amount < 0.0 => "\u{2212}",
+        _ if matches!(style, Style::Return | Style::Points) => "+",
+        _ => "",
+    };
+    format!("{sign}{digits}")
+}
+
+/// An amount of money with its currency code in front: `XTS 123,375,000`, `XTS −2,040,000`.
+pub fn money_in(amount: f64, currency: &str, style: Style) -> String {
+    format!("{currency} {}", money(amount, style))
+}
+
+/// Digits grouped in threes with commas.
+fn grouped(digits: &str) -> String {
     let mut out = String::new();
     for (i, ch) in digits.chars().enumerate() {
         if i > 0 && (digits.len() - i).is_multiple_of(3) {
@@ -167,5 +198,17 @@ mod tests {
         assert_eq!(p_value(0.041642), "0.042");
         assert_eq!(p_value(0.00024), "< 0.001");
         assert_eq!(p_value(1.0), "1.000");
+    }
+
+    #[test]
+    fn money_has_separators_a_sign_rule_and_a_code() {
+        assert_eq!(money(123_375_000.0, Style::Loss), "123,375,000");
+        assert_eq!(money(-1_234_567.4, Style::Return), "\u{2212}1,234,567");
+        assert_eq!(money(2_040_000.0, Style::Return), "+2,040,000");
+        assert_eq!(money(0.4, Style::Return), "0");
+        assert_eq!(money(-0.4, Style::Return), "0");
+        assert_eq!(money(999.0, Style::Loss), "999");
+        assert_eq!(money(f64::INFINITY, Style::Loss), "n/a");
+        assert_eq!(money_in(-2_040_000.0, "XTS", Style::Return), "XTS \u{2212}2,040,000");
     }
 }
