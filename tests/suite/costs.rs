@@ -333,7 +333,12 @@ fn each_fund_of_a_multi_fund_config_has_its_own_policy_value_and_costs() {
         assert!((got - rate).abs() < 1e-15, "shared {a}: {got} vs {rate}");
     }
     // Own rates: equity 50 bp from the fund's section; bonds none (its `costs` replaces the shared one).
-    let own_rates = [("AS01", 0.005), ("AS02", 0.0), ("AS03", 0.005), ("AS04", 0.0)];
+    let own_rates = [
+        ("AS01", 0.005),
+        ("AS02", 0.0),
+        ("AS03", 0.005),
+        ("AS04", 0.0),
+    ];
     for (a, rate) in own_rates {
         let got = own["costs"]["rates"][a].as_f64().unwrap();
         assert!((got - rate).abs() < 1e-15, "own {a}: {got} vs {rate}");
