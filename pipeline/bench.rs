@@ -9,13 +9,13 @@
 //! return, so all three models are feasible by construction and need no auxiliary LP.
 
 use crate::config::{Backend, CapRule, FloorRule};
-use crate::demo::Rng;
 use crate::error::{Error, Result};
 use crate::models::lp;
 use crate::models::{
     self, Family, FamilyOutcome, FeasibleSet, Group, Method, Premises, Problem, Solution, Status,
     Targets,
 };
+use crate::random::Rng;
 use crate::risk;
 use crate::scenarios::ScenarioSet;
 use std::io::Write;

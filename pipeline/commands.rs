@@ -183,7 +183,8 @@ fn run_fund(cfg: crate::config::Config, progress: &Progress) -> Result<RunReport
         });
     }
     progress.step("solving the CVaR models, frontier, stress set and backtest");
-    let result = run::solve(prepared)?;
+    let seed = crate::analysis::bands::seed_of(&plan.pack_id);
+    let result = run::solve(prepared, seed)?;
     progress.step("writing the pack");
     let (dir, text) = crate::pack::write(&result, &plan)?;
     timings::time("writing", || {
@@ -304,7 +305,8 @@ fn recompute(pack: &Path, scratch: &Path) -> Result<(run::RunResult, crate::arch
     let cfg = crate::config::load_archived(&pack.join("inputs"), &overrides)?;
     let data = crate::ingest::load(&cfg)?;
     let plan = crate::archive::plan(&cfg, data.as_of)?;
-    Ok((run::compute(cfg, data)?, plan))
+    let seed = crate::analysis::bands::seed_of(&plan.pack_id);
+    Ok((run::compute(cfg, data, seed)?, plan))
 }
 
 /// `tailpack finalize PACK --role R --key K`: once every required role has signed, renders

@@ -20,7 +20,8 @@
 //!
 //! Cross-cutting: [`error`] (typed errors, exit codes, path-naming file helpers), [`diag`] (findings that
 //! travel with results), [`csv_out`] (RFC 4180 quoting of every CSV written), [`demo`] (the deterministic
-//! generator of the invented demo data), [`timings`] (time per stage, peak memory). A stage imports only
+//! generator of the invented demo data), [`random`] (the seeded random-number generator every random stream
+//! uses), [`timings`] (time per stage, peak memory). A stage imports only
 //! the stages above it and these; the suite's `layers` test holds every file to that.
 
 pub mod analysis;
@@ -35,6 +36,7 @@ pub mod error;
 pub mod ingest;
 pub mod models;
 pub mod pack;
+pub mod random;
 pub mod report;
 pub mod risk;
 pub mod run;

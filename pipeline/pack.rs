@@ -228,7 +228,26 @@ pub fn results_json(r: &RunResult, inputs: &[crate::archive::InputFile], pack_id
         "stress": stress_json(r),
         "backtest": backtest_json(r),
         "policy": policy_json(r),
+        "bands": bands_json(r),
     })
+}
+
+/// The estimation-error bands: per family, [p5, p50, p95] of every weight, of expected return and CVaR on
+/// the original scenarios, and how often each asset is held; `null` when switched off.
+fn bands_json(r: &RunResult) -> Value {
+    let Some(b) = &r.analysis.bands else {
+        return Value::Null;
+    };
+    let assets = &r.data.assets;
+    let models: Map<String, Value> = b.models.iter().map(|m| (m.model.to_string(), json!({
+        "solved": m.solved,
+        "weights": Value::Object(assets.iter().zip(&m.weights).map(|(a, w)| (a.clone(), json!(w))).collect()),
+        "expected_return": m.expected_return, "cvar": m.cvar,
+        "held_share": weight_map(assets, &m.held_share), "held_above": crate::analysis::bands::HELD_ABOVE,
+        "mean_turnover_from_point": m.mean_turnover,
+    }))).collect();
+    json!({"resamples": b.resamples, "block_length": b.block_length, "seed": b.seed.to_string(),
+           "percentiles": crate::analysis::bands::PERCENTILES, "models": models})
 }
 
 /// The policy block: lines, benchmark weights, each portfolio's exposure and breaches, and active risk

@@ -127,12 +127,13 @@ pub fn validate(cfg: Config, data: MarketData) -> Result<Prepared> {
 }
 
 /// Checks and solves everything for loaded data ([`validate`], then [`solve`]).
-pub fn compute(cfg: Config, data: MarketData) -> Result<RunResult> {
-    solve(validate(cfg, data)?)
+pub fn compute(cfg: Config, data: MarketData, seed: u64) -> Result<RunResult> {
+    solve(validate(cfg, data)?, seed)
 }
 
-/// Solves the models, frontier, stress set and backtest of a prepared fund.
-pub fn solve(prepared: Prepared) -> Result<RunResult> {
+/// Solves the models, frontier, stress set, backtest and bands of a prepared fund; `seed` seeds the bands'
+/// resamples (the run takes it from the pack id, so a re-run draws the same ones).
+pub fn solve(prepared: Prepared, seed: u64) -> Result<RunResult> {
     let Prepared {
         cfg,
         data,
@@ -153,7 +154,7 @@ pub fn solve(prepared: Prepared) -> Result<RunResult> {
     let solved = solve_models(&p, &cfg, &data);
     crate::timings::add("models", models_start.elapsed());
     let portfolios = named_portfolios(&data, &solved.reports);
-    let analysis = crate::analysis::analyse(&cfg, &data, &p, &fs, &portfolios, shocks);
+    let analysis = crate::analysis::analyse(&cfg, &data, &p, &fs, &portfolios, shocks, seed);
     let policy = crate::analysis::policy::report(
         &cfg,
         &data,

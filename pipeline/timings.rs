@@ -6,13 +6,14 @@ use std::sync::Mutex;
 use std::time::{Duration, Instant};
 
 /// The stages in pipeline order, as printed.
-pub const STAGES: [&str; 10] = [
+pub const STAGES: [&str; 11] = [
     "ingest",
     "scenarios",
     "models",
     "frontier",
     "stress",
     "backtest",
+    "bands",
     "charts",
     "typesetting",
     "hashing",

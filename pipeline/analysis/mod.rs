@@ -4,6 +4,7 @@
 //! Reads the market data, the scenario set, the feasible set and the models' portfolios; writes nothing.
 
 pub mod backtest;
+pub mod bands;
 pub mod frontier;
 pub mod policy;
 pub mod stress;
@@ -22,10 +23,13 @@ pub struct Analysis {
     pub shocks: Vec<stress::Shock>,
     pub stress: Vec<stress::StressResult>,
     pub backtest: Option<backtest::Backtest>,
+    /// Estimation-error bands of every family's weights (None when switched off).
+    pub bands: Option<bands::Bands>,
 }
 
-/// Computes frontier, stress set and backtest. `portfolios` are (name, weights) of current and each model;
-/// `defined` are the stress file's shocks, resolved against the data before any LP (`run::prepare_fund`).
+/// Computes frontier, stress set, backtest and bands. `portfolios` are (name, weights) of current and each
+/// model with an optimum; `defined` are the stress file's shocks, resolved against the data before any LP
+/// (`run::prepare_fund`); `seed` seeds the bands' resamples ([`bands::seed_of`] the pack id).
 pub fn analyse(
     cfg: &Config,
     data: &MarketData,
@@ -33,6 +37,7 @@ pub fn analyse(
     fs: &FeasibleSet,
     portfolios: &[(String, Vec<f64>)],
     defined: Vec<stress::Shock>,
+    seed: u64,
 ) -> Analysis {
     let frontier = timings::time("frontier", || {
         frontier::sweep(p, cfg.analysis.frontier_points)
@@ -56,11 +61,22 @@ pub fn analyse(
         .collect();
     timings::add("stress", stress_start.elapsed());
     let backtest = timings::time("backtest", || backtest::run(cfg, data, fs));
+    let points: Vec<Option<Vec<f64>>> = crate::models::Family::ALL
+        .iter()
+        .map(|f| {
+            portfolios
+                .iter()
+                .find(|(name, _)| name == f.name())
+                .map(|(_, w)| w.clone())
+        })
+        .collect();
+    let bands = timings::time("bands", || bands::run(cfg, data, p.set, fs, &points, seed));
     Analysis {
         frontier,
         shocks,
         stress,
         backtest,
+        bands,
     }
 }
 

@@ -198,6 +198,20 @@ pub(super) fn check_analysis(a: &AnalysisOptions, s: &RawStress) -> Result<(), K
             format!("must be between 0 and 50, got {}", a.backtest_years),
         ));
     }
+    if a.band_resamples > 10_000 {
+        return Err((
+            "analysis.band_resamples",
+            format!("must be between 0 and 10000, got {}", a.band_resamples),
+        ));
+    }
+    if let Some(b) = a.band_block
+        && !(b.is_finite() && (1.0..=10_000.0).contains(&b))
+    {
+        return Err((
+            "analysis.band_block",
+            format!("must be a mean block length of 1 to 10000 observations, got {b}"),
+        ));
+    }
     if let Some(l) = s.loss_limit
         && !(l.is_finite() && l > 0.0 && l <= 1.0)
     {

@@ -71,6 +71,11 @@ pub struct AnalysisOptions {
     pub backtest_years: u32,
     /// Also backtest a daily 99% VaR over the last 250 observations (Basel traffic light).
     pub daily_var_check: bool,
+    /// Stationary-bootstrap resamples of the scenario window behind the estimation-error bands (0 turns
+    /// the bands off).
+    pub band_resamples: usize,
+    /// Mean block length of the stationary bootstrap, in observations (default: the scenario horizon).
+    pub band_block: Option<f64>,
 }
 
 impl Default for AnalysisOptions {
@@ -79,6 +84,8 @@ impl Default for AnalysisOptions {
             frontier_points: 21,
             backtest_years: 5,
             daily_var_check: true,
+            band_resamples: 0,
+            band_block: None,
         }
     }
 }

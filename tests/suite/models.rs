@@ -790,7 +790,7 @@ fn a_return_beyond_the_bound_that_reaches_the_models_is_a_data_error() {
     let k = data.dates.len() - 3;
     let day = data.dates[k];
     data.prices[1][k] = 1e300;
-    let Err(e) = tailpack::run::compute(cfg, data) else {
+    let Err(e) = tailpack::run::compute(cfg, data, 0) else {
         panic!("a return of about 1e298 must not reach the models");
     };
     assert_eq!(e.exit_code(), 3);
@@ -820,7 +820,7 @@ fn the_backtest_decides_each_month_as_the_run_solves() {
     let m = Market::new(4, "2020-01-01", "2024-06-28", 23);
     let tail = "limits:\n  turnover_max: 0.8\nmodels:\n  max_return:\n    cvar_cap: { times_min: 1.2 }\n  min_cvar:\n    return_floor: { plus_current: 0.0 }\nanalysis:\n  frontier_points: 2\n  backtest_years: 1\n";
     let path = f.small_fund(&m, &config(tail));
-    let latest = run::solve(run::prepare(&path, &Overrides::default()).unwrap()).unwrap();
+    let latest = run::solve(run::prepare(&path, &Overrides::default()).unwrap(), 0).unwrap();
     let backtest = latest.analysis.backtest.expect("one year of backtest");
     let first = backtest.rebalances[0];
     let then = run::prepare(
@@ -848,7 +848,7 @@ fn the_backtest_decides_each_month_as_the_run_solves() {
         current: current.as_ref(),
     };
     let direct = models::solve_all(&p, &targets, Premises::Establish);
-    let run_then = run::solve(then.clone()).unwrap();
+    let run_then = run::solve(then.clone(), 0).unwrap();
     let mut optimal = 0;
     for (k, family) in Family::ALL.into_iter().enumerate() {
         let (track, reported) = (&backtest.tracks[k], &run_then.models[k]);
