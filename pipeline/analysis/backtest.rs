@@ -155,6 +155,9 @@ fn decide(
         confidence: c,
         feasible: &fs,
         backend: cfg.backend,
+        // The active-CVaR budget is not applied month by month: the policy benchmark's non-investable
+        // series have prices in the scenario window only (a check of the run says so).
+        active: None,
     };
     let reference = data
         .holdings

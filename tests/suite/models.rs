@@ -68,6 +68,7 @@ pub(crate) fn problem<'a>(set: &'a ScenarioSet, fs: &'a FeasibleSet, c: f64) -> 
         confidence: c,
         feasible: fs,
         backend: Backend::Highs,
+        active: None,
     }
 }
 
