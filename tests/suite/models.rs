@@ -5,8 +5,8 @@ use super::common::{normal, repo};
 use rand::{RngExt, SeedableRng};
 use serde_json::{Value, json};
 use tailpack::config::Backend;
-use tailpack::models::{self, FeasibleSet, Group, Problem};
-use tailpack::risk::cvar_of;
+use tailpack::models::{self, ActiveBudget, FeasibleSet, Group, Method, Problem};
+use tailpack::risk::{active_cvar_of, cvar_of};
 use tailpack::scenarios::ScenarioSet;
 
 /// Builds a feasible set X for a test: starts long-only (every weight in [0, 1], budget Σx = 1, no group,
@@ -72,13 +72,15 @@ pub(crate) fn problem<'a>(set: &'a ScenarioSet, fs: &'a FeasibleSet, c: f64) -> 
     }
 }
 
-/// A random instance: scenarios, feasible set, confidence, cap and floor.
+/// A random instance: scenarios, feasible set, confidence, cap and floor, and optionally a benchmark's
+/// scenario returns with an active-CVaR budget.
 struct Instance {
     set: ScenarioSet,
     fs: FeasibleSet,
     c: f64,
     cap: f64,
     floor: f64,
+    active: Option<(Vec<f64>, f64)>,
 }
 
 fn instance(seed: u64) -> Instance {
@@ -124,12 +126,19 @@ fn instance(seed: u64) -> Instance {
         set,
         fs,
         c,
+        active: None,
     }
 }
 
 impl Instance {
     fn problem(&self) -> Problem<'_> {
-        problem(&self.set, &self.fs, self.c)
+        Problem {
+            active: self.active.as_ref().map(|(b, budget)| ActiveBudget {
+                benchmark: b,
+                budget: *budget,
+            }),
+            ..problem(&self.set, &self.fs, self.c)
+        }
     }
 }
 
@@ -142,6 +151,7 @@ fn to_json(i: &Instance) -> Value {
         "turnover_max": i.fs.turnover_max, "current": if i.fs.turnover_max.is_some() || i.fs.charges_costs() { json!(i.fs.current) } else { Value::Null },
         "cost_rates": if i.fs.charges_costs() { json!(i.fs.cost_rates) } else { Value::Null },
         "cvar_cap": i.cap, "return_floor": i.floor,
+        "benchmark": i.active.as_ref().map(|a| &a.0), "active_cvar_budget": i.active.as_ref().map(|a| a.1),
     })
 }
 
@@ -871,5 +881,139 @@ fn the_backtest_decides_each_month_as_the_run_solves() {
         optimal,
         Family::ALL.len(),
         "every family has a portfolio to compare"
+    );
+}
+
+/// `costed(seed)` with a benchmark outside the universe (0.6 × the assets' mean return plus 0.4 × a series
+/// of its own) and an active-CVaR budget halfway between the minimum active CVaR over X and the active
+/// CVaR of the capped max-return portfolio without a budget, so that it binds; the cap and floor set
+/// again on the smaller set.
+fn budgeted(seed: u64) -> Instance {
+    let mut i = costed(seed);
+    let mut rng = rand::rngs::StdRng::seed_from_u64(2000 + seed);
+    let n = i.set.width() as f64;
+    let b: Vec<f64> = (0..i.set.len())
+        .map(|k| {
+            let mean = i.set.row(k).iter().sum::<f64>() / n;
+            0.6 * mean + 0.4 * (0.002 + 0.012 * normal(&mut rng))
+        })
+        .collect();
+    let free = i.problem().max_return(Some(i.cap)).unwrap().weights;
+    let high = active_cvar_of(&i.set, &free, &b, i.c);
+    i.active = Some((b, f64::INFINITY));
+    let low = i
+        .problem()
+        .min_active_cvar_by(Method::Direct)
+        .unwrap()
+        .objective;
+    assert!(
+        high > low + 1e-4,
+        "seed {seed}: no room for a binding budget"
+    );
+    i.active.as_mut().unwrap().1 = low + 0.5 * (high - low);
+    let p = i.problem();
+    let min_cvar = p.min_cvar(None).unwrap();
+    let max_net = p.max_return(None).unwrap().objective;
+    let min_net = models::net_return(&p, &min_cvar.weights);
+    i.cap = min_cvar.objective * 1.3;
+    i.floor = min_net + 0.5 * (max_net - min_net);
+    i
+}
+
+/// Issue 16: the models with an active-CVaR budget (and costs, bounds, a group and a turnover limit)
+/// against scipy's HiGHS `linprog` (`tests/reference/cvar_reference.py`, which writes the budget through
+/// its own Rockafellar–Uryasev rows of the active loss, and solves the ratio both by Dinkelbach's method
+/// and by its own Charnes–Cooper LP), on every solve path: the direct LP and the cutting planes, with
+/// HiGHS and (on three seeds) with Clarabel.
+#[test]
+fn active_budget_optima_match_scipy_highs_on_every_solve_path() {
+    let mut binding = 0;
+    for seed in 0..8u64 {
+        let i = budgeted(seed);
+        let budget = i.active.as_ref().unwrap().1;
+        let r = reference(&i);
+        let reference_of = |m: &str| r[m]["objective"].as_f64().unwrap();
+        // The two reference methods for the ratio agree with each other first.
+        close(
+            reference_of("max_ratio_cc"),
+            reference_of("max_ratio"),
+            1e-6,
+            &format!("seed {seed}: reference Charnes–Cooper vs Dinkelbach"),
+        );
+        let a = r["max_return"]["active_cvar"].as_f64().unwrap();
+        assert!(a <= budget + 1e-7, "seed {seed}: reference over budget");
+        binding += usize::from(a >= budget - 1e-6);
+        let backends: &[Backend] = if seed < 3 {
+            &[Backend::Highs, Backend::Clarabel]
+        } else {
+            &[Backend::Highs]
+        };
+        for &backend in backends {
+            for method in [Method::Direct, Method::Cuts] {
+                let p = Problem {
+                    backend,
+                    ..i.problem()
+                };
+                let tol = if backend == Backend::Highs {
+                    1e-7
+                } else {
+                    1e-6
+                };
+                let what =
+                    |m: &str| format!("seed {seed} {backend:?} {method:?} {m} with a budget");
+                let mr = p.max_return_by(Some(i.cap), method).unwrap();
+                close(
+                    mr.objective,
+                    reference_of("max_return"),
+                    tol,
+                    &what("max_return"),
+                );
+                let mc = p.min_cvar_by(Some(i.floor), method).unwrap();
+                close(
+                    mc.objective,
+                    reference_of("min_cvar"),
+                    tol,
+                    &what("min_cvar"),
+                );
+                let ratio = p.max_ratio_by(method).unwrap();
+                let got =
+                    models::net_return(&p, &ratio.weights) / cvar_of(&i.set, &ratio.weights, i.c);
+                close(got, reference_of("max_ratio_cc"), 1e-6, &what("max_ratio"));
+                let low = p.min_active_cvar_by(method).unwrap().objective;
+                close(
+                    low,
+                    reference_of("min_active_cvar_over_x"),
+                    tol,
+                    &what("min active CVaR"),
+                );
+                close(
+                    p.min_cvar_by(None, method).unwrap().objective,
+                    reference_of("min_cvar_over_x"),
+                    tol,
+                    &what("min CVaR over X"),
+                );
+                // Each portfolio keeps the budget, recomputed here from its weights by sorting.
+                for (m, x) in [
+                    ("max_return", &mr.weights),
+                    ("min_cvar", &mc.weights),
+                    ("max_ratio", &ratio.weights),
+                ] {
+                    let (b, _) = i.active.as_ref().unwrap();
+                    let active = active_cvar_of(&i.set, x, b, i.c);
+                    assert!(
+                        active <= budget + 1e-6,
+                        "{}: active CVaR {active} over {budget}",
+                        what(m)
+                    );
+                }
+                assert!(models::verify(&p, &mr.weights, Some(i.cap), None) < 1e-6);
+                assert!(models::verify(&p, &mc.weights, None, Some(i.floor)) < 1e-6);
+                assert!(models::verify(&p, &ratio.weights, None, None) < 1e-6);
+            }
+        }
+    }
+    assert!(
+        binding >= 4,
+        "the budget binds max_return on only {binding} of 8 seeds"
     );
 }
