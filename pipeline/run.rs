@@ -230,7 +230,7 @@ fn active_budget_check(
     Some(Check::pass(
         "policy.active_cvar_budget",
         format!(
-            "every model keeps its {:.1}% active CVaR against the policy benchmark at or below the budget {:.2}% (policy.active_cvar_budget): {solved}; the walk-forward backtest's monthly models do not apply it (the benchmark's non-investable series have prices in the scenario window only)",
+            "every model keeps its {:.1}% active CVaR against the policy benchmark at or below the budget {:.2}% (policy.active_cvar_budget): {solved}; the walk-forward backtest's monthly models are solved without it",
             c * 100.0,
             budget * 100.0
         ),

@@ -553,3 +553,78 @@ fn a_budget_below_the_least_active_cvar_empties_the_set_and_says_so() {
         );
     }
 }
+
+/// The backtest's realised (ex-post) tracking error, recomputed here from the price file and the months
+/// in results.json: the benchmark's return over each month is Σ target × (P[next]/P[date] − 1) of its
+/// series (the definition of the policy benchmark), active return is the month's realised return
+/// net of costs minus it, and the tracking error is the sample standard deviation of active returns
+/// (Grinold & Kahn, "Active Portfolio Management", ch. 3), annualised by √12 for monthly observations.
+#[test]
+fn backtest_ex_post_tracking_error_from_the_price_file() {
+    let f = Fixture::new();
+    let cfg = fund_with_reference(&f, POLICY, false);
+    let text = std::fs::read_to_string(&cfg)
+        .unwrap()
+        .replace("backtest_years: 0", "backtest_years: 1");
+    f.write("fund.yaml", &text);
+    let pack = run_pack(&f, &cfg);
+    let r = json(&pack.join("results.json"));
+    let prices = std::fs::read_to_string(f.path("data/prices.csv")).unwrap();
+    let mut lines = prices.lines();
+    let header: Vec<&str> = lines.next().unwrap().split(',').collect();
+    let col = |name: &str| header.iter().position(|h| *h == name).unwrap();
+    let (eq, bond) = (col("REF-EQ"), col("AS02"));
+    let rows: std::collections::HashMap<String, Vec<f64>> = lines
+        .map(|l| {
+            let cells: Vec<&str> = l.split(',').collect();
+            let values = cells[1..].iter().map(|c| c.parse().unwrap_or(f64::NAN));
+            (
+                cells[0].to_string(),
+                std::iter::once(f64::NAN).chain(values).collect(),
+            )
+        })
+        .collect();
+    let bench = |date: &str, next: &str| {
+        let (a, b) = (&rows[date], &rows[next]);
+        0.6 * (b[eq] / a[eq] - 1.0) + 0.4 * (b[bond] / a[bond] - 1.0)
+    };
+    let words = pdf_text(&pack.join("pack.pdf"));
+    let mut checked = 0;
+    for (model, t) in r["backtest"]["models"].as_object().unwrap() {
+        let active: Vec<f64> = t["months"]
+            .as_array()
+            .unwrap()
+            .iter()
+            .filter(|m| !m["realised_return_net"].is_null())
+            .map(|m| {
+                m["realised_return_net"].as_f64().unwrap()
+                    - bench(m["date"].as_str().unwrap(), m["next"].as_str().unwrap())
+            })
+            .collect();
+        assert!(active.len() >= 10, "{model}: {} months", active.len());
+        let n = active.len() as f64;
+        let mean = active.iter().sum::<f64>() / n;
+        let te = (active.iter().map(|a| (a - mean).powi(2)).sum::<f64>() / (n - 1.0)).sqrt();
+        let e = &t["ex_post_active"];
+        assert_eq!(e["months"].as_u64(), Some(active.len() as u64), "{model}");
+        close(
+            e["mean_active_return"].as_f64().unwrap(),
+            mean,
+            "mean active",
+        );
+        assert!(
+            (e["tracking_error"].as_f64().unwrap() - te).abs() < 1e-12,
+            "{model}: {e} vs {te}"
+        );
+        let annual = te * 12f64.sqrt();
+        assert!((e["tracking_error_annualised"].as_f64().unwrap() - annual).abs() < 1e-12);
+        let printed = format!("{:.2}%", annual * 100.0);
+        assert!(
+            words.contains(&printed),
+            "{model}: {printed} not in the PDF"
+        );
+        checked += 1;
+    }
+    assert_eq!(checked, 3);
+    assert!(words.contains("Tracking error, annualised"), "{words}");
+}
