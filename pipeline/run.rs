@@ -222,7 +222,7 @@ fn active_budget_check(
             format!("{} {:.2}%{binding}", x.portfolio, a * 100.0)
         })
         .collect();
-    let solved = if models.is_empty() {
+    let each = if models.is_empty() {
         "no model has a portfolio".to_string()
     } else {
         format!("active CVaR {}", models.join(", "))
@@ -230,9 +230,9 @@ fn active_budget_check(
     Some(Check::pass(
         "policy.active_cvar_budget",
         format!(
-            "every model keeps its {:.1}% active CVaR against the policy benchmark at or below the budget {:.2}% (policy.active_cvar_budget): {solved}; the walk-forward backtest's monthly models are solved without it",
-            c * 100.0,
-            budget * 100.0
+            "active-CVaR budget {:.2}% (policy.active_cvar_budget): the models keep their {:.1}% active CVaR against the policy benchmark at or below it; {each}; the walk-forward backtest's monthly models are solved without it",
+            budget * 100.0,
+            c * 100.0
         ),
     ))
 }
