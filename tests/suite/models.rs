@@ -549,6 +549,85 @@ fn hand_worked_models_on_five_scenarios() {
     }
 }
 
+/// The hand-worked case of `tests/reference/selftest.py` (`test_hand_active_budget`) with the benchmark
+/// = asset A and an active-CVaR budget of 0.004: on long-only X the active CVaR at 0.6 is 0.01 b + 0.05 c
+/// (the worked derivation is there), which cuts X to the triangle (a, b, c) = (1, 0, 0), (0.6, 0.4, 0),
+/// (0.92, 0, 0.08). Hence max_return (cap 0.02 slack) = 0.0128 and max_ratio = 32/35, both at
+/// (0.6, 0.4, 0); min_cvar with floor 0.0112 = 0.038/3 at (2.2/3, 0.8/3, 0); the least active CVaR is 0
+/// at A alone. On both backends and both methods.
+#[test]
+fn hand_worked_models_with_an_active_budget_on_five_scenarios() {
+    let returns = vec![
+        -0.01, -0.03, -0.08, -0.01, -0.01, -0.04, 0.01, 0.03, 0.06, 0.02, 0.04, 0.08, 0.03, 0.07,
+        0.13,
+    ];
+    let benchmark: Vec<f64> = returns.iter().step_by(3).copied().collect();
+    let set = ScenarioSet::from_matrix(
+        vec!["A".into(), "B".into(), "C".into()],
+        returns,
+        vec![0.2; 5],
+    )
+    .unwrap();
+    let fs = Limits::long_only(3)
+        .upper(vec![1.0, 0.5, 1.0])
+        .group("BC", &[1, 2], 0.0, 0.8)
+        .build();
+    let near = |got: &[f64], want: [f64; 3], tol: f64, what: &str| {
+        for (g, w) in got.iter().zip(want) {
+            assert!((g - w).abs() < tol, "{what}: {got:?} vs {want:?}");
+        }
+    };
+    for backend in [Backend::Highs, Backend::Clarabel] {
+        for method in [Method::Direct, Method::Cuts] {
+            let p = Problem {
+                backend,
+                active: Some(ActiveBudget {
+                    benchmark: &benchmark,
+                    budget: 0.004,
+                }),
+                ..problem(&set, &fs, 0.6)
+            };
+            let tol = if backend == Backend::Highs {
+                1e-10
+            } else {
+                1e-6
+            };
+            let what = |m: &str| format!("{backend:?} {method:?} {m}");
+            let m = p.max_return_by(Some(0.02), method).unwrap();
+            assert!((m.objective - 0.0128).abs() < tol, "{}", what("max_return"));
+            near(&m.weights, [0.6, 0.4, 0.0], tol * 10.0, &what("max_return"));
+            let r = p.max_ratio_by(method).unwrap();
+            assert!(
+                (r.objective - 32.0 / 35.0).abs() < tol,
+                "{}: {}",
+                what("ratio"),
+                r.objective
+            );
+            near(&r.weights, [0.6, 0.4, 0.0], tol * 10.0, &what("max_ratio"));
+            let v = p.min_cvar_by(Some(0.0112), method).unwrap();
+            assert!(
+                (v.objective - 0.038 / 3.0).abs() < tol,
+                "{}",
+                what("min_cvar")
+            );
+            near(
+                &v.weights,
+                [2.2 / 3.0, 0.8 / 3.0, 0.0],
+                tol * 10.0,
+                &what("min_cvar"),
+            );
+            let a = p.min_active_cvar_by(method).unwrap();
+            assert!(a.objective.abs() < tol, "{}", what("least active CVaR"));
+            near(
+                &a.weights,
+                [1.0, 0.0, 0.0],
+                tol * 10.0,
+                &what("least active CVaR"),
+            );
+        }
+    }
+}
+
 #[test]
 fn preconditions_reject_riskless_and_all_losing_universes() {
     // A riskless asset (return 0.001 in every scenario) allowed at 100%: min CVaR over X = −0.001 ≤ 0.
