@@ -356,25 +356,7 @@ impl Problem<'_> {
         let t_max = self.scale_bound(kind, &mut timing)?;
         let aux = start.elapsed();
         let mut lp = Lp::new(self.feasible, matches!(kind, Kind::Ratio(_)));
-        let mut blocks: Vec<CutBlock> = Vec::new();
-        let block = if total {
-            let (f, cc) = lp.cvar_cuts(self.confidence);
-            blocks.push(CutBlock {
-                cc,
-                benchmark: None,
-            });
-            f
-        } else {
-            Lin::default()
-        };
-        let active = self.active.map(|a| {
-            let (f, cc) = lp.cvar_cuts(self.confidence);
-            blocks.push(CutBlock {
-                cc,
-                benchmark: Some(a.benchmark),
-            });
-            f
-        });
+        let (block, active, blocks) = self.cut_blocks(&mut lp, total);
         if let (Some(t), Some(bound)) = (lp.scale, t_max) {
             lp.at_most(Lin(vec![(t, 1.0)]), bound);
         }
@@ -411,6 +393,31 @@ impl Problem<'_> {
             }
         }
         self.solve(kind, Method::Direct)
+    }
+
+    /// The cutting-plane CVaR blocks of `lp`: the total loss's when `total`, and the active loss's with a
+    /// budget; returns their CVaR functions (the total's empty without it) and the blocks, in that order.
+    fn cut_blocks<'s>(&'s self, lp: &mut Lp, total: bool) -> (Lin, Option<Lin>, Vec<CutBlock<'s>>) {
+        let mut blocks = Vec::new();
+        let block = if total {
+            let (f, cc) = lp.cvar_cuts(self.confidence);
+            blocks.push(CutBlock {
+                cc,
+                benchmark: None,
+            });
+            f
+        } else {
+            Lin::default()
+        };
+        let active = self.active.map(|a| {
+            let (f, cc) = lp.cvar_cuts(self.confidence);
+            blocks.push(CutBlock {
+                cc,
+                benchmark: Some(a.benchmark),
+            });
+            f
+        });
+        (block, active, blocks)
     }
 
     /// The cut of block `b` over the scenarios `cut`: its lower bound and terms.
