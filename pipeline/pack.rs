@@ -273,6 +273,7 @@ fn policy_json(r: &RunResult) -> Value {
         "lines": lines,
         "benchmark_weights": Value::Object(p.benchmark_weights.iter().map(|(s, w)| (s.clone(), json!(w))).collect()),
         "ranges_as_limits": p.ranges_as_limits,
+        "active_cvar_budget": r.config.policy.as_ref().and_then(|p| p.active_cvar_budget),
         "horizons_per_year": p.horizons_per_year,
         "annualisation": "tracking_error_annualised = tracking_error × √horizons_per_year; horizons_per_year = observations a year in the scenario window ((rows − 1) over its calendar years of 365.25 days) ÷ the horizon in observations",
         "portfolios": portfolios,

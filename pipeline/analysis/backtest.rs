@@ -181,6 +181,9 @@ fn decide(
         confidence: c,
         feasible: &fs,
         backend: cfg.backend,
+        // The active-CVaR budget is not applied month by month (the run's check
+        // `policy.active_cvar_budget` says so).
+        active: None,
     };
     let reference = data
         .holdings

@@ -280,6 +280,9 @@ pub struct RawPolicy {
     /// limit).
     pub ranges_as_limits: bool,
     pub lines: Vec<RawPolicyLine>,
+    /// A limit on the models' active CVaR against the policy benchmark at the model confidence, as a
+    /// fraction of the fund's value; none by default.
+    pub active_cvar_budget: Option<f64>,
 }
 
 impl Default for RawPolicy {
@@ -287,6 +290,7 @@ impl Default for RawPolicy {
         RawPolicy {
             ranges_as_limits: true,
             lines: vec![],
+            active_cvar_budget: None,
         }
     }
 }
