@@ -206,7 +206,7 @@ fn active_benchmark(
 }
 
 /// With an active-CVaR budget, a check naming it, each model's active CVaR against it (`binding` within
-/// 1e-6) and that the backtest's monthly models do not apply it.
+/// 1e-6) and that the backtest's monthly models keep it too.
 fn active_budget_check(
     cfg: &Config,
     policy: Option<&crate::analysis::policy::PolicyReport>,
@@ -231,7 +231,7 @@ fn active_budget_check(
     Some(Check::pass(
         "policy.active_cvar_budget",
         format!(
-            "active-CVaR budget {:.2}% (policy.active_cvar_budget): the models keep their {:.1}% active CVaR against the policy benchmark at or below it; {each}; the walk-forward backtest's monthly models are solved without it",
+            "active-CVaR budget {:.2}% (policy.active_cvar_budget): the models keep their {:.1}% active CVaR against the policy benchmark at or below it; {each}; the walk-forward backtest's monthly models and the bands' resamples keep it too, each against the benchmark on its own scenarios",
             budget * 100.0,
             c * 100.0
         ),

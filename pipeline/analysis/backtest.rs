@@ -15,10 +15,11 @@
 //! active returns (realised net of costs minus benchmark; Grinold & Kahn, "Active Portfolio Management",
 //! ch. 3), annualised by √12.
 
+use super::resolve::{self, History};
 use super::vartest::{self, LrTest, Zone};
 use crate::config::Config;
 use crate::ingest::MarketData;
-use crate::models::{self, Family, FeasibleSet, Premises, Problem, Status, Targets};
+use crate::models::{self, Family, FeasibleSet, Status};
 use crate::risk;
 use crate::scenarios;
 use chrono::{Datelike, Months, NaiveDate};
@@ -168,33 +169,15 @@ fn decide(
     live: &FeasibleSet,
     m: usize,
 ) -> Result<Vec<Decision>, String> {
-    let (assets, dates, prices, fs) = window(cfg, data, live, m)?;
-    let set = scenarios::from_prices(&assets, &dates, &prices, &cfg.scenarios)
-        .map_err(|e| e.to_string())?;
-    if set.len() < crate::ingest::MIN_SCENARIOS {
-        return Err(format!("only {} scenarios", set.len()));
-    }
-    let c = cfg.confidence;
-    let p = Problem {
-        set: &set,
-        mu: set.mean(),
-        confidence: c,
+    let (dates, prices, reference, fs) = window(cfg, data, live, m)?;
+    let history = History {
+        dates: &dates,
+        prices: &prices,
+        reference: &reference,
         feasible: &fs,
-        backend: cfg.backend,
-        // The active-CVaR budget is not applied month by month (the run's check
-        // `policy.active_cvar_budget` says so).
-        active: None,
     };
-    let reference = data
-        .holdings
-        .as_ref()
-        .map(|h| risk::profile(&set, h, &[c], c));
-    let targets = Targets {
-        cap: cfg.cap,
-        floor: cfg.floor,
-        current: reference.as_ref(),
-    };
-    let solution = models::solve_all(&p, &targets, Premises::Establish);
+    let (set, solution) = resolve::solve(cfg, data, &history)?;
+    let c = cfg.confidence;
     Ok(solution
         .families
         .into_iter()
@@ -212,7 +195,7 @@ fn decide(
         .collect())
 }
 
-type Window = (Vec<String>, Vec<NaiveDate>, Vec<Vec<f64>>, FeasibleSet);
+type Window = (Vec<NaiveDate>, Vec<Vec<f64>>, Vec<Vec<f64>>, FeasibleSet);
 
 /// The lookback window ending at row `m`; assets without a full price series there get zero weight.
 fn window(cfg: &Config, data: &MarketData, live: &FeasibleSet, m: usize) -> Result<Window, String> {
@@ -239,12 +222,12 @@ fn window(cfg: &Config, data: &MarketData, live: &FeasibleSet, m: usize) -> Resu
             prices.push(vec![1.0; slice.len()]);
         }
     }
-    Ok((
-        data.assets.clone(),
-        data.full_dates[s..=m].to_vec(),
-        prices,
-        fs,
-    ))
+    let reference = data
+        .reference_full_prices
+        .iter()
+        .map(|p| p[s..=m].to_vec())
+        .collect();
+    Ok((data.full_dates[s..=m].to_vec(), prices, reference, fs))
 }
 
 fn realised(data: &MarketData, w: &[f64], from: usize, to: usize) -> (f64, Vec<f64>) {

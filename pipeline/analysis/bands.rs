@@ -17,12 +17,13 @@
 //! point solution as one stability figure. Resample b draws from its own generator seeded with seed + b,
 //! so the bands do not depend on the order threads finish in; the seed comes from the pack id.
 
+use super::resolve::{self, History};
 use crate::config::Config;
 use crate::ingest::MarketData;
-use crate::models::{self, Family, FeasibleSet, Premises, Problem, Targets};
+use crate::models::{self, Family, FeasibleSet};
 use crate::random::Rng;
 use crate::risk;
-use crate::scenarios::{self, ScenarioSet};
+use crate::scenarios::ScenarioSet;
 use rayon::prelude::*;
 use serde::Serialize;
 
@@ -126,10 +127,13 @@ pub fn run(
         .analysis
         .band_block
         .unwrap_or(cfg.scenarios.horizon as f64);
-    let daily = daily_returns(&data.prices);
+    let daily = Daily {
+        universe: daily_returns(&data.prices),
+        reference: daily_returns(&data.reference_prices),
+    };
     let draws: Vec<Draw> = (0..b)
         .into_par_iter()
-        .map(|k| resolve(cfg, data, fs, &daily, block, seed.wrapping_add(k as u64)))
+        .map(|k| redraw(cfg, data, fs, &daily, block, seed.wrapping_add(k as u64)))
         .collect();
     let mu = set.mean();
     let models = Family::ALL
@@ -145,6 +149,12 @@ pub fn run(
     })
 }
 
+/// The window's per-observation returns, `[row][series]`, of the universe and of the reference series.
+struct Daily {
+    universe: Vec<Vec<f64>>,
+    reference: Vec<Vec<f64>>,
+}
+
 /// Per-observation returns `daily[row][asset]` = P[row+1]/P[row] − 1 of the window's prices.
 fn daily_returns(prices: &[Vec<f64>]) -> Vec<Vec<f64>> {
     let rows = prices.first().map_or(0, Vec::len);
@@ -153,56 +163,52 @@ fn daily_returns(prices: &[Vec<f64>]) -> Vec<Vec<f64>> {
         .collect()
 }
 
-/// Draws one resampled history, rebuilds its scenarios and solves every family on it.
-fn resolve(
+/// Draws one resampled history (the universe and the policy's non-investable series on the same rows),
+/// and solves every family on it as the run does ([`resolve::solve`]).
+fn redraw(
     cfg: &Config,
     data: &MarketData,
     fs: &FeasibleSet,
-    daily: &[Vec<f64>],
+    daily: &Daily,
     block: f64,
     seed: u64,
 ) -> Draw {
     let mut rng = Rng::from_seed(seed);
-    let rows = stationary_indices(&mut rng, daily.len(), daily.len(), block);
-    let prices: Vec<Vec<f64>> = data
-        .prices
+    let n = daily.universe.len();
+    let rows = stationary_indices(&mut rng, n, n, block);
+    let prices = rebuilt(&data.prices, &daily.universe, &rows);
+    let reference = rebuilt(&data.reference_prices, &daily.reference, &rows);
+    let history = History {
+        dates: &data.dates,
+        prices: &prices,
+        reference: &reference,
+        feasible: fs,
+    };
+    match resolve::solve(cfg, data, &history) {
+        Ok((_, solution)) => solution
+            .families
+            .into_iter()
+            .map(|f| match f.outcome.status {
+                models::Status::Optimal => f.outcome.weights,
+                _ => None,
+            })
+            .collect(),
+        Err(_) => vec![None; Family::ALL.len()],
+    }
+}
+
+/// Price paths from each series' first price compounded by the resampled rows' returns.
+fn rebuilt(prices: &[Vec<f64>], daily: &[Vec<f64>], rows: &[usize]) -> Vec<Vec<f64>> {
+    prices
         .iter()
         .enumerate()
         .map(|(a, p)| {
-            let mut path = Vec::with_capacity(p.len());
+            let mut path = Vec::with_capacity(rows.len() + 1);
             path.push(p[0]);
-            for &r in &rows {
+            for &r in rows {
                 path.push(path[path.len() - 1] * (1.0 + daily[r][a]));
             }
             path
-        })
-        .collect();
-    let none = || vec![None; Family::ALL.len()];
-    let Ok(set) = scenarios::from_prices(&data.assets, &data.dates, &prices, &cfg.scenarios) else {
-        return none();
-    };
-    let p = Problem {
-        set: &set,
-        mu: set.mean(),
-        confidence: cfg.confidence,
-        feasible: fs,
-        backend: cfg.backend,
-    };
-    let current = data
-        .holdings
-        .as_ref()
-        .map(|h| risk::profile(&set, h, &[cfg.confidence], cfg.confidence));
-    let targets = Targets {
-        cap: cfg.cap,
-        floor: cfg.floor,
-        current: current.as_ref(),
-    };
-    models::solve_all(&p, &targets, Premises::Establish)
-        .families
-        .into_iter()
-        .map(|f| match f.outcome.status {
-            models::Status::Optimal => f.outcome.weights,
-            _ => None,
         })
         .collect()
 }

@@ -7,6 +7,7 @@ pub mod backtest;
 pub mod bands;
 pub mod frontier;
 pub mod policy;
+pub mod resolve;
 pub mod stress;
 pub mod vartest;
 
