@@ -257,7 +257,7 @@ fn trade_row(r: &RunResult, t: &Trade, (current, x): (&[f64], &[f64]), costs: bo
     let rate = r.feasible.cost_rates.get(i).copied().unwrap_or(0.0);
     TradeRow {
         asset: r.data.assets[i].clone(),
-        name: r.data.meta[i].name.clone(),
+        name: name(r, i),
         class: format::title(&r.data.meta[i].class),
         rate: if costs {
             format::number(rate * 1e4, 1)
@@ -270,6 +270,16 @@ fn trade_row(r: &RunResult, t: &Trade, (current, x): (&[f64], &[f64]), costs: bo
         amount: t
             .amount
             .map_or(String::new(), |a| format::money(a, Style::Return)),
+    }
+}
+
+/// An asset's name, blank when the metadata gives none (it then repeats the code).
+fn name(r: &RunResult, i: usize) -> String {
+    let n = &r.data.meta[i].name;
+    if *n == r.data.assets[i] {
+        String::new()
+    } else {
+        n.clone()
     }
 }
 

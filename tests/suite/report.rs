@@ -50,6 +50,7 @@ fn pdf_has_every_section_and_the_figures_of_results_json() {
         "Contents",
         "Summary",
         "Allocations",
+        "Trades and costs",
         "Tail loss",
         "Further analysis",
         "Checks",
@@ -126,6 +127,7 @@ fn pdf_has_every_section_and_the_figures_of_results_json() {
     }
     further_analysis_matches_results_json(&text, &r);
     policy_page_matches_results_json(&text, &r);
+    super::trades::demo_section_matches_results_json(&text, &dir);
 }
 
 /// The "Position against policy" page of the demo pack against results.json `policy` (README, "Policy in
@@ -409,8 +411,9 @@ fn a_200_asset_universe_renders_with_paginated_weights() {
     let pages = pdf_pages(&pdf);
     // Bound: at most 18 pages of fixed sections (the demo pack's 19 less its one page of weights; this fund has
     // no stress file, so fewer) plus the weights table at no fewer than 40 rows a page (200 rows → at most 5
-    // pages) plus slack for the checks table: at most 25 pages.
-    assert!((16..=25).contains(&pages), "200 assets gave {pages} pages");
+    // pages) plus slack for the checks table, plus the trades section (at most two pages: the figures and
+    // three lists of at most eleven rows): at most 27 pages.
+    assert!((16..=27).contains(&pages), "200 assets gave {pages} pages");
     let text = pdf_text(&pdf);
     for a in &m.assets {
         assert!(
@@ -528,6 +531,7 @@ fn a_fund_without_holdings_and_an_infeasible_model_still_gets_a_full_pack() {
         !text.contains("Current"),
         "without holdings there is no current portfolio to show"
     );
+    super::trades::says_there_is_nothing_to_trade_from(&text);
     let cvar = printed(r["models"]["max_return"]["cvar"].as_f64().unwrap(), false);
     assert!(
         text.contains(&cvar),
