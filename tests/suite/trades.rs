@@ -362,8 +362,9 @@ pub(super) fn demo_section_matches_results_json(text: &str, pack: &Path) {
 }
 
 /// A fund of 14 assets (alternating equity and bond, equal current weights) with cost rates (equity 20 bp,
-/// bond 8 bp) and the `fund` section's extra lines, so the max-return model trades more than ten assets.
-fn fund(f: &Fixture, fund: &str, costs: bool) {
+/// bond 8 bp) and the `fund` section's extra lines, so the max-return model trades more than ten assets;
+/// `floor` is the min-CVaR model's expected-return floor.
+fn fund(f: &Fixture, fund: &str, costs: bool, floor: f64) {
     let m = Market::new(14, "2021-01-01", "2024-06-28", 43);
     let costs = if costs {
         "costs:\n  class_bps: { equity: 20, bond: 8 }\n"
@@ -371,7 +372,7 @@ fn fund(f: &Fixture, fund: &str, costs: bool) {
         ""
     };
     f.small_fund(&m, &format!(
-        "fund:\n  name: Trade Test Fund (fictional)\n{fund}data:\n  prices: data/prices.csv\n  assets: data/assets.csv\n  holdings: data/holdings.csv\nscenarios:\n  horizon: 5\n  lookback_years: 2\nmodels:\n  max_return:\n    cvar_cap: {{ times_min: 1.5 }}\n  min_cvar:\n    return_floor: {{ value: 0.0 }}\n{costs}analysis:\n  frontier_points: 2\n  backtest_years: 0\n  daily_var_check: false\noutput:\n  root: out\n"
+        "fund:\n  name: Trade Test Fund (fictional)\n{fund}data:\n  prices: data/prices.csv\n  assets: data/assets.csv\n  holdings: data/holdings.csv\nscenarios:\n  horizon: 5\n  lookback_years: 2\nmodels:\n  max_return:\n    cvar_cap: {{ times_min: 1.5 }}\n  min_cvar:\n    return_floor: {{ value: {floor} }}\n{costs}analysis:\n  frontier_points: 2\n  backtest_years: 0\n  daily_var_check: false\noutput:\n  root: out\n"
     ));
 }
 
@@ -384,7 +385,7 @@ fn run(f: &Fixture) -> std::path::PathBuf {
 #[test]
 fn without_a_fund_value_trades_are_weight_changes_and_costs_basis_points() {
     let f = Fixture::new();
-    fund(&f, "", true);
+    fund(&f, "", true, 0.0);
     let pack = run(&f);
     let r = json(&pack.join("results.json"));
     assert!(r["fund_value"].is_null() && r["trades"].is_null());
@@ -450,10 +451,12 @@ fn without_a_fund_value_trades_are_weight_changes_and_costs_basis_points() {
     );
 }
 
+/// Also a model without a solution: a 50% expected return over five observations is out of reach, so
+/// min CVaR is infeasible and has no trades.
 #[test]
 fn without_cost_rates_trades_are_shown_free_of_cost() {
     let f = Fixture::new();
-    fund(&f, "  value: 40000000\n  base_currency: XTS\n", false);
+    fund(&f, "  value: 40000000\n  base_currency: XTS\n", false, 0.5);
     let pack = run(&f);
     let lines = section(&pdf_text(&pack.join("pack.pdf")), 4);
     let flat = lines.join(" ");
@@ -473,13 +476,26 @@ fn without_cost_rates_trades_are_shown_free_of_cost() {
     );
     let w = weights(&pack);
     let r = json(&pack.join("results.json"));
+    assert_eq!(
+        r["models"]["min_cvar"]["status"], "infeasible",
+        "the fixture makes min CVaR infeasible"
+    );
     let cells: Vec<String> = MODELS
         .iter()
-        .map(|(k, _)| percent(r["models"][*k]["expected_return"].as_f64().unwrap(), true))
+        .map(|(k, _)| {
+            r["models"][*k]["expected_return"]
+                .as_f64()
+                .map_or("\u{2014}".into(), |x| percent(x, true))
+        })
         .collect();
     has_row(
         &lines,
         &format!("Expected return (no costs) {}", cells.join(" ")),
+    );
+    assert_eq!(
+        list(&lines, "Min CVaR").first().map(String::as_str),
+        Some("The model has no solution, so there is nothing to trade."),
+        "a model without a solution says so in its list"
     );
     let (rows, _) = printed_rows(
         list(&lines, "Max return"),
