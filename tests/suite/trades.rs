@@ -138,11 +138,11 @@ fn changes(w: &BTreeMap<String, BTreeMap<String, f64>>, model: &str) -> Vec<(Str
         .collect()
 }
 
-/// The printed rows of a list: the listed trades (asset, the row's tokens) and the summed line's tokens.
-fn printed_rows(
-    lines: &[String],
-    assets: &[String],
-) -> (Vec<(String, Vec<String>)>, Option<Vec<String>>) {
+/// A printed trade row: its asset and its words.
+type Row = (String, Vec<String>);
+
+/// The printed rows of a list: the listed trades and the summed line's words.
+fn printed_rows(lines: &[String], assets: &[String]) -> (Vec<Row>, Option<Vec<String>>) {
     let tokens = |l: &str| l.split(' ').map(str::to_string).collect::<Vec<_>>();
     let rows = lines
         .iter()
