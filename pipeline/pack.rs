@@ -167,20 +167,21 @@ fn costs_json(r: &RunResult) -> Value {
 }
 
 /// `trades`: per model with a portfolio, the amount bought (positive) or sold (negative) of each asset
-/// traded, in the base currency: value × (weight − current weight). Null without a fund value or current
-/// holdings (no money figures, or nothing to trade from).
+/// traded, in the base currency: value × (weight − current weight), as the run sized them
+/// ([`crate::run::Trade`]). Null without a fund value or current holdings (no money figures, or nothing to
+/// trade from).
 fn trades_json(r: &RunResult) -> Value {
-    let (Some(money), Some(current)) = (&r.config.fund.money, &r.data.holdings) else {
+    if r.config.fund.money.is_none() || r.data.holdings.is_none() {
         return Value::Null;
-    };
+    }
     let trades: Map<String, Value> = r
         .models
         .iter()
-        .filter_map(|m| m.outcome.weights.as_ref().map(|w| (m.name, w)))
-        .map(|(name, w)| {
-            let list: Map<String, Value> = crate::models::trades(current, w)
-                .into_iter()
-                .map(|(i, dw)| (r.data.assets[i].clone(), json!(money.value * dw)))
+        .filter_map(|m| m.trades.as_ref().map(|t| (m.name, t)))
+        .map(|(name, list)| {
+            let list: Map<String, Value> = list
+                .iter()
+                .filter_map(|t| t.amount.map(|a| (r.data.assets[t.asset].clone(), json!(a))))
                 .collect();
             (name.to_string(), Value::Object(list))
         })

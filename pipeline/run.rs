@@ -49,9 +49,37 @@ pub struct ModelReport {
     pub cost: Option<f64>,
     /// Expected return net of that cost (`None` without a portfolio).
     pub expected_return_net: Option<f64>,
+    /// The trades from the current holdings to the portfolio, in asset order (`None` without a portfolio
+    /// or without current holdings).
+    pub trades: Option<Vec<Trade>>,
     /// Assets at their upper / lower bound (lower only when that bound is positive).
     pub at_upper: Vec<String>,
     pub at_lower: Vec<String>,
+}
+
+/// One asset bought or sold on the way from the current holdings to a model's portfolio.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Trade {
+    /// The asset's index in the universe.
+    pub asset: usize,
+    /// The weight change x − current, a fraction of the fund's value (positive: bought).
+    pub change: f64,
+    /// The amount bought (positive) or sold (negative) in the base currency, value × change; `None`
+    /// without a fund value (`fund.value`).
+    pub amount: Option<f64>,
+}
+
+/// The trades from `current` to `x` ([`models::trades`]: weight changes above round-off), each sized in
+/// money when the fund's value is known.
+fn trade_list(current: &[f64], x: &[f64], money: Option<&config::Money>) -> Vec<Trade> {
+    models::trades(current, x)
+        .into_iter()
+        .map(|(asset, change)| Trade {
+            asset,
+            change,
+            amount: money.map(|m| m.value * change),
+        })
+        .collect()
 }
 
 /// Everything one run computed; the pack writer serialises it.
@@ -317,6 +345,10 @@ fn report(
         (Some(w), Some(h)) => Some(models::turnover(w, h)),
         _ => None,
     };
+    let trades = match (&outcome.weights, &data.holdings) {
+        (Some(w), Some(h)) => Some(trade_list(h, w, cfg.fund.money.as_ref())),
+        _ => None,
+    };
     let bound = |pick: &dyn Fn(usize, f64) -> bool| -> Vec<String> {
         outcome.weights.as_ref().map_or(vec![], |w| {
             (0..w.len())
@@ -335,6 +367,7 @@ fn report(
         turnover,
         cost,
         expected_return_net,
+        trades,
         at_upper,
         at_lower,
     }

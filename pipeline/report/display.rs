@@ -10,6 +10,7 @@ use super::format::{self, NONE, Style, pct};
 use super::further::{self, Further};
 use super::policy::{self, PolicyShow};
 use super::text::{self, Caveat};
+use super::trades::{self, TradesShow};
 use super::view::{Pair, Portfolio, class_order, class_sum, pair, status_word};
 use crate::diag::Level;
 use crate::risk::RiskProfile;
@@ -42,6 +43,9 @@ pub struct Report {
     /// "Position against policy", or `null` with `policy_absent` saying no policy is configured.
     pub policy: Option<PolicyShow>,
     pub policy_absent: Option<String>,
+    /// "Trades and costs", or `null` with `trades_absent` saying why there is nothing to trade.
+    pub trades: Option<TradesShow>,
+    pub trades_absent: Option<String>,
 }
 
 /// Cover and running-header facts.
@@ -193,6 +197,10 @@ pub fn build(r: &RunResult, shown: &[Portfolio], results: &Value, pack_id: &str)
         Ok(p) => (Some(p), None),
         Err(why) => (None, Some(why)),
     };
+    let (trades, trades_absent) = match trades::show(r, shown) {
+        Ok(t) => (Some(t), None),
+        Err(why) => (None, Some(why)),
+    };
     Report {
         meta: meta(r, results, pack_id),
         portfolios: shown.iter().map(|v| portfolio_row(r, v)).collect(),
@@ -216,6 +224,8 @@ pub fn build(r: &RunResult, shown: &[Portfolio], results: &Value, pack_id: &str)
         further: further::build(r, shown),
         policy,
         policy_absent,
+        trades,
+        trades_absent,
     }
 }
 

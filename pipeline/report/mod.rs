@@ -10,6 +10,7 @@
 //!   further/    "Further analysis": mod.rs (the `further` part of the display model, its charts) over
 //!               frontier.rs, stress.rs, backtest.rs (each part's display data and charts)
 //!   policy.rs   "Position against policy": policy lines, exposures, breaches, active risk
+//!   trades.rs   "Trades and costs": each model's trades from the current holdings, money traded, costs
 //!   charts.rs   the summary and allocation charts (SVG)
 //!   text.rs     the sentences that depend on the run (summary points, caveats)
 //!   draw.rs     the chart kit: canvas, type, axes, markers, legends, bars
@@ -42,6 +43,7 @@ pub mod pdf;
 pub mod policy;
 pub mod templates;
 pub mod text;
+pub mod trades;
 pub mod typeset;
 pub mod view;
 pub mod world;

@@ -29,6 +29,7 @@ pub const DEFAULTS: &[(&str, &str)] = &[
         "allocations.typ",
         include_str!("../../templates/allocations.typ"),
     ),
+    ("trades.typ", include_str!("../../templates/trades.typ")),
     (
         "tail-loss.typ",
         include_str!("../../templates/tail-loss.typ"),

@@ -22,3 +22,4 @@ mod report;
 mod risk;
 mod signoff;
 mod templates;
+mod trades;

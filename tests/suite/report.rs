@@ -50,6 +50,7 @@ fn pdf_has_every_section_and_the_figures_of_results_json() {
         "Contents",
         "Summary",
         "Allocations",
+        "Trades and costs",
         "Tail loss",
         "Further analysis",
         "Checks",
@@ -126,6 +127,7 @@ fn pdf_has_every_section_and_the_figures_of_results_json() {
     }
     further_analysis_matches_results_json(&text, &r);
     policy_page_matches_results_json(&text, &r);
+    super::trades::demo_section_matches_results_json(&text, &dir);
 }
 
 /// The "Position against policy" page of the demo pack against results.json `policy` (README, "Policy in
@@ -251,7 +253,7 @@ fn has_row(rows: &[String], want: &str, what: &str) {
 fn further_analysis_matches_results_json(text: &str, r: &serde_json::Value) {
     let flat = squeeze(text);
     let rows = rows(text);
-    for title in ["5.1 Efficient frontier", "5.2 Stress tests", "5.3 Backtest"] {
+    for title in ["6.1 Efficient frontier", "6.2 Stress tests", "6.3 Backtest"] {
         assert!(flat.contains(title), "subsection `{title}` missing");
     }
     assert!(
@@ -409,8 +411,9 @@ fn a_200_asset_universe_renders_with_paginated_weights() {
     let pages = pdf_pages(&pdf);
     // Bound: at most 18 pages of fixed sections (the demo pack's 19 less its one page of weights; this fund has
     // no stress file, so fewer) plus the weights table at no fewer than 40 rows a page (200 rows → at most 5
-    // pages) plus slack for the checks table: at most 25 pages.
-    assert!((16..=25).contains(&pages), "200 assets gave {pages} pages");
+    // pages) plus slack for the checks table, plus the trades section (at most two pages: the figures and
+    // three lists of at most eleven rows): at most 27 pages.
+    assert!((16..=27).contains(&pages), "200 assets gave {pages} pages");
     let text = pdf_text(&pdf);
     for a in &m.assets {
         assert!(
@@ -528,6 +531,7 @@ fn a_fund_without_holdings_and_an_infeasible_model_still_gets_a_full_pack() {
         !text.contains("Current"),
         "without holdings there is no current portfolio to show"
     );
+    super::trades::says_there_is_nothing_to_trade_from(&text);
     let cvar = printed(r["models"]["max_return"]["cvar"].as_f64().unwrap(), false);
     assert!(
         text.contains(&cvar),
@@ -640,7 +644,7 @@ fn a_fund_without_backtest_or_stress_says_so_plainly() {
     let flat = squeeze(&pdf_text(&dir.join("pack.pdf")));
     // The section keeps its three parts; the two that did not run say why (DEVELOPERS.md, "Adding a report
     // section": a section whose data does not exist says so plainly rather than vanishing).
-    for title in ["5.1 Efficient frontier", "5.2 Stress tests", "5.3 Backtest"] {
+    for title in ["6.1 Efficient frontier", "6.2 Stress tests", "6.3 Backtest"] {
         assert!(flat.contains(title), "subsection `{title}` missing");
     }
     assert!(flat.contains("The walk-forward backtest was not run: it is switched off in the config (analysis.backtest_years: 0)."), "backtest absence");
