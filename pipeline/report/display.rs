@@ -327,12 +327,19 @@ fn portfolio_row(r: &RunResult, v: &Portfolio) -> PortfolioRow {
         var_money: loss_money(r, v, |p| p.at(c).var),
         cvar_money: loss_money(r, v, |p| p.at(c).cvar),
         worst_loss_money: loss_money(r, v, |p| p.worst_loss),
-        worst_stress_money: stress.and_then(|(loss, _)| money::amount(money::fund(r), loss, Style::Loss)),
+        worst_stress_money: stress
+            .and_then(|(loss, _)| money::amount(money::fund(r), loss, Style::Loss)),
         expected_return_annual: f(&|p| {
-            pct(money::annual_return(p.expected_return, per_year), Style::Return)
+            pct(
+                money::annual_return(p.expected_return, per_year),
+                Style::Return,
+            )
         }),
         volatility_annual: f(&|p| {
-            pct(money::annual_volatility(p.volatility, per_year), Style::Weight)
+            pct(
+                money::annual_volatility(p.volatility, per_year),
+                Style::Weight,
+            )
         }),
     }
 }

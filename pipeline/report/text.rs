@@ -165,15 +165,12 @@ fn trade_and_active(r: &RunResult, v: &Portfolio) -> String {
             money::pct_and_amount(fund, x.active.at(c).cvar, Style::Loss)
         ));
     }
-    match parts.is_empty() {
-        true => String::new(),
-        false => {
-            let text = parts.join("; ");
-            let mut first = text.chars();
-            let head: String = first.next().map(|ch| ch.to_uppercase().collect()).unwrap_or_default();
-            format!(" {head}{}.", first.as_str())
-        }
+    if parts.is_empty() {
+        return String::new();
     }
+    // Both parts start with an ASCII letter, capitalised here as the sentence's first.
+    let text = parts.join("; ");
+    format!(" {}{}.", text[..1].to_uppercase(), &text[1..])
 }
 
 /// The stress tests in one sentence: how many scenarios, and who breaches the loss limit where.

@@ -11,8 +11,8 @@ use crate::report::draw::{
     Area, Cartesian, Chart, Drawn, GRID, MUTED, colour, draw, font, mark, padded, text_width, tick,
     tick_decimals,
 };
-use crate::report::money;
 use crate::report::format::{self, Style, pct};
+use crate::report::money;
 use crate::report::view::{Portfolio, identity_of, solved};
 use crate::run::RunResult;
 use plotters::prelude::*;

@@ -101,10 +101,7 @@ pub fn show(r: &RunResult, shown: &[Portfolio]) -> Result<StressShow, String> {
         },
         horizon: r.config.scenarios.horizon,
         rows: rows(r, &results),
-        worst: results
-            .iter()
-            .map(|res| worst_cell(r, *res))
-            .collect(),
+        worst: results.iter().map(|res| worst_cell(r, *res)).collect(),
         classes: stress_classes(r, &results),
         breaches: shown
             .iter()
