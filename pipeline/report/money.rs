@@ -55,14 +55,16 @@ pub fn fund(r: &RunResult) -> Option<&Money> {
 }
 
 /// The amount of `fraction` of the fund's value, digits only (the unit is in the table's note), or `None`
-/// without a fund value.
+/// without a fund value or a figure (a non-finite fraction prints as the percentage's `n/a` alone).
 pub fn amount(m: Option<&Money>, fraction: f64, style: Style) -> Option<String> {
-    m.map(|m| money(m.value * fraction, style))
+    m.filter(|_| fraction.is_finite())
+        .map(|m| money(m.value * fraction, style))
 }
 
 /// The amount of `fraction` of the fund's value with its currency code (`XTS 123,375,000`), or `None`.
 pub fn amount_in(m: Option<&Money>, fraction: f64, style: Style) -> Option<String> {
-    m.map(|m| money_in(m.value * fraction, &m.currency, style))
+    m.filter(|_| fraction.is_finite())
+        .map(|m| money_in(m.value * fraction, &m.currency, style))
 }
 
 /// A percentage followed by its amount in brackets where there is one: `5.25% (XTS 123,375,000)`.
@@ -136,6 +138,8 @@ mod tests {
             "\u{2212}17.20%, XTS \u{2212}404,200,000"
         );
         assert_eq!(amount(None, 0.0525, Style::Loss), None);
+        assert_eq!(amount(Some(&m), f64::NAN, Style::Loss), None);
+        assert_eq!(pct_and_amount(Some(&m), f64::NAN, Style::Loss), "n/a");
         assert_eq!(pct_and_amount(None, 0.0525, Style::Loss), "5.25%");
     }
 

@@ -4,8 +4,9 @@
 //! benchmark, and the sentences that state the current portfolio's breaches and whether the ranges bind the
 //! models. Without a policy the part is `null` and `policy_absent` says so in one sentence.
 //!
-//! May read: the [`RunResult`] (its `policy` report), the view model ([`super::view`]) and
-//! [`super::format`]. Computes nothing: every figure comes from `analysis::policy`.
+//! May read: the [`RunResult`] (its `policy` report), the view model ([`super::view`]),
+//! [`super::format`] and [`super::money`] (the amounts of active risk). Computes nothing: every figure comes
+//! from `analysis::policy`.
 
 use super::format::{self, NONE, Style, pct};
 use super::money;

@@ -189,25 +189,21 @@ fn stress_point(r: &RunResult, shown: &[Portfolio]) -> String {
     let Some(limit) = r.config.stress_loss_limit else {
         return out;
     };
+    let limit_text = money::pct_and_amount(money::fund(r), limit, Style::Loss);
     let over: Vec<&str> = shown
         .iter()
         .filter(|v| stress_result(r, v.key).is_some_and(|s| !s.breaches.is_empty()))
         .map(|v| v.identity.label)
         .collect();
     out.push_str(&match over.len() {
-        0 => format!(
-            " No portfolio loses more than the limit of {}.",
-            pct(limit, Style::Loss)
-        ),
+        0 => format!(" No portfolio loses more than the limit of {limit_text}."),
         1 => format!(
-            " {} loses more than the limit of {} in at least one scenario.",
-            over[0],
-            pct(limit, Style::Loss)
+            " {} loses more than the limit of {limit_text} in at least one scenario.",
+            over[0]
         ),
         _ => format!(
-            " {} lose more than the limit of {} in at least one scenario.",
-            list(&over),
-            pct(limit, Style::Loss)
+            " {} lose more than the limit of {limit_text} in at least one scenario.",
+            list(&over)
         ),
     });
     out
@@ -369,7 +365,7 @@ fn history(r: &RunResult, shown: &[Portfolio]) -> Caveat {
             "The scenarios are the returns observed between {} and {}. The largest loss of any portfolio in the pack over them is {}; larger losses are possible, and a calm history gives tail figures that look benign.",
             first_start(r),
             last_end(r),
-            pct(worst, Style::Loss)
+            money::pct_and_amount(money::fund(r), worst, Style::Loss)
         ),
     )
 }
