@@ -127,6 +127,8 @@ pub struct ClassRow {
     pub class: String,
     pub weights: Vec<String>,
     pub contributions: Vec<String>,
+    /// The contributions in the base currency, digits only; `null` without a fund value or a portfolio.
+    pub contributions_money: Vec<Option<String>>,
 }
 
 /// One asset's bounds and weights, one weight per portfolio.
@@ -368,6 +370,10 @@ fn classes(r: &RunResult, shown: &[Portfolio]) -> Vec<ClassRow> {
                         pct(class_sum(r, &p.component_cvar, &class), Style::Loss)
                     })
                 })
+                .collect(),
+            contributions_money: shown
+                .iter()
+                .map(|v| loss_money(r, v, |p| class_sum(r, &p.component_cvar, &class)))
                 .collect(),
             class: format::title(&class),
         })
