@@ -158,6 +158,7 @@ impl Synthetic {
             confidence: self.confidence,
             feasible: &self.feasible,
             backend: Backend::Highs,
+            active: None,
         }
     }
 

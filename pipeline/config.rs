@@ -123,6 +123,9 @@ pub struct Policy {
     pub lines: Vec<PolicyLine>,
     /// `policy.ranges_as_limits`: each line's range is a group limit of every model.
     pub ranges_as_limits: bool,
+    /// `policy.active_cvar_budget`: every model keeps its active CVaR against the policy benchmark, at the
+    /// model confidence, at or below this fraction of the fund's value.
+    pub active_cvar_budget: Option<f64>,
 }
 
 /// One policy line, its members resolved later against the asset list (as a group's are).
@@ -138,6 +141,23 @@ pub struct PolicyLine {
 }
 
 impl Policy {
+    /// Σ target per benchmark series (lines sharing a series add up), series in the order the lines first
+    /// name them: the policy benchmark as a fixed mix of series.
+    pub fn benchmark_weights(&self) -> Vec<(String, f64)> {
+        self.series()
+            .into_iter()
+            .map(|s| {
+                let w = self
+                    .lines
+                    .iter()
+                    .filter(|l| l.benchmark == s)
+                    .map(|l| l.target)
+                    .sum();
+                (s.to_string(), w)
+            })
+            .collect()
+    }
+
     /// The benchmark series, each once, in the order the lines first name them.
     pub fn series(&self) -> Vec<&str> {
         let mut out: Vec<&str> = Vec::new();

@@ -254,6 +254,7 @@ fn policy_json(r: &RunResult) -> Value {
         "lines": lines,
         "benchmark_weights": Value::Object(p.benchmark_weights.iter().map(|(s, w)| (s.clone(), json!(w))).collect()),
         "ranges_as_limits": p.ranges_as_limits,
+        "active_cvar_budget": r.config.policy.as_ref().and_then(|p| p.active_cvar_budget),
         "horizons_per_year": p.horizons_per_year,
         "annualisation": "tracking_error_annualised = tracking_error × √horizons_per_year; horizons_per_year = observations a year in the scenario window ((rows − 1) over its calendar years of 365.25 days) ÷ the horizon in observations",
         "portfolios": portfolios,
@@ -321,21 +322,21 @@ fn backtest_json(r: &RunResult) -> Value {
     let models: Map<String, Value> = b.tracks.iter().map(|t| (t.model.to_string(), json!({
         "observations": t.observations, "exceptions": t.exceptions, "expected_exceptions": t.expected_exceptions,
         "kupiec": t.kupiec, "christoffersen": t.christoffersen, "mean_prediction_error": t.mean_prediction_error,
-        "final_wealth": t.final_wealth, "daily_var_99": t.daily, "total_cost": t.total_cost,
+        "final_wealth": t.final_wealth, "daily_var_99": t.daily, "total_cost": t.total_cost, "ex_post_active": t.ex_post,
         "months": t.rows.iter().map(|row| json!({
             "date": row.date.to_string(), "next": row.next.to_string(), "status": row.status,
             "predicted_return": row.predicted_return, "realised_return": row.realised_return,
             "predicted_minus_realised": row.predicted_return.zip(row.realised_return).map(|(p, q)| p - q),
             "predicted_var": row.predicted_var, "predicted_cvar": row.predicted_cvar, "turnover": row.turnover,
             "cost": row.cost, "realised_return_net": row.realised_return_net,
-            "wealth": row.wealth, "exception": row.exception,
+            "wealth": row.wealth, "exception": row.exception, "active_return": row.active_return,
             "weights": row.weights.as_ref().map(|w| weight_map(&r.data.assets, w)),
         })).collect::<Vec<_>>(),
     }))).collect();
     json!({"confidence": b.confidence, "rebalances": b.rebalances.len(), "first": b.rebalances.first().map(|d| d.to_string()),
            "last": b.rebalances.last().map(|d| d.to_string()),
            "skipped": b.skipped.iter().map(|(d, why)| json!({"date": d.to_string(), "reason": why})).collect::<Vec<_>>(),
-           "models": models})
+           "benchmark_returns": b.benchmark, "models": models})
 }
 
 /// A return with its sign, e.g. `+0.31%`.

@@ -161,6 +161,18 @@ pub fn cvar_of(set: &ScenarioSet, x: &[f64], c: f64) -> f64 {
     var_cvar(&losses, &set.probabilities, c).cvar
 }
 
+/// CVaR_c of the active loss −a_k = b_k − r_k·x of weights `x` against benchmark returns `b` (one per
+/// scenario of `set`) alone: the active CVaR of [`active`] without its other statistics.
+pub fn active_cvar_of(set: &ScenarioSet, x: &[f64], b: &[f64], c: f64) -> f64 {
+    let losses: Vec<f64> = set
+        .portfolio_returns(x)
+        .iter()
+        .zip(b)
+        .map(|(r, b)| b - r)
+        .collect();
+    var_cvar(&losses, &set.probabilities, c).cvar
+}
+
 /// Sums per-asset values by a key (e.g. component CVaR by class), keys in first-seen order.
 pub fn by_group(values: &[f64], keys: &[String]) -> Vec<(String, f64)> {
     let mut out: Vec<(String, f64)> = Vec::new();

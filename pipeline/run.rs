@@ -9,7 +9,8 @@ use crate::diag::{Check, Level};
 use crate::error::{Error, Result};
 use crate::ingest::{self, MarketData};
 use crate::models::{
-    self, Family, FeasibleSet, Outcome, Preconditions, Premises, Problem, Status, Targets, lp,
+    self, ActiveBudget, Family, FeasibleSet, Outcome, Preconditions, Premises, Problem, Status,
+    Targets, lp,
 };
 use crate::risk::{self, RiskProfile};
 use crate::scenarios::{self, ScenarioSet};
@@ -143,12 +144,17 @@ pub fn solve(prepared: Prepared) -> Result<RunResult> {
         policy_members,
     } = prepared;
     let models_start = std::time::Instant::now();
+    let benchmark = active_benchmark(&cfg, &set, &reference);
     let p = Problem {
         set: &set,
         mu: set.mean(),
         confidence: cfg.confidence,
         feasible: &fs,
         backend: cfg.backend,
+        active: benchmark.as_ref().map(|(b, budget)| ActiveBudget {
+            benchmark: b,
+            budget: *budget,
+        }),
     };
     let solved = solve_models(&p, &cfg, &data);
     crate::timings::add("models", models_start.elapsed());
@@ -166,6 +172,7 @@ pub fn solve(prepared: Prepared) -> Result<RunResult> {
     checks.extend(model_checks(&solved.preconditions, &solved.reports, &cfg));
     checks.extend(crate::analysis::checks(&analysis, &cfg));
     checks.extend(crate::analysis::policy::checks(policy.as_ref()));
+    checks.extend(active_budget_check(&cfg, policy.as_ref()));
     let backend = cfg.backend;
     Ok(RunResult {
         config: cfg,
@@ -183,6 +190,51 @@ pub fn solve(prepared: Prepared) -> Result<RunResult> {
         reference,
         policy,
     })
+}
+
+/// The policy benchmark's return per scenario with the active-CVaR budget, when the policy sets one
+/// (`policy.active_cvar_budget`): what the models keep their active CVaR against.
+fn active_benchmark(
+    cfg: &Config,
+    set: &ScenarioSet,
+    reference: &ScenarioSet,
+) -> Option<(Vec<f64>, f64)> {
+    let policy = cfg.policy.as_ref()?;
+    let budget = policy.active_cvar_budget?;
+    Some((scenarios::policy_benchmark(set, reference, policy), budget))
+}
+
+/// With an active-CVaR budget, a check naming it, each model's active CVaR against it (`binding` within
+/// 1e-6) and that the backtest's monthly models do not apply it.
+fn active_budget_check(
+    cfg: &Config,
+    policy: Option<&crate::analysis::policy::PolicyReport>,
+) -> Option<Check> {
+    let budget = cfg.policy.as_ref()?.active_cvar_budget?;
+    let c = cfg.confidence;
+    let models: Vec<String> = policy?
+        .positions
+        .iter()
+        .filter(|x| x.portfolio != "current")
+        .map(|x| {
+            let a = x.active.at(c).cvar;
+            let binding = if a >= budget - 1e-6 { " (binding)" } else { "" };
+            format!("{} {:.2}%{binding}", x.portfolio, a * 100.0)
+        })
+        .collect();
+    let each = if models.is_empty() {
+        "no model has a portfolio".to_string()
+    } else {
+        format!("active CVaR {}", models.join(", "))
+    };
+    Some(Check::pass(
+        "policy.active_cvar_budget",
+        format!(
+            "active-CVaR budget {:.2}% (policy.active_cvar_budget): the models keep their {:.1}% active CVaR against the policy benchmark at or below it; {each}; the walk-forward backtest's monthly models are solved without it",
+            budget * 100.0,
+            c * 100.0
+        ),
+    ))
 }
 
 /// What the models stage hands on: the current portfolio's profile, the resolved cap and floor, the ratio's

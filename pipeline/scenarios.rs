@@ -214,6 +214,31 @@ pub enum Column {
     Reference(usize),
 }
 
+/// The policy benchmark's return in every scenario, b_k = Σ_series weight × the series' return
+/// ([`crate::config::Policy::benchmark_weights`]), each series an asset of `universe` or a non-investable
+/// series of `reference` (ingest made sure it is one or the other).
+pub fn policy_benchmark(
+    universe: &ScenarioSet,
+    reference: &ScenarioSet,
+    policy: &crate::config::Policy,
+) -> Vec<f64> {
+    let at = |set: &ScenarioSet, s: &str| set.assets.iter().position(|a| a == s);
+    let mix: Vec<(Column, f64)> = policy
+        .benchmark_weights()
+        .into_iter()
+        .map(|(s, w)| {
+            let column = match at(universe, &s) {
+                Some(i) => Column::Universe(i),
+                None => Column::Reference(
+                    at(reference, &s).expect("ingest checked every benchmark series"),
+                ),
+            };
+            (column, w)
+        })
+        .collect();
+    mix_returns(universe, reference, &mix)
+}
+
 /// The return of a fixed mix of series in every scenario, b_k = Σ_j w_j · s_kj, each series a column of
 /// the universe's set or of the reference set (same rows).
 pub fn mix_returns(

@@ -10,6 +10,10 @@
 //! (the live run's cost rates; the first month is measured from the reference holdings, and costs
 //! nothing without them), so cumulative wealth is net of costs.
 //! The predicted VaR of each month is then backtested against the realised losses (see `vartest`).
+//! With a policy, each month's realised policy-benchmark return Σ target·(series return) is measured over
+//! the same month, and each model's ex-post tracking error is the sample standard deviation of its monthly
+//! active returns (realised net of costs minus benchmark; Grinold & Kahn, "Active Portfolio Management",
+//! ch. 3), annualised by √12.
 
 use super::vartest::{self, LrTest, Zone};
 use crate::config::Config;
@@ -47,6 +51,22 @@ pub struct TrackRow {
     /// Cumulative wealth net of costs (1 at the start).
     pub wealth: f64,
     pub exception: Option<bool>,
+    /// The month's active return against the policy benchmark: `realised_return_net` minus the
+    /// benchmark's realised return (None without a policy or where either is missing).
+    pub active_return: Option<f64>,
+}
+
+/// A model's realised (ex-post) active risk against the policy benchmark over the backtest.
+#[derive(Debug, Clone, Serialize)]
+pub struct ExPost {
+    /// Months with both a realised return and a benchmark return.
+    pub months: usize,
+    /// Mean monthly active return.
+    pub mean_active_return: f64,
+    /// Sample standard deviation (n − 1) of the monthly active returns.
+    pub tracking_error: f64,
+    /// `tracking_error` × √12 (monthly observations, twelve a year).
+    pub tracking_error_annualised: f64,
 }
 
 /// The daily 99% VaR traffic-light test of one model.
@@ -77,6 +97,9 @@ pub struct Track {
     /// cost times the wealth it was paid from).
     pub total_cost: f64,
     pub daily: Option<DailyCheck>,
+    /// Ex-post tracking error against the policy benchmark (None without a policy or with fewer than
+    /// two months of active returns).
+    pub ex_post: Option<ExPost>,
 }
 
 /// The backtest of all models.
@@ -86,6 +109,9 @@ pub struct Backtest {
     pub rebalances: Vec<NaiveDate>,
     pub skipped: Vec<(NaiveDate, String)>,
     pub tracks: Vec<Track>,
+    /// The policy benchmark's realised return of each rebalance month (aligned with `rebalances`; None
+    /// without a policy, or in a month where a benchmark series has no price).
+    pub benchmark: Option<Vec<Option<f64>>>,
 }
 
 /// The month-ends of the full history: the last observation of every calendar month.
@@ -155,6 +181,9 @@ fn decide(
         confidence: c,
         feasible: &fs,
         backend: cfg.backend,
+        // The active-CVaR budget is not applied month by month (the run's check
+        // `policy.active_cvar_budget` says so).
+        active: None,
     };
     let reference = data
         .holdings
@@ -240,22 +269,77 @@ fn assemble(cfg: &Config, data: &MarketData, live: &FeasibleSet, months: &[Month
                 .map(|e| (data.full_dates[m.row], e.clone()))
         })
         .collect();
+    let benchmark = cfg.policy.as_ref().map(|policy| {
+        let mix = super::policy::benchmark_weights(policy);
+        months
+            .iter()
+            .map(|m| benchmark_realised(data, &mix, m.row, m.next))
+            .collect::<Vec<_>>()
+    });
     let tracks = (0..Family::ALL.len())
-        .map(|k| track(cfg, data, months, k, &live.cost_rates))
+        .map(|k| track(cfg, data, months, k, &live.cost_rates, benchmark.as_deref()))
         .collect();
     Backtest {
         confidence: cfg.confidence,
         rebalances: months.iter().map(|m| data.full_dates[m.row]).collect(),
         skipped,
         tracks,
+        benchmark,
     }
 }
 
-fn track(cfg: &Config, data: &MarketData, months: &[Month], k: usize, rates: &[f64]) -> Track {
+/// The policy benchmark's realised return from row `from` to row `to`: Σ weight × (P[to]/P[from] − 1)
+/// over its series, each an asset of the universe or a non-investable series; None if a price is missing.
+fn benchmark_realised(
+    data: &MarketData,
+    mix: &[(String, f64)],
+    from: usize,
+    to: usize,
+) -> Option<f64> {
+    mix.iter()
+        .map(|(series, w)| {
+            let p = match data.assets.iter().position(|a| a == series) {
+                Some(i) => &data.full_prices[i],
+                None => {
+                    let j = data.reference.iter().position(|a| a == series)?;
+                    &data.reference_full_prices[j]
+                }
+            };
+            let r = p[to] / p[from] - 1.0;
+            r.is_finite().then_some(w * r)
+        })
+        .sum()
+}
+
+/// Mean, sample standard deviation and its √12 annualisation of the monthly active returns.
+fn ex_post(rows: &[TrackRow]) -> Option<ExPost> {
+    let a: Vec<f64> = rows.iter().filter_map(|r| r.active_return).collect();
+    if a.len() < 2 {
+        return None;
+    }
+    let n = a.len() as f64;
+    let mean = a.iter().sum::<f64>() / n;
+    let te = (a.iter().map(|x| (x - mean).powi(2)).sum::<f64>() / (n - 1.0)).sqrt();
+    Some(ExPost {
+        months: a.len(),
+        mean_active_return: mean,
+        tracking_error: te,
+        tracking_error_annualised: te * 12f64.sqrt(),
+    })
+}
+
+fn track(
+    cfg: &Config,
+    data: &MarketData,
+    months: &[Month],
+    k: usize,
+    rates: &[f64],
+    benchmark: Option<&[Option<f64>]>,
+) -> Track {
     let mut rows = Vec::with_capacity(months.len());
     let (mut wealth, mut held): (f64, Option<Vec<f64>>) = (1.0, data.holdings.clone());
     let mut total_cost = 0.0;
-    for m in months {
+    for (i, m) in months.iter().enumerate() {
         let d = m.decisions.as_ref().ok().map(|v| &v[k]);
         let (date, next) = (data.full_dates[m.row], data.full_dates[m.next]);
         let status = d.map_or("skipped".to_string(), |d| d.status.word().to_string());
@@ -307,6 +391,9 @@ fn track(cfg: &Config, data: &MarketData, months: &[Month], k: usize, rates: &[f
             realised_return_net,
             wealth,
             exception,
+            active_return: realised_return_net
+                .zip(benchmark.and_then(|b| b[i]))
+                .map(|(r, b)| r - b),
         });
     }
     let mut t = summarise(cfg, data, Family::ALL[k].name(), rows);
@@ -347,6 +434,7 @@ fn summarise(cfg: &Config, data: &MarketData, model: &'static str, rows: Vec<Tra
             .then(|| gaps.iter().sum::<f64>() / gaps.len() as f64),
         final_wealth: rows.last().map_or(1.0, |r| r.wealth),
         total_cost: 0.0,
+        ex_post: ex_post(&rows),
         rows,
         daily,
     }

@@ -11,7 +11,7 @@ use crate::config::{Config, Policy};
 use crate::diag::Check;
 use crate::ingest::MarketData;
 use crate::risk::{self, ActiveRisk};
-use crate::scenarios::{self, Column, ScenarioSet};
+use crate::scenarios::{self, ScenarioSet};
 
 /// An exposure counts as outside its range only beyond this distance (solver round-off of the models).
 pub const RANGE_TOLERANCE: f64 = 1e-6;
@@ -66,11 +66,7 @@ pub fn report(
 ) -> Option<PolicyReport> {
     let policy = cfg.policy.as_ref()?;
     let benchmark_weights = benchmark_weights(policy);
-    let mix: Vec<(Column, f64)> = benchmark_weights
-        .iter()
-        .map(|(s, w)| (column(data, reference, s), *w))
-        .collect();
-    let b = scenarios::mix_returns(set, reference, &mix);
+    let b = scenarios::policy_benchmark(set, reference, policy);
     let per_year = horizons_per_year(data, set.horizon);
     let lines = resolved_lines(policy, members, &data.assets);
     let positions = portfolios
@@ -108,36 +104,9 @@ fn resolved_lines(policy: &Policy, members: &[Vec<usize>], assets: &[String]) ->
         .collect()
 }
 
-/// Σ target per series, series in the order the lines first name them.
+/// Σ target per series, series in the order the lines first name them ([`Policy::benchmark_weights`]).
 pub fn benchmark_weights(policy: &Policy) -> Vec<(String, f64)> {
-    policy
-        .series()
-        .into_iter()
-        .map(|s| {
-            let w = policy
-                .lines
-                .iter()
-                .filter(|l| l.benchmark == s)
-                .map(|l| l.target)
-                .sum();
-            (s.to_string(), w)
-        })
-        .collect()
-}
-
-/// Where a benchmark series is: an asset of the universe, else a non-investable series (ingest made sure
-/// it is one or the other).
-fn column(data: &MarketData, reference: &ScenarioSet, series: &str) -> Column {
-    match data.assets.iter().position(|a| a == series) {
-        Some(i) => Column::Universe(i),
-        None => Column::Reference(
-            reference
-                .assets
-                .iter()
-                .position(|a| a == series)
-                .expect("ingest checked every benchmark series"),
-        ),
-    }
+    policy.benchmark_weights()
 }
 
 /// Exposure per line: Σ of the members' weights.

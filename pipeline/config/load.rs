@@ -108,6 +108,12 @@ fn mandate(raw: &RawConfig, m: &RawMandate) -> RawConfig {
     if let Some(mo) = &m.models {
         one.models = mo.clone();
     }
+    if let Some(po) = &m.policy {
+        one.policy = Some(po.clone());
+    }
+    if let Some(co) = &m.costs {
+        one.costs = co.clone();
+    }
     if let Some(so) = &m.signoff {
         one.signoff = so.clone();
     }

@@ -13,6 +13,7 @@ pub const TARGET_TOLERANCE: f64 = 1e-4;
 
 /// The resolved policy: every line checked, names unique, targets summing to 1.
 pub(super) fn resolve_policy(raw: &RawPolicy) -> Result<Policy, PlaceError> {
+    let active_cvar_budget = active_cvar_budget(raw)?;
     if raw.lines.is_empty() {
         return Err((
             "policy.lines".into(),
@@ -30,7 +31,32 @@ pub(super) fn resolve_policy(raw: &RawPolicy) -> Result<Policy, PlaceError> {
     Ok(Policy {
         lines,
         ranges_as_limits: raw.ranges_as_limits,
+        active_cvar_budget,
     })
+}
+
+/// `policy.active_cvar_budget`: a finite fraction of value ≥ 0, and only with a policy benchmark to be
+/// active against (the lines, each naming its benchmark series).
+fn active_cvar_budget(raw: &RawPolicy) -> Result<Option<f64>, PlaceError> {
+    let key = "policy.active_cvar_budget";
+    let Some(b) = raw.active_cvar_budget else {
+        return Ok(None);
+    };
+    if !(b.is_finite() && b >= 0.0) {
+        return Err((
+            key.into(),
+            format!(
+                "must be a finite fraction of the fund's value ≥ 0 (the largest active CVaR against the policy benchmark), got {b}"
+            ),
+        ));
+    }
+    if raw.lines.is_empty() {
+        return Err((
+            key.into(),
+            "limits active risk against the policy benchmark, but the policy has no lines: give policy.lines, each with its benchmark series, or leave the budget out".into(),
+        ));
+    }
+    Ok(Some(b))
 }
 
 fn resolve_line(i: usize, l: &RawPolicyLine) -> Result<PolicyLine, PlaceError> {

@@ -27,7 +27,8 @@ pub struct RawConfig {
     pub report: RawReport,
     pub signoff: RawSignoff,
     /// Several funds (mandates) in one config: each entry overrides `fund` and, where given, the holdings,
-    /// limits, models and sign-off of the shared settings; prices and asset metadata are shared.
+    /// limits, models, policy, cost rates and sign-off of the shared settings; prices and asset metadata
+    /// are shared.
     pub funds: Vec<RawMandate>,
 }
 
@@ -39,6 +40,8 @@ pub struct RawMandate {
     pub holdings: Option<PathBuf>,
     pub limits: Option<RawLimits>,
     pub models: Option<RawModels>,
+    pub policy: Option<RawPolicy>,
+    pub costs: Option<RawCosts>,
     pub signoff: Option<RawSignoff>,
 }
 
@@ -270,6 +273,9 @@ pub struct RawPolicy {
     /// limit).
     pub ranges_as_limits: bool,
     pub lines: Vec<RawPolicyLine>,
+    /// A limit on the models' active CVaR against the policy benchmark at the model confidence, as a
+    /// fraction of the fund's value; none by default.
+    pub active_cvar_budget: Option<f64>,
 }
 
 impl Default for RawPolicy {
@@ -277,6 +283,7 @@ impl Default for RawPolicy {
         RawPolicy {
             ranges_as_limits: true,
             lines: vec![],
+            active_cvar_budget: None,
         }
     }
 }

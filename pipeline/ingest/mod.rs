@@ -37,6 +37,9 @@ pub struct MarketData {
     pub reference: Vec<String>,
     /// Filled window prices of the `reference` series, `reference_prices[series][row]` on `dates`.
     pub reference_prices: Vec<Vec<f64>>,
+    /// Prices of the `reference` series over `full_dates` after the same fill policy (NaN where missing
+    /// and not fillable), for the backtest's realised benchmark returns.
+    pub reference_full_prices: Vec<Vec<f64>>,
     /// Filled prices of the window, `prices[asset][row]`.
     pub prices: Vec<Vec<f64>>,
     /// Every observation date up to as-of (for the backtest and historical stress windows).
@@ -240,6 +243,7 @@ struct Kept {
     per_asset: Vec<quality::AssetQuality>,
     reference: Vec<String>,
     reference_prices: Vec<Vec<f64>>,
+    reference_full: Vec<Vec<f64>>,
     reference_quality: Vec<quality::AssetQuality>,
 }
 
@@ -279,6 +283,7 @@ fn build(
         assets: filled.assets,
         reference: filled.reference,
         reference_prices: filled.reference_prices,
+        reference_full_prices: filled.reference_full,
         prices: filled.prices,
         full_dates: hist.dates,
         full_prices: filled.full,
@@ -326,13 +331,15 @@ fn fill(
         per_asset: vec![],
         reference: vec![],
         reference_prices: vec![],
+        reference_full: vec![],
         reference_quality: vec![],
     };
     for (j, (a, series)) in hist.assets.iter().zip(&hist.values).enumerate() {
         if reference::is_reference(cfg, meta, a) {
-            let (prices, q) = reference::fill_series(cfg, hist, j, start)?;
+            let (full, q) = reference::fill_series(cfg, hist, j, start)?;
             out.reference.push(a.clone());
-            out.reference_prices.push(prices);
+            out.reference_prices.push(full[start..].to_vec());
+            out.reference_full.push(full);
             out.reference_quality.push(q);
             continue;
         }

@@ -48,8 +48,9 @@ pub fn check_named(cfg: &Config, hist: &PriceHistory) -> Result<()> {
     }
 }
 
-/// The window prices of benchmark series `a` after the fill policy, with its quality counts; an error
-/// naming the series and date where the policy cannot fill it.
+/// The prices of benchmark series `a` over the whole history after the fill policy (NaN where missing and
+/// not fillable; the scenario window from row `start` on is complete), with its quality counts; an error
+/// naming the series and date where the policy cannot fill the window.
 pub fn fill_series(
     cfg: &Config,
     hist: &PriceHistory,
@@ -59,7 +60,7 @@ pub fn fill_series(
     let full = quality::fill_forward(&hist.values[a], cfg.quality.max_fill);
     unfilled(cfg, hist, a, &full, start)?;
     let f = quality::fill_asset(&hist.assets[a], &hist.values[a], start, &cfg.quality);
-    Ok((full[start..].to_vec(), f.quality))
+    Ok((full, f.quality))
 }
 
 /// A benchmark series that is an asset of the universe must not have been dropped by the fill policy.

@@ -275,13 +275,26 @@ impl Lp {
     /// Adds ℓ and u_k with the rows u_k + r_k·x + ℓ ≥ 0, and returns ℓ + 1/(1−c) Σ p_k u_k
     /// (Rockafellar & Uryasev 2000, eq. 17). The rows are homogeneous, so they need no scaling.
     pub fn cvar(&mut self, set: &ScenarioSet, c: f64) -> Lin {
+        self.cvar_block(set, c, None)
+    }
+
+    /// The same block for the active loss b_k − r_k·x against a benchmark returning b_k in scenario k:
+    /// rows u_k + r_k·x + ℓ ≥ b_k (scaled: u_k + r_k·z + ℓ − b_k·t ≥ 0, the constant b_k times t like
+    /// every constant of the Charnes–Cooper LP). Returns ℓ + 1/(1−c) Σ p_k u_k, the active CVaR_c at the
+    /// optimum of any LP that bounds it above (Rockafellar & Uryasev 2000, eq. 17, with the loss
+    /// b_k − r_k·x in place of −r_k·x).
+    pub fn active_cvar(&mut self, set: &ScenarioSet, benchmark: &[f64], c: f64) -> Lin {
+        self.cvar_block(set, c, Some(benchmark))
+    }
+
+    fn cvar_block(&mut self, set: &ScenarioSet, c: f64, benchmark: Option<&[f64]>) -> Lin {
         let ell = self.column(-INF, INF);
         let first_u = self.col_lo.len();
         for _ in 0..set.len() {
             self.column(0.0, INF);
         }
-        self.row_col.reserve(set.len() * (set.width() + 2));
-        self.row_val.reserve(set.len() * (set.width() + 2));
+        self.row_col.reserve(set.len() * (set.width() + 3));
+        self.row_val.reserve(set.len() * (set.width() + 3));
         let mut total = Lin::with_capacity(set.len() + 1);
         total.add(ell, 1.0);
         for k in 0..set.len() {
@@ -294,10 +307,26 @@ impl Lp {
                     self.row_val.push(r);
                 }
             }
-            self.row(0.0, INF, []);
+            let offset = benchmark.map_or(0.0, |b| b[k]);
+            let lo = match self.scale {
+                Some(t) if offset != 0.0 => {
+                    self.row_col.push(t.0 as u32);
+                    self.row_val.push(-offset);
+                    0.0
+                }
+                Some(_) => 0.0,
+                None => offset,
+            };
+            self.row(lo, INF, []);
             total.add(Col(uk), set.probabilities[k] / (1.0 - c));
         }
         total
+    }
+
+    /// Adds a limit `f ≤ hi` on a function of the portfolio, as a row of X: `f ≤ hi·t` in the
+    /// Charnes–Cooper LP.
+    pub fn limit(&mut self, f: Lin, hi: f64) {
+        self.x_row(f, -INF, hi);
     }
 
     /// Adds a column whose value is returned in `Solved::extra`.
@@ -311,11 +340,12 @@ impl Lp {
     /// minimizing conditional value-at-risk", Computational Management Science 3): columns ℓ (free) and
     /// w ≥ 0 (tracked, in that order); the cuts are added by [`Lp::cut`]. Returns ℓ + w/(1−c).
     pub fn cvar_cuts(&mut self, c: f64) -> (Lin, CutColumns) {
+        let at = self.tracked.len();
         let ell = self.tracked(-INF, INF);
         let w = self.tracked(0.0, INF);
         (
             Lin(vec![(ell, 1.0), (w, 1.0 / (1.0 - c))]),
-            CutColumns { ell, w },
+            CutColumns { ell, w, at },
         )
     }
 
@@ -489,6 +519,34 @@ fn read_solution(
 pub struct CutColumns {
     pub ell: Col,
     pub w: Col,
+    /// Where ℓ's value is in `Solved::extra` (w's is next).
+    pub at: usize,
+}
+
+/// A cut of an active-CVaR block: the cut of [`cut_terms`] for the active loss b_k − r_k·x, that is
+/// w + mass·ℓ + Σ_i a_i x_i ≥ Σ_{k∈K} p_k b_k (Künzi-Bay & Mayer 2006, eq. 9, with the benchmark's return
+/// as a constant of each loss). Returns the row's lower bound and its terms; in the Charnes–Cooper LP
+/// (`scale` given) the constant moves to the left times t and the bound is 0.
+pub fn active_cut_terms(
+    set: &ScenarioSet,
+    cut: &[usize],
+    weights: &[Col],
+    cc: CutColumns,
+    benchmark: &[f64],
+    scale: Option<Col>,
+) -> (f64, Vec<(Col, f64)>) {
+    let mut terms = cut_terms(set, cut, weights, cc);
+    let constant: f64 = cut
+        .iter()
+        .map(|&k| set.probabilities[k] * benchmark[k])
+        .sum();
+    match scale {
+        Some(t) => {
+            terms.push((t, -constant));
+            (0.0, terms)
+        }
+        None => (constant, terms),
+    }
 }
 
 /// The cut w + mass·ℓ + Σ_i a_i x_i ≥ 0 for a scenario subset K, with mass = Σ_{k∈K} p_k and

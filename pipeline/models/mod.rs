@@ -16,6 +16,13 @@
 //! programs of fractional programming problems", Zeitschrift für Operations Research 18). Zero rates, or
 //! no holdings, leave every LP as it is without costs.
 //!
+//! With an active-CVaR budget B against a benchmark returning b_k in scenario k (the policy benchmark,
+//! `policy.active_cvar_budget`), every LP also keeps CVaR_c of the active loss b_k − r_k·x at or below B,
+//! by the same linearisation: ℓ_a + 1/(1−c) Σ p_k v_k ≤ B, v_k ≥ 0, v_k ≥ b_k − r_k·x − ℓ_a (in the
+//! Charnes–Cooper LP b_k·t and B·t, like X's constants), or by its own cutting planes. The budget is part
+//! of the set every family and auxiliary LP works on; whether it leaves that set empty is established by
+//! the LP of the minimum active CVaR over X ([`Problem::min_active_cvar_by`]).
+//!
 //! Every reported optimum is re-checked against its constraints in code ([`verify`]).
 //!
 //! The families are defined once ([`Family`], `family.rs`) and solved together by one function,
@@ -77,13 +84,25 @@ impl FeasibleSet {
     }
 }
 
-/// One problem instance: scenarios, their mean, the model confidence and X.
+/// One problem instance: scenarios, their mean, the model confidence, X and an optional active-CVaR
+/// budget.
 pub struct Problem<'a> {
     pub set: &'a ScenarioSet,
     pub mu: Vec<f64>,
     pub confidence: f64,
     pub feasible: &'a FeasibleSet,
     pub backend: Backend,
+    /// A limit on active CVaR at the model confidence, kept by every LP; `None`: no such limit.
+    pub active: Option<ActiveBudget<'a>>,
+}
+
+/// A limit on active risk: CVaR_c of the active loss b_k − r_k·x at most `budget` (a fraction of value),
+/// b_k being the benchmark's return in scenario k of the problem's set.
+#[derive(Debug, Clone, Copy)]
+pub struct ActiveBudget<'a> {
+    /// The benchmark's return per scenario, in the order of the problem's set.
+    pub benchmark: &'a [f64],
+    pub budget: f64,
 }
 
 /// How a model run ended.
@@ -193,6 +212,8 @@ enum Kind {
     MinCvar(Option<f64>),
     /// With the minimum CVaR over X when the caller already knows it (the cutting-plane method needs it).
     Ratio(Option<f64>),
+    /// Minimise the active CVaR over X (without its budget).
+    MinActive,
 }
 
 impl Problem<'_> {
@@ -237,6 +258,15 @@ impl Problem<'_> {
         self.max_ratio_of(Kind::Ratio(Some(min_cvar)), method)
     }
 
+    /// Minimise the active CVaR over X, the budget left out: whether the budget leaves any portfolio.
+    /// Without an active budget there is no benchmark, and this is a solver failure saying so.
+    pub fn min_active_cvar_by(&self, method: Method) -> Result<Solved, Failure> {
+        if self.active.is_none() {
+            return Err(Failure::Solver("no benchmark to be active against".into()));
+        }
+        self.solve(Kind::MinActive, method)
+    }
+
     /// [`Problem::max_ratio`] with an explicit method.
     pub fn max_ratio_by(&self, method: Method) -> Result<Solved, Failure> {
         self.max_ratio_of(Kind::Ratio(None), method)
@@ -260,10 +290,13 @@ impl Problem<'_> {
                 let start = Instant::now();
                 let mut lp = Lp::new(self.feasible, matches!(kind, Kind::Ratio(_)));
                 let block = match kind {
-                    Kind::MaxReturn(None) => Lin::default(),
+                    Kind::MaxReturn(None) | Kind::MinActive => Lin::default(),
                     _ => lp.cvar(self.set, self.confidence),
                 };
-                let (objective, maximise) = self.shape(&mut lp, kind, block);
+                let active = self
+                    .active
+                    .map(|a| lp.active_cvar(self.set, a.benchmark, self.confidence));
+                let (objective, maximise) = self.shape(&mut lp, kind, block, active);
                 let built = start.elapsed();
                 let mut solved = lp.solve(&objective, maximise, self.backend)?;
                 solved.timing.build += built;
@@ -273,9 +306,16 @@ impl Problem<'_> {
         }
     }
 
-    /// Adds the model's own row (cap, floor or the Charnes–Cooper normalisation) and returns its
-    /// objective and sense, given the CVaR function `block`.
-    fn shape(&self, lp: &mut Lp, kind: Kind, block: Lin) -> (Lin, bool) {
+    /// Adds the model's own row (cap, floor or the Charnes–Cooper normalisation) and the active-CVaR
+    /// budget's row, and returns its objective and sense, given the CVaR function `block` and the active
+    /// CVaR function `active` (present with a budget). The minimum active CVaR leaves its budget out.
+    fn shape(&self, lp: &mut Lp, kind: Kind, block: Lin, active: Option<Lin>) -> (Lin, bool) {
+        if let Kind::MinActive = kind {
+            return (active.unwrap_or_default(), false);
+        }
+        if let (Some(a), Some(f)) = (self.active, active) {
+            lp.limit(f, a.budget);
+        }
         match kind {
             Kind::MaxReturn(cap) => {
                 if let Some(cap) = cap {
@@ -294,6 +334,7 @@ impl Problem<'_> {
                 lp.at_most(block, 1.0);
                 (lp.net_return(&self.mu, &self.feasible.cost_rates), true)
             }
+            Kind::MinActive => unreachable!("returned above"),
         }
     }
 
@@ -302,9 +343,12 @@ impl Problem<'_> {
     /// Σ_k p_k (L_k − ℓ)+ exceeds w by at most the tolerance. The last LP's solution is then feasible for,
     /// and optimal in, the direct LP. Losses are homogeneous in the portfolio columns, so the same cuts
     /// serve the Charnes–Cooper scaled LP. With HiGHS the model stays loaded and each cut is one added
-    /// row, so every round after the first is a warm-started dual simplex.
+    /// row, so every round after the first is a warm-started dual simplex. An active-CVaR budget is a
+    /// second block with its own ℓ and w and its own cuts (the active loss b_k·t − r_k·z), checked and cut
+    /// in the same rounds.
     fn cutting_plane(&self, kind: Kind) -> Result<Solved, Failure> {
-        if matches!(kind, Kind::MaxReturn(None)) {
+        let total = !matches!(kind, Kind::MaxReturn(None) | Kind::MinActive);
+        if !total && self.active.is_none() {
             return self.solve(kind, Method::Direct);
         }
         let start = Instant::now();
@@ -312,21 +356,34 @@ impl Problem<'_> {
         let t_max = self.scale_bound(kind, &mut timing)?;
         let aux = start.elapsed();
         let mut lp = Lp::new(self.feasible, matches!(kind, Kind::Ratio(_)));
-        let (block, cc) = lp.cvar_cuts(self.confidence);
+        let (block, active, blocks) = self.cut_blocks(&mut lp, total);
         if let (Some(t), Some(bound)) = (lp.scale, t_max) {
             lp.at_most(Lin(vec![(t, 1.0)]), bound);
         }
-        let (objective, maximise) = self.shape(&mut lp, kind, block);
+        let (objective, maximise) = self.shape(&mut lp, kind, block, active);
         let all: Vec<usize> = (0..self.set.len()).collect();
-        let first = lp::cut_terms(self.set, &all, &lp.weights, cc);
         let mut session = Session::new(&lp, &objective, maximise, self.backend)?;
-        session.cut(&mut lp, &first);
-        let mut last_cut = all;
+        for b in &blocks {
+            let (lo, terms) = self.cut_row(&lp, b, &all);
+            session.cut(&mut lp, lo, &terms);
+        }
+        let mut last_cuts = vec![all; blocks.len()];
         for _ in 0..MAX_CUT_ROUNDS {
             let mut solved = session.solve(&lp, &objective, maximise)?;
-            let (ell, w) = (solved.extra[0], solved.extra[1]);
-            let (tail, excess) = self.tail_beyond(&solved.weights, ell);
-            if excess <= w + CUT_TOLERANCE * (1.0 + w.abs()) || last_cut == tail {
+            let mut cut = false;
+            for (b, last_cut) in blocks.iter().zip(&mut last_cuts) {
+                let (ell, w) = (solved.extra[b.cc.at], solved.extra[b.cc.at + 1]);
+                let t = solved.scale.unwrap_or(1.0);
+                let (tail, excess) = self.tail_beyond(&solved.weights, b.benchmark, t, ell);
+                if excess <= w + CUT_TOLERANCE * (1.0 + w.abs()) || *last_cut == tail {
+                    continue;
+                }
+                let (lo, terms) = self.cut_row(&lp, b, &tail);
+                session.cut(&mut lp, lo, &terms);
+                *last_cut = tail;
+                cut = true;
+            }
+            if !cut {
                 let own = session.timing();
                 timing.absorb(own);
                 // Everything outside the solver (setup, loss evaluation, cut sums) counts as building.
@@ -334,12 +391,49 @@ impl Problem<'_> {
                 solved.timing = timing;
                 return Ok(solved);
             }
-            let terms = lp::cut_terms(self.set, &tail, &lp.weights, cc);
-            session.cut(&mut lp, &terms);
-            last_cut = tail;
         }
         self.solve(kind, Method::Direct)
     }
+
+    /// The cutting-plane CVaR blocks of `lp`: the total loss's when `total`, and the active loss's with a
+    /// budget; returns their CVaR functions (the total's empty without it) and the blocks, in that order.
+    fn cut_blocks<'s>(&'s self, lp: &mut Lp, total: bool) -> (Lin, Option<Lin>, Vec<CutBlock<'s>>) {
+        let mut blocks = Vec::new();
+        let block = if total {
+            let (f, cc) = lp.cvar_cuts(self.confidence);
+            blocks.push(CutBlock {
+                cc,
+                benchmark: None,
+            });
+            f
+        } else {
+            Lin::default()
+        };
+        let active = self.active.map(|a| {
+            let (f, cc) = lp.cvar_cuts(self.confidence);
+            blocks.push(CutBlock {
+                cc,
+                benchmark: Some(a.benchmark),
+            });
+            f
+        });
+        (block, active, blocks)
+    }
+
+    /// The cut of block `b` over the scenarios `cut`: its lower bound and terms.
+    fn cut_row(&self, lp: &Lp, b: &CutBlock, cut: &[usize]) -> (f64, Vec<(lp::Col, f64)>) {
+        match b.benchmark {
+            None => (0.0, lp::cut_terms(self.set, cut, &lp.weights, b.cc)),
+            Some(bench) => lp::active_cut_terms(self.set, cut, &lp.weights, b.cc, bench, lp.scale),
+        }
+    }
+}
+
+/// One CVaR block of a cutting-plane LP: the total loss −r_k·x, or with a benchmark the active loss
+/// b_k − r_k·x.
+struct CutBlock<'b> {
+    cc: lp::CutColumns,
+    benchmark: Option<&'b [f64]>,
 }
 
 impl Problem<'_> {
@@ -367,8 +461,20 @@ impl Problem<'_> {
     }
 
     /// The scenarios whose loss under weights `x` exceeds ℓ, and the true tail term Σ_k p_k (L_k − ℓ)+.
-    fn tail_beyond(&self, x: &[f64], ell: f64) -> (Vec<usize>, f64) {
-        let losses: Vec<f64> = self.set.portfolio_returns(x).iter().map(|r| -r).collect();
+    /// The loss is −r_k·x, or with a benchmark the active loss b_k·t − r_k·x (t the Charnes–Cooper scale,
+    /// 1 outside the ratio LP).
+    fn tail_beyond(
+        &self,
+        x: &[f64],
+        benchmark: Option<&[f64]>,
+        t: f64,
+        ell: f64,
+    ) -> (Vec<usize>, f64) {
+        let returns = self.set.portfolio_returns(x);
+        let losses: Vec<f64> = match benchmark {
+            None => returns.iter().map(|r| -r).collect(),
+            Some(b) => returns.iter().zip(b).map(|(r, b)| b * t - r).collect(),
+        };
         let tail: Vec<usize> = (0..losses.len()).filter(|&k| losses[k] > ell).collect();
         let excess: f64 = tail
             .iter()
@@ -396,10 +502,10 @@ impl Session {
         })
     }
 
-    fn cut(&mut self, lp: &mut Lp, terms: &[(lp::Col, f64)]) {
+    fn cut(&mut self, lp: &mut Lp, lo: f64, terms: &[(lp::Col, f64)]) {
         match self {
-            Session::Highs(h) => h.row(0.0, f64::INFINITY, terms),
-            Session::Rebuild { .. } => lp.row(0.0, f64::INFINITY, terms.iter().copied()),
+            Session::Highs(h) => h.row(lo, f64::INFINITY, terms),
+            Session::Rebuild { .. } => lp.row(lo, f64::INFINITY, terms.iter().copied()),
         }
     }
 
@@ -595,7 +701,8 @@ pub fn resolve_floor(rule: FloorRule, current_return: Option<f64>) -> f64 {
     }
 }
 
-/// Largest violation of X's constraints (and optional cap/floor) by weights `x`.
+/// Largest violation of X's constraints (with the active-CVaR budget, and an optional cap/floor) by
+/// weights `x`.
 pub fn verify(p: &Problem, x: &[f64], cap: Option<f64>, floor: Option<f64>) -> f64 {
     let fs = p.feasible;
     let mut worst = (x.iter().sum::<f64>() - 1.0).abs();
@@ -608,6 +715,9 @@ pub fn verify(p: &Problem, x: &[f64], cap: Option<f64>, floor: Option<f64>) -> f
     }
     if let (Some(tau), Some(cur)) = (fs.turnover_max, &fs.current) {
         worst = worst.max(turnover(x, cur) - tau);
+    }
+    if let Some(a) = p.active {
+        worst = worst.max(risk::active_cvar_of(p.set, x, a.benchmark, p.confidence) - a.budget);
     }
     if let Some(cap) = cap {
         worst = worst.max(risk::cvar_of(p.set, x, p.confidence) - cap);

@@ -1,7 +1,8 @@
 //! Every family solved on one problem: the one function the run, the walk-forward backtest and the bench
 //! take their models from ([`solve_all`]), so the three cannot drift apart.
 //!
-//! The order is fixed: whether X is empty (bound sums, then a feasibility LP), the two auxiliary LPs over
+//! The order is fixed: whether X is empty (bound sums, then a feasibility LP; with an active-CVaR budget,
+//! the LP of the minimum active CVaR over X against the budget), the two auxiliary LPs over
 //! X (minimum CVaR, maximum expected return), the cap and floor rules resolved against them and the
 //! reference portfolio, then each family of [`Family::ALL`] in turn. Every outcome claims only what was
 //! established: X called empty only when it was shown empty, a cap or floor called out of reach only
@@ -154,7 +155,10 @@ fn screen(p: &Problem, premises: Premises, method: Method) -> (Emptiness, Auxili
     if premises == Premises::Given {
         return (Emptiness::NotEmpty, Auxiliary::unsolved());
     }
-    let emptiness = explain_empty(p.feasible, &p.set.assets, p.backend);
+    let emptiness = match explain_empty(p.feasible, &p.set.assets, p.backend) {
+        Emptiness::NotEmpty => within_active_budget(p, method),
+        other => other,
+    };
     let auxiliary = match emptiness {
         Emptiness::NotEmpty => Auxiliary {
             min_cvar: p.min_cvar_by(None, method).map(|s| s.objective),
@@ -163,6 +167,39 @@ fn screen(p: &Problem, premises: Premises, method: Method) -> (Emptiness, Auxili
         Emptiness::Empty(_) | Emptiness::Unknown(_) => Auxiliary::unsolved(),
     };
     (emptiness, auxiliary)
+}
+
+/// Whether the active-CVaR budget leaves any portfolio of a non-empty X: the minimum active CVaR over X
+/// against the budget. Empty only when that LP is solved and its minimum exceeds the budget by more than
+/// the post-solve tolerance; an LP without an optimum leaves it unknown.
+fn within_active_budget(p: &Problem, method: Method) -> Emptiness {
+    let Some(a) = p.active else {
+        return Emptiness::NotEmpty;
+    };
+    match p.min_active_cvar_by(method) {
+        Ok(s) if s.objective <= a.budget + super::FEASIBILITY_TOLERANCE => Emptiness::NotEmpty,
+        Ok(s) => Emptiness::Empty(format!(
+            "policy.active_cvar_budget: the active-CVaR budget {:.6} is below the minimum active CVaR {:.6} against the policy benchmark that the bounds, group limits and turnover limit allow (weights summing to 1); raise the budget",
+            a.budget, s.objective
+        )),
+        Err(f) => Emptiness::Unknown(format!(
+            "the LP of the minimum active CVaR over the feasible set, which decides whether the active-CVaR budget policy.active_cvar_budget = {:.6} leaves any portfolio, ended without a verdict ({})",
+            a.budget,
+            failure_words(&f)
+        )),
+    }
+}
+
+/// How the diagnoses name the set the auxiliary LPs ran over: the feasible set, within the active-CVaR
+/// budget when there is one.
+fn over_set(p: &Problem) -> String {
+    match p.active {
+        Some(a) => format!(
+            "the feasible set within the active-CVaR budget policy.active_cvar_budget = {:.6}",
+            a.budget
+        ),
+        None => "the feasible set".into(),
+    }
 }
 
 /// One family's outcome and its LP's timing.
@@ -224,6 +261,7 @@ fn max_return(
     if cap.is_nan() {
         return (unresolved_cap(rule, min_x), None);
     }
+    let set = over_set(p);
     let (o, timing) = judged(
         p,
         p.max_return_by(Some(cap), method),
@@ -231,13 +269,13 @@ fn max_return(
         None,
         || match min_x {
             Ok(m) if cap < *m => format!(
-                "models.max_return.cvar_cap: the CVaR cap {cap:.6} is below the minimum attainable CVaR {m:.6} over the feasible set; raise the cap"
+                "models.max_return.cvar_cap: the CVaR cap {cap:.6} is below the minimum attainable CVaR {m:.6} over {set}; raise the cap"
             ),
-            Ok(_) => format!(
-                "the solver reports the CVaR cap {cap:.6} infeasible together with the feasible set"
-            ),
+            Ok(_) => {
+                format!("the solver reports the CVaR cap {cap:.6} infeasible together with {set}")
+            }
             Err(f) => format!(
-                "the solver reports the CVaR cap {cap:.6} infeasible together with the feasible set; the minimum CVaR over the feasible set is not known ({}), so whether the cap is below it is not established",
+                "the solver reports the CVaR cap {cap:.6} infeasible together with {set}; the minimum CVaR over {set} is not known ({}), so whether the cap is below it is not established",
                 failure_words(f)
             ),
         },
@@ -268,6 +306,7 @@ fn unresolved_cap(rule: CapRule, min_x: &Result<f64, Failure>) -> Outcome {
 /// min_cvar above the resolved return floor, diagnosed against the maximum expected return over X.
 fn min_cvar(p: &Problem, floor: f64, max_x: &Result<f64, Failure>, method: Method) -> Step {
     let ret = super::return_words(p.feasible.charges_costs());
+    let set = over_set(p);
     let (o, timing) = judged(
         p,
         p.min_cvar_by(Some(floor), method),
@@ -275,13 +314,13 @@ fn min_cvar(p: &Problem, floor: f64, max_x: &Result<f64, Failure>, method: Metho
         Some(floor),
         || match max_x {
             Ok(m) if floor > *m => format!(
-                "models.min_cvar.return_floor: the return floor {floor:.6} is above the best attainable {ret} {m:.6} over the feasible set; lower the floor"
+                "models.min_cvar.return_floor: the return floor {floor:.6} is above the best attainable {ret} {m:.6} over {set}; lower the floor"
             ),
             Ok(_) => format!(
-                "the solver reports the return floor {floor:.6} infeasible together with the feasible set"
+                "the solver reports the return floor {floor:.6} infeasible together with {set}"
             ),
             Err(f) => format!(
-                "the solver reports the return floor {floor:.6} infeasible together with the feasible set; the best attainable {ret} is not known ({}), so whether the floor is above it is not established",
+                "the solver reports the return floor {floor:.6} infeasible together with {set}; the best attainable {ret} is not known ({}), so whether the floor is above it is not established",
                 failure_words(f)
             ),
         },

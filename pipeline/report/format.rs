@@ -209,6 +209,9 @@ mod tests {
         assert_eq!(money(-0.4, Style::Return), "0");
         assert_eq!(money(999.0, Style::Loss), "999");
         assert_eq!(money(f64::INFINITY, Style::Loss), "n/a");
-        assert_eq!(money_in(-2_040_000.0, "XTS", Style::Return), "XTS \u{2212}2,040,000");
+        assert_eq!(
+            money_in(-2_040_000.0, "XTS", Style::Return),
+            "XTS \u{2212}2,040,000"
+        );
     }
 }

@@ -3,8 +3,10 @@
 
 The Rust test-suite runs this script to check tailpack's LP optima against
 scipy's HiGHS ``linprog``. It reads one JSON instance and prints one JSON
-object holding five results: ``max_return``, ``min_cvar``, ``max_ratio``,
-``min_cvar_over_x`` and ``max_return_over_x``.
+object holding the results ``max_return``, ``min_cvar``, ``max_ratio``,
+``min_cvar_over_x`` and ``max_return_over_x``; with an active-CVaR budget
+also ``max_ratio_cc`` (the ratio by its own Charnes-Cooper LP) and
+``min_active_cvar_over_x``.
 
 Usage::
 
@@ -23,6 +25,14 @@ there, N(x) = mu . x - sum_i rate_i |x_i - h_i|, written with the
 turnover variables d_i >= |x_i - h_i| as mu . x - rate . d (exact where
 N is maximised or bounded below, since rate >= 0). Each result then also
 reports ``cost`` and ``expected_return_net`` of its portfolio.
+
+Active-CVaR budget (optional ``benchmark``, the benchmark's return b_k in
+each scenario, with ``active_cvar_budget`` B): X also requires
+CVaR_c of the active loss A_k(x) = b_k - r_k . x to be at most B, written
+after Rockafellar & Uryasev (2000) with its own auxiliaries l_a, v_k:
+l_a + 1/(1-c) sum_k p_k v_k <= B, v_k >= 0, v_k >= A_k(x) - l_a. Every
+program then runs over that smaller X, and each result also reports the
+``active_cvar`` of its portfolio (by sorting the active losses).
 """
 
 import json
@@ -117,6 +127,18 @@ def _turnover(data, n):
     return tau, current, rates
 
 
+def _active(data, s):
+    """The benchmark's scenario returns and the active-CVaR budget, both or neither."""
+    if data.get("benchmark") is None and data.get("active_cvar_budget") is None:
+        return None, None
+    if data.get("benchmark") is None or data.get("active_cvar_budget") is None:
+        raise InputError("'benchmark' and 'active_cvar_budget' go together")
+    budget = _number(data, "active_cvar_budget")
+    if budget < 0:
+        raise InputError("'active_cvar_budget' must be non-negative")
+    return _vector(data, "benchmark", s), budget
+
+
 def parse_instance(data):
     """Validate the JSON instance and return it as a dict of numpy arrays."""
     try:
@@ -136,6 +158,7 @@ def parse_instance(data):
         if np.any(lower > upper) or np.any(lower == np.inf) or np.any(upper == -np.inf):
             raise InputError("'lower'/'upper' are inconsistent for some asset")
         tau, current, rates = _turnover(data, n)
+        benchmark, budget = _active(data, s)
         return {
             "confidence": conf, "probs": probs, "returns": returns,
             "lower": lower, "upper": upper,
@@ -143,6 +166,7 @@ def parse_instance(data):
             "tau": tau, "current": current, "rates": rates,
             "cvar_cap": _number(data, "cvar_cap"),
             "return_floor": _number(data, "return_floor"),
+            "benchmark": benchmark, "budget": budget,
         }
     except KeyError as err:
         raise InputError(f"missing key {err}") from None
@@ -156,8 +180,8 @@ def parse_instance(data):
 # Exact CVaR of a fixed portfolio
 # ---------------------------------------------------------------------------
 
-def exact_cvar(inst, x):
-    """CVaR of portfolio x by sorting the scenario losses.
+def exact_cvar(inst, x, losses=None):
+    """CVaR of portfolio x by sorting the scenario losses (or of the given losses).
 
     VaR_c is the smallest loss l with P(L <= l) >= c, and
     CVaR_c = VaR_c + 1/(1-c) * sum_k p_k (L_k - VaR_c)^+
@@ -166,13 +190,19 @@ def exact_cvar(inst, x):
     of the set of minimisers of F_c(x, .), so this is min_l F_c(x, l)).
     """
     conf, probs = inst["confidence"], inst["probs"]
-    losses = -(inst["returns"] @ x)
+    if losses is None:
+        losses = -(inst["returns"] @ x)
     order = np.argsort(losses, kind="stable")
     cum = np.cumsum(probs[order])
     idx = int(np.searchsorted(cum, conf - CUM_PROB_TOL, side="left"))
     var = losses[order[min(idx, len(order) - 1)]]
     excess = np.maximum(losses - var, 0.0)
     return float(var + probs @ excess / (1.0 - conf))
+
+
+def exact_active_cvar(inst, x):
+    """CVaR of the active loss b_k - r_k . x, by the same sorting."""
+    return exact_cvar(inst, x, inst["benchmark"] - inst["returns"] @ x)
 
 
 def expected_returns(inst):
@@ -184,21 +214,34 @@ def expected_returns(inst):
 # LP construction
 # ---------------------------------------------------------------------------
 #
-# Variable layout: [ x (N) | l (1) | u (S) | d (N, only with turnover or costs) ].
+# Variable layout: [ x (N) | l (1) | u (S) | d (N, only with turnover or costs)
+# | l_a (1) | v (S), only with an active-CVaR budget ].
 # The l and u blocks are the Rockafellar-Uryasev auxiliaries; they are
-# present only when the model involves CVaR.
+# present only when the model involves CVaR. l_a and v are those of the
+# active loss.
 
 class Layout:
     """Column offsets of one LP's variable blocks."""
 
-    def __init__(self, inst, with_cvar):
+    def __init__(self, inst, with_cvar, budget_row=True):
         self.s, self.n = inst["returns"].shape
         self.with_cvar = with_cvar
         self.l = self.n
         self.u = self.n + 1
         self.d = self.n + (1 + self.s if with_cvar else 0)
         self.has_d = inst["tau"] is not None or inst["rates"] is not None
-        self.total = self.d + (self.n if self.has_d else 0)
+        self.la = self.d + (self.n if self.has_d else 0)
+        self.has_active = inst["benchmark"] is not None
+        self.budget_row = budget_row
+        self.v = self.la + 1
+        self.total = self.la + (1 + self.s if self.has_active else 0)
+
+    def active_row(self, inst):
+        """Coefficients of l_a + 1/(1-c) sum_k p_k v_k, the RU function of the active loss."""
+        row = np.zeros(self.total)
+        row[self.la] = 1.0
+        row[self.v:self.v + self.s] = inst["probs"] / (1.0 - inst["confidence"])
+        return row
 
     def cvar_row(self, inst):
         """Coefficients of the RU objective l + 1/(1-c) sum_k p_k u_k.
@@ -228,6 +271,23 @@ def _ru_block(inst, lay):
     return sp.hstack([x_part, l_part, u_part, pad], format="csr"), np.zeros(s)
 
 
+def _active_block(inst, lay):
+    """Rows v_k >= b_k - r_k.x - l_a, i.e. -r_k.x - l_a - v_k <= -b_k, and
+    the budget row l_a + 1/(1-c) sum_k p_k v_k <= B unless the program
+    minimises that function itself (Rockafellar & Uryasev 2000, the same
+    linear-programming form for the active loss)."""
+    s = lay.s
+    a = sp.lil_matrix((s, lay.total))
+    a[:, :lay.n] = -inst["returns"]
+    a[:, lay.la] = -1.0
+    a[:, lay.v:lay.v + s] = -sp.identity(s)
+    rows, rhs = [a.tocsr()], [-inst["benchmark"]]
+    if lay.budget_row:
+        rows.append(sp.csr_matrix(lay.active_row(inst)))
+        rhs.append(np.array([inst["budget"]]))
+    return sp.vstack(rows, format="csr"), np.concatenate(rhs)
+
+
 def _group_block(inst, lay):
     rows, rhs = [], []
     for members, lo, hi in inst["groups"]:
@@ -247,12 +307,13 @@ def _turnover_block(inst, lay):
     n, cur = lay.n, inst["current"]
     eye_x = sp.identity(n, format="csr")
     left = sp.csr_matrix((n, lay.d - n))
-    top = sp.hstack([eye_x, left, -eye_x], format="csr")
-    mid = sp.hstack([-eye_x, left, -eye_x], format="csr")
+    right = sp.csr_matrix((n, lay.total - lay.d - n))
+    top = sp.hstack([eye_x, left, -eye_x, right], format="csr")
+    mid = sp.hstack([-eye_x, left, -eye_x, right], format="csr")
     if inst["tau"] is None:
         return sp.vstack([top, mid], format="csr"), np.concatenate([cur, -cur])
     total = np.zeros(lay.total)
-    total[lay.d:] = 1.0
+    total[lay.d:lay.d + n] = 1.0
     a = sp.vstack([top, mid, sp.csr_matrix(total)], format="csr")
     return a, np.concatenate([cur, -cur, [inst["tau"]]])
 
@@ -272,6 +333,10 @@ def feasible_set(inst, lay):
         a, b = _turnover_block(inst, lay)
         blocks.append(a)
         rhs.append(b)
+    if lay.has_active:
+        a, b = _active_block(inst, lay)
+        blocks.append(a)
+        rhs.append(b)
     a_eq = np.zeros((1, lay.total))
     a_eq[0, :lay.n] = 1.0
     bounds = np.zeros((lay.total, 2))
@@ -279,6 +344,8 @@ def feasible_set(inst, lay):
     bounds[lay.n:, 1] = np.inf
     if lay.with_cvar:
         bounds[lay.l] = (-np.inf, np.inf)
+    if lay.has_active:
+        bounds[lay.la] = (-np.inf, np.inf)
     return blocks, rhs, sp.csr_matrix(a_eq), np.array([1.0]), bounds
 
 
@@ -316,7 +383,7 @@ def _report(inst, status, z, objective):
     if status != "optimal":
         return {"status": status}
     x = np.asarray(z[:inst["returns"].shape[1]], dtype=float)
-    return {
+    out = {
         "status": status,
         "objective": float(objective),
         "weights": x.tolist(),
@@ -325,6 +392,9 @@ def _report(inst, status, z, objective):
         "cost": cost(inst, x),
         "expected_return_net": net_return(inst, x),
     }
+    if inst["benchmark"] is not None:
+        out["active_cvar"] = exact_active_cvar(inst, x)
+    return out
 
 
 def _return_row(inst, lay):
@@ -420,17 +490,120 @@ def max_ratio(inst, lowest, highest):
     return out
 
 
+def min_active_cvar(inst):
+    """min over X of the active CVaR, its budget left out: the budget leaves
+    some portfolio exactly when this is <= B."""
+    lay = Layout(inst, with_cvar=False, budget_row=False)
+    status, z, fun = solve_lp(inst, lay, lay.active_row(inst))
+    return _report(inst, status, z, fun)
+
+
+def _cc_columns(inst):
+    """Column offsets of the Charnes-Cooper LP:
+    [ z (N) | t | l | u (S) | d (N, with turnover or costs) | l_a | v (S) ]."""
+    s, n = inst["returns"].shape
+    cols = {"z": 0, "t": n, "l": n + 1, "u": n + 2}
+    cols["d"] = n + 2 + s
+    has_d = inst["tau"] is not None or inst["rates"] is not None
+    cols["la"] = cols["d"] + (n if has_d else 0)
+    cols["v"] = cols["la"] + 1
+    cols["total"] = cols["v"] + s
+    return cols, has_d
+
+
+def _cc_rows(inst, cols, has_d):
+    """Every row of X multiplied through by t (Charnes & Cooper 1962): each
+    constant b of a row becomes b*t, as a column coefficient -b on t, so all
+    rows are homogeneous (<= 0) except the normalisation of the scaled CVaR."""
+    s, n = inst["returns"].shape
+    c, probs, ret = inst["confidence"], inst["probs"], inst["returns"]
+    rows, rhs = [], []
+
+    def add(coefs, bound=0.0):
+        row = np.zeros(cols["total"])
+        for col, val in coefs:
+            row[col] += val
+        rows.append(row)
+        rhs.append(bound)
+
+    z, t = cols["z"], cols["t"]
+    for i in range(n):
+        if np.isfinite(inst["upper"][i]):
+            add([(z + i, 1.0), (t, -inst["upper"][i])])
+        if np.isfinite(inst["lower"][i]):
+            add([(z + i, -1.0), (t, inst["lower"][i])])
+    for members, lo, hi in inst["groups"]:
+        if np.isfinite(hi):
+            add([(z + i, 1.0) for i in members] + [(t, -hi)])
+        if np.isfinite(lo):
+            add([(z + i, -1.0) for i in members] + [(t, lo)])
+    if has_d:
+        cur, d = inst["current"], cols["d"]
+        for i in range(n):
+            add([(z + i, 1.0), (d + i, -1.0), (t, -cur[i])])
+            add([(z + i, -1.0), (d + i, -1.0), (t, cur[i])])
+        if inst["tau"] is not None:
+            add([(d + i, 1.0) for i in range(n)] + [(t, -inst["tau"])])
+    for k in range(s):
+        add([(z + i, -ret[k, i]) for i in range(n)] + [(cols["l"], -1.0), (cols["u"] + k, -1.0)])
+        add([(z + i, -ret[k, i]) for i in range(n)]
+            + [(cols["la"], -1.0), (cols["v"] + k, -1.0), (t, inst["benchmark"][k])])
+    add([(cols["l"], 1.0)] + [(cols["u"] + k, probs[k] / (1.0 - c)) for k in range(s)], 1.0)
+    add([(cols["la"], 1.0)] + [(cols["v"] + k, probs[k] / (1.0 - c)) for k in range(s)]
+        + [(t, -inst["budget"])])
+    return np.array(rows), np.array(rhs)
+
+
+def max_ratio_cc(inst, lowest, highest):
+    """max N(x) / CVaR_c(x) over X (with the active budget) as one LP, after
+    Charnes & Cooper (1962), "Programming with linear fractional
+    functionals", Naval Research Logistics Quarterly 9: z = t x,
+    t = 1/CVaR, maximise mu.z - rate.(t d) with the scaled CVaR <= 1 and
+    every constant of X (bounds, group limits, holdings, turnover limit,
+    the benchmark's returns and the active budget) times t. Written from
+    scratch here, apart from the LPs above; x = z/t."""
+    reason = _ratio_preconditions(lowest, highest)
+    if reason:
+        return _not_applicable(reason)
+    cols, has_d = _cc_columns(inst)
+    n = inst["returns"].shape[1]
+    a_ub, b_ub = _cc_rows(inst, cols, has_d)
+    a_eq = np.zeros((1, cols["total"]))
+    a_eq[0, :n] = 1.0
+    a_eq[0, cols["t"]] = -1.0
+    objective = np.zeros(cols["total"])
+    objective[:n] = -expected_returns(inst)
+    if inst["rates"] is not None:
+        objective[cols["d"]:cols["d"] + n] = inst["rates"]
+    bounds = [(None, None)] * n + [(0, None), (None, None)] + [(0, None)] * (cols["la"] - n - 2)
+    bounds += [(None, None)] + [(0, None)] * (cols["total"] - cols["v"])
+    res = linprog(objective, A_ub=sp.csr_matrix(a_ub), b_ub=b_ub, A_eq=a_eq, b_eq=[0.0],
+                  bounds=bounds, method="highs", options=LP_OPTIONS)
+    if res.status != 0:
+        return {"status": {2: "infeasible", 3: "unbounded"}.get(res.status, f"error: {res.message}")}
+    t = res.x[cols["t"]]
+    x = res.x[:n] / t
+    out = _report(inst, "optimal", np.concatenate([x, res.x[n:]]), net_return(inst, x) / exact_cvar(inst, x))
+    out["scale_t"] = float(t)
+    out["lp_objective"] = float(-res.fun)
+    return out
+
+
 def solve_all(inst):
-    """Run the five programs and return the output object."""
+    """Run the programs and return the output object."""
     lowest = min_cvar(inst, floored=False)
     highest = max_return(inst, capped=False)
-    return {
+    out = {
         "max_return": max_return(inst, capped=True),
         "min_cvar": min_cvar(inst, floored=True),
         "max_ratio": max_ratio(inst, lowest, highest),
         "min_cvar_over_x": lowest,
         "max_return_over_x": highest,
     }
+    if inst["benchmark"] is not None:
+        out["max_ratio_cc"] = max_ratio_cc(inst, lowest, highest)
+        out["min_active_cvar_over_x"] = min_active_cvar(inst)
+    return out
 
 
 def main(argv):

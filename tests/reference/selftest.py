@@ -4,8 +4,8 @@
 Runs the reference script through its command line on
 
 * a 3-asset, 5-scenario instance whose optima are worked out by hand below
-  (plus variants with turnover, infeasible caps, a non-positive CVaR and
-  malformed input), and
+  (plus variants with turnover, an active-CVaR budget, infeasible caps, a
+  non-positive CVaR and malformed input), and
 * a random 3-asset instance, cross-checking every program, Dinkelbach's
   ratio in particular, against a brute-force grid over the simplex
   (step 0.01), then against a step-1e-4 grid around the coarse maximiser.
@@ -167,6 +167,38 @@ def test_hand_turnover():
     assert res["max_ratio"]["iterations"] == 2, res["max_ratio"]
 
 
+def test_hand_active_budget():
+    # Benchmark = asset A (b_k = r_kA), active-CVaR budget 0.004. The active
+    # loss b_k - r_k.x is, with a = 1 - b - c, s1: 0.02 b + 0.07 c,
+    # s2: 0.03 c, and <= 0 in s3..s5 (B and C gain more than A there), so
+    # the two worst are s1, s2 and active CVaR = 0.01 b + 0.05 c, linear on
+    # X. The budget 0.01 b + 0.05 c <= 0.004 cuts X to the triangle (b, c) =
+    # (0, 0), (0.4, 0), (0, 0.08) (group and bounds slack there):
+    #   (1, 0, 0)        mu 0.008    CVaR 0.01    ratio 0.8
+    #   (0.6, 0.4, 0)    mu 0.0128   CVaR 0.014   ratio 32/35
+    #   (0.92, 0, 0.08)  mu 0.00976  CVaR 0.014   ratio 0.697
+    # max_return (cap 0.02 slack): (0.6, 0.4, 0), mu 0.0128.
+    # min_cvar, floor 0.0112: 0.012 b + 0.022 c >= 0.0032, B cheaper per
+    #   unit of return, b = 0.8/3 within the budget: x = (2.2/3, 0.8/3, 0),
+    #   CVaR 0.038/3.
+    # max_ratio: the vertex (0.6, 0.4, 0), 32/35; Dinkelbach from 0.8 gives
+    #   it at once and F(32/35) = 0: two LPs. The Charnes-Cooper LP, with
+    #   b_k and the budget times t, gives the same portfolio.
+    # min_active_cvar_over_x: 0 at A alone (0.01 b + 0.05 c > 0 elsewhere).
+    res = solve(hand_instance(benchmark=[r[0] for r in HAND_RETURNS], active_cvar_budget=0.004,
+                              return_floor=0.0112))
+    check(res, "max_return", [0.6, 0.4, 0.0], 0.0128, 0.014, 0.0128)
+    check(res, "min_cvar", [2.2 / 3, 0.8 / 3, 0.0], 0.038 / 3, 0.038 / 3, 0.0112)
+    check(res, "max_ratio", [0.6, 0.4, 0.0], 32 / 35, 0.014, 0.0128)
+    check(res, "max_ratio_cc", [0.6, 0.4, 0.0], 32 / 35, 0.014, 0.0128)
+    check(res, "min_cvar_over_x", [1.0, 0.0, 0.0], 0.01, 0.01, 0.008)
+    check(res, "max_return_over_x", [0.6, 0.4, 0.0], 0.0128, 0.014, 0.0128)
+    check(res, "min_active_cvar_over_x", [1.0, 0.0, 0.0], 0.0, 0.01, 0.008)
+    close(res["max_return"]["active_cvar"], 0.004, "max_return active_cvar")
+    close(res["min_cvar"]["active_cvar"], 0.008 / 3, "min_cvar active_cvar")
+    assert res["max_ratio"]["iterations"] == 2, res["max_ratio"]
+
+
 def test_hand_infeasible():
     # cap 0.005 < min CVaR 0.01 and floor 0.03 > max return 0.0256.
     res = solve(hand_instance(cvar_cap=0.005, return_floor=0.03))
@@ -314,7 +346,7 @@ def test_random_against_grid():
 
 
 def main():
-    for test in (test_hand_base, test_hand_turnover, test_hand_infeasible,
+    for test in (test_hand_base, test_hand_turnover, test_hand_active_budget, test_hand_infeasible,
                  test_hand_not_applicable, test_bad_input):
         test()
         print(f"ok  {test.__name__}")

@@ -111,6 +111,8 @@ cases!(
     prices_benchmark_series_gap,
     config_policy_targets_sum_below_one,
     config_policy_target_outside_range,
+    config_policy_active_budget_negative,
+    config_policy_active_budget_without_benchmark,
     config_policy_line_selects_no_asset,
     config_policy_benchmark_not_in_prices,
     metadata_asset_missing_from_prices,

@@ -313,3 +313,42 @@ fn the_backtest_charges_each_rebalance_from_the_drifted_weights() {
     }
     assert!(charged > 10, "rebalances pay costs");
 }
+
+/// In a multi-fund config each fund may bring its own value, policy and cost rates; a fund that gives
+/// none keeps the shared ones. The rates and policy lines in each pack's results.json are the ones its
+/// own config section gives (the README's "Several funds" rule), checked against the config text.
+#[test]
+fn each_fund_of_a_multi_fund_config_has_its_own_policy_value_and_costs() {
+    let f = Fixture::new();
+    costed_fund(&f, "", true);
+    let shared = std::fs::read_to_string(f.path("fund.yaml")).unwrap();
+    let funds = "funds:\n  - fund: { name: Shared Mandate (fictional), short_name: shared }\n  - fund: { name: Own Mandate (fictional), short_name: own, value: 40000000, base_currency: XTS }\n    costs:\n      class_bps: { equity: 50 }\n    policy:\n      lines:\n        - { name: Equity, class: equity, target: 0.5, min: 0.2, max: 0.8, benchmark: AS01 }\n        - { name: Bonds, class: bond, target: 0.5, min: 0.2, max: 0.8, benchmark: AS02 }\n";
+    f.write("fund.yaml", &format!("{shared}{funds}"));
+    let ran = f.run(&["run", "fund.yaml", "--quiet"]);
+    assert_eq!(ran.code, 0, "{}", ran.stderr);
+    let pack = |short: &str| json(&f.path(&format!("out/{short}/2024-06-28/r1/results.json")));
+    let (shared, own) = (pack("shared"), pack("own"));
+    for (a, rate) in config_rates() {
+        let got = shared["costs"]["rates"][a].as_f64().unwrap();
+        assert!((got - rate).abs() < 1e-15, "shared {a}: {got} vs {rate}");
+    }
+    // Own rates: equity 50 bp from the fund's section; bonds none (its `costs` replaces the shared one).
+    let own_rates = [
+        ("AS01", 0.005),
+        ("AS02", 0.0),
+        ("AS03", 0.005),
+        ("AS04", 0.0),
+    ];
+    for (a, rate) in own_rates {
+        let got = own["costs"]["rates"][a].as_f64().unwrap();
+        assert!((got - rate).abs() < 1e-15, "own {a}: {got} vs {rate}");
+    }
+    assert!(shared["fund_value"].is_null(), "{}", shared["fund_value"]);
+    assert_eq!(own["fund_value"].as_f64(), Some(40_000_000.0));
+    assert_eq!(own["base_currency"], "XTS");
+    assert!(shared["policy"].is_null(), "{}", shared["policy"]);
+    let lines = own["policy"]["lines"].as_array().unwrap();
+    let names: Vec<&str> = lines.iter().map(|l| l["name"].as_str().unwrap()).collect();
+    assert_eq!(names, ["Equity", "Bonds"]);
+    assert_eq!(lines[0]["target"].as_f64(), Some(0.5));
+}

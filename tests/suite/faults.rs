@@ -33,6 +33,7 @@ fn unbounded_problem_outcome(backend: Backend) -> models::Outcome {
         confidence: 0.9,
         feasible: &fs,
         backend,
+        active: None,
     };
     models::outcome(&p, p.max_return(None), None, None, || "infeasible".into())
 }

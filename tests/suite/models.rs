@@ -5,8 +5,8 @@ use super::common::{normal, repo};
 use rand::{RngExt, SeedableRng};
 use serde_json::{Value, json};
 use tailpack::config::Backend;
-use tailpack::models::{self, FeasibleSet, Group, Problem};
-use tailpack::risk::cvar_of;
+use tailpack::models::{self, ActiveBudget, FeasibleSet, Group, Method, Problem};
+use tailpack::risk::{active_cvar_of, cvar_of};
 use tailpack::scenarios::ScenarioSet;
 
 /// Builds a feasible set X for a test: starts long-only (every weight in [0, 1], budget Σx = 1, no group,
@@ -68,16 +68,19 @@ pub(crate) fn problem<'a>(set: &'a ScenarioSet, fs: &'a FeasibleSet, c: f64) -> 
         confidence: c,
         feasible: fs,
         backend: Backend::Highs,
+        active: None,
     }
 }
 
-/// A random instance: scenarios, feasible set, confidence, cap and floor.
+/// A random instance: scenarios, feasible set, confidence, cap and floor, and optionally a benchmark's
+/// scenario returns with an active-CVaR budget.
 struct Instance {
     set: ScenarioSet,
     fs: FeasibleSet,
     c: f64,
     cap: f64,
     floor: f64,
+    active: Option<(Vec<f64>, f64)>,
 }
 
 fn instance(seed: u64) -> Instance {
@@ -123,12 +126,19 @@ fn instance(seed: u64) -> Instance {
         set,
         fs,
         c,
+        active: None,
     }
 }
 
 impl Instance {
     fn problem(&self) -> Problem<'_> {
-        problem(&self.set, &self.fs, self.c)
+        Problem {
+            active: self.active.as_ref().map(|(b, budget)| ActiveBudget {
+                benchmark: b,
+                budget: *budget,
+            }),
+            ..problem(&self.set, &self.fs, self.c)
+        }
     }
 }
 
@@ -141,6 +151,7 @@ fn to_json(i: &Instance) -> Value {
         "turnover_max": i.fs.turnover_max, "current": if i.fs.turnover_max.is_some() || i.fs.charges_costs() { json!(i.fs.current) } else { Value::Null },
         "cost_rates": if i.fs.charges_costs() { json!(i.fs.cost_rates) } else { Value::Null },
         "cvar_cap": i.cap, "return_floor": i.floor,
+        "benchmark": i.active.as_ref().map(|a| &a.0), "active_cvar_budget": i.active.as_ref().map(|a| a.1),
     })
 }
 
@@ -538,6 +549,85 @@ fn hand_worked_models_on_five_scenarios() {
     }
 }
 
+/// The hand-worked case of `tests/reference/selftest.py` (`test_hand_active_budget`) with the benchmark
+/// = asset A and an active-CVaR budget of 0.004: on long-only X the active CVaR at 0.6 is 0.01 b + 0.05 c
+/// (the worked derivation is there), which cuts X to the triangle (a, b, c) = (1, 0, 0), (0.6, 0.4, 0),
+/// (0.92, 0, 0.08). Hence max_return (cap 0.02 slack) = 0.0128 and max_ratio = 32/35, both at
+/// (0.6, 0.4, 0); min_cvar with floor 0.0112 = 0.038/3 at (2.2/3, 0.8/3, 0); the least active CVaR is 0
+/// at A alone. On both backends and both methods.
+#[test]
+fn hand_worked_models_with_an_active_budget_on_five_scenarios() {
+    let returns = vec![
+        -0.01, -0.03, -0.08, -0.01, -0.01, -0.04, 0.01, 0.03, 0.06, 0.02, 0.04, 0.08, 0.03, 0.07,
+        0.13,
+    ];
+    let benchmark: Vec<f64> = returns.iter().step_by(3).copied().collect();
+    let set = ScenarioSet::from_matrix(
+        vec!["A".into(), "B".into(), "C".into()],
+        returns,
+        vec![0.2; 5],
+    )
+    .unwrap();
+    let fs = Limits::long_only(3)
+        .upper(vec![1.0, 0.5, 1.0])
+        .group("BC", &[1, 2], 0.0, 0.8)
+        .build();
+    let near = |got: &[f64], want: [f64; 3], tol: f64, what: &str| {
+        for (g, w) in got.iter().zip(want) {
+            assert!((g - w).abs() < tol, "{what}: {got:?} vs {want:?}");
+        }
+    };
+    for backend in [Backend::Highs, Backend::Clarabel] {
+        for method in [Method::Direct, Method::Cuts] {
+            let p = Problem {
+                backend,
+                active: Some(ActiveBudget {
+                    benchmark: &benchmark,
+                    budget: 0.004,
+                }),
+                ..problem(&set, &fs, 0.6)
+            };
+            let tol = if backend == Backend::Highs {
+                1e-10
+            } else {
+                1e-6
+            };
+            let what = |m: &str| format!("{backend:?} {method:?} {m}");
+            let m = p.max_return_by(Some(0.02), method).unwrap();
+            assert!((m.objective - 0.0128).abs() < tol, "{}", what("max_return"));
+            near(&m.weights, [0.6, 0.4, 0.0], tol * 10.0, &what("max_return"));
+            let r = p.max_ratio_by(method).unwrap();
+            assert!(
+                (r.objective - 32.0 / 35.0).abs() < tol,
+                "{}: {}",
+                what("ratio"),
+                r.objective
+            );
+            near(&r.weights, [0.6, 0.4, 0.0], tol * 10.0, &what("max_ratio"));
+            let v = p.min_cvar_by(Some(0.0112), method).unwrap();
+            assert!(
+                (v.objective - 0.038 / 3.0).abs() < tol,
+                "{}",
+                what("min_cvar")
+            );
+            near(
+                &v.weights,
+                [2.2 / 3.0, 0.8 / 3.0, 0.0],
+                tol * 10.0,
+                &what("min_cvar"),
+            );
+            let a = p.min_active_cvar_by(method).unwrap();
+            assert!(a.objective.abs() < tol, "{}", what("least active CVaR"));
+            near(
+                &a.weights,
+                [1.0, 0.0, 0.0],
+                tol * 10.0,
+                &what("least active CVaR"),
+            );
+        }
+    }
+}
+
 #[test]
 fn preconditions_reject_riskless_and_all_losing_universes() {
     // A riskless asset (return 0.001 in every scenario) allowed at 100%: min CVaR over X = −0.001 ≤ 0.
@@ -870,5 +960,139 @@ fn the_backtest_decides_each_month_as_the_run_solves() {
         optimal,
         Family::ALL.len(),
         "every family has a portfolio to compare"
+    );
+}
+
+/// `costed(seed)` with a benchmark outside the universe (0.6 × the assets' mean return plus 0.4 × a series
+/// of its own) and an active-CVaR budget halfway between the minimum active CVaR over X and the active
+/// CVaR of the capped max-return portfolio without a budget, so that it binds; the cap and floor set
+/// again on the smaller set.
+fn budgeted(seed: u64) -> Instance {
+    let mut i = costed(seed);
+    let mut rng = rand::rngs::StdRng::seed_from_u64(2000 + seed);
+    let n = i.set.width() as f64;
+    let b: Vec<f64> = (0..i.set.len())
+        .map(|k| {
+            let mean = i.set.row(k).iter().sum::<f64>() / n;
+            0.6 * mean + 0.4 * (0.002 + 0.012 * normal(&mut rng))
+        })
+        .collect();
+    let free = i.problem().max_return(Some(i.cap)).unwrap().weights;
+    let high = active_cvar_of(&i.set, &free, &b, i.c);
+    i.active = Some((b, f64::INFINITY));
+    let low = i
+        .problem()
+        .min_active_cvar_by(Method::Direct)
+        .unwrap()
+        .objective;
+    assert!(
+        high > low + 1e-4,
+        "seed {seed}: no room for a binding budget"
+    );
+    i.active.as_mut().unwrap().1 = low + 0.5 * (high - low);
+    let p = i.problem();
+    let min_cvar = p.min_cvar(None).unwrap();
+    let max_net = p.max_return(None).unwrap().objective;
+    let min_net = models::net_return(&p, &min_cvar.weights);
+    i.cap = min_cvar.objective * 1.3;
+    i.floor = min_net + 0.5 * (max_net - min_net);
+    i
+}
+
+/// Issue 16: the models with an active-CVaR budget (and costs, bounds, a group and a turnover limit)
+/// against scipy's HiGHS `linprog` (`tests/reference/cvar_reference.py`, which writes the budget through
+/// its own Rockafellar–Uryasev rows of the active loss, and solves the ratio both by Dinkelbach's method
+/// and by its own Charnes–Cooper LP), on every solve path: the direct LP and the cutting planes, with
+/// HiGHS and (on three seeds) with Clarabel.
+#[test]
+fn active_budget_optima_match_scipy_highs_on_every_solve_path() {
+    let mut binding = 0;
+    for seed in 0..8u64 {
+        let i = budgeted(seed);
+        let budget = i.active.as_ref().unwrap().1;
+        let r = reference(&i);
+        let reference_of = |m: &str| r[m]["objective"].as_f64().unwrap();
+        // The two reference methods for the ratio agree with each other first.
+        close(
+            reference_of("max_ratio_cc"),
+            reference_of("max_ratio"),
+            1e-6,
+            &format!("seed {seed}: reference Charnes–Cooper vs Dinkelbach"),
+        );
+        let a = r["max_return"]["active_cvar"].as_f64().unwrap();
+        assert!(a <= budget + 1e-7, "seed {seed}: reference over budget");
+        binding += usize::from(a >= budget - 1e-6);
+        let backends: &[Backend] = if seed < 3 {
+            &[Backend::Highs, Backend::Clarabel]
+        } else {
+            &[Backend::Highs]
+        };
+        for &backend in backends {
+            for method in [Method::Direct, Method::Cuts] {
+                let p = Problem {
+                    backend,
+                    ..i.problem()
+                };
+                let tol = if backend == Backend::Highs {
+                    1e-7
+                } else {
+                    1e-6
+                };
+                let what =
+                    |m: &str| format!("seed {seed} {backend:?} {method:?} {m} with a budget");
+                let mr = p.max_return_by(Some(i.cap), method).unwrap();
+                close(
+                    mr.objective,
+                    reference_of("max_return"),
+                    tol,
+                    &what("max_return"),
+                );
+                let mc = p.min_cvar_by(Some(i.floor), method).unwrap();
+                close(
+                    mc.objective,
+                    reference_of("min_cvar"),
+                    tol,
+                    &what("min_cvar"),
+                );
+                let ratio = p.max_ratio_by(method).unwrap();
+                let got =
+                    models::net_return(&p, &ratio.weights) / cvar_of(&i.set, &ratio.weights, i.c);
+                close(got, reference_of("max_ratio_cc"), 1e-6, &what("max_ratio"));
+                let low = p.min_active_cvar_by(method).unwrap().objective;
+                close(
+                    low,
+                    reference_of("min_active_cvar_over_x"),
+                    tol,
+                    &what("min active CVaR"),
+                );
+                close(
+                    p.min_cvar_by(None, method).unwrap().objective,
+                    reference_of("min_cvar_over_x"),
+                    tol,
+                    &what("min CVaR over X"),
+                );
+                // Each portfolio keeps the budget, recomputed here from its weights by sorting.
+                for (m, x) in [
+                    ("max_return", &mr.weights),
+                    ("min_cvar", &mc.weights),
+                    ("max_ratio", &ratio.weights),
+                ] {
+                    let (b, _) = i.active.as_ref().unwrap();
+                    let active = active_cvar_of(&i.set, x, b, i.c);
+                    assert!(
+                        active <= budget + 1e-6,
+                        "{}: active CVaR {active} over {budget}",
+                        what(m)
+                    );
+                }
+                assert!(models::verify(&p, &mr.weights, Some(i.cap), None) < 1e-6);
+                assert!(models::verify(&p, &mc.weights, None, Some(i.floor)) < 1e-6);
+                assert!(models::verify(&p, &ratio.weights, None, None) < 1e-6);
+            }
+        }
+    }
+    assert!(
+        binding >= 4,
+        "the budget binds max_return on only {binding} of 8 seeds"
     );
 }

@@ -440,3 +440,191 @@ fn tracking_error_uses_the_scenario_probabilities() {
         "the weighting must matter in this test"
     );
 }
+
+/// The active CVaR at 95% of weights `x` against the policy benchmark of [`POLICY`], recomputed from the
+/// pack's scenario files: b_k = 0.6 × REF-EQ + 0.4 × AS02 (the contract), CVaR of the active loss by
+/// [`ru_cvar`] (Rockafellar & Uryasev 2000, Theorem 1).
+fn active_cvar_from_files(dir: &std::path::Path, x: &[f64]) -> f64 {
+    let (_, _, rows) = table(&dir.join("scenarios.csv"));
+    let (_, _, ref_rows) = table(&dir.join("reference-scenarios.csv"));
+    let losses: Vec<f64> = (0..rows.len())
+        .map(|k| {
+            let b = 0.6 * ref_rows[k][0] + 0.4 * rows[k][1];
+            b - rows[k].iter().zip(x).map(|(r, w)| r * w).sum::<f64>()
+        })
+        .collect();
+    ru_cvar(&losses, 0.95)
+}
+
+/// Each optimal model's weights in asset order, by name.
+fn model_weights(r: &serde_json::Value) -> Vec<(String, Vec<f64>)> {
+    r["models"]
+        .as_object()
+        .unwrap()
+        .iter()
+        .filter_map(|(name, m)| {
+            let w = m["weights"].as_object()?;
+            let x = ["AS01", "AS02", "AS03", "AS04"].map(|a| w[a].as_f64().unwrap());
+            Some((name.clone(), x.to_vec()))
+        })
+        .collect()
+}
+
+/// Issue 16: `policy.active_cvar_budget` binds. Without a budget the max-return model has some active CVaR
+/// A; with the budget 0.8·A every model's active CVaR, recomputed from scenarios.csv and
+/// reference-scenarios.csv, is within the budget and the max-return model's sits on it, with a lower
+/// expected return than under a budget of 2·A, which does not bind and gives the unbudgeted portfolio.
+#[test]
+fn an_active_cvar_budget_binds_the_models_and_a_looser_one_earns_more() {
+    let f = Fixture::new();
+    let free = run_pack(&f, &fund_with_reference(&f, POLICY, false));
+    let r = json(&free.join("results.json"));
+    let a = r["policy"]["active"]["max_return"]["active_cvar"]
+        .as_f64()
+        .unwrap();
+    assert!(r["policy"]["active_cvar_budget"].is_null());
+    let with = |budget: f64| {
+        let policy = POLICY.replace(
+            "policy:\n",
+            &format!("policy:\n  active_cvar_budget: {budget}\n"),
+        );
+        let f = Fixture::new();
+        let dir = run_pack(&f, &fund_with_reference(&f, &policy, false));
+        (json(&dir.join("results.json")), dir, f)
+    };
+    let tight = 0.8 * a;
+    let (rt, dir_t, _keep_t) = with(tight);
+    assert_eq!(rt["policy"]["active_cvar_budget"].as_f64(), Some(tight));
+    let models = model_weights(&rt);
+    assert_eq!(models.len(), 3, "every model is optimal: {}", rt["models"]);
+    for (name, x) in &models {
+        let active = active_cvar_from_files(&dir_t, x);
+        assert!(
+            active <= tight + 1e-7,
+            "{name}: active CVaR {active} over the budget {tight}"
+        );
+        if name == "max_return" {
+            assert!(
+                active >= tight - 1e-6,
+                "the budget binds max_return: {active} vs {tight}"
+            );
+        }
+    }
+    let checks = rt["checks"].to_string();
+    assert!(checks.contains("policy.active_cvar_budget"), "{checks}");
+    let (rl, _dir_l, _keep_l) = with(2.0 * a);
+    let ret = |r: &serde_json::Value| {
+        r["models"]["max_return"]["expected_return"]
+            .as_f64()
+            .unwrap()
+    };
+    assert!(
+        ret(&rl) > ret(&rt) + 1e-6,
+        "a looser budget earns more: {} vs {}",
+        ret(&rl),
+        ret(&rt)
+    );
+    close_to(
+        ret(&rl),
+        ret(&r),
+        1e-9,
+        "a budget that does not bind changes nothing",
+    );
+}
+
+fn close_to(got: f64, want: f64, tol: f64, what: &str) {
+    assert!((got - want).abs() <= tol, "{what}: {got} vs {want}");
+}
+
+/// A budget below the least active CVaR the limits allow leaves no portfolio: every family is infeasible
+/// with a message naming the budget and that minimum, established by the LP of the minimum active CVaR.
+#[test]
+fn a_budget_below_the_least_active_cvar_empties_the_set_and_says_so() {
+    let f = Fixture::new();
+    let policy = POLICY.replace("policy:\n", "policy:\n  active_cvar_budget: 0\n");
+    let dir = run_pack(&f, &fund_with_reference(&f, &policy, false));
+    let r = json(&dir.join("results.json"));
+    for (name, m) in r["models"].as_object().unwrap() {
+        assert_eq!(m["status"], "infeasible", "{name}: {m}");
+        let msg = m["message"].as_str().unwrap();
+        assert!(
+            msg.contains("policy.active_cvar_budget: the active-CVaR budget 0.000000 is below the minimum active CVaR"),
+            "{name}: {msg}"
+        );
+    }
+}
+
+/// The backtest's realised (ex-post) tracking error, recomputed here from the price file and the months
+/// in results.json: the benchmark's return over each month is Σ target × (P[next]/P[date] − 1) of its
+/// series (the issue's definition of the policy benchmark), active return is the month's realised return
+/// net of costs minus it, and the tracking error is the sample standard deviation of active returns
+/// (Grinold & Kahn, "Active Portfolio Management", ch. 3), annualised by √12 for monthly observations.
+#[test]
+fn backtest_ex_post_tracking_error_from_the_price_file() {
+    let f = Fixture::new();
+    let cfg = fund_with_reference(&f, POLICY, false);
+    let text = std::fs::read_to_string(&cfg)
+        .unwrap()
+        .replace("backtest_years: 0", "backtest_years: 1");
+    f.write("fund.yaml", &text);
+    let pack = run_pack(&f, &cfg);
+    let r = json(&pack.join("results.json"));
+    let prices = std::fs::read_to_string(f.path("data/prices.csv")).unwrap();
+    let mut lines = prices.lines();
+    let header: Vec<&str> = lines.next().unwrap().split(',').collect();
+    let col = |name: &str| header.iter().position(|h| *h == name).unwrap();
+    let (eq, bond) = (col("REF-EQ"), col("AS02"));
+    let rows: std::collections::HashMap<String, Vec<f64>> = lines
+        .map(|l| {
+            let cells: Vec<&str> = l.split(',').collect();
+            let values = cells[1..].iter().map(|c| c.parse().unwrap_or(f64::NAN));
+            (
+                cells[0].to_string(),
+                std::iter::once(f64::NAN).chain(values).collect(),
+            )
+        })
+        .collect();
+    let bench = |date: &str, next: &str| {
+        let (a, b) = (&rows[date], &rows[next]);
+        0.6 * (b[eq] / a[eq] - 1.0) + 0.4 * (b[bond] / a[bond] - 1.0)
+    };
+    let words = pdf_text(&pack.join("pack.pdf"));
+    let mut checked = 0;
+    for (model, t) in r["backtest"]["models"].as_object().unwrap() {
+        let active: Vec<f64> = t["months"]
+            .as_array()
+            .unwrap()
+            .iter()
+            .filter(|m| !m["realised_return_net"].is_null())
+            .map(|m| {
+                m["realised_return_net"].as_f64().unwrap()
+                    - bench(m["date"].as_str().unwrap(), m["next"].as_str().unwrap())
+            })
+            .collect();
+        assert!(active.len() >= 10, "{model}: {} months", active.len());
+        let n = active.len() as f64;
+        let mean = active.iter().sum::<f64>() / n;
+        let te = (active.iter().map(|a| (a - mean).powi(2)).sum::<f64>() / (n - 1.0)).sqrt();
+        let e = &t["ex_post_active"];
+        assert_eq!(e["months"].as_u64(), Some(active.len() as u64), "{model}");
+        close(
+            e["mean_active_return"].as_f64().unwrap(),
+            mean,
+            "mean active",
+        );
+        assert!(
+            (e["tracking_error"].as_f64().unwrap() - te).abs() < 1e-12,
+            "{model}: {e} vs {te}"
+        );
+        let annual = te * 12f64.sqrt();
+        assert!((e["tracking_error_annualised"].as_f64().unwrap() - annual).abs() < 1e-12);
+        let printed = format!("{:.2}%", annual * 100.0);
+        assert!(
+            words.contains(&printed),
+            "{model}: {printed} not in the PDF"
+        );
+        checked += 1;
+    }
+    assert_eq!(checked, 3);
+    assert!(words.contains("Tracking error, annualised"), "{words}");
+}

@@ -277,7 +277,7 @@ proptest! {
     #[test]
     fn lp_optima_satisfy_their_constraints(seed in any::<u64>()) {
         let i = instance(seed);
-        let p = Problem { set: &i.set, mu: i.set.mean(), confidence: i.c, feasible: &i.fs, backend: Backend::Highs };
+        let p = Problem { set: &i.set, mu: i.set.mean(), confidence: i.c, feasible: &i.fs, backend: Backend::Highs, active: None };
         let min = p.min_cvar(None).expect("X holds the current portfolio");
         let best = p.max_return(None).expect("X holds the current portfolio");
         let cap = min.objective + 0.2 * min.objective.abs() + 1e-4;

@@ -34,6 +34,8 @@ pub struct BacktestShow {
     pub skipped: Vec<Pair>,
     /// How wealth and returns treat transaction costs, as the end of a sentence.
     pub costs: String,
+    /// Whether the scores carry active risk against the policy benchmark (a policy is configured).
+    pub has_active: bool,
 }
 
 /// A model's backtest: its VaR exceptions with the two likelihood-ratio tests and the verdict in words, and
@@ -57,6 +59,19 @@ pub struct Score {
     pub mean_turnover: String,
     pub final_wealth: String,
     pub total_return: String,
+    /// Transaction costs paid over the backtest, as a percentage of the starting wealth.
+    pub total_cost: String,
+    /// Realised active risk against the policy benchmark (None without a policy).
+    pub active: Option<ActiveScore>,
+}
+
+/// A model's realised active return and ex-post tracking error against the policy benchmark.
+#[derive(Serialize)]
+pub struct ActiveScore {
+    pub months: String,
+    pub mean_active: String,
+    pub tracking_error: String,
+    pub tracking_error_annualised: String,
 }
 
 /// A model's daily 99% VaR traffic-light result.
@@ -95,6 +110,7 @@ pub fn show(r: &RunResult) -> Result<BacktestShow, String> {
     let (daily, daily_window, daily_absent) = daily(r, b);
     Ok(BacktestShow {
         costs: costs_phrase(r),
+        has_active: b.benchmark.is_some(),
         facts: facts(r, b),
         scores: b.tracks.iter().map(|t| score(t, &level)).collect(),
         daily,
@@ -231,6 +247,25 @@ fn score(t: &Track, level: &str) -> Score {
         ),
         final_wealth: format::number(t.final_wealth, 4),
         total_return: pct(t.final_wealth - 1.0, Style::Return),
+        total_cost: pct(t.total_cost, Style::Weight),
+        active: t
+            .rows
+            .iter()
+            .any(|r| r.active_return.is_some())
+            .then(|| active_score(t)),
+    }
+}
+
+/// The active figures as printed; dashes where fewer than two months allow a standard deviation.
+fn active_score(t: &Track) -> ActiveScore {
+    let months = t.rows.iter().filter(|r| r.active_return.is_some()).count();
+    let e = t.ex_post.as_ref();
+    let or_none = |x: Option<f64>, style: Style| x.map_or(NONE.into(), |v| pct(v, style));
+    ActiveScore {
+        months: format::count(months),
+        mean_active: or_none(e.map(|e| e.mean_active_return), Style::Return),
+        tracking_error: or_none(e.map(|e| e.tracking_error), Style::Weight),
+        tracking_error_annualised: or_none(e.map(|e| e.tracking_error_annualised), Style::Weight),
     }
 }
 
