@@ -94,8 +94,8 @@ pub fn horizons_per_year(r: &RunResult) -> f64 {
 }
 
 /// An expected return over one horizon, annualised by simple scaling: × horizons in a year (not
-/// compounded), the convention for arithmetic mean returns (e.g. Bacon, "Practical Portfolio Performance
-/// Measurement and Attribution", 2nd ed., 2008, ch. 4).
+/// compounded). The mean of a sum of n independent, identically distributed horizon returns is n × the mean,
+/// as its variance is n × the variance (the rule [`annual_volatility`] takes the root of).
 pub fn annual_return(horizon_return: f64, per_year: f64) -> f64 {
     horizon_return * per_year
 }
