@@ -14,7 +14,7 @@ pdf="$pack/pack.pdf"
 pages="$(pdfinfo "$pdf" 2>/dev/null | awk '/^Pages:/ {print $2}')"
 summary=""
 for ((p = 2; p <= pages; p++)); do
-  if pdftotext -f "$p" -l "$p" -layout "$pdf" - | grep -Eq '^\s*1\s+Summary\s*$'; then summary="$p"; break; fi
+  if pdftotext -f "$p" -l "$p" -layout "$pdf" - | grep -E '^\s*1\s+Summary\s*$' >/dev/null; then summary="$p"; break; fi
 done
 [ -n "$summary" ] || { echo "no summary page found in $pdf" >&2; exit 1; }
 

@@ -8,6 +8,7 @@
 
 use super::format::{self, NONE, Style, pct};
 use super::further::{self, Further};
+use super::money::{self, MoneyShow};
 use super::policy::{self, PolicyShow};
 use super::text::{self, Caveat};
 use super::trades::{self, TradesShow};
@@ -46,6 +47,8 @@ pub struct Report {
     /// "Trades and costs", or `null` with `trades_absent` saying why there is nothing to trade.
     pub trades: Option<TradesShow>,
     pub trades_absent: Option<String>,
+    /// The fund value and currency of the money lines, the annualisation rule, or why there is no money.
+    pub money: MoneyShow,
 }
 
 /// Cover and running-header facts.
@@ -100,6 +103,15 @@ pub struct PortfolioRow {
     pub worst_stress_shock: String,
     pub at_upper: String,
     pub tails: Vec<TailCell>,
+    /// The amounts in the base currency (digits only, `null` without a fund value) of VaR, CVaR, the
+    /// worst scenario loss and the worst stress loss.
+    pub var_money: Option<String>,
+    pub cvar_money: Option<String>,
+    pub worst_loss_money: Option<String>,
+    pub worst_stress_money: Option<String>,
+    /// Expected return and volatility annualised ([`money::annual_return`], [`money::annual_volatility`]).
+    pub expected_return_annual: String,
+    pub volatility_annual: String,
 }
 
 /// VaR and CVaR at one level.
@@ -108,6 +120,9 @@ pub struct TailCell {
     pub level: String,
     pub var: String,
     pub cvar: String,
+    /// The same in the base currency, digits only; `null` without a fund value or a portfolio.
+    pub var_money: Option<String>,
+    pub cvar_money: Option<String>,
 }
 
 /// Weights and CVaR contribution of one asset class, one cell per portfolio.
@@ -116,6 +131,8 @@ pub struct ClassRow {
     pub class: String,
     pub weights: Vec<String>,
     pub contributions: Vec<String>,
+    /// The contributions in the base currency, digits only; `null` without a fund value or a portfolio.
+    pub contributions_money: Vec<Option<String>>,
 }
 
 /// One asset's bounds and weights, one weight per portfolio.
@@ -226,6 +243,7 @@ pub fn build(r: &RunResult, shown: &[Portfolio], results: &Value, pack_id: &str)
         policy_absent,
         trades,
         trades_absent,
+        money: money::show(r),
     }
 }
 
@@ -280,6 +298,7 @@ fn portfolio_row(r: &RunResult, v: &Portfolio) -> PortfolioRow {
     let f = |g: &dyn Fn(&RiskProfile) -> String| v.profile.map_or(NONE.to_string(), g);
     let model = v.model;
     let stress = further::stress::worst_stress(r, v.key);
+    let per_year = money::horizons_per_year(r);
     PortfolioRow {
         key: v.key,
         label: v.identity.label,
@@ -313,9 +332,34 @@ fn portfolio_row(r: &RunResult, v: &Portfolio) -> PortfolioRow {
                 level: format::level(l),
                 var: f(&|p| pct(p.at(l).var, Style::Loss)),
                 cvar: f(&|p| pct(p.at(l).cvar, Style::Loss)),
+                var_money: loss_money(r, v, |p| p.at(l).var),
+                cvar_money: loss_money(r, v, |p| p.at(l).cvar),
             })
             .collect(),
+        var_money: loss_money(r, v, |p| p.at(c).var),
+        cvar_money: loss_money(r, v, |p| p.at(c).cvar),
+        worst_loss_money: loss_money(r, v, |p| p.worst_loss),
+        worst_stress_money: stress
+            .and_then(|(loss, _)| money::amount(money::fund(r), loss, Style::Loss)),
+        expected_return_annual: f(&|p| {
+            pct(
+                money::annual_return(p.expected_return, per_year),
+                Style::Return,
+            )
+        }),
+        volatility_annual: f(&|p| {
+            pct(
+                money::annual_volatility(p.volatility, per_year),
+                Style::Weight,
+            )
+        }),
     }
+}
+
+/// A loss of a portfolio's risk profile in the base currency, digits only; `None` without a fund value or
+/// a profile.
+fn loss_money(r: &RunResult, v: &Portfolio, loss: impl Fn(&RiskProfile) -> f64) -> Option<String> {
+    money::amount(money::fund(r), loss(v.profile?), Style::Loss)
 }
 
 fn classes(r: &RunResult, shown: &[Portfolio]) -> Vec<ClassRow> {
@@ -336,6 +380,10 @@ fn classes(r: &RunResult, shown: &[Portfolio]) -> Vec<ClassRow> {
                         pct(class_sum(r, &p.component_cvar, &class), Style::Loss)
                     })
                 })
+                .collect(),
+            contributions_money: shown
+                .iter()
+                .map(|v| loss_money(r, v, |p| class_sum(r, &p.component_cvar, &class)))
                 .collect(),
             class: format::title(&class),
         })

@@ -16,6 +16,7 @@
 //!   draw.rs     the chart kit: canvas, type, axes, markers, legends, bars
 //!   view.rs     the view model: the portfolios shown, their identities (label, aim, colour, marker),
 //!               class order and sums, shared rows (column head, label-value pair)
+//!   money.rs    amounts in the base currency beside the fractions, annualised return and volatility
 //!   format.rs   the one number format (beside the view model; imports nothing)
 //!
 //!   typeset.rs  the typesetter child process under its budget
@@ -39,6 +40,7 @@ pub mod display;
 pub mod draw;
 pub mod format;
 pub mod further;
+pub mod money;
 pub mod pdf;
 pub mod policy;
 pub mod templates;

@@ -4,12 +4,15 @@
 //! benchmark, and the sentences that state the current portfolio's breaches and whether the ranges bind the
 //! models. Without a policy the part is `null` and `policy_absent` says so in one sentence.
 //!
-//! May read: the [`RunResult`] (its `policy` report), the view model ([`super::view`]) and
-//! [`super::format`]. Computes nothing: every figure comes from `analysis::policy`.
+//! May read: the [`RunResult`] (its `policy` report), the view model ([`super::view`]),
+//! [`super::format`] and [`super::money`] (the amounts of active risk). Computes nothing: every figure comes
+//! from `analysis::policy`.
 
 use super::format::{self, NONE, Style, pct};
+use super::money;
 use super::view::{Head, Portfolio};
 use crate::analysis::policy::{Line, PolicyReport, Position};
+use crate::config::Money;
 use crate::run::RunResult;
 use serde::Serialize;
 
@@ -54,6 +57,11 @@ pub struct ActiveRow {
     pub tracking_error: String,
     pub tracking_error_annualised: String,
     pub active_cvar: String,
+    /// The same four in the base currency, digits only (`null` without a fund value or a portfolio).
+    pub active_return_money: Option<String>,
+    pub tracking_error_money: Option<String>,
+    pub tracking_error_annualised_money: Option<String>,
+    pub active_cvar_money: Option<String>,
 }
 
 /// The page's data, or the sentence that says no policy is configured.
@@ -74,7 +82,7 @@ pub fn show(r: &RunResult, shown: &[Portfolio]) -> Result<PolicyShow, String> {
         active: shown
             .iter()
             .zip(&positions)
-            .map(|(v, pos)| active_row(v, *pos, c))
+            .map(|(v, pos)| active_row(v, *pos, c, money::fund(r)))
             .collect(),
         level: format::level(c),
         horizons_per_year: format::number(p.horizons_per_year, 2),
@@ -126,14 +134,22 @@ fn breach_word(l: &Line, pos: &Position, e: f64) -> Option<&'static str> {
     Some(if e < l.min { "below" } else { "above" })
 }
 
-fn active_row(v: &Portfolio, pos: Option<&Position>, c: f64) -> ActiveRow {
+fn active_row(v: &Portfolio, pos: Option<&Position>, c: f64, m: Option<&Money>) -> ActiveRow {
     let f = |g: &dyn Fn(&Position) -> String| pos.map_or(NONE.to_string(), g);
+    let amount = |g: &dyn Fn(&Position) -> f64, style| money::amount(m, g(pos?), style);
     ActiveRow {
         head: Head::of(v.identity),
         active_return: f(&|x| pct(x.active.active_return, Style::Return)),
         tracking_error: f(&|x| pct(x.active.tracking_error, Style::Weight)),
         tracking_error_annualised: f(&|x| pct(x.active.tracking_error_annualised, Style::Weight)),
         active_cvar: f(&|x| pct(x.active.at(c).cvar, Style::Loss)),
+        active_return_money: amount(&|x| x.active.active_return, Style::Return),
+        tracking_error_money: amount(&|x| x.active.tracking_error, Style::Weight),
+        tracking_error_annualised_money: amount(
+            &|x| x.active.tracking_error_annualised,
+            Style::Weight,
+        ),
+        active_cvar_money: amount(&|x| x.active.at(c).cvar, Style::Loss),
     }
 }
 

@@ -6,6 +6,7 @@
 //! May read: the [`RunResult`] and the view model ([`super::view`]).
 
 use super::format::{self, Style, pct, shortlist};
+use super::money;
 use super::view::{CURRENT, Portfolio, identity, solved, status_word, stress_result};
 use crate::config::{CapRule, FloorRule};
 use crate::diag::Level;
@@ -51,28 +52,125 @@ pub fn summary(r: &RunResult, shown: &[Portfolio]) -> Vec<String> {
         first_start(r),
         last_end(r)
     )];
+    out.extend(money::absent_note(r));
     let current = shown
         .iter()
         .find(|v| v.key == CURRENT)
         .and_then(|v| v.profile);
     if let Some(p) = current {
-        out.push(format!(
-            "Current portfolio: expected return {}, VaR {} and CVaR {} at {c}.",
-            pct(p.expected_return, Style::Return),
-            pct(p.at(r.config.confidence).var, Style::Loss),
-            pct(p.at(r.config.confidence).cvar, Style::Loss)
-        ));
+        out.push(current_point(r, p));
     }
+    out.push(policy_point(r));
     out.extend(
         shown
             .iter()
             .filter(|v| v.model.is_some())
-            .map(|v| model_point(r, v, current)),
+            .map(|v| model_point(r, v, current) + &trade_and_active(r, v)),
     );
     out.push(checks_point(r));
     out.push(stress_point(r, shown));
     out.push(backtest_point(r));
     out
+}
+
+/// The current portfolio's expected return over one horizon and a year, and its VaR and CVaR with their
+/// amounts in money.
+fn current_point(r: &RunResult, p: &crate::risk::RiskProfile) -> String {
+    let (c, m) = (r.config.confidence, money::fund(r));
+    format!(
+        "Current portfolio: expected return {} over one horizon ({} a year), VaR {} and CVaR {} at {}.",
+        pct(p.expected_return, Style::Return),
+        pct(
+            money::annual_return(p.expected_return, money::horizons_per_year(r)),
+            Style::Return
+        ),
+        money::pct_and_amount(m, p.at(c).var, Style::Loss),
+        money::pct_and_amount(m, p.at(c).cvar, Style::Loss),
+        format::level(c)
+    )
+}
+
+/// The current portfolio against the policy ranges, with the figures of each breach; or that no policy is
+/// configured.
+fn policy_point(r: &RunResult) -> String {
+    let Some(p) = &r.policy else {
+        return "Policy: no policy portfolio is configured (config section `policy`), so this pack has no targets, ranges, policy benchmark or active risk.".into();
+    };
+    let Some(x) = p.positions.iter().find(|x| x.portfolio == CURRENT) else {
+        return "Policy: no current holdings were given, so there is no current position to compare with the policy ranges.".into();
+    };
+    let outside: Vec<String> = p
+        .lines
+        .iter()
+        .zip(&x.exposure)
+        .filter(|(l, _)| x.breaches.contains(&l.name))
+        .map(|(l, e)| breach_figures(r, l, *e))
+        .collect();
+    if outside.is_empty() {
+        return format!(
+            "Policy: the current portfolio lies inside the permitted range of all {} policy lines.",
+            p.lines.len()
+        );
+    }
+    format!(
+        "Policy: the current portfolio is outside its permitted range in {}.",
+        outside.join("; ")
+    )
+}
+
+/// `Government bonds at 16.00% (target 20.00%, range 17.00%–30.00%; 1.00%, XTS 23,500,000 below the
+/// range)`: the exposure, the line's target and range, and how far outside the range it lies.
+fn breach_figures(r: &RunResult, l: &crate::analysis::policy::Line, e: f64) -> String {
+    let (gap, side) = if e < l.min {
+        (l.min - e, "below")
+    } else {
+        (e - l.max, "above")
+    };
+    format!(
+        "{} at {} (target {}, range {}\u{2013}{}; {} {side} the range)",
+        l.name,
+        pct(e, Style::Weight),
+        pct(l.target, Style::Weight),
+        pct(l.min, Style::Weight),
+        pct(l.max, Style::Weight),
+        money::pct_then_amount(money::fund(r), gap, Style::Weight)
+    )
+}
+
+/// A solved model's cost of getting there from the current holdings (basis points and money) and its
+/// active risk against the policy benchmark (tracking error a year, active CVaR), as a second sentence;
+/// empty for what the run does not have (no cost rates or holdings, no policy, no solution).
+fn trade_and_active(r: &RunResult, v: &Portfolio) -> String {
+    let Some(m) = v.model.filter(|m| solved(m)) else {
+        return String::new();
+    };
+    let mut parts = Vec::new();
+    if let (Some(cost), true, true) = (m.cost, r.config.costs.any(), r.data.holdings.is_some()) {
+        let bps = format!("{} bps", format::number(cost * 10_000.0, 1));
+        parts.push(match money::amount_in(money::fund(r), cost, Style::Loss) {
+            Some(a) => format!("transaction cost {bps} ({a})"),
+            None => format!("transaction cost {bps} of the fund's value"),
+        });
+    }
+    let position = r
+        .policy
+        .as_ref()
+        .and_then(|p| p.positions.iter().find(|x| x.portfolio == v.key));
+    if let Some(x) = position {
+        let (c, fund) = (r.config.confidence, money::fund(r));
+        parts.push(format!(
+            "against the policy benchmark, tracking error {} a year and active CVaR {} {} over one horizon",
+            money::pct_and_amount(fund, x.active.tracking_error_annualised, Style::Weight),
+            format::level(c),
+            money::pct_and_amount(fund, x.active.at(c).cvar, Style::Loss)
+        ));
+    }
+    if parts.is_empty() {
+        return String::new();
+    }
+    // Both parts start with an ASCII letter, capitalised here as the sentence's first.
+    let text = parts.join("; ");
+    format!(" {}{}.", text[..1].to_uppercase(), &text[1..])
 }
 
 /// The stress tests in one sentence: how many scenarios, and who breaches the loss limit where.
@@ -91,25 +189,21 @@ fn stress_point(r: &RunResult, shown: &[Portfolio]) -> String {
     let Some(limit) = r.config.stress_loss_limit else {
         return out;
     };
+    let limit_text = money::pct_and_amount(money::fund(r), limit, Style::Loss);
     let over: Vec<&str> = shown
         .iter()
         .filter(|v| stress_result(r, v.key).is_some_and(|s| !s.breaches.is_empty()))
         .map(|v| v.identity.label)
         .collect();
     out.push_str(&match over.len() {
-        0 => format!(
-            " No portfolio loses more than the limit of {}.",
-            pct(limit, Style::Loss)
-        ),
+        0 => format!(" No portfolio loses more than the limit of {limit_text}."),
         1 => format!(
-            " {} loses more than the limit of {} in at least one scenario.",
-            over[0],
-            pct(limit, Style::Loss)
+            " {} loses more than the limit of {limit_text} in at least one scenario.",
+            over[0]
         ),
         _ => format!(
-            " {} lose more than the limit of {} in at least one scenario.",
-            list(&over),
-            pct(limit, Style::Loss)
+            " {} lose more than the limit of {limit_text} in at least one scenario.",
+            list(&over)
         ),
     });
     out
@@ -271,7 +365,7 @@ fn history(r: &RunResult, shown: &[Portfolio]) -> Caveat {
             "The scenarios are the returns observed between {} and {}. The largest loss of any portfolio in the pack over them is {}; larger losses are possible, and a calm history gives tail figures that look benign.",
             first_start(r),
             last_end(r),
-            pct(worst, Style::Loss)
+            money::pct_and_amount(money::fund(r), worst, Style::Loss)
         ),
     )
 }

@@ -13,6 +13,7 @@ mod faults;
 mod inputs;
 mod layers;
 mod models;
+mod money;
 mod parquet_bytes;
 mod parquet_seeds;
 mod pipes;

@@ -12,6 +12,7 @@ use crate::report::draw::{
     tick_decimals,
 };
 use crate::report::format::{self, Style, pct};
+use crate::report::money;
 use crate::report::view::{Portfolio, identity_of, solved};
 use crate::run::RunResult;
 use plotters::prelude::*;
@@ -42,6 +43,9 @@ pub struct FrontierRow {
     pub var: String,
     pub expected_return: String,
     pub ratio: String,
+    /// CVaR and VaR in the base currency, digits only; `null` without a fund value.
+    pub cvar_money: Option<String>,
+    pub var_money: Option<String>,
 }
 
 /// A solved frontier point: its 1-based position in the sweep, CVaR, VaR and expected return.
@@ -109,6 +113,8 @@ pub fn show(r: &RunResult) -> Result<FrontierShow, String> {
             var: pct(p.var, Style::Loss),
             expected_return: pct(p.expected_return, Style::Return),
             ratio: ratio(p.expected_return, p.cvar).map_or("n/a".into(), |x| format::number(x, 4)),
+            cvar_money: money::amount(money::fund(r), p.cvar, Style::Loss),
+            var_money: money::amount(money::fund(r), p.var, Style::Loss),
         })
         .collect();
     Ok(FrontierShow {

@@ -10,6 +10,7 @@ use crate::report::draw::{
     muted, padded, ry,
 };
 use crate::report::format::{self, NONE, Style, pct, sentence, shortlist};
+use crate::report::money;
 use crate::report::view::{Head, Identity, Portfolio, class_order, stress_result};
 use crate::run::RunResult;
 use plotters::prelude::*;
@@ -45,6 +46,8 @@ pub struct StressRow {
 #[derive(Serialize)]
 pub struct StressCell {
     pub pnl: String,
+    /// The P&L in the base currency, signed, digits only; `null` without a fund value or a portfolio.
+    pub pnl_money: Option<String>,
     pub worst: bool,
     pub breach: bool,
 }
@@ -55,6 +58,8 @@ pub struct WorstCell {
     pub shock: String,
     pub pnl: String,
     pub loss: String,
+    /// The P&L in the base currency, signed, digits only; `null` without a fund value or a portfolio.
+    pub pnl_money: Option<String>,
 }
 
 /// One asset class's part of each portfolio's P&L in that portfolio's worst shock.
@@ -62,6 +67,8 @@ pub struct WorstCell {
 pub struct StressClassRow {
     pub class: String,
     pub cells: Vec<String>,
+    /// The same in the base currency, signed, digits only; `null` without a fund value or a portfolio.
+    pub money: Vec<Option<String>>,
 }
 
 /// A portfolio's worst stress loss (a positive number is a loss) and the shock that causes it.
@@ -94,10 +101,7 @@ pub fn show(r: &RunResult, shown: &[Portfolio]) -> Result<StressShow, String> {
         },
         horizon: r.config.scenarios.horizon,
         rows: rows(r, &results),
-        worst: results
-            .iter()
-            .map(|res| worst_cell(a.shocks.as_slice(), *res))
-            .collect(),
+        worst: results.iter().map(|res| worst_cell(r, *res)).collect(),
         classes: stress_classes(r, &results),
         breaches: shown
             .iter()
@@ -122,11 +126,13 @@ fn rows(r: &RunResult, results: &[Option<&StressResult>]) -> Vec<StressRow> {
                 .map(|res| match res {
                     Some(x) => StressCell {
                         pnl: pct(x.pnl[k], Style::Return),
+                        pnl_money: money::amount(money::fund(r), x.pnl[k], Style::Return),
                         worst: x.worst == k,
                         breach: x.breaches.contains(&k),
                     },
                     None => StressCell {
                         pnl: NONE.into(),
+                        pnl_money: None,
                         worst: false,
                         breach: false,
                     },
@@ -179,17 +185,19 @@ fn shock_note(r: &RunResult, s: &Shock) -> String {
     note.trim().to_string()
 }
 
-fn worst_cell(shocks: &[Shock], res: Option<&StressResult>) -> WorstCell {
-    match res.and_then(|x| shocks.get(x.worst).map(|s| (x, s))) {
+fn worst_cell(r: &RunResult, res: Option<&StressResult>) -> WorstCell {
+    match res.and_then(|x| r.analysis.shocks.get(x.worst).map(|s| (x, s))) {
         Some((x, s)) => WorstCell {
             shock: s.name.clone(),
             pnl: pct(x.pnl[x.worst], Style::Return),
             loss: pct(-x.pnl[x.worst], Style::Loss),
+            pnl_money: money::amount(money::fund(r), x.pnl[x.worst], Style::Return),
         },
         None => WorstCell {
             shock: NONE.into(),
             pnl: NONE.into(),
             loss: NONE.into(),
+            pnl_money: None,
         },
     }
 }
@@ -198,23 +206,34 @@ fn worst_cell(shocks: &[Shock], res: Option<&StressResult>) -> WorstCell {
 fn stress_classes(r: &RunResult, results: &[Option<&StressResult>]) -> Vec<StressClassRow> {
     class_order(r)
         .into_iter()
-        .map(|class| StressClassRow {
-            cells: results
+        .map(|class| {
+            let parts: Vec<Option<f64>> = results
                 .iter()
-                .map(|res| {
-                    res.and_then(|x| {
-                        x.by_class
-                            .get(x.worst)?
-                            .iter()
-                            .find(|(c, _)| *c == class)
-                            .map(|(_, v)| pct(*v, Style::Return))
-                    })
-                    .unwrap_or_else(|| NONE.into())
-                })
-                .collect(),
-            class: format::title(&class),
+                .map(|res| worst_class_part(*res, &class))
+                .collect();
+            StressClassRow {
+                cells: parts
+                    .iter()
+                    .map(|v| v.map_or_else(|| NONE.into(), |v| pct(v, Style::Return)))
+                    .collect(),
+                money: parts
+                    .iter()
+                    .map(|v| money::amount(money::fund(r), (*v)?, Style::Return))
+                    .collect(),
+                class: format::title(&class),
+            }
         })
         .collect()
+}
+
+/// A class's part of a portfolio's P&L in that portfolio's worst shock.
+fn worst_class_part(res: Option<&StressResult>, class: &str) -> Option<f64> {
+    let x = res?;
+    x.by_class
+        .get(x.worst)?
+        .iter()
+        .find(|(c, _)| c == class)
+        .map(|(_, v)| *v)
 }
 
 fn breach_sentence(r: &RunResult, label: &str, res: &StressResult) -> Option<String> {
@@ -229,7 +248,7 @@ fn breach_sentence(r: &RunResult, label: &str, res: &StressResult) -> Option<Str
             format!(
                 "{} ({})",
                 r.analysis.shocks[k].name,
-                pct(res.pnl[k], Style::Return)
+                money::pct_then_amount(money::fund(r), res.pnl[k], Style::Return)
             )
         })
         .collect();
