@@ -160,6 +160,8 @@ pub struct Contributor {
     pub asset: String,
     pub class: String,
     pub contributions: Vec<String>,
+    /// The same in the base currency, digits only (`null` without a fund value or a portfolio).
+    pub contributions_money: Vec<Option<String>>,
 }
 
 /// The checks table with its tally.
@@ -509,6 +511,14 @@ fn contributors(r: &RunResult, shown: &[Portfolio], n: usize) -> Vec<Contributor
                 .map(|v| {
                     v.profile
                         .map_or(NONE.into(), |p| pct(p.component_cvar[i], Style::Loss))
+                })
+                .collect(),
+            contributions_money: shown
+                .iter()
+                .map(|v| {
+                    v.profile.and_then(|p| {
+                        money::amount(money::fund(r), p.component_cvar[i], Style::Loss)
+                    })
                 })
                 .collect(),
         })

@@ -115,6 +115,7 @@ fn job(
     ];
     for chart in charts::all(r, &shown)?
         .into_iter()
+        .chain(policy::chart(r, &shown)?)
         .chain(further::charts(r, &shown)?)
     {
         made.push(generated(

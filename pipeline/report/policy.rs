@@ -8,12 +8,15 @@
 //! [`super::format`] and [`super::money`] (the amounts of active risk). Computes nothing: every figure comes
 //! from `analysis::policy`.
 
+use super::draw::{Area, Chart, Drawn, INK, bar_frame, draw, font, legend, mark, ry};
 use super::format::{self, NONE, Style, pct};
 use super::money;
 use super::view::{Head, Portfolio};
 use crate::analysis::policy::{Line, PolicyReport, Position};
 use crate::config::Money;
 use crate::run::RunResult;
+use plotters::prelude::*;
+use plotters::style::text_anchor::{HPos, Pos, VPos};
 use serde::Serialize;
 
 /// The policy page as printed.
@@ -89,6 +92,90 @@ pub fn show(r: &RunResult, shown: &[Portfolio]) -> Result<PolicyShow, String> {
         annualisation_factor: format::number(p.horizons_per_year.sqrt(), 2),
         sentences: sentences(p),
     })
+}
+
+/// The chart of the policy page (`policy-ranges.svg`): one row per policy line with its permitted range as
+/// a band, its target as a bar across it, and each portfolio's exposure as its marker; none without a
+/// policy.
+pub fn chart(r: &RunResult, shown: &[Portfolio]) -> crate::error::Result<Option<Chart>> {
+    let Some(p) = r.policy.as_ref() else {
+        return Ok(None);
+    };
+    let rows = p.lines.len();
+    let height = (96 + 34 * rows) as u32;
+    draw("policy-ranges.svg", height, |a| ranges(a, p, shown)).map(Some)
+}
+
+fn ranges(area: &Area, p: &PolicyReport, shown: &[Portfolio]) -> Drawn {
+    let held: Vec<(&Portfolio, &Position)> = shown
+        .iter()
+        .filter_map(|v| position(p, v.key).map(|x| (v, x)))
+        .collect();
+    let top = p
+        .lines
+        .iter()
+        .map(|l| l.max.max(l.target))
+        .chain(held.iter().flat_map(|(_, x)| x.exposure.iter().copied()))
+        .fold(0.0, f64::max);
+    let xs = (0.0, (top * 100.0 * 1.08).max(1.0));
+    let n = p.lines.len();
+    let chart = bar_frame(area, xs, n, 132, 40, "Exposure (% of portfolio value)")?;
+    let band = RGBColor(0xdc, 0xe6, 0xf0);
+    for (i, l) in p.lines.iter().enumerate() {
+        let at = |x: f64, f: f64| chart.backend_coord(&(x * 100.0, ry(n, i, f)));
+        area.draw(&Rectangle::new(
+            [at(l.min, 0.22), at(l.max, 0.78)],
+            band.filled(),
+        ))?;
+        area.draw(&PathElement::new(
+            vec![at(l.target, 0.12), at(l.target, 0.88)],
+            INK.stroke_width(3),
+        ))?;
+        let (x0, y) = at(0.0, 0.5);
+        area.draw(&Text::new(
+            l.name.clone(),
+            (x0 - 8, y),
+            font(12.5).pos(Pos::new(HPos::Right, VPos::Center)),
+        ))?;
+        let k = held.len().max(1) as f64;
+        for (j, (v, x)) in held.iter().enumerate() {
+            mark(
+                area,
+                at(x.exposure[i], 0.3 + 0.4 * (j as f64 + 0.5) / k),
+                v.identity,
+            )?;
+        }
+    }
+    let ids: Vec<_> = held.iter().map(|(v, _)| v.identity).collect();
+    legend(area, &ids, (12, 14))?;
+    key(area, (WIDTH_KEY, 14), band)
+}
+
+/// Where the range-and-target key starts, right of the portfolio legend.
+const WIDTH_KEY: i32 = 470;
+
+/// The key of the band (permitted range) and the bar (target).
+fn key(area: &Area, (x, y): (i32, i32), band: RGBColor) -> Drawn {
+    area.draw(&Rectangle::new(
+        [(x, y - 6), (x + 22, y + 6)],
+        band.filled(),
+    ))?;
+    area.draw(&Text::new(
+        "permitted range",
+        (x + 28, y),
+        font(12.0).pos(Pos::new(HPos::Left, VPos::Center)),
+    ))?;
+    let t = x + 140;
+    area.draw(&PathElement::new(
+        vec![(t, y - 8), (t, y + 8)],
+        INK.stroke_width(3),
+    ))?;
+    area.draw(&Text::new(
+        "target",
+        (t + 8, y),
+        font(12.0).pos(Pos::new(HPos::Left, VPos::Center)),
+    ))?;
+    Ok(())
 }
 
 /// The position of a portfolio key (`current` or a model name); none for a model without a solution.
