@@ -405,80 +405,82 @@ fn summary_heading(r: &RunResult) -> String {
     s
 }
 
-/// One row per portfolio (the current one first), and the max-ratio model's ratio when it was solved.
+/// One row per portfolio (the current one first), the max-ratio model's ratio when it was solved, and each
+/// model's transaction cost when costs are charged.
 fn summary_rows(s: &mut String, r: &RunResult) {
-    let c = r.config.confidence;
     if let Some(pr) = &r.current {
-        let t = pr.at(c);
-        let _ = writeln!(
-            s,
-            "{:<12} {:<15} {:>10} {:>10} {:>10} {:>9} {:>9.1}",
-            "current",
-            "-",
-            pct(pr.expected_return),
-            loss(t.var),
-            loss(t.cvar),
-            "-",
-            pr.effective_holdings
-        );
+        profile_row(s, r, ("current", "-"), pr, "-".into());
     }
     for m in &r.models {
+        let status = m.outcome.status.word();
         match &m.profile {
             Some(pr) => {
-                let t = pr.at(c);
                 let turn = m
                     .turnover
                     .map_or("-".into(), |v| format!("{:.1}%", v * 100.0));
-                let _ = writeln!(
-                    s,
-                    "{:<12} {:<15} {:>10} {:>10} {:>10} {:>9} {:>9.1}",
-                    m.name,
-                    m.outcome.status.word(),
-                    pct(pr.expected_return),
-                    loss(t.var),
-                    loss(t.cvar),
-                    turn,
-                    pr.effective_holdings
-                );
+                profile_row(s, r, (m.name, status), pr, turn);
             }
             None => {
-                let _ = writeln!(
-                    s,
-                    "{:<12} {:<15} {}",
-                    m.name,
-                    m.outcome.status.word(),
-                    m.outcome.message.as_deref().unwrap_or("")
-                );
+                let why = m.outcome.message.as_deref().unwrap_or("");
+                let _ = writeln!(s, "{:<12} {:<15} {why}", m.name, status);
             }
         }
     }
+    ratio_and_costs(s, r);
+}
+
+/// A portfolio's row: name, status, expected return, VaR, CVaR, turnover and effective holdings.
+fn profile_row(
+    s: &mut String,
+    r: &RunResult,
+    (name, status): (&str, &str),
+    pr: &crate::risk::RiskProfile,
+    turnover: String,
+) {
+    let t = pr.at(r.config.confidence);
+    let _ = writeln!(
+        s,
+        "{:<12} {:<15} {:>10} {:>10} {:>10} {:>9} {:>9.1}",
+        name,
+        status,
+        pct(pr.expected_return),
+        loss(t.var),
+        loss(t.cvar),
+        turnover,
+        pr.effective_holdings
+    );
+}
+
+/// The max-ratio model's ratio when it was solved, then each model's cost when costs are charged.
+fn ratio_and_costs(s: &mut String, r: &RunResult) {
+    let net = if r.feasible.charges_costs() {
+        " net of transaction costs"
+    } else {
+        ""
+    };
     if let Some(m) = r
         .models
         .iter()
         .find(|m| m.family == Family::MaxRatio && m.outcome.status == Status::Optimal)
     {
-        let net = if r.feasible.charges_costs() {
-            " net of transaction costs"
-        } else {
-            ""
-        };
         let _ = writeln!(
             s,
             "{}: expected return{net} / CVaR = {:.4}",
             Family::MaxRatio.name(),
             m.outcome.objective.unwrap_or(f64::NAN)
         );
-        if r.feasible.charges_costs() {
-            let _ = writeln!(
-                s,
-                "transaction cost of getting there (basis points of the fund's value): {}",
-                r.models
-                    .iter()
-                    .filter_map(|m| m.cost.map(|c| format!("{} {:.1}", m.name, c * 1e4)))
-                    .collect::<Vec<_>>()
-                    .join(", ")
-            );
-        }
+    }
+    let costs: Vec<String> = r
+        .models
+        .iter()
+        .filter_map(|m| m.cost.map(|c| format!("{} {:.1}", m.name, c * 1e4)))
+        .collect();
+    if r.feasible.charges_costs() && !costs.is_empty() {
+        let _ = writeln!(
+            s,
+            "transaction cost of getting there (basis points of the fund's value): {}",
+            costs.join(", ")
+        );
     }
 }
 

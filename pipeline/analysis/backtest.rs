@@ -311,6 +311,57 @@ fn ex_post(rows: &[TrackRow]) -> Option<ExPost> {
     })
 }
 
+/// The money side of one model's track: wealth net of costs, the weights held (drifted since the last
+/// rebalance) and the costs paid so far.
+struct Account {
+    wealth: f64,
+    held: Option<Vec<f64>>,
+    total_cost: f64,
+}
+
+/// One month's trading and holding as the account records it.
+struct Step {
+    turnover: Option<f64>,
+    cost: Option<f64>,
+    realised: Option<f64>,
+    realised_net: Option<f64>,
+}
+
+impl Account {
+    /// Rebalances into `weights` (paying the cost from the drifted weights) and holds them from row
+    /// `from` to row `to`; no weights: no trade and no return.
+    fn step(
+        &mut self,
+        data: &MarketData,
+        rates: &[f64],
+        weights: Option<&[f64]>,
+        (from, to): (usize, usize),
+    ) -> Step {
+        let (turnover, cost) = match (weights, &self.held) {
+            (Some(w), Some(h)) => (
+                Some(models::turnover(w, h)),
+                Some(rebalance_cost(rates, w, h)),
+            ),
+            _ => (None, None),
+        };
+        let realised = weights.map(|w| {
+            let (rp, drift) = held_to_next(data, w, from, to);
+            self.held = Some(drift);
+            rp
+        });
+        let paid = cost.unwrap_or(0.0);
+        self.total_cost += paid * self.wealth;
+        self.wealth *= 1.0 - paid;
+        self.wealth *= 1.0 + realised.unwrap_or(0.0);
+        Step {
+            turnover,
+            cost,
+            realised,
+            realised_net: realised.map(|r| (1.0 - paid) * (1.0 + r) - 1.0),
+        }
+    }
+}
+
 fn track(
     cfg: &Config,
     data: &MarketData,
@@ -320,68 +371,50 @@ fn track(
     benchmark: Option<&[Option<f64>]>,
 ) -> Track {
     let mut rows = Vec::with_capacity(months.len());
-    let (mut wealth, mut held): (f64, Option<Vec<f64>>) = (1.0, data.holdings.clone());
-    let mut total_cost = 0.0;
+    let mut account = Account {
+        wealth: 1.0,
+        held: data.holdings.clone(),
+        total_cost: 0.0,
+    };
     for (i, m) in months.iter().enumerate() {
         let d = m.decisions.as_ref().ok().map(|v| &v[k]);
-        let (date, next) = (data.full_dates[m.row], data.full_dates[m.next]);
-        let status = d.map_or("skipped".to_string(), |d| d.status.word().to_string());
         let weights = d.and_then(|d| d.weights.clone());
-        let turnover = match (&weights, &held) {
-            (Some(w), Some(h)) => Some(models::turnover(w, h)),
-            _ => None,
-        };
-        let cost = match (&weights, &held) {
-            (Some(w), Some(h)) => Some(rebalance_cost(rates, w, h)),
-            _ => None,
-        };
-        let (realised_return, drifted) = match &weights {
-            Some(w) => {
-                let (rp, r) = realised(data, w, m.row, m.next);
-                let drift: Vec<f64> = w
-                    .iter()
-                    .zip(&r)
-                    .map(|(x, ri)| x * (1.0 + ri) / (1.0 + rp))
-                    .collect();
-                (Some(rp), Some(drift))
-            }
-            None => (None, None),
-        };
-        let paid = cost.unwrap_or(0.0);
-        total_cost += paid * wealth;
-        let realised_return_net = realised_return.map(|r| (1.0 - paid) * (1.0 + r) - 1.0);
-        wealth *= 1.0 - paid;
-        wealth *= 1.0 + realised_return.unwrap_or(0.0);
-        if drifted.is_some() {
-            held = drifted;
-        }
+        let step = account.step(data, rates, weights.as_deref(), (m.row, m.next));
         let tail = d.and_then(|d| d.tail);
-        let exception = match (tail, realised_return) {
-            (Some((_, var, _)), Some(r)) => Some(-r > var),
-            _ => None,
-        };
         rows.push(TrackRow {
-            date,
-            next,
-            status,
+            date: data.full_dates[m.row],
+            next: data.full_dates[m.next],
+            status: d.map_or("skipped".to_string(), |d| d.status.word().to_string()),
             weights,
             predicted_return: tail.map(|t| t.0),
             predicted_var: tail.map(|t| t.1),
             predicted_cvar: tail.map(|t| t.2),
-            realised_return,
-            turnover,
-            cost,
-            realised_return_net,
-            wealth,
-            exception,
-            active_return: realised_return_net
+            realised_return: step.realised,
+            turnover: step.turnover,
+            cost: step.cost,
+            realised_return_net: step.realised_net,
+            wealth: account.wealth,
+            exception: tail.zip(step.realised).map(|((_, var, _), r)| -r > var),
+            active_return: step
+                .realised_net
                 .zip(benchmark.and_then(|b| b[i]))
                 .map(|(r, b)| r - b),
         });
     }
     let mut t = summarise(cfg, data, Family::ALL[k].name(), rows);
-    t.total_cost = total_cost;
+    t.total_cost = account.total_cost;
     t
+}
+
+/// The realised return of `w` held from row `from` to row `to`, and the weights it has drifted to.
+fn held_to_next(data: &MarketData, w: &[f64], from: usize, to: usize) -> (f64, Vec<f64>) {
+    let (rp, r) = realised(data, w, from, to);
+    let drift = w
+        .iter()
+        .zip(&r)
+        .map(|(x, ri)| x * (1.0 + ri) / (1.0 + rp))
+        .collect();
+    (rp, drift)
 }
 
 /// Σ rate_i·|w_i − held_i|: the one-way cost of trading from `held` to `w` (rates empty: free).

@@ -229,11 +229,7 @@ fn assemble(
     (money, costs): (Option<Money>, CostRates),
 ) -> Config {
     let mut input = |k: Input| inputs.remove(&k);
-    let out_root = match (&cx.overrides.out, &raw.output.root) {
-        (Some(out), _) => out.clone(),
-        (None, Some(root)) => cx.join(root),
-        (None, None) => PathBuf::from(DEFAULT_OUT_ROOT),
-    };
+    let out_root = out_root(cx, raw.output.root.as_deref());
     Config {
         path: cx.path.to_path_buf(),
         fund: Fund {
@@ -280,6 +276,15 @@ fn assemble(
             memory_mb: raw.report.typeset_memory_mb,
         },
         signoff: raw.signoff.roles,
+    }
+}
+
+/// The archive root: `--out`, else `output.root` relative to the config, else the default.
+fn out_root(cx: &Context, root: Option<&std::path::Path>) -> PathBuf {
+    match (&cx.overrides.out, root) {
+        (Some(out), _) => out.clone(),
+        (None, Some(root)) => cx.join(root),
+        (None, None) => PathBuf::from(DEFAULT_OUT_ROOT),
     }
 }
 

@@ -326,18 +326,7 @@ fn portfolio_row(r: &RunResult, v: &Portfolio) -> PortfolioRow {
         at_upper: model
             .filter(|_| v.profile.is_some())
             .map_or(NONE.into(), |m| m.at_upper.len().to_string()),
-        tails: r
-            .config
-            .levels
-            .iter()
-            .map(|&l| TailCell {
-                level: format::level(l),
-                var: f(&|p| pct(p.at(l).var, Style::Loss)),
-                cvar: f(&|p| pct(p.at(l).cvar, Style::Loss)),
-                var_money: loss_money(r, v, |p| p.at(l).var),
-                cvar_money: loss_money(r, v, |p| p.at(l).cvar),
-            })
-            .collect(),
+        tails: tail_cells(r, v),
         var_money: loss_money(r, v, |p| p.at(c).var),
         cvar_money: loss_money(r, v, |p| p.at(c).cvar),
         worst_loss_money: loss_money(r, v, |p| p.worst_loss),
@@ -356,6 +345,22 @@ fn portfolio_row(r: &RunResult, v: &Portfolio) -> PortfolioRow {
             )
         }),
     }
+}
+
+/// VaR and CVaR of a portfolio at every level, with their amounts.
+fn tail_cells(r: &RunResult, v: &Portfolio) -> Vec<TailCell> {
+    let f = |g: &dyn Fn(&RiskProfile) -> String| v.profile.map_or(NONE.to_string(), g);
+    r.config
+        .levels
+        .iter()
+        .map(|&l| TailCell {
+            level: format::level(l),
+            var: f(&|p| pct(p.at(l).var, Style::Loss)),
+            cvar: f(&|p| pct(p.at(l).cvar, Style::Loss)),
+            var_money: loss_money(r, v, |p| p.at(l).var),
+            cvar_money: loss_money(r, v, |p| p.at(l).cvar),
+        })
+        .collect()
 }
 
 /// A loss of a portfolio's risk profile in the base currency, digits only; `None` without a fund value or
