@@ -5,6 +5,7 @@
 
 pub mod backtest;
 pub mod bands;
+pub mod change;
 pub mod frontier;
 pub mod policy;
 pub mod resolve;
