@@ -2,7 +2,7 @@
 //! months against an independent CVaR, and two runs into one archive at consecutive month-ends (the second
 //! names the first, a tampered first is reported and not used, the second re-runs to identical bytes).
 
-use super::common::{Fixture, Market, config, json};
+use super::common::{Fixture, Market, config, json, pdf_text};
 use rand::{RngExt, SeedableRng};
 use std::path::PathBuf;
 use tailpack::analysis::change::{Month, decompose};
@@ -202,6 +202,10 @@ fn the_second_month_names_the_first_pack_and_reruns_to_identical_bytes() {
             .unwrap()
             .contains("first pack"),
     );
+    assert!(
+        pdf_text(&first.join("pack.pdf")).contains("nothing to compare with"),
+        "the first pack's page says so"
+    );
     let second = second_month(&f);
     let two = json(&second.join("results.json"));
     let ch = &two["change"];
@@ -231,6 +235,16 @@ fn the_second_month_names_the_first_pack_and_reruns_to_identical_bytes() {
     assert_eq!(hist.len(), 2);
     assert_eq!(hist[0]["pack_id"], one["pack_id"]);
     assert_eq!(hist[1]["pack_id"], two["pack_id"]);
+    // The PDF's page prints the previous as-of and both CVaR figures as results.json holds them.
+    let pdf = pdf_text(&second.join("pack.pdf"));
+    let page = &pdf[pdf.rfind("Since the last pack").expect("the page")..];
+    for want in [
+        "2024-05-31".to_string(),
+        format!("{:.2}%", before * 100.0),
+        format!("{:.2}%", after * 100.0),
+    ] {
+        assert!(page.contains(&want), "{want} not on the page:\n{page}");
+    }
     let rerun = f.run(&["verify", second.to_str().unwrap(), "--rerun"]);
     assert_eq!(rerun.code, 0, "{}{}", rerun.stdout, rerun.stderr);
     assert!(rerun.stdout.contains("identical outputs"), "{}", rerun.stdout);

@@ -1,0 +1,247 @@
+//! "Since the last pack": the display data of the page after the summary (after the policy page when
+//! there is one) — the previous pack named, the current portfolio's CVaR change split into its holdings
+//! and market effects, each portfolio's expected return and CVaR then and now, the largest moves in the
+//! current holdings, the stress results of the current holdings then and now, the checks opened and
+//! resolved, the data's moves, and the fund's history over its last packs. For a first pack (or a
+//! previous pack that fails verification) the part is `null` and `change_absent` says why.
+//!
+//! May read: `results.json`'s `change` (written by `analysis::change`, the one place the comparison is
+//! made), the view model ([`super::view`]) and [`super::format`]. Computes nothing but the order of rows.
+
+use super::format::{self, NONE, Style, pct};
+use super::view::{self, Head, Pair, pair};
+use serde::Serialize;
+use serde_json::Value;
+
+/// How many holdings and stress rows the page lists at most (the largest moves first).
+const ROWS: usize = 8;
+
+/// The page as printed.
+#[derive(Serialize)]
+pub struct ChangeShow {
+    /// The sentences under the title: the previous pack, the CVaR change and its two effects, the data.
+    pub sentences: Vec<String>,
+    /// The CVaR decomposition as label–value pairs (empty without holdings in both packs).
+    pub decomposition: Vec<Pair>,
+    pub level: String,
+    pub portfolios: Vec<FigureRow>,
+    /// The current holdings' largest weight changes.
+    pub holdings: Vec<MoveRow>,
+    /// The current holdings' stress results with the largest changes.
+    pub stress: Vec<MoveRow>,
+    pub history: Vec<HistoryRow>,
+}
+
+/// One portfolio's expected return and CVaR in the previous pack and in this one.
+#[derive(Serialize)]
+pub struct FigureRow {
+    pub head: Head,
+    pub return_before: String,
+    pub return_after: String,
+    pub return_change: String,
+    pub cvar_before: String,
+    pub cvar_after: String,
+    pub cvar_change: String,
+}
+
+/// A named figure then and now (a weight, a stress P&L).
+#[derive(Serialize)]
+pub struct MoveRow {
+    pub name: String,
+    pub before: String,
+    pub after: String,
+    pub change: String,
+}
+
+/// One pack of the fund's history.
+#[derive(Serialize)]
+pub struct HistoryRow {
+    pub as_of: String,
+    pub expected_return: String,
+    pub cvar: String,
+    pub worst_stress_loss: String,
+    pub breaches: String,
+    /// "this pack", "final", or "fails verification".
+    pub note: String,
+}
+
+/// The page's data from results.json's `change`, or the sentence saying why there is nothing to compare.
+pub fn show(results: &Value) -> Result<ChangeShow, String> {
+    let ch = &results["change"];
+    let prev = &ch["previous"];
+    if prev.is_null() {
+        return Err("This is the fund's first pack in the archive: there is nothing to compare with.".into());
+    }
+    if prev["verified"] != true {
+        return Err(format!(
+            "The previous pack ({}, as of {}, revision {}) fails verification, so it is not used and nothing is compared with it; the check `change.previous` names its problems.",
+            text(&prev["folder"]),
+            text(&prev["as_of"]),
+            prev["revision"]
+        ));
+    }
+    Ok(ChangeShow {
+        sentences: sentences(ch, results),
+        decomposition: decomposition(&ch["current_cvar"]),
+        level: format::level(results["confidence"].as_f64().unwrap_or(0.0)),
+        portfolios: portfolios(&ch["portfolios"]),
+        holdings: moves(&ch["portfolios"]["current"]["weights"], Style::Weight),
+        stress: moves(&ch["stress"]["current"], Style::Return),
+        history: history(&ch["history"]),
+    })
+}
+
+fn text(v: &Value) -> String {
+    v.as_str().unwrap_or(NONE).to_string()
+}
+
+fn fig(v: &Value, style: Style) -> String {
+    v.as_f64().map_or(NONE.to_string(), |x| pct(x, style))
+}
+
+/// The previous pack, the CVaR change with its effects, the data and the checks, in words.
+fn sentences(ch: &Value, results: &Value) -> Vec<String> {
+    let p = &ch["previous"];
+    let fin = if p["final"] == true { ", final" } else { "" };
+    let id: String = text(&p["pack_id"]).chars().take(12).collect();
+    let mut out = vec![format!(
+        "Compared with the pack as of {} (revision {}{fin}, pack id {id}…), which verifies.",
+        text(&p["as_of"]),
+        p["revision"]
+    )];
+    let cv = &ch["current_cvar"];
+    if let (Some(b), Some(a)) = (cv["before"].as_f64(), cv["after"].as_f64()) {
+        out.push(format!(
+            "The current holdings' CVaR {} went from {} to {} ({}): {} from the change in holdings, {} from the market (the new scenarios).",
+            format::level(results["confidence"].as_f64().unwrap_or(0.0)),
+            pct(b, Style::Weight),
+            pct(a, Style::Weight),
+            pct(a - b, Style::Points),
+            fig(&cv["holdings_effect"], Style::Points),
+            fig(&cv["market_effect"], Style::Points)
+        ));
+    }
+    out.push(data_sentence(&ch["data"]));
+    out.push(checks_sentence(&ch["checks"]));
+    out
+}
+
+fn names(v: &Value) -> Vec<String> {
+    v.as_array()
+        .map_or(vec![], |l| l.iter().filter_map(|x| x.as_str().map(str::to_string)).collect())
+}
+
+fn data_sentence(d: &Value) -> String {
+    let (added, dropped) = (names(&d["assets_added"]), names(&d["assets_dropped"]));
+    let assets = match (added.is_empty(), dropped.is_empty()) {
+        (true, true) => "The same assets as last time".to_string(),
+        _ => format!(
+            "Assets added: {}; dropped: {}",
+            if added.is_empty() { "none".into() } else { format::shortlist(&added, 6) },
+            if dropped.is_empty() { "none".into() } else { format::shortlist(&dropped, 6) }
+        ),
+    };
+    let moved = &d["scenarios"]["moved"];
+    format!(
+        "{assets}; the scenario window moved by {} new scenarios ({} fell out), from {} to {} scenarios.",
+        moved["new"], moved["dropped"], d["scenarios"]["count"]["before"], d["scenarios"]["count"]["after"]
+    )
+}
+
+fn checks_sentence(c: &Value) -> String {
+    let list = |v: &Value| {
+        let n = names(v);
+        if n.is_empty() { "none".to_string() } else { n.join(", ") }
+    };
+    format!(
+        "Checks newly open: {}. Resolved: {}. Still open: {}.",
+        list(&c["new"]),
+        list(&c["resolved"]),
+        names(&c["still_open"]).len()
+    )
+}
+
+fn decomposition(cv: &Value) -> Vec<Pair> {
+    if cv["before"].is_null() {
+        return vec![];
+    }
+    vec![
+        pair("CVaR in the previous pack", fig(&cv["before"], Style::Weight)),
+        pair("Holdings effect", fig(&cv["holdings_effect"], Style::Points)),
+        pair("Market effect", fig(&cv["market_effect"], Style::Points)),
+        pair("CVaR now", fig(&cv["after"], Style::Weight)),
+    ]
+}
+
+/// Every portfolio in report order that either pack has.
+fn portfolios(p: &Value) -> Vec<FigureRow> {
+    view::IDENTITIES
+        .iter()
+        .filter(|id| p.get(id.key).is_some())
+        .map(|id| {
+            let x = &p[id.key];
+            FigureRow {
+                head: Head::of(id),
+                return_before: fig(&x["expected_return"]["before"], Style::Return),
+                return_after: fig(&x["expected_return"]["after"], Style::Return),
+                return_change: fig(&x["expected_return"]["change"], Style::Points),
+                cvar_before: fig(&x["cvar"]["before"], Style::Weight),
+                cvar_after: fig(&x["cvar"]["after"], Style::Weight),
+                cvar_change: fig(&x["cvar"]["change"], Style::Points),
+            }
+        })
+        .collect()
+}
+
+/// The `{name: {before, after, change}}` entries with the largest changes (a missing side last), at most
+/// [`ROWS`], skipping those that did not move.
+fn moves(map: &Value, style: Style) -> Vec<MoveRow> {
+    let Some(m) = map.as_object() else {
+        return vec![];
+    };
+    let mut rows: Vec<(&String, &Value, f64)> = m
+        .iter()
+        .map(|(k, v)| (k, v, v["change"].as_f64().map_or(f64::INFINITY, f64::abs)))
+        .filter(|(_, _, c)| *c >= 0.00005)
+        .collect();
+    rows.sort_by(|a, b| b.2.total_cmp(&a.2).then(a.0.cmp(b.0)));
+    rows.into_iter()
+        .take(ROWS)
+        .map(|(k, v, _)| MoveRow {
+            name: k.clone(),
+            before: fig(&v["before"], style),
+            after: fig(&v["after"], style),
+            change: fig(&v["change"], Style::Points),
+        })
+        .collect()
+}
+
+fn history(h: &Value) -> Vec<HistoryRow> {
+    let list = h.as_array().cloned().unwrap_or_default();
+    let n = list.len();
+    list.iter()
+        .enumerate()
+        .map(|(i, e)| {
+            let count = |k: &str| e[k].as_u64();
+            let breaches = match (count("stress_breaches"), count("policy_breaches")) {
+                (None, None) => NONE.to_string(),
+                (s, p) => (s.unwrap_or(0) + p.unwrap_or(0)).to_string(),
+            };
+            let note = if i + 1 == n {
+                "this pack"
+            } else if e["verified"] != true {
+                "fails verification"
+            } else {
+                ""
+            };
+            HistoryRow {
+                as_of: text(&e["as_of"]),
+                expected_return: fig(&e["expected_return"], Style::Return),
+                cvar: fig(&e["cvar"], Style::Weight),
+                worst_stress_loss: fig(&e["worst_stress_loss"], Style::Weight),
+                breaches,
+                note: note.into(),
+            }
+        })
+        .collect()
+}
