@@ -26,7 +26,8 @@ pub struct Previous {
     pub folder: String,
     /// Whether every digest (and signature) `verify` checks holds.
     pub verified: bool,
-    /// Whether the pack is finalised (signed and sealed).
+    /// Whether the pack was finalised (signed and sealed) when this run looked; a re-run takes it from the
+    /// pack's own record, so finalising an earlier pack later does not change a later pack's outputs.
     pub final_pack: bool,
     /// The verification problems (`file: problem`), empty when verified.
     pub problems: Vec<String>,
@@ -529,6 +530,7 @@ fn history(past: &Past, current: &Value) -> Value {
             v["as_of"] = json!(h.as_of);
             v["revision"] = json!(h.revision);
             v["verified"] = json!(h.verified);
+            v["final"] = json!(h.final_pack);
             v
         })
         .collect();
@@ -537,6 +539,7 @@ fn history(past: &Past, current: &Value) -> Value {
     v["as_of"] = current["as_of"].clone();
     v["revision"] = Value::Null;
     v["verified"] = json!(true);
+    v["final"] = json!(false);
     out.push(v);
     Value::Array(out)
 }

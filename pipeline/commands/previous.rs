@@ -6,8 +6,9 @@
 //! previous pack. A re-run (`verify --rerun`, `finalize`) looks for exactly the packs the pack's own
 //! results.json names (`change.previous`, `change.history`: fund, as-of, revision and pack id) in the
 //! archive the pack sits in, and verifies them again: so it compares with the same packs even after newer
-//! revisions of an earlier month were written, and a pack whose predecessors were changed, removed or not
-//! copied along re-runs to different bytes, which `verify --rerun` reports.
+//! revisions of an earlier month were written or an earlier pack was finalised (whether a pack was final
+//! is taken from the record), and a pack whose predecessors were changed, removed or not copied along
+//! re-runs to different bytes, which `verify --rerun` reports.
 
 use crate::analysis::change::{self, Past, Previous};
 use chrono::NaiveDate;
@@ -115,6 +116,7 @@ pub fn recorded(pack: &Path, fund: &str) -> Past {
             let as_of: NaiveDate = e["as_of"].as_str()?.parse().ok()?;
             let rev = u32::try_from(e["revision"].as_u64()?).ok()?;
             let mut p = load(root, fund, &as_of.to_string(), rev);
+            p.final_pack = e["final"] == true;
             let id = e["pack_id"].as_str().unwrap_or_default();
             if p.pack_id != id {
                 p.problems.push(format!(

@@ -272,3 +272,62 @@ fn a_tampered_previous_pack_is_reported_in_a_fail_check_and_not_used() {
     assert!(ch["current_cvar"].is_null(), "{ch}");
     assert!(ch["portfolios"].is_null(), "{ch}");
 }
+
+/// The choice among revisions and what a re-run sees: a later run prefers a finalised revision of the
+/// previous month to a later draft; a re-run compares with the revision the pack recorded, also after a
+/// newer revision of that month was written and after it was finalised.
+#[test]
+fn a_rerun_keeps_its_previous_pack_and_a_finalised_revision_is_preferred() {
+    let f = Fixture::new();
+    std::fs::create_dir_all(f.path("keys")).unwrap();
+    assert_eq!(f.run(&["keygen", "keys/chair"]).code, 0);
+    let public = std::fs::read_to_string(f.path("keys/chair.pub")).unwrap();
+    let m = Market::new(4, "2021-01-01", "2024-06-28", 21);
+    let tail = format!(
+        "analysis:\n  backtest_years: 0\nsignoff:\n  roles:\n    - {{ role: chair, title: Chair, keys: [\"{}\"] }}\n",
+        public.trim()
+    );
+    f.small_fund(&m, &config(&tail));
+    let holdings = |w: [f64; 4]| {
+        f.write(
+            "data/holdings.csv",
+            &format!(
+                "asset,weight\nAS01,{}\nAS02,{}\nAS03,{}\nAS04,{}\n",
+                w[0], w[1], w[2], w[3]
+            ),
+        );
+    };
+    let run = |as_of: &str| {
+        let ran = f.run(&["run", "fund.yaml", "--quiet", "--as-of", as_of]);
+        assert_eq!(ran.code, 0, "{}", ran.stderr);
+        last_line(&ran.stdout)
+    };
+    let may_r1 = run("2024-05-31");
+    holdings([0.4, 0.3, 0.2, 0.1]);
+    let june = run("2024-06-28");
+    holdings([0.1, 0.2, 0.3, 0.4]);
+    let may_r2 = run("2024-05-31");
+    assert!(may_r2.ends_with("r2"), "{}", may_r2.display());
+    let rerun = |pack: &PathBuf| {
+        let ran = f.run(&["verify", pack.to_str().unwrap(), "--rerun"]);
+        assert_eq!(ran.code, 0, "{}{}", ran.stdout, ran.stderr);
+    };
+    // A run now would pick May's r2; June's re-run still compares with r1, as recorded.
+    rerun(&june);
+    let p = may_r1.to_str().unwrap();
+    let signed = f.run(&["sign", p, "--role", "chair", "--key", "keys/chair.key", "--name", "A. Chair"]);
+    assert_eq!(signed.code, 0, "{}", signed.stderr);
+    let fin = f.run(&["finalize", p, "--role", "chair", "--key", "keys/chair.key"]);
+    assert_eq!(fin.code, 0, "{}", fin.stderr);
+    // May r1 is final now; June recorded it as a draft and re-runs to the same bytes.
+    rerun(&june);
+    // A new June revision compares with May's final r1, not the later draft r2.
+    holdings([0.25, 0.25, 0.25, 0.25]);
+    let june_r2 = run("2024-06-28");
+    assert!(june_r2.ends_with("r2"), "{}", june_r2.display());
+    let r = json(&june_r2.join("results.json"));
+    let prev = &r["change"]["previous"];
+    assert_eq!(prev["revision"], 1, "{prev}");
+    assert_eq!(prev["final"], true, "{prev}");
+    assert_eq!(prev["pack_id"], json(&may_r1.join("results.json"))["pack_id"]);
+}

@@ -49,6 +49,7 @@ fn pdf_has_every_section_and_the_figures_of_results_json() {
     for title in [
         "Contents",
         "Summary",
+        "Since the last pack",
         "Allocations",
         "Trades and costs",
         "Tail loss",
@@ -259,7 +260,7 @@ fn has_row(rows: &[String], want: &str, what: &str) {
 fn further_analysis_matches_results_json(text: &str, r: &serde_json::Value) {
     let flat = squeeze(text);
     let rows = rows(text);
-    for title in ["6.1 Efficient frontier", "6.2 Stress tests", "6.3 Backtest"] {
+    for title in ["7.1 Efficient frontier", "7.2 Stress tests", "7.3 Backtest"] {
         assert!(flat.contains(title), "subsection `{title}` missing");
     }
     assert!(
@@ -650,7 +651,7 @@ fn a_fund_without_backtest_or_stress_says_so_plainly() {
     let flat = squeeze(&pdf_text(&dir.join("pack.pdf")));
     // The section keeps its three parts; the two that did not run say why (DEVELOPERS.md, "Adding a report
     // section": a section whose data does not exist says so plainly rather than vanishing).
-    for title in ["6.1 Efficient frontier", "6.2 Stress tests", "6.3 Backtest"] {
+    for title in ["7.1 Efficient frontier", "7.2 Stress tests", "7.3 Backtest"] {
         assert!(flat.contains(title), "subsection `{title}` missing");
     }
     assert!(flat.contains("The walk-forward backtest was not run: it is switched off in the config (analysis.backtest_years: 0)."), "backtest absence");
