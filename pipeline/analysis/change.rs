@@ -297,15 +297,21 @@ fn figures(r: &Value) -> Vec<(String, Value)> {
     let mut out = Vec::new();
     if !r["current"].is_null() {
         let (var, cvar) = tail(&r["current"]["levels"], c);
-        out.push(("current".to_string(), json!({"weights": r["constraints"]["current"], "status": "given",
+        out.push((
+            "current".to_string(),
+            json!({"weights": r["constraints"]["current"], "status": "given",
             "expected_return": r["current"]["expected_return"], "var": var, "cvar": cvar,
-            "active_cvar": active("current"), "cost": null})));
+            "active_cvar": active("current"), "cost": null}),
+        ));
     }
     if let Some(models) = r["models"].as_object() {
         for (name, m) in models {
-            out.push((name.clone(), json!({"weights": m["weights"], "status": m["status"],
+            out.push((
+                name.clone(),
+                json!({"weights": m["weights"], "status": m["status"],
                 "expected_return": m["expected_return"], "var": m["var"], "cvar": m["cvar"],
-                "active_cvar": active(name), "cost": m["cost"]})));
+                "active_cvar": active(name), "cost": m["cost"]}),
+            ));
         }
     }
     out
@@ -370,7 +376,11 @@ fn portfolios(old: &Value, now: &Value) -> Value {
     let (a, b) = (figures(old), figures(now));
     let (ca, cb) = (classes(old), classes(now));
     let mut names: Vec<String> = b.iter().map(|x| x.0.clone()).collect();
-    names.extend(a.iter().map(|x| x.0.clone()).filter(|n| !b.iter().any(|y| y.0 == *n)));
+    names.extend(
+        a.iter()
+            .map(|x| x.0.clone())
+            .filter(|n| !b.iter().any(|y| y.0 == *n)),
+    );
     let find = |list: &[(String, Value)], n: &str| {
         list.iter()
             .find(|x| x.0 == n)
@@ -395,7 +405,10 @@ fn portfolios(old: &Value, now: &Value) -> Value {
 
 /// Shock name → P&L of one portfolio in one results.json.
 fn pnl(r: &Value, portfolio: &str) -> Vec<(String, f64)> {
-    let shocks = r["stress"]["shocks"].as_array().cloned().unwrap_or_default();
+    let shocks = r["stress"]["shocks"]
+        .as_array()
+        .cloned()
+        .unwrap_or_default();
     let pnl = r["stress"]["portfolios"][portfolio]["pnl"]
         .as_array()
         .cloned()
@@ -452,14 +465,12 @@ fn paired_strict(before: Option<&[(String, f64)]>, after: Option<&[(String, f64)
 
 /// The ids of a pack's open checks (warn or fail), sorted and without repeats.
 fn open_checks(r: &Value) -> Vec<String> {
-    let mut ids: Vec<String> = r["checks"]
-        .as_array()
-        .map_or(vec![], |l| {
-            l.iter()
-                .filter(|c| c["level"] != "pass")
-                .filter_map(|c| c["id"].as_str().map(str::to_string))
-                .collect()
-        });
+    let mut ids: Vec<String> = r["checks"].as_array().map_or(vec![], |l| {
+        l.iter()
+            .filter(|c| c["level"] != "pass")
+            .filter_map(|c| c["id"].as_str().map(str::to_string))
+            .collect()
+    });
     ids.sort();
     ids.dedup();
     ids

@@ -41,9 +41,10 @@ pub fn find(root: &Path, fund: &str, as_of: NaiveDate) -> Past {
 /// highest.
 fn chosen_revision(root: &Path, fund: &str, as_of: NaiveDate) -> Option<u32> {
     let revs = crate::archive::revisions(&root.join(fund).join(as_of.to_string()));
-    let finalised = revs.iter().rev().find(|(_, p)| {
-        crate::signoff::record(p).is_ok_and(|r| r.finalised.is_some())
-    });
+    let finalised = revs
+        .iter()
+        .rev()
+        .find(|(_, p)| crate::signoff::record(p).is_ok_and(|r| r.finalised.is_some()));
     finalised.or(revs.last()).map(|(n, _)| *n)
 }
 

@@ -70,7 +70,10 @@ pub fn show(results: &Value) -> Result<ChangeShow, String> {
     let ch = &results["change"];
     let prev = &ch["previous"];
     if prev.is_null() {
-        return Err("This is the fund's first pack in the archive: there is nothing to compare with.".into());
+        return Err(
+            "This is the fund's first pack in the archive: there is nothing to compare with."
+                .into(),
+        );
     }
     if prev["verified"] != true {
         return Err(format!(
@@ -127,8 +130,11 @@ fn sentences(ch: &Value, results: &Value) -> Vec<String> {
 }
 
 fn names(v: &Value) -> Vec<String> {
-    v.as_array()
-        .map_or(vec![], |l| l.iter().filter_map(|x| x.as_str().map(str::to_string)).collect())
+    v.as_array().map_or(vec![], |l| {
+        l.iter()
+            .filter_map(|x| x.as_str().map(str::to_string))
+            .collect()
+    })
 }
 
 fn data_sentence(d: &Value) -> String {
@@ -137,21 +143,36 @@ fn data_sentence(d: &Value) -> String {
         (true, true) => "The same assets as last time".to_string(),
         _ => format!(
             "Assets added: {}; dropped: {}",
-            if added.is_empty() { "none".into() } else { format::shortlist(&added, 6) },
-            if dropped.is_empty() { "none".into() } else { format::shortlist(&dropped, 6) }
+            if added.is_empty() {
+                "none".into()
+            } else {
+                format::shortlist(&added, 6)
+            },
+            if dropped.is_empty() {
+                "none".into()
+            } else {
+                format::shortlist(&dropped, 6)
+            }
         ),
     };
     let moved = &d["scenarios"]["moved"];
     format!(
         "{assets}; the scenario window moved by {} new scenarios ({} fell out), from {} to {} scenarios.",
-        moved["new"], moved["dropped"], d["scenarios"]["count"]["before"], d["scenarios"]["count"]["after"]
+        moved["new"],
+        moved["dropped"],
+        d["scenarios"]["count"]["before"],
+        d["scenarios"]["count"]["after"]
     )
 }
 
 fn checks_sentence(c: &Value) -> String {
     let list = |v: &Value| {
         let n = names(v);
-        if n.is_empty() { "none".to_string() } else { n.join(", ") }
+        if n.is_empty() {
+            "none".to_string()
+        } else {
+            n.join(", ")
+        }
     };
     format!(
         "Checks newly open: {}. Resolved: {}. Still open: {}.",
@@ -166,8 +187,14 @@ fn decomposition(cv: &Value) -> Vec<Pair> {
         return vec![];
     }
     vec![
-        pair("CVaR in the previous pack", fig(&cv["before"], Style::Weight)),
-        pair("Holdings effect", fig(&cv["holdings_effect"], Style::Points)),
+        pair(
+            "CVaR in the previous pack",
+            fig(&cv["before"], Style::Weight),
+        ),
+        pair(
+            "Holdings effect",
+            fig(&cv["holdings_effect"], Style::Points),
+        ),
         pair("Market effect", fig(&cv["market_effect"], Style::Points)),
         pair("CVaR now", fig(&cv["after"], Style::Weight)),
     ]

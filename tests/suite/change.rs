@@ -216,7 +216,10 @@ fn the_second_month_names_the_first_pack_and_reruns_to_identical_bytes() {
     assert_eq!(check(&two, "change.previous")["level"], "pass");
     // The decomposition's ends are each pack's own CVaR of its holdings (both at 95%, the default).
     let cv = &ch["current_cvar"];
-    let (before, after) = (cv["before"].as_f64().unwrap(), cv["after"].as_f64().unwrap());
+    let (before, after) = (
+        cv["before"].as_f64().unwrap(),
+        cv["after"].as_f64().unwrap(),
+    );
     assert!((before - current_cvar(&one)).abs() < 1e-12, "{cv}");
     assert!((after - current_cvar(&two)).abs() < 1e-12, "{cv}");
     let (h, m) = (
@@ -227,10 +230,19 @@ fn the_second_month_names_the_first_pack_and_reruns_to_identical_bytes() {
     assert!(h != 0.0, "the holdings changed: {cv}");
     // Holdings compared weight by weight: AS01 went from 1/4 to 0.4.
     let as01 = &ch["portfolios"]["current"]["weights"]["AS01"];
-    assert!((as01["before"].as_f64().unwrap() - 0.25).abs() < 1e-12, "{as01}");
-    assert!((as01["change"].as_f64().unwrap() - 0.15).abs() < 1e-12, "{as01}");
+    assert!(
+        (as01["before"].as_f64().unwrap() - 0.25).abs() < 1e-12,
+        "{as01}"
+    );
+    assert!(
+        (as01["change"].as_f64().unwrap() - 0.15).abs() < 1e-12,
+        "{as01}"
+    );
     // One month later the window has moved: new scenarios came in.
-    assert!(ch["data"]["scenarios"]["moved"]["new"].as_u64().unwrap() > 0, "{ch}");
+    assert!(
+        ch["data"]["scenarios"]["moved"]["new"].as_u64().unwrap() > 0,
+        "{ch}"
+    );
     let hist = ch["history"].as_array().unwrap();
     assert_eq!(hist.len(), 2);
     assert_eq!(hist[0]["pack_id"], one["pack_id"]);
@@ -247,7 +259,11 @@ fn the_second_month_names_the_first_pack_and_reruns_to_identical_bytes() {
     }
     let rerun = f.run(&["verify", second.to_str().unwrap(), "--rerun"]);
     assert_eq!(rerun.code, 0, "{}{}", rerun.stdout, rerun.stderr);
-    assert!(rerun.stdout.contains("identical outputs"), "{}", rerun.stdout);
+    assert!(
+        rerun.stdout.contains("identical outputs"),
+        "{}",
+        rerun.stdout
+    );
 }
 
 #[test]
@@ -315,7 +331,16 @@ fn a_rerun_keeps_its_previous_pack_and_a_finalised_revision_is_preferred() {
     // A run now would pick May's r2; June's re-run still compares with r1, as recorded.
     rerun(&june);
     let p = may_r1.to_str().unwrap();
-    let signed = f.run(&["sign", p, "--role", "chair", "--key", "keys/chair.key", "--name", "A. Chair"]);
+    let signed = f.run(&[
+        "sign",
+        p,
+        "--role",
+        "chair",
+        "--key",
+        "keys/chair.key",
+        "--name",
+        "A. Chair",
+    ]);
     assert_eq!(signed.code, 0, "{}", signed.stderr);
     let fin = f.run(&["finalize", p, "--role", "chair", "--key", "keys/chair.key"]);
     assert_eq!(fin.code, 0, "{}", fin.stderr);
@@ -329,5 +354,8 @@ fn a_rerun_keeps_its_previous_pack_and_a_finalised_revision_is_preferred() {
     let prev = &r["change"]["previous"];
     assert_eq!(prev["revision"], 1, "{prev}");
     assert_eq!(prev["final"], true, "{prev}");
-    assert_eq!(prev["pack_id"], json(&may_r1.join("results.json"))["pack_id"]);
+    assert_eq!(
+        prev["pack_id"],
+        json(&may_r1.join("results.json"))["pack_id"]
+    );
 }
