@@ -6,10 +6,15 @@
 //! previous pack that fails verification) the part is `null` and `change_absent` says why.
 //!
 //! May read: `results.json`'s `change` (written by `analysis::change`, the one place the comparison is
-//! made), the view model ([`super::view`]) and [`super::format`]. Computes nothing but the order of rows.
+//! made), the view model ([`super::view`]), [`super::format`] and the chart kit ([`super::draw`]: the
+//! history chart). Computes nothing but the order of rows.
 
+use super::draw::{
+    Area, Chart, Drawn, GRID, MUTED, colour, draw, font, marker, padded, tick, tick_decimals,
+};
 use super::format::{self, NONE, Style, pct};
-use super::view::{self, Head, Pair, pair};
+use super::view::{self, Head, Marker, Pair, pair};
+use plotters::prelude::*;
 use serde::Serialize;
 use serde_json::Value;
 
@@ -30,6 +35,8 @@ pub struct ChangeShow {
     /// The current holdings' stress results with the largest changes.
     pub stress: Vec<MoveRow>,
     pub history: Vec<HistoryRow>,
+    /// Whether the history chart ([`HISTORY_CHART`]) was drawn.
+    pub history_chart: bool,
 }
 
 /// One portfolio's expected return and CVaR in the previous pack and in this one.
@@ -91,6 +98,7 @@ pub fn show(results: &Value) -> Result<ChangeShow, String> {
         holdings: moves(&ch["portfolios"]["current"]["weights"], Style::Weight),
         stress: moves(&ch["stress"]["current"], Style::Return),
         history: history(&ch["history"]),
+        history_chart: has_chart(results),
     })
 }
 
@@ -271,4 +279,111 @@ fn history(h: &Value) -> Vec<HistoryRow> {
             }
         })
         .collect()
+}
+
+/// The history chart's file name.
+pub const HISTORY_CHART: &str = "change-history.svg";
+
+/// The history points that have both figures: (as-of, expected return, CVaR), oldest first.
+fn plotted(results: &Value) -> Vec<(String, f64, f64)> {
+    results["change"]["history"].as_array().map_or(vec![], |l| {
+        l.iter()
+            .filter_map(|e| {
+                Some((
+                    e["as_of"].as_str()?.to_string(),
+                    e["expected_return"].as_f64()?,
+                    e["cvar"].as_f64()?,
+                ))
+            })
+            .collect()
+    })
+}
+
+/// Whether the page has a history chart: two packs or more with the current holdings' figures, the
+/// previous one verified.
+fn has_chart(results: &Value) -> bool {
+    results["change"]["previous"]["verified"] == true && plotted(results).len() >= 2
+}
+
+/// The history chart (`change-history.svg`): the current holdings' CVaR and expected return in each of
+/// the fund's last packs; none when [`has_chart`] is false.
+pub fn chart(results: &Value) -> crate::error::Result<Option<Chart>> {
+    if !has_chart(results) {
+        return Ok(None);
+    }
+    let points = plotted(results);
+    draw(HISTORY_CHART, 260, |a| history_lines(a, &points)).map(Some)
+}
+
+fn history_lines(area: &Area, points: &[(String, f64, f64)]) -> Drawn {
+    let n = points.len();
+    let (y0, y1) = padded(
+        points.iter().flat_map(|p| [p.1 * 100.0, p.2 * 100.0]),
+        0.1,
+        true,
+    );
+    let labels: Vec<String> = points.iter().map(|p| p.0.clone()).collect();
+    let decimals = tick_decimals(y1 - y0);
+    let mut chart = ChartBuilder::on(area)
+        .margin(14)
+        .margin_top(34)
+        .x_label_area_size(40)
+        .y_label_area_size(64)
+        .build_cartesian_2d(-0.5..n as f64 - 0.5, y0..y1)?;
+    chart
+        .configure_mesh()
+        .disable_x_mesh()
+        .x_labels(n)
+        .max_light_lines(0)
+        .bold_line_style(GRID)
+        .axis_style(MUTED)
+        .label_style(font(12.0))
+        .axis_desc_style(font(12.5))
+        .x_label_formatter(&|x| {
+            let k = x.round();
+            if (x - k).abs() < 1e-9 && k >= 0.0 {
+                labels.get(k as usize).cloned().unwrap_or_default()
+            } else {
+                String::new()
+            }
+        })
+        .y_label_formatter(&|v| tick(*v, decimals))
+        .y_desc("Current holdings (% over one horizon)")
+        .draw()?;
+    let cvar = view::identity(view::CURRENT);
+    let series: [(&str, RGBColor, Vec<(f64, f64)>); 2] = [
+        (
+            "CVaR",
+            colour(cvar),
+            points
+                .iter()
+                .enumerate()
+                .map(|(i, p)| (i as f64, p.2 * 100.0))
+                .collect(),
+        ),
+        (
+            "Expected return",
+            RGBColor(0x2c, 0x72, 0xad),
+            points
+                .iter()
+                .enumerate()
+                .map(|(i, p)| (i as f64, p.1 * 100.0))
+                .collect(),
+        ),
+    ];
+    for (k, (name, c, path)) in series.iter().enumerate() {
+        chart.draw_series(LineSeries::new(path.iter().copied(), c.stroke_width(2)))?;
+        let shape = if k == 0 {
+            Marker::Circle
+        } else {
+            Marker::Square
+        };
+        for p in path {
+            marker(area, chart.backend_coord(p), shape, *c)?;
+        }
+        let x = 80 + 160 * k as i32;
+        marker(area, (x, 16), shape, *c)?;
+        area.draw(&Text::new(name.to_string(), (x + 10, 9), font(12.5)))?;
+    }
+    Ok(())
 }

@@ -118,6 +118,7 @@ fn job(
     for chart in charts::all(r, &shown)?
         .into_iter()
         .chain(policy::chart(r, &shown)?)
+        .chain(change::chart(results)?)
         .chain(further::charts(r, &shown)?)
     {
         made.push(generated(
