@@ -66,9 +66,32 @@ pub const CHECK_ID: &str = "change.previous";
 /// The rule the comparison and the decomposition follow, as results.json states it.
 pub const RULE: &str = "previous pack: the latest as-of of the fund before this one in the archive, its highest revision, a finalised revision preferred; verified as `verify` does before use. CVaR change = holdings effect + market effect: holdings = CVaR(this month's holdings on last month's scenarios) − CVaR(last month's holdings on last month's scenarios); market = CVaR(this month's holdings on this month's scenarios) − CVaR(this month's holdings on last month's scenarios); both at this run's confidence (Rockafellar & Uryasev 2002). An asset in one month only has weight 0 and return 0 in the other month.";
 
+/// The checks on the earlier packs: [`previous_check`], and a warning naming every older pack of the
+/// history that fails verification (its figures are left out of the history).
+pub fn checks(past: &Past) -> Vec<Check> {
+    let mut out = previous_check(past);
+    let n = past.history.len().saturating_sub(1);
+    let bad: Vec<String> = past.history[..n]
+        .iter()
+        .filter(|h| !h.verified)
+        .map(|h| format!("{} ({})", h.folder, h.problems.join("; ")))
+        .collect();
+    if !bad.is_empty() {
+        out.push(Check::warn(
+            "change.history",
+            format!(
+                "{} earlier pack(s) of the history fail verification; their figures are left out: {}",
+                bad.len(),
+                bad.join("; ")
+            ),
+        ));
+    }
+    out
+}
+
 /// The check on the previous pack: a pass naming it, a pass saying there is none, or a fail naming the
 /// pack that fails verification (then not used).
-pub fn checks(past: &Past) -> Vec<Check> {
+fn previous_check(past: &Past) -> Vec<Check> {
     let Some(p) = &past.previous else {
         return vec![Check::pass(
             CHECK_ID,

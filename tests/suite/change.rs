@@ -266,27 +266,49 @@ fn the_second_month_names_the_first_pack_and_reruns_to_identical_bytes() {
     );
 }
 
+/// April's pack is tampered with (a byte of its results.json): May names it in a fail check and does not
+/// use it; June compares with May and keeps April in its history without figures, with a warning.
 #[test]
 fn a_tampered_previous_pack_is_reported_in_a_fail_check_and_not_used() {
-    let (f, first) = first_month();
-    let path = first.join("results.json");
+    let f = Fixture::new();
+    let m = Market::new(4, "2021-01-01", "2024-06-28", 21);
+    f.small_fund(&m, &config("analysis:\n  backtest_years: 1\n"));
+    let run = |as_of: &str| {
+        let ran = f.run(&["run", "fund.yaml", "--quiet", "--as-of", as_of]);
+        assert_eq!(ran.code, 0, "{}", ran.stderr);
+        last_line(&ran.stdout)
+    };
+    let april = run("2024-04-30");
+    let path = april.join("results.json");
     let mut bytes = std::fs::read(&path).unwrap();
     let at = bytes.iter().position(|b| *b == b'7').expect("a digit 7");
     bytes[at] = b'8';
     std::fs::write(&path, bytes).unwrap();
-    let second = second_month(&f);
-    let two = json(&second.join("results.json"));
+    let may = run("2024-05-31");
+    let two = json(&may.join("results.json"));
     let c = check(&two, "change.previous");
     assert_eq!(c["level"], "fail", "{c}");
     let msg = c["message"].as_str().unwrap();
     assert!(
-        msg.contains("2024-05-31/r1") && msg.contains("results.json") && msg.contains("not used"),
+        msg.contains("2024-04-30/r1") && msg.contains("results.json") && msg.contains("not used"),
         "{msg}"
     );
     let ch = &two["change"];
     assert_eq!(ch["previous"]["verified"], false, "{ch}");
     assert!(ch["current_cvar"].is_null(), "{ch}");
     assert!(ch["portfolios"].is_null(), "{ch}");
+    let three = json(&run("2024-06-28").join("results.json"));
+    assert_eq!(check(&three, "change.previous")["level"], "pass");
+    assert_eq!(three["change"]["previous"]["as_of"], "2024-05-31");
+    let h = check(&three, "change.history");
+    assert_eq!(h["level"], "warn", "{h}");
+    assert!(
+        h["message"].as_str().unwrap().contains("2024-04-30/r1"),
+        "{h}"
+    );
+    let first = &three["change"]["history"][0];
+    assert_eq!(first["verified"], false, "{first}");
+    assert!(first["cvar"].is_null(), "{first}");
 }
 
 /// The choice among revisions and what a re-run sees: a later run prefers a finalised revision of the
