@@ -10,6 +10,8 @@ use crate::timings;
 use std::path::{Path, PathBuf};
 use std::time::Duration;
 
+mod previous;
+
 /// A spinner on stderr for steps that may take over a second; does nothing when quiet.
 pub struct Progress {
     bar: Option<indicatif::ProgressBar>,
@@ -184,7 +186,12 @@ fn run_fund(cfg: crate::config::Config, progress: &Progress) -> Result<RunReport
     }
     progress.step("solving the CVaR models, frontier, stress set and backtest");
     let seed = crate::analysis::bands::seed_of(&plan.pack_id);
-    let result = run::solve(prepared, seed)?;
+    let past = previous::find(
+        &prepared.cfg.out_root,
+        &prepared.cfg.short_name,
+        prepared.data.as_of,
+    );
+    let result = run::solve_after(prepared, seed, past)?;
     progress.step("writing the pack");
     let (dir, text) = crate::pack::write(&result, &plan)?;
     timings::time("writing", || {
@@ -306,7 +313,8 @@ fn recompute(pack: &Path, scratch: &Path) -> Result<(run::RunResult, crate::arch
     let data = crate::ingest::load(&cfg)?;
     let plan = crate::archive::plan(&cfg, data.as_of)?;
     let seed = crate::analysis::bands::seed_of(&plan.pack_id);
-    Ok((run::compute(cfg, data, seed)?, plan))
+    let past = previous::recorded(pack, &cfg.short_name);
+    Ok((run::compute_after(cfg, data, seed, past)?, plan))
 }
 
 /// `tailpack finalize PACK --role R --key K`: once every required role has signed, renders

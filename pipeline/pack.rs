@@ -197,7 +197,7 @@ pub fn results_json(r: &RunResult, inputs: &[crate::archive::InputFile], pack_id
         .map(|m| (m.name.to_string(), model_json(r, m)))
         .collect();
     let s = &r.scenarios;
-    json!({
+    let mut v = json!({
         "tool": {"name": "tailpack", "version": env!("CARGO_PKG_VERSION")},
         "pack_id": pack_id,
         "fund": {"name": r.config.fund.name, "short_name": r.config.short_name,
@@ -230,7 +230,15 @@ pub fn results_json(r: &RunResult, inputs: &[crate::archive::InputFile], pack_id
         "backtest": backtest_json(r),
         "policy": policy_json(r),
         "bands": bands_json(r),
-    })
+    });
+    v["change"] = change_json(r, &v);
+    v
+}
+
+/// The change since the fund's previous pack ([`crate::analysis::change::section`]), compared with this
+/// pack's own results as written.
+fn change_json(r: &RunResult, results: &Value) -> Value {
+    crate::analysis::change::section(&r.past, results, &r.scenarios, r.config.confidence)
 }
 
 /// The estimation-error bands: per family, [p5, p50, p95] of every weight, of expected return and CVaR on

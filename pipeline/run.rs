@@ -101,6 +101,9 @@ pub struct RunResult {
     pub reference: ScenarioSet,
     /// Every portfolio against the policy, when one is configured.
     pub policy: Option<crate::analysis::policy::PolicyReport>,
+    /// The fund's earlier packs as the archive found them (none for a first pack): what results.json's
+    /// `change` compares with.
+    pub past: crate::analysis::change::Past,
 }
 
 /// One fund after everything `run` checks before its first LP: the config (command-line overrides applied
@@ -160,9 +163,31 @@ pub fn compute(cfg: Config, data: MarketData, seed: u64) -> Result<RunResult> {
     solve(validate(cfg, data)?, seed)
 }
 
+/// [`compute`] against the fund's earlier packs (`past`, found and verified by the archive layer).
+pub fn compute_after(
+    cfg: Config,
+    data: MarketData,
+    seed: u64,
+    past: crate::analysis::change::Past,
+) -> Result<RunResult> {
+    solve_after(validate(cfg, data)?, seed, past)
+}
+
 /// Solves the models, frontier, stress set, backtest and bands of a prepared fund; `seed` seeds the bands'
-/// resamples (the run takes it from the pack id, so a re-run draws the same ones).
+/// resamples (the run takes it from the pack id, so a re-run draws the same ones). Nothing earlier is
+/// compared with: a first pack ([`solve_after`] takes the earlier packs).
 pub fn solve(prepared: Prepared, seed: u64) -> Result<RunResult> {
+    solve_after(prepared, seed, crate::analysis::change::Past::default())
+}
+
+/// [`solve`] against the fund's earlier packs: `past` is what the archive layer found and verified (the
+/// change since the previous pack is computed from it when the pack's results are written, and its check
+/// joins the run's checks here).
+pub fn solve_after(
+    prepared: Prepared,
+    seed: u64,
+    past: crate::analysis::change::Past,
+) -> Result<RunResult> {
     let Prepared {
         cfg,
         data,
@@ -202,6 +227,7 @@ pub fn solve(prepared: Prepared, seed: u64) -> Result<RunResult> {
     checks.extend(crate::analysis::checks(&analysis, &cfg));
     checks.extend(crate::analysis::policy::checks(policy.as_ref()));
     checks.extend(active_budget_check(&cfg, policy.as_ref()));
+    checks.extend(crate::analysis::change::checks(&past));
     let backend = cfg.backend;
     Ok(RunResult {
         config: cfg,
@@ -218,6 +244,7 @@ pub fn solve(prepared: Prepared, seed: u64) -> Result<RunResult> {
         analysis,
         reference,
         policy,
+        past,
     })
 }
 

@@ -2,9 +2,12 @@
 //! crises (the stress set), and out-of-sample evidence (walk-forward backtest with VaR backtests).
 //!
 //! Reads the market data, the scenario set, the feasible set and the models' portfolios; writes nothing.
+//! `change` compares with the fund's previous pack, which the archive layer finds and hands down as plain
+//! data (`change::Past`); the pack writer calls it with this run's results.json value.
 
 pub mod backtest;
 pub mod bands;
+pub mod change;
 pub mod frontier;
 pub mod policy;
 pub mod resolve;

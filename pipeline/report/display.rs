@@ -6,6 +6,7 @@
 //! group) and each portfolio's return per unit of CVaR. The sentences come from [`super::text`], the
 //! "Further analysis" part from [`super::further`].
 
+use super::change::ChangeShow;
 use super::format::{self, NONE, Style, pct};
 use super::further::{self, Further};
 use super::money::{self, MoneyShow};
@@ -49,6 +50,9 @@ pub struct Report {
     pub trades_absent: Option<String>,
     /// The fund value and currency of the money lines, the annualisation rule, or why there is no money.
     pub money: MoneyShow,
+    /// "Since the last pack", or `null` with `change_absent` saying why there is nothing to compare.
+    pub change: Option<ChangeShow>,
+    pub change_absent: Option<String>,
 }
 
 /// Cover and running-header facts.
@@ -246,6 +250,8 @@ pub fn build(r: &RunResult, shown: &[Portfolio], results: &Value, pack_id: &str)
         trades,
         trades_absent,
         money: money::show(r),
+        change: super::change::show(results).ok(),
+        change_absent: super::change::show(results).err(),
     }
 }
 

@@ -11,6 +11,7 @@
 //!               frontier.rs, stress.rs, backtest.rs (each part's display data and charts)
 //!   policy.rs   "Position against policy": policy lines, exposures, breaches, active risk
 //!   trades.rs   "Trades and costs": each model's trades from the current holdings, money traded, costs
+//!   change.rs   "Since the last pack": results.json's `change` (previous pack, CVaR effects, history)
 //!   charts.rs   the summary and allocation charts (SVG)
 //!   text.rs     the sentences that depend on the run (summary points, caveats)
 //!   draw.rs     the chart kit: canvas, type, axes, markers, legends, bars
@@ -35,6 +36,7 @@
 //! May read: the [`RunResult`], the `results.json` value and the custom template folder. Writes nothing:
 //! the pack writer stores the returned bytes.
 
+pub mod change;
 pub mod charts;
 pub mod display;
 pub mod draw;
@@ -116,6 +118,7 @@ fn job(
     for chart in charts::all(r, &shown)?
         .into_iter()
         .chain(policy::chart(r, &shown)?)
+        .chain(change::chart(results)?)
         .chain(further::charts(r, &shown)?)
     {
         made.push(generated(

@@ -25,6 +25,7 @@ pub const DEFAULTS: &[(&str, &str)] = &[
     ("contents.typ", include_str!("../../templates/contents.typ")),
     ("summary.typ", include_str!("../../templates/summary.typ")),
     ("policy.typ", include_str!("../../templates/policy.typ")),
+    ("change.typ", include_str!("../../templates/change.typ")),
     (
         "allocations.typ",
         include_str!("../../templates/allocations.typ"),

@@ -177,7 +177,7 @@ fn trade_and_active(r: &RunResult, v: &Portfolio) -> String {
 fn stress_point(r: &RunResult, shown: &[Portfolio]) -> String {
     let a = &r.analysis;
     if a.shocks.is_empty() || a.stress.is_empty() {
-        return "Stress tests: none was run (section 6.2 says why).".into();
+        return "Stress tests: none was run (section 7.2 says why).".into();
     }
     let defined = a.shocks.iter().filter(|s| s.kind == "defined").count();
     let mut out = format!(
@@ -212,7 +212,7 @@ fn stress_point(r: &RunResult, shown: &[Portfolio]) -> String {
 /// The backtest in one sentence: exceptions per model against the expected number, and the rejections.
 fn backtest_point(r: &RunResult) -> String {
     let Some(b) = &r.analysis.backtest else {
-        return "Walk-forward backtest: not run (section 6.3 says why).".into();
+        return "Walk-forward backtest: not run (section 7.3 says why).".into();
     };
     let Some(first) = b.tracks.first() else {
         return "Walk-forward backtest: no model to test.".into();
@@ -519,7 +519,7 @@ fn backtest_caveats(r: &RunResult) -> Vec<Caveat> {
     }
     if !b.skipped.is_empty() {
         out.push(caveat("Months skipped in the backtest", &format!(
-            "{} of {} month-ends could not be solved and count as months without a return; they are listed in section 6.3.", b.skipped.len(), b.rebalances.len())));
+            "{} of {} month-ends could not be solved and count as months without a return; they are listed in section 7.3.", b.skipped.len(), b.rebalances.len())));
     }
     out
 }

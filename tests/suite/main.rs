@@ -4,6 +4,7 @@ mod analysis;
 mod archive;
 mod bad_inputs;
 mod bench;
+mod change;
 mod cli;
 mod common;
 mod costs;

@@ -88,7 +88,7 @@ fn weights(pack: &Path) -> BTreeMap<String, BTreeMap<String, f64>> {
     out
 }
 
-/// The squeezed lines of the section numbered `n` ("4 Trades and costs" up to the next section's title).
+/// The squeezed lines of the section numbered `n` ("5 Trades and costs" up to the next section's title).
 fn section(text: &str, n: usize) -> Vec<String> {
     let lines: Vec<String> = text
         .lines()
@@ -240,7 +240,7 @@ pub(super) fn demo_section_matches_results_json(text: &str, pack: &Path) {
     let w = weights(pack);
     let v = r["fund_value"].as_f64().expect("the demo fund has a value");
     let ccy = r["base_currency"].as_str().unwrap();
-    let lines = section(text, 4);
+    let lines = section(text, 5);
     let assets: Vec<String> = w["current"].keys().cloned().collect();
     let rate = |a: &str| r["costs"]["rates"][a].as_f64().unwrap();
     let mut row = BTreeMap::<&str, Vec<String>>::new();
@@ -389,7 +389,7 @@ fn without_a_fund_value_trades_are_weight_changes_and_costs_basis_points() {
     let pack = run(&f);
     let r = json(&pack.join("results.json"));
     assert!(r["fund_value"].is_null() && r["trades"].is_null());
-    let lines = section(&pdf_text(&pack.join("pack.pdf")), 4);
+    let lines = section(&pdf_text(&pack.join("pack.pdf")), 5);
     let flat = lines.join(" ");
     assert!(
         flat.contains("amounts in money need `fund.value` and `fund.base_currency` in the config"),
@@ -458,7 +458,7 @@ fn without_cost_rates_trades_are_shown_free_of_cost() {
     let f = Fixture::new();
     fund(&f, "  value: 40000000\n  base_currency: XTS\n", false, 0.5);
     let pack = run(&f);
-    let lines = section(&pdf_text(&pack.join("pack.pdf")), 4);
+    let lines = section(&pdf_text(&pack.join("pack.pdf")), 5);
     let flat = lines.join(" ");
     assert!(
         flat.contains("so the trades are shown free of cost"),
