@@ -222,12 +222,7 @@ pub fn solve_after(
         &policy_members,
         &portfolios,
     );
-    let mut checks = data.quality.findings.clone();
-    checks.extend(model_checks(&solved.preconditions, &solved.reports, &cfg));
-    checks.extend(crate::analysis::checks(&analysis, &cfg));
-    checks.extend(crate::analysis::policy::checks(policy.as_ref()));
-    checks.extend(active_budget_check(&cfg, policy.as_ref()));
-    checks.extend(crate::analysis::change::checks(&past));
+    let checks = run_checks(&cfg, &data, &solved, &analysis, policy.as_ref(), &past);
     let backend = cfg.backend;
     Ok(RunResult {
         config: cfg,
@@ -246,6 +241,25 @@ pub fn solve_after(
         policy,
         past,
     })
+}
+
+/// Every check of the run, in the order the pack lists them: data quality, models, analysis, policy, the
+/// active-CVaR budget, the earlier packs.
+fn run_checks(
+    cfg: &Config,
+    data: &MarketData,
+    solved: &Solved,
+    analysis: &crate::analysis::Analysis,
+    policy: Option<&crate::analysis::policy::PolicyReport>,
+    past: &crate::analysis::change::Past,
+) -> Vec<Check> {
+    let mut checks = data.quality.findings.clone();
+    checks.extend(model_checks(&solved.preconditions, &solved.reports, cfg));
+    checks.extend(crate::analysis::checks(analysis, cfg));
+    checks.extend(crate::analysis::policy::checks(policy));
+    checks.extend(active_budget_check(cfg, policy));
+    checks.extend(crate::analysis::change::checks(past));
+    checks
 }
 
 /// The policy benchmark's return per scenario with the active-CVaR budget, when the policy sets one

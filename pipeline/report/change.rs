@@ -315,6 +315,21 @@ pub fn chart(results: &Value) -> crate::error::Result<Option<Chart>> {
     draw(HISTORY_CHART, 260, |a| history_lines(a, &points)).map(Some)
 }
 
+/// The two lines of the history chart: the current holdings' CVaR and expected return, in percent, by pack.
+fn history_series(points: &[(String, f64, f64)]) -> [(&'static str, RGBColor, Vec<(f64, f64)>); 2] {
+    let path = |f: fn(&(String, f64, f64)) -> f64| {
+        points
+            .iter()
+            .enumerate()
+            .map(|(i, p)| (i as f64, f(p) * 100.0))
+            .collect()
+    };
+    [
+        ("CVaR", colour(view::identity(view::CURRENT)), path(|p| p.2)),
+        ("Expected return", RGBColor(0x2c, 0x72, 0xad), path(|p| p.1)),
+    ]
+}
+
 fn history_lines(area: &Area, points: &[(String, f64, f64)]) -> Drawn {
     let n = points.len();
     let (y0, y1) = padded(
@@ -350,27 +365,7 @@ fn history_lines(area: &Area, points: &[(String, f64, f64)]) -> Drawn {
         .y_label_formatter(&|v| tick(*v, decimals))
         .y_desc("Current holdings (% over one horizon)")
         .draw()?;
-    let cvar = view::identity(view::CURRENT);
-    let series: [(&str, RGBColor, Vec<(f64, f64)>); 2] = [
-        (
-            "CVaR",
-            colour(cvar),
-            points
-                .iter()
-                .enumerate()
-                .map(|(i, p)| (i as f64, p.2 * 100.0))
-                .collect(),
-        ),
-        (
-            "Expected return",
-            RGBColor(0x2c, 0x72, 0xad),
-            points
-                .iter()
-                .enumerate()
-                .map(|(i, p)| (i as f64, p.1 * 100.0))
-                .collect(),
-        ),
-    ];
+    let series = history_series(points);
     for (k, (name, c, path)) in series.iter().enumerate() {
         chart.draw_series(LineSeries::new(path.iter().copied(), c.stroke_width(2)))?;
         let shape = if k == 0 {
