@@ -19,7 +19,7 @@ use super::resolve::{self, History};
 use super::vartest::{self, LrTest, Zone};
 use crate::config::Config;
 use crate::ingest::MarketData;
-use crate::models::{self, Family, FeasibleSet, Status};
+use crate::models::{self, Family, FeasibleSet, Premises, Status};
 use crate::risk;
 use crate::scenarios;
 use chrono::{Datelike, Months, NaiveDate};
@@ -176,7 +176,7 @@ fn decide(
         reference: &reference,
         feasible: &fs,
     };
-    let (set, solution) = resolve::solve(cfg, data, &history)?;
+    let (set, solution) = resolve::solve(cfg, data, &history, Premises::Establish)?;
     let c = cfg.confidence;
     Ok(solution
         .families

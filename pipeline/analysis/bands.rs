@@ -20,7 +20,7 @@
 use super::resolve::{self, History};
 use crate::config::Config;
 use crate::ingest::MarketData;
-use crate::models::{self, Family, FeasibleSet};
+use crate::models::{self, Family, FeasibleSet, Premises};
 use crate::random::Rng;
 use crate::risk;
 use crate::scenarios::ScenarioSet;
@@ -131,9 +131,13 @@ pub fn run(
         universe: daily_returns(&data.prices),
         reference: daily_returns(&data.reference_prices),
     };
+    let premises = premises_from(points);
     let draws: Vec<Draw> = (0..b)
         .into_par_iter()
-        .map(|k| redraw(cfg, data, fs, &daily, block, seed.wrapping_add(k as u64)))
+        .map(|k| {
+            let seed = seed.wrapping_add(k as u64);
+            redraw(cfg, data, fs, &daily, block, seed, premises)
+        })
         .collect();
     let mu = set.mean();
     let models = Family::ALL
@@ -147,6 +151,17 @@ pub fn run(
         seed,
         models,
     })
+}
+
+/// What the resamples may take as known of X: a point optimum is a portfolio of X the run verified, so X
+/// is not empty and the resamples skip the feasibility LP ([`Premises::Shown`]); without one they
+/// establish it as the run does.
+fn premises_from(points: &[Option<Vec<f64>>]) -> Premises {
+    if points.iter().any(Option::is_some) {
+        Premises::Shown
+    } else {
+        Premises::Establish
+    }
 }
 
 /// The window's per-observation returns, `[row][series]`, of the universe and of the reference series.
@@ -172,6 +187,7 @@ fn redraw(
     daily: &Daily,
     block: f64,
     seed: u64,
+    premises: Premises,
 ) -> Draw {
     let mut rng = Rng::from_seed(seed);
     let n = daily.universe.len();
@@ -184,7 +200,7 @@ fn redraw(
         reference: &reference,
         feasible: fs,
     };
-    match resolve::solve(cfg, data, &history) {
+    match resolve::solve(cfg, data, &history, premises) {
         Ok((_, solution)) => solution
             .families
             .into_iter()

@@ -19,12 +19,14 @@ pub struct History<'a> {
     pub feasible: &'a FeasibleSet,
 }
 
-/// The scenarios of `h` and every family solved on them; an error in words when no scenario set can be
-/// built (too few scenarios, a benchmark series without prices).
+/// The scenarios of `h` and every family solved on them under `premises` (what is known of X before
+/// solving); an error in words when no scenario set can be built (too few scenarios, a benchmark series
+/// without prices).
 pub fn solve(
     cfg: &Config,
     data: &MarketData,
     h: &History,
+    premises: Premises,
 ) -> Result<(ScenarioSet, Solution), String> {
     let set = scenarios::from_prices(&data.assets, h.dates, h.prices, &cfg.scenarios)
         .map_err(|e| e.to_string())?;
@@ -53,7 +55,7 @@ pub fn solve(
         floor: cfg.floor,
         current: current.as_ref(),
     };
-    let solution = models::solve_all(&p, &targets, Premises::Establish);
+    let solution = models::solve_all(&p, &targets, premises);
     Ok((set, solution))
 }
 

@@ -84,7 +84,7 @@ impl Default for AnalysisOptions {
             frontier_points: 21,
             backtest_years: 5,
             daily_var_check: true,
-            band_resamples: 0,
+            band_resamples: 200,
             band_block: None,
         }
     }

@@ -8,7 +8,9 @@
 //! established: X called empty only when it was shown empty, a cap or floor called out of reach only
 //! against a solved auxiliary LP, and a solver's "infeasible" that a known portfolio contradicts reported
 //! as a solver error. The ratio family reuses the minimum CVaR of the auxiliary LP (its cutting-plane
-//! method needs it) and is solved only when its preconditions hold.
+//! method needs it) and is solved only when its preconditions hold. The bands' resamples, which re-solve
+//! the run's X on other scenarios, skip the feasibility LP and let a family take an auxiliary optimum its
+//! own rule does not cut off ([`Premises::Shown`]); the run and the backtest establish everything.
 
 use super::lp::{Failure, Solved, Timing};
 use super::{
@@ -17,6 +19,7 @@ use super::{
     resolve_floor, unless_contradicted,
 };
 use crate::config::{CapRule, FloorRule};
+use crate::risk;
 use crate::risk::RiskProfile;
 use std::time::{Duration, Instant};
 
@@ -36,6 +39,14 @@ pub enum Premises {
     /// Nothing: show X non-empty and check the ratio's preconditions with the auxiliary LPs (a fund's run
     /// and every month of the backtest).
     Establish,
+    /// X was shown non-empty by an earlier solve on the same feasible set (the run's, before the bands'
+    /// resamples re-solve it on other scenarios; X does not depend on the scenarios): the feasibility LP
+    /// is skipped. The auxiliary LPs still run (the cap, the floor and the ratio's preconditions depend on
+    /// the scenarios), as does, with an active-CVaR budget, the LP deciding whether the budget leaves any
+    /// portfolio. A family whose own rule does not bind at an auxiliary optimum takes that optimum instead
+    /// of solving its own LP: min_cvar when the minimum-CVaR portfolio meets the floor, max_return when
+    /// the maximum-return portfolio keeps within the cap (optimal over a larger set and feasible here).
+    Shown,
     /// X is not empty and the ratio's preconditions hold by construction (the bench's synthetic problems):
     /// no feasibility or auxiliary LP is solved, so each family's own LP is all that runs.
     Given,
@@ -46,6 +57,9 @@ pub enum Premises {
 pub struct Auxiliary {
     pub min_cvar: Result<f64, Failure>,
     pub max_return: Result<f64, Failure>,
+    /// With [`Premises::Shown`], the two optima themselves (minimum CVaR, maximum return), for the
+    /// families to take where their own rule does not bind.
+    optima: [Option<Solved>; 2],
 }
 
 impl Auxiliary {
@@ -59,6 +73,7 @@ impl Auxiliary {
         Auxiliary {
             min_cvar: not(),
             max_return: not(),
+            optima: [None, None],
         }
     }
 }
@@ -115,12 +130,12 @@ pub fn solve_all_by(
     let (emptiness, auxiliary) = screen(p, premises, method);
     let preconditions = match (premises, &emptiness) {
         (Premises::Given, _) => Preconditions::given(),
-        (Premises::Establish, Emptiness::NotEmpty) => preconditions(
+        (Premises::Establish | Premises::Shown, Emptiness::NotEmpty) => preconditions(
             &auxiliary.min_cvar,
             &auxiliary.max_return,
             p.feasible.charges_costs(),
         ),
-        (Premises::Establish, other) => preconditions_without_portfolio(other),
+        (Premises::Establish | Premises::Shown, other) => preconditions_without_portfolio(other),
     };
     let c = p.confidence;
     let cap = resolve_cap(
@@ -155,18 +170,41 @@ fn screen(p: &Problem, premises: Premises, method: Method) -> (Emptiness, Auxili
     if premises == Premises::Given {
         return (Emptiness::NotEmpty, Auxiliary::unsolved());
     }
-    let emptiness = match explain_empty(p.feasible, &p.set.assets, p.backend) {
+    let shown = premises == Premises::Shown;
+    let emptiness = if shown {
+        Emptiness::NotEmpty
+    } else {
+        explain_empty(p.feasible, &p.set.assets, p.backend)
+    };
+    let emptiness = match emptiness {
         Emptiness::NotEmpty => within_active_budget(p, method),
         other => other,
     };
     let auxiliary = match emptiness {
-        Emptiness::NotEmpty => Auxiliary {
-            min_cvar: p.min_cvar_by(None, method).map(|s| s.objective),
-            max_return: p.max_return_by(None, method).map(|s| s.objective),
-        },
+        Emptiness::NotEmpty => auxiliary(p, method, shown),
         Emptiness::Empty(_) | Emptiness::Unknown(_) => Auxiliary::unsolved(),
     };
     (emptiness, auxiliary)
+}
+
+/// The two auxiliary LPs over X, their optima kept when `keep`.
+fn auxiliary(p: &Problem, method: Method, keep: bool) -> Auxiliary {
+    let min_cvar = p.min_cvar_by(None, method);
+    let max_return = p.max_return_by(None, method);
+    let kept = |r: &Result<Solved, Failure>| r.as_ref().ok().filter(|_| keep).cloned();
+    Auxiliary {
+        optima: [kept(&min_cvar), kept(&max_return)],
+        min_cvar: min_cvar.map(|s| s.objective),
+        max_return: max_return.map(|s| s.objective),
+    }
+}
+
+/// The auxiliary optimum `which` (0 minimum CVaR, 1 maximum return) when it was kept and meets `meets`.
+fn reusable(s: &Solution, which: usize, meets: impl FnOnce(&[f64]) -> bool) -> Option<Solved> {
+    s.auxiliary.optima[which]
+        .as_ref()
+        .filter(|o| meets(&o.weights))
+        .cloned()
 }
 
 /// Whether the active-CVaR budget leaves any portfolio of a non-empty X: the minimum active CVaR over X
@@ -230,8 +268,18 @@ fn solve_family(
             None,
         ),
         Emptiness::NotEmpty => match family {
-            Family::MaxReturn => max_return(p, s.cap, targets.cap, &s.auxiliary.min_cvar, method),
-            Family::MinCvar => min_cvar(p, s.floor, &s.auxiliary.max_return, method),
+            Family::MaxReturn => {
+                let cap = s.cap;
+                let within = |x: &[f64]| risk::cvar_of(p.set, x, p.confidence) <= cap;
+                let solved = reusable(s, 1, within).map(Ok);
+                max_return(p, cap, targets.cap, &s.auxiliary.min_cvar, method, solved)
+            }
+            Family::MinCvar => {
+                let floor = s.floor;
+                let meets = |x: &[f64]| super::net_return(p, x) >= floor;
+                let solved = reusable(s, 0, meets).map(Ok);
+                min_cvar(p, floor, &s.auxiliary.max_return, method, solved)
+            }
             Family::MaxRatio => max_ratio(p, &s.preconditions, method),
         },
     }
@@ -249,7 +297,8 @@ fn judged(
     (outcome(p, r, cap, floor, diagnose), timing)
 }
 
-/// max_return under the resolved cap. A cap that could not be resolved (its base is unknown) is said so
+/// max_return under the resolved cap (`solved`: the auxiliary optimum when it already keeps within the
+/// cap, with [`Premises::Shown`]). A cap that could not be resolved (its base is unknown) is said so
 /// rather than handed to the solver as NaN.
 fn max_return(
     p: &Problem,
@@ -257,6 +306,7 @@ fn max_return(
     rule: CapRule,
     min_x: &Result<f64, Failure>,
     method: Method,
+    solved: Option<Result<Solved, Failure>>,
 ) -> Step {
     if cap.is_nan() {
         return (unresolved_cap(rule, min_x), None);
@@ -264,7 +314,7 @@ fn max_return(
     let set = over_set(p);
     let (o, timing) = judged(
         p,
-        p.max_return_by(Some(cap), method),
+        solved.unwrap_or_else(|| p.max_return_by(Some(cap), method)),
         Some(cap),
         None,
         || match min_x {
@@ -304,12 +354,19 @@ fn unresolved_cap(rule: CapRule, min_x: &Result<f64, Failure>) -> Outcome {
 }
 
 /// min_cvar above the resolved return floor, diagnosed against the maximum expected return over X.
-fn min_cvar(p: &Problem, floor: f64, max_x: &Result<f64, Failure>, method: Method) -> Step {
+/// `solved` is the auxiliary optimum when it already meets the floor (with [`Premises::Shown`]).
+fn min_cvar(
+    p: &Problem,
+    floor: f64,
+    max_x: &Result<f64, Failure>,
+    method: Method,
+    solved: Option<Result<Solved, Failure>>,
+) -> Step {
     let ret = super::return_words(p.feasible.charges_costs());
     let set = over_set(p);
     let (o, timing) = judged(
         p,
-        p.min_cvar_by(Some(floor), method),
+        solved.unwrap_or_else(|| p.min_cvar_by(Some(floor), method)),
         None,
         Some(floor),
         || match max_x {

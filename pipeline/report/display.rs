@@ -239,7 +239,10 @@ pub fn build(r: &RunResult, shown: &[Portfolio], results: &Value, pack_id: &str)
             .find(|v| v.profile.is_some())
             .map_or(String::new(), |v| v.identity.label.to_string()),
         checks: checks(r),
-        caveats: text::caveats(r, shown),
+        caveats: text::caveats(r, shown)
+            .into_iter()
+            .chain(further::bands::caveats(r))
+            .collect(),
         scenarios: scenarios(r),
         quality: quality(r),
         inputs: inputs(results),

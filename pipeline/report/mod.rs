@@ -8,7 +8,7 @@
 //! mod.rs        render: builds the typesetting job and hands it to typeset
 //!   display.rs  the display model, /data/report.json (tables, facts, checks, inputs)
 //!   further/    "Further analysis": mod.rs (the `further` part of the display model, its charts) over
-//!               frontier.rs, stress.rs, backtest.rs (each part's display data and charts)
+//!               frontier.rs, stress.rs, backtest.rs, bands.rs (each part's display data and charts)
 //!   policy.rs   "Position against policy": policy lines, exposures, breaches, active risk
 //!   trades.rs   "Trades and costs": each model's trades from the current holdings, money traded, costs
 //!   change.rs   "Since the last pack": results.json's `change` (previous pack, CVaR effects, history)
@@ -185,6 +185,7 @@ mod tests {
         ("frontier", 2, include_str!("further/frontier.rs")),
         ("stress", 2, include_str!("further/stress.rs")),
         ("backtest", 2, include_str!("further/backtest.rs")),
+        ("bands", 2, include_str!("further/bands.rs")),
         ("policy", 2, include_str!("policy.rs")),
         ("further", 3, include_str!("further/mod.rs")),
         ("display", 4, include_str!("display.rs")),

@@ -106,6 +106,7 @@ fn run_writes_the_pack_contract() {
     assert_eq!(m.dates[t + 5].to_string(), dates[1]);
 }
 
+/// results.json without what depends on the input files' bytes rather than their figures.
 fn without_inputs(mut v: serde_json::Value) -> serde_json::Value {
     let o = v.as_object_mut().unwrap();
     o.remove("inputs");
@@ -113,6 +114,8 @@ fn without_inputs(mut v: serde_json::Value) -> serde_json::Value {
     o.remove("history");
     // The change section's history names this pack by its id, which depends on the inputs' bytes.
     o.remove("change");
+    // The bands' resamples are seeded from the pack id, which changes with the input files' bytes.
+    o.remove("bands");
     v
 }
 

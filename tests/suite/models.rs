@@ -1096,3 +1096,61 @@ fn active_budget_optima_match_scipy_highs_on_every_solve_path() {
         "the budget binds max_return on only {binding} of 8 seeds"
     );
 }
+
+/// Issue 17: the bands' resamples solve every family with `Premises::Shown` — the feasibility LP skipped
+/// because the run showed X non-empty, and a family whose own rule does not bind at an auxiliary optimum
+/// taking that optimum. The optimum must be the one the run's path (`Premises::Establish`) finds, to 1e-9
+/// relative: a max-return portfolio is optimal under a cap it keeps within, a min-CVaR portfolio under a
+/// floor it meets (an optimum over a larger set that is feasible in the smaller one; any LP text, e.g.
+/// Bertsimas & Tsitsiklis, "Introduction to Linear Optimization", 1997, §1). Loose rules (every family
+/// takes the auxiliary optimum) and binding ones (each solves its own LP), on both methods.
+#[test]
+fn shown_premises_give_the_optimum_the_run_finds() {
+    use tailpack::config::{CapRule, FloorRule};
+    use tailpack::models::{Family, Premises, Status, Targets};
+    for seed in 0..6 {
+        let i = instance(seed);
+        let p = i.problem();
+        let rules = [
+            (CapRule::Value(10.0), FloorRule::Value(-10.0)),
+            (CapRule::Value(i.cap), FloorRule::Value(i.floor)),
+        ];
+        for ((cap, floor), method) in rules
+            .into_iter()
+            .flat_map(|r| [(r, Method::Direct), (r, Method::Cuts)])
+        {
+            let targets = Targets {
+                cap,
+                floor,
+                current: None,
+            };
+            let run = models::solve_all_by(&p, &targets, Premises::Establish, method);
+            let shown = models::solve_all_by(&p, &targets, Premises::Shown, method);
+            for family in Family::ALL {
+                let (a, b) = (run.outcome(family), shown.outcome(family));
+                let what = format!("seed {seed}, {family:?}, {method:?}, cap {cap:?}");
+                assert_eq!(a.status, Status::Optimal, "{what}: {:?}", a.message);
+                assert_eq!(b.status, a.status, "{what}");
+                let (x, y) = (a.objective.unwrap(), b.objective.unwrap());
+                assert!(
+                    (x - y).abs() <= 1e-9 * x.abs().max(1e-6),
+                    "{what}: {x} vs {y}"
+                );
+                // The objective recomputed from the weights (CVaR by sorting, return by μ·x net of costs).
+                let of = |w: &[f64]| match family {
+                    Family::MinCvar => cvar_of(&i.set, w, i.c),
+                    Family::MaxReturn => models::net_return(&p, w),
+                    Family::MaxRatio => models::net_return(&p, w) / cvar_of(&i.set, w, i.c),
+                };
+                let (u, v) = (
+                    of(a.weights.as_ref().unwrap()),
+                    of(b.weights.as_ref().unwrap()),
+                );
+                assert!(
+                    (u - v).abs() <= 1e-9 * u.abs().max(1e-6),
+                    "{what}: {u} vs {v}"
+                );
+            }
+        }
+    }
+}

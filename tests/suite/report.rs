@@ -127,6 +127,7 @@ fn pdf_has_every_section_and_the_figures_of_results_json() {
         );
     }
     further_analysis_matches_results_json(&text, &r);
+    bands_part_matches_results_json(&text, &r);
     policy_page_matches_results_json(&text, &r);
     super::trades::demo_section_matches_results_json(&text, &dir);
 }
@@ -229,6 +230,113 @@ const MODELS: [(&str, &str); 3] = [
     ("max_ratio", "Max ratio"),
 ];
 
+/// A weight as the README rule prints it in tables, written out here independently: an en dash when it
+/// rounds to zero, else two decimals and `%`.
+fn printed_weight(x: f64) -> String {
+    if x.abs() < 0.00005 {
+        "\u{2013}".into()
+    } else {
+        printed(x, false)
+    }
+}
+
+/// The estimation-error bands part of the demo pack against results.json `bands` (issue 17; README, "The
+/// PDF pack"), every figure formatted independently of the library: per family the rows of its five
+/// largest holdings (this run's weight, 5th/50th/95th percentile, held share), the expected-return and
+/// CVaR rows, and the paragraph's counts and names classified here from `held_share` by the rule the pack
+/// states (held in ≥ 90% of the resamples: firm; in 25%–75%: a coin toss).
+fn bands_part_matches_results_json(text: &str, r: &serde_json::Value) {
+    let flat = squeeze(text);
+    let rows = rows(text);
+    assert!(flat.contains("6.4 Estimation-error bands"), "bands title");
+    let b = &r["bands"];
+    assert_eq!(b["resamples"], 200, "the demo runs the default B = 200");
+    for (key, label) in MODELS {
+        let m = &b["models"][key];
+        let point = r["models"][key]["weights"].as_object().unwrap();
+        let held_above = m["held_above"].as_f64().unwrap();
+        let mut largest: Vec<(&String, f64)> = point
+            .iter()
+            .map(|(a, w)| (a, w.as_f64().unwrap()))
+            .collect();
+        largest.sort_by(|x, y| y.1.total_cmp(&x.1));
+        for (asset, w) in largest.iter().take(5) {
+            let band: Vec<String> = m["weights"][asset.as_str()]
+                .as_array()
+                .unwrap()
+                .iter()
+                .map(|v| printed_weight(v.as_f64().unwrap()))
+                .collect();
+            let held = printed(m["held_share"][asset.as_str()].as_f64().unwrap(), false);
+            let want = format!("{asset} {} {} {held}", printed_weight(*w), band.join(" "));
+            has_row(&rows, &want, &format!("{key} band row"));
+        }
+        let figures = |field: &str, signed: bool| -> String {
+            let v = r["models"][key][field].as_f64().unwrap();
+            let band: Vec<String> = m[field]
+                .as_array()
+                .unwrap()
+                .iter()
+                .map(|v| printed(v.as_f64().unwrap(), signed))
+                .collect();
+            format!("{} {}", printed(v, signed), band.join(" "))
+        };
+        has_row(
+            &rows,
+            &format!("Expected return {}", figures("expected_return", true)),
+            key,
+        );
+        has_row(&rows, &format!("CVaR 95% {}", figures("cvar", false)), key);
+        // The paragraph: assets held above the threshold at the point, classified by held share.
+        let share = |a: &str| m["held_share"][a].as_f64().unwrap();
+        let held: Vec<&str> = point
+            .iter()
+            .filter(|(_, w)| w.as_f64().unwrap() > held_above)
+            .map(|(a, _)| a.as_str())
+            .collect();
+        let firm = held.iter().filter(|a| share(a) >= 0.9).count();
+        let toss: Vec<&str> = held
+            .iter()
+            .copied()
+            .filter(|a| (0.25..=0.75).contains(&share(a)))
+            .collect();
+        let start = flat.find(&format!("{label} holds ")).expect("paragraph");
+        let para = flat[start..].replace("- ", "-");
+        let head = format!(
+            "{label} holds {} assets above 0.50%; {firm} of them are firm",
+            held.len()
+        );
+        assert!(
+            para.starts_with(&head),
+            "{key}: `{}` vs `{head}`",
+            &para[..120]
+        );
+        let listed = names_after(&para, "A coin toss");
+        match listed {
+            None => assert!(toss.is_empty(), "{key}: coin tosses {toss:?} not named"),
+            Some((names, more)) => {
+                assert_eq!(names.len() + more, toss.len(), "{key}: coin-toss count");
+                for n in names {
+                    assert!(toss.contains(&n.as_str()), "{key}: {n} is no coin toss");
+                }
+            }
+        }
+    }
+}
+
+/// The names listed after `lead` up to the sentence's full stop (`A, B and 3 more.`), and how many more.
+fn names_after(para: &str, lead: &str) -> Option<(Vec<String>, usize)> {
+    let at = para.find(lead)?;
+    let rest = &para[at..];
+    let list = &rest[rest.find("): ")? + 3..];
+    let list = &list[..list.find('.')?];
+    let (list, more) = match list.rsplit_once(" and ") {
+        Some((l, m)) => (l, m.trim_end_matches(" more").parse().ok()?),
+        None => (list, 0),
+    };
+    Some((list.split(", ").map(str::to_string).collect(), more))
+}
+
 /// A test's p-value as the README rule prints it, written out here independently: three decimals, or
 /// `< 0.001` below that.
 fn printed_p(p: f64) -> String {
@@ -260,7 +368,12 @@ fn has_row(rows: &[String], want: &str, what: &str) {
 fn further_analysis_matches_results_json(text: &str, r: &serde_json::Value) {
     let flat = squeeze(text);
     let rows = rows(text);
-    for title in ["7.1 Efficient frontier", "7.2 Stress tests", "7.3 Backtest"] {
+    for title in [
+        "7.1 Efficient frontier",
+        "7.2 Stress tests",
+        "7.3 Backtest",
+        "7.4 Estimation-error bands",
+    ] {
         assert!(flat.contains(title), "subsection `{title}` missing");
     }
     assert!(
@@ -419,8 +532,10 @@ fn a_200_asset_universe_renders_with_paginated_weights() {
     // Bound: at most 27 pages of fixed sections (the demo pack's 29 less its two pages of weights; the trades
     // section's lists hold at most eleven rows each, so it takes as many pages as the demo's) plus the weights
     // table at no fewer than 40 rows a page (200 rows → at most 5 pages), less the demo's stress tables and
-    // chart (this fund has no stress file: at least one page): at most 31.
-    assert!((16..=31).contains(&pages), "200 assets gave {pages} pages");
+    // chart (this fund has no stress file: at least one page): at most 31; plus the estimation-error bands'
+    // part, whose charts (10 rows) and tables (15 rows) do not grow with the universe: at most 4 pages, as
+    // in the demo pack. At most 35.
+    assert!((16..=35).contains(&pages), "200 assets gave {pages} pages");
     let text = pdf_text(&pdf);
     for a in &m.assets {
         assert!(
@@ -636,7 +751,7 @@ fn a_fund_without_backtest_or_stress_says_so_plainly() {
     let m = Market::new(5, "2021-01-01", "2024-06-28", 42);
     f.small_fund(
         &m,
-        &config("analysis: { backtest_years: 0 }\nstress:\n  historical_windows: 0\n"),
+        &config("analysis: { backtest_years: 0, band_resamples: 0 }\nstress:\n  historical_windows: 0\n"),
     );
     let dir = pack_dir(&f.run(&["run", "fund.yaml", "--quiet"]));
     let r = json(&dir.join("results.json"));
@@ -651,10 +766,21 @@ fn a_fund_without_backtest_or_stress_says_so_plainly() {
     let flat = squeeze(&pdf_text(&dir.join("pack.pdf")));
     // The section keeps its three parts; the two that did not run say why (DEVELOPERS.md, "Adding a report
     // section": a section whose data does not exist says so plainly rather than vanishing).
-    for title in ["7.1 Efficient frontier", "7.2 Stress tests", "7.3 Backtest"] {
+    for title in [
+        "7.1 Efficient frontier",
+        "7.2 Stress tests",
+        "7.3 Backtest",
+        "7.4 Estimation-error bands",
+    ] {
         assert!(flat.contains(title), "subsection `{title}` missing");
     }
     assert!(flat.contains("The walk-forward backtest was not run: it is switched off in the config (analysis.backtest_years: 0)."), "backtest absence");
+    assert!(
+        flat.contains(
+            "The estimation-error bands are switched off for this run (analysis.band_resamples: 0)"
+        ),
+        "bands absence"
+    );
     assert!(flat.contains("No stress test was run: no stress file is configured (stress.file), and no historical window was asked for (stress.historical_windows: 0)."), "stress absence");
     assert!(
         flat.contains("Walk-forward backtest: not run")
