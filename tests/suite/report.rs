@@ -248,7 +248,7 @@ fn printed_weight(x: f64) -> String {
 fn bands_part_matches_results_json(text: &str, r: &serde_json::Value) {
     let flat = squeeze(text);
     let rows = rows(text);
-    assert!(flat.contains("6.4 Estimation-error bands"), "bands title");
+    assert!(flat.contains("7.4 Estimation-error bands"), "bands title");
     let b = &r["bands"];
     assert_eq!(b["resamples"], 200, "the demo runs the default B = 200");
     for (key, label) in MODELS {
