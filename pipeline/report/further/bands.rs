@@ -296,19 +296,7 @@ fn whiskers(
     let (left, right, top) = (110, crate::report::draw::WIDTH as i32 - 24, 18);
     let px = |v: f64| left + ((v * 100.0 / hi) * (right - left) as f64).round() as i32;
     let bottom = top + 26 * idx.len() as i32;
-    let decimals = tick_decimals(hi);
-    let step = nice_step(hi);
-    let mut t = 0.0;
-    while t <= hi + 1e-9 {
-        let at = px(t / 100.0);
-        area.draw(&PathElement::new(vec![(at, top), (at, bottom)], GRID))?;
-        area.draw(&Text::new(
-            tick(t, decimals),
-            (at, bottom + 12),
-            muted(11.5).pos(Pos::new(HPos::Center, VPos::Center)),
-        ))?;
-        t += step;
-    }
+    grid(area, hi, &px, (top, bottom))?;
     let id = identity_of(fam);
     for (row, &a) in idx.iter().enumerate() {
         let y = top + 13 + 26 * row as i32;
@@ -340,6 +328,24 @@ fn whiskers(
         (left, bottom + 32),
         muted(11.5).pos(Pos::new(HPos::Left, VPos::Center)),
     ))?;
+    Ok(())
+}
+
+/// Vertical grid lines with their percentage labels under the rows, from 0 to `hi` percent.
+fn grid(area: &Area, hi: f64, px: &dyn Fn(f64) -> i32, (top, bottom): (i32, i32)) -> Drawn {
+    let decimals = tick_decimals(hi);
+    let step = nice_step(hi);
+    let mut t = 0.0;
+    while t <= hi + 1e-9 {
+        let at = px(t / 100.0);
+        area.draw(&PathElement::new(vec![(at, top), (at, bottom)], GRID))?;
+        area.draw(&Text::new(
+            tick(t, decimals),
+            (at, bottom + 12),
+            muted(11.5).pos(Pos::new(HPos::Center, VPos::Center)),
+        ))?;
+        t += step;
+    }
     Ok(())
 }
 
