@@ -41,6 +41,17 @@ pub struct Position {
     pub active: ActiveRisk,
 }
 
+impl Position {
+    /// The lines this portfolio lies outside of, each with its exposure, in line order.
+    pub fn breached<'a>(&'a self, lines: &'a [Line]) -> impl Iterator<Item = (&'a Line, f64)> + 'a {
+        lines
+            .iter()
+            .zip(&self.exposure)
+            .filter(|(l, _)| self.breaches.contains(&l.name))
+            .map(|(l, e)| (l, *e))
+    }
+}
+
 /// Everything the pack reports about the policy.
 #[derive(Debug, Clone)]
 pub struct PolicyReport {
@@ -149,11 +160,8 @@ pub fn checks(report: Option<&PolicyReport>) -> Vec<Check> {
     let Some(current) = r.positions.iter().find(|p| p.portfolio == "current") else {
         return vec![];
     };
-    let outside: Vec<String> = r
-        .lines
-        .iter()
-        .zip(&current.exposure)
-        .filter(|(l, _)| current.breaches.contains(&l.name))
+    let outside: Vec<String> = current
+        .breached(&r.lines)
         .map(|(l, e)| {
             format!(
                 "`{}` at {:.2}% (target {:.2}%, range {:.2}%–{:.2}%)",

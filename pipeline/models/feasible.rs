@@ -84,41 +84,42 @@ pub fn policy_lines(cfg: &Config, data: &MarketData) -> Result<Vec<Vec<usize>>> 
 /// the data does not have is a config error (a misspelt name would otherwise trade free).
 fn cost_rates(cfg: &Config, data: &MarketData) -> Result<Vec<f64>> {
     let names: Vec<&str> = data.assets.iter().map(String::as_str).collect();
-    if let Some(a) = cfg
-        .costs
-        .asset
-        .keys()
-        .find(|a| !names.contains(&a.as_str()))
-    {
-        let hint = config::nearest(a, &names)
-            .map(|n| format!("; did you mean `{n}`?"))
-            .unwrap_or_default();
-        return Err(Error::config(
-            &cfg.path,
-            format!("costs.asset_bps: unknown asset `{a}`{hint}"),
-        ));
-    }
+    known_names(
+        cfg,
+        cfg.costs.asset.keys(),
+        &names,
+        "costs.asset_bps: unknown asset",
+    )?;
     let classes: Vec<&str> = data.meta.iter().map(|m| m.class.as_str()).collect();
-    if let Some(c) = cfg
-        .costs
-        .class
-        .keys()
-        .find(|c| !classes.contains(&c.as_str()))
-    {
-        let hint = config::nearest(c, &classes)
-            .map(|n| format!("; did you mean `{n}`?"))
-            .unwrap_or_default();
-        return Err(Error::config(
-            &cfg.path,
-            format!("costs.class_bps: no asset has class `{c}`{hint}"),
-        ));
-    }
+    known_names(
+        cfg,
+        cfg.costs.class.keys(),
+        &classes,
+        "costs.class_bps: no asset has class",
+    )?;
     Ok(data
         .assets
         .iter()
         .zip(&data.meta)
         .map(|(a, m)| cfg.costs.rate(a, &m.class))
         .collect())
+}
+
+/// The first of `wanted` that is not among `known`, as a config error `{what} `name``, with the nearest
+/// known name as a hint.
+fn known_names<'a>(
+    cfg: &Config,
+    mut wanted: impl Iterator<Item = &'a String>,
+    known: &[&str],
+    what: &str,
+) -> Result<()> {
+    let Some(a) = wanted.find(|a| !known.contains(&a.as_str())) else {
+        return Ok(());
+    };
+    let hint = config::nearest(a, known)
+        .map(|n| format!("; did you mean `{n}`?"))
+        .unwrap_or_default();
+    Err(Error::config(&cfg.path, format!("{what} `{a}`{hint}")))
 }
 
 fn resolve_group(cfg: &Config, data: &MarketData, g: &config::GroupSpec) -> Result<Group> {

@@ -277,16 +277,13 @@ fn sentences(p: &PolicyReport) -> Vec<String> {
 
 /// `Equity at 61.20% (range 42.00%–58.00%)` for each line the current portfolio breaches.
 fn current_breaches(p: &PolicyReport, x: &Position) -> String {
-    let parts: Vec<String> = p
-        .lines
-        .iter()
-        .zip(&x.exposure)
-        .filter(|(l, _)| x.breaches.contains(&l.name))
+    let parts: Vec<String> = x
+        .breached(&p.lines)
         .map(|(l, e)| {
             format!(
                 "{} at {} (target {}, range {})",
                 l.name,
-                pct(*e, Style::Weight),
+                pct(e, Style::Weight),
                 pct(l.target, Style::Weight),
                 range(l)
             )

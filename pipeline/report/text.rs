@@ -99,12 +99,9 @@ fn policy_point(r: &RunResult) -> String {
     let Some(x) = p.positions.iter().find(|x| x.portfolio == CURRENT) else {
         return "Policy: no current holdings were given, so there is no current position to compare with the policy ranges.".into();
     };
-    let outside: Vec<String> = p
-        .lines
-        .iter()
-        .zip(&x.exposure)
-        .filter(|(l, _)| x.breaches.contains(&l.name))
-        .map(|(l, e)| breach_figures(r, l, *e))
+    let outside: Vec<String> = x
+        .breached(&p.lines)
+        .map(|(l, e)| breach_figures(r, l, e))
         .collect();
     if outside.is_empty() {
         return format!(

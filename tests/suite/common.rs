@@ -332,3 +332,25 @@ pub fn with_cell(text: &str, row: usize, col: usize, value: &str) -> String {
         }
     })
 }
+
+/// A pack's weights.csv as {column: {asset: weight}} (the label and class columns left out).
+pub fn weights_csv(
+    pack: &Path,
+) -> std::collections::BTreeMap<String, std::collections::BTreeMap<String, f64>> {
+    let text = std::fs::read_to_string(pack.join("weights.csv")).unwrap();
+    let mut lines = text.lines();
+    let header: Vec<&str> = lines.next().unwrap().split(',').collect();
+    let mut out: std::collections::BTreeMap<String, std::collections::BTreeMap<String, f64>> =
+        Default::default();
+    for line in lines {
+        let cells: Vec<&str> = line.split(',').collect();
+        for (j, col) in header.iter().enumerate().skip(2) {
+            if let Ok(w) = cells[j].parse::<f64>() {
+                out.entry(col.to_string())
+                    .or_default()
+                    .insert(cells[0].to_string(), w);
+            }
+        }
+    }
+    out
+}

@@ -3,7 +3,7 @@
 //! config's own figures (cost of a trade list = Σ rate_i × |x_i − current_i| × value, the definition of
 //! issue 16; a trade = value × weight change).
 
-use super::common::{Fixture, Market, json};
+use super::common::{Fixture, Market, json, weights_csv};
 use serde_json::Value;
 use std::collections::BTreeMap;
 use std::path::PathBuf;
@@ -58,25 +58,6 @@ fn run(f: &Fixture) -> (Value, PathBuf) {
     (json(&pack.join("results.json")), pack)
 }
 
-/// weights.csv as {column: {asset: weight}}.
-fn weights(pack: &std::path::Path) -> BTreeMap<String, BTreeMap<String, f64>> {
-    let text = std::fs::read_to_string(pack.join("weights.csv")).unwrap();
-    let mut lines = text.lines();
-    let header: Vec<&str> = lines.next().unwrap().split(',').collect();
-    let mut out: BTreeMap<String, BTreeMap<String, f64>> = BTreeMap::new();
-    for line in lines {
-        let cells: Vec<&str> = line.split(',').collect();
-        for (j, col) in header.iter().enumerate().skip(2) {
-            if let Ok(w) = cells[j].parse::<f64>() {
-                out.entry(col.to_string())
-                    .or_default()
-                    .insert(cells[0].to_string(), w);
-            }
-        }
-    }
-    out
-}
-
 #[test]
 fn trades_and_costs_follow_from_the_weights_and_the_config() {
     let f = Fixture::new();
@@ -116,7 +97,7 @@ fn trades_and_costs_follow_from_the_weights_and_the_config() {
             "{a}: rate {got} vs config {rate}"
         );
     }
-    let w = weights(&pack);
+    let w = weights_csv(&pack);
     let current = &w["current"];
     let mut models = 0;
     let mut traded = 0;

@@ -238,6 +238,12 @@ fn costed(seed: u64) -> Instance {
     i.fs.cost_rates = (0..n)
         .map(|_| 0.001 + 0.009 * rng.random::<f64>())
         .collect();
+    with_cap_and_floor(i)
+}
+
+/// The instance with a CVaR cap 1.3 × its least CVaR and a return floor halfway between the net return of
+/// the least-CVaR portfolio and the largest net return, so both bind somewhere inside the feasible set.
+fn with_cap_and_floor(mut i: Instance) -> Instance {
     let p = i.problem();
     let min_cvar = p.min_cvar(None).unwrap();
     let max_net = p.max_return(None).unwrap().objective;
@@ -990,13 +996,7 @@ fn budgeted(seed: u64) -> Instance {
         "seed {seed}: no room for a binding budget"
     );
     i.active.as_mut().unwrap().1 = low + 0.5 * (high - low);
-    let p = i.problem();
-    let min_cvar = p.min_cvar(None).unwrap();
-    let max_net = p.max_return(None).unwrap().objective;
-    let min_net = models::net_return(&p, &min_cvar.weights);
-    i.cap = min_cvar.objective * 1.3;
-    i.floor = min_net + 0.5 * (max_net - min_net);
-    i
+    with_cap_and_floor(i)
 }
 
 /// Issue 16: the models with an active-CVaR budget (and costs, bounds, a group and a turnover limit)

@@ -4,7 +4,7 @@
 //! Σ rate_i × |x_i − current_i| × value (issue 16, "Trades and costs"). Every figure is formatted by the
 //! README rule ("Figures as printed"), written out here independently of the library.
 
-use super::common::{Fixture, Market, json, pdf_text};
+use super::common::{Fixture, Market, json, pdf_text, weights_csv};
 use std::collections::BTreeMap;
 use std::path::Path;
 
@@ -67,25 +67,6 @@ fn percent(x: f64, signed: bool) -> String {
 
 fn squeeze(text: &str) -> String {
     text.split_whitespace().collect::<Vec<_>>().join(" ")
-}
-
-/// weights.csv as {column: {asset: weight}}.
-fn weights(pack: &Path) -> BTreeMap<String, BTreeMap<String, f64>> {
-    let text = std::fs::read_to_string(pack.join("weights.csv")).unwrap();
-    let mut lines = text.lines();
-    let header: Vec<&str> = lines.next().unwrap().split(',').collect();
-    let mut out: BTreeMap<String, BTreeMap<String, f64>> = BTreeMap::new();
-    for line in lines {
-        let cells: Vec<&str> = line.split(',').collect();
-        for (j, col) in header.iter().enumerate().skip(2) {
-            if let Ok(w) = cells[j].parse::<f64>() {
-                out.entry(col.to_string())
-                    .or_default()
-                    .insert(cells[0].to_string(), w);
-            }
-        }
-    }
-    out
 }
 
 /// The squeezed lines of the section numbered `n` ("5 Trades and costs" up to the next section's title).
@@ -237,7 +218,7 @@ fn check_list(
 /// test (`report::pdf_has_every_section_and_the_figures_of_results_json`) so the demo runs once.
 pub(super) fn demo_section_matches_results_json(text: &str, pack: &Path) {
     let r = json(&pack.join("results.json"));
-    let w = weights(pack);
+    let w = weights_csv(pack);
     let v = r["fund_value"].as_f64().expect("the demo fund has a value");
     let ccy = r["base_currency"].as_str().unwrap();
     let lines = section(text, 5);
@@ -409,7 +390,7 @@ fn without_a_fund_value_trades_are_weight_changes_and_costs_basis_points() {
             lines.join("\n")
         );
     }
-    let w = weights(&pack);
+    let w = weights_csv(&pack);
     let assets: Vec<String> = w["current"].keys().cloned().collect();
     // The config's own rates (basis points / 10,000); the assets alternate equity and bond from AS01.
     let rate = |a: &str| {
@@ -474,7 +455,7 @@ fn without_cost_rates_trades_are_shown_free_of_cost() {
         flat.contains("Amount (XTS)"),
         "amounts are in money with a fund value"
     );
-    let w = weights(&pack);
+    let w = weights_csv(&pack);
     let r = json(&pack.join("results.json"));
     assert_eq!(
         r["models"]["min_cvar"]["status"], "infeasible",
