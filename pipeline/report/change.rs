@@ -78,13 +78,13 @@ pub fn show(results: &Value) -> Result<ChangeShow, String> {
     let prev = &ch["previous"];
     if prev.is_null() {
         return Err(
-            "This is the fund's first pack in the archive: there is nothing to compare with."
+            "this is the fund's first pack in the archive, so there is nothing to compare with."
                 .into(),
         );
     }
     if prev["verified"] != true {
         return Err(format!(
-            "The previous pack ({}, as of {}, revision {}) fails verification, so it is not used and nothing is compared with it; the check `change.previous` names its problems.",
+            "the previous pack ({}, as of {}, revision {}) fails verification, so it is not used and nothing is compared with it; the check `change.previous` names its problems.",
             text(&prev["folder"]),
             text(&prev["as_of"]),
             prev["revision"]

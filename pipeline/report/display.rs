@@ -224,11 +224,15 @@ pub fn build(r: &RunResult, shown: &[Portfolio], results: &Value, pack_id: &str)
         Ok(t) => (Some(t), None),
         Err(why) => (None, Some(why)),
     };
+    let (change, change_absent) = match super::change::show(results) {
+        Ok(c) => (Some(c), None),
+        Err(why) => (None, Some(why)),
+    };
     Report {
         meta: meta(r, results, pack_id),
         portfolios: shown.iter().map(|v| portfolio_row(r, v)).collect(),
         levels: r.config.levels.iter().map(|&c| format::level(c)).collect(),
-        summary: text::summary(r, shown),
+        summary: text::summary(r, shown, change_absent.as_deref()),
         classes: classes(r, shown),
         assets: assets(r, shown),
         groups: groups(r, shown),
@@ -253,8 +257,8 @@ pub fn build(r: &RunResult, shown: &[Portfolio], results: &Value, pack_id: &str)
         trades,
         trades_absent,
         money: money::show(r),
-        change: super::change::show(results).ok(),
-        change_absent: super::change::show(results).err(),
+        change,
+        change_absent,
     }
 }
 

@@ -42,8 +42,9 @@ pub fn floor_rule(rule: FloorRule) -> String {
     }
 }
 
-/// The summary's key points, in print order.
-pub fn summary(r: &RunResult, shown: &[Portfolio]) -> Vec<String> {
+/// The summary's key points, in print order. `no_change` is why the pack has no "Since the last pack"
+/// section (a first pack, or a previous pack that fails verification), if it has none.
+pub fn summary(r: &RunResult, shown: &[Portfolio], no_change: Option<&str>) -> Vec<String> {
     let c = format::level(r.config.confidence);
     let mut out = vec![format!(
         "{} scenarios of {} price observations each, from {} to {}. VaR and CVaR at {c} are the fraction of portfolio value lost over one horizon.",
@@ -61,6 +62,7 @@ pub fn summary(r: &RunResult, shown: &[Portfolio]) -> Vec<String> {
         out.push(current_point(r, p));
     }
     out.push(policy_point(r));
+    out.extend(no_change.map(|why| format!("Since the last pack: {why}")));
     out.extend(
         shown
             .iter()
@@ -174,7 +176,7 @@ fn trade_and_active(r: &RunResult, v: &Portfolio) -> String {
 fn stress_point(r: &RunResult, shown: &[Portfolio]) -> String {
     let a = &r.analysis;
     if a.shocks.is_empty() || a.stress.is_empty() {
-        return "Stress tests: none was run (section 7.2 says why).".into();
+        return "Stress tests: none was run (section §stress says why).".into();
     }
     let defined = a.shocks.iter().filter(|s| s.kind == "defined").count();
     let mut out = format!(
@@ -209,7 +211,7 @@ fn stress_point(r: &RunResult, shown: &[Portfolio]) -> String {
 /// The backtest in one sentence: exceptions per model against the expected number, and the rejections.
 fn backtest_point(r: &RunResult) -> String {
     let Some(b) = &r.analysis.backtest else {
-        return "Walk-forward backtest: not run (section 7.3 says why).".into();
+        return "Walk-forward backtest: not run (section §backtest says why).".into();
     };
     let Some(first) = b.tracks.first() else {
         return "Walk-forward backtest: no model to test.".into();
@@ -516,7 +518,7 @@ fn backtest_caveats(r: &RunResult) -> Vec<Caveat> {
     }
     if !b.skipped.is_empty() {
         out.push(caveat("Months skipped in the backtest", &format!(
-            "{} of {} month-ends could not be solved and count as months without a return; they are listed in section 7.3.", b.skipped.len(), b.rebalances.len())));
+            "{} of {} month-ends could not be solved and count as months without a return; they are listed in section §backtest.", b.skipped.len(), b.rebalances.len())));
     }
     out
 }

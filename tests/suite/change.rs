@@ -2,7 +2,7 @@
 //! months against an independent CVaR, and two runs into one archive at consecutive month-ends (the second
 //! names the first, a tampered first is reported and not used, the second re-runs to identical bytes).
 
-use super::common::{Fixture, Market, config, json, pdf_text};
+use super::common::{Fixture, Market, config, json, pdf_text, solid};
 use rand::{RngExt, SeedableRng};
 use std::path::PathBuf;
 use tailpack::analysis::change::{Month, decompose};
@@ -202,10 +202,15 @@ fn the_second_month_names_the_first_pack_and_reruns_to_identical_bytes() {
             .unwrap()
             .contains("first pack"),
     );
+    // A first pack has no "Since the last pack" section; its summary says why, and the sentences that
+    // name a section carry the numbers printed in that pack (the section's absence moves them up by one).
+    let first_pdf = solid(&pdf_text(&first.join("pack.pdf")));
     assert!(
-        pdf_text(&first.join("pack.pdf")).contains("nothing to compare with"),
-        "the first pack's page says so"
+        first_pdf.contains("Sincethelastpack:thisisthefund'sfirstpackinthearchive"),
+        "the first pack's summary says there is nothing to compare with"
     );
+    assert!(!first_pdf.contains("3Sincethelastpack"), "no such section");
+    assert!(first_pdf.contains("6.2Stresstests") && first_pdf.contains("(section6.2)"));
     let second = second_month(&f);
     let two = json(&second.join("results.json"));
     let ch = &two["change"];
@@ -249,6 +254,12 @@ fn the_second_month_names_the_first_pack_and_reruns_to_identical_bytes() {
     assert_eq!(hist[1]["pack_id"], two["pack_id"]);
     // The PDF's page prints the previous as-of and both CVaR figures as results.json holds them.
     let pdf = pdf_text(&second.join("pack.pdf"));
+    let flat = solid(&pdf);
+    assert!(flat.contains("3Sincethelastpack") && flat.contains("7.2Stresstests"));
+    assert!(
+        flat.contains("(section7.2)"),
+        "the summary names the stress section by its number"
+    );
     let page = &pdf[pdf.rfind("Since the last pack").expect("the page")..];
     for want in [
         "2024-05-31".to_string(),

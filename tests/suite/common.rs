@@ -354,3 +354,13 @@ pub fn weights_csv(
     }
     out
 }
+
+/// Text with every run of whitespace made one space (PDF text breaks lines where the page does).
+pub fn squeeze(text: &str) -> String {
+    text.split_whitespace().collect::<Vec<_>>().join(" ")
+}
+
+/// Text with all whitespace removed, for phrases whose spacing the PDF's text extraction may change.
+pub fn solid(text: &str) -> String {
+    text.split_whitespace().collect()
+}

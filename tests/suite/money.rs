@@ -4,18 +4,13 @@
 //! annualised expected return is the horizon figure × the horizons in a year of results.json. A fund without
 //! a value or a policy gets the pack in fractions with notes saying what is missing.
 
-use super::common::{Fixture, Market, config, json, pdf_text, repo};
+use super::common::{Fixture, Market, config, json, pdf_text, repo, squeeze};
 use serde_json::Value;
 use std::path::PathBuf;
 
 fn pack_dir(ran: &super::common::Ran) -> PathBuf {
     assert_eq!(ran.code, 0, "stderr: {}", ran.stderr);
     PathBuf::from(ran.stdout.lines().last().expect("stdout has lines"))
-}
-
-/// Whitespace runs collapsed, so words that the layout spread apart still match.
-fn squeeze(text: &str) -> String {
-    text.split_whitespace().collect::<Vec<_>>().join(" ")
 }
 
 /// The README's rule for percentages, written out here independently of the library.

@@ -8,7 +8,7 @@
 //! 2000, "Optimization of conditional value-at-risk", J. Risk 2(3), Theorem 1), which this file evaluates
 //! at every scenario loss rather than by sorting.
 
-use super::common::{Fixture, Market, config, json, pdf_text};
+use super::common::{Fixture, Market, config, json, pdf_text, squeeze};
 use std::path::PathBuf;
 use tailpack::scenarios::{Column, ScenarioSet, mix_returns};
 
@@ -362,11 +362,6 @@ fn without_a_policy_there_is_no_policy_block_and_a_note_says_so() {
         !text.contains("Active risk against the policy benchmark"),
         "no active-risk table without a policy"
     );
-}
-
-/// Whitespace runs collapsed, so words the PDF layout spread apart still match.
-fn squeeze(text: &str) -> String {
-    text.split_whitespace().collect::<Vec<_>>().join(" ")
 }
 
 #[test]

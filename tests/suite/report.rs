@@ -1,7 +1,7 @@
 //! The committee PDF, read back by poppler (pdftotext, pdfinfo), tools outside the project: its sections,
 //! its figures as printed, determinism, a large universe, and custom templates.
 
-use super::common::{Fixture, Market, config, json, pdf_pages, pdf_text, repo};
+use super::common::{Fixture, Market, config, json, pdf_pages, pdf_text, repo, squeeze};
 use std::path::PathBuf;
 
 fn pack_dir(ran: &super::common::Ran) -> PathBuf {
@@ -33,11 +33,6 @@ fn printed(x: f64, signed: bool) -> String {
     format!("{sign}{digits}%")
 }
 
-/// Whitespace runs collapsed, so words that the layout spread apart still match.
-fn squeeze(text: &str) -> String {
-    text.split_whitespace().collect::<Vec<_>>().join(" ")
-}
-
 #[test]
 fn pdf_has_every_section_and_the_figures_of_results_json() {
     let f = Fixture::new();
@@ -45,11 +40,11 @@ fn pdf_has_every_section_and_the_figures_of_results_json() {
     let pdf = dir.join("pack.pdf");
     let text = pdf_text(&pdf);
     let flat = squeeze(&text);
-    // Section titles: the list of sections the pack promises (README, "The PDF pack").
+    // Section titles: the list of sections the pack promises (README, "The PDF pack"); a first pack has
+    // no "Since the last pack" section.
     for title in [
         "Contents",
         "Summary",
-        "Since the last pack",
         "Allocations",
         "Trades and costs",
         "Tail loss",
@@ -248,7 +243,8 @@ fn printed_weight(x: f64) -> String {
 fn bands_part_matches_results_json(text: &str, r: &serde_json::Value) {
     let flat = squeeze(text);
     let rows = rows(text);
-    assert!(flat.contains("7.4 Estimation-error bands"), "bands title");
+    // The demo pack is a first pack: no "Since the last pack", so "Further analysis" is section 6.
+    assert!(flat.contains("6.4 Estimation-error bands"), "bands title");
     let b = &r["bands"];
     assert_eq!(b["resamples"], 200, "the demo runs the default B = 200");
     for (key, label) in MODELS {
@@ -368,11 +364,12 @@ fn has_row(rows: &[String], want: &str, what: &str) {
 fn further_analysis_matches_results_json(text: &str, r: &serde_json::Value) {
     let flat = squeeze(text);
     let rows = rows(text);
+    // A first pack has no "Since the last pack" section, so "Further analysis" is section 6 here.
     for title in [
-        "7.1 Efficient frontier",
-        "7.2 Stress tests",
-        "7.3 Backtest",
-        "7.4 Estimation-error bands",
+        "6.1 Efficient frontier",
+        "6.2 Stress tests",
+        "6.3 Backtest",
+        "6.4 Estimation-error bands",
     ] {
         assert!(flat.contains(title), "subsection `{title}` missing");
     }
@@ -766,11 +763,12 @@ fn a_fund_without_backtest_or_stress_says_so_plainly() {
     let flat = squeeze(&pdf_text(&dir.join("pack.pdf")));
     // The section keeps its three parts; the two that did not run say why (DEVELOPERS.md, "Adding a report
     // section": a section whose data does not exist says so plainly rather than vanishing).
+    // A first pack has no "Since the last pack" section, so "Further analysis" is section 6 here.
     for title in [
-        "7.1 Efficient frontier",
-        "7.2 Stress tests",
-        "7.3 Backtest",
-        "7.4 Estimation-error bands",
+        "6.1 Efficient frontier",
+        "6.2 Stress tests",
+        "6.3 Backtest",
+        "6.4 Estimation-error bands",
     ] {
         assert!(flat.contains(title), "subsection `{title}` missing");
     }
@@ -783,7 +781,8 @@ fn a_fund_without_backtest_or_stress_says_so_plainly() {
     );
     assert!(flat.contains("No stress test was run: no stress file is configured (stress.file), and no historical window was asked for (stress.historical_windows: 0)."), "stress absence");
     assert!(
-        flat.contains("Walk-forward backtest: not run")
+        flat.contains("Walk-forward backtest: not run (section 6.3 says why).")
+            && flat.contains("Stress tests: none was run (section 6.2 says why).")
             && flat.contains("No out-of-sample evidence"),
         "summary and caveats say the backtest is missing"
     );

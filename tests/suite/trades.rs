@@ -4,7 +4,7 @@
 //! Σ rate_i × |x_i − current_i| × value (issue 16, "Trades and costs"). Every figure is formatted by the
 //! README rule ("Figures as printed"), written out here independently of the library.
 
-use super::common::{Fixture, Market, json, pdf_text, weights_csv};
+use super::common::{Fixture, Market, json, pdf_text, squeeze, weights_csv};
 use std::collections::BTreeMap;
 use std::path::Path;
 
@@ -65,11 +65,7 @@ fn percent(x: f64, signed: bool) -> String {
     format!("{sign}{digits}%")
 }
 
-fn squeeze(text: &str) -> String {
-    text.split_whitespace().collect::<Vec<_>>().join(" ")
-}
-
-/// The squeezed lines of the section numbered `n` ("5 Trades and costs" up to the next section's title).
+/// The squeezed lines of the section numbered `n` ("4 Trades and costs" in a first pack, up to the next section's title).
 fn section(text: &str, n: usize) -> Vec<String> {
     let lines: Vec<String> = text
         .lines()
@@ -221,7 +217,7 @@ pub(super) fn demo_section_matches_results_json(text: &str, pack: &Path) {
     let w = weights_csv(pack);
     let v = r["fund_value"].as_f64().expect("the demo fund has a value");
     let ccy = r["base_currency"].as_str().unwrap();
-    let lines = section(text, 5);
+    let lines = section(text, 4);
     let assets: Vec<String> = w["current"].keys().cloned().collect();
     let rate = |a: &str| r["costs"]["rates"][a].as_f64().unwrap();
     let mut row = BTreeMap::<&str, Vec<String>>::new();
@@ -370,7 +366,7 @@ fn without_a_fund_value_trades_are_weight_changes_and_costs_basis_points() {
     let pack = run(&f);
     let r = json(&pack.join("results.json"));
     assert!(r["fund_value"].is_null() && r["trades"].is_null());
-    let lines = section(&pdf_text(&pack.join("pack.pdf")), 5);
+    let lines = section(&pdf_text(&pack.join("pack.pdf")), 4);
     let flat = lines.join(" ");
     assert!(
         flat.contains("amounts in money need `fund.value` and `fund.base_currency` in the config"),
@@ -439,7 +435,7 @@ fn without_cost_rates_trades_are_shown_free_of_cost() {
     let f = Fixture::new();
     fund(&f, "  value: 40000000\n  base_currency: XTS\n", false, 0.5);
     let pack = run(&f);
-    let lines = section(&pdf_text(&pack.join("pack.pdf")), 5);
+    let lines = section(&pdf_text(&pack.join("pack.pdf")), 4);
     let flat = lines.join(" ");
     assert!(
         flat.contains("so the trades are shown free of cost"),
