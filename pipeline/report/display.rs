@@ -38,6 +38,9 @@ pub struct Report {
     pub caveats: Vec<Caveat>,
     pub scenarios: Vec<Pair>,
     pub quality: Quality,
+    /// Appendix B's valuation and unsmoothing table; `null` when every asset is valued daily and none is
+    /// unsmoothed.
+    pub unsmoothing: Option<super::valuation::Unsmoothing>,
     pub inputs: Vec<Input>,
     pub run: Vec<Pair>,
     /// The "Further analysis" section: efficient frontier, stress set, backtest.
@@ -242,9 +245,11 @@ pub fn build(r: &RunResult, shown: &[Portfolio], results: &Value, pack_id: &str)
         caveats: text::caveats(r, shown)
             .into_iter()
             .chain(further::bands::caveats(r))
+            .chain(super::valuation::caveats(r))
             .collect(),
         scenarios: scenarios(r),
         quality: quality(r),
+        unsmoothing: super::valuation::show(r),
         inputs: inputs(results),
         run: run_facts(r, pack_id, results["signoff"]["status"] == "FINAL"),
         further: further::build(r, shown),

@@ -45,10 +45,13 @@ pub fn floor_rule(rule: FloorRule) -> String {
 /// The summary's key points, in print order.
 pub fn summary(r: &RunResult, shown: &[Portfolio]) -> Vec<String> {
     let c = format::level(r.config.confidence);
+    let span = match r.data.frequency {
+        crate::config::Frequency::Daily => format!("{} price observations", r.scenarios.horizon),
+        f => format!("{} of {}-end prices", f.span(r.scenarios.horizon), f.period()),
+    };
     let mut out = vec![format!(
-        "{} scenarios of {} price observations each, from {} to {}. VaR and CVaR at {c} are the fraction of portfolio value lost over one horizon.",
+        "{} scenarios of {span} each, from {} to {}. VaR and CVaR at {c} are the fraction of portfolio value lost over one horizon.",
         format::count(r.scenarios.len()),
-        r.scenarios.horizon,
         first_start(r),
         last_end(r)
     )];
