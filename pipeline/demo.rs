@@ -643,7 +643,9 @@ fn benchmark_series(clean: &[Vec<f64>]) -> Vec<Vec<f64>> {
     for day in 1..clean.len() {
         for (b, (_, class)) in BENCHMARKS.iter().enumerate() {
             let members: Vec<usize> = (0..ASSETS.len())
-                .filter(|&i| ASSETS[i].kind.class() == *class && appraisal(ASSETS[i].code).is_none())
+                .filter(|&i| {
+                    ASSETS[i].kind.class() == *class && appraisal(ASSETS[i].code).is_none()
+                })
                 .collect();
             let mean = members
                 .iter()
@@ -760,7 +762,11 @@ fn date_index(dates: &[NaiveDate], date: NaiveDate) -> usize {
 fn apply_feed_defects(dates: &[NaiveDate], clean: Vec<Vec<f64>>) -> Vec<Vec<Option<f64>>> {
     let mut prices: Vec<Vec<Option<f64>>> = clean
         .into_iter()
-        .map(|row| row.into_iter().map(|p| p.is_finite().then_some(p)).collect())
+        .map(|row| {
+            row.into_iter()
+                .map(|p| p.is_finite().then_some(p))
+                .collect()
+        })
         .collect();
     let stale = asset_index(STALE_ASSET);
     let first = date_index(dates, STALE_FIRST);
@@ -1024,7 +1030,13 @@ mod tests {
         for a in &APPRAISED {
             let column = p.column(a.code);
             for (day, cell) in column.iter().enumerate() {
-                assert_eq!(cell.is_some(), ends.contains(&day), "{} on {}", a.code, p.dates[day]);
+                assert_eq!(
+                    cell.is_some(),
+                    ends.contains(&day),
+                    "{} on {}",
+                    a.code,
+                    p.dates[day]
+                );
             }
             // The reported monthly returns are a first-order smoothing with coefficient ρ, so their
             // first-order autocorrelation is about ρ (Geltner 1993); the sample of 154 months is within
@@ -1034,7 +1046,12 @@ mod tests {
             let mean = r.iter().sum::<f64>() / r.len() as f64;
             let den: f64 = r.iter().map(|x| (x - mean).powi(2)).sum();
             let num: f64 = r.windows(2).map(|w| (w[1] - mean) * (w[0] - mean)).sum();
-            assert!((num / den - a.rho).abs() < 0.25, "{}: r1 {}", a.code, num / den);
+            assert!(
+                (num / den - a.rho).abs() < 0.25,
+                "{}: r1 {}",
+                a.code,
+                num / den
+            );
         }
     }
 

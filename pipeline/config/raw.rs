@@ -218,7 +218,9 @@ pub const MAX_GELTNER_RHO: f64 = 0.9;
 
 /// How often a series is observed: the scenario frequency (`scenarios.frequency`) and an asset's
 /// valuation frequency (the asset metadata's `valuation` column), from most to least frequent.
-#[derive(Debug, Deserialize, Clone, Copy, PartialEq, Eq, PartialOrd, Ord, Default, serde::Serialize)]
+#[derive(
+    Debug, Deserialize, Clone, Copy, PartialEq, Eq, PartialOrd, Ord, Default, serde::Serialize,
+)]
 #[serde(rename_all = "lowercase")]
 pub enum Frequency {
     #[default]

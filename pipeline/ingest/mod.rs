@@ -84,9 +84,11 @@ pub fn load(cfg: &Config) -> Result<MarketData> {
         });
     }
     // The file's own integrity rules above see every row; the scenario frequency's sampling comes next.
+    let first = hist.dates[0];
     valuation::sample(cfg.scenarios.frequency, &mut hist);
     findings.extend(valuation::calendar_flag(cfg, &hist, &meta));
     let mut data = build(cfg, hist, meta, as_of, findings)?;
+    data.history.0 = first;
     let unsmoothing = valuation::unsmooth(cfg, &mut data);
     data.quality.findings.extend(unsmoothing);
     let problems = data.quality.failures();

@@ -237,7 +237,10 @@ fn treated_note(cfg: &Config, facts: &[AssetValuation]) -> Option<Check> {
         .iter()
         .filter_map(|f| {
             let u = f.unsmoothed.as_ref()?;
-            Some(format!("`{}` with {} ρ = {:.2}", f.asset, u.rho_source, u.rho))
+            Some(format!(
+                "`{}` with {} ρ = {:.2}",
+                f.asset, u.rho_source, u.rho
+            ))
         })
         .collect();
     (!treated.is_empty()).then(|| {
@@ -463,7 +466,14 @@ mod tests {
             dates: vec![d(1, 30), d(1, 31), d(2, 1), d(2, 28), d(2, 29), d(3, 4)],
             assets: vec!["A".into(), "B".into()],
             values: vec![
-                vec![Some(1.0), Some(2.0), Some(3.0), Some(4.0), Some(5.0), Some(6.0)],
+                vec![
+                    Some(1.0),
+                    Some(2.0),
+                    Some(3.0),
+                    Some(4.0),
+                    Some(5.0),
+                    Some(6.0),
+                ],
                 // B: no price on February's last row; its last February price is on the 28th.
                 vec![Some(10.0), None, Some(30.0), Some(40.0), None, None],
             ],

@@ -41,6 +41,8 @@ pub struct Report {
     /// Appendix B's valuation and unsmoothing table; `null` when every asset is valued daily and none is
     /// unsmoothed.
     pub unsmoothing: Option<super::valuation::Unsmoothing>,
+    /// The method appendix's paragraph on month-end sampling and unsmoothing, when either applies.
+    pub valuation_method: Option<String>,
     pub inputs: Vec<Input>,
     pub run: Vec<Pair>,
     /// The "Further analysis" section: efficient frontier, stress set, backtest.
@@ -250,6 +252,7 @@ pub fn build(r: &RunResult, shown: &[Portfolio], results: &Value, pack_id: &str)
         scenarios: scenarios(r),
         quality: quality(r),
         unsmoothing: super::valuation::show(r),
+        valuation_method: super::valuation::method(r),
         inputs: inputs(results),
         run: run_facts(r, pack_id, results["signoff"]["status"] == "FINAL"),
         further: further::build(r, shown),

@@ -47,7 +47,11 @@ pub fn summary(r: &RunResult, shown: &[Portfolio]) -> Vec<String> {
     let c = format::level(r.config.confidence);
     let span = match r.data.frequency {
         crate::config::Frequency::Daily => format!("{} price observations", r.scenarios.horizon),
-        f => format!("{} of {}-end prices", f.span(r.scenarios.horizon), f.period()),
+        f => format!(
+            "{} of {}-end prices",
+            f.span(r.scenarios.horizon),
+            f.period()
+        ),
     };
     let mut out = vec![format!(
         "{} scenarios of {span} each, from {} to {}. VaR and CVaR at {c} are the fraction of portfolio value lost over one horizon.",

@@ -86,6 +86,31 @@ fn row(v: &AssetValuation) -> Row {
     }
 }
 
+/// The method appendix's paragraph on month-end sampling and unsmoothing; `None` at a daily frequency
+/// with no asset unsmoothed.
+pub fn method(r: &RunResult) -> Option<String> {
+    let freq = r.data.frequency;
+    let any = r.data.valuation.iter().any(|v| v.unsmoothed.is_some());
+    if freq == Frequency::Daily && !any {
+        return None;
+    }
+    let sampling = match freq {
+        Frequency::Daily => String::new(),
+        f => format!(
+            "Here an observation is the last price of each calendar {} up to the as-of date (scenarios.frequency: {}): each series takes its last observation within the {}, never a later one. ",
+            f.period(),
+            f.word(),
+            f.period()
+        ),
+    };
+    let unsmoothing = if any {
+        "Assets marked for unsmoothing have their observed returns R* replaced, before scenarios are cut, by Geltner's R_t = (R*_t − ρ·R*_(t−1)) / (1 − ρ) (Geltner 1993, Journal of Real Estate Research 8(3)), the first return kept as observed, and their price index rebuilt from R_t; ρ is given in the config or estimated as the first-order autocorrelation of the observed returns over the scenario window (Box, Jenkins & Reinsel, Time Series Analysis, eq. 2.1.12), with standard error √((1 − ρ²)/n) (Bartlett 1946). Appendix B lists each such asset."
+    } else {
+        ""
+    };
+    Some(format!("{sampling}{unsmoothing}").trim_end().to_string())
+}
+
 /// The caveats: few scenarios at a monthly or quarterly frequency, and what unsmoothing rests on.
 pub fn caveats(r: &RunResult) -> Vec<Caveat> {
     let mut out = Vec::new();

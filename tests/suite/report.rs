@@ -463,7 +463,9 @@ fn further_analysis_matches_results_json(text: &str, r: &serde_json::Value) {
     // traffic light off: the PDF says so; the daily rows below are checked only when a daily demo has them.
     if r["scenarios"]["frequency"] == "monthly" {
         assert!(
-            flat.contains("traffic-light test is switched off in the config (analysis.daily_var_check: false)"),
+            flat.contains(
+                "traffic-light test is switched off in the config (analysis.daily_var_check: false)"
+            ),
             "the absent daily traffic light is not explained"
         );
         rejections_follow_kupiec(&flat, r);

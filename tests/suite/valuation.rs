@@ -101,7 +101,10 @@ fn the_standard_error_covers_the_estimate_about_two_times_in_three() {
         })
         .count();
     let share = within as f64 / 400.0;
-    assert!((0.60..=0.76).contains(&share), "share within one s.e.: {share}");
+    assert!(
+        (0.60..=0.76).contains(&share),
+        "share within one s.e.: {share}"
+    );
 }
 
 /// A small fund: three daily assets and `PF01`, valued at each month's last business day only (blank on
@@ -138,11 +141,17 @@ fn fund_with_appraised(
     f.write("data/prices.csv", &prices);
     let mut assets = format!("asset,class,max_weight{columns}\n");
     for (a, c) in m.assets.iter().zip(&m.classes) {
-        assets.push_str(&format!("{a},{c},0.6{}\n", if columns.is_empty() { "" } else { ",daily," }));
+        assets.push_str(&format!(
+            "{a},{c},0.6{}\n",
+            if columns.is_empty() { "" } else { ",daily," }
+        ));
     }
     assets.push_str(&format!("PF01,property,0.6{cells}\n"));
     f.write("data/assets.csv", &assets);
-    f.write("data/holdings.csv", "asset,weight\nAS01,0.25\nAS02,0.25\nAS03,0.25\nPF01,0.25\n");
+    f.write(
+        "data/holdings.csv",
+        "asset,weight\nAS01,0.25\nAS02,0.25\nAS03,0.25\nPF01,0.25\n",
+    );
     // The fund with a given ρ also runs a one-year backtest asking for the daily traffic light.
     let backtest = if config.contains("geltner_rho") {
         "  backtest_years: 1\n  daily_var_check: true\n"
@@ -178,7 +187,13 @@ fn pack(f: &Fixture, ran: &super::common::Ran) -> std::path::PathBuf {
 #[test]
 fn a_monthly_fund_unsmooths_its_appraised_asset_by_the_published_formula() {
     let f = Fixture::new();
-    let (m, values) = fund_with_appraised(&f, ",valuation,smoothing", ",monthly,geltner", MONTHLY, false);
+    let (m, values) = fund_with_appraised(
+        &f,
+        ",valuation,smoothing",
+        ",monthly,geltner",
+        MONTHLY,
+        false,
+    );
     let dir = pack(&f, &f.run(&["run", "fund.yaml", "--quiet"]));
     let r = json(&dir.join("results.json"));
     assert_eq!(r["scenarios"]["frequency"], "monthly");
@@ -230,7 +245,10 @@ fn a_monthly_fund_unsmooths_its_appraised_asset_by_the_published_formula() {
     // The data appendix shows the row; the caveats say how few monthly scenarios there are.
     let text = super::report::squeeze(&pdf_text(&dir.join("pack.pdf")));
     assert!(text.contains("Valuation and unsmoothing"), "table title");
-    assert!(text.contains(&format!("PF01 monthly {rho:.2} estimated")), "PF01 row");
+    assert!(
+        text.contains(&format!("PF01 monthly {rho:.2} estimated")),
+        "PF01 row"
+    );
     assert!(text.contains(&format!("Few monthly scenarios Scenarios are built on month-end observations (scenarios.frequency: monthly): the 8-year look-back gives {s} scenarios")));
 }
 
@@ -238,11 +256,20 @@ fn a_monthly_fund_unsmooths_its_appraised_asset_by_the_published_formula() {
 fn a_given_rho_is_used_as_given() {
     let f = Fixture::new();
     let config = format!("{MONTHLY}  geltner_rho: {{ PF01: 0.25 }}\n");
-    fund_with_appraised(&f, ",valuation,smoothing", ",monthly,geltner", &config, false);
+    fund_with_appraised(
+        &f,
+        ",valuation,smoothing",
+        ",monthly,geltner",
+        &config,
+        false,
+    );
     let dir = pack(&f, &f.run(&["run", "fund.yaml", "--quiet"]));
     let r = json(&dir.join("results.json"));
     let v = &r["valuation"].as_array().unwrap()[3];
-    assert_eq!((v["asset"].as_str(), v["unsmoothed"]["rho_source"].as_str()), (Some("PF01"), Some("given")));
+    assert_eq!(
+        (v["asset"].as_str(), v["unsmoothed"]["rho_source"].as_str()),
+        (Some("PF01"), Some("given"))
+    );
     assert_eq!(v["unsmoothed"]["rho"], 0.25);
     // This fund asks for the daily traffic light (analysis.daily_var_check: true): on month-end scenarios
     // it is not run, and the PDF says why.
@@ -269,13 +296,26 @@ fn an_unmarked_smoothed_series_is_flagged_with_its_evidence() {
         .expect("an autocorrelation flag");
     assert_eq!(check["level"], "warn");
     let msg = check["message"].as_str().unwrap();
-    assert!(msg.contains("`PF01` (r₁ = 0.") && !msg.contains("AS01"), "{msg}");
+    assert!(
+        msg.contains("`PF01` (r₁ = 0.") && !msg.contains("AS01"),
+        "{msg}"
+    );
     // Daily, its value repeated between month-ends: the changes follow the month-end calendar.
     let f = Fixture::new();
-    fund_with_appraised(&f, "", "", "scenarios:\n  horizon: 5\n  lookback_years: 2\n", true);
+    fund_with_appraised(
+        &f,
+        "",
+        "",
+        "scenarios:\n  horizon: 5\n  lookback_years: 2\n",
+        true,
+    );
     let ran = f.run(&["run", "fund.yaml"]);
     let dir = pack(&f, &ran);
-    assert!(ran.stdout.contains("warn: appraisal-like series"), "{}", ran.stdout);
+    assert!(
+        ran.stdout.contains("warn: appraisal-like series"),
+        "{}",
+        ran.stdout
+    );
     let r = json(&dir.join("results.json"));
     let check = r["checks"]
         .as_array()
@@ -285,7 +325,10 @@ fn an_unmarked_smoothed_series_is_flagged_with_its_evidence() {
         .expect("a calendar flag");
     let msg = check["message"].as_str().unwrap();
     // 120 month-ends from 2015-01 to 2024-12: 119 changes after the first value, all on a month's last day.
-    assert!(msg.contains("`PF01` (119 of its 119 price changes on the last observation of a month)"), "{msg}");
+    assert!(
+        msg.contains("`PF01` (119 of its 119 price changes on the last observation of a month)"),
+        "{msg}"
+    );
     assert!(!msg.contains("AS0"), "{msg}");
 }
 
@@ -310,7 +353,10 @@ pub fn demo_table_matches_results_json(text: &str, r: &serde_json::Value) {
             pct(&u["observed_volatility"]),
             pct(&u["unsmoothed_volatility"]),
         );
-        assert!(flat.contains(&row), "row `{row}` missing from the data appendix");
+        assert!(
+            flat.contains(&row),
+            "row `{row}` missing from the data appendix"
+        );
     }
     assert!(flat.contains("Few monthly scenarios"), "monthly caveat");
     assert!(flat.contains("Unsmoothed valuations"), "unsmoothing caveat");
