@@ -491,6 +491,18 @@ mod tests {
     }
 
     #[test]
+    fn quarterly_sampling_keeps_each_quarters_last_row() {
+        let d = |m, day| NaiveDate::from_ymd_opt(2024, m, day).unwrap();
+        let dates = vec![d(1, 31), d(2, 29), d(3, 28), d(4, 30), d(6, 28), d(7, 1)];
+        // Calendar quarters: January–March, April–June, July–September.
+        assert_eq!(period_ends(Frequency::Quarterly, &dates), vec![2, 4, 5]);
+        assert_eq!(
+            period_ends(Frequency::Monthly, &dates),
+            vec![0, 1, 2, 3, 4, 5]
+        );
+    }
+
+    #[test]
     fn unsmoothing_stops_at_a_return_of_minus_100_percent() {
         // Observed −30% after +20% at ρ = 0.6: (−0.3 − 0.12)/0.4 = −1.05, no price can follow.
         assert_eq!(unsmooth_series(&[100.0, 120.0, 84.0], 0.6), Err(2));

@@ -271,6 +271,20 @@ fn a_given_rho_is_used_as_given() {
         (Some("PF01"), Some("given"))
     );
     assert_eq!(v["unsmoothed"]["rho"], 0.25);
+    // The walk-forward backtest runs unchanged on month-end observations: one rebalance at each month-end
+    // on or after 2023-12-31 (a year before as-of, 2024-12-31; December 2023 ended on Friday the 29th) that
+    // has a month after it: January to November 2024.
+    let b = &r["backtest"];
+    assert_eq!(
+        (&b["first"], &b["last"], &b["rebalances"]),
+        (&"2024-01-31".into(), &"2024-11-29".into(), &11.into()),
+        "{b}"
+    );
+    let months = b["models"]["min_cvar"]["months"].as_array().unwrap();
+    assert_eq!(
+        months[0]["next"], "2024-02-29",
+        "realised over the next month-end"
+    );
     // This fund asks for the daily traffic light (analysis.daily_var_check: true): on month-end scenarios
     // it is not run, and the PDF says why.
     let text = super::report::squeeze(&pdf_text(&dir.join("pack.pdf")));
