@@ -294,7 +294,7 @@ fn meta(r: &RunResult, results: &Value, pack_id: &str) -> Meta {
         tool: format!("tailpack {}", env!("CARGO_PKG_VERSION")),
         confidence: format::level(c.confidence),
         tail: format::level(1.0 - c.confidence),
-        horizon: format!("{} observations", r.scenarios.horizon),
+        horizon: r.data.frequency.span(r.scenarios.horizon),
         horizon_n: r.scenarios.horizon,
         step: r.scenarios.step,
         assets: format::count(r.data.assets.len()),
@@ -585,11 +585,8 @@ fn scenarios(r: &RunResult) -> Vec<Pair> {
     };
     vec![
         pair("Scenarios", format::count(s.len())),
-        pair(
-            "Horizon",
-            format!("{} price observations per scenario", s.horizon),
-        ),
-        pair("Step between windows", format!("{} observation(s)", s.step)),
+        pair("Horizon", horizon_words(r)),
+        pair("Step between windows", step_words(r)),
         pair(
             "First window starts",
             s.starts.first().map(|d| d.to_string()).unwrap_or_default(),
@@ -713,4 +710,22 @@ fn run_facts(r: &RunResult, pack_id: &str, is_final: bool) -> Vec<Pair> {
             },
         ),
     ]
+}
+
+/// The scenario horizon in the data appendix: price observations, or months (quarters) of month-end
+/// (quarter-end) prices at a monthly (quarterly) frequency.
+fn horizon_words(r: &RunResult) -> String {
+    let (h, f) = (r.scenarios.horizon, r.data.frequency);
+    match f {
+        crate::config::Frequency::Daily => format!("{h} price observations per scenario"),
+        _ => format!("{} of {}-end prices per scenario", f.span(h), f.period()),
+    }
+}
+
+/// The step between windows in the data appendix, in the scenario frequency's unit.
+fn step_words(r: &RunResult) -> String {
+    match r.data.frequency {
+        crate::config::Frequency::Daily => format!("{} observation(s)", r.scenarios.step),
+        f => f.span(r.scenarios.step),
+    }
 }
