@@ -15,6 +15,13 @@
 //! (an equity crash with a flight to government bonds, its partial recovery,
 //! and a rate-rise episode in which bonds and equities fall together). A real
 //! feed's blemishes are planted on purpose: a few blank cells and one stale run.
+//!
+//! Two assets are valued monthly, as appraisal-valued funds are: a property fund and a private-markets
+//! fund have a value only on each month's last business day (blank in between), and their values are
+//! smoothed by construction (each month's reported return is a mix of the month's true return and the
+//! previous reported one, the first-order model Geltner's unsmoothing inverts), so the pack's
+//! unsmoothing has a known ρ to find. Their true paths come from a random stream of their own, so the
+//! daily assets' prices do not depend on them.
 
 use std::fmt::Write as _;
 use std::path::Path;
@@ -169,12 +176,12 @@ const fn asset(
 use Kind::*;
 use Region::*;
 
-/// The 48 fictitious assets. Caps between 4% and 12% (cash 20%) force any
+/// The 50 fictitious assets. Caps between 4% and 12% (cash 20%) force any
 /// admissible portfolio to hold at least nine assets.
 #[rustfmt::skip] // one asset per line reads as a table
-const ASSETS: [AssetSpec; 48] = [
-    asset("EQDV-01", "Developed Equity North 1", DevEquity, North, 32, 18),
-    asset("EQDV-02", "Developed Equity North 2", DevEquity, North, 32, 16),
+const ASSETS: [AssetSpec; 50] = [
+    asset("EQDV-01", "Developed Equity North 1", DevEquity, North, 32, 14),
+    asset("EQDV-02", "Developed Equity North 2", DevEquity, North, 32, 12),
     asset("EQDV-03", "Developed Equity North 3", DevEquity, North, 32, 14),
     asset("EQDV-04", "Developed Equity North 4", DevEquity, North, 32, 12),
     asset("EQDV-05", "Developed Equity North 5", DevEquity, North, 32, 10),
@@ -212,8 +219,8 @@ const ASSETS: [AssetSpec; 48] = [
     asset("ILBD-01", "Inflation Linked North 1", Linker, North, 24, 8),
     asset("ILBD-02", "Inflation Linked West 1", Linker, West, 24, 6),
     asset("ILBD-03", "Inflation Linked East 1", Linker, East, 24, 2),
-    asset("PROP-01", "Listed Property North 1", Property, North, 20, 10),
-    asset("PROP-02", "Listed Property West 1", Property, West, 20, 8),
+    asset("PROP-01", "Listed Property North 1", Property, North, 20, 6),
+    asset("PROP-02", "Listed Property West 1", Property, West, 20, 4),
     asset("PROP-03", "Listed Property East 1", Property, East, 20, 8),
     asset("PROP-04", "Listed Property Global 1", Property, Global, 20, 6),
     asset("CMDY-01", "Commodity Energy 1", Commodity, Global, 16, 6),
@@ -221,6 +228,9 @@ const ASSETS: [AssetSpec; 48] = [
     asset("CMDY-03", "Commodity Precious Metals 1", Commodity, Global, 16, 4),
     asset("CMDY-04", "Commodity Agriculture 1", Commodity, Global, 16, 2),
     asset("CASH-01", "Cash Deposit 1", Cash, Global, 80, 12),
+    // Valued monthly by appraisal (see APPRAISED): a value only at month-ends, smoothed.
+    asset("PRFD-01", "Property Fund Monthly 1", Property, Global, 20, 8),
+    asset("PRVM-01", "Private Markets Fund 1", DevEquity, Global, 20, 8),
 ];
 
 /// Compile-time proof that the holdings add up to exactly 100% and that no
@@ -493,8 +503,7 @@ fn factor_loadings(spec: &AssetSpec) -> [f64; FACTORS] {
 /// start price between 90 and 110, so the universe is not a row of clones.
 fn build_models(rng: &mut Rng, return_days: usize) -> Vec<AssetModel> {
     let episode_logs = episode_total_logs();
-    ASSETS
-        .iter()
+    daily_assets()
         .map(|spec| {
             let (mu, vol) = spec.kind.drift_and_vol();
             let vol = vol * (0.92 + 0.16 * rng.uniform());
@@ -564,8 +573,34 @@ fn remove_sample_means(paths: &mut [Vec<f64>]) {
     }
 }
 
-/// Clean simulated prices, per day and asset, before the feed defects.
+/// The assets priced every business day (all but the [`APPRAISED`] ones), in table order.
+fn daily_assets() -> impl Iterator<Item = &'static AssetSpec> {
+    ASSETS.iter().filter(|a| appraisal(a.code).is_none())
+}
+
+/// Clean prices per day and asset, in [`ASSETS`] order: the daily assets' simulated prices, and the
+/// appraised assets' smoothed values at month-ends (NaN on other days).
 fn simulate_prices(dates: &[NaiveDate]) -> Vec<Vec<f64>> {
+    let daily = simulate_daily(dates);
+    let appraised = appraised_values(dates, &daily);
+    daily
+        .iter()
+        .enumerate()
+        .map(|(day, row)| {
+            let (mut d, mut a) = (row.iter(), appraised.iter());
+            ASSETS
+                .iter()
+                .map(|spec| match appraisal(spec.code) {
+                    None => *d.next().expect("one daily price per daily asset"),
+                    Some(_) => a.next().expect("one column per appraised asset")[day],
+                })
+                .collect()
+        })
+        .collect()
+}
+
+/// Clean simulated prices of the daily assets, per day, before the feed defects.
+fn simulate_daily(dates: &[NaiveDate]) -> Vec<Vec<f64>> {
     let mut rng = Rng::from_seed(DEMO_SEED);
     let models = build_models(&mut rng, dates.len() - 1);
     let noise = noise_paths(&mut rng, &models, dates);
@@ -608,7 +643,9 @@ fn benchmark_series(clean: &[Vec<f64>]) -> Vec<Vec<f64>> {
     for day in 1..clean.len() {
         for (b, (_, class)) in BENCHMARKS.iter().enumerate() {
             let members: Vec<usize> = (0..ASSETS.len())
-                .filter(|&i| ASSETS[i].kind.class() == *class)
+                .filter(|&i| {
+                    ASSETS[i].kind.class() == *class && appraisal(ASSETS[i].code).is_none()
+                })
                 .collect();
             let mean = members
                 .iter()
@@ -620,6 +657,74 @@ fn benchmark_series(clean: &[Vec<f64>]) -> Vec<Vec<f64>> {
         out.push(level.to_vec());
     }
     out
+}
+
+// ---------------------------------------------------------------------------
+// Assets valued monthly by appraisal
+// ---------------------------------------------------------------------------
+
+/// An appraisal-valued asset: its true monthly return follows the equally weighted return of a class of
+/// daily assets (`beta` times it, plus `drift` and a noise of its own), and the reported return mixes the
+/// true one with the previous report, R*_t = (1 − ρ) R_t + ρ R*_{t−1} (the smoothing Geltner 1993 models).
+struct Appraisal {
+    code: &'static str,
+    /// The daily assets' class the true value follows.
+    follows: &'static str,
+    beta: f64,
+    /// Monthly drift and standard deviation of its own noise.
+    drift: f64,
+    noise: f64,
+    rho: f64,
+}
+
+/// The demo's two appraisal-valued assets.
+#[rustfmt::skip] // one asset per line reads as a table
+const APPRAISED: [Appraisal; 2] = [
+    Appraisal { code: "PRFD-01", follows: "property", beta: 0.6, drift: 0.002, noise: 0.012, rho: 0.6 },
+    Appraisal { code: "PRVM-01", follows: "equity", beta: 0.9, drift: 0.003, noise: 0.02, rho: 0.5 },
+];
+
+fn appraisal(code: &str) -> Option<&'static Appraisal> {
+    APPRAISED.iter().find(|a| a.code == code)
+}
+
+/// The last business day of each month of `dates`.
+fn month_ends(dates: &[NaiveDate]) -> Vec<usize> {
+    (0..dates.len())
+        .filter(|&i| i + 1 == dates.len() || dates[i + 1].month() != dates[i].month())
+        .collect()
+}
+
+/// Per appraised asset (in [`APPRAISED`] order), its values per day: smoothed, starting at 100 on the
+/// first month-end, NaN on every other day. `daily` holds the daily assets' clean prices.
+fn appraised_values(dates: &[NaiveDate], daily: &[Vec<f64>]) -> Vec<Vec<f64>> {
+    let mut rng = Rng::from_seed(DEMO_SEED ^ 0xA99A_15ED);
+    let ends = month_ends(dates);
+    APPRAISED
+        .iter()
+        .map(|p| {
+            let members: Vec<usize> = daily_assets()
+                .enumerate()
+                .filter(|(_, a)| a.kind.class() == p.follows)
+                .map(|(i, _)| i)
+                .collect();
+            let mut values = vec![f64::NAN; dates.len()];
+            let (mut level, mut reported) = (100.0, 0.0);
+            values[ends[0]] = level;
+            for w in ends.windows(2) {
+                let class = members
+                    .iter()
+                    .map(|&i| daily[w[1]][i] / daily[w[0]][i] - 1.0)
+                    .sum::<f64>()
+                    / members.len() as f64;
+                let truth = p.drift + p.beta * class + p.noise * rng.normal();
+                reported = (1.0 - p.rho) * truth + p.rho * reported;
+                level *= 1.0 + reported;
+                values[w[1]] = level;
+            }
+            values
+        })
+        .collect()
 }
 
 // ---------------------------------------------------------------------------
@@ -657,7 +762,11 @@ fn date_index(dates: &[NaiveDate], date: NaiveDate) -> usize {
 fn apply_feed_defects(dates: &[NaiveDate], clean: Vec<Vec<f64>>) -> Vec<Vec<Option<f64>>> {
     let mut prices: Vec<Vec<Option<f64>>> = clean
         .into_iter()
-        .map(|row| row.into_iter().map(Some).collect())
+        .map(|row| {
+            row.into_iter()
+                .map(|p| p.is_finite().then_some(p))
+                .collect()
+        })
         .collect();
     let stale = asset_index(STALE_ASSET);
     let first = date_index(dates, STALE_FIRST);
@@ -715,12 +824,16 @@ fn weight_text(units: u32) -> String {
 
 fn render_assets() -> String {
     let mut out = synthetic_header("fictitious assets, not real securities");
-    out.push_str("asset,name,class,region,min_weight,max_weight\n");
+    out.push_str("asset,name,class,region,min_weight,max_weight,valuation,smoothing\n");
     for a in &ASSETS {
         let (class, region) = (a.kind.class(), a.region.label());
         let max = weight_text(a.max_units);
         let text = csv_out::row([a.code, a.name, class, region]);
-        writeln!(out, "{text},0,{max}").expect("write to String");
+        let valued = match appraisal(a.code) {
+            Some(_) => "monthly,geltner",
+            None => "daily,",
+        };
+        writeln!(out, "{text},0,{max},{valued}").expect("write to String");
     }
     out
 }
@@ -806,7 +919,7 @@ mod tests {
             days: std::ops::RangeInclusive<usize>,
         ) -> Vec<f64> {
             let members: Vec<&AssetSpec> =
-                ASSETS.iter().filter(|a| a.kind.class() == class).collect();
+                daily_assets().filter(|a| a.kind.class() == class).collect();
             let level = |day: usize| {
                 let ratio = |a: &&AssetSpec| {
                     let col = self.column(a.code);
@@ -848,8 +961,8 @@ mod tests {
     #[test]
     fn calendar_is_every_weekday_up_to_the_last_month_end() {
         let p = parse_prices();
-        // 48 assets, then the 4 benchmark series the asset metadata does not list.
-        assert_eq!(p.codes.len(), 52);
+        // 50 assets, then the 4 benchmark series the asset metadata does not list.
+        assert_eq!(p.codes.len(), 54);
         let assets = file("assets.csv");
         for (code, _) in BENCHMARKS {
             assert!(p.codes.contains(&code.to_string()), "{code}");
@@ -863,7 +976,7 @@ mod tests {
                 .windows(2)
                 .all(|w| w[0] < w[1] && (w[1] - w[0]).num_days() <= 3)
         );
-        assert!(p.cells.iter().all(|row| row.len() == 52));
+        assert!(p.cells.iter().all(|row| row.len() == 54));
     }
 
     #[test]
@@ -874,6 +987,7 @@ mod tests {
             for (i, cell) in row.iter().enumerate() {
                 match cell {
                     Some(price) => assert!(*price > 0.0),
+                    None if appraisal(&p.codes[i]).is_some() => {}
                     None => blanks.push((p.codes[i].as_str(), p.dates[day])),
                 }
             }
@@ -906,6 +1020,38 @@ mod tests {
                 longest <= 2
             };
             assert!(ok, "{code}: longest run of equal prices is {longest}");
+        }
+    }
+
+    #[test]
+    fn appraised_assets_have_values_only_at_month_ends_smoothed_by_their_rho() {
+        let p = parse_prices();
+        let ends = month_ends(&p.dates);
+        for a in &APPRAISED {
+            let column = p.column(a.code);
+            for (day, cell) in column.iter().enumerate() {
+                assert_eq!(
+                    cell.is_some(),
+                    ends.contains(&day),
+                    "{} on {}",
+                    a.code,
+                    p.dates[day]
+                );
+            }
+            // The reported monthly returns are a first-order smoothing with coefficient ρ, so their
+            // first-order autocorrelation is about ρ (Geltner 1993); the sample of 154 months is within
+            // ±0.25 of it (about three standard errors √((1 − ρ²)/n), Bartlett 1946).
+            let values: Vec<f64> = column.into_iter().flatten().collect();
+            let r: Vec<f64> = values.windows(2).map(|w| w[1] / w[0] - 1.0).collect();
+            let mean = r.iter().sum::<f64>() / r.len() as f64;
+            let den: f64 = r.iter().map(|x| (x - mean).powi(2)).sum();
+            let num: f64 = r.windows(2).map(|w| (w[1] - mean) * (w[0] - mean)).sum();
+            assert!(
+                (num / den - a.rho).abs() < 0.25,
+                "{}: r1 {}",
+                a.code,
+                num / den
+            );
         }
     }
 
@@ -1020,7 +1166,7 @@ mod tests {
     fn summary_matches_the_written_files() {
         let dir = std::env::temp_dir().join(format!("tailpack-demo-{}", std::process::id()));
         let summary = write_demo_data(&dir).expect("write demo data");
-        assert_eq!(summary.assets, 48);
+        assert_eq!(summary.assets, 50);
         assert_eq!((summary.first, summary.last), (FIRST_DAY, LAST_DAY));
         for (name, contents) in render_demo_files() {
             assert_eq!(std::fs::read_to_string(dir.join(name)).unwrap(), contents);

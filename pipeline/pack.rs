@@ -218,8 +218,10 @@ pub fn results_json(r: &RunResult, inputs: &[crate::archive::InputFile], pack_id
         "current": r.current.as_ref().map(|pr| risk_json(r, pr)),
         "scenarios": {"count": s.len(), "horizon": s.horizon, "step": s.step, "first_start": s.starts.first().map(|d| d.to_string()),
                       "last_end": s.ends.last().map(|d| d.to_string()), "equal_probabilities": s.equal_probabilities,
-                      "half_life": r.config.scenarios.half_life, "lookback_years": r.config.scenarios.lookback_years},
+                      "half_life": r.config.scenarios.half_life, "lookback_years": r.config.scenarios.lookback_years,
+                      "frequency": r.data.frequency},
         "data_quality": r.data.quality,
+        "valuation": r.data.valuation,
         "history": {"first": r.data.history.0.to_string(), "last": r.data.history.1.to_string(), "layout": r.data.layout},
         "checks": r.checks,
         "solver": {"backend": r.backend.name(), "description": crate::models::lp::backend_description(r.backend)},
@@ -391,11 +393,11 @@ fn summary_heading(r: &RunResult) -> String {
     let mut s = String::new();
     let _ = writeln!(
         s,
-        "{} — as of {} — {} scenarios of {} observations, {} assets, CVaR at {:.1}%",
+        "{} — as of {} — {} scenarios of {}, {} assets, CVaR at {:.1}%",
         r.config.fund.name,
         r.data.as_of,
         r.scenarios.len(),
-        r.scenarios.horizon,
+        r.data.frequency.span(r.scenarios.horizon),
         r.data.assets.len(),
         c * 100.0
     );
@@ -406,8 +408,9 @@ fn summary_heading(r: &RunResult) -> String {
     );
     let _ = writeln!(
         s,
-        "(expected return, VaR and CVaR over the {}-observation horizon; VaR and CVaR as losses at {:.1}%)",
+        "(expected return, VaR and CVaR over the {}-{} horizon; VaR and CVaR as losses at {:.1}%)",
         r.scenarios.horizon,
+        r.data.frequency.period(),
         c * 100.0
     );
     s

@@ -434,7 +434,9 @@ fn summarise(cfg: &Config, data: &MarketData, model: &'static str, rows: Vec<Tra
         .iter()
         .filter_map(|r| Some(r.predicted_return? - r.realised_return?))
         .collect();
-    let daily = if cfg.analysis.daily_var_check {
+    // The traffic light counts daily exceptions: on month-end (quarter-end) observations it is not run.
+    let daily = if cfg.analysis.daily_var_check && data.frequency == crate::config::Frequency::Daily
+    {
         daily_check(cfg, data, &rows)
     } else {
         None

@@ -3,9 +3,9 @@
 //! turns that into a message with the key's line.
 
 use super::raw::{
-    AnalysisOptions, MAX_COST_BPS, QualityOptions, RawCap, RawCosts, RawFloor, RawFund, RawGroup,
-    RawLimits, RawReport, RawRisk, RawSignoff, RawStress, ScenarioOptions, TYPESET_MEMORY_MB,
-    TYPESET_SECONDS,
+    AnalysisOptions, MAX_COST_BPS, MAX_GELTNER_RHO, QualityOptions, RawCap, RawCosts, RawFloor,
+    RawFund, RawGroup, RawLimits, RawReport, RawRisk, RawSignoff, RawStress, ScenarioOptions,
+    TYPESET_MEMORY_MB, TYPESET_SECONDS,
 };
 use super::stress::check_tag;
 use super::{CapRule, CostRates, FloorRule, GroupSelector, GroupSpec, Money};
@@ -229,11 +229,45 @@ pub(super) fn check_analysis(a: &AnalysisOptions, s: &RawStress) -> Result<(), K
     Ok(())
 }
 
+/// `scenarios.geltner_rho`: every ρ in [0, [`MAX_GELTNER_RHO`]], no blank asset code (whether each code
+/// names an asset with `smoothing: geltner` is checked against the asset metadata in ingest).
+pub(super) fn check_geltner(s: &ScenarioOptions) -> Result<(), PlaceError> {
+    for (asset, rho) in &s.geltner_rho {
+        if asset.trim().is_empty() {
+            return Err((
+                "scenarios.geltner_rho".into(),
+                "has a blank asset code; give an asset code".into(),
+            ));
+        }
+        if !(rho.is_finite() && (0.0..=MAX_GELTNER_RHO).contains(rho)) {
+            return Err((
+                format!("scenarios.geltner_rho.{asset}"),
+                format!(
+                    "must lie between 0 and {MAX_GELTNER_RHO}, got {rho} (unsmoothing divides returns by 1 − ρ)"
+                ),
+            ));
+        }
+    }
+    Ok(())
+}
+
 pub(super) fn check_quality(q: &QualityOptions) -> Result<(), KeyError> {
     if !(q.extreme_move.is_finite() && q.extreme_move > 0.0) {
         return Err((
             "quality.extreme_move",
             format!("must be a positive return, got {}", q.extreme_move),
+        ));
+    }
+    if !(q.autocorrelation_flag.is_finite()
+        && q.autocorrelation_flag > 0.0
+        && q.autocorrelation_flag < 1.0)
+    {
+        return Err((
+            "quality.autocorrelation_flag",
+            format!(
+                "must lie strictly between 0 and 1, got {}",
+                q.autocorrelation_flag
+            ),
         ));
     }
     if q.stale_run < 2 {

@@ -174,6 +174,9 @@ pub struct QualityOptions {
     pub extreme_move: f64,
     /// Rule of thumb (common practice, not a theorem): at least this many observations per asset.
     pub min_obs_per_asset: usize,
+    /// An asset without a smoothing treatment whose returns have a first-order autocorrelation at or
+    /// above this (and more than two standard errors above zero) is flagged as appraisal-like.
+    pub autocorrelation_flag: f64,
 }
 
 impl Default for QualityOptions {
@@ -183,6 +186,7 @@ impl Default for QualityOptions {
             stale_run: 10,
             extreme_move: 0.25,
             min_obs_per_asset: 10,
+            autocorrelation_flag: 0.3,
         }
     }
 }
@@ -199,6 +203,69 @@ pub struct ScenarioOptions {
     pub lookback_years: u32,
     /// Half-life of exponentially decaying probabilities, in observations; absent means equal.
     pub half_life: Option<f64>,
+    /// The observations scenarios are built on: every price date (`daily`), or the last observation of
+    /// each calendar month or quarter (`monthly`, `quarterly`); `horizon` and `step` count these.
+    pub frequency: Frequency,
+    /// Geltner's ρ given per asset code for assets whose metadata asks for unsmoothing (`smoothing:
+    /// geltner`); an asset not listed has its ρ estimated over the look-back.
+    pub geltner_rho: BTreeMap<String, f64>,
+}
+
+/// The largest Geltner ρ tailpack unsmooths with, given or estimated: unsmoothing divides by 1 − ρ, so
+/// at ρ = 0.9 an observed return counts ten times. A limit of our own (a sanity rule, not a published
+/// standard): beyond it the rebuilt series is driven by the estimate's noise rather than by the data.
+pub const MAX_GELTNER_RHO: f64 = 0.9;
+
+/// How often a series is observed: the scenario frequency (`scenarios.frequency`) and an asset's
+/// valuation frequency (the asset metadata's `valuation` column), from most to least frequent.
+#[derive(
+    Debug, Deserialize, Clone, Copy, PartialEq, Eq, PartialOrd, Ord, Default, serde::Serialize,
+)]
+#[serde(rename_all = "lowercase")]
+pub enum Frequency {
+    #[default]
+    Daily,
+    Monthly,
+    Quarterly,
+}
+
+impl Frequency {
+    /// The word used in config files, metadata and messages.
+    pub fn word(self) -> &'static str {
+        match self {
+            Frequency::Daily => "daily",
+            Frequency::Monthly => "monthly",
+            Frequency::Quarterly => "quarterly",
+        }
+    }
+
+    /// The period one observation stands for, as printed ("day", "month", "quarter").
+    pub fn period(self) -> &'static str {
+        match self {
+            Frequency::Daily => "observation",
+            Frequency::Monthly => "month",
+            Frequency::Quarterly => "quarter",
+        }
+    }
+
+    /// A span of `n` observations in words: "21 observations" (daily), "1 month", "2 quarters".
+    pub fn span(self, n: usize) -> String {
+        let s = if n == 1 { "" } else { "s" };
+        match self {
+            Frequency::Daily => format!("{n} observations"),
+            other => format!("{n} {}{s}", other.period()),
+        }
+    }
+
+    /// Reads a metadata cell (`daily`, `monthly`, `quarterly`, any case).
+    pub fn parse(text: &str) -> Option<Frequency> {
+        match text.to_ascii_lowercase().as_str() {
+            "daily" => Some(Frequency::Daily),
+            "monthly" => Some(Frequency::Monthly),
+            "quarterly" => Some(Frequency::Quarterly),
+            _ => None,
+        }
+    }
 }
 
 impl Default for ScenarioOptions {
@@ -208,6 +275,8 @@ impl Default for ScenarioOptions {
             step: 1,
             lookback_years: 5,
             half_life: None,
+            frequency: Frequency::Daily,
+            geltner_rho: BTreeMap::new(),
         }
     }
 }

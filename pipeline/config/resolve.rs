@@ -127,6 +127,7 @@ fn required_inputs(cx: &Context, raw: &mut RawConfig) -> Result<()> {
 /// Scenarios, quality, risk levels and limits.
 fn check_sections(cx: &Context, raw: &RawConfig) -> Result<()> {
     checks::check_scenarios(&raw.scenarios).map_err(|e| cx.key_error(e))?;
+    checks::check_geltner(&raw.scenarios).map_err(|e| cx.place_error(e))?;
     checks::check_quality(&raw.quality).map_err(|e| cx.key_error(e))?;
     checks::check_levels(&raw.risk).map_err(|e| cx.key_error(e))?;
     checks::check_limits(&raw.limits, raw.data.holdings.is_some()).map_err(|e| cx.key_error(e))?;

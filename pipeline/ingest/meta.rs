@@ -1,6 +1,7 @@
 //! Asset metadata (class and other tags, per-asset weight bounds) and current holdings.
 
 use super::table::{TextTable, read_table};
+use crate::config::Frequency;
 use crate::error::{Error, Result};
 use std::collections::BTreeMap;
 use std::path::Path;
@@ -18,6 +19,10 @@ pub struct AssetMeta {
     pub tags: BTreeMap<String, String>,
     pub min_weight: Option<f64>,
     pub max_weight: Option<f64>,
+    /// How often the asset is valued (column `valuation`; blank: daily).
+    pub valuation: Frequency,
+    /// Whether its returns are unsmoothed (column `smoothing`: `geltner`; blank or `none`: not).
+    pub geltner: bool,
     /// Where the row is in the metadata file ("row 2 (line 3)"), for messages.
     #[serde(skip)]
     pub place: String,
@@ -70,7 +75,15 @@ pub fn read_assets(path: &Path) -> Result<Vec<AssetMeta>> {
 }
 
 /// Metadata columns with a meaning of their own; every other column is a tag (`region`, `style`, …).
-const RESERVED: [&str; 5] = ["asset", "class", "name", "min_weight", "max_weight"];
+const RESERVED: [&str; 7] = [
+    "asset",
+    "class",
+    "name",
+    "min_weight",
+    "max_weight",
+    "valuation",
+    "smoothing",
+];
 
 /// The trimmed text of one cell, empty when the cell is blank.
 fn cell(t: &TextTable, c: usize, row: usize) -> String {
@@ -106,6 +119,7 @@ fn meta_row(
         ));
     }
     let (min_weight, max_weight) = weight_bounds(path, t, row, &code)?;
+    let (valuation, geltner) = valuation_columns(path, t, row)?;
     let tags = t
         .names
         .iter()
@@ -125,8 +139,39 @@ fn meta_row(
         tags,
         min_weight,
         max_weight,
+        valuation,
+        geltner,
         place,
     })
+}
+
+/// The row's optional `valuation` (`daily`, `monthly` or `quarterly`; blank: daily) and `smoothing`
+/// (`geltner` or `none`; blank: none) columns.
+fn valuation_columns(path: &Path, t: &TextTable, row: usize) -> Result<(Frequency, bool)> {
+    let text = |name: &str| t.find(name).map(|c| cell(t, c, row)).unwrap_or_default();
+    let bad = |name: &str, v: &str, want: &str| {
+        Error::data(
+            path,
+            format!(
+                "{}, column `{name}`: `{}` is not {want}",
+                t.place(row),
+                super::truncate(v, 40)
+            ),
+        )
+    };
+    let v = text("valuation");
+    let valuation = match v.as_str() {
+        "" => Frequency::Daily,
+        v => Frequency::parse(v)
+            .ok_or_else(|| bad("valuation", v, "`daily`, `monthly` or `quarterly`"))?,
+    };
+    let s = text("smoothing");
+    let geltner = match s.to_ascii_lowercase().as_str() {
+        "" | "none" => false,
+        "geltner" => true,
+        _ => return Err(bad("smoothing", &s, "`geltner` or `none` (blank: none)")),
+    };
+    Ok((valuation, geltner))
 }
 
 /// The row's optional `min_weight` and `max_weight`: each blank or a weight in [0, 1], the minimum not

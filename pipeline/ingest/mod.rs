@@ -10,6 +10,7 @@ pub mod prices;
 pub mod quality;
 pub mod reference;
 pub mod table;
+pub mod valuation;
 
 use crate::config::Config;
 use crate::diag::{Check, Level};
@@ -53,6 +54,12 @@ pub struct MarketData {
     pub holdings: Option<Vec<f64>>,
     pub quality: QualityReport,
     pub layout: crate::config::Layout,
+    /// Observations the scenarios are built on (`scenarios.frequency`): `dates` and `full_dates` are
+    /// month-ends (quarter-ends) at a monthly (quarterly) frequency.
+    pub frequency: crate::config::Frequency,
+    /// Valuation facts of the kept assets, aligned with `assets`: autocorrelation, and the Geltner
+    /// unsmoothing already applied to `prices` and `full_prices` where the metadata asks for it.
+    pub valuation: Vec<valuation::AssetValuation>,
 }
 
 /// Reads, cuts at as-of, checks and fills. Blocking quality problems are returned as [`Error::Quality`].
@@ -62,6 +69,7 @@ pub fn load(cfg: &Config) -> Result<MarketData> {
     let mut hist = prices::from_table(&cfg.prices, &table, cfg.layout)?;
     let meta = meta::read_assets(&cfg.assets)?;
     check_universe(cfg, &hist, &meta)?;
+    valuation::check_meta(cfg, &meta)?;
     reference::check_named(cfg, &hist)?;
     let mut findings: Vec<Check> = quality::sort_dates(&mut hist).into_iter().collect();
     let as_of = resolve_as_of(cfg, &hist, cfg.as_of)?;
@@ -75,7 +83,14 @@ pub fn load(cfg: &Config) -> Result<MarketData> {
             problems: fails(&findings),
         });
     }
-    let data = build(cfg, hist, meta, as_of, findings)?;
+    // The file's own integrity rules above see every row; the scenario frequency's sampling comes next.
+    let first = hist.dates[0];
+    valuation::sample(cfg.scenarios.frequency, &mut hist);
+    findings.extend(valuation::calendar_flag(cfg, &hist, &meta));
+    let mut data = build(cfg, hist, meta, as_of, findings)?;
+    data.history.0 = first;
+    let unsmoothing = valuation::unsmooth(cfg, &mut data);
+    data.quality.findings.extend(unsmoothing);
     let problems = data.quality.failures();
     if !problems.is_empty() {
         return Err(Error::Quality { problems });
@@ -291,6 +306,8 @@ fn build(
         holdings,
         quality,
         layout: hist.layout,
+        frequency: cfg.scenarios.frequency,
+        valuation: vec![],
     })
 }
 

@@ -38,6 +38,11 @@ pub struct Report {
     pub caveats: Vec<Caveat>,
     pub scenarios: Vec<Pair>,
     pub quality: Quality,
+    /// Appendix B's valuation and unsmoothing table; `null` when every asset is valued daily and none is
+    /// unsmoothed.
+    pub unsmoothing: Option<super::valuation::Unsmoothing>,
+    /// The method appendix's paragraph on month-end sampling and unsmoothing, when either applies.
+    pub valuation_method: Option<String>,
     pub inputs: Vec<Input>,
     pub run: Vec<Pair>,
     /// The "Further analysis" section: efficient frontier, stress set, backtest.
@@ -246,9 +251,12 @@ pub fn build(r: &RunResult, shown: &[Portfolio], results: &Value, pack_id: &str)
         caveats: text::caveats(r, shown)
             .into_iter()
             .chain(further::bands::caveats(r))
+            .chain(super::valuation::caveats(r))
             .collect(),
         scenarios: scenarios(r),
         quality: quality(r),
+        unsmoothing: super::valuation::show(r),
+        valuation_method: super::valuation::method(r),
         inputs: inputs(results),
         run: run_facts(r, pack_id, results["signoff"]["status"] == "FINAL"),
         further: further::build(r, shown),
@@ -290,7 +298,7 @@ fn meta(r: &RunResult, results: &Value, pack_id: &str) -> Meta {
         tool: format!("tailpack {}", env!("CARGO_PKG_VERSION")),
         confidence: format::level(c.confidence),
         tail: format::level(1.0 - c.confidence),
-        horizon: format!("{} observations", r.scenarios.horizon),
+        horizon: r.data.frequency.span(r.scenarios.horizon),
         horizon_n: r.scenarios.horizon,
         step: r.scenarios.step,
         assets: format::count(r.data.assets.len()),
@@ -581,11 +589,8 @@ fn scenarios(r: &RunResult) -> Vec<Pair> {
     };
     vec![
         pair("Scenarios", format::count(s.len())),
-        pair(
-            "Horizon",
-            format!("{} price observations per scenario", s.horizon),
-        ),
-        pair("Step between windows", format!("{} observation(s)", s.step)),
+        pair("Horizon", horizon_words(r)),
+        pair("Step between windows", step_words(r)),
         pair(
             "First window starts",
             s.starts.first().map(|d| d.to_string()).unwrap_or_default(),
@@ -709,4 +714,22 @@ fn run_facts(r: &RunResult, pack_id: &str, is_final: bool) -> Vec<Pair> {
             },
         ),
     ]
+}
+
+/// The scenario horizon in the data appendix: price observations, or months (quarters) of month-end
+/// (quarter-end) prices at a monthly (quarterly) frequency.
+fn horizon_words(r: &RunResult) -> String {
+    let (h, f) = (r.scenarios.horizon, r.data.frequency);
+    match f {
+        crate::config::Frequency::Daily => format!("{h} price observations per scenario"),
+        _ => format!("{} of {}-end prices per scenario", f.span(h), f.period()),
+    }
+}
+
+/// The step between windows in the data appendix, in the scenario frequency's unit.
+fn step_words(r: &RunResult) -> String {
+    match r.data.frequency {
+        crate::config::Frequency::Daily => format!("{} observation(s)", r.scenarios.step),
+        f => f.span(r.scenarios.step),
+    }
 }

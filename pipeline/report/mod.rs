@@ -12,6 +12,7 @@
 //!   policy.rs   "Position against policy": policy lines, exposures, breaches, active risk
 //!   trades.rs   "Trades and costs": each model's trades from the current holdings, money traded, costs
 //!   change.rs   "Since the last pack": results.json's `change` (previous pack, CVaR effects, history)
+//!   valuation.rs  appendix B's valuation and unsmoothing table; the month-end and unsmoothing caveats
 //!   charts.rs   the summary and allocation charts (SVG)
 //!   text.rs     the sentences that depend on the run (summary points, caveats)
 //!   draw.rs     the chart kit: canvas, type, axes, markers, legends, bars
@@ -49,6 +50,7 @@ pub mod templates;
 pub mod text;
 pub mod trades;
 pub mod typeset;
+pub mod valuation;
 pub mod view;
 pub mod world;
 
@@ -187,6 +189,7 @@ mod tests {
         ("backtest", 2, include_str!("further/backtest.rs")),
         ("bands", 2, include_str!("further/bands.rs")),
         ("policy", 2, include_str!("policy.rs")),
+        ("valuation", 2, include_str!("valuation.rs")),
         ("further", 3, include_str!("further/mod.rs")),
         ("display", 4, include_str!("display.rs")),
         ("world", 0, include_str!("world.rs")),

@@ -363,7 +363,7 @@ fn demo_config_builds_a_pack() {
     let dir = pack_dir(&ran);
     let r = json(&dir.join("results.json"));
     assert_eq!(r["as_of"], "2026-11-30");
-    assert_eq!(r["assets"].as_array().unwrap().len(), 48);
+    assert_eq!(r["assets"].as_array().unwrap().len(), 50);
     for name in ["max_return", "min_cvar", "max_ratio"] {
         assert_eq!(
             r["models"][name]["status"], "optimal",

@@ -25,3 +25,4 @@ mod risk;
 mod signoff;
 mod templates;
 mod trades;
+mod valuation;

@@ -284,6 +284,18 @@ fn daily(r: &RunResult, b: &Backtest) -> DailyPart {
     if !r.config.analysis.daily_var_check {
         return (vec![], None, Some("The daily 99% VaR traffic-light test is switched off in the config (analysis.daily_var_check: false).".into()));
     }
+    let freq = r.config.scenarios.frequency;
+    if freq != crate::config::Frequency::Daily {
+        return (
+            vec![],
+            None,
+            Some(format!(
+                "The daily 99% VaR traffic-light test needs daily observations; scenarios here are built on {}-end observations (scenarios.frequency: {}), so it is not run.",
+                freq.period(),
+                freq.word()
+            )),
+        );
+    }
     let Some(any) = b.tracks.iter().find_map(|t| t.daily.as_ref()) else {
         return (
             vec![],
