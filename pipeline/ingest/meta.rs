@@ -18,6 +18,9 @@ pub struct AssetMeta {
     pub tags: BTreeMap<String, String>,
     pub min_weight: Option<f64>,
     pub max_weight: Option<f64>,
+    /// The `currency` column: the ISO 4217 code the asset is priced in; `None` (blank or no column) is
+    /// the fund's base currency.
+    pub currency: Option<String>,
     /// Where the row is in the metadata file ("row 2 (line 3)"), for messages.
     #[serde(skip)]
     pub place: String,
@@ -70,7 +73,14 @@ pub fn read_assets(path: &Path) -> Result<Vec<AssetMeta>> {
 }
 
 /// Metadata columns with a meaning of their own; every other column is a tag (`region`, `style`, …).
-const RESERVED: [&str; 5] = ["asset", "class", "name", "min_weight", "max_weight"];
+const RESERVED: [&str; 6] = [
+    "asset",
+    "class",
+    "name",
+    "min_weight",
+    "max_weight",
+    "currency",
+];
 
 /// The trimmed text of one cell, empty when the cell is blank.
 fn cell(t: &TextTable, c: usize, row: usize) -> String {
@@ -106,6 +116,7 @@ fn meta_row(
         ));
     }
     let (min_weight, max_weight) = weight_bounds(path, t, row, &code)?;
+    let currency = currency(path, t, row)?;
     let tags = t
         .names
         .iter()
@@ -125,8 +136,32 @@ fn meta_row(
         tags,
         min_weight,
         max_weight,
+        currency,
         place,
     })
+}
+
+/// The row's optional `currency`: blank (the base currency) or an ISO 4217 code in form, three upper-case
+/// letters (the code is not looked up: whether rates exist for it is checked against `data.fx`).
+fn currency(path: &Path, t: &TextTable, row: usize) -> Result<Option<String>> {
+    let Some(c) = t.find("currency") else {
+        return Ok(None);
+    };
+    let v = cell(t, c, row);
+    if v.is_empty() {
+        return Ok(None);
+    }
+    if !crate::config::checks::is_currency_code(&v) {
+        return Err(Error::data(
+            path,
+            format!(
+                "{}, column `currency`: `{}` is not an ISO 4217 code of three upper-case letters (e.g. CHF); leave it blank for the fund's base currency",
+                t.place(row),
+                super::truncate(&v, 40)
+            ),
+        ));
+    }
+    Ok(Some(v))
 }
 
 /// The row's optional `min_weight` and `max_weight`: each blank or a weight in [0, 1], the minimum not

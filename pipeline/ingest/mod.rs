@@ -4,6 +4,7 @@
 //! Rows dated after as-of are removed before any check or computation, so nothing after as-of can reach a
 //! result. This module reads files only through [`table`]; later stages see only [`MarketData`].
 
+pub mod currency;
 pub mod meta;
 pub mod parquet_guard;
 pub mod prices;
@@ -53,6 +54,9 @@ pub struct MarketData {
     pub holdings: Option<Vec<f64>>,
     pub quality: QualityReport,
     pub layout: crate::config::Layout,
+    /// Each asset's currency and hedge ratio, and its local-currency window prices
+    /// ([`currency::convert`]): `prices` and `full_prices` above are in the base currency.
+    pub currency: currency::Currencies,
 }
 
 /// Reads, cuts at as-of, checks and fills. Blocking quality problems are returned as [`Error::Quality`].
@@ -75,11 +79,12 @@ pub fn load(cfg: &Config) -> Result<MarketData> {
             problems: fails(&findings),
         });
     }
-    let data = build(cfg, hist, meta, as_of, findings)?;
+    let mut data = build(cfg, hist, meta, as_of, findings)?;
     let problems = data.quality.failures();
     if !problems.is_empty() {
         return Err(Error::Quality { problems });
     }
+    currency::convert(cfg, &mut data)?;
     check_bounds(cfg, &data)?;
     Ok(data)
 }
@@ -291,6 +296,7 @@ fn build(
         holdings,
         quality,
         layout: hist.layout,
+        currency: currency::Currencies::default(),
     })
 }
 

@@ -492,6 +492,7 @@ fn source_of(kind: Input) -> Option<&'static str> {
         Input::Prices => Some("data/prices.csv"),
         Input::Assets => Some("data/assets.csv"),
         Input::Holdings => Some("data/holdings.csv"),
+        Input::Fx => Some("data/rates.csv"),
         Input::Stress => Some("shocks/set.yaml"),
         Input::Templates => Some("tpl/summary.typ"),
         Input::Run => None,
@@ -510,7 +511,7 @@ fn other_bytes(kind: Input, bytes: &[u8]) -> Vec<u8> {
     match kind {
         Input::Config | Input::Stress => text + "# the same, in other bytes\n",
         Input::Templates => text + "// the same, in other bytes\n",
-        Input::Prices | Input::Assets | Input::Holdings => quoted(&text),
+        Input::Prices | Input::Assets | Input::Holdings | Input::Fx => quoted(&text),
         Input::Run => text.replace("\"highs\"", "\"clarabel\""),
     }
     .into_bytes()
