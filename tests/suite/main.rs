@@ -8,6 +8,7 @@ mod change;
 mod cli;
 mod common;
 mod costs;
+mod currency;
 mod csv_quoting;
 mod demo;
 mod faults;
