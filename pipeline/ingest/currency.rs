@@ -69,8 +69,10 @@ pub fn convert(cfg: &Config, data: &mut MarketData) -> Result<()> {
             Some((a, c)) => Err(Error::config(
                 &cfg.path,
                 format!(
-                    "data.fx: is needed: asset `{a}` is priced in `{c}` ({}, column `currency`), and without an exchange-rate file its prices cannot be converted to the base currency",
-                    cfg.assets.display()
+                    "data.fx: is needed: asset `{}` is priced in `{c}` ({}, {}, column `currency`), and without an exchange-rate file its prices cannot be converted to the base currency",
+                    a.asset,
+                    cfg.assets.display(),
+                    a.place
                 ),
             )),
             None => Ok(()),
@@ -102,12 +104,15 @@ pub fn convert(cfg: &Config, data: &mut MarketData) -> Result<()> {
     Ok(())
 }
 
-/// The first kept asset in a foreign currency, with its currency.
-fn first_foreign<'a>(data: &'a MarketData, of: &'a [Option<String>]) -> Option<(&'a str, &'a str)> {
-    data.assets
+/// The first kept asset in a foreign currency (its metadata row), with its currency.
+fn first_foreign<'a>(
+    data: &'a MarketData,
+    of: &'a [Option<String>],
+) -> Option<(&'a AssetMeta, &'a str)> {
+    data.meta
         .iter()
         .zip(of)
-        .find_map(|(a, c)| c.as_deref().map(|c| (a.as_str(), c)))
+        .find_map(|(m, c)| c.as_deref().map(|c| (m, c)))
 }
 
 /// Each asset's currency, `None` when it is the base currency; a foreign currency needs

@@ -526,8 +526,20 @@ fn every_input() -> super::common::Fixture {
         &m,
         &config(
             "analysis:\n  backtest_years: 0\n  daily_var_check: false\n  frontier_points: 3\nstress:\n  file: shocks/set.yaml\nreport:\n  templates: tpl\n",
-        ),
+        )
+        .replace("  name: Test Fund (fictional)\n", "  name: Test Fund (fictional)\n  base_currency: XTS\n")
+        .replace("  holdings: data/holdings.csv\n", "  holdings: data/holdings.csv\n  fx: data/rates.csv\n"),
     );
+    // AS02 is priced in an invented currency at a constant rate of 2 (the returns do not change with it).
+    f.write(
+        "data/assets.csv",
+        &m.assets_csv()
+            .replace("max_weight\n", "max_weight,currency\n")
+            .replace(",0.6\n", ",0.6,\n")
+            .replace("AS02,bond,0.6,\n", "AS02,bond,0.6,QMV\n"),
+    );
+    let rates: String = m.dates.iter().map(|d| format!("{d},2\n")).collect();
+    f.write("data/rates.csv", &format!("date,QMV\n{rates}"));
     f.write(
         "shocks/set.yaml",
         "shocks:\n  - name: Equity fall\n    moves:\n      - { tag: \"class:equity\", return: -0.2 }\n",
