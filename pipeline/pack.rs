@@ -97,7 +97,8 @@ fn weight_map(assets: &[String], w: &[f64]) -> Value {
 }
 
 /// Per asset its currency (the base currency's code, or null without one) and hedge ratio; the rate
-/// differentials; every portfolio's exposure per foreign currency before and after hedging.
+/// differentials; every portfolio's exposure per foreign currency before and after hedging and its CVaR
+/// with and without currency moves (`analysis::currency`).
 fn currency_json(r: &RunResult) -> Value {
     let cur = &r.data.currency;
     let base = r.config.currency.base.as_deref();
@@ -112,26 +113,22 @@ fn currency_json(r: &RunResult) -> Value {
                    "hedge_ratio": cur.hedge.get(i).copied().unwrap_or(0.0)})
         })
         .collect();
-    let exposure = |w: &[f64]| -> Value {
-        Value::Object(
-            crate::ingest::currency::exposure(cur, w)
-                .into_iter()
-                .map(|(c, (gross, net))| (c, json!({"before_hedging": gross, "after_hedging": net})))
-                .collect(),
-        )
-    };
-    let mut portfolios = Map::new();
-    if let Some(h) = &r.data.holdings {
-        portfolios.insert("current".into(), exposure(h));
-    }
-    for m in &r.models {
-        if let Some(w) = &m.outcome.weights {
-            portfolios.insert(m.name.to_string(), exposure(w));
-        }
+    let (mut exposure, mut cvar) = (Map::new(), Map::new());
+    for p in r.analysis.currency.iter().flatten() {
+        let per: Map<String, Value> = p
+            .exposure
+            .iter()
+            .map(|(c, g, n)| (c.clone(), json!({"before_hedging": g, "after_hedging": n})))
+            .collect();
+        exposure.insert(p.portfolio.clone(), Value::Object(per));
+        cvar.insert(
+            p.portfolio.clone(),
+            json!({"cvar": p.cvar, "cvar_without_currency_moves": p.cvar_local, "currency_share": p.share}),
+        );
     }
     json!({"base": base, "per_asset": per_asset,
            "rate_differential": r.config.currency.rate_differential,
-           "exposure": portfolios})
+           "exposure": exposure, "cvar": cvar})
 }
 
 fn model_json(r: &RunResult, m: &ModelReport) -> Value {
