@@ -53,6 +53,10 @@ pub struct Report {
     /// "Since the last pack", or `null` with `change_absent` saying why there is nothing to compare.
     pub change: Option<ChangeShow>,
     pub change_absent: Option<String>,
+    /// The currency subsection of "Tail loss" and appendix B's currency table, or `null` with
+    /// `currency_absent` saying every asset is in the base currency.
+    pub currency: Option<super::currency::CurrencyShow>,
+    pub currency_absent: Option<String>,
 }
 
 /// Cover and running-header facts.
@@ -255,6 +259,8 @@ pub fn build(r: &RunResult, shown: &[Portfolio], results: &Value, pack_id: &str)
         money: money::show(r),
         change: super::change::show(results).ok(),
         change_absent: super::change::show(results).err(),
+        currency: super::currency::show(r, shown).ok(),
+        currency_absent: super::currency::show(r, shown).err(),
     }
 }
 

@@ -144,6 +144,16 @@ fn base_currency_returns_follow_the_parity_relations() {
     let share = cv["currency_share"].as_f64().unwrap();
     assert!((share - (want - want_local) / want).abs() < 1e-9);
     assert!(share.abs() > 1e-3, "the unhedged QRD third moves CVaR: {share}");
+    // The PDF shows them in "Tail loss" (read back by poppler's pdftotext) and the currency table.
+    let pdf = super::common::pdf_text(&f.path("out/test-fund-fictional/2024-06-28/r1/pack.pdf"));
+    let line = pdf
+        .lines()
+        .find(|l| l.trim_start().starts_with("Without currency moves"))
+        .expect("the CVaR without currency moves");
+    assert!(line.contains(&format!("{:.2}%", want_local * 100.0)), "{line}");
+    assert!(pdf.contains("Exposure per currency before and after hedging"));
+    let qmv = pdf.lines().find(|l| l.trim_start().starts_with("QMV") && l.contains("100.00%"));
+    assert!(qmv.is_some(), "the appendix's QMV row with its hedge ratio");
 }
 
 /// CVaR of equally likely losses by Rockafellar & Uryasev (2000): min over ℓ of ℓ + E[(L − ℓ)⁺]/(1 − c),
