@@ -81,7 +81,8 @@ fn resolve(path: &Path, s: &ShockSpec, data: &MarketData) -> Result<Shock> {
                 returns.push(0.0);
                 unshocked.push(a.clone());
             }
-            (r, fx) => returns.push(with_currency(r.unwrap_or(0.0), fx.unwrap_or(0.0))),
+            (Some(r), None) => returns.push(r),
+            (r, Some(fx)) => returns.push(with_currency(r.unwrap_or(0.0), fx)),
         }
     }
     Ok(Shock {

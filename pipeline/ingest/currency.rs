@@ -80,10 +80,15 @@ pub fn convert(cfg: &Config, data: &mut MarketData) -> Result<()> {
     };
     let rates = read_rates(path, data.as_of)?;
     let start = data.full_dates.len() - data.dates.len();
+    let mut by_currency: BTreeMap<&str, Vec<Option<(NaiveDate, f64)>>> = BTreeMap::new();
     for (i, c) in of_asset.iter().enumerate() {
         let Some(c) = c else { continue };
-        let aligned = align(cfg, path, &rates, c, &data.full_dates, &data.assets[i])?;
-        check_window(cfg, path, &aligned, c, data, i)?;
+        if !by_currency.contains_key(c.as_str()) {
+            let aligned = align(cfg, path, &rates, c, &data.full_dates, &data.assets[i])?;
+            by_currency.insert(c, aligned);
+        }
+        let aligned = &by_currency[c.as_str()];
+        check_window(cfg, path, aligned, c, data, i)?;
         let premium = cfg.currency.rate_differential.get(c).copied().unwrap_or(0.0);
         let rate: Vec<f64> = aligned.iter().map(|r| r.map_or(f64::NAN, |r| r.1)).collect();
         data.full_prices[i] = to_base(
@@ -101,7 +106,67 @@ pub fn convert(cfg: &Config, data: &mut MarketData) -> Result<()> {
             premium,
         );
     }
+    for (c, aligned) in &by_currency {
+        let findings = rate_findings(cfg, c, &aligned[start..], &data.dates);
+        data.quality.findings.extend(findings);
+    }
     Ok(())
+}
+
+/// Data-quality findings on one currency's rates over the scenario window: how many price dates took an
+/// earlier rate (the calendars differ), and a warning for a move beyond `quality.extreme_move` from one
+/// observation to the next or a run of `quality.stale_run` identical rates, as for prices. The file is
+/// named by its key, `data.fx`: a re-run reads the archived copy, at another path, and must say the same.
+fn rate_findings(
+    cfg: &Config,
+    c: &str,
+    window: &[Option<(NaiveDate, f64)>],
+    dates: &[NaiveDate],
+) -> Vec<crate::diag::Check> {
+    use crate::diag::Check;
+    let file = "data.fx";
+    let earlier = window.iter().zip(dates).filter(|(r, d)| r.is_some_and(|r| r.0 < **d)).count();
+    let mut out = vec![Check::pass(
+        format!("quality.fx.{c}"),
+        format!(
+            "{file}: currency `{c}` has a rate for every one of the {} window dates ({earlier} of them the latest earlier rate, at most {} observations old)",
+            dates.len(),
+            cfg.quality.max_fill
+        ),
+    )];
+    let x: Vec<f64> = window.iter().map(|r| r.map_or(f64::NAN, |r| r.1)).collect();
+    if let Some(k) = (1..x.len()).find(|&k| (x[k] / x[k - 1] - 1.0).abs() > cfg.quality.extreme_move) {
+        out.push(Check::warn(
+            format!("quality.fx_extreme.{c}"),
+            format!(
+                "{file}: currency `{c}`: the rate moves by {:.1}% from {} to {}, beyond quality.extreme_move = {}; check the feed",
+                (x[k] / x[k - 1] - 1.0) * 100.0,
+                dates[k - 1],
+                dates[k],
+                cfg.quality.extreme_move
+            ),
+        ));
+    }
+    let quotes: Vec<f64> = {
+        let mut q: Vec<(NaiveDate, f64)> = window.iter().flatten().copied().collect();
+        q.dedup_by_key(|r| r.0);
+        q.into_iter().map(|r| r.1).collect()
+    };
+    let longest = quotes
+        .chunk_by(|a, b| a == b)
+        .map(<[f64]>::len)
+        .max()
+        .unwrap_or(0);
+    if longest >= cfg.quality.stale_run {
+        out.push(Check::warn(
+            format!("quality.fx_stale.{c}"),
+            format!(
+                "{file}: currency `{c}`: {longest} identical quoted rates in a row in the scenario window (quality.stale_run = {}); a rate feed that stopped updating hides currency risk",
+                cfg.quality.stale_run
+            ),
+        ));
+    }
+    out
 }
 
 /// The first kept asset in a foreign currency (its metadata row), with its currency.

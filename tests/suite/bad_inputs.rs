@@ -157,6 +157,7 @@ cases!(
     fx_long_rate_negative,
     fx_long_rate_not_a_number,
     fx_date_twice,
+    fx_rate_jump_and_stale_run,
     assets_currency_not_a_code,
     config_hedge_ratio_above_one,
     config_hedge_unknown_asset,

@@ -205,3 +205,26 @@ fn a_currency_shock_moves_the_unhedged_part() {
     assert!((r("AS02") - 0.75 * 0.1).abs() < 1e-12);
     assert!((r("AS03") - (0.9 * 0.8 - 1.0)).abs() < 1e-12);
 }
+
+/// The most specific hedge ratio wins: an asset's own beats its tag's, a tag's beats its class's; an asset
+/// in the base currency has nothing to hedge.
+#[test]
+fn the_most_specific_hedge_ratio_wins() {
+    let (f, _, _) = fund(
+        "currency:\n  hedge:\n    class: { bond: 0.3, equity: 0.2 }\n    tag: { \"region:a\": 0.6 }\n    asset: { AS03: 0.9 }\n",
+        false,
+    );
+    f.write(
+        "data/assets.csv",
+        "asset,class,max_weight,currency,region\nAS01,equity,0.6,,a\nAS02,bond,0.6,QMV,a\nAS03,equity,0.6,QRD,a\n",
+    );
+    run_ok(&f);
+    let res = results(&f);
+    let ratios: Vec<f64> = res["currency"]["per_asset"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .map(|a| a["hedge_ratio"].as_f64().unwrap())
+        .collect();
+    assert_eq!(ratios, [0.0, 0.6, 0.9]);
+}
