@@ -69,9 +69,9 @@ fn resolve(path: &Path, s: &ShockSpec, data: &MarketData) -> Result<Shock> {
             .find(|m| m.asset.as_deref() == Some(a.as_str()));
         let by_tag = || {
             s.moves.iter().find(|m| {
-                m.tag.as_ref().is_some_and(|t| {
-                    currency_tag(t).is_none() && tag_matches(t, &data.meta[i])
-                })
+                m.tag
+                    .as_ref()
+                    .is_some_and(|t| currency_tag(t).is_none() && tag_matches(t, &data.meta[i]))
             })
         };
         let local = by_asset.or_else(by_tag).map(|m| m.ret);

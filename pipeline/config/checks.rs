@@ -3,9 +3,9 @@
 //! turns that into a message with the key's line.
 
 use super::raw::{
-    AnalysisOptions, MAX_COST_BPS, QualityOptions, RawCap, RawCosts, RawCurrency, RawFloor, RawFund, RawGroup,
-    RawLimits, RawReport, RawRisk, RawSignoff, RawStress, ScenarioOptions, TYPESET_MEMORY_MB,
-    TYPESET_SECONDS,
+    AnalysisOptions, MAX_COST_BPS, QualityOptions, RawCap, RawCosts, RawCurrency, RawFloor,
+    RawFund, RawGroup, RawLimits, RawReport, RawRisk, RawSignoff, RawStress, ScenarioOptions,
+    TYPESET_MEMORY_MB, TYPESET_SECONDS,
 };
 use super::stress::check_tag;
 use super::{CapRule, CostRates, Currency, FloorRule, GroupSelector, GroupSpec, Money};
@@ -413,10 +413,18 @@ fn rate_differentials(raw: &BTreeMap<String, f64>) -> Result<BTreeMap<String, f6
     for (code, &d) in raw {
         let at = format!("currency.rate_differential.{code}");
         if !is_currency_code(code) {
-            return Err((at, format!("`{code}` must be an ISO 4217 code of three upper-case letters (e.g. CHF)")));
+            return Err((
+                at,
+                format!("`{code}` must be an ISO 4217 code of three upper-case letters (e.g. CHF)"),
+            ));
         }
         if !(d.is_finite() && d.abs() < 1.0) {
-            return Err((at, format!("must be an annual rate differential as a fraction strictly between −1 and 1 (0.01 = 1% a year), got {d}")));
+            return Err((
+                at,
+                format!(
+                    "must be an annual rate differential as a fraction strictly between −1 and 1 (0.01 = 1% a year), got {d}"
+                ),
+            ));
         }
     }
     Ok(raw.clone())

@@ -89,8 +89,16 @@ pub fn convert(cfg: &Config, data: &mut MarketData) -> Result<()> {
         }
         let aligned = &by_currency[c.as_str()];
         check_window(cfg, path, aligned, c, data, i)?;
-        let premium = cfg.currency.rate_differential.get(c).copied().unwrap_or(0.0);
-        let rate: Vec<f64> = aligned.iter().map(|r| r.map_or(f64::NAN, |r| r.1)).collect();
+        let premium = cfg
+            .currency
+            .rate_differential
+            .get(c)
+            .copied()
+            .unwrap_or(0.0);
+        let rate: Vec<f64> = aligned
+            .iter()
+            .map(|r| r.map_or(f64::NAN, |r| r.1))
+            .collect();
         data.full_prices[i] = to_base(
             &data.full_prices[i],
             &rate,
@@ -125,7 +133,11 @@ fn rate_findings(
 ) -> Vec<crate::diag::Check> {
     use crate::diag::Check;
     let file = "data.fx";
-    let earlier = window.iter().zip(dates).filter(|(r, d)| r.is_some_and(|r| r.0 < **d)).count();
+    let earlier = window
+        .iter()
+        .zip(dates)
+        .filter(|(r, d)| r.is_some_and(|r| r.0 < **d))
+        .count();
     let mut out = vec![Check::pass(
         format!("quality.fx.{c}"),
         format!(
@@ -135,7 +147,9 @@ fn rate_findings(
         ),
     )];
     let x: Vec<f64> = window.iter().map(|r| r.map_or(f64::NAN, |r| r.1)).collect();
-    if let Some(k) = (1..x.len()).find(|&k| (x[k] / x[k - 1] - 1.0).abs() > cfg.quality.extreme_move) {
+    if let Some(k) =
+        (1..x.len()).find(|&k| (x[k] / x[k - 1] - 1.0).abs() > cfg.quality.extreme_move)
+    {
         out.push(Check::warn(
             format!("quality.fx_extreme.{c}"),
             format!(
@@ -216,17 +230,29 @@ pub fn hedge_ratios(
     if let Some(a) = cur.hedge_asset.keys().find(|a| !assets.contains(a)) {
         return Err(bad(
             format!("currency.hedge.asset.{a}"),
-            "names no asset of the run (not in the asset metadata, or dropped by the fill policy)".into(),
+            "names no asset of the run (not in the asset metadata, or dropped by the fill policy)"
+                .into(),
         ));
     }
-    if let Some(c) = cur.hedge_class.keys().find(|c| !meta.iter().any(|m| &m.class == *c)) {
+    if let Some(c) = cur
+        .hedge_class
+        .keys()
+        .find(|c| !meta.iter().any(|m| &m.class == *c))
+    {
         return Err(bad(
             format!("currency.hedge.class.{c}"),
             "names no asset class of the asset metadata".into(),
         ));
     }
-    if let Some(t) = cur.hedge_tag.keys().find(|t| !meta.iter().any(|m| tag_matches(t, m))) {
-        return Err(bad(format!("currency.hedge.tag.{t}"), "matches no asset".into()));
+    if let Some(t) = cur
+        .hedge_tag
+        .keys()
+        .find(|t| !meta.iter().any(|m| tag_matches(t, m)))
+    {
+        return Err(bad(
+            format!("currency.hedge.tag.{t}"),
+            "matches no asset".into(),
+        ));
     }
     meta.iter()
         .zip(of_asset)
@@ -242,7 +268,11 @@ fn one_ratio(cfg: &Config, m: &AssetMeta) -> Result<f64> {
     if let Some(h) = cur.hedge_asset.get(&m.asset) {
         return Ok(*h);
     }
-    let tags: Vec<(&String, &f64)> = cur.hedge_tag.iter().filter(|(t, _)| tag_matches(t, m)).collect();
+    let tags: Vec<(&String, &f64)> = cur
+        .hedge_tag
+        .iter()
+        .filter(|(t, _)| tag_matches(t, m))
+        .collect();
     if let Some((t1, h1)) = tags.first() {
         if let Some((t2, h2)) = tags.iter().find(|(_, h)| h != h1) {
             return Err(Error::config(
@@ -284,12 +314,20 @@ pub fn read_rates(path: &Path, as_of: NaiveDate) -> Result<PriceHistory> {
     }
     let layout = if long { Layout::Long } else { Layout::Wide };
     let mut hist = prices::from_table(path, &table, layout).map_err(in_rate_terms)?;
-    if let Some(c) = hist.assets.iter().find(|c| !crate::config::checks::is_currency_code(c)) {
+    if let Some(c) = hist
+        .assets
+        .iter()
+        .find(|c| !crate::config::checks::is_currency_code(c))
+    {
         return Err(Error::data(
             path,
             format!(
                 "{}: `{}` is not an ISO 4217 code of three upper-case letters (e.g. CHF); name each currency by its code",
-                if long { "column `currency`".to_string() } else { format!("{}, header", table.header_place()) },
+                if long {
+                    "column `currency`".to_string()
+                } else {
+                    format!("{}, header", table.header_place())
+                },
                 super::truncate(c, 40)
             ),
         ));
@@ -324,7 +362,10 @@ fn in_rate_terms(e: Error) -> Error {
 fn sort_and_cut(path: &Path, hist: &mut PriceHistory, as_of: NaiveDate) -> Result<()> {
     let mut order: Vec<usize> = (0..hist.dates.len()).collect();
     order.sort_by_key(|&i| hist.dates[i]);
-    if let Some(w) = order.windows(2).find(|w| hist.dates[w[0]] == hist.dates[w[1]]) {
+    if let Some(w) = order
+        .windows(2)
+        .find(|w| hist.dates[w[0]] == hist.dates[w[1]])
+    {
         return Err(Error::data(
             path,
             format!(
@@ -333,7 +374,10 @@ fn sort_and_cut(path: &Path, hist: &mut PriceHistory, as_of: NaiveDate) -> Resul
             ),
         ));
     }
-    let keep: Vec<usize> = order.into_iter().filter(|&i| hist.dates[i] <= as_of).collect();
+    let keep: Vec<usize> = order
+        .into_iter()
+        .filter(|&i| hist.dates[i] <= as_of)
+        .collect();
     hist.keep_rows(&keep);
     Ok(())
 }
@@ -347,7 +391,11 @@ fn check_positive(path: &Path, hist: &PriceHistory) -> Result<()> {
             .find_map(|(r, v)| v.filter(|v| *v <= 0.0).map(|v| (r, v)))
         {
             let at = match hist.cells {
-                Some(_) => format!("{}, column `rate` (currency `{}`)", hist.places_of(c, r), hist.assets[c]),
+                Some(_) => format!(
+                    "{}, column `rate` (currency `{}`)",
+                    hist.places_of(c, r),
+                    hist.assets[c]
+                ),
                 None => format!("{}, column `{}`", hist.places[r], hist.assets[c]),
             };
             return Err(Error::data(
@@ -487,7 +535,13 @@ pub fn unhedged_in(cur: &Currencies, c: &str) -> Vec<f64> {
     cur.of_asset
         .iter()
         .zip(&cur.hedge)
-        .map(|(of, h)| if of.as_deref() == Some(c) { 1.0 - h } else { 0.0 })
+        .map(|(of, h)| {
+            if of.as_deref() == Some(c) {
+                1.0 - h
+            } else {
+                0.0
+            }
+        })
         .collect()
 }
 
@@ -516,7 +570,9 @@ mod tests {
 
     fn days(n: usize, step: i64) -> Vec<NaiveDate> {
         let d0 = NaiveDate::from_ymd_opt(2024, 1, 1).unwrap();
-        (0..n).map(|i| d0 + chrono::Duration::days(step * i as i64)).collect()
+        (0..n)
+            .map(|i| d0 + chrono::Duration::days(step * i as i64))
+            .collect()
     }
 
     /// Hand example: a local gain of 10% while the currency loses 5% against the base gives
@@ -553,8 +609,14 @@ mod tests {
             for t in (0..n - h).step_by(7) {
                 let (rl, rx) = (p[t + h] / p[t] - 1.0, x[t + h] / x[t] - 1.0);
                 let want = (1.0 + rl) * (1.0 + rx) - 1.0;
-                assert!((open[t + h] / open[t] - 1.0 - want).abs() < 1e-10, "h {h} t {t}");
-                assert!((shut[t + h] / shut[t] - 1.0 - rl).abs() < 1e-10, "h {h} t {t}");
+                assert!(
+                    (open[t + h] / open[t] - 1.0 - want).abs() < 1e-10,
+                    "h {h} t {t}"
+                );
+                assert!(
+                    (shut[t + h] / shut[t] - 1.0 - rl).abs() < 1e-10,
+                    "h {h} t {t}"
+                );
             }
         }
     }

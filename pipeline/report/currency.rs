@@ -53,24 +53,26 @@ pub fn show(r: &RunResult, shown: &[Portfolio]) -> Result<CurrencyShow, String> 
     };
     let currencies = r.data.currency.foreign();
     let of = |v: &Portfolio| rows.iter().find(|p| p.portfolio == v.key);
-    let fig = |v: &Portfolio, f: fn(&crate::analysis::currency::PortfolioCurrency) -> Option<f64>, s| {
-        of(v).and_then(f).map_or(NONE.to_string(), |x| pct(x, s))
-    };
+    let fig = |v: &Portfolio,
+               f: fn(&crate::analysis::currency::PortfolioCurrency) -> Option<f64>,
+               s| { of(v).and_then(f).map_or(NONE.to_string(), |x| pct(x, s)) };
     let exposure = currencies
         .iter()
         .map(|c| {
             shown
                 .iter()
-                .map(|v| match of(v).and_then(|p| p.exposure.iter().find(|e| &e.0 == c)) {
-                    Some((_, g, n)) => ExposureCell {
-                        before: format::weight(*g),
-                        after: format::weight(*n),
+                .map(
+                    |v| match of(v).and_then(|p| p.exposure.iter().find(|e| &e.0 == c)) {
+                        Some((_, g, n)) => ExposureCell {
+                            before: format::weight(*g),
+                            after: format::weight(*n),
+                        },
+                        None => ExposureCell {
+                            before: NONE.into(),
+                            after: NONE.into(),
+                        },
                     },
-                    None => ExposureCell {
-                        before: NONE.into(),
-                        after: NONE.into(),
-                    },
-                })
+                )
                 .collect()
         })
         .collect();
@@ -78,9 +80,18 @@ pub fn show(r: &RunResult, shown: &[Portfolio]) -> Result<CurrencyShow, String> 
         base: base.clone(),
         heads: shown.iter().map(|v| Head::of(v.identity)).collect(),
         exposure,
-        cvar: shown.iter().map(|v| fig(v, |p| Some(p.cvar), Style::Loss)).collect(),
-        cvar_local: shown.iter().map(|v| fig(v, |p| Some(p.cvar_local), Style::Loss)).collect(),
-        share: shown.iter().map(|v| fig(v, |p| p.share, Style::Return)).collect(),
+        cvar: shown
+            .iter()
+            .map(|v| fig(v, |p| Some(p.cvar), Style::Loss))
+            .collect(),
+        cvar_local: shown
+            .iter()
+            .map(|v| fig(v, |p| Some(p.cvar_local), Style::Loss))
+            .collect(),
+        share: shown
+            .iter()
+            .map(|v| fig(v, |p| p.share, Style::Return))
+            .collect(),
         level: format::level(r.config.confidence),
         table: currencies.iter().map(|c| row(r, c)).collect(),
         currencies,
@@ -99,13 +110,21 @@ fn row(r: &RunResult, c: &str) -> CurrencyRow {
         .collect();
     let (lo, hi) = ratios
         .iter()
-        .fold((f64::INFINITY, f64::NEG_INFINITY), |(a, b), &h| (a.min(h), b.max(h)));
+        .fold((f64::INFINITY, f64::NEG_INFINITY), |(a, b), &h| {
+            (a.min(h), b.max(h))
+        });
     let hedge = if (hi - lo).abs() < 1e-12 {
         pct(lo, Style::Weight)
     } else {
         format!("{}–{}", pct(lo, Style::Weight), pct(hi, Style::Weight))
     };
-    let d = r.config.currency.rate_differential.get(c).copied().unwrap_or(0.0);
+    let d = r
+        .config
+        .currency
+        .rate_differential
+        .get(c)
+        .copied()
+        .unwrap_or(0.0);
     CurrencyRow {
         code: c.to_string(),
         assets: format::count(ratios.len()),

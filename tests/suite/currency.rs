@@ -38,7 +38,12 @@ fn round6(v: f64) -> f64 {
 
 /// The latest quoted rate on or before `d` (never a later one).
 fn rate_on(quoted: &[(NaiveDate, [f64; 2])], d: NaiveDate, k: usize) -> f64 {
-    quoted.iter().rev().find(|(q, _)| *q <= d).expect("a rate").1[k]
+    quoted
+        .iter()
+        .rev()
+        .find(|(q, _)| *q <= d)
+        .expect("a rate")
+        .1[k]
 }
 
 /// Prices as the run reads them back from the wide CSV (six decimals).
@@ -53,7 +58,11 @@ fn fund(currency: &str, stress: bool) -> (Fixture, Market, Vec<(NaiveDate, [f64;
     let f = Fixture::new();
     let m = Market::new(3, "2023-01-02", "2024-06-28", 77);
     let (text, quoted) = rates(&m);
-    let stress_key = if stress { "stress:\n  file: shocks.yaml\n" } else { "" };
+    let stress_key = if stress {
+        "stress:\n  file: shocks.yaml\n"
+    } else {
+        ""
+    };
     let cfg = config(&format!(
         "analysis:\n  backtest_years: 0\n  daily_var_check: false\n  frontier_points: 3\n  band_resamples: 0\n{stress_key}{currency}"
     ))
@@ -74,8 +83,9 @@ fn fund(currency: &str, stress: bool) -> (Fixture, Market, Vec<(NaiveDate, [f64;
 
 /// Each scenario's label (start/end dates) and its returns, from scenarios.csv.
 fn scenarios(f: &Fixture) -> Vec<(NaiveDate, NaiveDate, Vec<f64>)> {
-    let text = std::fs::read_to_string(f.path("out/test-fund-fictional/2024-06-28/r1/scenarios.csv"))
-        .expect("scenarios.csv");
+    let text =
+        std::fs::read_to_string(f.path("out/test-fund-fictional/2024-06-28/r1/scenarios.csv"))
+            .expect("scenarios.csv");
     text.lines()
         .skip(1)
         .map(|l| {
@@ -118,24 +128,47 @@ fn base_currency_returns_follow_the_parity_relations() {
         .as_array()
         .unwrap()
         .iter()
-        .map(|a| (a["currency"].as_str().unwrap().to_string(), a["hedge_ratio"].as_f64().unwrap()))
+        .map(|a| {
+            (
+                a["currency"].as_str().unwrap().to_string(),
+                a["hedge_ratio"].as_f64().unwrap(),
+            )
+        })
         .collect();
     assert_eq!(
         per,
-        [("XTS".into(), 0.0), ("QMV".into(), 1.0), ("QRD".into(), 0.0)]
+        [
+            ("XTS".into(), 0.0),
+            ("QMV".into(), 1.0),
+            ("QRD".into(), 0.0)
+        ]
     );
     // Equal holdings of a third each: a third in each foreign currency before hedging; QMV hedged away.
     let cur = &res["currency"]["exposure"]["current"];
     assert!((cur["QMV"]["before_hedging"].as_f64().unwrap() - 1.0 / 3.0).abs() < 1e-9);
     assert!(cur["QMV"]["after_hedging"].as_f64().unwrap().abs() < 1e-12);
     assert!((cur["QRD"]["after_hedging"].as_f64().unwrap() - 1.0 / 3.0).abs() < 1e-9);
-    assert!(res["inputs"].as_array().unwrap().iter().any(|i| i["role"] == "fx"));
+    assert!(
+        res["inputs"]
+            .as_array()
+            .unwrap()
+            .iter()
+            .any(|i| i["role"] == "fx")
+    );
     // CVaR at 95% with and without currency moves: the second on the local returns of the same windows.
     let third = 1.0 / 3.0;
-    let base: Vec<f64> = sc.iter().map(|(_, _, r)| -third * r.iter().sum::<f64>()).collect();
+    let base: Vec<f64> = sc
+        .iter()
+        .map(|(_, _, r)| -third * r.iter().sum::<f64>())
+        .collect();
     let local: Vec<f64> = sc
         .iter()
-        .map(|(a, b, _)| -third * (0..3).map(|i| price_on(&m, *b, i) / price_on(&m, *a, i) - 1.0).sum::<f64>())
+        .map(|(a, b, _)| {
+            -third
+                * (0..3)
+                    .map(|i| price_on(&m, *b, i) / price_on(&m, *a, i) - 1.0)
+                    .sum::<f64>()
+        })
         .collect();
     let cv = &res["currency"]["cvar"]["current"];
     let (want, want_local) = (cvar(&base, 0.95), cvar(&local, 0.95));
@@ -143,16 +176,24 @@ fn base_currency_returns_follow_the_parity_relations() {
     assert!((cv["cvar_without_currency_moves"].as_f64().unwrap() - want_local).abs() < 1e-9);
     let share = cv["currency_share"].as_f64().unwrap();
     assert!((share - (want - want_local) / want).abs() < 1e-9);
-    assert!(share.abs() > 1e-3, "the unhedged QRD third moves CVaR: {share}");
+    assert!(
+        share.abs() > 1e-3,
+        "the unhedged QRD third moves CVaR: {share}"
+    );
     // The PDF shows them in "Tail loss" (read back by poppler's pdftotext) and the currency table.
     let pdf = super::common::pdf_text(&f.path("out/test-fund-fictional/2024-06-28/r1/pack.pdf"));
     let line = pdf
         .lines()
         .find(|l| l.trim_start().starts_with("Without currency moves"))
         .expect("the CVaR without currency moves");
-    assert!(line.contains(&format!("{:.2}%", want_local * 100.0)), "{line}");
+    assert!(
+        line.contains(&format!("{:.2}%", want_local * 100.0)),
+        "{line}"
+    );
     assert!(pdf.contains("Exposure per currency before and after hedging"));
-    let qmv = pdf.lines().find(|l| l.trim_start().starts_with("QMV") && l.contains("100.00%"));
+    let qmv = pdf
+        .lines()
+        .find(|l| l.trim_start().starts_with("QMV") && l.contains("100.00%"));
     assert!(qmv.is_some(), "the appendix's QMV row with its hedge ratio");
 }
 
@@ -177,7 +218,12 @@ fn a_partial_hedge_with_a_forward_premium_compounds_each_observation() {
     run_ok(&f);
     let (h, p) = (0.5, 0.04);
     for (a, b, r) in scenarios(&f).iter().step_by(13) {
-        let days: Vec<NaiveDate> = m.dates.iter().copied().filter(|d| d >= a && d <= b).collect();
+        let days: Vec<NaiveDate> = m
+            .dates
+            .iter()
+            .copied()
+            .filter(|d| d >= a && d <= b)
+            .collect();
         let growth: f64 = days
             .windows(2)
             .map(|w| {
@@ -187,7 +233,12 @@ fn a_partial_hedge_with_a_forward_premium_compounds_each_observation() {
                 1.0 + h * (rl + fwd) + (1.0 - h) * ((1.0 + rl) * (1.0 + rx) - 1.0)
             })
             .product();
-        assert!((r[2] - (growth - 1.0)).abs() < 1e-10, "{a}/{b}: {} vs {}", r[2], growth - 1.0);
+        assert!(
+            (r[2] - (growth - 1.0)).abs() < 1e-10,
+            "{a}/{b}: {} vs {}",
+            r[2],
+            growth - 1.0
+        );
     }
 }
 
@@ -227,4 +278,20 @@ fn the_most_specific_hedge_ratio_wins() {
         .map(|a| a["hedge_ratio"].as_f64().unwrap())
         .collect();
     assert_eq!(ratios, [0.0, 0.6, 0.9]);
+}
+
+/// The rate file in the long layout (`date,currency,rate`) gives the same scenarios as the wide one.
+#[test]
+fn long_and_wide_rate_files_give_the_same_scenarios() {
+    let (f, _, quoted) = fund("", false);
+    run_ok(&f);
+    let wide = scenarios(&f);
+    let mut long = String::from("date,currency,rate\n");
+    for (d, x) in &quoted {
+        long.push_str(&format!("{d},QRD,{:.6}\n{d},QMV,{:.6}\n", x[1], x[0]));
+    }
+    f.write("data/rates.csv", &long);
+    let _ = std::fs::remove_dir_all(f.path("out"));
+    run_ok(&f);
+    assert_eq!(scenarios(&f), wide);
 }
