@@ -107,7 +107,12 @@ pub fn plan(cfg: &Config, as_of: NaiveDate) -> Result<Plan> {
 /// The archived files of one kind of input: none when the config names no such input.
 fn archive_input(cfg: &Config, kind: Input, as_of: NaiveDate) -> Result<Vec<Archived>> {
     match kind {
-        Input::Config | Input::Prices | Input::Assets | Input::Holdings | Input::Stress => {
+        Input::Config
+        | Input::Prices
+        | Input::Assets
+        | Input::Holdings
+        | Input::Fx
+        | Input::Stress => {
             let Some(p) = cfg.input(kind) else {
                 return Ok(vec![]);
             };

@@ -57,6 +57,20 @@ pub struct Fund {
     pub money: Option<Money>,
 }
 
+/// The currency settings (`fund.base_currency`, the `currency` section), resolved.
+#[derive(Debug, Clone, Default, PartialEq)]
+pub struct Currency {
+    /// `fund.base_currency`, when given: the currency every price is converted into.
+    pub base: Option<String>,
+    /// Hedge ratios in [0, 1] per asset class (lower case), per `column:value` tag and per asset code.
+    pub hedge_class: std::collections::BTreeMap<String, f64>,
+    pub hedge_tag: std::collections::BTreeMap<String, f64>,
+    pub hedge_asset: std::collections::BTreeMap<String, f64>,
+    /// Annual interest rate differential per currency (base-currency rate minus the currency's rate), as
+    /// a fraction: the forward premium of covered interest parity.
+    pub rate_differential: std::collections::BTreeMap<String, f64>,
+}
+
 /// The fund's value in its base currency.
 #[derive(Debug, Clone, PartialEq)]
 pub struct Money {
@@ -201,6 +215,10 @@ pub struct Config {
     pub assets: PathBuf,
     /// The current holdings ([`Input::Holdings`]).
     pub holdings: Option<PathBuf>,
+    /// The exchange-rate file ([`Input::Fx`]).
+    pub fx: Option<PathBuf>,
+    /// The currency settings: base currency, hedge ratios, rate differentials.
+    pub currency: Currency,
     pub quality: QualityOptions,
     pub scenarios: ScenarioOptions,
     pub levels: Vec<f64>,
@@ -247,6 +265,7 @@ impl Config {
             Input::Prices => Some(&self.prices),
             Input::Assets => Some(&self.assets),
             Input::Holdings => self.holdings.as_deref(),
+            Input::Fx => self.fx.as_deref(),
             Input::Stress => self.stress_file.as_deref(),
             Input::Templates => self.templates.as_deref(),
             Input::Run => None,

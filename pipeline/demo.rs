@@ -47,7 +47,7 @@ pub struct DemoSummary {
     pub last: NaiveDate,
 }
 
-/// Writes prices.csv, assets.csv and holdings.csv into `dir` (created if missing).
+/// Writes prices.csv, assets.csv, holdings.csv and fx.csv into `dir` (created if missing).
 ///
 /// # Errors
 ///
@@ -66,17 +66,19 @@ pub fn write_demo_data(dir: &Path) -> std::io::Result<DemoSummary> {
     })
 }
 
-/// The three demo files as (file name, contents), in the order they are written.
+/// The demo files as (file name, contents), in the order they are written.
 #[must_use]
 pub fn render_demo_files() -> Vec<(&'static str, String)> {
     let dates = business_days();
     let clean = simulate_prices(&dates);
     let series = benchmark_series(&clean);
+    let rates = exchange_rates(&clean);
     let prices = apply_feed_defects(&dates, clean);
     vec![
         ("prices.csv", render_prices(&dates, &prices, &series)),
         ("assets.csv", render_assets()),
         ("holdings.csv", render_holdings()),
+        ("fx.csv", render_rates(&dates, &rates)),
     ]
 }
 
@@ -728,6 +730,72 @@ fn appraised_values(dates: &[NaiveDate], daily: &[Vec<f64>]) -> Vec<Vec<f64>> {
 }
 
 // ---------------------------------------------------------------------------
+// Exchange rates: two invented currencies against the invented base currency
+// ---------------------------------------------------------------------------
+
+/// The demo's foreign currencies, codes from ISO 4217's user-assigned range (no real currency), each with
+/// its region, its rate on the first day (value of one unit in the base currency), its annual volatility
+/// and its daily beta to developed equity: `QMV` firms when equities fall (a haven), `QRD` weakens.
+const CURRENCIES: [(&str, Region, f64, f64, f64); 2] = [
+    ("QMV", West, 1.3500, 0.075, -0.12),
+    ("QRD", East, 0.0820, 0.095, 0.18),
+];
+
+/// The currency of an asset of `region`: West assets are priced in `QMV`, East ones in `QRD`, the rest in
+/// the base currency (blank).
+fn currency_of(region: Region) -> &'static str {
+    CURRENCIES
+        .iter()
+        .find(|c| c.1 == region)
+        .map_or("", |c| c.0)
+}
+
+/// The days the rate feed has no quote (its own holidays): the prices' calendar and the rates' differ,
+/// and the run takes the latest earlier rate.
+fn rate_holiday(date: NaiveDate) -> bool {
+    (date.month() == 12 && date.day() == 26) || (date.month() == 1 && date.day() == 2)
+}
+
+/// Rates per day and currency: a random walk with a beta to the first developed-equity asset's daily
+/// return, from a generator of its own (the asset prices do not depend on it).
+fn exchange_rates(clean: &[Vec<f64>]) -> Vec<Vec<f64>> {
+    let mut rng = Rng::from_seed(DEMO_SEED ^ 0x0F0E_C0DE);
+    let mut level: Vec<f64> = CURRENCIES.iter().map(|c| c.2).collect();
+    let mut out = vec![level.clone()];
+    for day in 1..clean.len() {
+        let equity = clean[day][0] / clean[day - 1][0] - 1.0;
+        for (k, &(_, _, _, vol, beta)) in CURRENCIES.iter().enumerate() {
+            let own = vol / DAYS_PER_YEAR.sqrt() * rng.normal();
+            level[k] *= 1.0 + beta * equity + own;
+        }
+        out.push(level.clone());
+    }
+    out
+}
+
+fn render_rates(dates: &[NaiveDate], rates: &[Vec<f64>]) -> String {
+    let mut out = synthetic_header(
+        "invented currencies (user-assigned codes): value of one unit in the base currency XTS",
+    );
+    out.push_str("date");
+    for c in CURRENCIES {
+        write!(out, ",{}", c.0).expect("write to String");
+    }
+    out.push('\n');
+    for (date, row) in dates.iter().zip(rates) {
+        if rate_holiday(*date) {
+            continue;
+        }
+        write!(out, "{date}").expect("write to String");
+        for r in row {
+            write!(out, ",{r:.6}").expect("write to String");
+        }
+        out.push('\n');
+    }
+    out
+}
+
+// ---------------------------------------------------------------------------
 // Planted data-quality defects: the report should flag them, the run should not stop.
 // ---------------------------------------------------------------------------
 
@@ -824,7 +892,7 @@ fn weight_text(units: u32) -> String {
 
 fn render_assets() -> String {
     let mut out = synthetic_header("fictitious assets, not real securities");
-    out.push_str("asset,name,class,region,min_weight,max_weight,valuation,smoothing\n");
+    out.push_str("asset,name,class,region,min_weight,max_weight,valuation,smoothing,currency\n");
     for a in &ASSETS {
         let (class, region) = (a.kind.class(), a.region.label());
         let max = weight_text(a.max_units);
@@ -833,7 +901,8 @@ fn render_assets() -> String {
             Some(_) => "monthly,geltner",
             None => "daily,",
         };
-        writeln!(out, "{text},0,{max},{valued}").expect("write to String");
+        let currency = currency_of(a.region);
+        writeln!(out, "{text},0,{max},{valued},{currency}").expect("write to String");
     }
     out
 }

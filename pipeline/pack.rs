@@ -96,6 +96,41 @@ fn weight_map(assets: &[String], w: &[f64]) -> Value {
     )
 }
 
+/// Per asset its currency (the base currency's code, or null without one) and hedge ratio; the rate
+/// differentials; every portfolio's exposure per foreign currency before and after hedging and its CVaR
+/// with and without currency moves (`analysis::currency`).
+fn currency_json(r: &RunResult) -> Value {
+    let cur = &r.data.currency;
+    let base = r.config.currency.base.as_deref();
+    let per_asset: Vec<Value> = r
+        .data
+        .assets
+        .iter()
+        .enumerate()
+        .map(|(i, a)| {
+            let code = cur.of_asset.get(i).cloned().flatten();
+            json!({"asset": a, "currency": code.as_deref().or(base),
+                   "hedge_ratio": cur.hedge.get(i).copied().unwrap_or(0.0)})
+        })
+        .collect();
+    let (mut exposure, mut cvar) = (Map::new(), Map::new());
+    for p in r.analysis.currency.iter().flatten() {
+        let per: Map<String, Value> = p
+            .exposure
+            .iter()
+            .map(|(c, g, n)| (c.clone(), json!({"before_hedging": g, "after_hedging": n})))
+            .collect();
+        exposure.insert(p.portfolio.clone(), Value::Object(per));
+        cvar.insert(
+            p.portfolio.clone(),
+            json!({"cvar": p.cvar, "cvar_without_currency_moves": p.cvar_local, "currency_share": p.share}),
+        );
+    }
+    json!({"base": base, "per_asset": per_asset,
+           "rate_differential": r.config.currency.rate_differential,
+           "exposure": exposure, "cvar": cvar})
+}
+
 fn model_json(r: &RunResult, m: &ModelReport) -> Value {
     let c = r.config.confidence;
     let mut o = Map::new();
@@ -203,7 +238,7 @@ pub fn results_json(r: &RunResult, inputs: &[crate::archive::InputFile], pack_id
         "fund": {"name": r.config.fund.name, "short_name": r.config.short_name,
                  "prepared_for": r.config.fund.prepared_for, "prepared_by": r.config.fund.prepared_by},
         "fund_value": r.config.fund.money.as_ref().map(|m| m.value),
-        "base_currency": r.config.fund.money.as_ref().map(|m| &m.currency),
+        "base_currency": r.config.currency.base,
         "costs": costs_json(r),
         "trades": trades_json(r),
         "as_of": r.data.as_of.to_string(),
@@ -212,6 +247,7 @@ pub fn results_json(r: &RunResult, inputs: &[crate::archive::InputFile], pack_id
         "levels": r.config.levels,
         "assets": r.data.assets,
         "classes": r.data.meta.iter().map(|m| &m.class).collect::<Vec<_>>(),
+        "currency": currency_json(r),
         "constraints": constraints_json(r),
         "preconditions": r.preconditions,
         "models": models,

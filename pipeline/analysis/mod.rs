@@ -2,12 +2,14 @@
 //! crises (the stress set), and out-of-sample evidence (walk-forward backtest with VaR backtests).
 //!
 //! Reads the market data, the scenario set, the feasible set and the models' portfolios; writes nothing.
+//! `currency` splits each portfolio's risk by currency (exposures, CVaR with and without currency moves).
 //! `change` compares with the fund's previous pack, which the archive layer finds and hands down as plain
 //! data (`change::Past`); the pack writer calls it with this run's results.json value.
 
 pub mod backtest;
 pub mod bands;
 pub mod change;
+pub mod currency;
 pub mod frontier;
 pub mod policy;
 pub mod resolve;
@@ -29,6 +31,9 @@ pub struct Analysis {
     pub backtest: Option<backtest::Backtest>,
     /// Estimation-error bands of every family's weights (None when switched off).
     pub bands: Option<bands::Bands>,
+    /// Every portfolio's currency exposure and the currency share of its CVaR (None without an asset
+    /// priced in a foreign currency).
+    pub currency: Option<Vec<currency::PortfolioCurrency>>,
 }
 
 /// Computes frontier, stress set, backtest and bands. `portfolios` are (name, weights) of current and each
@@ -75,12 +80,14 @@ pub fn analyse(
         })
         .collect();
     let bands = timings::time("bands", || bands::run(cfg, data, p.set, fs, &points, seed));
+    let currency = currency::analyse(cfg, data, p.set, portfolios);
     Analysis {
         frontier,
         shocks,
         stress,
         backtest,
         bands,
+        currency,
     }
 }
 

@@ -2,7 +2,9 @@
 //! horizon windows of the full price history, replayed on every portfolio.
 //!
 //! A shock's P&L for weights w is Σ_i w_i s_i (an instantaneous revaluation of each position by its shock
-//! return); its contribution by class sums the same terms within a class.
+//! return); its contribution by class sums the same terms within a class. A `currency:XXX` tag moves a
+//! currency: an asset priced in it returns (1 + r_local)(1 + (1 − h)·s) − 1, with r_local its own move
+//! (asset or tag, else 0), s the currency's move and h its hedge ratio.
 
 use crate::config::{ShockSpec, StressFile};
 use crate::error::{Error, Result};
@@ -41,7 +43,14 @@ fn resolve(path: &Path, s: &ShockSpec, data: &MarketData) -> Result<Shock> {
                 )));
             }
         }
-        if let Some(t) = &m.tag {
+        if let Some(c) = m.tag.as_deref().and_then(currency_tag) {
+            if !data.currency.foreign().iter().any(|f| f == c) {
+                return Err(err(format!(
+                    "tag `{}`: no asset of the run is priced in currency `{c}` (a currency move reaches the unhedged part of the assets priced in a foreign currency)",
+                    m.tag.as_deref().unwrap_or_default()
+                )));
+            }
+        } else if let Some(t) = &m.tag {
             let (col, val) = t.split_once(':').expect("checked when loading");
             if !data.meta.iter().any(|am| {
                 am.tag(&col.trim().to_ascii_lowercase())
@@ -62,15 +71,18 @@ fn resolve(path: &Path, s: &ShockSpec, data: &MarketData) -> Result<Shock> {
             s.moves.iter().find(|m| {
                 m.tag
                     .as_ref()
-                    .is_some_and(|t| tag_matches(t, &data.meta[i]))
+                    .is_some_and(|t| currency_tag(t).is_none() && tag_matches(t, &data.meta[i]))
             })
         };
-        match by_asset.or_else(by_tag) {
-            Some(m) => returns.push(m.ret),
-            None => {
+        let local = by_asset.or_else(by_tag).map(|m| m.ret);
+        let fx = currency_move(s, data, i);
+        match (local, fx) {
+            (None, None) => {
                 returns.push(0.0);
                 unshocked.push(a.clone());
             }
+            (Some(r), None) => returns.push(r),
+            (r, Some(fx)) => returns.push(with_currency(r.unwrap_or(0.0), fx)),
         }
     }
     Ok(Shock {
@@ -82,6 +94,33 @@ fn resolve(path: &Path, s: &ShockSpec, data: &MarketData) -> Result<Shock> {
         returns,
         unshocked,
     })
+}
+
+/// The currency of a `currency:XXX` tag (the column `currency`, any case), which moves a currency rather
+/// than selecting assets by a metadata column.
+fn currency_tag(tag: &str) -> Option<&str> {
+    tag.split_once(':')
+        .filter(|(col, _)| col.trim().eq_ignore_ascii_case("currency"))
+        .map(|(_, code)| code.trim())
+}
+
+/// The move of asset `i`'s currency in shock `s`, scaled to its unhedged part (1 − h): `None` when the
+/// shock does not move that currency or the asset is fully hedged.
+fn currency_move(s: &ShockSpec, data: &MarketData, i: usize) -> Option<f64> {
+    let c = data.currency.of_asset.get(i)?.as_deref()?;
+    let unhedged = 1.0 - data.currency.hedge[i];
+    s.moves
+        .iter()
+        .find(|m| m.tag.as_deref().and_then(currency_tag) == Some(c))
+        .filter(|_| unhedged > 0.0)
+        .map(|m| unhedged * m.ret)
+}
+
+/// An asset's return when its local price moves by `local` and the unhedged part of its currency by
+/// `fx` (already scaled by 1 − h): (1 + r_local)(1 + (1 − h)·s) − 1, the hedged part earning the local
+/// move alone (no time passes, so no forward premium).
+pub fn with_currency(local: f64, fx: f64) -> f64 {
+    (1.0 + local) * (1.0 + fx) - 1.0
 }
 
 fn tag_matches(tag: &str, meta: &crate::ingest::meta::AssetMeta) -> bool {

@@ -3,12 +3,13 @@
 //! turns that into a message with the key's line.
 
 use super::raw::{
-    AnalysisOptions, MAX_COST_BPS, MAX_GELTNER_RHO, QualityOptions, RawCap, RawCosts, RawFloor,
+    AnalysisOptions, MAX_COST_BPS, MAX_GELTNER_RHO, QualityOptions, RawCap, RawCosts, RawCurrency, RawFloor,
     RawFund, RawGroup, RawLimits, RawReport, RawRisk, RawSignoff, RawStress, ScenarioOptions,
     TYPESET_MEMORY_MB, TYPESET_SECONDS,
 };
 use super::stress::check_tag;
-use super::{CapRule, CostRates, FloorRule, GroupSelector, GroupSpec, Money};
+use super::{CapRule, CostRates, Currency, FloorRule, GroupSelector, GroupSpec, Money};
+use std::collections::BTreeMap;
 
 /// A fixed key and what is wrong with its value.
 pub(super) type KeyError = (&'static str, String);
@@ -343,10 +344,7 @@ pub(super) fn resolve_money(f: &RawFund) -> Result<Option<Money>, KeyError> {
             "is required with fund.value (the currency of the value: an ISO 4217 code such as CHF)"
                 .into(),
         )),
-        (None, Some(_)) => Err((
-            "fund.value",
-            "is required with fund.base_currency (the fund's value in that currency)".into(),
-        )),
+        (None, Some(_)) => Ok(None),
         (Some(v), Some(_)) if !(v.is_finite() && v > 0.0) => Err((
             "fund.value",
             format!("must be a positive amount in the base currency, got {v}"),
@@ -393,4 +391,75 @@ pub(super) fn resolve_costs(c: &RawCosts) -> Result<CostRates, PlaceError> {
         class: table("class_bps", &c.class_bps, true)?,
         asset: table("asset_bps", &c.asset_bps, false)?,
     })
+}
+
+/// An ISO 4217 code in form: three upper-case letters (not looked up, so codes reserved for testing and
+/// the user-assigned ones serve a demo).
+pub fn is_currency_code(c: &str) -> bool {
+    c.len() == 3 && c.chars().all(|ch| ch.is_ascii_uppercase())
+}
+
+/// `fund.base_currency` on its own (it may be given without `fund.value`: the currency prices are
+/// converted into).
+fn resolve_base(f: &RawFund) -> Result<Option<String>, KeyError> {
+    match &f.base_currency {
+        Some(c) if !is_currency_code(c) => Err((
+            "fund.base_currency",
+            format!("must be an ISO 4217 code of three upper-case letters (e.g. CHF), got `{c}`"),
+        )),
+        other => Ok(other.clone()),
+    }
+}
+
+/// The `currency` section: every hedge ratio in [0, 1] under a name that is not blank (a tag written
+/// `column:value`), every rate differential under a currency code and within (−1, 1). Whether the names
+/// exist is checked against the data (`ingest::currency`).
+pub(super) fn resolve_currency(f: &RawFund, c: &RawCurrency) -> Result<Currency, PlaceError> {
+    let base = resolve_base(f).map_err(|(k, why)| (k.to_string(), why))?;
+    let hedge = |key: &str, raw: &BTreeMap<String, f64>, lower: bool| {
+        raw.iter()
+            .map(|(name, &h)| {
+                let at = format!("currency.hedge.{key}.{name}");
+                if name.trim().is_empty() {
+                    return Err((format!("currency.hedge.{key}"), "has a blank name; give a code".into()));
+                }
+                if key == "tag" {
+                    check_tag(name).map_err(|why| (at.clone(), why))?;
+                }
+                if !(h.is_finite() && (0.0..=1.0).contains(&h)) {
+                    return Err((at, format!("must be a hedge ratio between 0 (unhedged) and 1 (fully hedged), got {h}")));
+                }
+                let name = if lower { name.trim().to_ascii_lowercase() } else { name.trim().to_string() };
+                Ok((name, h))
+            })
+            .collect::<Result<BTreeMap<_, _>, PlaceError>>()
+    };
+    Ok(Currency {
+        base,
+        hedge_class: hedge("class", &c.hedge.class, true)?,
+        hedge_tag: hedge("tag", &c.hedge.tag, false)?,
+        hedge_asset: hedge("asset", &c.hedge.asset, false)?,
+        rate_differential: rate_differentials(&c.rate_differential)?,
+    })
+}
+
+fn rate_differentials(raw: &BTreeMap<String, f64>) -> Result<BTreeMap<String, f64>, PlaceError> {
+    for (code, &d) in raw {
+        let at = format!("currency.rate_differential.{code}");
+        if !is_currency_code(code) {
+            return Err((
+                at,
+                format!("`{code}` must be an ISO 4217 code of three upper-case letters (e.g. CHF)"),
+            ));
+        }
+        if !(d.is_finite() && d.abs() < 1.0) {
+            return Err((
+                at,
+                format!(
+                    "must be an annual rate differential as a fraction strictly between −1 and 1 (0.01 = 1% a year), got {d}"
+                ),
+            ));
+        }
+    }
+    Ok(raw.clone())
 }

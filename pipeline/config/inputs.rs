@@ -37,6 +37,9 @@ inputs! {
     Assets,
     /// The current holdings (`data.holdings`, or a fund's own `funds[].holdings`), read by `ingest`.
     Holdings,
+    /// The exchange rates (`data.fx`): per date, the value of one unit of each currency in the base
+    /// currency; read by `ingest::currency`.
+    Fx,
     /// The named stress shocks (`stress.file`), read and checked by `config::stress` when the config is
     /// loaded.
     Stress,
@@ -84,6 +87,7 @@ impl Input {
             Input::Prices => "prices",
             Input::Assets => "assets",
             Input::Holdings => "holdings",
+            Input::Fx => "fx",
             Input::Stress => "stress",
             Input::Templates => "template",
             Input::Run => "run",
@@ -97,6 +101,7 @@ impl Input {
             Input::Prices => Some("data.prices"),
             Input::Assets => Some("data.assets"),
             Input::Holdings => Some("data.holdings"),
+            Input::Fx => Some("data.fx"),
             Input::Stress => Some("stress.file"),
             Input::Templates => Some("report.templates"),
         }
@@ -107,16 +112,24 @@ impl Input {
         match self {
             Input::Prices => Some("the price file"),
             Input::Assets => Some("the asset metadata file"),
-            Input::Config | Input::Holdings | Input::Stress | Input::Templates | Input::Run => None,
+            Input::Config
+            | Input::Holdings
+            | Input::Fx
+            | Input::Stress
+            | Input::Templates
+            | Input::Run => None,
         }
     }
 
     /// What it is on disk.
     pub const fn form(self) -> Form {
         match self {
-            Input::Config | Input::Prices | Input::Assets | Input::Holdings | Input::Stress => {
-                Form::File
-            }
+            Input::Config
+            | Input::Prices
+            | Input::Assets
+            | Input::Holdings
+            | Input::Fx
+            | Input::Stress => Form::File,
             Input::Templates => Form::Folder,
             Input::Run => Form::Generated,
         }
@@ -126,7 +139,9 @@ impl Input {
     pub const fn archived(self) -> Archived {
         match self {
             Input::Config => Archived::Named(CONFIG_COPY),
-            Input::Prices | Input::Assets | Input::Holdings => Archived::RoleAndExtension,
+            Input::Prices | Input::Assets | Input::Holdings | Input::Fx => {
+                Archived::RoleAndExtension
+            }
             Input::Stress => Archived::Named("stress.yaml"),
             Input::Templates => Archived::Folder("templates"),
             Input::Run => Archived::Named(RUN_RECORD),
@@ -205,6 +220,7 @@ pub fn raw_slot(kind: Input, raw: &mut RawConfig) -> Option<&mut Option<PathBuf>
         Input::Prices => Some(&mut raw.data.prices),
         Input::Assets => Some(&mut raw.data.assets),
         Input::Holdings => Some(&mut raw.data.holdings),
+        Input::Fx => Some(&mut raw.data.fx),
         Input::Stress => Some(&mut raw.stress.file),
         Input::Templates => Some(&mut raw.report.templates),
     }
@@ -218,6 +234,7 @@ pub fn mandate_slot(kind: Input, m: &mut RawMandate) -> Option<&mut Option<PathB
         Input::Config
         | Input::Prices
         | Input::Assets
+        | Input::Fx
         | Input::Stress
         | Input::Templates
         | Input::Run => None,

@@ -20,6 +20,8 @@ pub struct RawConfig {
     pub policy: Option<RawPolicy>,
     pub models: RawModels,
     pub costs: RawCosts,
+    /// Currency hedging and interest rate differentials.
+    pub currency: RawCurrency,
     pub solver: SolverOptions,
     pub output: RawOutput,
     pub analysis: AnalysisOptions,
@@ -135,6 +137,29 @@ pub struct RawData {
     pub layout: Layout,
     pub assets: Option<PathBuf>,
     pub holdings: Option<PathBuf>,
+    /// Exchange rates: per date, the value of one unit of each currency in the base currency (wide or
+    /// long, as the price file).
+    pub fx: Option<PathBuf>,
+}
+
+/// Currency hedging: hedge ratios (0 to 1; an asset's own beats a tag's, a tag's beats its class's; 0
+/// without any) and per-currency annual interest rate differentials (default 0).
+#[derive(Debug, Deserialize, Default, Clone)]
+#[serde(deny_unknown_fields, default)]
+pub struct RawCurrency {
+    pub hedge: RawHedge,
+    /// Annual interest rate differential per currency code, base-currency rate minus the currency's, as
+    /// a fraction (0.01 = 1% a year).
+    pub rate_differential: BTreeMap<String, f64>,
+}
+
+/// Hedge ratios by asset class, `column:value` tag and asset code.
+#[derive(Debug, Deserialize, Default, Clone)]
+#[serde(deny_unknown_fields, default)]
+pub struct RawHedge {
+    pub class: BTreeMap<String, f64>,
+    pub tag: BTreeMap<String, f64>,
+    pub asset: BTreeMap<String, f64>,
 }
 
 /// Shape of the price file.

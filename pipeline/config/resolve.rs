@@ -8,7 +8,8 @@ use super::inputs::{Input, raw_slot};
 use super::raw::{DEFAULT_OUT_ROOT, RawConfig, RawFund};
 use super::stress::{StressFile, load_stress};
 use super::{
-    CapRule, Config, CostRates, FloorRule, Fund, GroupSpec, Money, Overrides, Policy, TypesetBudget,
+    CapRule, Config, CostRates, Currency, FloorRule, Fund, GroupSpec, Money, Overrides, Policy,
+    TypesetBudget,
 };
 use crate::error::{Error, Result};
 use std::collections::BTreeMap;
@@ -92,6 +93,8 @@ pub(super) fn resolve_at(cx: &Context, mut raw: RawConfig) -> Result<Config> {
     let short_name = short_name(cx, &raw.fund)?;
     let money = checks::resolve_money(&raw.fund).map_err(|e| cx.key_error(e))?;
     let costs = checks::resolve_costs(&raw.costs).map_err(|e| cx.place_error(e))?;
+    let currency =
+        checks::resolve_currency(&raw.fund, &raw.currency).map_err(|e| cx.place_error(e))?;
     checks::check_analysis(&raw.analysis, &raw.stress).map_err(|e| cx.key_error(e))?;
     checks::check_signoff(&raw.signoff).map_err(|e| cx.place_error(e))?;
     checks::check_report(&raw.report).map_err(|e| cx.key_error(e))?;
@@ -100,7 +103,7 @@ pub(super) fn resolve_at(cx: &Context, mut raw: RawConfig) -> Result<Config> {
         Some(p) => Some((cx.stress)(p)?),
         None => None,
     };
-    let money_and_costs = (money, costs);
+    let money_and_costs = (money, costs, currency);
     Ok(assemble(
         cx,
         raw,
@@ -227,7 +230,7 @@ fn assemble(
     rules: Rules,
     mut inputs: BTreeMap<Input, PathBuf>,
     stress: Option<StressFile>,
-    (money, costs): (Option<Money>, CostRates),
+    (money, costs, currency): (Option<Money>, CostRates, Currency),
 ) -> Config {
     let mut input = |k: Input| inputs.remove(&k);
     let out_root = out_root(cx, raw.output.root.as_deref());
@@ -245,6 +248,8 @@ fn assemble(
         layout: raw.data.layout,
         assets: input(Input::Assets).expect("checked to be named"),
         holdings: input(Input::Holdings),
+        fx: input(Input::Fx),
+        currency,
         quality: raw.quality,
         scenarios: raw.scenarios,
         levels: sorted_levels(&raw.risk),

@@ -23,6 +23,9 @@ pub struct AssetMeta {
     pub valuation: Frequency,
     /// Whether its returns are unsmoothed (column `smoothing`: `geltner`; blank or `none`: not).
     pub geltner: bool,
+    /// The `currency` column: the ISO 4217 code the asset is priced in; `None` (blank or no column) is
+    /// the fund's base currency.
+    pub currency: Option<String>,
     /// Where the row is in the metadata file ("row 2 (line 3)"), for messages.
     #[serde(skip)]
     pub place: String,
@@ -75,7 +78,7 @@ pub fn read_assets(path: &Path) -> Result<Vec<AssetMeta>> {
 }
 
 /// Metadata columns with a meaning of their own; every other column is a tag (`region`, `style`, …).
-const RESERVED: [&str; 7] = [
+const RESERVED: [&str; 8] = [
     "asset",
     "class",
     "name",
@@ -83,6 +86,7 @@ const RESERVED: [&str; 7] = [
     "max_weight",
     "valuation",
     "smoothing",
+    "currency",
 ];
 
 /// The trimmed text of one cell, empty when the cell is blank.
@@ -120,6 +124,7 @@ fn meta_row(
     }
     let (min_weight, max_weight) = weight_bounds(path, t, row, &code)?;
     let (valuation, geltner) = valuation_columns(path, t, row)?;
+    let currency = currency(path, t, row)?;
     let tags = t
         .names
         .iter()
@@ -141,6 +146,7 @@ fn meta_row(
         max_weight,
         valuation,
         geltner,
+        currency,
         place,
     })
 }
@@ -172,6 +178,29 @@ fn valuation_columns(path: &Path, t: &TextTable, row: usize) -> Result<(Frequenc
         _ => return Err(bad("smoothing", &s, "`geltner` or `none` (blank: none)")),
     };
     Ok((valuation, geltner))
+}
+
+/// The row's optional `currency`: blank (the base currency) or an ISO 4217 code in form, three upper-case
+/// letters (the code is not looked up: whether rates exist for it is checked against `data.fx`).
+fn currency(path: &Path, t: &TextTable, row: usize) -> Result<Option<String>> {
+    let Some(c) = t.find("currency") else {
+        return Ok(None);
+    };
+    let v = cell(t, c, row);
+    if v.is_empty() {
+        return Ok(None);
+    }
+    if !crate::config::checks::is_currency_code(&v) {
+        return Err(Error::data(
+            path,
+            format!(
+                "{}, column `currency`: `{}` is not an ISO 4217 code of three upper-case letters (e.g. XTS); leave it blank for the fund's base currency",
+                t.place(row),
+                super::truncate(&v, 40)
+            ),
+        ));
+    }
+    Ok(Some(v))
 }
 
 /// The row's optional `min_weight` and `max_weight`: each blank or a weight in [0, 1], the minimum not

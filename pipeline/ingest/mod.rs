@@ -4,6 +4,7 @@
 //! Rows dated after as-of are removed before any check or computation, so nothing after as-of can reach a
 //! result. This module reads files only through [`table`]; later stages see only [`MarketData`].
 
+pub mod currency;
 pub mod meta;
 pub mod parquet_guard;
 pub mod prices;
@@ -60,6 +61,9 @@ pub struct MarketData {
     /// Valuation facts of the kept assets, aligned with `assets`: autocorrelation, and the Geltner
     /// unsmoothing already applied to `prices` and `full_prices` where the metadata asks for it.
     pub valuation: Vec<valuation::AssetValuation>,
+    /// Each asset's currency and hedge ratio, and its local-currency window prices
+    /// ([`currency::convert`]): `prices` and `full_prices` above are in the base currency.
+    pub currency: currency::Currencies,
 }
 
 /// Reads, cuts at as-of, checks and fills. Blocking quality problems are returned as [`Error::Quality`].
@@ -95,6 +99,7 @@ pub fn load(cfg: &Config) -> Result<MarketData> {
     if !problems.is_empty() {
         return Err(Error::Quality { problems });
     }
+    currency::convert(cfg, &mut data)?;
     check_bounds(cfg, &data)?;
     Ok(data)
 }
@@ -308,6 +313,7 @@ fn build(
         layout: hist.layout,
         frequency: cfg.scenarios.frequency,
         valuation: vec![],
+        currency: currency::Currencies::default(),
     })
 }
 

@@ -58,6 +58,10 @@ pub struct Report {
     /// "Since the last pack", or `null` with `change_absent` saying why there is nothing to compare.
     pub change: Option<ChangeShow>,
     pub change_absent: Option<String>,
+    /// The currency subsection of "Tail loss" and appendix B's currency table, or `null` with
+    /// `currency_absent` saying every asset is in the base currency.
+    pub currency: Option<super::currency::CurrencyShow>,
+    pub currency_absent: Option<String>,
 }
 
 /// Cover and running-header facts.
@@ -229,6 +233,10 @@ pub fn build(r: &RunResult, shown: &[Portfolio], results: &Value, pack_id: &str)
         Ok(t) => (Some(t), None),
         Err(why) => (None, Some(why)),
     };
+    let (currency, currency_absent) = match super::currency::show(r, shown) {
+        Ok(c) => (Some(c), None),
+        Err(why) => (None, Some(why)),
+    };
     let (change, change_absent) = match super::change::show(results) {
         Ok(c) => (Some(c), None),
         Err(why) => (None, Some(why)),
@@ -267,6 +275,8 @@ pub fn build(r: &RunResult, shown: &[Portfolio], results: &Value, pack_id: &str)
         money: money::show(r),
         change,
         change_absent,
+        currency,
+        currency_absent,
     }
 }
 

@@ -11,6 +11,7 @@
 //!               frontier.rs, stress.rs, backtest.rs, bands.rs (each part's display data and charts)
 //!   policy.rs   "Position against policy": policy lines, exposures, breaches, active risk
 //!   trades.rs   "Trades and costs": each model's trades from the current holdings, money traded, costs
+//!   currency.rs the currency subsection of "Tail loss" and appendix B's currency table
 //!   change.rs   "Since the last pack": results.json's `change` (previous pack, CVaR effects, history)
 //!   valuation.rs  appendix B's valuation and unsmoothing table; the month-end and unsmoothing caveats
 //!   charts.rs   the summary and allocation charts (SVG)
@@ -39,6 +40,7 @@
 
 pub mod change;
 pub mod charts;
+pub mod currency;
 pub mod display;
 pub mod draw;
 pub mod format;
@@ -190,6 +192,7 @@ mod tests {
         ("bands", 2, include_str!("further/bands.rs")),
         ("policy", 2, include_str!("policy.rs")),
         ("valuation", 2, include_str!("valuation.rs")),
+        ("currency", 2, include_str!("currency.rs")),
         ("further", 3, include_str!("further/mod.rs")),
         ("display", 4, include_str!("display.rs")),
         ("world", 0, include_str!("world.rs")),

@@ -492,6 +492,7 @@ fn source_of(kind: Input) -> Option<&'static str> {
         Input::Prices => Some("data/prices.csv"),
         Input::Assets => Some("data/assets.csv"),
         Input::Holdings => Some("data/holdings.csv"),
+        Input::Fx => Some("data/rates.csv"),
         Input::Stress => Some("shocks/set.yaml"),
         Input::Templates => Some("tpl/summary.typ"),
         Input::Run => None,
@@ -510,7 +511,7 @@ fn other_bytes(kind: Input, bytes: &[u8]) -> Vec<u8> {
     match kind {
         Input::Config | Input::Stress => text + "# the same, in other bytes\n",
         Input::Templates => text + "// the same, in other bytes\n",
-        Input::Prices | Input::Assets | Input::Holdings => quoted(&text),
+        Input::Prices | Input::Assets | Input::Holdings | Input::Fx => quoted(&text),
         Input::Run => text.replace("\"highs\"", "\"clarabel\""),
     }
     .into_bytes()
@@ -525,8 +526,20 @@ fn every_input() -> super::common::Fixture {
         &m,
         &config(
             "analysis:\n  backtest_years: 0\n  daily_var_check: false\n  frontier_points: 3\nstress:\n  file: shocks/set.yaml\nreport:\n  templates: tpl\n",
-        ),
+        )
+        .replace("  name: Test Fund (fictional)\n", "  name: Test Fund (fictional)\n  base_currency: XTS\n")
+        .replace("  holdings: data/holdings.csv\n", "  holdings: data/holdings.csv\n  fx: data/rates.csv\n"),
     );
+    // AS02 is priced in an invented currency at a constant rate of 2 (the returns do not change with it).
+    f.write(
+        "data/assets.csv",
+        &m.assets_csv()
+            .replace("max_weight\n", "max_weight,currency\n")
+            .replace(",0.6\n", ",0.6,\n")
+            .replace("AS02,bond,0.6,\n", "AS02,bond,0.6,QMV\n"),
+    );
+    let rates: String = m.dates.iter().map(|d| format!("{d},2\n")).collect();
+    f.write("data/rates.csv", &format!("date,QMV\n{rates}"));
     f.write(
         "shocks/set.yaml",
         "shocks:\n  - name: Equity fall\n    moves:\n      - { tag: \"class:equity\", return: -0.2 }\n",

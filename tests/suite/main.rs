@@ -9,6 +9,7 @@ mod cli;
 mod common;
 mod costs;
 mod csv_quoting;
+mod currency;
 mod demo;
 mod faults;
 mod inputs;
