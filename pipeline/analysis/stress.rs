@@ -174,7 +174,7 @@ pub fn historical(data: &MarketData, reference: &[f64], h: usize, count: usize) 
         Shock {
             name: format!("Worst window #{} ({start} to {end})", k + 1),
             kind: "historical",
-            description: format!("the {}-observation window of the price history with the largest loss for the reference portfolio", h),
+            description: format!("the {h}-{} window of the price history with the largest loss for the reference portfolio", data.frequency.period()),
             start: Some(start),
             end: Some(end),
             returns: r.iter().map(|v| if v.is_nan() { 0.0 } else { *v }).collect(),

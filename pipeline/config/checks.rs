@@ -3,9 +3,9 @@
 //! turns that into a message with the key's line.
 
 use super::raw::{
-    AnalysisOptions, MAX_COST_BPS, MAX_GELTNER_RHO, QualityOptions, RawCap, RawCosts, RawCurrency, RawFloor,
-    RawFund, RawGroup, RawLimits, RawReport, RawRisk, RawSignoff, RawStress, ScenarioOptions,
-    TYPESET_MEMORY_MB, TYPESET_SECONDS,
+    AnalysisOptions, MAX_COST_BPS, MAX_GELTNER_RHO, QualityOptions, RawCap, RawCosts, RawCurrency,
+    RawFloor, RawFund, RawGroup, RawLimits, RawReport, RawRisk, RawSignoff, RawStress,
+    ScenarioOptions, TYPESET_MEMORY_MB, TYPESET_SECONDS,
 };
 use super::stress::check_tag;
 use super::{CapRule, CostRates, Currency, FloorRule, GroupSelector, GroupSpec, Money};

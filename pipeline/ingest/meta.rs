@@ -194,7 +194,7 @@ fn currency(path: &Path, t: &TextTable, row: usize) -> Result<Option<String>> {
         return Err(Error::data(
             path,
             format!(
-                "{}, column `currency`: `{}` is not an ISO 4217 code of three upper-case letters (e.g. XTS); leave it blank for the fund's base currency",
+                "{}, column `currency`: `{}` is not an ISO 4217 code of three upper-case letters (e.g. CHF); leave it blank for the fund's base currency",
                 t.place(row),
                 super::truncate(&v, 40)
             ),

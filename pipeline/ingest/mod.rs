@@ -410,6 +410,7 @@ fn window_findings(cfg: &Config, filled: &Kept, rows: usize) -> Vec<Check> {
             rows,
             filled.assets.len(),
             cfg.scenarios.horizon,
+            cfg.scenarios.frequency,
             &cfg.quality,
         ));
     }

@@ -358,14 +358,17 @@ pub fn history_length(
     observations: usize,
     assets: usize,
     horizon: usize,
+    frequency: crate::config::Frequency,
     opts: &QualityOptions,
 ) -> Check {
     let independent = observations.saturating_sub(1) / horizon.max(1);
     let need = opts.min_obs_per_asset * assets;
     let msg = format!(
-        "{observations} observations for {assets} assets ({:.1} per asset; rule of thumb ≥ {}), {independent} non-overlapping {horizon}-observation windows (rule of thumb ≥ number of assets)",
+        "{observations} observations for {assets} assets ({:.1} per asset; rule of thumb ≥ {}), {independent} non-overlapping {}-{} windows (rule of thumb ≥ number of assets)",
         observations as f64 / assets.max(1) as f64,
-        opts.min_obs_per_asset
+        opts.min_obs_per_asset,
+        horizon,
+        frequency.period()
     );
     if observations >= need && independent >= assets {
         Check::pass("quality.history_length", msg)

@@ -153,8 +153,9 @@ fn no_shocks(r: &RunResult) -> String {
         "no historical window was asked for (stress.historical_windows: 0)".to_string()
     } else {
         format!(
-            "the price history is too short for a {}-observation historical window",
-            c.scenarios.horizon
+            "the price history is too short for a {}-{} historical window",
+            c.scenarios.horizon,
+            c.scenarios.frequency.period()
         )
     };
     format!("No stress test was run: {file}, and {windows}.")
