@@ -230,6 +230,7 @@ pub fn results_json(r: &RunResult, inputs: &[crate::archive::InputFile], pack_id
         "backtest": backtest_json(r),
         "policy": policy_json(r),
         "bands": bands_json(r),
+        "liabilities": liabilities_json(r),
     });
     v["change"] = change_json(r, &v);
     v
@@ -287,6 +288,47 @@ fn policy_json(r: &RunResult) -> Value {
         "annualisation": "tracking_error_annualised = tracking_error × √horizons_per_year; horizons_per_year = observations a year in the scenario window ((rows − 1) over its calendar years of 365.25 days) ÷ the horizon in observations",
         "portfolios": portfolios,
         "active": active,
+    })
+}
+
+/// The liabilities block: present value, funded ratio, proxy, duration, the models' basis, and per
+/// portfolio the surplus VaR and CVaR at the model confidence (every level under `levels`), the hedge ratio
+/// and the funded ratio at the discount rate ±1 pp; `null` without liabilities.
+fn liabilities_json(r: &RunResult) -> Value {
+    let Some(l) = &r.liabilities else {
+        return Value::Null;
+    };
+    let c = r.config.confidence;
+    let portfolios: Map<String, Value> = l
+        .positions
+        .iter()
+        .map(|x| {
+            (
+                x.portfolio.clone(),
+                json!({
+                    "surplus_var": x.surplus.at(c).var,
+                    "surplus_cvar": x.surplus.at(c).cvar,
+                    "surplus_expected_return": x.surplus.expected_return,
+                    "surplus_volatility": x.surplus.volatility,
+                    "levels": x.surplus.tails,
+                    "funded_ratio_tail": x.funded_ratio_tail,
+                    "hedge_ratio": x.hedge_ratio,
+                    "funded_ratio_rate_down": x.funded_ratio_rate_down,
+                    "funded_ratio_rate_up": x.funded_ratio_rate_up,
+                }),
+            )
+        })
+        .collect();
+    json!({
+        "value": l.liabilities.value,
+        "funded_ratio": l.funded_ratio,
+        "proxy": l.liabilities.proxy,
+        "duration": l.liabilities.duration,
+        "convexity": l.liabilities.convexity,
+        "basis": l.basis.name(),
+        "rate_move": crate::analysis::liabilities::RATE_MOVE,
+        "funded_ratio_tail_share": crate::analysis::liabilities::FUNDED_TAIL,
+        "portfolios": portfolios,
     })
 }
 

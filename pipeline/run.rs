@@ -101,6 +101,8 @@ pub struct RunResult {
     pub reference: ScenarioSet,
     /// Every portfolio against the policy, when one is configured.
     pub policy: Option<crate::analysis::policy::PolicyReport>,
+    /// Every portfolio against the liabilities, when they are configured.
+    pub liabilities: Option<crate::analysis::liabilities::LiabilityReport>,
     /// The fund's earlier packs as the archive found them (none for a first pack): what results.json's
     /// `change` compares with.
     pub past: crate::analysis::change::Past,
@@ -222,7 +224,13 @@ pub fn solve_after(
         &policy_members,
         &portfolios,
     );
-    let checks = run_checks(&cfg, &data, &solved, &analysis, policy.as_ref(), &past);
+    let liabilities =
+        crate::analysis::liabilities::report(&cfg, &data, &set, &reference, &portfolios);
+    let mut checks = run_checks(&cfg, &data, &solved, &analysis, policy.as_ref(), &past);
+    checks.extend(crate::analysis::liabilities::checks(
+        liabilities.as_ref(),
+        &cfg,
+    ));
     let backend = cfg.backend;
     Ok(RunResult {
         config: cfg,
@@ -239,6 +247,7 @@ pub fn solve_after(
         analysis,
         reference,
         policy,
+        liabilities,
         past,
     })
 }

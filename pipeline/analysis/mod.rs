@@ -9,6 +9,7 @@ pub mod backtest;
 pub mod bands;
 pub mod change;
 pub mod frontier;
+pub mod liabilities;
 pub mod policy;
 pub mod resolve;
 pub mod stress;

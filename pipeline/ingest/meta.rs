@@ -18,6 +18,9 @@ pub struct AssetMeta {
     pub tags: BTreeMap<String, String>,
     pub min_weight: Option<f64>,
     pub max_weight: Option<f64>,
+    /// Modified duration in years (optional `duration` column): the asset's sensitivity to interest rates,
+    /// for the liabilities' hedge ratio; blank for an asset without one.
+    pub duration: Option<f64>,
     /// Where the row is in the metadata file ("row 2 (line 3)"), for messages.
     #[serde(skip)]
     pub place: String,
@@ -70,7 +73,14 @@ pub fn read_assets(path: &Path) -> Result<Vec<AssetMeta>> {
 }
 
 /// Metadata columns with a meaning of their own; every other column is a tag (`region`, `style`, …).
-const RESERVED: [&str; 5] = ["asset", "class", "name", "min_weight", "max_weight"];
+const RESERVED: [&str; 6] = [
+    "asset",
+    "class",
+    "name",
+    "min_weight",
+    "max_weight",
+    "duration",
+];
 
 /// The trimmed text of one cell, empty when the cell is blank.
 fn cell(t: &TextTable, c: usize, row: usize) -> String {
@@ -125,8 +135,32 @@ fn meta_row(
         tags,
         min_weight,
         max_weight,
+        duration: duration(path, t, row)?,
         place,
     })
+}
+
+/// The row's optional `duration`: blank, or years between 0 and
+/// [`crate::config::liabilities::MAX_DURATION_YEARS`].
+fn duration(path: &Path, t: &TextTable, row: usize) -> Result<Option<f64>> {
+    let Some(c) = t.find("duration") else {
+        return Ok(None);
+    };
+    let v = cell(t, c, row);
+    if v.is_empty() {
+        return Ok(None);
+    }
+    let max = crate::config::liabilities::MAX_DURATION_YEARS;
+    match v.parse::<f64>() {
+        Ok(d) if d.is_finite() && (0.0..=max).contains(&d) => Ok(Some(d)),
+        _ => Err(Error::data(
+            path,
+            format!(
+                "{}, column `duration`: `{v}` must be a modified duration in years between 0 and {max}",
+                t.place(row)
+            ),
+        )),
+    }
 }
 
 /// The row's optional `min_weight` and `max_weight`: each blank or a weight in [0, 1], the minimum not

@@ -13,6 +13,7 @@ mod demo;
 mod faults;
 mod inputs;
 mod layers;
+mod liabilities;
 mod models;
 mod money;
 mod parquet_bytes;

@@ -1,0 +1,188 @@
+//! Funded status and surplus risk: for the current portfolio and every model, the surplus (assets less
+//! liabilities) over the scenarios — its VaR, CVaR and volatility as fractions of the assets
+//! ([`risk::surplus`]), the funded ratio at the end of the horizon in the worst scenarios — and, with
+//! durations, the share of the liabilities' rate sensitivity the portfolio hedges and the funded ratio if
+//! the discount rate moves by ±1 percentage point.
+//!
+//! The liabilities' return in scenario k is the proxy series' (`liabilities.proxy`, a column of the
+//! reference scenario set). Reads the config, the market data, the reference set and the portfolios;
+//! writes nothing.
+
+use crate::config::{Basis, Config, Liabilities};
+use crate::diag::Check;
+use crate::ingest::MarketData;
+use crate::risk::{self, SurplusRisk};
+use crate::scenarios::ScenarioSet;
+
+/// The move of the discount rate the funded ratio is shown at, either way: one percentage point.
+pub const RATE_MOVE: f64 = 0.01;
+
+/// The tail the end-of-horizon funded ratio is averaged over: the worst 5% of scenarios.
+pub const FUNDED_TAIL: f64 = 0.05;
+
+/// One portfolio against the liabilities.
+#[derive(Debug, Clone)]
+pub struct SurplusPosition {
+    pub portfolio: String,
+    pub surplus: SurplusRisk,
+    /// The mean funded ratio at the end of the horizon over the worst [`FUNDED_TAIL`] of scenarios.
+    pub funded_ratio_tail: f64,
+    /// Σ A·w_i·D_i / (L·D_L): the share of the liabilities' rate sensitivity the assets hedge; `None`
+    /// without a liability duration or without asset durations.
+    pub hedge_ratio: Option<f64>,
+    /// The funded ratio with the discount rate 1 pp lower / higher, by duration (and the liabilities'
+    /// convexity when given); `None` as `hedge_ratio`.
+    pub funded_ratio_rate_down: Option<f64>,
+    pub funded_ratio_rate_up: Option<f64>,
+}
+
+/// Everything the pack reports about the liabilities.
+#[derive(Debug, Clone)]
+pub struct LiabilityReport {
+    pub liabilities: Liabilities,
+    /// F = fund.value / liabilities.value.
+    pub funded_ratio: f64,
+    pub basis: Basis,
+    /// The proxy's return per scenario, ℓ_k.
+    pub proxy_returns: Vec<f64>,
+    /// Whether the asset metadata gives any asset a duration.
+    pub asset_durations: bool,
+    pub positions: Vec<SurplusPosition>,
+}
+
+/// The funded ratio F = A / L, when liabilities and the fund's value are configured.
+pub fn funded_ratio(cfg: &Config) -> Option<f64> {
+    let l = cfg.liabilities.as_ref()?;
+    Some(cfg.fund.money.as_ref()?.value / l.value)
+}
+
+/// The proxy's return per scenario of `reference` (ingest made the proxy a reference series).
+pub fn proxy_returns(cfg: &Config, reference: &ScenarioSet) -> Option<Vec<f64>> {
+    let l = cfg.liabilities.as_ref()?;
+    let j = reference.assets.iter().position(|a| *a == l.proxy)?;
+    Some((0..reference.len()).map(|k| reference.row(k)[j]).collect())
+}
+
+/// The liabilities' part of the surplus loss per scenario, c_k = ℓ_k / F: what the surplus basis adds to
+/// every scenario's asset loss.
+pub fn offsets(cfg: &Config, reference: &ScenarioSet) -> Option<Vec<f64>> {
+    let f = funded_ratio(cfg)?;
+    Some(
+        proxy_returns(cfg, reference)?
+            .iter()
+            .map(|l| l / f)
+            .collect(),
+    )
+}
+
+/// The liabilities report, or `None` without liabilities.
+pub fn report(
+    cfg: &Config,
+    data: &MarketData,
+    set: &ScenarioSet,
+    reference: &ScenarioSet,
+    portfolios: &[(String, Vec<f64>)],
+) -> Option<LiabilityReport> {
+    let liabilities = cfg.liabilities.clone()?;
+    let f = funded_ratio(cfg)?;
+    let proxy = proxy_returns(cfg, reference)?;
+    let offsets: Vec<f64> = proxy.iter().map(|l| l / f).collect();
+    let durations: Vec<Option<f64>> = data.meta.iter().map(|m| m.duration).collect();
+    let asset_durations = durations.iter().any(Option::is_some);
+    let positions = portfolios
+        .iter()
+        .map(|(name, x)| {
+            let rate = Rates::of(&liabilities, f, x, &durations, asset_durations);
+            SurplusPosition {
+                portfolio: name.clone(),
+                surplus: risk::surplus(set, x, &offsets, &cfg.levels),
+                funded_ratio_tail: funded_tail(set, x, &proxy, f),
+                hedge_ratio: rate.as_ref().map(|r| r.hedge),
+                funded_ratio_rate_down: rate.as_ref().map(|r| r.down),
+                funded_ratio_rate_up: rate.as_ref().map(|r| r.up),
+            }
+        })
+        .collect();
+    Some(LiabilityReport {
+        liabilities,
+        funded_ratio: f,
+        basis: cfg.basis,
+        proxy_returns: proxy,
+        asset_durations,
+        positions,
+    })
+}
+
+/// The funded ratio at the end of the horizon in scenario k, F·(1 + r_k·x)/(1 + ℓ_k), averaged over the
+/// worst [`FUNDED_TAIL`] of scenarios (the CVaR of the funded ratio's fall, at level 1 − FUNDED_TAIL).
+fn funded_tail(set: &ScenarioSet, x: &[f64], proxy: &[f64], f: f64) -> f64 {
+    let ends: Vec<f64> = set
+        .portfolio_returns(x)
+        .iter()
+        .zip(proxy)
+        .map(|(r, l)| -(f * (1.0 + r) / (1.0 + l)))
+        .collect();
+    -risk::var_cvar(&ends, &set.probabilities, 1.0 - FUNDED_TAIL).cvar
+}
+
+/// The rate sensitivity of one portfolio against the liabilities.
+struct Rates {
+    hedge: f64,
+    down: f64,
+    up: f64,
+}
+
+impl Rates {
+    /// Needs the liabilities' duration (positive) and at least one asset duration; assets without one
+    /// count as insensitive to rates.
+    fn of(l: &Liabilities, f: f64, x: &[f64], d: &[Option<f64>], any: bool) -> Option<Rates> {
+        let dl = l.duration.filter(|&d| d > 0.0)?;
+        if !any {
+            return None;
+        }
+        let da: f64 = x.iter().zip(d).map(|(w, d)| w * d.unwrap_or(0.0)).sum();
+        let at = |dy: f64| {
+            let assets = value_change(da, None, dy);
+            let liabilities = value_change(dl, l.convexity, dy);
+            f * (1.0 + assets) / (1.0 + liabilities)
+        };
+        Some(Rates {
+            hedge: f * da / dl,
+            down: at(-RATE_MOVE),
+            up: at(RATE_MOVE),
+        })
+    }
+}
+
+/// The relative change in value for a yield move dy by modified duration D and convexity C:
+/// ΔP/P ≈ −D·dy + ½·C·dy² (Fabozzi, "Bond Markets, Analysis and Strategies", ch. 4: the duration and
+/// convexity approximation of the price–yield relationship).
+pub fn value_change(duration: f64, convexity: Option<f64>, dy: f64) -> f64 {
+    -duration * dy + 0.5 * convexity.unwrap_or(0.0) * dy * dy
+}
+
+/// What the checks table says about the liabilities: the funded ratio, the basis, and that the hedge ratio
+/// needs durations when they are missing.
+pub fn checks(report: Option<&LiabilityReport>, cfg: &Config) -> Vec<Check> {
+    let Some(r) = report else {
+        return vec![];
+    };
+    let mut out = vec![Check::pass(
+        "liabilities.funded_ratio",
+        format!(
+            "liabilities {:.0} against assets {:.0}: funded ratio {:.1}%; the liabilities move with the proxy series `{}`; the models' CVaR is on the {} basis (risk.basis)",
+            r.liabilities.value,
+            r.liabilities.value * r.funded_ratio,
+            r.funded_ratio * 100.0,
+            r.liabilities.proxy,
+            cfg.basis.name()
+        ),
+    )];
+    if r.liabilities.duration.is_none() || !r.asset_durations {
+        out.push(Check::warn(
+            "liabilities.durations",
+            "no hedge ratio and no funded ratio at the discount rate ±1 pp: they need liabilities.duration and a `duration` column in the asset metadata",
+        ));
+    }
+    out
+}

@@ -1,0 +1,341 @@
+//! Liabilities: surplus risk recomputed from the pack's scenario files, the asset-only figures when the
+//! liabilities neither move nor differ from the assets, surplus volatility against its closed form, the
+//! duration–convexity approximation against an exactly repriced bond, and the config's refusals.
+//!
+//! Definitions the expected values come from, independently of the library: the surplus return on assets
+//! s_k = r_k·x − ℓ_k/F (Sharpe & Tint 1990, "Liabilities — a new approach", Journal of Portfolio
+//! Management 16(2)); CVaR_c = min over ℓ of ℓ + 1/(1−c)·Σ p_k (L_k − ℓ)+ (Rockafellar & Uryasev 2000,
+//! Theorem 1), evaluated at every scenario loss; VaR_c the lower c-quantile of the losses.
+
+use super::common::{Fixture, Market, config, json, normal};
+use rand::SeedableRng;
+use std::path::PathBuf;
+
+/// Present value of the liabilities in the fixtures; the fund's value is 1,000,000.
+const FUND_VALUE: f64 = 1_000_000.0;
+
+/// Asset durations of the fixture's metadata: AS02 and AS04 (bonds) 6 and 12 years, equities none.
+const DURATIONS: [Option<f64>; 4] = [None, Some(6.0), None, Some(12.0)];
+
+/// A fund of four assets whose price file also holds `LIAB`, a series without a metadata row: `flat`
+/// keeps it at 100 (zero returns), else it follows the second bond with noise of its own. `extra` is
+/// appended to the config.
+fn fund_with_proxy(f: &Fixture, flat: bool, extra: &str) -> PathBuf {
+    let m = Market::new(4, "2022-01-03", "2024-06-28", 23);
+    let mut csv = String::new();
+    for (i, line) in m.wide_csv().lines().enumerate() {
+        if i == 0 {
+            csv.push_str(&format!("{line},LIAB\n"));
+            continue;
+        }
+        let bond: f64 = line.split(',').nth(4).unwrap().parse().unwrap();
+        let v = if flat {
+            100.0
+        } else {
+            1.2 * bond + ((i * 7) % 11) as f64 * 0.05
+        };
+        csv.push_str(&format!("{line},{v:.6}\n"));
+    }
+    f.write("data/prices.csv", &csv);
+    let mut assets = String::from("asset,class,max_weight,duration\n");
+    for ((a, c), d) in m.assets.iter().zip(&m.classes).zip(DURATIONS) {
+        let d = d.map_or(String::new(), |d| d.to_string());
+        assets.push_str(&format!("{a},{c},0.6,{d}\n"));
+    }
+    f.write("data/assets.csv", &assets);
+    f.write(
+        "data/holdings.csv",
+        "asset,weight\nAS01,0.25\nAS02,0.25\nAS03,0.25\nAS04,0.25\n",
+    );
+    f.write(
+        "fund.yaml",
+        &config(&format!(
+            "analysis:\n  backtest_years: 0\n  daily_var_check: false\n  band_resamples: 0\n{extra}"
+        )),
+    )
+}
+
+fn liabilities(value: f64, extra: &str) -> String {
+    format!(
+        "  value: {FUND_VALUE}\n  base_currency: CHF\nliabilities:\n  value: {value}\n  proxy: LIAB\n{extra}"
+    )
+}
+
+/// The config text with the fund section's value lines (indented under `fund:`) in place.
+fn with_fund_value(cfg: &PathBuf, f: &Fixture, fund: &str) -> PathBuf {
+    let text = std::fs::read_to_string(cfg).unwrap();
+    let text = text.replacen(
+        "  name: Test Fund (fictional)\n",
+        &format!("  name: Test Fund (fictional)\n{fund}"),
+        1,
+    );
+    f.write("fund.yaml", &text)
+}
+
+fn run_pack(f: &Fixture, cfg: &PathBuf) -> PathBuf {
+    let ran = f.run(&["run", cfg.to_str().unwrap(), "--quiet"]);
+    assert_eq!(ran.code, 0, "stderr: {}", ran.stderr);
+    PathBuf::from(ran.stdout.lines().last().unwrap())
+}
+
+/// Header names and rows of numbers after the label column of a CSV the pack wrote.
+fn table(path: &PathBuf) -> (Vec<String>, Vec<Vec<f64>>) {
+    let text = std::fs::read_to_string(path).unwrap();
+    let mut lines = text.lines();
+    let header: Vec<String> = lines.next().unwrap().split(',').map(String::from).collect();
+    let rows = lines
+        .map(|l| l.split(',').skip(1).map(|c| c.parse().unwrap()).collect())
+        .collect();
+    (header[1..].to_vec(), rows)
+}
+
+/// VaR_c (lower c-quantile) and CVaR_c (Rockafellar–Uryasev minimisation at every loss), equal weights.
+fn var_cvar(losses: &[f64], c: f64) -> (f64, f64) {
+    let p = 1.0 / losses.len() as f64;
+    let mut sorted = losses.to_vec();
+    sorted.sort_by(f64::total_cmp);
+    let var = sorted[((c * losses.len() as f64) - 1e-9).ceil() as usize - 1];
+    let cvar = losses
+        .iter()
+        .map(|&l| l + losses.iter().map(|x| p * (x - l).max(0.0)).sum::<f64>() / (1.0 - c))
+        .fold(f64::INFINITY, f64::min);
+    (var, cvar)
+}
+
+/// Every portfolio of a pack, by name, in the order of `assets`.
+fn portfolios(r: &serde_json::Value, assets: &[String]) -> Vec<(String, Vec<f64>)> {
+    let mut out = vec![("current".to_string(), vec![0.25; 4])];
+    for (name, m) in r["models"].as_object().unwrap() {
+        if let Some(w) = m["weights"].as_object() {
+            out.push((
+                name.clone(),
+                assets.iter().map(|a| w[a].as_f64().unwrap()).collect(),
+            ));
+        }
+    }
+    assert!(out.len() >= 3, "{}", r["models"]);
+    out
+}
+
+#[test]
+fn surplus_risk_hedge_ratio_and_rate_moves_recomputed_for_every_portfolio() {
+    let f = Fixture::new();
+    let cfg = fund_with_proxy(&f, false, "");
+    let cfg = with_fund_value(
+        &cfg,
+        &f,
+        &liabilities(1_050_000.0, "  duration: 14\n  convexity: 250\n"),
+    );
+    let dir = run_pack(&f, &cfg);
+    let r = json(&dir.join("results.json"));
+    let (assets, rows) = table(&dir.join("scenarios.csv"));
+    let (series, proxy_rows) = table(&dir.join("reference-scenarios.csv"));
+    assert_eq!(
+        series,
+        ["LIAB"],
+        "the proxy is a column of reference-scenarios.csv"
+    );
+    assert_eq!(assets, ["AS01", "AS02", "AS03", "AS04"]);
+    let l = &r["liabilities"];
+    let fr = FUND_VALUE / 1_050_000.0;
+    assert!((l["funded_ratio"].as_f64().unwrap() - fr).abs() < 1e-12);
+    assert_eq!(l["value"], 1_050_000.0);
+    assert_eq!(l["proxy"], "LIAB");
+    assert_eq!(l["duration"], 14.0);
+    assert_eq!(l["basis"], "assets");
+    for (name, x) in portfolios(&r, &assets) {
+        // s_k = r_k·x − ℓ_k/F; losses −s_k.
+        let losses: Vec<f64> = rows
+            .iter()
+            .zip(&proxy_rows)
+            .map(|(row, p)| p[0] / fr - row.iter().zip(&x).map(|(r, w)| r * w).sum::<f64>())
+            .collect();
+        let (var, cvar) = var_cvar(&losses, 0.95);
+        let got = &l["portfolios"][name.as_str()];
+        assert!(
+            (got["surplus_var"].as_f64().unwrap() - var).abs() < 1e-9,
+            "{name}: {got}"
+        );
+        assert!(
+            (got["surplus_cvar"].as_f64().unwrap() - cvar).abs() < 1e-9,
+            "{name}: {got}"
+        );
+        for lv in got["levels"].as_array().unwrap() {
+            let c = lv["level"].as_f64().unwrap();
+            assert!((lv["cvar"].as_f64().unwrap() - var_cvar(&losses, c).1).abs() < 1e-9);
+        }
+        // Hedge ratio Σ A·w_i·D_i / (L·D_L) (the issue's definition).
+        let dollar: f64 = x
+            .iter()
+            .zip(DURATIONS)
+            .map(|(w, d)| FUND_VALUE * w * d.unwrap_or(0.0))
+            .sum();
+        let hedge = dollar / (1_050_000.0 * 14.0);
+        assert!(
+            (got["hedge_ratio"].as_f64().unwrap() - hedge).abs() < 1e-12,
+            "{name}"
+        );
+        // Funded ratio at ±1 pp: A(1 − D_A·Δy) / L(1 − D_L·Δy + ½·C_L·Δy²), D_A the value-weighted duration.
+        for (key, dy) in [
+            ("funded_ratio_rate_down", -0.01),
+            ("funded_ratio_rate_up", 0.01),
+        ] {
+            let a = FUND_VALUE - dollar * dy;
+            let liab = 1_050_000.0 * (1.0 - 14.0 * dy + 0.5 * 250.0 * dy * dy);
+            assert!(
+                (got[key].as_f64().unwrap() - a / liab).abs() < 1e-12,
+                "{name} {key}"
+            );
+        }
+    }
+}
+
+#[test]
+fn a_flat_proxy_at_full_funding_gives_the_asset_only_figures() {
+    let f = Fixture::new();
+    let cfg = fund_with_proxy(&f, true, "");
+    let cfg = with_fund_value(&cfg, &f, &liabilities(FUND_VALUE, ""));
+    let dir = run_pack(&f, &cfg);
+    let r = json(&dir.join("results.json"));
+    let l = &r["liabilities"];
+    assert_eq!(l["funded_ratio"], 1.0);
+    let current = &l["portfolios"]["current"];
+    assert_eq!(current["surplus_cvar"], r["current"]["levels"][0]["cvar"]);
+    let mut compared = 0;
+    for (name, m) in r["models"].as_object().unwrap() {
+        if m["weights"].is_object() {
+            let got = &l["portfolios"][name.as_str()];
+            assert!(
+                (got["surplus_var"].as_f64().unwrap() - m["var"].as_f64().unwrap()).abs() < 1e-15,
+                "{name}"
+            );
+            assert!(
+                (got["surplus_cvar"].as_f64().unwrap() - m["cvar"].as_f64().unwrap()).abs() < 1e-15,
+                "{name}"
+            );
+            assert!(
+                (got["surplus_volatility"].as_f64().unwrap()
+                    - m["risk"]["volatility"].as_f64().unwrap())
+                .abs()
+                    < 1e-15
+            );
+            compared += 1;
+        }
+    }
+    assert!(compared >= 2);
+    // No liabilities' duration: no hedge ratio, and a check says what it needs.
+    assert!(current["hedge_ratio"].is_null());
+    assert!(
+        r["checks"]
+            .as_array()
+            .unwrap()
+            .iter()
+            .any(|c| c["id"] == "liabilities.durations")
+    );
+}
+
+#[test]
+fn surplus_volatility_matches_the_closed_form_on_a_bivariate_normal_sample() {
+    // Var(S) = A²σ_A² + L²σ_L² − 2·A·L·ρ·σ_A·σ_L for the surplus S = A·R_A − L·R_L (Waring 2011, "Pension
+    // Finance", ch. 5, surplus risk; the variance of a difference of correlated variables).
+    let (a, l) = (100.0, 110.0);
+    let (sa, sl, rho) = (0.10, 0.07, 0.4);
+    let n = 200_000;
+    let mut rng = rand::rngs::StdRng::seed_from_u64(19);
+    let (mut ra, mut rl) = (Vec::with_capacity(n), Vec::with_capacity(n));
+    for _ in 0..n {
+        let (z1, z2) = (normal(&mut rng), normal(&mut rng));
+        ra.push(0.05 + sa * z1);
+        rl.push(0.03 + sl * (rho * z1 + (1.0 - rho * rho).sqrt() * z2));
+    }
+    let set = tailpack::scenarios::ScenarioSet::from_matrix(
+        vec!["A".into()],
+        ra,
+        vec![1.0 / n as f64; n],
+    )
+    .unwrap();
+    let f = a / l;
+    let offsets: Vec<f64> = rl.iter().map(|r| r / f).collect();
+    let got = tailpack::risk::surplus(&set, &[1.0], &offsets, &[0.95]);
+    let want = (a * a * sa * sa + l * l * sl * sl - 2.0 * a * l * rho * sa * sl).sqrt();
+    // The surplus volatility is a fraction of the assets; its sampling error is about σ/√(2n) (0.16%).
+    let rel = (got.volatility * a - want).abs() / want;
+    assert!(
+        rel < 0.01,
+        "surplus volatility {} vs {want}",
+        got.volatility * a
+    );
+    // The expected surplus return: E[R_A] − E[R_L]/F within sampling error (σ_S/√n ≈ 0.0002 of the assets).
+    assert!((got.expected_return - (0.05 - 0.03 / f)).abs() < 0.001);
+}
+
+#[test]
+fn duration_and_convexity_approximate_an_exactly_repriced_bond() {
+    // A 20-year annual-pay 5% bond at a 5% yield (a worked example in the manner of Fabozzi, "Bond Markets,
+    // Analysis and Strategies", ch. 4): price, modified duration and convexity from its cash flows, then
+    // the approximation ΔP/P ≈ −D·Δy + ½·C·Δy² against the exact price at 4% and 6%.
+    let price = |y: f64| -> f64 {
+        (1..=20).map(|t| 5.0 / (1.0 + y).powi(t)).sum::<f64>() + 100.0 / (1.0 + y).powi(20)
+    };
+    let y = 0.05;
+    let p0 = price(y);
+    assert!((p0 - 100.0).abs() < 1e-9, "a par bond");
+    let cf = |t: i32| if t == 20 { 105.0 } else { 5.0 };
+    let macaulay: f64 = (1..=20)
+        .map(|t| t as f64 * cf(t) / (1.0 + y).powi(t))
+        .sum::<f64>()
+        / p0;
+    let modified = macaulay / (1.0 + y);
+    let convexity: f64 = (1..=20)
+        .map(|t| (t * (t + 1)) as f64 * cf(t) / (1.0 + y).powi(t + 2))
+        .sum::<f64>()
+        / p0;
+    // A par bond's Macaulay duration in closed form, (1 + y)/y · (1 − (1 + y)^−n) (Fabozzi, ch. 4).
+    let closed = (1.0 + y) / y * (1.0 - (1.0 + y).powi(-20));
+    assert!((macaulay - closed).abs() < 1e-9, "{macaulay} vs {closed}");
+    for dy in [-0.01, 0.01] {
+        let exact = price(y + dy) / p0 - 1.0;
+        let by_duration = tailpack::analysis::liabilities::value_change(modified, None, dy);
+        let with_convexity =
+            tailpack::analysis::liabilities::value_change(modified, Some(convexity), dy);
+        assert!(
+            (with_convexity - exact).abs() < 0.002,
+            "{dy}: {with_convexity} vs {exact}"
+        );
+        assert!(
+            (with_convexity - exact).abs() < (by_duration - exact).abs() / 5.0,
+            "{dy}"
+        );
+    }
+}
+
+#[test]
+fn liabilities_need_the_fund_value_and_a_non_investable_proxy() {
+    let f = Fixture::new();
+    let cfg = fund_with_proxy(&f, false, "liabilities:\n  value: 900000\n  proxy: LIAB\n");
+    let ran = f.run(&["check", cfg.to_str().unwrap()]);
+    assert_eq!(ran.code, 2, "{}", ran.stderr);
+    assert!(
+        ran.stderr.contains("fund.value") && ran.stderr.contains("funded ratio"),
+        "{}",
+        ran.stderr
+    );
+    let cfg = fund_with_proxy(&f, false, "risk:\n  basis: surplus\n");
+    let ran = f.run(&["check", cfg.to_str().unwrap()]);
+    assert_eq!(ran.code, 2, "{}", ran.stderr);
+    assert!(ran.stderr.contains("risk.basis"), "{}", ran.stderr);
+    let cfg = fund_with_proxy(&f, false, "");
+    let cfg = with_fund_value(
+        &cfg,
+        &f,
+        &liabilities(900_000.0, "").replace("proxy: LIAB", "proxy: AS02"),
+    );
+    let ran = f.run(&["check", cfg.to_str().unwrap()]);
+    assert_eq!(ran.code, 2, "{}", ran.stderr);
+    assert!(
+        ran.stderr
+            .contains("liabilities.proxy: series `AS02` is an asset of the universe"),
+        "{}",
+        ran.stderr
+    );
+}
