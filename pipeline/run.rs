@@ -200,10 +200,18 @@ pub fn solve_after(
         policy_members,
     } = prepared;
     let models_start = std::time::Instant::now();
-    let benchmark = active_benchmark(&cfg, &set, &reference);
+    let basis = crate::analysis::liabilities::basis_set(&cfg, &set, &reference);
+    let model_set = basis.as_ref().map_or(&set, |(s, _)| s);
+    let benchmark = active_benchmark(&cfg, &set, &reference).map(|(b, budget)| {
+        let c = basis.as_ref().map(|(_, c)| c.as_slice());
+        (
+            crate::analysis::liabilities::benchmark_on_basis(b, c),
+            budget,
+        )
+    });
     let p = Problem {
-        set: &set,
-        mu: set.mean(),
+        set: model_set,
+        mu: model_set.mean(),
         confidence: cfg.confidence,
         feasible: &fs,
         backend: cfg.backend,
@@ -342,7 +350,7 @@ fn solve_models(p: &Problem, cfg: &Config, data: &MarketData) -> Solved {
     let reports = solution
         .families
         .into_iter()
-        .map(|f| report(f.family, f.outcome, p, data, cfg))
+        .map(|f| report(f.family, on_basis(cfg, f.outcome), p, data, cfg))
         .collect();
     Solved {
         current,
@@ -351,6 +359,18 @@ fn solve_models(p: &Problem, cfg: &Config, data: &MarketData) -> Solved {
         preconditions: solution.preconditions,
         reports,
     }
+}
+
+/// A `not_applicable` outcome on the surplus basis, with what that means for a fund with liabilities.
+fn on_basis(cfg: &Config, mut o: Outcome) -> Outcome {
+    if cfg.basis == config::Basis::Surplus && o.status == Status::NotApplicable {
+        let m = o.message.take().unwrap_or_default();
+        o.message = Some(format!(
+            "{m}; {}",
+            crate::analysis::liabilities::RATIO_ON_SURPLUS
+        ));
+    }
+    o
 }
 
 /// The portfolios the analysis compares, by name: the current holdings (when given), then each family's.

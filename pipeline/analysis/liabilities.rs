@@ -186,3 +186,34 @@ pub fn checks(report: Option<&LiabilityReport>, cfg: &Config) -> Vec<Check> {
     }
     out
 }
+
+/// On the surplus basis (`risk.basis: surplus`), the scenario set the models work on — every return less
+/// the liabilities' part c_k = ℓ_k/F of scenario k ([`ScenarioSet::less_per_scenario`]) — and the c_k;
+/// `None` on the assets basis. `reference` holds the proxy's returns on the rows of `set`. Every LP on
+/// the result (each family, the auxiliary LPs, the frontier, a backtest month, a resample) then keeps,
+/// minimises or bounds the surplus CVaR and the expected surplus return, and the verification and risk
+/// profiles measure the same loss: the one place the basis enters.
+pub fn basis_set(
+    cfg: &Config,
+    set: &ScenarioSet,
+    reference: &ScenarioSet,
+) -> Option<(ScenarioSet, Vec<f64>)> {
+    if cfg.basis != Basis::Surplus {
+        return None;
+    }
+    let c = offsets(cfg, reference)?;
+    Some((set.less_per_scenario(&c), c))
+}
+
+/// A benchmark's returns moved onto the surplus basis: b_k − c_k, so that the active loss
+/// (b_k − c_k) − (r_k·x − c_k) stays b_k − r_k·x.
+pub fn benchmark_on_basis(b: Vec<f64>, c: Option<&[f64]>) -> Vec<f64> {
+    match c {
+        Some(c) => b.iter().zip(c).map(|(b, c)| b - c).collect(),
+        None => b,
+    }
+}
+
+/// The sentence a `not_applicable` ratio model gets on the surplus basis: what its failed precondition
+/// means for a fund with liabilities.
+pub const RATIO_ON_SURPLUS: &str = "on the surplus basis the ratio is expected surplus return per unit of surplus CVaR: it needs every portfolio to carry surplus risk and some portfolio whose expected return beats the liabilities' expected growth (the proxy's mean return divided by the funded ratio); a plan whose assets cannot beat its liabilities' growth over the horizon has no such portfolio, which is common, and the other two models still apply";

@@ -339,3 +339,234 @@ fn liabilities_need_the_fund_value_and_a_non_investable_proxy() {
         ran.stderr
     );
 }
+
+/// A random surplus instance: N assets (returns driven by one factor), the liabilities' return ℓ_k (rate
+/// sensitive: loaded on the same factor with noise of its own) and funded ratio `f`; long-only X with
+/// upper bounds, a group, current holdings and cost rates.
+struct SurplusCase {
+    set: tailpack::scenarios::ScenarioSet,
+    offsets: Vec<f64>,
+    fs: tailpack::models::FeasibleSet,
+    c: f64,
+}
+
+fn surplus_case(seed: u64, liability_drift: f64) -> SurplusCase {
+    use rand::RngExt;
+    let mut rng = rand::rngs::StdRng::seed_from_u64(300 + seed);
+    let n = 4 + (seed as usize % 3);
+    let s = 160 + 60 * (seed as usize % 3);
+    let (mut returns, mut offsets) = (Vec::with_capacity(n * s), Vec::with_capacity(s));
+    let f = 0.85 + 0.05 * seed as f64;
+    for _ in 0..s {
+        let z = normal(&mut rng) * if rng.random::<f64>() < 0.1 { 3.0 } else { 1.0 };
+        for i in 0..n {
+            let beta = 0.1 + 0.2 * i as f64;
+            returns.push(0.002 + 0.001 * i as f64 + 0.02 * beta * z + 0.01 * normal(&mut rng));
+        }
+        offsets.push((liability_drift + 0.012 * z + 0.006 * normal(&mut rng)) / f);
+    }
+    let probs = if seed % 2 == 0 {
+        vec![1.0 / s as f64; s]
+    } else {
+        tailpack::scenarios::decayed((0..s).rev().map(|a| a as f64), 60.0)
+    };
+    let set = tailpack::scenarios::ScenarioSet::from_matrix(
+        (0..n).map(|i| format!("A{i}")).collect(),
+        returns,
+        probs,
+    )
+    .unwrap();
+    let fs = tailpack::models::FeasibleSet {
+        lower: vec![0.0; n],
+        upper: (0..n).map(|i| if i % 2 == 0 { 0.5 } else { 0.7 }).collect(),
+        groups: vec![tailpack::models::Group {
+            name: "g".into(),
+            members: vec![n - 1, n - 2],
+            min: 0.1,
+            max: 0.8,
+        }],
+        turnover_max: None,
+        current: Some(vec![1.0 / n as f64; n]),
+        cost_rates: (0..n).map(|i| 0.001 * (1 + i) as f64).collect(),
+    };
+    SurplusCase {
+        set,
+        offsets,
+        fs,
+        c: [0.9, 0.95][seed as usize % 2],
+    }
+}
+
+/// Runs `tests/reference/cvar_reference.py` (scipy.optimize.linprog, method "highs") on a surplus case,
+/// the liabilities given as `liability_offsets` c_k = ℓ_k/F beside the assets' own returns.
+fn scipy_surplus(case: &SurplusCase, cap: f64, floor: f64) -> serde_json::Value {
+    let rows: Vec<Vec<f64>> = (0..case.set.len())
+        .map(|k| case.set.row(k).to_vec())
+        .collect();
+    let input = serde_json::json!({
+        "confidence": case.c, "probabilities": case.set.probabilities, "returns": rows,
+        "lower": case.fs.lower, "upper": case.fs.upper,
+        "groups": case.fs.groups.iter().map(|g| serde_json::json!({"members": g.members, "min": g.min, "max": g.max})).collect::<Vec<_>>(),
+        "turnover_max": null, "current": case.fs.current, "cost_rates": case.fs.cost_rates,
+        "cvar_cap": cap, "return_floor": floor, "liability_offsets": case.offsets,
+    });
+    let dir = tempfile::tempdir().unwrap();
+    let path = dir.path().join("instance.json");
+    std::fs::write(&path, input.to_string()).unwrap();
+    let out = std::process::Command::new("python3")
+        .arg(super::common::repo().join("tests/reference/cvar_reference.py"))
+        .arg(&path)
+        .output()
+        .expect("python3 must be installed (see README prerequisites)");
+    assert!(
+        out.status.success(),
+        "reference solver failed (is scipy installed?): {}",
+        String::from_utf8_lossy(&out.stderr)
+    );
+    serde_json::from_slice(&out.stdout).unwrap()
+}
+
+fn near(a: f64, b: f64, tol: f64, what: &str) {
+    assert!(
+        (a - b).abs() <= tol * (1.0 + b.abs()),
+        "{what}: tailpack {a} vs reference {b}"
+    );
+}
+
+/// The three families on the surplus basis (`risk.basis: surplus`: the models' set less c_k in every
+/// scenario) against scipy's HiGHS `linprog` on the surplus loss c_k − r_k·x written out in its own
+/// Rockafellar–Uryasev rows (`tests/reference/cvar_reference.py`, the ratio by Dinkelbach's method),
+/// with costs, bounds and a group, by the direct LP and the cutting planes.
+#[test]
+fn surplus_models_match_scipy_highs_on_random_instances() {
+    use tailpack::models::{self, Method, Problem};
+    for seed in 0..4u64 {
+        let case = surplus_case(seed, 0.001);
+        let basis = case.set.less_per_scenario(&case.offsets);
+        let p = Problem {
+            set: &basis,
+            mu: basis.mean(),
+            confidence: case.c,
+            feasible: &case.fs,
+            backend: tailpack::config::Backend::Highs,
+            active: None,
+        };
+        let least = p.min_cvar(None).unwrap();
+        let cap = least.objective * 1.3;
+        let (low, high) = (
+            models::net_return(&p, &least.weights),
+            p.max_return(None).unwrap().objective,
+        );
+        let floor = low + 0.5 * (high - low);
+        let r = scipy_surplus(&case, cap, floor);
+        let of = |m: &str| r[m]["objective"].as_f64().unwrap();
+        for method in [Method::Direct, Method::Cuts] {
+            let what = |m: &str| format!("seed {seed} {method:?} {m} on the surplus basis");
+            let mr = p.max_return_by(Some(cap), method).unwrap();
+            near(mr.objective, of("max_return"), 1e-7, &what("max_return"));
+            let mc = p.min_cvar_by(Some(floor), method).unwrap();
+            near(mc.objective, of("min_cvar"), 1e-7, &what("min_cvar"));
+            near(
+                p.min_cvar_by(None, method).unwrap().objective,
+                of("min_cvar_over_x"),
+                1e-7,
+                &what("min surplus CVaR over X"),
+            );
+            let ratio = p.max_ratio_by(method).unwrap();
+            // The ratio of the portfolio found, on the surplus figures of the original set.
+            let s = tailpack::risk::surplus(&case.set, &ratio.weights, &case.offsets, &[case.c]);
+            let got =
+                (s.expected_return - models::cost(&case.fs, &ratio.weights)) / s.at(case.c).cvar;
+            near(
+                got,
+                of("max_ratio"),
+                1e-6,
+                &what("max_ratio (Dinkelbach reference)"),
+            );
+            // The capped max-return portfolio keeps the cap in surplus CVaR, recomputed from the surplus.
+            let s = tailpack::risk::surplus(&case.set, &mr.weights, &case.offsets, &[case.c]);
+            assert!(s.at(case.c).cvar <= cap + 1e-7, "{}", what("cap"));
+        }
+    }
+}
+
+/// A plan whose liabilities grow faster in expectation than any portfolio: the ratio model is not
+/// applicable on the surplus basis, as the scipy reference finds, and the outcome says why in words.
+#[test]
+fn the_ratio_model_is_not_applicable_when_no_portfolio_beats_the_liabilities() {
+    use tailpack::models::{self, Premises, Problem, Status, Targets};
+    let case = surplus_case(1, 0.02);
+    let basis = case.set.less_per_scenario(&case.offsets);
+    let p = Problem {
+        set: &basis,
+        mu: basis.mean(),
+        confidence: case.c,
+        feasible: &case.fs,
+        backend: tailpack::config::Backend::Highs,
+        active: None,
+    };
+    let r = scipy_surplus(&case, 1.0, -1.0);
+    assert_eq!(
+        r["max_ratio"]["status"], "not_applicable",
+        "{}",
+        r["max_ratio"]
+    );
+    let highest = r["max_return_over_x"]["objective"].as_f64().unwrap();
+    assert!(highest <= 0.0);
+    let targets = Targets {
+        cap: tailpack::config::CapRule::Value(1.0),
+        floor: tailpack::config::FloorRule::Value(-1.0),
+        current: None,
+    };
+    let solution = models::solve_all(&p, &targets, Premises::Establish);
+    let ratio = &solution.families[2];
+    assert_eq!(ratio.family, models::Family::MaxRatio);
+    assert_eq!(ratio.outcome.status, Status::NotApplicable);
+    near(
+        solution.preconditions.max_return.unwrap(),
+        highest,
+        1e-7,
+        "max expected surplus return over X",
+    );
+}
+
+/// `risk.basis: surplus` in a run: the cap binds on the surplus CVaR recomputed from the pack's scenario
+/// files, and every model's reported CVaR is its surplus CVaR.
+#[test]
+fn a_surplus_basis_run_caps_the_surplus_cvar_recomputed_from_the_scenario_files() {
+    let f = Fixture::new();
+    let extra =
+        "risk:\n  basis: surplus\nmodels:\n  max_return:\n    cvar_cap:\n      times_min: 1.2\n";
+    let cfg = fund_with_proxy(&f, false, extra);
+    let cfg = with_fund_value(&cfg, &f, &liabilities(1_050_000.0, "  duration: 14\n"));
+    let dir = run_pack(&f, &cfg);
+    let r = json(&dir.join("results.json"));
+    assert_eq!(r["liabilities"]["basis"], "surplus");
+    let (assets, rows) = table(&dir.join("scenarios.csv"));
+    let (_, proxy_rows) = table(&dir.join("reference-scenarios.csv"));
+    let fr = FUND_VALUE / 1_050_000.0;
+    let surplus_cvar = |x: &[f64]| {
+        let losses: Vec<f64> = rows
+            .iter()
+            .zip(&proxy_rows)
+            .map(|(row, p)| p[0] / fr - row.iter().zip(x).map(|(r, w)| r * w).sum::<f64>())
+            .collect();
+        var_cvar(&losses, 0.95).1
+    };
+    let ps = portfolios(&r, &assets);
+    let weights = |name: &str| ps.iter().find(|(n, _)| n == name).unwrap().1.clone();
+    // The least surplus CVaR over X (the auxiliary LP's figure), no lower than the min-CVaR model's.
+    let least = r["preconditions"]["min_cvar"].as_f64().unwrap();
+    assert!(least <= surplus_cvar(&weights("min_cvar")) + 1e-9);
+    let capped = surplus_cvar(&weights("max_return"));
+    assert!(capped <= 1.2 * least + 1e-7, "cap 1.2 × {least}: {capped}");
+    assert!(
+        capped >= 1.2 * least - 1e-6,
+        "the cap binds: {capped} vs {}",
+        1.2 * least
+    );
+    for (name, x) in &ps[1..] {
+        let reported = r["models"][name.as_str()]["cvar"].as_f64().unwrap();
+        assert!((reported - surplus_cvar(x)).abs() < 1e-9, "{name}");
+    }
+}
