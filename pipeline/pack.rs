@@ -389,6 +389,7 @@ fn backtest_json(r: &RunResult) -> Value {
     let Some(b) = &r.analysis.backtest else {
         return Value::Null;
     };
+    let surplus = r.config.basis == crate::config::Basis::Surplus;
     let models: Map<String, Value> = b.tracks.iter().map(|t| (t.model.to_string(), json!({
         "observations": t.observations, "exceptions": t.exceptions, "expected_exceptions": t.expected_exceptions,
         "kupiec": t.kupiec, "christoffersen": t.christoffersen, "mean_prediction_error": t.mean_prediction_error,
@@ -396,17 +397,19 @@ fn backtest_json(r: &RunResult) -> Value {
         "months": t.rows.iter().map(|row| json!({
             "date": row.date.to_string(), "next": row.next.to_string(), "status": row.status,
             "predicted_return": row.predicted_return, "realised_return": row.realised_return,
-            "predicted_minus_realised": row.predicted_return.zip(row.realised_return).map(|(p, q)| p - q),
+            "predicted_minus_realised": row.predicted_return.zip(if surplus { row.realised_surplus_return } else { row.realised_return }).map(|(p, q)| p - q),
             "predicted_var": row.predicted_var, "predicted_cvar": row.predicted_cvar, "turnover": row.turnover,
             "cost": row.cost, "realised_return_net": row.realised_return_net,
             "wealth": row.wealth, "exception": row.exception, "active_return": row.active_return,
             "weights": row.weights.as_ref().map(|w| weight_map(&r.data.assets, w)),
+            "realised_surplus_return": row.realised_surplus_return,
         })).collect::<Vec<_>>(),
     }))).collect();
     json!({"confidence": b.confidence, "rebalances": b.rebalances.len(), "first": b.rebalances.first().map(|d| d.to_string()),
            "last": b.rebalances.last().map(|d| d.to_string()),
            "skipped": b.skipped.iter().map(|(d, why)| json!({"date": d.to_string(), "reason": why})).collect::<Vec<_>>(),
-           "benchmark_returns": b.benchmark, "models": models})
+           "benchmark_returns": b.benchmark, "models": models,
+           "liability_proxy_returns": b.liabilities, "basis": r.config.basis.name()})
 }
 
 /// A return with its sign, e.g. `+0.31%`.

@@ -570,3 +570,60 @@ fn a_surplus_basis_run_caps_the_surplus_cvar_recomputed_from_the_scenario_files(
         assert!((reported - surplus_cvar(x)).abs() < 1e-9, "{name}");
     }
 }
+
+/// The walk-forward backtest on the surplus basis: each month's realised surplus return is the realised
+/// return less the proxy's realised return (read from the price file) over the funded ratio, and the VaR
+/// exceptions compare the predicted (surplus) VaR with it.
+#[test]
+fn the_backtest_on_the_surplus_basis_counts_exceptions_against_realised_surplus_returns() {
+    let f = Fixture::new();
+    let cfg = fund_with_proxy(&f, false, "risk:\n  basis: surplus\n");
+    let text = std::fs::read_to_string(&cfg)
+        .unwrap()
+        .replace("backtest_years: 0", "backtest_years: 1");
+    let cfg = f.write("fund.yaml", &text);
+    let cfg = with_fund_value(&cfg, &f, &liabilities(1_050_000.0, ""));
+    let dir = run_pack(&f, &cfg);
+    let r = json(&dir.join("results.json"));
+    let prices = std::fs::read_to_string(f.path("data/prices.csv")).unwrap();
+    let proxy: std::collections::BTreeMap<String, f64> = prices
+        .lines()
+        .skip(1)
+        .map(|l| {
+            let cells: Vec<&str> = l.split(',').collect();
+            (cells[0].to_string(), cells[5].parse().unwrap())
+        })
+        .collect();
+    let fr = FUND_VALUE / 1_050_000.0;
+    let b = &r["backtest"];
+    assert_eq!(b["basis"], "surplus");
+    let mut checked = 0;
+    for (name, t) in b["models"].as_object().unwrap() {
+        let mut exceptions = 0;
+        for m in t["months"].as_array().unwrap() {
+            let (Some(realised), Some(var)) =
+                (m["realised_return"].as_f64(), m["predicted_var"].as_f64())
+            else {
+                continue;
+            };
+            let l = proxy[m["next"].as_str().unwrap()] / proxy[m["date"].as_str().unwrap()] - 1.0;
+            let surplus = realised - l / fr;
+            let got = m["realised_surplus_return"].as_f64().unwrap();
+            assert!((got - surplus).abs() < 1e-12, "{name} {}", m["date"]);
+            assert_eq!(
+                m["exception"].as_bool().unwrap(),
+                -surplus > var,
+                "{name} {}",
+                m["date"]
+            );
+            exceptions += usize::from(-surplus > var);
+            checked += 1;
+        }
+        assert_eq!(
+            t["exceptions"].as_u64().unwrap() as usize,
+            exceptions,
+            "{name}"
+        );
+    }
+    assert!(checked >= 20, "{checked} months checked");
+}
