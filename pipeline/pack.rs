@@ -315,6 +315,9 @@ fn liabilities_json(r: &RunResult) -> Value {
                     "hedge_ratio": x.hedge_ratio,
                     "funded_ratio_rate_down": x.funded_ratio_rate_down,
                     "funded_ratio_rate_up": x.funded_ratio_rate_up,
+                    "stress": x.stress.iter().zip(&r.analysis.shocks).map(|(s, k)| json!({
+                        "shock": k.name, "surplus_change": s.surplus_change, "funded_ratio": s.funded_ratio,
+                    })).collect::<Vec<_>>(),
                 }),
             )
         })
@@ -328,6 +331,7 @@ fn liabilities_json(r: &RunResult) -> Value {
         "basis": l.basis.name(),
         "rate_move": crate::analysis::liabilities::RATE_MOVE,
         "funded_ratio_tail_share": crate::analysis::liabilities::FUNDED_TAIL,
+        "stress_proxy_returns": r.analysis.shocks.iter().map(|k| json!({"shock": k.name, "proxy_return": k.liabilities})).collect::<Vec<_>>(),
         "portfolios": portfolios,
     })
 }

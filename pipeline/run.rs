@@ -146,7 +146,10 @@ pub fn validate(cfg: Config, data: MarketData) -> Result<Prepared> {
     let policy_members = models::policy_lines(&cfg, &data)?;
     let feasible = models::feasible_set(&cfg, &data)?;
     let shocks = match (&cfg.stress_file, &cfg.stress) {
-        (Some(path), Some(file)) => stress::defined(path, file, &data)?,
+        (Some(path), Some(file)) => {
+            let proxy = cfg.liabilities.as_ref().map(|l| l.proxy.as_str());
+            stress::defined(path, file, &data, proxy)?
+        }
         _ => vec![],
     };
     Ok(Prepared {
@@ -232,8 +235,13 @@ pub fn solve_after(
         &policy_members,
         &portfolios,
     );
-    let liabilities =
-        crate::analysis::liabilities::report(&cfg, &data, &set, &reference, &portfolios);
+    let liabilities = crate::analysis::liabilities::report(
+        &cfg,
+        &data,
+        (&set, &reference),
+        &portfolios,
+        &analysis.shocks,
+    );
     let mut checks = run_checks(&cfg, &data, &solved, &analysis, policy.as_ref(), &past);
     checks.extend(crate::analysis::liabilities::checks(
         liabilities.as_ref(),

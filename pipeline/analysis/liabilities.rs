@@ -8,6 +8,7 @@
 //! reference scenario set). Reads the config, the market data, the reference set and the portfolios;
 //! writes nothing.
 
+use super::stress::Shock;
 use crate::config::{Basis, Config, Liabilities};
 use crate::diag::Check;
 use crate::ingest::MarketData;
@@ -34,6 +35,51 @@ pub struct SurplusPosition {
     /// convexity when given); `None` as `hedge_ratio`.
     pub funded_ratio_rate_down: Option<f64>,
     pub funded_ratio_rate_up: Option<f64>,
+    /// Per shock of the stress set, in its order: the change in surplus and the funded ratio after it.
+    pub stress: Vec<Stressed>,
+}
+
+/// A portfolio's surplus under one shock.
+#[derive(Debug, Clone, Copy)]
+pub struct Stressed {
+    /// Σ w_i s_i − ℓ/F: the change in surplus as a fraction of the assets (ℓ the proxy's return in the
+    /// shock, 0 when the shock does not move it).
+    pub surplus_change: f64,
+    /// F·(1 + Σ w_i s_i)/(1 + ℓ).
+    pub funded_ratio: f64,
+}
+
+/// A portfolio's surplus under every shock: its asset P&L Σ w_i s_i against the liabilities' move.
+fn stressed(x: &[f64], shocks: &[Shock], f: f64) -> Vec<Stressed> {
+    shocks
+        .iter()
+        .map(|s| {
+            let pnl: f64 = s.returns.iter().zip(x).map(|(r, w)| r * w).sum();
+            let l = s.liabilities.unwrap_or(0.0);
+            Stressed {
+                surplus_change: pnl - l / f,
+                funded_ratio: f * (1.0 + pnl) / (1.0 + l),
+            }
+        })
+        .collect()
+}
+
+/// The liability proxy's return over each historical window of the stress set (its prices over the full
+/// history, as the window's assets are measured); defined shocks keep what their moves say.
+pub fn move_in_windows(cfg: &Config, data: &MarketData, shocks: &mut [Shock]) {
+    let Some(l) = &cfg.liabilities else {
+        return;
+    };
+    let Some(j) = data.reference.iter().position(|a| *a == l.proxy) else {
+        return;
+    };
+    let p = &data.reference_full_prices[j];
+    let row = |d| data.full_dates.iter().position(|x| *x == d);
+    for s in shocks.iter_mut().filter(|s| s.kind == "historical") {
+        if let (Some(a), Some(b)) = (s.start.and_then(row), s.end.and_then(row)) {
+            s.liabilities = Some(p[b] / p[a] - 1.0).filter(|r| r.is_finite());
+        }
+    }
 }
 
 /// Everything the pack reports about the liabilities.
@@ -79,9 +125,9 @@ pub fn offsets(cfg: &Config, reference: &ScenarioSet) -> Option<Vec<f64>> {
 pub fn report(
     cfg: &Config,
     data: &MarketData,
-    set: &ScenarioSet,
-    reference: &ScenarioSet,
+    (set, reference): (&ScenarioSet, &ScenarioSet),
     portfolios: &[(String, Vec<f64>)],
+    shocks: &[Shock],
 ) -> Option<LiabilityReport> {
     let liabilities = cfg.liabilities.clone()?;
     let f = funded_ratio(cfg)?;
@@ -100,6 +146,7 @@ pub fn report(
                 hedge_ratio: rate.as_ref().map(|r| r.hedge),
                 funded_ratio_rate_down: rate.as_ref().map(|r| r.down),
                 funded_ratio_rate_up: rate.as_ref().map(|r| r.up),
+                stress: stressed(x, shocks, f),
             }
         })
         .collect();

@@ -59,6 +59,7 @@ pub fn analyse(
         cfg.scenarios.horizon,
         cfg.stress_windows,
     ));
+    liabilities::move_in_windows(cfg, data, &mut shocks);
     let classes: Vec<String> = data.meta.iter().map(|m| m.class.clone()).collect();
     let stress = portfolios
         .iter()

@@ -627,3 +627,67 @@ fn the_backtest_on_the_surplus_basis_counts_exceptions_against_realised_surplus_
     }
     assert!(checked >= 20, "{checked} months checked");
 }
+
+/// A shock that moves the liability proxy (a move naming it as `asset`) and the historical windows (the
+/// proxy's own return over each window, from the price file): the change in surplus Σ w_i s_i − ℓ/F and
+/// the funded ratio F·(1 + Σ w_i s_i)/(1 + ℓ) after it, for every portfolio.
+#[test]
+fn stress_shocks_move_the_liabilities_and_show_the_surplus_and_funded_ratio() {
+    let f = Fixture::new();
+    f.write(
+        "stress.yaml",
+        "shocks:\n  - name: Rates fall\n    moves:\n      - { tag: \"class:bond\", return: 0.04 }\n      - { tag: \"class:equity\", return: -0.10 }\n      - { asset: LIAB, return: 0.08 }\n",
+    );
+    let cfg = fund_with_proxy(
+        &f,
+        false,
+        "stress:\n  file: stress.yaml\n  historical_windows: 2\n",
+    );
+    let cfg = with_fund_value(&cfg, &f, &liabilities(1_050_000.0, ""));
+    let dir = run_pack(&f, &cfg);
+    let r = json(&dir.join("results.json"));
+    let fr = FUND_VALUE / 1_050_000.0;
+    let prices = std::fs::read_to_string(f.path("data/prices.csv")).unwrap();
+    let proxy: std::collections::BTreeMap<String, f64> = prices
+        .lines()
+        .skip(1)
+        .map(|l| {
+            let cells: Vec<&str> = l.split(',').collect();
+            (cells[0].to_string(), cells[5].parse().unwrap())
+        })
+        .collect();
+    let shocks = r["stress"]["shocks"]
+        .as_array()
+        .expect("stress shocks in results.json");
+    assert_eq!(shocks.len(), 3);
+    // The proxy's move per shock: 0.08 as defined, then its own return over each window.
+    let mut moves = vec![0.08];
+    for s in &shocks[1..] {
+        let (a, b) = (s["start"].as_str().unwrap(), s["end"].as_str().unwrap());
+        moves.push(proxy[b] / proxy[a] - 1.0);
+    }
+    let assets = ["AS01", "AS02", "AS03", "AS04"];
+    for (name, x) in portfolios(&r, &assets.map(String::from)) {
+        let got = r["liabilities"]["portfolios"][name.as_str()]["stress"]
+            .as_array()
+            .unwrap();
+        for (k, s) in shocks.iter().enumerate() {
+            let returns: Vec<f64> = assets
+                .iter()
+                .map(|a| s["returns"][a].as_f64().unwrap())
+                .collect();
+            let pnl: f64 = returns.iter().zip(&x).map(|(r, w)| r * w).sum();
+            let want = pnl - moves[k] / fr;
+            let g = &got[k];
+            assert!(
+                (g["surplus_change"].as_f64().unwrap() - want).abs() < 1e-12,
+                "{name} shock {k}: {g}"
+            );
+            let funded = fr * (1.0 + pnl) / (1.0 + moves[k]);
+            assert!(
+                (g["funded_ratio"].as_f64().unwrap() - funded).abs() < 1e-12,
+                "{name} shock {k}"
+            );
+        }
+    }
+}
