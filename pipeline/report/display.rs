@@ -53,6 +53,9 @@ pub struct Report {
     /// "Since the last pack", or `null` with `change_absent` saying why there is nothing to compare.
     pub change: Option<ChangeShow>,
     pub change_absent: Option<String>,
+    /// "Liabilities and funded status", or `null` without liabilities (the summary says none are
+    /// configured).
+    pub liabilities: Option<super::liabilities::LiabilitiesShow>,
 }
 
 /// Cover and running-header facts.
@@ -232,7 +235,10 @@ pub fn build(r: &RunResult, shown: &[Portfolio], results: &Value, pack_id: &str)
         meta: meta(r, results, pack_id),
         portfolios: shown.iter().map(|v| portfolio_row(r, v)).collect(),
         levels: r.config.levels.iter().map(|&c| format::level(c)).collect(),
-        summary: text::summary(r, shown, change_absent.as_deref()),
+        summary: super::liabilities::with_key_point(
+            text::summary(r, shown, change_absent.as_deref()),
+            r,
+        ),
         classes: classes(r, shown),
         assets: assets(r, shown),
         groups: groups(r, shown),
@@ -246,6 +252,7 @@ pub fn build(r: &RunResult, shown: &[Portfolio], results: &Value, pack_id: &str)
         caveats: text::caveats(r, shown)
             .into_iter()
             .chain(further::bands::caveats(r))
+            .chain(super::liabilities::caveat(r))
             .collect(),
         scenarios: scenarios(r),
         quality: quality(r),
@@ -259,6 +266,7 @@ pub fn build(r: &RunResult, shown: &[Portfolio], results: &Value, pack_id: &str)
         money: money::show(r),
         change,
         change_absent,
+        liabilities: super::liabilities::show(r, shown),
     }
 }
 

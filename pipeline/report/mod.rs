@@ -12,6 +12,7 @@
 //!   policy.rs   "Position against policy": policy lines, exposures, breaches, active risk
 //!   trades.rs   "Trades and costs": each model's trades from the current holdings, money traded, costs
 //!   change.rs   "Since the last pack": results.json's `change` (previous pack, CVaR effects, history)
+//!   liabilities.rs  "Liabilities and funded status": funded ratio, surplus risk, hedge ratio, rate moves
 //!   charts.rs   the summary and allocation charts (SVG)
 //!   text.rs     the sentences that depend on the run (summary points, caveats)
 //!   draw.rs     the chart kit: canvas, type, axes, markers, legends, bars
@@ -42,6 +43,7 @@ pub mod display;
 pub mod draw;
 pub mod format;
 pub mod further;
+pub mod liabilities;
 pub mod money;
 pub mod pdf;
 pub mod policy;

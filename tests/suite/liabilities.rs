@@ -691,3 +691,51 @@ fn stress_shocks_move_the_liabilities_and_show_the_surplus_and_funded_ratio() {
         }
     }
 }
+
+/// The PDF's "Liabilities and funded status" section, read back by poppler's `pdftotext`: its title, the
+/// funded ratio and the current portfolio's surplus CVaR as results.json gives them; an asset-only fund's
+/// pack has no such section and its summary says none are configured.
+#[test]
+fn the_pack_has_a_liabilities_section_and_an_asset_only_pack_says_none_are_configured() {
+    let f = Fixture::new();
+    let cfg = fund_with_proxy(&f, false, "");
+    let cfg = with_fund_value(&cfg, &f, &liabilities(1_050_000.0, "  duration: 14\n"));
+    let dir = run_pack(&f, &cfg);
+    let r = json(&dir.join("results.json"));
+    let text = super::common::squeeze(&super::common::pdf_text(&dir.join("pack.pdf")));
+    assert!(text.contains("Liabilities and funded status"), "{text}");
+    // The pack's one number format: two decimals and a percent sign (README, "The PDF pack").
+    let funded = format!(
+        "{:.2}%",
+        r["liabilities"]["funded_ratio"].as_f64().unwrap() * 100.0
+    );
+    assert!(
+        text.contains(&format!("Funded ratio (assets ÷ liabilities) {funded}")),
+        "{funded}"
+    );
+    let cvar = r["liabilities"]["portfolios"]["current"]["surplus_cvar"]
+        .as_f64()
+        .unwrap();
+    assert!(
+        text.contains(&format!("surplus CVaR at 95% is {:.2}%", cvar * 100.0)),
+        "{text}"
+    );
+    assert!(text.contains("Liabilities by proxy"), "the caveat");
+
+    let g = Fixture::new();
+    let cfg = fund_with_proxy(&g, false, "");
+    let text = std::fs::read_to_string(&cfg).unwrap();
+    // The asset-only fund: the proxy column goes, as a price column without a metadata row must.
+    let prices = std::fs::read_to_string(g.path("data/prices.csv")).unwrap();
+    let trimmed: String = prices
+        .lines()
+        .map(|l| l.rsplit_once(',').unwrap().0.to_string() + "\n")
+        .collect();
+    g.write("data/prices.csv", &trimmed);
+    let cfg = g.write("fund.yaml", &text);
+    let dir = run_pack(&g, &cfg);
+    let text = super::common::squeeze(&super::common::pdf_text(&dir.join("pack.pdf")));
+    assert!(!text.contains("Liabilities and funded status"));
+    assert!(text.contains("Liabilities: none are configured"), "{text}");
+    assert!(json(&dir.join("results.json"))["liabilities"].is_null());
+}
