@@ -26,6 +26,8 @@ pub struct LiabilitiesShow {
     pub stress: Vec<StressRow>,
     pub level: String,
     pub sentences: Vec<String>,
+    /// The cover's line: the funded ratio and the current portfolio's surplus CVaR.
+    pub cover: String,
 }
 
 /// One portfolio's surplus risk and rate sensitivity.
@@ -68,7 +70,21 @@ pub fn show(r: &RunResult, shown: &[Portfolio]) -> Option<LiabilitiesShow> {
         stress: stress_rows(r, &positions),
         level: format::level(c),
         sentences: sentences(l),
+        cover: cover(l, c),
     })
+}
+
+/// "funded ratio 95.14% · current surplus CVaR 95% 5.33%" (the surplus figure only with holdings).
+fn cover(l: &LiabilityReport, c: f64) -> String {
+    let mut s = format!("funded ratio {}", pct(l.funded_ratio, Style::Weight));
+    if let Some(p) = position(l, super::view::CURRENT) {
+        s.push_str(&format!(
+            " · current surplus CVaR {} {}",
+            format::level(c),
+            pct(p.surplus.at(c).cvar, Style::Loss)
+        ));
+    }
+    s
 }
 
 fn position<'a>(l: &'a LiabilityReport, key: &str) -> Option<&'a SurplusPosition> {
