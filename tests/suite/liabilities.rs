@@ -9,7 +9,7 @@
 
 use super::common::{Fixture, Market, config, json, normal};
 use rand::SeedableRng;
-use std::path::PathBuf;
+use std::path::{Path, PathBuf};
 
 /// Present value of the liabilities in the fixtures; the fund's value is 1,000,000.
 const FUND_VALUE: f64 = 1_000_000.0;
@@ -72,7 +72,7 @@ fn with_fund_value(cfg: &PathBuf, f: &Fixture, fund: &str) -> PathBuf {
     f.write("fund.yaml", &text)
 }
 
-fn run_pack(f: &Fixture, cfg: &PathBuf) -> PathBuf {
+fn run_pack(f: &Fixture, cfg: &Path) -> PathBuf {
     let ran = f.run(&["run", cfg.to_str().unwrap(), "--quiet"]);
     assert_eq!(ran.code, 0, "stderr: {}", ran.stderr);
     PathBuf::from(ran.stdout.lines().last().unwrap())
@@ -365,7 +365,7 @@ fn surplus_case(seed: u64, liability_drift: f64) -> SurplusCase {
         }
         offsets.push((liability_drift + 0.012 * z + 0.006 * normal(&mut rng)) / f);
     }
-    let probs = if seed % 2 == 0 {
+    let probs = if seed.is_multiple_of(2) {
         vec![1.0 / s as f64; s]
     } else {
         tailpack::scenarios::decayed((0..s).rev().map(|a| a as f64), 60.0)
