@@ -15,6 +15,7 @@
 pub mod checks;
 pub mod inputs;
 pub mod keys;
+pub mod liabilities;
 pub mod load;
 pub mod policy;
 pub mod raw;
@@ -28,6 +29,7 @@ use std::path::{Path, PathBuf};
 
 pub use inputs::Input;
 pub use keys::nearest;
+pub use liabilities::Liabilities;
 pub use load::{load, load_all, load_archived, load_fund};
 pub use raw::*;
 pub use read::parse;
@@ -255,6 +257,10 @@ pub struct Config {
     pub typeset: TypesetBudget,
     /// Required sign-off roles, in signing order.
     pub signoff: Vec<SignRole>,
+    /// The liabilities the assets back (`liabilities`), when configured.
+    pub liabilities: Option<Liabilities>,
+    /// What the models' CVaR measures (`risk.basis`): surplus only with liabilities.
+    pub basis: Basis,
 }
 
 impl Config {

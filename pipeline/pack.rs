@@ -268,6 +268,7 @@ pub fn results_json(r: &RunResult, inputs: &[crate::archive::InputFile], pack_id
         "backtest": backtest_json(r),
         "policy": policy_json(r),
         "bands": bands_json(r),
+        "liabilities": liabilities_json(r),
     });
     v["change"] = change_json(r, &v);
     v
@@ -328,6 +329,51 @@ fn policy_json(r: &RunResult) -> Value {
     })
 }
 
+/// The liabilities block: present value, funded ratio, proxy, duration, the models' basis, and per
+/// portfolio the surplus VaR and CVaR at the model confidence (every level under `levels`), the hedge ratio
+/// and the funded ratio at the discount rate ±1 pp; `null` without liabilities.
+fn liabilities_json(r: &RunResult) -> Value {
+    let Some(l) = &r.liabilities else {
+        return Value::Null;
+    };
+    let c = r.config.confidence;
+    let portfolios: Map<String, Value> = l
+        .positions
+        .iter()
+        .map(|x| {
+            (
+                x.portfolio.clone(),
+                json!({
+                    "surplus_var": x.surplus.at(c).var,
+                    "surplus_cvar": x.surplus.at(c).cvar,
+                    "surplus_expected_return": x.surplus.expected_return,
+                    "surplus_volatility": x.surplus.volatility,
+                    "levels": x.surplus.tails,
+                    "funded_ratio_tail": x.funded_ratio_tail,
+                    "hedge_ratio": x.hedge_ratio,
+                    "funded_ratio_rate_down": x.funded_ratio_rate_down,
+                    "funded_ratio_rate_up": x.funded_ratio_rate_up,
+                    "stress": x.stress.iter().zip(&r.analysis.shocks).map(|(s, k)| json!({
+                        "shock": k.name, "surplus_change": s.surplus_change, "funded_ratio": s.funded_ratio,
+                    })).collect::<Vec<_>>(),
+                }),
+            )
+        })
+        .collect();
+    json!({
+        "value": l.liabilities.value,
+        "funded_ratio": l.funded_ratio,
+        "proxy": l.liabilities.proxy,
+        "duration": l.liabilities.duration,
+        "convexity": l.liabilities.convexity,
+        "basis": l.basis.name(),
+        "rate_move": crate::analysis::liabilities::RATE_MOVE,
+        "funded_ratio_tail_share": crate::analysis::liabilities::FUNDED_TAIL,
+        "stress_proxy_returns": r.analysis.shocks.iter().map(|k| json!({"shock": k.name, "proxy_return": k.liabilities})).collect::<Vec<_>>(),
+        "portfolios": portfolios,
+    })
+}
+
 /// One portfolio's active risk: horizon figures, active VaR/CVaR per level, Euler contributions to
 /// active CVaR at the model confidence by class and the benchmark's side.
 fn active_json(r: &RunResult, a: &crate::risk::ActiveRisk) -> Value {
@@ -385,6 +431,7 @@ fn backtest_json(r: &RunResult) -> Value {
     let Some(b) = &r.analysis.backtest else {
         return Value::Null;
     };
+    let surplus = r.config.basis == crate::config::Basis::Surplus;
     let models: Map<String, Value> = b.tracks.iter().map(|t| (t.model.to_string(), json!({
         "observations": t.observations, "exceptions": t.exceptions, "expected_exceptions": t.expected_exceptions,
         "kupiec": t.kupiec, "christoffersen": t.christoffersen, "mean_prediction_error": t.mean_prediction_error,
@@ -392,17 +439,19 @@ fn backtest_json(r: &RunResult) -> Value {
         "months": t.rows.iter().map(|row| json!({
             "date": row.date.to_string(), "next": row.next.to_string(), "status": row.status,
             "predicted_return": row.predicted_return, "realised_return": row.realised_return,
-            "predicted_minus_realised": row.predicted_return.zip(row.realised_return).map(|(p, q)| p - q),
+            "predicted_minus_realised": row.predicted_return.zip(if surplus { row.realised_surplus_return } else { row.realised_return }).map(|(p, q)| p - q),
             "predicted_var": row.predicted_var, "predicted_cvar": row.predicted_cvar, "turnover": row.turnover,
             "cost": row.cost, "realised_return_net": row.realised_return_net,
             "wealth": row.wealth, "exception": row.exception, "active_return": row.active_return,
             "weights": row.weights.as_ref().map(|w| weight_map(&r.data.assets, w)),
+            "realised_surplus_return": row.realised_surplus_return,
         })).collect::<Vec<_>>(),
     }))).collect();
     json!({"confidence": b.confidence, "rebalances": b.rebalances.len(), "first": b.rebalances.first().map(|d| d.to_string()),
            "last": b.rebalances.last().map(|d| d.to_string()),
            "skipped": b.skipped.iter().map(|(d, why)| json!({"date": d.to_string(), "reason": why})).collect::<Vec<_>>(),
-           "benchmark_returns": b.benchmark, "models": models})
+           "benchmark_returns": b.benchmark, "models": models,
+           "liability_proxy_returns": b.liabilities, "basis": r.config.basis.name()})
 }
 
 /// A return with its sign, e.g. `+0.31%`.

@@ -101,6 +101,8 @@ pub struct RunResult {
     pub reference: ScenarioSet,
     /// Every portfolio against the policy, when one is configured.
     pub policy: Option<crate::analysis::policy::PolicyReport>,
+    /// Every portfolio against the liabilities, when they are configured.
+    pub liabilities: Option<crate::analysis::liabilities::LiabilityReport>,
     /// The fund's earlier packs as the archive found them (none for a first pack): what results.json's
     /// `change` compares with.
     pub past: crate::analysis::change::Past,
@@ -144,7 +146,10 @@ pub fn validate(cfg: Config, data: MarketData) -> Result<Prepared> {
     let policy_members = models::policy_lines(&cfg, &data)?;
     let feasible = models::feasible_set(&cfg, &data)?;
     let shocks = match (&cfg.stress_file, &cfg.stress) {
-        (Some(path), Some(file)) => stress::defined(path, file, &data)?,
+        (Some(path), Some(file)) => {
+            let proxy = cfg.liabilities.as_ref().map(|l| l.proxy.as_str());
+            stress::defined(path, file, &data, proxy)?
+        }
         _ => vec![],
     };
     Ok(Prepared {
@@ -198,10 +203,18 @@ pub fn solve_after(
         policy_members,
     } = prepared;
     let models_start = std::time::Instant::now();
-    let benchmark = active_benchmark(&cfg, &set, &reference);
+    let basis = crate::analysis::liabilities::basis_set(&cfg, &set, &reference);
+    let model_set = basis.as_ref().map_or(&set, |(s, _)| s);
+    let benchmark = active_benchmark(&cfg, &set, &reference).map(|(b, budget)| {
+        let c = basis.as_ref().map(|(_, c)| c.as_slice());
+        (
+            crate::analysis::liabilities::benchmark_on_basis(b, c),
+            budget,
+        )
+    });
     let p = Problem {
-        set: &set,
-        mu: set.mean(),
+        set: model_set,
+        mu: model_set.mean(),
         confidence: cfg.confidence,
         feasible: &fs,
         backend: cfg.backend,
@@ -222,7 +235,18 @@ pub fn solve_after(
         &policy_members,
         &portfolios,
     );
-    let checks = run_checks(&cfg, &data, &solved, &analysis, policy.as_ref(), &past);
+    let liabilities = crate::analysis::liabilities::report(
+        &cfg,
+        &data,
+        (&set, &reference),
+        &portfolios,
+        &analysis.shocks,
+    );
+    let mut checks = run_checks(&cfg, &data, &solved, &analysis, policy.as_ref(), &past);
+    checks.extend(crate::analysis::liabilities::checks(
+        liabilities.as_ref(),
+        &cfg,
+    ));
     let backend = cfg.backend;
     Ok(RunResult {
         config: cfg,
@@ -239,6 +263,7 @@ pub fn solve_after(
         analysis,
         reference,
         policy,
+        liabilities,
         past,
     })
 }
@@ -333,7 +358,7 @@ fn solve_models(p: &Problem, cfg: &Config, data: &MarketData) -> Solved {
     let reports = solution
         .families
         .into_iter()
-        .map(|f| report(f.family, f.outcome, p, data, cfg))
+        .map(|f| report(f.family, on_basis(cfg, f.outcome), p, data, cfg))
         .collect();
     Solved {
         current,
@@ -342,6 +367,18 @@ fn solve_models(p: &Problem, cfg: &Config, data: &MarketData) -> Solved {
         preconditions: solution.preconditions,
         reports,
     }
+}
+
+/// A `not_applicable` outcome on the surplus basis, with what that means for a fund with liabilities.
+fn on_basis(cfg: &Config, mut o: Outcome) -> Outcome {
+    if cfg.basis == config::Basis::Surplus && o.status == Status::NotApplicable {
+        let m = o.message.take().unwrap_or_default();
+        o.message = Some(format!(
+            "{m}; {}",
+            crate::analysis::liabilities::RATIO_ON_SURPLUS
+        ));
+    }
+    o
 }
 
 /// The portfolios the analysis compares, by name: the current holdings (when given), then each family's.

@@ -71,6 +71,20 @@ impl ScenarioSet {
             .map(|j| (j / n, j % n, self.returns[j]))
     }
 
+    /// The set with `c_k` taken off every return of scenario k: r_ki − c_k. Since every portfolio's
+    /// weights sum to 1, its return on the result is r_k·x − c_k — the surplus return on assets when c_k is
+    /// the liabilities' part ℓ_k/F (the surplus basis of the models, `risk.basis: surplus`).
+    pub fn less_per_scenario(&self, c: &[f64]) -> ScenarioSet {
+        let n = self.width();
+        let mut out = self.clone();
+        for (k, ck) in c.iter().enumerate().take(self.len()) {
+            out.returns[k * n..(k + 1) * n]
+                .iter_mut()
+                .for_each(|r| *r -= ck);
+        }
+        out
+    }
+
     /// Probability-weighted mean return per asset, μ_i = Σ_k p_k r_ki.
     pub fn mean(&self) -> Vec<f64> {
         let mut mu = vec![0.0; self.width()];

@@ -14,6 +14,12 @@
 //! the same month, and each model's ex-post tracking error is the sample standard deviation of its monthly
 //! active returns (realised net of costs minus benchmark; Grinold & Kahn, "Active Portfolio Management",
 //! ch. 3), annualised by √12.
+//! With liabilities, each month's realised surplus return on assets is the realised return less the
+//! liability proxy's realised return over today's funded ratio, r − ℓ/F (F is held at today's figure: the
+//! pack has no history of the liabilities' value). On the surplus basis (`risk.basis: surplus`) each
+//! month's models and predicted VaR are the surplus ones (`resolve::solve`), so the VaR exceptions, the
+//! Kupiec and Christoffersen tests and the mean prediction error compare them with the realised surplus
+//! returns; the daily traffic-light test stays on the assets' own daily losses.
 
 use super::resolve::{self, History};
 use super::vartest::{self, LrTest, Zone};
@@ -55,6 +61,20 @@ pub struct TrackRow {
     /// The month's active return against the policy benchmark: `realised_return_net` minus the
     /// benchmark's realised return (None without a policy or where either is missing).
     pub active_return: Option<f64>,
+    /// The month's realised surplus return on assets, `realised_return` − ℓ/F (None without liabilities or
+    /// where the proxy has no price).
+    pub realised_surplus_return: Option<f64>,
+}
+
+impl TrackRow {
+    /// The realised return on the basis the models use: the surplus's on the surplus basis.
+    fn realised_on(&self, surplus: bool) -> Option<f64> {
+        if surplus {
+            self.realised_surplus_return
+        } else {
+            self.realised_return
+        }
+    }
 }
 
 /// A model's realised (ex-post) active risk against the policy benchmark over the backtest.
@@ -113,6 +133,18 @@ pub struct Backtest {
     /// The policy benchmark's realised return of each rebalance month (aligned with `rebalances`; None
     /// without a policy, or in a month where a benchmark series has no price).
     pub benchmark: Option<Vec<Option<f64>>>,
+    /// The liability proxy's realised return of each rebalance month (aligned with `rebalances`; None
+    /// without liabilities, or in a month where the proxy has no price).
+    pub liabilities: Option<Vec<Option<f64>>>,
+}
+
+/// The liabilities' side of a track: the proxy's realised return each month, today's funded ratio, and
+/// whether the models work on the surplus basis.
+#[derive(Clone, Copy)]
+struct Liabilities<'a> {
+    proxy: &'a [Option<f64>],
+    funded: f64,
+    surplus: bool,
 }
 
 /// The month-ends of the full history: the last observation of every calendar month.
@@ -259,8 +291,20 @@ fn assemble(cfg: &Config, data: &MarketData, live: &FeasibleSet, months: &[Month
             .map(|m| benchmark_realised(data, &mix, m.row, m.next))
             .collect::<Vec<_>>()
     });
+    let proxy = liabilities_realised(cfg, data, months);
+    let side = proxy
+        .as_deref()
+        .zip(super::liabilities::funded_ratio(cfg))
+        .map(|(proxy, funded)| Liabilities {
+            proxy,
+            funded,
+            surplus: cfg.basis == crate::config::Basis::Surplus,
+        });
     let tracks = (0..Family::ALL.len())
-        .map(|k| track(cfg, data, months, k, &live.cost_rates, benchmark.as_deref()))
+        .map(|k| {
+            let others = (benchmark.as_deref(), side);
+            track(cfg, data, months, k, &live.cost_rates, others)
+        })
         .collect();
     Backtest {
         confidence: cfg.confidence,
@@ -268,7 +312,25 @@ fn assemble(cfg: &Config, data: &MarketData, live: &FeasibleSet, months: &[Month
         skipped,
         tracks,
         benchmark,
+        liabilities: proxy,
     }
+}
+
+/// The liability proxy's realised return of each month, P[next]/P[row] − 1; None without liabilities.
+fn liabilities_realised(
+    cfg: &Config,
+    data: &MarketData,
+    months: &[Month],
+) -> Option<Vec<Option<f64>>> {
+    let proxy = &cfg.liabilities.as_ref()?.proxy;
+    let j = data.reference.iter().position(|a| a == proxy)?;
+    let p = &data.reference_full_prices[j];
+    Some(
+        months
+            .iter()
+            .map(|m| Some(p[m.next] / p[m.row] - 1.0).filter(|r| r.is_finite()))
+            .collect(),
+    )
 }
 
 /// The policy benchmark's realised return from row `from` to row `to`: Σ weight × (P[to]/P[from] − 1)
@@ -368,7 +430,7 @@ fn track(
     months: &[Month],
     k: usize,
     rates: &[f64],
-    benchmark: Option<&[Option<f64>]>,
+    (benchmark, liabilities): (Option<&[Option<f64>]>, Option<Liabilities>),
 ) -> Track {
     let mut rows = Vec::with_capacity(months.len());
     let mut account = Account {
@@ -381,6 +443,12 @@ fn track(
         let weights = d.and_then(|d| d.weights.clone());
         let step = account.step(data, rates, weights.as_deref(), (m.row, m.next));
         let tail = d.and_then(|d| d.tail);
+        let surplus = liabilities.and_then(|l| Some(step.realised? - l.proxy[i]? / l.funded));
+        let on_basis = if liabilities.is_some_and(|l| l.surplus) {
+            surplus
+        } else {
+            step.realised
+        };
         rows.push(TrackRow {
             date: data.full_dates[m.row],
             next: data.full_dates[m.next],
@@ -394,11 +462,12 @@ fn track(
             cost: step.cost,
             realised_return_net: step.realised_net,
             wealth: account.wealth,
-            exception: tail.zip(step.realised).map(|((_, var, _), r)| -r > var),
+            exception: tail.zip(on_basis).map(|((_, var, _), r)| -r > var),
             active_return: step
                 .realised_net
                 .zip(benchmark.and_then(|b| b[i]))
                 .map(|(r, b)| r - b),
+            realised_surplus_return: surplus,
         });
     }
     let mut t = summarise(cfg, data, Family::ALL[k].name(), rows);
@@ -427,12 +496,13 @@ fn rebalance_cost(rates: &[f64], w: &[f64], held: &[f64]) -> f64 {
 }
 
 fn summarise(cfg: &Config, data: &MarketData, model: &'static str, rows: Vec<TrackRow>) -> Track {
+    let surplus = cfg.basis == crate::config::Basis::Surplus;
     let hits: Vec<bool> = rows.iter().filter_map(|r| r.exception).collect();
     let exceptions = hits.iter().filter(|h| **h).count();
     let p = 1.0 - cfg.confidence;
     let gaps: Vec<f64> = rows
         .iter()
-        .filter_map(|r| Some(r.predicted_return? - r.realised_return?))
+        .filter_map(|r| Some(r.predicted_return? - r.realised_on(surplus)?))
         .collect();
     // The traffic light counts daily exceptions: on month-end (quarter-end) observations it is not run.
     let daily = if cfg.analysis.daily_var_check && data.frequency == crate::config::Frequency::Daily

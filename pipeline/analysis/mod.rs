@@ -11,6 +11,7 @@ pub mod bands;
 pub mod change;
 pub mod currency;
 pub mod frontier;
+pub mod liabilities;
 pub mod policy;
 pub mod resolve;
 pub mod stress;
@@ -63,6 +64,7 @@ pub fn analyse(
         cfg.scenarios.horizon,
         cfg.stress_windows,
     ));
+    liabilities::move_in_windows(cfg, data, &mut shocks);
     let classes: Vec<String> = data.meta.iter().map(|m| m.class.clone()).collect();
     let stress = portfolios
         .iter()

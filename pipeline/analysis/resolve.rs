@@ -1,9 +1,11 @@
 //! Solving every family on a price history other than the run's own — a backtest month's window or a
 //! bootstrap resample — exactly as the run does: scenarios built by the run's rule, the same feasible set,
 //! cap and floor rules (the "current" ones against the fund's holdings on these scenarios), the policy's
-//! active-CVaR budget against the policy benchmark on these scenarios, and [`models::solve_all`].
+//! active-CVaR budget against the policy benchmark on these scenarios, the models' basis (on the surplus
+//! basis the liability proxy's returns on these scenarios, over today's funded ratio), and
+//! [`models::solve_all`]. The scenario set returned is the one the models worked on.
 
-use crate::config::Config;
+use crate::config::{Basis, Config};
 use crate::ingest::MarketData;
 use crate::models::{self, ActiveBudget, FeasibleSet, Premises, Problem, Solution, Targets};
 use crate::risk;
@@ -33,7 +35,12 @@ pub fn solve(
     if set.len() < crate::ingest::MIN_SCENARIOS {
         return Err(format!("only {} scenarios", set.len()));
     }
-    let benchmark = budget_benchmark(cfg, data, h, &set)?;
+    let basis = surplus_basis(cfg, data, h, &set)?;
+    let benchmark = budget_benchmark(cfg, data, h, &set)?.map(|(b, budget)| {
+        let c = basis.as_ref().map(|(_, c)| c.as_slice());
+        (super::liabilities::benchmark_on_basis(b, c), budget)
+    });
+    let set = basis.map_or(set, |(s, _)| s);
     let c = cfg.confidence;
     let p = Problem {
         set: &set,
@@ -89,4 +96,41 @@ fn budget_benchmark(
         scenarios::policy_benchmark(set, &reference, policy),
         budget,
     )))
+}
+
+/// On the surplus basis, the scenario set of `set` less the liabilities' part of each scenario, measured
+/// by the proxy's prices in `h` ([`super::liabilities::basis_set`]), and that part; `None` on the assets
+/// basis.
+fn surplus_basis(
+    cfg: &Config,
+    data: &MarketData,
+    h: &History,
+    set: &ScenarioSet,
+) -> Result<Option<(ScenarioSet, Vec<f64>)>, String> {
+    let Some(l) = cfg
+        .liabilities
+        .as_ref()
+        .filter(|_| cfg.basis == Basis::Surplus)
+    else {
+        return Ok(None);
+    };
+    let j = data
+        .reference
+        .iter()
+        .position(|s| *s == l.proxy)
+        .ok_or("the liability proxy is not among the reference series")?;
+    if h.reference[j].iter().any(|v| !v.is_finite()) {
+        return Err(format!(
+            "liability proxy `{}` has no price somewhere in the window, so the surplus basis cannot be applied",
+            l.proxy
+        ));
+    }
+    let proxy = scenarios::from_prices(
+        std::slice::from_ref(&l.proxy),
+        h.dates,
+        std::slice::from_ref(&h.reference[j]),
+        &cfg.scenarios,
+    )
+    .map_err(|e| e.to_string())?;
+    Ok(super::liabilities::basis_set(cfg, set, &proxy))
 }

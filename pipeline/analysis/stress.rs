@@ -26,18 +26,30 @@ pub struct Shock {
     pub returns: Vec<f64>,
     /// Assets the shock does not move (no tag or asset entry; no price in a historical window).
     pub unshocked: Vec<String>,
+    /// The liability proxy's return in the shock: a move naming the proxy (`asset: <proxy>`), or its
+    /// return over a historical window; `None` when the shock leaves the liabilities unchanged.
+    pub liabilities: Option<f64>,
 }
 
 /// Resolves the file's shocks against the universe: asset moves first, then the first matching tag move.
-pub fn defined(path: &Path, file: &StressFile, data: &MarketData) -> Result<Vec<Shock>> {
-    file.shocks.iter().map(|s| resolve(path, s, data)).collect()
+/// A move whose `asset` is the liability proxy (`proxy`, with liabilities) moves the liabilities.
+pub fn defined(
+    path: &Path,
+    file: &StressFile,
+    data: &MarketData,
+    proxy: Option<&str>,
+) -> Result<Vec<Shock>> {
+    file.shocks
+        .iter()
+        .map(|s| resolve(path, s, data, proxy))
+        .collect()
 }
 
-fn resolve(path: &Path, s: &ShockSpec, data: &MarketData) -> Result<Shock> {
+fn resolve(path: &Path, s: &ShockSpec, data: &MarketData, proxy: Option<&str>) -> Result<Shock> {
     let err = |m: String| Error::config(path, format!("shock `{}`: {m}", s.name));
     for m in &s.moves {
         if let Some(a) = &m.asset {
-            if !data.assets.contains(a) {
+            if !data.assets.contains(a) && proxy != Some(a.as_str()) {
                 return Err(err(format!(
                     "unknown asset `{a}` (not in the price data, or dropped by the fill policy)"
                 )));
@@ -89,6 +101,11 @@ fn resolve(path: &Path, s: &ShockSpec, data: &MarketData) -> Result<Shock> {
         name: s.name.clone(),
         kind: "defined",
         description: s.description.clone(),
+        liabilities: s
+            .moves
+            .iter()
+            .find(|m| m.asset.is_some() && m.asset.as_deref() == proxy)
+            .map(|m| m.ret),
         start: None,
         end: None,
         returns,
@@ -179,6 +196,7 @@ pub fn historical(data: &MarketData, reference: &[f64], h: usize, count: usize) 
             end: Some(end),
             returns: r.iter().map(|v| if v.is_nan() { 0.0 } else { *v }).collect(),
             unshocked,
+            liabilities: None,
         }
     }).collect()
 }

@@ -28,6 +28,9 @@ pub struct RawConfig {
     pub stress: RawStress,
     pub report: RawReport,
     pub signoff: RawSignoff,
+    /// The liabilities the assets back (a pension plan's or an insurer's): present value, proxy series and
+    /// rate sensitivity; none by default (an asset-only fund).
+    pub liabilities: Option<RawLiabilities>,
     /// Several funds (mandates) in one config: each entry overrides `fund` and, where given, the holdings,
     /// limits, models, policy, cost rates and sign-off of the shared settings; prices and asset metadata
     /// are shared.
@@ -314,6 +317,44 @@ pub struct RawRisk {
     pub levels: Vec<f64>,
     /// The level the models constrain or minimise.
     pub confidence: f64,
+    /// What the models' CVaR measures: the assets' loss (default) or the surplus's (needs `liabilities`).
+    pub basis: Basis,
+}
+
+/// The loss the models work on (`risk.basis`).
+#[derive(Debug, Deserialize, Clone, Copy, PartialEq, Eq, Default, serde::Serialize)]
+#[serde(rename_all = "snake_case")]
+pub enum Basis {
+    /// The loss of the assets, −r_k·x.
+    #[default]
+    Assets,
+    /// The loss of the surplus (assets minus liabilities) as a fraction of the assets, ℓ_k/F − r_k·x.
+    Surplus,
+}
+
+impl Basis {
+    /// The name in the config and in results.json.
+    pub fn name(self) -> &'static str {
+        match self {
+            Basis::Assets => "assets",
+            Basis::Surplus => "surplus",
+        }
+    }
+}
+
+/// The liabilities (`liabilities`): what the fund owes, valued at the as-of date, and the series whose
+/// returns track that value.
+#[derive(Debug, Deserialize, Default, Clone)]
+#[serde(deny_unknown_fields, default)]
+pub struct RawLiabilities {
+    /// Present value at the as-of date, in the base currency (`fund.base_currency`).
+    pub value: Option<f64>,
+    /// The price-file column without an asset metadata row whose returns track the liabilities' value.
+    pub proxy: Option<String>,
+    /// Modified duration of the liabilities, in years.
+    pub duration: Option<f64>,
+    /// Convexity of the liabilities, in years squared.
+    pub convexity: Option<f64>,
 }
 
 impl Default for RawRisk {
@@ -321,6 +362,7 @@ impl Default for RawRisk {
         RawRisk {
             levels: vec![0.95, 0.975, 0.99],
             confidence: 0.95,
+            basis: Basis::Assets,
         }
     }
 }

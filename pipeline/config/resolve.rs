@@ -143,6 +143,8 @@ struct Rules {
     cap: CapRule,
     floor: FloorRule,
     policy: Option<Policy>,
+    liabilities: Option<super::Liabilities>,
+    basis: super::Basis,
 }
 
 const NEEDS_HOLDINGS: &str = "is relative to the current portfolio, but data.holdings is not set";
@@ -167,11 +169,14 @@ fn rules(cx: &Context, raw: &RawConfig) -> Result<Rules> {
         .map(super::policy::resolve_policy)
         .transpose()
         .map_err(|e| cx.place_error(e))?;
+    let (liabilities, basis) = super::liabilities::resolve(raw).map_err(|e| cx.key_error(e))?;
     Ok(Rules {
         groups,
         cap,
         floor,
         policy,
+        liabilities,
+        basis,
     })
 }
 
@@ -282,6 +287,8 @@ fn assemble(
             memory_mb: raw.report.typeset_memory_mb,
         },
         signoff: raw.signoff.roles,
+        liabilities: rules.liabilities,
+        basis: rules.basis,
     }
 }
 

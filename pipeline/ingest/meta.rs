@@ -26,6 +26,9 @@ pub struct AssetMeta {
     /// The `currency` column: the ISO 4217 code the asset is priced in; `None` (blank or no column) is
     /// the fund's base currency.
     pub currency: Option<String>,
+    /// Modified duration in years (optional `duration` column): the asset's sensitivity to interest rates,
+    /// for the liabilities' hedge ratio; blank for an asset without one.
+    pub duration: Option<f64>,
     /// Where the row is in the metadata file ("row 2 (line 3)"), for messages.
     #[serde(skip)]
     pub place: String,
@@ -78,7 +81,7 @@ pub fn read_assets(path: &Path) -> Result<Vec<AssetMeta>> {
 }
 
 /// Metadata columns with a meaning of their own; every other column is a tag (`region`, `style`, …).
-const RESERVED: [&str; 8] = [
+const RESERVED: [&str; 9] = [
     "asset",
     "class",
     "name",
@@ -87,6 +90,7 @@ const RESERVED: [&str; 8] = [
     "valuation",
     "smoothing",
     "currency",
+    "duration",
 ];
 
 /// The trimmed text of one cell, empty when the cell is blank.
@@ -147,6 +151,7 @@ fn meta_row(
         valuation,
         geltner,
         currency,
+        duration: duration(path, t, row)?,
         place,
     })
 }
@@ -315,4 +320,27 @@ pub fn read_holdings(path: &Path, assets: &[String]) -> Result<Vec<f64>> {
         ));
     }
     Ok(weights.iter().map(|x| x / total).collect())
+}
+
+/// The row's optional `duration`: blank, or years between 0 and
+/// [`crate::config::liabilities::MAX_DURATION_YEARS`].
+fn duration(path: &Path, t: &TextTable, row: usize) -> Result<Option<f64>> {
+    let Some(c) = t.find("duration") else {
+        return Ok(None);
+    };
+    let v = cell(t, c, row);
+    if v.is_empty() {
+        return Ok(None);
+    }
+    let max = crate::config::liabilities::MAX_DURATION_YEARS;
+    match v.parse::<f64>() {
+        Ok(d) if d.is_finite() && (0.0..=max).contains(&d) => Ok(Some(d)),
+        _ => Err(Error::data(
+            path,
+            format!(
+                "{}, column `duration`: `{v}` must be a modified duration in years between 0 and {max}",
+                t.place(row)
+            ),
+        )),
+    }
 }

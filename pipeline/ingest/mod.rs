@@ -72,6 +72,7 @@ pub fn load(cfg: &Config) -> Result<MarketData> {
     let table = table::read_table(&cfg.prices)?;
     let mut hist = prices::from_table(&cfg.prices, &table, cfg.layout)?;
     let meta = meta::read_assets(&cfg.assets)?;
+    reference::check_proxy(cfg, &hist, &meta)?;
     check_universe(cfg, &hist, &meta)?;
     valuation::check_meta(cfg, &meta)?;
     reference::check_named(cfg, &hist)?;

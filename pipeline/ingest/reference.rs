@@ -1,5 +1,6 @@
 //! Benchmark series of the policy (`policy.lines[].benchmark`): a series is an asset of the universe or a
-//! price-file column without a metadata row, which the fund cannot buy. Those non-investable series are
+//! price-file column without a metadata row, which the fund cannot buy. The liability proxy
+//! (`liabilities.proxy`) is such a column too, and must be one: the fund cannot hold its liabilities. Those non-investable series are
 //! read with the same data-quality rules as the assets (the file-wide checks run on every column), but
 //! kept apart: they never enter the universe, the models, the scenarios of `scenarios.csv`, the weights
 //! or the holdings. A benchmark series is never dropped: a gap the fill policy cannot fill is an error
@@ -25,9 +26,41 @@ fn line_of<'a>(cfg: &'a Config, series: &str) -> &'a str {
         .map_or("", |l| l.name.as_str())
 }
 
-/// A price-file column the policy names as a benchmark series and the asset metadata does not list.
+/// The liability proxy's name, when liabilities are configured.
+fn proxy(cfg: &Config) -> Option<&str> {
+    cfg.liabilities.as_ref().map(|l| l.proxy.as_str())
+}
+
+/// A price-file column the policy names as a benchmark series, or the liability proxy, and the asset
+/// metadata does not list.
 pub fn is_reference(cfg: &Config, meta: &[AssetMeta], column: &str) -> bool {
-    named(cfg).contains(&column) && !meta.iter().any(|m| m.asset == column)
+    (named(cfg).contains(&column) || proxy(cfg) == Some(column))
+        && !meta.iter().any(|m| m.asset == column)
+}
+
+/// The liability proxy is a column of the price file without an asset metadata row.
+pub fn check_proxy(cfg: &Config, hist: &PriceHistory, meta: &[AssetMeta]) -> Result<()> {
+    let Some(p) = proxy(cfg) else {
+        return Ok(());
+    };
+    let why = if let Some(m) = meta.iter().find(|m| m.asset == p) {
+        format!(
+            "is an asset of the universe ({} of {} lists it); the proxy tracks the liabilities' value and the fund cannot buy it: name a price-file column without an asset metadata row",
+            m.place,
+            cfg.assets.display()
+        )
+    } else if !hist.assets.iter().any(|a| a == p) {
+        format!(
+            "is not a column of the price file {}; name the column of the series whose returns track the liabilities' value",
+            cfg.prices.display()
+        )
+    } else {
+        return Ok(());
+    };
+    Err(Error::config(
+        &cfg.path,
+        format!("liabilities.proxy: series `{p}` {why}"),
+    ))
 }
 
 /// Every benchmark series the policy names is a column of the price file.
@@ -82,6 +115,9 @@ fn unfilled(cfg: &Config, hist: &PriceHistory, a: usize, full: &[f64], start: us
         return Ok(());
     };
     let series = &hist.assets[a];
+    if !named(cfg).contains(&series.as_str()) {
+        return Err(proxy_unfilled(cfg, hist, a, r));
+    }
     let why = if hist.values[a][..=r].iter().all(Option::is_none) {
         "its history starts later than the scenario window".to_string()
     } else {
@@ -99,4 +135,18 @@ fn unfilled(cfg: &Config, hist: &PriceHistory, a: usize, full: &[f64], start: us
             hist.dates[r],
         ),
     ))
+}
+
+/// The liability proxy has no price on window row `r`: like a benchmark series, it is never dropped.
+fn proxy_unfilled(cfg: &Config, hist: &PriceHistory, a: usize, r: usize) -> Error {
+    Error::data(
+        &cfg.prices,
+        format!(
+            "{}: liability proxy `{}` (liabilities.proxy) has no price on {}; the proxy is never dropped: supply its prices from the start of the scenario window on (gaps of at most quality.max_fill = {} consecutive prices are filled)",
+            hist.cell(a, r),
+            hist.assets[a],
+            hist.dates[r],
+            cfg.quality.max_fill
+        ),
+    )
 }

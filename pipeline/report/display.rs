@@ -62,6 +62,9 @@ pub struct Report {
     /// `currency_absent` saying every asset is in the base currency.
     pub currency: Option<super::currency::CurrencyShow>,
     pub currency_absent: Option<String>,
+    /// "Liabilities and funded status", or `null` without liabilities (the summary says none are
+    /// configured).
+    pub liabilities: Option<super::liabilities::LiabilitiesShow>,
 }
 
 /// Cover and running-header facts.
@@ -245,7 +248,10 @@ pub fn build(r: &RunResult, shown: &[Portfolio], results: &Value, pack_id: &str)
         meta: meta(r, results, pack_id),
         portfolios: shown.iter().map(|v| portfolio_row(r, v)).collect(),
         levels: r.config.levels.iter().map(|&c| format::level(c)).collect(),
-        summary: text::summary(r, shown, change_absent.as_deref()),
+        summary: super::liabilities::with_key_point(
+            text::summary(r, shown, change_absent.as_deref()),
+            r,
+        ),
         classes: classes(r, shown),
         assets: assets(r, shown),
         groups: groups(r, shown),
@@ -260,6 +266,7 @@ pub fn build(r: &RunResult, shown: &[Portfolio], results: &Value, pack_id: &str)
             .into_iter()
             .chain(further::bands::caveats(r))
             .chain(super::valuation::caveats(r))
+            .chain(super::liabilities::caveat(r))
             .collect(),
         scenarios: scenarios(r),
         quality: quality(r),
@@ -277,6 +284,7 @@ pub fn build(r: &RunResult, shown: &[Portfolio], results: &Value, pack_id: &str)
         change_absent,
         currency,
         currency_absent,
+        liabilities: super::liabilities::show(r, shown),
     }
 }
 

@@ -14,6 +14,7 @@
 //!   currency.rs the currency subsection of "Tail loss" and appendix B's currency table
 //!   change.rs   "Since the last pack": results.json's `change` (previous pack, CVaR effects, history)
 //!   valuation.rs  appendix B's valuation and unsmoothing table; the month-end and unsmoothing caveats
+//!   liabilities.rs  "Liabilities and funded status": funded ratio, surplus risk, hedge ratio, rate moves
 //!   charts.rs   the summary and allocation charts (SVG)
 //!   text.rs     the sentences that depend on the run (summary points, caveats)
 //!   draw.rs     the chart kit: canvas, type, axes, markers, legends, bars
@@ -45,6 +46,7 @@ pub mod display;
 pub mod draw;
 pub mod format;
 pub mod further;
+pub mod liabilities;
 pub mod money;
 pub mod pdf;
 pub mod policy;

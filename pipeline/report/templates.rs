@@ -27,6 +27,10 @@ pub const DEFAULTS: &[(&str, &str)] = &[
     ("policy.typ", include_str!("../../templates/policy.typ")),
     ("change.typ", include_str!("../../templates/change.typ")),
     (
+        "liabilities.typ",
+        include_str!("../../templates/liabilities.typ"),
+    ),
+    (
         "allocations.typ",
         include_str!("../../templates/allocations.typ"),
     ),

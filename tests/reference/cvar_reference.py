@@ -33,6 +33,17 @@ after Rockafellar & Uryasev (2000) with its own auxiliaries l_a, v_k:
 l_a + 1/(1-c) sum_k p_k v_k <= B, v_k >= 0, v_k >= A_k(x) - l_a. Every
 program then runs over that smaller X, and each result also reports the
 ``active_cvar`` of its portfolio (by sorting the active losses).
+
+Surplus basis (optional ``liability_offsets``, the liabilities' part
+c_k = l_k / F of each scenario's loss: the liability proxy's return l_k over
+the funded ratio F): the loss is the surplus loss L_k(x) = c_k - r_k . x
+(Sharpe & Tint 1990, "Liabilities - a new approach", Journal of Portfolio
+Management 16(2): surplus return on assets r_k . x - l_k / F), so the RU rows
+read u_k >= c_k - r_k . x - l, and every "return" is the expected surplus
+return N(x) - sum_k p_k c_k (a constant taken off: the floor row's bound
+moves by it, and the Charnes-Cooper LP carries it as a coefficient on t).
+Each result's ``cvar`` and ``expected_return`` are then the surplus ones.
+Without the key every c_k is 0.
 """
 
 import json
@@ -159,6 +170,9 @@ def parse_instance(data):
             raise InputError("'lower'/'upper' are inconsistent for some asset")
         tau, current, rates = _turnover(data, n)
         benchmark, budget = _active(data, s)
+        offsets = np.zeros(s)
+        if data.get("liability_offsets") is not None:
+            offsets = _vector(data, "liability_offsets", s)
         return {
             "confidence": conf, "probs": probs, "returns": returns,
             "lower": lower, "upper": upper,
@@ -167,6 +181,7 @@ def parse_instance(data):
             "cvar_cap": _number(data, "cvar_cap"),
             "return_floor": _number(data, "return_floor"),
             "benchmark": benchmark, "budget": budget,
+            "offsets": offsets,
         }
     except KeyError as err:
         raise InputError(f"missing key {err}") from None
@@ -191,7 +206,7 @@ def exact_cvar(inst, x, losses=None):
     """
     conf, probs = inst["confidence"], inst["probs"]
     if losses is None:
-        losses = -(inst["returns"] @ x)
+        losses = inst["offsets"] - inst["returns"] @ x
     order = np.argsort(losses, kind="stable")
     cum = np.cumsum(probs[order])
     idx = int(np.searchsorted(cum, conf - CUM_PROB_TOL, side="left"))
@@ -208,6 +223,11 @@ def exact_active_cvar(inst, x):
 def expected_returns(inst):
     """mu = sum_k p_k r_k."""
     return inst["probs"] @ inst["returns"]
+
+
+def expected_offset(inst):
+    """sum_k p_k c_k: the liabilities' expected part of the loss (0 without liabilities)."""
+    return float(inst["probs"] @ inst["offsets"])
 
 
 # ---------------------------------------------------------------------------
@@ -258,7 +278,7 @@ class Layout:
 
 
 def _ru_block(inst, lay):
-    """Rows u_k >= L_k(x) - l, i.e. -r_k.x - l - u_k <= 0.
+    """Rows u_k >= L_k(x) - l, i.e. -r_k.x - l - u_k <= -c_k.
 
     Rockafellar & Uryasev (2000), Journal of Risk 2(3), linear-programming
     form: [L_k - l]^+ is replaced by u_k with u_k >= 0, u_k >= L_k(x) - l.
@@ -268,7 +288,7 @@ def _ru_block(inst, lay):
     l_part = sp.csr_matrix(-np.ones((s, 1)))
     u_part = -sp.identity(s, format="csr")
     pad = sp.csr_matrix((s, lay.total - lay.u - s))
-    return sp.hstack([x_part, l_part, u_part, pad], format="csr"), np.zeros(s)
+    return sp.hstack([x_part, l_part, u_part, pad], format="csr"), -inst["offsets"]
 
 
 def _active_block(inst, lay):
@@ -375,8 +395,8 @@ def cost(inst, x):
 
 
 def net_return(inst, x):
-    """mu . x minus the cost of getting there."""
-    return float(expected_returns(inst) @ x) - cost(inst, x)
+    """mu . x minus the cost of getting there (less the liabilities' expected part)."""
+    return float(expected_returns(inst) @ x) - cost(inst, x) - expected_offset(inst)
 
 
 def _report(inst, status, z, objective):
@@ -388,7 +408,7 @@ def _report(inst, status, z, objective):
         "objective": float(objective),
         "weights": x.tolist(),
         "cvar": exact_cvar(inst, x),
-        "expected_return": float(expected_returns(inst) @ x),
+        "expected_return": float(expected_returns(inst) @ x) - expected_offset(inst),
         "cost": cost(inst, x),
         "expected_return_net": net_return(inst, x),
     }
@@ -411,13 +431,14 @@ def max_return(inst, capped):
     lay = Layout(inst, with_cvar=capped)
     rows, rhs = ([lay.cvar_row(inst)], [inst["cvar_cap"]]) if capped else ((), ())
     status, z, fun = solve_lp(inst, lay, -_return_row(inst, lay), rows, rhs)
-    return _report(inst, status, z, None if fun is None else -fun)
+    return _report(inst, status, z, None if fun is None else -fun - expected_offset(inst))
 
 
 def min_cvar(inst, floored):
     """min CVaR_c(x) over X, with N(x) >= return_floor when floored."""
     lay = Layout(inst, with_cvar=True)
-    rows, rhs = ([-_return_row(inst, lay)], [-inst["return_floor"]]) if floored else ((), ())
+    floor = inst["return_floor"] + expected_offset(inst)
+    rows, rhs = ([-_return_row(inst, lay)], [-floor]) if floored else ((), ())
     status, z, fun = solve_lp(inst, lay, lay.cvar_row(inst), rows, rhs)
     return _report(inst, status, z, fun)
 
@@ -436,7 +457,7 @@ def parametric_step(inst, lam):
     status, z, fun = solve_lp(inst, lay, objective)
     if status != "optimal":
         return status, None, None
-    return status, np.asarray(z[:lay.n]), -fun
+    return status, np.asarray(z[:lay.n]), -fun - expected_offset(inst)
 
 
 def _not_applicable(reason):
@@ -545,7 +566,8 @@ def _cc_rows(inst, cols, has_d):
         if inst["tau"] is not None:
             add([(d + i, 1.0) for i in range(n)] + [(t, -inst["tau"])])
     for k in range(s):
-        add([(z + i, -ret[k, i]) for i in range(n)] + [(cols["l"], -1.0), (cols["u"] + k, -1.0)])
+        add([(z + i, -ret[k, i]) for i in range(n)]
+            + [(cols["l"], -1.0), (cols["u"] + k, -1.0), (t, inst["offsets"][k])])
         add([(z + i, -ret[k, i]) for i in range(n)]
             + [(cols["la"], -1.0), (cols["v"] + k, -1.0), (t, inst["benchmark"][k])])
     add([(cols["l"], 1.0)] + [(cols["u"] + k, probs[k] / (1.0 - c)) for k in range(s)], 1.0)
@@ -573,6 +595,7 @@ def max_ratio_cc(inst, lowest, highest):
     a_eq[0, cols["t"]] = -1.0
     objective = np.zeros(cols["total"])
     objective[:n] = -expected_returns(inst)
+    objective[cols["t"]] = expected_offset(inst)
     if inst["rates"] is not None:
         objective[cols["d"]:cols["d"] + n] = inst["rates"]
     bounds = [(None, None)] * n + [(0, None), (None, None)] + [(0, None)] * (cols["la"] - n - 2)

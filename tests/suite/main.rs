@@ -14,6 +14,7 @@ mod demo;
 mod faults;
 mod inputs;
 mod layers;
+mod liabilities;
 mod models;
 mod money;
 mod parquet_bytes;
