@@ -375,3 +375,64 @@ pub fn demo_table_matches_results_json(text: &str, r: &serde_json::Value) {
     assert!(flat.contains("Few monthly scenarios"), "monthly caveat");
     assert!(flat.contains("Unsmoothed valuations"), "unsmoothing caveat");
 }
+
+#[test]
+fn quarterly_scenarios_take_each_quarters_last_observation_end_to_end() {
+    // scenarios.frequency: quarterly with a horizon of one quarter. Written out here from the price file
+    // alone: each quarter's last business day in the file, every scenario the simple return from one such
+    // day to the next (the month-end rule applied to quarters), the newest ending at as-of.
+    use chrono::Datelike;
+    let f = Fixture::new();
+    let config = "scenarios:\n  frequency: quarterly\n  horizon: 1\n  lookback_years: 8\n";
+    let (m, pf) = fund_with_appraised(&f, ",valuation,smoothing", ",monthly,none", config, false);
+    let dir = pack(&f, &f.run(&["run", "fund.yaml", "--quiet"]));
+    let quarter = |d: &chrono::NaiveDate| (d.year(), (d.month() - 1) / 3);
+    let ends: Vec<usize> = (0..m.dates.len())
+        .filter(|&i| i + 1 == m.dates.len() || quarter(&m.dates[i + 1]) != quarter(&m.dates[i]))
+        .collect();
+    let as_of = chrono::NaiveDate::from_ymd_opt(2024, 12, 31).unwrap();
+    let first = as_of.checked_sub_months(chrono::Months::new(96)).unwrap();
+    let window: Vec<usize> = ends.into_iter().filter(|&i| m.dates[i] >= first).collect();
+    let text = std::fs::read_to_string(dir.join("scenarios.csv")).unwrap();
+    let labels: Vec<&str> = text
+        .lines()
+        .skip(1)
+        .map(|l| l.split(',').next().unwrap())
+        .collect();
+    assert_eq!(
+        labels.len(),
+        window.len() - 1,
+        "one scenario per pair of quarter-ends"
+    );
+    for (k, pair) in window.windows(2).enumerate() {
+        assert_eq!(
+            labels[k],
+            format!("{}/{}", m.dates[pair[0]], m.dates[pair[1]])
+        );
+    }
+    let pf_returns = scenario_column(&dir, "PF01");
+    let as1 = scenario_column(&dir, "AS01");
+    for (k, pair) in window.windows(2).enumerate() {
+        let (a, b) = (pf[pair[0]].unwrap(), pf[pair[1]].unwrap());
+        // The price file holds six decimals of values near 100, so 1e-7 allows for that rounding only.
+        let want = b / a - 1.0;
+        assert!(
+            (pf_returns[k] - want).abs() < 1e-7,
+            "PF01 scenario {k}: {} vs {want}",
+            pf_returns[k]
+        );
+        let (a, b) = (m.prices[pair[0]][0], m.prices[pair[1]][0]);
+        let want = b / a - 1.0;
+        assert!(
+            (as1[k] - want).abs() < 1e-6,
+            "AS01 scenario {k}: {} vs {want}",
+            as1[k]
+        );
+    }
+    let r = json(&dir.join("results.json"));
+    assert_eq!(
+        r["scenarios"]["frequency"], "quarterly",
+        "{}",
+        r["scenarios"]
+    );
+}
