@@ -205,13 +205,8 @@ pub fn solve_after(
     let models_start = std::time::Instant::now();
     let basis = crate::analysis::liabilities::basis_set(&cfg, &set, &reference);
     let model_set = basis.as_ref().map_or(&set, |(s, _)| s);
-    let benchmark = active_benchmark(&cfg, &set, &reference).map(|(b, budget)| {
-        let c = basis.as_ref().map(|(_, c)| c.as_slice());
-        (
-            crate::analysis::liabilities::benchmark_on_basis(b, c),
-            budget,
-        )
-    });
+    let offsets = basis.as_ref().map(|(_, c)| c.as_slice());
+    let benchmark = active_benchmark(&cfg, &set, &reference, offsets);
     let p = Problem {
         set: model_set,
         mu: model_set.mean(),
@@ -242,11 +237,14 @@ pub fn solve_after(
         &portfolios,
         &analysis.shocks,
     );
-    let mut checks = run_checks(&cfg, &data, &solved, &analysis, policy.as_ref(), &past);
-    checks.extend(crate::analysis::liabilities::checks(
-        liabilities.as_ref(),
+    let checks = run_checks(
         &cfg,
-    ));
+        &data,
+        &solved,
+        &analysis,
+        (policy.as_ref(), liabilities.as_ref()),
+        &past,
+    );
     let backend = cfg.backend;
     Ok(RunResult {
         config: cfg,
@@ -275,7 +273,10 @@ fn run_checks(
     data: &MarketData,
     solved: &Solved,
     analysis: &crate::analysis::Analysis,
-    policy: Option<&crate::analysis::policy::PolicyReport>,
+    (policy, liabilities): (
+        Option<&crate::analysis::policy::PolicyReport>,
+        Option<&crate::analysis::liabilities::LiabilityReport>,
+    ),
     past: &crate::analysis::change::Past,
 ) -> Vec<Check> {
     let mut checks = data.quality.findings.clone();
@@ -284,19 +285,26 @@ fn run_checks(
     checks.extend(crate::analysis::policy::checks(policy));
     checks.extend(active_budget_check(cfg, policy));
     checks.extend(crate::analysis::change::checks(past));
+    checks.extend(crate::analysis::liabilities::checks(liabilities, cfg));
     checks
 }
 
 /// The policy benchmark's return per scenario with the active-CVaR budget, when the policy sets one
-/// (`policy.active_cvar_budget`): what the models keep their active CVaR against.
+/// (`policy.active_cvar_budget`): what the models keep their active CVaR against; on the surplus basis
+/// less the liabilities' part of each scenario (`offsets`), like the models' scenario set.
 fn active_benchmark(
     cfg: &Config,
     set: &ScenarioSet,
     reference: &ScenarioSet,
+    offsets: Option<&[f64]>,
 ) -> Option<(Vec<f64>, f64)> {
     let policy = cfg.policy.as_ref()?;
     let budget = policy.active_cvar_budget?;
-    Some((scenarios::policy_benchmark(set, reference, policy), budget))
+    let b = scenarios::policy_benchmark(set, reference, policy);
+    Some((
+        crate::analysis::liabilities::benchmark_on_basis(b, offsets),
+        budget,
+    ))
 }
 
 /// With an active-CVaR budget, a check naming it, each model's active CVaR against it (`binding` within

@@ -46,6 +46,27 @@ pub fn defined(
 }
 
 fn resolve(path: &Path, s: &ShockSpec, data: &MarketData, proxy: Option<&str>) -> Result<Shock> {
+    check_moves(path, s, data, proxy)?;
+    let (returns, unshocked) = shock_returns(s, data);
+    Ok(Shock {
+        name: s.name.clone(),
+        kind: "defined",
+        description: s.description.clone(),
+        liabilities: s
+            .moves
+            .iter()
+            .find(|m| m.asset.is_some() && m.asset.as_deref() == proxy)
+            .map(|m| m.ret),
+        start: None,
+        end: None,
+        returns,
+        unshocked,
+    })
+}
+
+/// Every move of a shock names an asset of the run (or the liability proxy), a currency some asset is
+/// priced in, or a tag some asset carries.
+fn check_moves(path: &Path, s: &ShockSpec, data: &MarketData, proxy: Option<&str>) -> Result<()> {
     let err = |m: String| Error::config(path, format!("shock `{}`: {m}", s.name));
     for m in &s.moves {
         if let Some(a) = &m.asset {
@@ -72,6 +93,12 @@ fn resolve(path: &Path, s: &ShockSpec, data: &MarketData, proxy: Option<&str>) -
             }
         }
     }
+    Ok(())
+}
+
+/// Each asset's return under a shock (its own move, else its tag's, with the currency move on the
+/// unhedged part), and the assets no move reaches.
+fn shock_returns(s: &ShockSpec, data: &MarketData) -> (Vec<f64>, Vec<String>) {
     let mut returns = Vec::with_capacity(data.assets.len());
     let mut unshocked = Vec::new();
     for (i, a) in data.assets.iter().enumerate() {
@@ -97,20 +124,7 @@ fn resolve(path: &Path, s: &ShockSpec, data: &MarketData, proxy: Option<&str>) -
             (r, Some(fx)) => returns.push(with_currency(r.unwrap_or(0.0), fx)),
         }
     }
-    Ok(Shock {
-        name: s.name.clone(),
-        kind: "defined",
-        description: s.description.clone(),
-        liabilities: s
-            .moves
-            .iter()
-            .find(|m| m.asset.is_some() && m.asset.as_deref() == proxy)
-            .map(|m| m.ret),
-        start: None,
-        end: None,
-        returns,
-        unshocked,
-    })
+    (returns, unshocked)
 }
 
 /// The currency of a `currency:XXX` tag (the column `currency`, any case), which moves a currency rather

@@ -272,12 +272,7 @@ fn assemble(
         out_root,
         analysis: raw.analysis,
         stress_file: input(Input::Stress),
-        stress_name: raw
-            .stress
-            .file
-            .as_ref()
-            .and_then(|p| p.file_name())
-            .map(|n| n.to_string_lossy().into_owned()),
+        stress_name: file_name(raw.stress.file.as_deref()),
         stress,
         stress_loss_limit: raw.stress.loss_limit,
         stress_windows: raw.stress.historical_windows,
@@ -290,6 +285,12 @@ fn assemble(
         liabilities: rules.liabilities,
         basis: rules.basis,
     }
+}
+
+/// The last part of a configured path, as text (the stress file's name in the pack).
+fn file_name(path: Option<&Path>) -> Option<String> {
+    path.and_then(|p| p.file_name())
+        .map(|n| n.to_string_lossy().into_owned())
 }
 
 /// The archive root: `--out`, else `output.root` relative to the config, else the default.

@@ -65,18 +65,7 @@ pub fn convert(cfg: &Config, data: &mut MarketData) -> Result<()> {
         hedge: hedge.clone(),
     };
     let Some(path) = cfg.fx.as_deref() else {
-        return match first_foreign(data, &of_asset) {
-            Some((a, c)) => Err(Error::config(
-                &cfg.path,
-                format!(
-                    "data.fx: is needed: asset `{}` is priced in `{c}` ({}, {}, column `currency`), and without an exchange-rate file its prices cannot be converted to the base currency",
-                    a.asset,
-                    cfg.assets.display(),
-                    a.place
-                ),
-            )),
-            None => Ok(()),
-        };
+        return without_rates(cfg, data, &of_asset);
     };
     let rates = read_rates(path, data.as_of)?;
     let start = data.full_dates.len() - data.dates.len();
@@ -99,26 +88,37 @@ pub fn convert(cfg: &Config, data: &mut MarketData) -> Result<()> {
             .iter()
             .map(|r| r.map_or(f64::NAN, |r| r.1))
             .collect();
-        data.full_prices[i] = to_base(
-            &data.full_prices[i],
-            &rate,
-            &data.full_dates,
-            hedge[i],
-            premium,
-        );
-        data.prices[i] = to_base(
-            &data.prices[i],
-            &rate[start..],
-            &data.dates,
-            hedge[i],
-            premium,
-        );
+        to_base_in_place(data, i, &rate, hedge[i], premium);
     }
     for (c, aligned) in &by_currency {
         let findings = rate_findings(cfg, c, &aligned[start..], &data.dates);
         data.quality.findings.extend(findings);
     }
     Ok(())
+}
+
+/// Without a rate file every asset must be in the base currency: the first foreign one is an error.
+fn without_rates(cfg: &Config, data: &MarketData, of_asset: &[Option<String>]) -> Result<()> {
+    match first_foreign(data, of_asset) {
+        Some((a, c)) => Err(Error::config(
+            &cfg.path,
+            format!(
+                "data.fx: is needed: asset `{}` is priced in `{c}` ({}, {}, column `currency`), and without an exchange-rate file its prices cannot be converted to the base currency",
+                a.asset,
+                cfg.assets.display(),
+                a.place
+            ),
+        )),
+        None => Ok(()),
+    }
+}
+
+/// Asset `i`'s full-history and window prices converted to the base currency at `rate` (per full-history
+/// date), with its hedge ratio and the currency's rate differential.
+fn to_base_in_place(data: &mut MarketData, i: usize, rate: &[f64], hedge: f64, premium: f64) {
+    let start = data.full_dates.len() - data.dates.len();
+    data.full_prices[i] = to_base(&data.full_prices[i], rate, &data.full_dates, hedge, premium);
+    data.prices[i] = to_base(&data.prices[i], &rate[start..], &data.dates, hedge, premium);
 }
 
 /// Data-quality findings on one currency's rates over the scenario window: how many price dates took an
