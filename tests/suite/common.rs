@@ -364,3 +364,19 @@ pub fn squeeze(text: &str) -> String {
 pub fn solid(text: &str) -> String {
     text.split_whitespace().collect()
 }
+
+/// Every portfolio of a pack, by name, in the order of `assets`: the current holdings of the four-asset
+/// fixtures (0.25 each), then each model with weights.
+pub fn portfolios(r: &serde_json::Value, assets: &[String]) -> Vec<(String, Vec<f64>)> {
+    let mut out = vec![("current".to_string(), vec![0.25; 4])];
+    for (name, m) in r["models"].as_object().unwrap() {
+        if let Some(w) = m["weights"].as_object() {
+            out.push((
+                name.clone(),
+                assets.iter().map(|a| w[a].as_f64().unwrap()).collect(),
+            ));
+        }
+    }
+    assert!(out.len() >= 3, "{}", r["models"]);
+    out
+}

@@ -7,7 +7,7 @@
 //! Management 16(2)); CVaR_c = min over ℓ of ℓ + 1/(1−c)·Σ p_k (L_k − ℓ)+ (Rockafellar & Uryasev 2000,
 //! Theorem 1), evaluated at every scenario loss; VaR_c the lower c-quantile of the losses.
 
-use super::common::{Fixture, Market, config, json, normal};
+use super::common::{Fixture, Market, config, json, normal, portfolios};
 use rand::SeedableRng;
 use std::path::{Path, PathBuf};
 
@@ -72,6 +72,19 @@ fn with_fund_value(cfg: &PathBuf, f: &Fixture, fund: &str) -> PathBuf {
     f.write("fund.yaml", &text)
 }
 
+/// The proxy's prices by date, read from the fixture's price file (its sixth column).
+fn proxy_by_date(f: &Fixture) -> std::collections::BTreeMap<String, f64> {
+    let prices = std::fs::read_to_string(f.path("data/prices.csv")).unwrap();
+    prices
+        .lines()
+        .skip(1)
+        .map(|l| {
+            let cells: Vec<&str> = l.split(',').collect();
+            (cells[0].to_string(), cells[5].parse().unwrap())
+        })
+        .collect()
+}
+
 fn run_pack(f: &Fixture, cfg: &Path) -> PathBuf {
     let ran = f.run(&["run", cfg.to_str().unwrap(), "--quiet"]);
     assert_eq!(ran.code, 0, "stderr: {}", ran.stderr);
@@ -100,21 +113,6 @@ fn var_cvar(losses: &[f64], c: f64) -> (f64, f64) {
         .map(|&l| l + losses.iter().map(|x| p * (x - l).max(0.0)).sum::<f64>() / (1.0 - c))
         .fold(f64::INFINITY, f64::min);
     (var, cvar)
-}
-
-/// Every portfolio of a pack, by name, in the order of `assets`.
-fn portfolios(r: &serde_json::Value, assets: &[String]) -> Vec<(String, Vec<f64>)> {
-    let mut out = vec![("current".to_string(), vec![0.25; 4])];
-    for (name, m) in r["models"].as_object().unwrap() {
-        if let Some(w) = m["weights"].as_object() {
-            out.push((
-                name.clone(),
-                assets.iter().map(|a| w[a].as_f64().unwrap()).collect(),
-            ));
-        }
-    }
-    assert!(out.len() >= 3, "{}", r["models"]);
-    out
 }
 
 #[test]
@@ -585,15 +583,7 @@ fn the_backtest_on_the_surplus_basis_counts_exceptions_against_realised_surplus_
     let cfg = with_fund_value(&cfg, &f, &liabilities(1_050_000.0, ""));
     let dir = run_pack(&f, &cfg);
     let r = json(&dir.join("results.json"));
-    let prices = std::fs::read_to_string(f.path("data/prices.csv")).unwrap();
-    let proxy: std::collections::BTreeMap<String, f64> = prices
-        .lines()
-        .skip(1)
-        .map(|l| {
-            let cells: Vec<&str> = l.split(',').collect();
-            (cells[0].to_string(), cells[5].parse().unwrap())
-        })
-        .collect();
+    let proxy = proxy_by_date(&f);
     let fr = FUND_VALUE / 1_050_000.0;
     let b = &r["backtest"];
     assert_eq!(b["basis"], "surplus");
@@ -647,15 +637,7 @@ fn stress_shocks_move_the_liabilities_and_show_the_surplus_and_funded_ratio() {
     let dir = run_pack(&f, &cfg);
     let r = json(&dir.join("results.json"));
     let fr = FUND_VALUE / 1_050_000.0;
-    let prices = std::fs::read_to_string(f.path("data/prices.csv")).unwrap();
-    let proxy: std::collections::BTreeMap<String, f64> = prices
-        .lines()
-        .skip(1)
-        .map(|l| {
-            let cells: Vec<&str> = l.split(',').collect();
-            (cells[0].to_string(), cells[5].parse().unwrap())
-        })
-        .collect();
+    let proxy = proxy_by_date(&f);
     let shocks = r["stress"]["shocks"]
         .as_array()
         .expect("stress shocks in results.json");

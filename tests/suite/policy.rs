@@ -8,7 +8,7 @@
 //! 2000, "Optimization of conditional value-at-risk", J. Risk 2(3), Theorem 1), which this file evaluates
 //! at every scenario loss rather than by sorting.
 
-use super::common::{Fixture, Market, config, json, pdf_text, squeeze};
+use super::common::{Fixture, Market, config, json, pdf_text, portfolios, squeeze};
 use std::path::PathBuf;
 use tailpack::scenarios::{Column, ScenarioSet, mix_returns};
 
@@ -169,16 +169,7 @@ fn active_risk_recomputed_from_the_scenario_files_for_every_portfolio() {
     let b: Vec<f64> = (0..rows.len())
         .map(|k| 0.6 * ref_rows[k][0] + 0.4 * rows[k][1])
         .collect();
-    let mut portfolios = vec![("current".to_string(), vec![0.25; 4])];
-    for (name, m) in r["models"].as_object().unwrap() {
-        if let Some(w) = m["weights"].as_object() {
-            portfolios.push((
-                name.clone(),
-                assets.iter().map(|a| w[a].as_f64().unwrap()).collect(),
-            ));
-        }
-    }
-    assert!(portfolios.len() >= 3, "{}", r["models"]);
+    let portfolios = portfolios(&r, &assets);
     for (name, x) in &portfolios {
         let a: Vec<f64> = (0..rows.len())
             .map(|k| rows[k].iter().zip(x).map(|(r, w)| r * w).sum::<f64>() - b[k])
