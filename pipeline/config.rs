@@ -219,6 +219,8 @@ pub struct Config {
     pub holdings: Option<PathBuf>,
     /// The exchange-rate file ([`Input::Fx`]).
     pub fx: Option<PathBuf>,
+    /// Price-file columns the fund leaves out (`data.skip_columns`): removed right after the file is read.
+    pub skip_columns: Vec<String>,
     /// The currency settings: base currency, hedge ratios, rate differentials.
     pub currency: Currency,
     pub quality: QualityOptions,

@@ -71,7 +71,7 @@ pub fn write_demo_data(dir: &Path) -> std::io::Result<DemoSummary> {
 pub fn render_demo_files() -> Vec<(&'static str, String)> {
     let dates = business_days();
     let clean = simulate_prices(&dates);
-    let series = benchmark_series(&clean);
+    let series = with_liability_proxy(benchmark_series(&clean), &clean);
     let rates = exchange_rates(&clean);
     let prices = apply_feed_defects(&dates, clean);
     vec![
@@ -278,6 +278,20 @@ impl Kind {
             Property => (0.065, 0.150),
             Commodity => (0.050, 0.210),
             Cash => (0.015, 0.002),
+        }
+    }
+
+    /// Invented modified duration in years of the interest-rate assets (the `duration` column, for the
+    /// liabilities' hedge ratio); none for the others.
+    fn duration(self) -> Option<f64> {
+        match self {
+            GovShort => Some(2.5),
+            GovLong => Some(13.0),
+            CreditIg => Some(6.0),
+            CreditHy => Some(3.5),
+            Linker => Some(8.0),
+            Cash => Some(0.2),
+            DevEquity | EmEquity | Property | Commodity => None,
         }
     }
 
@@ -662,6 +676,53 @@ fn benchmark_series(clean: &[Vec<f64>]) -> Vec<Vec<f64>> {
 }
 
 // ---------------------------------------------------------------------------
+// Liability proxy: a price-file column the pension fund's liabilities track
+// ---------------------------------------------------------------------------
+
+/// The invented liability-matching series of the demo pension fund (`liabilities.proxy`): not investable,
+/// no metadata row. Its daily return is the accrual at the liabilities' discount rate plus
+/// [`LIABILITY_RATE_BETA`] times the long government bonds' rate-driven move (their equally weighted
+/// daily return less its drift: the liabilities are longer than the bonds, so they move more when rates
+/// move) plus a small noise of its own. Invented, like every series here.
+const LIABILITY_PROXY: &str = "REF-LIAB";
+
+/// Annual discount rate at which the liabilities' value accrues, as a fraction.
+const LIABILITY_ACCRUAL: f64 = 0.035;
+
+/// The liabilities' rate sensitivity relative to the long government bonds' (about 16 years' duration
+/// against 13).
+const LIABILITY_RATE_BETA: f64 = 1.2;
+
+/// Daily standard deviation of the proxy's own noise (about 1% a year).
+const LIABILITY_NOISE: f64 = 0.0006;
+
+/// The benchmark series per day with the liability proxy's level (starting at 100) appended, from the
+/// clean asset prices and a generator of its own.
+fn with_liability_proxy(mut series: Vec<Vec<f64>>, clean: &[Vec<f64>]) -> Vec<Vec<f64>> {
+    let mut rng = Rng::from_seed(DEMO_SEED ^ 0x11AB_1E75);
+    let long: Vec<usize> = (0..ASSETS.len())
+        .filter(|&i| ASSETS[i].kind == GovLong)
+        .collect();
+    let bond_drift = GovLong.drift_and_vol().0 / DAYS_PER_YEAR;
+    let mut level = 100.0;
+    for (day, row) in series.iter_mut().enumerate() {
+        if day > 0 {
+            let bonds = long
+                .iter()
+                .map(|&i| clean[day][i] / clean[day - 1][i] - 1.0)
+                .sum::<f64>()
+                / long.len() as f64;
+            level *= 1.0
+                + LIABILITY_ACCRUAL / DAYS_PER_YEAR
+                + LIABILITY_RATE_BETA * (bonds - bond_drift)
+                + LIABILITY_NOISE * rng.normal();
+        }
+        row.push(level);
+    }
+    series
+}
+
+// ---------------------------------------------------------------------------
 // Assets valued monthly by appraisal
 // ---------------------------------------------------------------------------
 
@@ -864,7 +925,8 @@ fn render_prices(dates: &[NaiveDate], prices: &[Vec<Option<f64>>], series: &[Vec
     let mut out = synthetic_header("not real market prices");
     out.push_str("date");
     let codes = ASSETS.iter().map(|a| a.code);
-    for code in codes.chain(BENCHMARKS.iter().map(|b| b.0)) {
+    let series_codes = BENCHMARKS.iter().map(|b| b.0).chain([LIABILITY_PROXY]);
+    for code in codes.chain(series_codes) {
         write!(out, ",{}", csv_out::field(code)).expect("write to String");
     }
     out.push('\n');
@@ -892,7 +954,9 @@ fn weight_text(units: u32) -> String {
 
 fn render_assets() -> String {
     let mut out = synthetic_header("fictitious assets, not real securities");
-    out.push_str("asset,name,class,region,min_weight,max_weight,valuation,smoothing,currency\n");
+    out.push_str(
+        "asset,name,class,region,min_weight,max_weight,valuation,smoothing,currency,duration\n",
+    );
     for a in &ASSETS {
         let (class, region) = (a.kind.class(), a.region.label());
         let max = weight_text(a.max_units);
@@ -902,7 +966,11 @@ fn render_assets() -> String {
             None => "daily,",
         };
         let currency = currency_of(a.region);
-        writeln!(out, "{text},0,{max},{valued},{currency}").expect("write to String");
+        let duration = a
+            .kind
+            .duration()
+            .map_or(String::new(), |d| format!("{d:.1}"));
+        writeln!(out, "{text},0,{max},{valued},{currency},{duration}").expect("write to String");
     }
     out
 }
@@ -1030,10 +1098,10 @@ mod tests {
     #[test]
     fn calendar_is_every_weekday_up_to_the_last_month_end() {
         let p = parse_prices();
-        // 50 assets, then the 4 benchmark series the asset metadata does not list.
-        assert_eq!(p.codes.len(), 54);
+        // 50 assets, then the 4 benchmark series and the liability proxy the asset metadata does not list.
+        assert_eq!(p.codes.len(), 55);
         let assets = file("assets.csv");
-        for (code, _) in BENCHMARKS {
+        for code in BENCHMARKS.iter().map(|b| b.0).chain([LIABILITY_PROXY]) {
             assert!(p.codes.contains(&code.to_string()), "{code}");
             assert!(!assets.contains(code), "{code} must have no metadata row");
         }
@@ -1045,7 +1113,7 @@ mod tests {
                 .windows(2)
                 .all(|w| w[0] < w[1] && (w[1] - w[0]).num_days() <= 3)
         );
-        assert!(p.cells.iter().all(|row| row.len() == 54));
+        assert!(p.cells.iter().all(|row| row.len() == 55));
     }
 
     #[test]
@@ -1179,6 +1247,34 @@ mod tests {
         for code in ["GOVL-01", "GOVL-02", "GOVL-03", "GOVL-04"] {
             let col = p.column(code);
             assert!(col[last] > col[base], "{code} fell in the crash");
+        }
+    }
+
+    #[test]
+    fn liability_proxy_moves_with_long_bonds_and_further() {
+        let p = parse_prices();
+        let proxy = p.column(LIABILITY_PROXY);
+        let long = |day: usize| {
+            ["GOVL-01", "GOVL-02", "GOVL-03", "GOVL-04"]
+                .iter()
+                .map(|c| p.column(c)[day].expect("no blanks here"))
+                .sum::<f64>()
+        };
+        let at = |day: usize| proxy[day].expect("the proxy has no blanks");
+        for (episode, rises) in [(&CRASH, true), (&RATE_RISE, false)] {
+            let (base, last) = (p.row_of(episode.first) - 1, p.row_of(episode.last));
+            let (liab, bonds) = (at(last) / at(base) - 1.0, long(last) / long(base) - 1.0);
+            assert_eq!(
+                liab > 0.0,
+                rises,
+                "{liab} in {}..{}",
+                episode.first,
+                episode.last
+            );
+            assert!(
+                liab.abs() > bonds.abs(),
+                "proxy {liab} against long bonds {bonds}"
+            );
         }
     }
 

@@ -277,7 +277,17 @@ pub fn results_json(r: &RunResult, inputs: &[crate::archive::InputFile], pack_id
 /// The change since the fund's previous pack ([`crate::analysis::change::section`]), compared with this
 /// pack's own results as written.
 fn change_json(r: &RunResult, results: &Value) -> Value {
-    crate::analysis::change::section(&r.past, results, &r.scenarios, r.config.confidence)
+    let offsets = match r.config.basis {
+        crate::config::Basis::Surplus => {
+            crate::analysis::liabilities::offsets(&r.config, &r.reference)
+        }
+        crate::config::Basis::Assets => None,
+    };
+    let now = crate::analysis::change::Now {
+        set: &r.scenarios,
+        offsets: offsets.as_deref(),
+    };
+    crate::analysis::change::section(&r.past, results, &now, r.config.confidence)
 }
 
 /// The estimation-error bands: per family, [p5, p50, p95] of every weight, of expected return and CVaR on

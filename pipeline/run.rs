@@ -146,10 +146,7 @@ pub fn validate(cfg: Config, data: MarketData) -> Result<Prepared> {
     let policy_members = models::policy_lines(&cfg, &data)?;
     let feasible = models::feasible_set(&cfg, &data)?;
     let shocks = match (&cfg.stress_file, &cfg.stress) {
-        (Some(path), Some(file)) => {
-            let proxy = cfg.liabilities.as_ref().map(|l| l.proxy.as_str());
-            stress::defined(path, file, &data, proxy)?
-        }
+        (Some(path), Some(file)) => stress::defined(path, file, &data, cfg.liabilities.as_ref())?,
         _ => vec![],
     };
     Ok(Prepared {
@@ -380,13 +377,24 @@ fn solve_models(p: &Problem, cfg: &Config, data: &MarketData) -> Solved {
 /// A `not_applicable` outcome on the surplus basis, with what that means for a fund with liabilities.
 fn on_basis(cfg: &Config, mut o: Outcome) -> Outcome {
     if cfg.basis == config::Basis::Surplus && o.status == Status::NotApplicable {
-        let m = o.message.take().unwrap_or_default();
+        let m = surplus_words(cfg, &o.message.take().unwrap_or_default());
         o.message = Some(format!(
             "{m}; {}",
             crate::analysis::liabilities::RATIO_ON_SURPLUS
         ));
     }
     o
+}
+
+/// The precondition sentences of the models on the surplus basis name what they measure there: the
+/// minimum surplus CVaR and the maximum expected surplus return over the feasible set.
+fn surplus_words(cfg: &Config, text: &str) -> String {
+    match cfg.basis {
+        config::Basis::Assets => text.to_string(),
+        config::Basis::Surplus => text
+            .replace("minimum CVaR", "minimum surplus CVaR")
+            .replace("maximum expected return", "maximum expected surplus return"),
+    }
 }
 
 /// The portfolios the analysis compares, by name: the current holdings (when given), then each family's.
@@ -460,7 +468,14 @@ fn report(
 }
 
 fn model_checks(pre: &Preconditions, reports: &[ModelReport], cfg: &Config) -> Vec<Check> {
-    let mut out = Vec::from(pre.checks(cfg.confidence));
+    let mut out: Vec<Check> = pre
+        .checks(cfg.confidence)
+        .into_iter()
+        .map(|mut c| {
+            c.message = surplus_words(cfg, &c.message);
+            c
+        })
+        .collect();
     out.extend(money_checks(cfg));
     for r in reports {
         let o = &r.outcome;

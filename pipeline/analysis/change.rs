@@ -47,6 +47,9 @@ pub struct PastScenarios {
     pub probabilities: Vec<f64>,
     /// One row of asset returns per scenario.
     pub returns: Vec<Vec<f64>>,
+    /// On the surplus basis, the liabilities' part of each scenario's loss, ℓ_k / F (the proxy's column
+    /// of the pack's `reference-scenarios.csv` over its funded ratio); `None` on the assets' basis.
+    pub offsets: Option<Vec<f64>>,
 }
 
 /// The fund's earlier packs as a run sees them: the previous one (`None` for the fund's first pack) and
@@ -197,6 +200,28 @@ pub struct Month<'a> {
     /// One row of returns per scenario, in `assets` order.
     pub returns: Vec<&'a [f64]>,
     pub probabilities: &'a [f64],
+    /// On the surplus basis, what each scenario's loss adds for the liabilities (ℓ_k / F): the loss is
+    /// then ℓ_k / F − r_k·x, the surplus loss. `None` on the assets' basis.
+    pub offsets: Option<&'a [f64]>,
+}
+
+/// The basis a results.json measures CVaR on: `liabilities.basis`, `assets` without liabilities.
+pub fn basis_of(results: &Value) -> &str {
+    results["liabilities"]["basis"].as_str().unwrap_or("assets")
+}
+
+/// The surplus basis' offsets ℓ_k / F of a pack on the surplus basis, from its results.json (proxy and
+/// funded ratio) and the text of its `reference-scenarios.csv`; `None` on the assets' basis or when the
+/// file does not give them.
+pub fn surplus_offsets(results: &Value, reference_csv: &str) -> Option<Vec<f64>> {
+    if basis_of(results) != "surplus" {
+        return None;
+    }
+    let l = &results["liabilities"];
+    let (proxy, f) = (l["proxy"].as_str()?, l["funded_ratio"].as_f64()?);
+    let table = parse_scenarios(reference_csv)?;
+    let j = table.assets.iter().position(|a| a == proxy)?;
+    Some(table.returns.iter().map(|row| row[j] / f).collect())
 }
 
 /// CVaR_c of `weights` (by asset name; an asset the month lacks has return 0 there, one the weights lack
@@ -210,7 +235,11 @@ pub fn cvar_on(month: &Month, weights: &[(String, f64)], c: f64) -> f64 {
     let losses: Vec<f64> = month
         .returns
         .iter()
-        .map(|row| -row.iter().zip(&w).map(|(r, x)| r * x).sum::<f64>())
+        .enumerate()
+        .map(|(k, row)| {
+            let offset = month.offsets.map_or(0.0, |c| c[k]);
+            offset - row.iter().zip(&w).map(|(r, x)| r * x).sum::<f64>()
+        })
         .collect();
     crate::risk::var_cvar(&losses, month.probabilities, c).cvar
 }
@@ -230,9 +259,16 @@ pub fn decompose(
     }
 }
 
+/// This run's scenarios as the comparison sees them: the assets' returns and, on the surplus basis, the
+/// offsets ℓ_k / F of [`Month::offsets`].
+pub struct Now<'a> {
+    pub set: &'a ScenarioSet,
+    pub offsets: Option<&'a [f64]>,
+}
+
 /// results.json's `change`: the previous pack, the CVaR decomposition and the comparisons, and the
 /// history; `current` is this run's results.json value without `change`.
-pub fn section(past: &Past, current: &Value, set: &ScenarioSet, confidence: f64) -> Value {
+pub fn section(past: &Past, current: &Value, now: &Now, confidence: f64) -> Value {
     let history = history(past, current);
     let Some(p) = &past.previous else {
         return json!({"previous": null, "note": "first pack of this fund: nothing to compare with",
@@ -248,11 +284,12 @@ pub fn section(past: &Past, current: &Value, set: &ScenarioSet, confidence: f64)
     json!({
         "previous": previous,
         "rule": RULE,
-        "current_cvar": current_cvar(p, current, set, confidence),
+        "basis": {"before": basis_of(old), "after": basis_of(current)},
+        "current_cvar": current_cvar(p, current, now, confidence),
         "portfolios": portfolios(old, current),
         "stress": stress(old, current),
         "checks": check_changes(old, current),
-        "data": data(p, old, current, set),
+        "data": data(p, old, current, now.set),
         "history": history,
     })
 }
@@ -269,28 +306,40 @@ fn weights_of(map: &Map<String, Value>) -> Vec<(String, f64)> {
         .collect()
 }
 
-/// The decomposition of the current portfolio's CVaR, or `null` with the reason when a month has no
-/// holdings or the previous scenarios could not be read back.
-fn current_cvar(p: &Previous, current: &Value, set: &ScenarioSet, c: f64) -> Value {
+/// The decomposition of the current portfolio's CVaR on the basis both packs measure it on, or `null`
+/// with the reason when a month has no holdings, the two packs measure CVaR on different bases, or the
+/// previous scenarios (or, on the surplus basis, its liability proxy's returns) could not be read back.
+fn current_cvar(p: &Previous, current: &Value, now: &Now, c: f64) -> Value {
     let (Some(then_w), Some(now_w)) = (holdings(&p.results), holdings(current)) else {
         return json!({"note": "no current holdings in one of the two packs: no decomposition"});
     };
+    let (before, after) = (basis_of(&p.results), basis_of(current));
+    if before != after {
+        return json!({"note": format!("the previous pack measured CVaR on the {before} basis and this one on the {after} basis: the two are not comparable, so there is no decomposition")});
+    }
     let Some(sc) = &p.scenarios else {
         return json!({"note": "the previous pack's scenarios.csv could not be read back"});
     };
+    if after == "surplus" && (sc.offsets.is_none() || now.offsets.is_none()) {
+        return json!({"note": "the previous pack's liability proxy returns (its reference-scenarios.csv) could not be read back"});
+    }
     let then = Month {
         assets: &sc.assets,
         returns: sc.returns.iter().map(Vec::as_slice).collect(),
         probabilities: &sc.probabilities,
+        offsets: sc.offsets.as_deref(),
     };
+    let set = now.set;
     let now = Month {
         assets: &set.assets,
         returns: (0..set.len()).map(|k| set.row(k)).collect(),
         probabilities: &set.probabilities,
+        offsets: now.offsets,
     };
     let d = decompose(&then, &then_w, &now, &now_w, c);
     json!({"before": d.before, "after": d.after, "holdings_effect": d.holdings_effect(),
-           "market_effect": d.market_effect(), "holdings_on_previous_scenarios": d.mixed, "confidence": c})
+           "market_effect": d.market_effect(), "holdings_on_previous_scenarios": d.mixed, "confidence": c,
+           "basis": after})
 }
 
 /// `{before, after, change}` of two optional figures.

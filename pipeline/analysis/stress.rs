@@ -6,7 +6,7 @@
 //! currency: an asset priced in it returns (1 + r_local)(1 + (1 − h)·s) − 1, with r_local its own move
 //! (asset or tag, else 0), s the currency's move and h its hedge ratio.
 
-use crate::config::{ShockSpec, StressFile};
+use crate::config::{Liabilities, ShockSpec, StressFile};
 use crate::error::{Error, Result};
 use crate::ingest::MarketData;
 use chrono::NaiveDate;
@@ -26,37 +26,40 @@ pub struct Shock {
     pub returns: Vec<f64>,
     /// Assets the shock does not move (no tag or asset entry; no price in a historical window).
     pub unshocked: Vec<String>,
-    /// The liability proxy's return in the shock: a move naming the proxy (`asset: <proxy>`), or its
-    /// return over a historical window; `None` when the shock leaves the liabilities unchanged.
+    /// The liability proxy's return in the shock: a move naming the proxy (`asset: <proxy>`), else the
+    /// first move by a tag the proxy carries (`liabilities.tags`), or its return over a historical
+    /// window; `None` when the shock leaves the liabilities unchanged.
     pub liabilities: Option<f64>,
 }
 
 /// Resolves the file's shocks against the universe: asset moves first, then the first matching tag move.
-/// A move whose `asset` is the liability proxy (`proxy`, with liabilities) moves the liabilities.
+/// With liabilities, the proxy moves the same way: a move naming it (`asset: <proxy>`), else the first
+/// move by one of its tags (`liabilities.tags`).
 pub fn defined(
     path: &Path,
     file: &StressFile,
     data: &MarketData,
-    proxy: Option<&str>,
+    liabilities: Option<&Liabilities>,
 ) -> Result<Vec<Shock>> {
     file.shocks
         .iter()
-        .map(|s| resolve(path, s, data, proxy))
+        .map(|s| resolve(path, s, data, liabilities))
         .collect()
 }
 
-fn resolve(path: &Path, s: &ShockSpec, data: &MarketData, proxy: Option<&str>) -> Result<Shock> {
-    check_moves(path, s, data, proxy)?;
+fn resolve(
+    path: &Path,
+    s: &ShockSpec,
+    data: &MarketData,
+    liabilities: Option<&Liabilities>,
+) -> Result<Shock> {
+    check_moves(path, s, data, liabilities)?;
     let (returns, unshocked) = shock_returns(s, data);
     Ok(Shock {
         name: s.name.clone(),
         kind: "defined",
         description: s.description.clone(),
-        liabilities: s
-            .moves
-            .iter()
-            .find(|m| m.asset.is_some() && m.asset.as_deref() == proxy)
-            .map(|m| m.ret),
+        liabilities: liabilities.and_then(|l| proxy_move(s, l)),
         start: None,
         end: None,
         returns,
@@ -64,9 +67,29 @@ fn resolve(path: &Path, s: &ShockSpec, data: &MarketData, proxy: Option<&str>) -
     })
 }
 
+/// The proxy's return in a defined shock: the move naming it, else the first move by one of its tags.
+fn proxy_move(s: &ShockSpec, l: &Liabilities) -> Option<f64> {
+    let by_asset = s
+        .moves
+        .iter()
+        .find(|m| m.asset.as_deref() == Some(&l.proxy));
+    let by_tag = || {
+        s.moves
+            .iter()
+            .find(|m| m.tag.as_deref().is_some_and(|t| l.has_tag(t)))
+    };
+    by_asset.or_else(by_tag).map(|m| m.ret)
+}
+
 /// Every move of a shock names an asset of the run (or the liability proxy), a currency some asset is
-/// priced in, or a tag some asset carries.
-fn check_moves(path: &Path, s: &ShockSpec, data: &MarketData, proxy: Option<&str>) -> Result<()> {
+/// priced in, or a tag some asset or the proxy carries.
+fn check_moves(
+    path: &Path,
+    s: &ShockSpec,
+    data: &MarketData,
+    liabilities: Option<&Liabilities>,
+) -> Result<()> {
+    let proxy = liabilities.map(|l| l.proxy.as_str());
     let err = |m: String| Error::config(path, format!("shock `{}`: {m}", s.name));
     for m in &s.moves {
         if let Some(a) = &m.asset {
@@ -85,11 +108,21 @@ fn check_moves(path: &Path, s: &ShockSpec, data: &MarketData, proxy: Option<&str
             }
         } else if let Some(t) = &m.tag {
             let (col, val) = t.split_once(':').expect("checked when loading");
-            if !data.meta.iter().any(|am| {
-                am.tag(&col.trim().to_ascii_lowercase())
-                    .is_some_and(|v| v.eq_ignore_ascii_case(val.trim()))
-            }) {
-                return Err(err(format!("tag `{t}` matches no asset")));
+            let proxy_has = liabilities.is_some_and(|l| l.has_tag(t));
+            if !proxy_has
+                && !data.meta.iter().any(|am| {
+                    am.tag(&col.trim().to_ascii_lowercase())
+                        .is_some_and(|v| v.eq_ignore_ascii_case(val.trim()))
+                })
+            {
+                return Err(err(format!(
+                    "tag `{t}` matches no asset{}",
+                    if liabilities.is_some() {
+                        " and no tag of the liability proxy (liabilities.tags)"
+                    } else {
+                        ""
+                    }
+                )));
             }
         }
     }

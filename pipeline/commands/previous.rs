@@ -55,7 +55,14 @@ fn past_of(root: &Path, history: Vec<Previous>) -> Past {
             let path = root.join(&p.folder);
             p.scenarios = std::fs::read_to_string(path.join("scenarios.csv"))
                 .ok()
-                .and_then(|t| change::parse_scenarios(&t));
+                .and_then(|t| change::parse_scenarios(&t))
+                .map(|mut sc| {
+                    sc.offsets = std::fs::read_to_string(path.join("reference-scenarios.csv"))
+                        .ok()
+                        .and_then(|t| change::surplus_offsets(&p.results, &t))
+                        .filter(|c| c.len() == sc.returns.len());
+                    sc
+                });
         }
         p
     });

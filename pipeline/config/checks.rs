@@ -333,6 +333,25 @@ pub(super) fn check_exclude(exclude: &[String]) -> Result<(), PlaceError> {
     }
 }
 
+/// `data.skip_columns`: each a column name, once (ingest checks them against the price file).
+pub(super) fn check_skip_columns(skip: &[String]) -> Result<(), PlaceError> {
+    for (j, c) in skip.iter().enumerate() {
+        if c.trim().is_empty() {
+            return Err((
+                format!("data.skip_columns[{j}]"),
+                "is blank; give the name of a price-file column".into(),
+            ));
+        }
+        if skip[..j].contains(c) {
+            return Err((
+                format!("data.skip_columns[{j}]"),
+                format!("`{c}` is listed twice"),
+            ));
+        }
+    }
+    Ok(())
+}
+
 /// `fund.value` and `fund.base_currency`: both or neither; a positive finite value and an ISO 4217 code
 /// (three upper-case letters; the code is not looked up, so a code reserved for testing, such as XTS,
 /// serves a demo).

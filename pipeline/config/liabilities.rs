@@ -6,6 +6,7 @@
 use super::checks::KeyError;
 use super::raw::{Basis, RawConfig, RawLiabilities};
 use serde::Serialize;
+use std::collections::BTreeMap;
 
 /// Longest liability duration accepted, in years: a larger figure is a unit mistake (months, days).
 pub const MAX_DURATION_YEARS: f64 = 100.0;
@@ -21,6 +22,21 @@ pub struct Liabilities {
     pub duration: Option<f64>,
     /// Convexity, in years squared.
     pub convexity: Option<f64>,
+    /// The proxy's tags (`liabilities.tags`), column (lower case) → value: a stress move by one of these
+    /// tags moves the liabilities.
+    pub tags: BTreeMap<String, String>,
+}
+
+impl Liabilities {
+    /// Whether a stress move's `column:value` tag names one of the proxy's tags (any case).
+    #[must_use]
+    pub fn has_tag(&self, tag: &str) -> bool {
+        tag.split_once(':').is_some_and(|(col, val)| {
+            self.tags
+                .get(&col.trim().to_ascii_lowercase())
+                .is_some_and(|v| v.eq_ignore_ascii_case(val.trim()))
+        })
+    }
 }
 
 /// The liabilities and the basis of the models' CVaR, checked against each other and `fund.value`.
@@ -66,7 +82,29 @@ fn resolve_section(l: &RawLiabilities, fund_value: bool) -> Result<Liabilities, 
             l.convexity,
             MAX_DURATION_YEARS.powi(2),
         )?,
+        tags: tags(&l.tags)?,
     })
+}
+
+/// The proxy's tags: a column name and a value each, not the currency column (a `currency:XXX` stress
+/// move moves a currency, not a tag).
+fn tags(raw: &BTreeMap<String, String>) -> Result<BTreeMap<String, String>, KeyError> {
+    let mut out = BTreeMap::new();
+    for (col, val) in raw {
+        let key = col.trim().to_ascii_lowercase();
+        let why = if key.is_empty() || val.trim().is_empty() {
+            format!("`{col}: {val}`: give a column name and a value, e.g. `class: liabilities`")
+        } else if key == "currency" {
+            "`currency` cannot be a tag of the proxy: a `currency:XXX` stress move moves a currency; the proxy is in the base currency".into()
+        } else if out.contains_key(&key) {
+            format!("column `{key}` is given twice (column names are compared in lower case)")
+        } else {
+            out.insert(key, val.trim().to_string());
+            continue;
+        };
+        return Err(("liabilities.tags", why));
+    }
+    Ok(out)
 }
 
 /// An optional figure in [0, max].

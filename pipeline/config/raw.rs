@@ -143,6 +143,9 @@ pub struct RawData {
     /// Exchange rates: per date, the value of one unit of each currency in the base currency (wide or
     /// long, as the price file).
     pub fx: Option<PathBuf>,
+    /// Price-file columns this fund leaves out: not read into the run, not checked, not archived apart
+    /// (the price file is archived whole). Each must be a column of the price file.
+    pub skip_columns: Vec<String>,
 }
 
 /// Currency hedging: hedge ratios (0 to 1; an asset's own beats a tag's, a tag's beats its class's; 0
@@ -355,6 +358,9 @@ pub struct RawLiabilities {
     pub duration: Option<f64>,
     /// Convexity of the liabilities, in years squared.
     pub convexity: Option<f64>,
+    /// The proxy's tags, as if it had an asset metadata row (column → value), so that a stress move by
+    /// tag can move the liabilities.
+    pub tags: BTreeMap<String, String>,
 }
 
 impl Default for RawRisk {

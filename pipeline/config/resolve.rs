@@ -134,7 +134,8 @@ fn check_sections(cx: &Context, raw: &RawConfig) -> Result<()> {
     checks::check_quality(&raw.quality).map_err(|e| cx.key_error(e))?;
     checks::check_levels(&raw.risk).map_err(|e| cx.key_error(e))?;
     checks::check_limits(&raw.limits, raw.data.holdings.is_some()).map_err(|e| cx.key_error(e))?;
-    checks::check_exclude(&raw.limits.exclude).map_err(|e| cx.place_error(e))
+    checks::check_exclude(&raw.limits.exclude).map_err(|e| cx.place_error(e))?;
+    checks::check_skip_columns(&raw.data.skip_columns).map_err(|e| cx.place_error(e))
 }
 
 /// The group limits, the CVaR cap, the return floor and the policy portfolio.
@@ -254,6 +255,7 @@ fn assemble(
         assets: input(Input::Assets).expect("checked to be named"),
         holdings: input(Input::Holdings),
         fx: input(Input::Fx),
+        skip_columns: raw.data.skip_columns,
         currency,
         quality: raw.quality,
         scenarios: raw.scenarios,

@@ -72,6 +72,7 @@ pub fn load(cfg: &Config) -> Result<MarketData> {
     let table = table::read_table(&cfg.prices)?;
     let mut hist = prices::from_table(&cfg.prices, &table, cfg.layout)?;
     let meta = meta::read_assets(&cfg.assets)?;
+    skip_columns(cfg, &mut hist, &meta)?;
     reference::check_proxy(cfg, &hist, &meta)?;
     check_universe(cfg, &hist, &meta)?;
     valuation::check_meta(cfg, &meta)?;
@@ -113,6 +114,45 @@ fn fails(findings: &[Check]) -> Vec<String> {
         .collect()
 }
 
+/// Removes the price-file columns the fund leaves out (`data.skip_columns`), before any check sees them.
+/// Each must be a column of the file, and neither an asset of the metadata nor a series the config uses
+/// (a policy benchmark series, the liability proxy): leaving out what the run needs is a contradiction.
+fn skip_columns(cfg: &Config, hist: &mut PriceHistory, meta: &[AssetMeta]) -> Result<()> {
+    for (j, c) in cfg.skip_columns.iter().enumerate() {
+        let why = if !hist.assets.contains(c) {
+            format!("is not a column of the price file {}", cfg.prices.display())
+        } else if let Some(m) = meta.iter().find(|m| &m.asset == c) {
+            format!(
+                "is an asset of the universe ({} of {} lists it): remove its row there, or exclude it from the models with limits.exclude",
+                m.place,
+                cfg.assets.display()
+            )
+        } else if reference::is_reference(cfg, meta, c) {
+            "is a series the config uses (a policy benchmark series or the liability proxy)".into()
+        } else {
+            continue;
+        };
+        return Err(Error::config(
+            &cfg.path,
+            format!("data.skip_columns[{j}]: `{}` {why}", truncate(c, 40)),
+        ));
+    }
+    let keep: Vec<bool> = hist
+        .assets
+        .iter()
+        .map(|a| !cfg.skip_columns.contains(a))
+        .collect();
+    let mut flags = keep.iter().copied();
+    hist.assets.retain(|_| flags.next().unwrap_or(true));
+    let mut flags = keep.iter().copied();
+    hist.values.retain(|_| flags.next().unwrap_or(true));
+    if let Some(cells) = hist.cells.as_mut() {
+        let mut flags = keep.iter().copied();
+        cells.retain(|_| flags.next().unwrap_or(true));
+    }
+    Ok(())
+}
+
 fn check_universe(cfg: &Config, hist: &PriceHistory, meta: &[AssetMeta]) -> Result<()> {
     if let Some(a) = hist
         .assets
@@ -122,7 +162,7 @@ fn check_universe(cfg: &Config, hist: &PriceHistory, meta: &[AssetMeta]) -> Resu
         return Err(Error::data(
             &cfg.assets,
             format!(
-                "column `asset`: has no row for asset `{}`, which is in the price file {}; every priced asset needs a row with at least its class (a benchmark series the policy names needs none)",
+                "column `asset`: has no row for asset `{}`, which is in the price file {}; every priced asset needs a row with at least its class (a benchmark series the policy names and the liability proxy need none; a column the fund does not use is left out with data.skip_columns)",
                 truncate(a, 40),
                 cfg.prices.display()
             ),

@@ -121,15 +121,32 @@ fn sentences(ch: &Value, results: &Value) -> Vec<String> {
         p["revision"]
     )];
     let cv = &ch["current_cvar"];
+    let measure = if cv["basis"] == "surplus" {
+        "surplus CVaR"
+    } else {
+        "CVaR"
+    };
     if let (Some(b), Some(a)) = (cv["before"].as_f64(), cv["after"].as_f64()) {
         out.push(format!(
-            "The current holdings' CVaR {} went from {} to {} ({}): {} from the change in holdings, {} from the market (the new scenarios).",
+            "The current holdings' {measure} {} went from {} to {} ({}): {} from the change in holdings, {} from the market (the new scenarios).",
             format::level(results["confidence"].as_f64().unwrap_or(0.0)),
             pct(b, Style::Weight),
             pct(a, Style::Weight),
             pct(a - b, Style::Points),
             fig(&cv["holdings_effect"], Style::Points),
             fig(&cv["market_effect"], Style::Points)
+        ));
+    }
+    if let Some(note) = cv["note"].as_str() {
+        out.push(format!(
+            "The CVaR change is not split into its effects: {note}."
+        ));
+    }
+    if ch["basis"]["before"] != ch["basis"]["after"] {
+        out.push(format!(
+            "The previous pack's VaR and CVaR figures are on the {} basis and this pack's on the {} basis: their differences below compare different measures.",
+            text(&ch["basis"]["before"]),
+            text(&ch["basis"]["after"])
         ));
     }
     out.push(data_sentence(&ch["data"]));

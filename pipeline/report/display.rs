@@ -92,6 +92,14 @@ pub struct Meta {
     pub step: usize,
     pub assets: String,
     pub scenarios: String,
+    /// How the tables name the models' risk measures: `VaR`/`CVaR`, or `Surplus VaR`/`Surplus CVaR` on
+    /// the surplus basis (`risk.basis: surplus`), where every portfolio's VaR and CVaR are surplus figures.
+    pub var_word: &'static str,
+    pub cvar_word: &'static str,
+    /// A sentence for the notes under risk tables on the surplus basis (empty on the assets' basis).
+    pub basis_note: &'static str,
+    /// Whether the models work on the surplus loss (`risk.basis: surplus`).
+    pub surplus: bool,
 }
 
 /// One portfolio's line in the summary and tail tables.
@@ -321,6 +329,24 @@ fn meta(r: &RunResult, results: &Value, pack_id: &str) -> Meta {
         step: r.scenarios.step,
         assets: format::count(r.data.assets.len()),
         scenarios: format::count(r.scenarios.len()),
+        var_word: surplus_word(c.basis, "VaR", "Surplus VaR"),
+        cvar_word: surplus_word(c.basis, "CVaR", "Surplus CVaR"),
+        basis_note: surplus_word(c.basis, "", SURPLUS_NOTE),
+        surplus: c.basis == crate::config::Basis::Surplus,
+    }
+}
+
+/// The note the risk tables carry on the surplus basis.
+const SURPLUS_NOTE: &str = "On the surplus basis (risk.basis: surplus) VaR and CVaR are those of the surplus loss: the assets' loss plus the liabilities' change over the funded ratio, as a fraction of the assets (section §liabilities).";
+
+fn surplus_word(
+    basis: crate::config::Basis,
+    assets: &'static str,
+    surplus: &'static str,
+) -> &'static str {
+    match basis {
+        crate::config::Basis::Assets => assets,
+        crate::config::Basis::Surplus => surplus,
     }
 }
 

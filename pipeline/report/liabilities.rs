@@ -225,8 +225,12 @@ pub fn key_point(r: &RunResult) -> String {
         }
     }
     s.push_str(&format!(
-        "; the models' CVaR measures {}.",
-        basis_words(l.basis)
+        "; the models' CVaR measures {}{}.",
+        basis_words(l.basis),
+        match l.basis {
+            Basis::Surplus => ", and so does every VaR and CVaR of a portfolio in this pack",
+            Basis::Assets => "",
+        }
     ));
     s
 }

@@ -63,11 +63,13 @@ fn hand_worked_three_asset_example_with_an_asset_dropped_and_one_added() {
         assets: &then_assets,
         returns: then_rows.iter().map(|r| &r[..]).collect(),
         probabilities: &p,
+        offsets: None,
     };
     let now = Month {
         assets: &now_assets,
         returns: now_rows.iter().map(|r| &r[..]).collect(),
         probabilities: &p,
+        offsets: None,
     };
     let d = decompose(
         &then,
@@ -107,11 +109,13 @@ fn the_two_effects_add_up_to_the_change_on_random_months() {
             assets: &then_assets,
             returns: tr.iter().map(Vec::as_slice).collect(),
             probabilities: &tp,
+            offsets: None,
         };
         let now = Month {
             assets: &now_assets,
             returns: nr.iter().map(Vec::as_slice).collect(),
             probabilities: &np,
+            offsets: None,
         };
         let then_w = w(&[("A", 0.4), ("B", 0.3), ("C", 0.2), ("E", 0.1)]);
         let now_w = w(&[("B", 0.5), ("A", 0.3), ("D", 0.2)]);

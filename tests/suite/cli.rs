@@ -372,6 +372,64 @@ fn demo_config_builds_a_pack() {
         );
     }
     assert!(ran.stdout.contains("Orrin Hollow"));
+    // The pension fund measures its liabilities: funded ratio = fund value / liabilities' present value,
+    // both as fund.yaml states them (2,350,000,000 / 2,475,000,000).
+    let funded = r["liabilities"]["funded_ratio"].as_f64().unwrap();
+    assert!((funded - 2.35 / 2.475).abs() < 1e-12, "{funded}");
+    assert_eq!(r["liabilities"]["proxy"], "REF-LIAB");
+}
+
+/// The second demo config: an asset-only foundation on the same data files, which leaves the pension
+/// fund's liability proxy out of its run (`data.skip_columns`); without that key the column would be an
+/// asset without a metadata row.
+#[test]
+fn the_asset_only_demo_config_builds_a_pack_without_liabilities() {
+    let f = Fixture::new();
+    let out = f.path("packs");
+    let cfg = repo().join("config-demo/foundation.yaml");
+    let ran = f.run(&[
+        "run",
+        cfg.to_str().unwrap(),
+        "--quiet",
+        "--out",
+        out.to_str().unwrap(),
+    ]);
+    let dir = pack_dir(&ran);
+    let r = json(&dir.join("results.json"));
+    assert!(r["liabilities"].is_null(), "{}", r["liabilities"]);
+    assert_eq!(r["assets"].as_array().unwrap().len(), 50);
+    for name in ["max_return", "min_cvar", "max_ratio"] {
+        assert_eq!(r["models"][name]["status"], "optimal", "{name}");
+    }
+    let reference = std::fs::read_to_string(dir.join("reference-scenarios.csv")).unwrap();
+    assert!(
+        !reference.contains("REF-LIAB"),
+        "the skipped column is not a series of the run"
+    );
+    // The same config without the key, its paths made absolute so it runs from the fixture's folder.
+    let data = repo().join("config-demo");
+    let text = std::fs::read_to_string(&cfg)
+        .unwrap()
+        .replace("  skip_columns: [REF-LIAB]", "")
+        .replace("data/", &format!("{}/data/", data.display()))
+        .replace(
+            "stress-foundation.yaml",
+            &data.join("stress-foundation.yaml").display().to_string(),
+        );
+    let copy = f.write("foundation.yaml", &text);
+    let ran = f.run(&[
+        "run",
+        copy.to_str().unwrap(),
+        "--quiet",
+        "--out",
+        out.to_str().unwrap(),
+    ]);
+    assert_eq!(ran.code, 3, "{}", ran.stderr);
+    assert!(
+        ran.stderr.contains("REF-LIAB") && ran.stderr.contains("data.skip_columns"),
+        "{}",
+        ran.stderr
+    );
 }
 
 /// Writes the market as a wide Parquet file with a Date-typed `date` column and Float64 prices.

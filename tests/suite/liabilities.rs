@@ -721,3 +721,124 @@ fn the_pack_has_a_liabilities_section_and_an_asset_only_pack_says_none_are_confi
     assert!(text.contains("Liabilities: none are configured"), "{text}");
     assert!(json(&dir.join("results.json"))["liabilities"].is_null());
 }
+
+/// The proxy has no metadata row, so `liabilities.tags` gives it tags: a stress move by one of them moves
+/// the liabilities (the first matching tag move, as for an asset), a move naming the proxy beats it, and
+/// a tag that neither an asset nor the proxy carries is refused naming the shock.
+#[test]
+fn a_stress_move_by_a_tag_of_the_proxy_moves_the_liabilities() {
+    let f = Fixture::new();
+    f.write(
+        "stress.yaml",
+        "shocks:\n  - name: Rates fall\n    moves:\n      - { tag: \"class:bond\", return: 0.04 }\n      - { tag: \"kind:pension\", return: 0.09 }\n      - { tag: \"kind:pension\", return: 0.5 }\n  - name: Named\n    moves:\n      - { tag: \"kind:pension\", return: 0.09 }\n      - { asset: LIAB, return: -0.03 }\n  - name: Untouched\n    moves:\n      - { tag: \"class:equity\", return: -0.2 }\n",
+    );
+    let cfg = fund_with_proxy(
+        &f,
+        false,
+        "stress:\n  file: stress.yaml\n  historical_windows: 0\n",
+    );
+    let cfg = with_fund_value(
+        &cfg,
+        &f,
+        &liabilities(1_050_000.0, "  tags: { Kind: Pension }\n"),
+    );
+    let dir = run_pack(&f, &cfg);
+    let r = json(&dir.join("results.json"));
+    let moves: Vec<Option<f64>> = r["liabilities"]["stress_proxy_returns"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .map(|m| m["proxy_return"].as_f64())
+        .collect();
+    assert_eq!(moves, [Some(0.09), Some(-0.03), None]);
+    // The tag moved no asset: the bond and equity returns are those of their own moves.
+    let rates_fall = &r["stress"]["shocks"][0]["returns"];
+    assert_eq!(rates_fall["AS02"], 0.04);
+    f.write(
+        "stress.yaml",
+        "shocks:\n  - name: Typo\n    moves:\n      - { tag: \"kind:pensoin\", return: 0.09 }\n",
+    );
+    let ran = f.run(&["run", cfg.to_str().unwrap(), "--quiet"]);
+    assert_eq!(ran.code, 2, "{}", ran.stderr);
+    assert!(
+        ran.stderr.contains("shock `Typo`")
+            && ran
+                .stderr
+                .contains("tag `kind:pensoin` matches no asset and no tag of the liability proxy"),
+        "{}",
+        ran.stderr
+    );
+}
+
+/// "Since the last pack" on the surplus basis: the decomposition's ends are each pack's own surplus CVaR
+/// of its holdings (results.json's current risk profile, which is on the surplus basis), and the two
+/// effects add up to the change; a pack whose previous one measured CVaR on the other basis gets no
+/// decomposition and says why.
+#[test]
+fn the_change_since_the_last_pack_stays_on_the_surplus_basis() {
+    let f = Fixture::new();
+    let cfg = fund_with_proxy(&f, false, "risk:\n  basis: surplus\n");
+    let cfg = with_fund_value(&cfg, &f, &liabilities(1_050_000.0, ""));
+    let month = |as_of: &str| {
+        let ran = f.run(&["run", cfg.to_str().unwrap(), "--quiet", "--as-of", as_of]);
+        assert_eq!(ran.code, 0, "{}", ran.stderr);
+        json(&PathBuf::from(ran.stdout.lines().last().unwrap()).join("results.json"))
+    };
+    let cvar = |r: &serde_json::Value| {
+        r["current"]["levels"]
+            .as_array()
+            .unwrap()
+            .iter()
+            .find(|t| t["level"] == 0.95)
+            .unwrap()["cvar"]
+            .as_f64()
+            .unwrap()
+    };
+    let one = month("2024-05-31");
+    f.write(
+        "data/holdings.csv",
+        "asset,weight\nAS01,0.4\nAS02,0.3\nAS03,0.2\nAS04,0.1\n",
+    );
+    let two = month("2024-06-28");
+    // The ends are the packs' own surplus CVaR (recomputed from the scenario files in the first test).
+    assert_eq!(one["liabilities"]["basis"], "surplus");
+    let cv = &two["change"]["current_cvar"];
+    assert_eq!(cv["basis"], "surplus", "{cv}");
+    let (before, after) = (
+        cv["before"].as_f64().unwrap(),
+        cv["after"].as_f64().unwrap(),
+    );
+    assert!(
+        (before - cvar(&one)).abs() < 1e-12,
+        "{cv} against {}",
+        cvar(&one)
+    );
+    assert!(
+        (after - cvar(&two)).abs() < 1e-12,
+        "{cv} against {}",
+        cvar(&two)
+    );
+    let (h, m) = (
+        cv["holdings_effect"].as_f64().unwrap(),
+        cv["market_effect"].as_f64().unwrap(),
+    );
+    assert!((h + m - (after - before)).abs() < 1e-15, "{cv}");
+    // The same fund switched to the assets' basis for a later revision of the second month.
+    let text = std::fs::read_to_string(&cfg).unwrap();
+    f.write(
+        "fund.yaml",
+        &text.replace("basis: surplus", "basis: assets"),
+    );
+    let three = month("2024-06-28");
+    let ch = &three["change"];
+    assert_eq!(ch["basis"]["before"], "surplus", "{ch}");
+    assert_eq!(ch["basis"]["after"], "assets", "{ch}");
+    assert!(ch["current_cvar"]["before"].is_null(), "{ch}");
+    assert!(
+        ch["current_cvar"]["note"]
+            .as_str()
+            .unwrap()
+            .contains("not comparable"),
+        "{ch}"
+    );
+}

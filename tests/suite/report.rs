@@ -244,8 +244,9 @@ fn printed_weight(x: f64) -> String {
 fn bands_part_matches_results_json(text: &str, r: &serde_json::Value) {
     let flat = squeeze(text);
     let rows = rows(text);
-    // The demo pack is a first pack: no "Since the last pack", so "Further analysis" is section 6.
-    assert!(flat.contains("6.4 Estimation-error bands"), "bands title");
+    // The demo pack is a first pack with liabilities: no "Since the last pack", section 3 "Liabilities and
+    // funded status", so "Further analysis" is section 7.
+    assert!(flat.contains("7.4 Estimation-error bands"), "bands title");
     let b = &r["bands"];
     assert_eq!(b["resamples"], 200, "the demo runs the default B = 200");
     for (key, label) in MODELS {
@@ -365,12 +366,13 @@ fn has_row(rows: &[String], want: &str, what: &str) {
 fn further_analysis_matches_results_json(text: &str, r: &serde_json::Value) {
     let flat = squeeze(text);
     let rows = rows(text);
-    // A first pack has no "Since the last pack" section, so "Further analysis" is section 6 here.
+    // A first pack has no "Since the last pack" section and the demo fund's liabilities have section 3, so
+    // "Further analysis" is section 7 here.
     for title in [
-        "6.1 Efficient frontier",
-        "6.2 Stress tests",
-        "6.3 Backtest",
-        "6.4 Estimation-error bands",
+        "7.1 Efficient frontier",
+        "7.2 Stress tests",
+        "7.3 Backtest",
+        "7.4 Estimation-error bands",
     ] {
         assert!(flat.contains(title), "subsection `{title}` missing");
     }
