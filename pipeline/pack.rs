@@ -503,10 +503,16 @@ fn summary_heading(r: &RunResult) -> String {
     );
     let _ = writeln!(
         s,
-        "(expected return, VaR and CVaR over the {}-{} horizon; VaR and CVaR as losses at {:.1}%)",
+        "(expected return, VaR and CVaR over the {}-{} horizon; VaR and CVaR as losses at {:.1}%{})",
         r.scenarios.horizon,
         r.data.frequency.period(),
-        c * 100.0
+        c * 100.0,
+        match r.config.basis {
+            crate::config::Basis::Surplus => {
+                "; all on the surplus basis: assets less liabilities, as a fraction of the assets"
+            }
+            crate::config::Basis::Assets => "",
+        }
     );
     s
 }

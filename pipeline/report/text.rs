@@ -54,8 +54,12 @@ pub fn summary(r: &RunResult, shown: &[Portfolio], no_change: Option<&str>) -> V
             f.period()
         ),
     };
+    let measured = match r.config.basis {
+        crate::config::Basis::Assets => "the fraction of portfolio value lost over one horizon".to_string(),
+        crate::config::Basis::Surplus => "those of the surplus (risk.basis: surplus): the fall in assets less liabilities over one horizon, as a fraction of the assets, and expected returns are expected surplus returns, the portfolio's less the liabilities' growth over the funded ratio".to_string(),
+    };
     let mut out = vec![format!(
-        "{} scenarios of {span} each, from {} to {}. VaR and CVaR at {c} are the fraction of portfolio value lost over one horizon.",
+        "{} scenarios of {span} each, from {} to {}. VaR and CVaR at {c} are {measured}.",
         format::count(r.scenarios.len()),
         first_start(r),
         last_end(r)

@@ -782,7 +782,7 @@ fn the_change_since_the_last_pack_stays_on_the_surplus_basis() {
     let month = |as_of: &str| {
         let ran = f.run(&["run", cfg.to_str().unwrap(), "--quiet", "--as-of", as_of]);
         assert_eq!(ran.code, 0, "{}", ran.stderr);
-        json(&PathBuf::from(ran.stdout.lines().last().unwrap()).join("results.json"))
+        PathBuf::from(ran.stdout.lines().last().unwrap())
     };
     let cvar = |r: &serde_json::Value| {
         r["current"]["levels"]
@@ -794,12 +794,34 @@ fn the_change_since_the_last_pack_stays_on_the_surplus_basis() {
             .as_f64()
             .unwrap()
     };
-    let one = month("2024-05-31");
+    let one = json(&month("2024-05-31").join("results.json"));
     f.write(
         "data/holdings.csv",
         "asset,weight\nAS01,0.4\nAS02,0.3\nAS03,0.2\nAS04,0.1\n",
     );
-    let two = month("2024-06-28");
+    let second = month("2024-06-28");
+    let two = json(&second.join("results.json"));
+    // The pack names what it measures: the ratio's precondition and the tables are the surplus ones.
+    let pre = two["checks"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .find(|c| c["id"] == "max_ratio.return_positive")
+        .unwrap();
+    assert!(
+        pre["message"]
+            .as_str()
+            .unwrap()
+            .contains("maximum expected surplus return"),
+        "{pre}"
+    );
+    let text = super::common::squeeze(&super::common::pdf_text(&second.join("pack.pdf")));
+    for words in [
+        "Surplus CVaR 95%",
+        "The current holdings' surplus CVaR 95% went from",
+    ] {
+        assert!(text.contains(words), "{words}");
+    }
     // The ends are the packs' own surplus CVaR (recomputed from the scenario files in the first test).
     assert_eq!(one["liabilities"]["basis"], "surplus");
     let cv = &two["change"]["current_cvar"];
@@ -829,7 +851,7 @@ fn the_change_since_the_last_pack_stays_on_the_surplus_basis() {
         "fund.yaml",
         &text.replace("basis: surplus", "basis: assets"),
     );
-    let three = month("2024-06-28");
+    let three = json(&month("2024-06-28").join("results.json"));
     let ch = &three["change"];
     assert_eq!(ch["basis"]["before"], "surplus", "{ch}");
     assert_eq!(ch["basis"]["after"], "assets", "{ch}");
