@@ -59,6 +59,7 @@ table { border-collapse: collapse; width: 100%; font-size: .92rem; }\n\
 th { text-align: left; background: #e6ecea; }\n\
 th, td { padding: .35rem .5rem; border-bottom: 1px solid #d5dbd8; vertical-align: top; }\n\
 td ul { margin: 0; padding-left: 1rem; }\n\
+td:first-child, td small { white-space: nowrap; }\n\
 code.id { font-size: .8rem; word-break: break-all; }\n\
 .status { font-weight: 600; text-transform: uppercase; font-size: .8rem; }\n\
 .status-final { color: #1f6b3a; } .status-signing { color: #8a5a00; } .status-draft { color: #5a6770; }\n";
