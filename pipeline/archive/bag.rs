@@ -348,3 +348,38 @@ fn check_info(pack: &Path, pack_id: &str) -> Vec<Finding> {
     }
     out
 }
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn paths_are_percent_encoded_as_rfc_8493_asks_and_read_back() {
+        // RFC 8493 §2.1.3: CR, LF and % in a file path are written %0D, %0A and %25.
+        let path = "inputs/templates/50%\nodd\rname.typ";
+        assert_eq!(encode(path), "inputs/templates/50%25%0Aodd%0Dname.typ");
+        assert_eq!(decode(&encode(path)), path);
+        assert_eq!(
+            decode("a%250A"),
+            "a%0A",
+            "an encoded % is not read as the start of another"
+        );
+    }
+
+    #[test]
+    fn bag_info_keeps_one_line_per_label_and_reads_continuations() {
+        let fields = vec![("Fund-Name".to_string(), "A\nB\tFund".to_string())];
+        assert_eq!(info_text(&fields), "Fund-Name: A B Fund\n");
+        let dir = tempfile::tempdir().unwrap();
+        std::fs::write(
+            dir.path().join(INFO),
+            "Fund-Name: Long\n  continued\nPayload-Oxum: 0.0\n",
+        )
+        .unwrap();
+        assert_eq!(
+            info_value(dir.path(), "Fund-Name").as_deref(),
+            Some("Long continued")
+        );
+        assert_eq!(info_value(dir.path(), label::OXUM).as_deref(), Some("0.0"));
+    }
+}

@@ -149,3 +149,22 @@ pub fn href(path: &str) -> String {
     }
     out
 }
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn markup_in_names_is_text_and_links_stay_relative() {
+        // The five characters HTML gives meaning to in text and quoted attributes (HTML Living Standard,
+        // "Escaping a string").
+        assert_eq!(
+            escape(r#"<b>"A" & 'B'</b>"#),
+            "&lt;b&gt;&quot;A&quot; &amp; &#39;B&#39;&lt;/b&gt;"
+        );
+        // RFC 3986 §2.1: everything outside the unreserved set (and `/`) percent-encoded, so a folder
+        // name cannot close the attribute or become a scheme.
+        assert_eq!(href("a b/\"x\":y/r1"), "a%20b/%22x%22%3Ay/r1");
+        assert_eq!(href("fund-é"), "fund-%C3%A9");
+    }
+}
