@@ -201,9 +201,8 @@ fn tag_files(pack: &Path) -> Vec<String> {
     entries_below(pack)
         .into_iter()
         .filter(|(rel, m)| {
-            m.is_file()
-                && !rel.starts_with(&format!("{PAYLOAD}/"))
-                && !(!rel.contains('/') && rel.starts_with("tagmanifest-"))
+            let tag_manifest = !rel.contains('/') && rel.starts_with("tagmanifest-");
+            m.is_file() && !rel.starts_with(&format!("{PAYLOAD}/")) && !tag_manifest
         })
         .map(|(rel, _)| rel)
         .collect()
