@@ -16,6 +16,9 @@ use sha2::{Digest, Sha256};
 use std::path::{Path, PathBuf};
 use std::time::{Duration, Instant};
 
+pub mod bag;
+pub mod html;
+
 /// Name of the inputs listing whose digest is the pack id.
 pub const LISTING: &str = "inputs.sha256";
 /// Name of the manifest.
@@ -395,29 +398,68 @@ pub struct IndexSignoff {
     pub signers: Vec<String>,
     /// The final PDF's SHA-256, once final.
     pub final_sha: Option<String>,
+    /// The UTC time of every signature, as `signers` lists them (shown by index.html).
+    pub signed_at: Vec<String>,
+    /// `role:name` of the finaliser and the UTC time of the finalisation, once final (index.html).
+    pub finalised: Option<(String, String)>,
 }
 
-/// Rebuilds `index.csv` and `index.json` at the archive root from every pack's manifest and its sign-off
-/// (`signoff` tells a pack's; the archive itself knows nothing of signatures).
+/// The names of the index files at the archive root, as [`index_files`] makes them.
+pub const INDEX_FILES: [&str; 3] = ["index.csv", "index.json", "index.html"];
+
+/// Rebuilds `index.csv`, `index.json` and `index.html` at the archive root from every pack's manifest
+/// and its sign-off (`signoff` tells a pack's; the archive itself knows nothing of signatures).
 pub fn write_index(root: &Path, signoff: &dyn Fn(&Path) -> IndexSignoff) -> Result<()> {
+    for (name, bytes) in index_files(root, signoff)? {
+        atomic_write(&root.join(name), &bytes)?;
+    }
+    Ok(())
+}
+
+/// The index files' bytes as the packs under `root` make them now, named as [`INDEX_FILES`]; `verify`
+/// on an archive root compares them with the files there.
+pub fn index_files(
+    root: &Path,
+    signoff: &dyn Fn(&Path) -> IndexSignoff,
+) -> Result<Vec<(&'static str, Vec<u8>)>> {
     let mut rows = Vec::new();
+    let mut pages = Vec::new();
     for fund in sorted_dirs(root) {
         for as_of in sorted_dirs(&fund) {
             for (rev, pack) in revisions(&as_of) {
-                let m: Value =
-                    serde_json::from_slice(&fs::read(&pack.join(MANIFEST))?).unwrap_or(Value::Null);
-                let manifest_sha = sha(&fs::read(&pack.join(MANIFEST))?);
+                let bytes = fs::read(&pack.join(MANIFEST))?;
+                let m: Value = serde_json::from_slice(&bytes).unwrap_or(Value::Null);
+                let manifest_sha = sha(&bytes);
                 let IndexSignoff {
                     status,
                     signers,
                     final_sha,
+                    signed_at,
+                    finalised,
                 } = signoff(&pack);
+                let name = |p: &Path| p.file_name().map(|n| n.to_string_lossy().into_owned());
+                let path = pack
+                    .strip_prefix(root)
+                    .unwrap_or(&pack)
+                    .display()
+                    .to_string();
+                pages.push(html::Row {
+                    folder: name(&fund).unwrap_or_default(),
+                    fund: m["fund"].as_str().unwrap_or_default().to_string(),
+                    as_of: name(&as_of).unwrap_or_default(),
+                    revision: rev,
+                    pack_id: m["pack_id"].as_str().unwrap_or_default().to_string(),
+                    status: status.to_string(),
+                    signers: signers.iter().cloned().zip(signed_at).collect(),
+                    finalised,
+                    path: path.replace('\\', "/"),
+                });
                 rows.push(json!({
-                    "fund": fund.file_name().map(|n| n.to_string_lossy().into_owned()),
-                    "as_of": as_of.file_name().map(|n| n.to_string_lossy().into_owned()),
+                    "fund": name(&fund),
+                    "as_of": name(&as_of),
                     "revision": rev, "pack_id": m["pack_id"], "status": status, "signers": signers,
                     "final_pdf_sha256": final_sha, "manifest_sha256": manifest_sha,
-                    "path": pack.strip_prefix(root).unwrap_or(&pack).display().to_string(),
+                    "path": path,
                 }));
             }
         }
@@ -429,11 +471,12 @@ pub fn write_index(root: &Path, signoff: &dyn Fn(&Path) -> IndexSignoff) -> Resu
         csv.push_str(&index_csv_row(r));
         csv.push('\n');
     }
-    atomic_write(&root.join("index.csv"), csv.as_bytes())?;
-    atomic_write(
-        &root.join("index.json"),
-        (serde_json::to_string_pretty(&rows).expect("json") + "\n").as_bytes(),
-    )
+    let json = serde_json::to_string_pretty(&rows).expect("json") + "\n";
+    Ok(vec![
+        (INDEX_FILES[0], csv.into_bytes()),
+        (INDEX_FILES[1], json.into_bytes()),
+        (INDEX_FILES[2], html::page(&pages).into_bytes()),
+    ])
 }
 
 /// One `index.csv` row, every field quoted per RFC 4180 ([`crate::csv_out`]): a fund folder, path or
@@ -521,7 +564,12 @@ pub fn verify(pack: &Path, allowed: &[&str]) -> Result<Vec<Finding>> {
     let mut out = Vec::new();
     let listed = check_listing(pack, &manifest, &mut out);
     let outputs = check_outputs(pack, &manifest, &mut out);
-    out.extend(unlisted(pack, &listed, &outputs, allowed));
+    let mut allowed = allowed.to_vec();
+    let bagged = bag::is_bag(pack);
+    if bagged {
+        allowed.extend(bag::FILES);
+    }
+    out.extend(unlisted(pack, &listed, &outputs, &allowed, bagged));
     out.extend(check_index(pack));
     Ok(out)
 }
@@ -609,9 +657,19 @@ fn check_outputs(pack: &Path, manifest: &Value, out: &mut Vec<Finding>) -> Vec<S
 
 /// Every entry of the pack, hidden or not, at any depth, that is neither listed nor allowed: files not in
 /// the manifest or `inputs.sha256`, folders that hold no listed input, symbolic links and special files.
-fn unlisted(pack: &Path, inputs: &[String], outputs: &[String], allowed: &[&str]) -> Vec<Finding> {
+/// In a bag, the payload folder and what it holds are the bag's to account for ([`bag::check`]).
+fn unlisted(
+    pack: &Path,
+    inputs: &[String],
+    outputs: &[String],
+    allowed: &[&str],
+    bagged: bool,
+) -> Vec<Finding> {
     let mut out = Vec::new();
     for (rel, meta) in entries_below(pack) {
+        if bagged && (rel == bag::PAYLOAD || rel.starts_with(&format!("{}/", bag::PAYLOAD))) {
+            continue;
+        }
         let top = !rel.contains('/');
         let t = meta.file_type();
         if t.is_symlink() {

@@ -11,6 +11,7 @@ use std::path::{Path, PathBuf};
 use std::time::Duration;
 
 mod previous;
+pub mod sweep;
 
 /// A spinner on stderr for steps that may take over a second; does nothing when quiet.
 pub struct Progress {
@@ -337,6 +338,7 @@ pub fn finalize(pack: &Path, role: &str, key: &Path, name: Option<&str>) -> Resu
     crate::error::fs::write(&tmp, &pdf)?;
     crate::error::fs::rename(&tmp, &pack.join(name))?;
     crate::signoff::save(pack, &rec)?;
+    crate::signoff::rebag(pack, &rec)?;
     if let Some(root) = crate::archive::root_of(pack) {
         crate::signoff::write_index(root)?;
     }

@@ -144,13 +144,20 @@ enum Command {
     /// Render the final PDF once every required role has signed and seal it with one of their keys (any
     /// role that has signed, e.g. the last signer); the pack is immutable afterwards.
     Finalize(SignArgs),
-    /// Recompute every digest of a pack; any changed, missing or unlisted file fails (exit 7).
+    /// Recompute every digest of a pack, or of every pack under an archive root with its index; any
+    /// changed, missing or unlisted file fails (exit 7).
     Verify {
-        /// The pack folder, e.g. out/<fund>/<as-of>/r1.
+        /// The pack folder, e.g. out/<fund>/<as-of>/r1, or an archive root (e.g. out) to sweep every pack.
         pack: PathBuf,
         /// Also re-run from the archived inputs and compare every output byte for byte.
         #[arg(long)]
         rerun: bool,
+        /// With an archive root: also write the sweep's report as JSON to this file.
+        #[arg(long)]
+        report: Option<PathBuf>,
+        /// With an archive root: no progress bar on stderr.
+        #[arg(long)]
+        quiet: bool,
     },
     /// Validate the config and data and print the data-quality report; non-zero exit on errors.
     Check {
@@ -203,7 +210,12 @@ fn main() {
         Command::Finalize(a) => {
             tailpack::commands::finalize(&a.pack, &a.role, &a.key, a.name.as_deref()).map(signed)
         }
-        Command::Verify { pack, rerun } => tailpack::commands::verify(pack, *rerun).map(|t| (t, 0)),
+        Command::Verify {
+            pack,
+            rerun,
+            report,
+            quiet,
+        } => verify(pack, *rerun, report, *quiet),
         Command::Check { config, as_of } => tailpack::commands::check(
             config,
             &Overrides {
@@ -231,6 +243,37 @@ fn main() {
             std::process::exit(e.exit_code());
         }
     }
+}
+
+/// `verify` on a pack, or the sweep of an archive root (`--report` belongs to the sweep alone).
+fn verify(
+    path: &std::path::Path,
+    rerun: bool,
+    report: &Option<PathBuf>,
+    quiet: bool,
+) -> tailpack::error::Result<(String, i32)> {
+    use tailpack::commands::sweep;
+    if !sweep::is_archive_root(path) {
+        if report.is_some() {
+            use clap::CommandFactory;
+            Cli::command()
+                .error(
+                    clap::error::ErrorKind::ArgumentConflict,
+                    format!(
+                        "--report goes with an archive root; {} is not one (it holds no index.json)",
+                        path.display()
+                    ),
+                )
+                .exit();
+        }
+        return tailpack::commands::verify(path, rerun).map(|t| (t, 0));
+    }
+    let opts = sweep::SweepOptions {
+        rerun,
+        report: report.clone(),
+        quiet,
+    };
+    sweep::sweep(path, &opts).map(|s| (s.text, s.code))
 }
 
 /// The error line and each cause not already in it.

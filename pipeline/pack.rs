@@ -631,7 +631,8 @@ pub fn write(r: &RunResult, plan: &crate::archive::Plan) -> Result<(PathBuf, Str
     let tmp = guard.create(format!(".partial-r{revision}-{}", std::process::id()))?;
     timings::time("writing", || store(&made, &tmp))?;
     timings::time("hashing", || {
-        crate::archive::seal(&tmp, plan, &r.config, revision, previous.as_deref())
+        crate::archive::seal(&tmp, plan, &r.config, revision, previous.as_deref())?;
+        bag(&tmp, r, plan, revision)
     })?;
     fs::rename(&tmp, &dir)?;
     guard.placed();
@@ -649,6 +650,27 @@ pub fn write(r: &RunResult, plan: &crate::archive::Plan) -> Result<(PathBuf, Str
         shown.clone(),
         format!("{}{note}pack: {}\n", made.summary, shown.display()),
     ))
+}
+
+/// Makes the sealed pack in `tmp` a BagIt bag (status draft: a new pack has no signature).
+fn bag(tmp: &Path, r: &RunResult, plan: &crate::archive::Plan, revision: u32) -> Result<()> {
+    let as_of = plan
+        .folder
+        .file_name()
+        .unwrap_or_default()
+        .to_string_lossy();
+    crate::archive::bag::write(
+        tmp,
+        &crate::archive::bag::Info {
+            fund: &r.config.fund.name,
+            folder: &r.config.short_name,
+            as_of: &as_of,
+            revision,
+            pack_id: &plan.pack_id,
+            status: "draft",
+            bagged: crate::archive::bag::today(),
+        },
+    )
 }
 
 /// The hidden temporary folder of a pack being written, removed when dropped unless it was renamed into

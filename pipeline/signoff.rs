@@ -506,6 +506,18 @@ pub fn check_pack(pack: &Path) -> Result<Vec<Finding>> {
 /// which is then one of the findings).
 fn inspect(pack: &Path) -> Result<(Vec<Finding>, Option<Record>)> {
     let rec = record(pack);
+    // The bag's findings come last, so they never hide what the signature checks would say.
+    let bag = check_bag(pack, rec.as_ref().ok());
+    let (mut out, rec) = inspect_signed(pack, rec)?;
+    out.extend(bag);
+    Ok((out, rec))
+}
+
+/// The archive's checks and, when they hold, the signatures', over the record as read.
+fn inspect_signed(
+    pack: &Path,
+    rec: std::result::Result<Record, Finding>,
+) -> Result<(Vec<Finding>, Option<Record>)> {
     // The sign-off files a pack may hold besides its listed ones: the record, and the final PDF only when
     // a record marks the pack final.
     let mut allowed = vec![SIGNOFF];
@@ -638,6 +650,7 @@ pub fn sign(
         signature,
     });
     save(pack, &rec)?;
+    rebag(pack, &rec)?;
     Ok(Outcome {
         text: signed_text(pack, &st, &roles, &rec),
         warnings: loaded.warning.into_iter().collect(),
@@ -811,25 +824,68 @@ pub fn seal_final(
     Ok(rec)
 }
 
-/// A pack's sign-off for the archive index: status, signers and final PDF digest, as its record says.
+/// A pack's sign-off for the archive index: status, signers and their times, final PDF digest and
+/// finaliser, as its record says.
 pub fn index_entry(pack: &Path) -> crate::archive::IndexSignoff {
     let rec = record(pack).unwrap_or_default();
-    let signers: Vec<String> = statements(&rec)
-        .iter()
-        .map(|s| format!("{}:{}", s.role, s.name))
-        .collect();
-    let status = if rec.finalised.is_some() {
+    let st = statements(&rec);
+    let finaliser = rec
+        .finalised
+        .as_ref()
+        .and_then(|f| serde_json::from_str::<FinalStatement>(&f.statement).ok())
+        .map(|f| (format!("{}:{}", f.role, f.name), f.finalised_at));
+    crate::archive::IndexSignoff {
+        status: status_of(&rec),
+        signers: st
+            .iter()
+            .map(|s| format!("{}:{}", s.role, s.name))
+            .collect(),
+        final_sha: rec.finalised.map(|f| f.sha256),
+        signed_at: st.into_iter().map(|s| s.signed_at).collect(),
+        finalised: finaliser,
+    }
+}
+
+/// `final` once finalised, `signing` once a role has signed, else `draft`.
+pub fn status_of(rec: &Record) -> &'static str {
+    if rec.finalised.is_some() {
         "final"
-    } else if signers.is_empty() {
+    } else if statements(rec).is_empty() {
         "draft"
     } else {
         "signing"
-    };
-    crate::archive::IndexSignoff {
-        status,
-        signers,
-        final_sha: rec.finalised.map(|f| f.sha256),
     }
+}
+
+/// Rewrites the pack's bag files after its sign-off record changed (a pack that is not a bag is left
+/// as written).
+pub fn rebag(pack: &Path, rec: &Record) -> Result<()> {
+    crate::archive::bag::refresh(pack, status_of(rec), crate::archive::bag::today())
+}
+
+/// The bag's checks, and that `bag-info.txt` states the status the sign-off record gives the pack.
+fn check_bag(pack: &Path, rec: Option<&Record>) -> Vec<Finding> {
+    use crate::archive::bag;
+    if !bag::is_bag(pack) {
+        return vec![];
+    }
+    let id = crate::archive::recorded_id(pack).unwrap_or_default();
+    let mut out = bag::check(pack, &id);
+    let stated = bag::info_value(pack, bag::label::STATUS);
+    if let Some(rec) = rec
+        && stated.as_deref() != Some(status_of(rec))
+    {
+        out.push(finding(
+            bag::INFO,
+            format!(
+                "its {} is {}, but signoff.json makes the pack {}",
+                bag::label::STATUS,
+                stated.as_deref().unwrap_or("missing"),
+                status_of(rec)
+            ),
+        ));
+    }
+    out
 }
 
 /// Rebuilds the archive index at `root` with every pack's sign-off.

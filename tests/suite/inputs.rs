@@ -653,6 +653,33 @@ fn reseal(pack: &std::path::Path) {
         serde_json::to_string_pretty(&manifest).unwrap(),
     )
     .unwrap();
+    reseal_bag(pack, &id);
+}
+
+/// The bag's digests too, as a tamperer who knows the layout would rewrite them: the pack id in
+/// bag-info.txt, then every file the tag manifest lists.
+fn reseal_bag(pack: &std::path::Path, id: &str) {
+    if !pack.join("bagit.txt").exists() {
+        return;
+    }
+    let info: String = std::fs::read_to_string(pack.join("bag-info.txt"))
+        .unwrap()
+        .lines()
+        .map(|l| match l.starts_with("External-Identifier:") {
+            true => format!("External-Identifier: {id}\n"),
+            false => format!("{l}\n"),
+        })
+        .collect();
+    std::fs::write(pack.join("bag-info.txt"), info).unwrap();
+    let tags: String = std::fs::read_to_string(pack.join("tagmanifest-sha256.txt"))
+        .unwrap()
+        .lines()
+        .map(|l| {
+            let name = l.split_once("  ").unwrap().1;
+            format!("{}  {name}\n", sha256sum(&pack.join(name)))
+        })
+        .collect();
+    std::fs::write(pack.join("tagmanifest-sha256.txt"), tags).unwrap();
 }
 
 #[test]

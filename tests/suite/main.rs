@@ -3,6 +3,7 @@
 mod analysis;
 mod archive;
 mod bad_inputs;
+mod bags;
 mod bench;
 mod change;
 mod cli;
