@@ -67,7 +67,7 @@ pub struct SignRole {
 }
 
 /// Frontier and walk-forward backtest settings.
-#[derive(Debug, Deserialize, Clone, serde::Serialize)]
+#[derive(Debug, Deserialize, Clone, serde::Serialize, schemars::JsonSchema)]
 #[serde(deny_unknown_fields, default)]
 pub struct AnalysisOptions {
     /// Points on the efficient frontier, from the min-CVaR to the max-return portfolio.
@@ -166,7 +166,9 @@ pub struct RawHedge {
 }
 
 /// Shape of the price file.
-#[derive(Debug, Deserialize, Default, Clone, Copy, PartialEq, Eq, serde::Serialize)]
+#[derive(
+    Debug, Deserialize, Default, Clone, Copy, PartialEq, Eq, serde::Serialize, schemars::JsonSchema,
+)]
 #[serde(rename_all = "snake_case")]
 pub enum Layout {
     /// Detect: `date, asset, price` columns mean long, anything else with a `date` column means wide.
@@ -190,7 +192,7 @@ impl Layout {
 }
 
 /// Data-quality thresholds and the fill policy.
-#[derive(Debug, Deserialize, Clone, serde::Serialize)]
+#[derive(Debug, Deserialize, Clone, serde::Serialize, schemars::JsonSchema)]
 #[serde(deny_unknown_fields, default)]
 pub struct QualityOptions {
     /// Forward-fill a missing price from the last observation for at most this many consecutive
@@ -220,7 +222,7 @@ impl Default for QualityOptions {
 }
 
 /// How scenarios are cut from the price history.
-#[derive(Debug, Deserialize, Clone, serde::Serialize)]
+#[derive(Debug, Deserialize, Clone, serde::Serialize, schemars::JsonSchema)]
 #[serde(deny_unknown_fields, default)]
 pub struct ScenarioOptions {
     /// Horizon h in observations (21 business days ≈ one month).
@@ -247,7 +249,17 @@ pub const MAX_GELTNER_RHO: f64 = 0.9;
 /// How often a series is observed: the scenario frequency (`scenarios.frequency`) and an asset's
 /// valuation frequency (the asset metadata's `valuation` column), from most to least frequent.
 #[derive(
-    Debug, Deserialize, Clone, Copy, PartialEq, Eq, PartialOrd, Ord, Default, serde::Serialize,
+    Debug,
+    Deserialize,
+    Clone,
+    Copy,
+    PartialEq,
+    Eq,
+    PartialOrd,
+    Ord,
+    Default,
+    serde::Serialize,
+    schemars::JsonSchema,
 )]
 #[serde(rename_all = "lowercase")]
 pub enum Frequency {
