@@ -1,6 +1,6 @@
 //! tailpack: month-end prices in, a committee-ready CVaR risk and allocation pack out.
 //!
-//! Data flows one way through one module per stage (numbered 0–9 in their module docs, in this order; `run`
+//! Data flows one way through one module per stage (numbered 0–10 in their module docs, in this order; `run`
 //! and `commands` wire them); a stage only reads the outputs of earlier stages:
 //! - [`config`]: the YAML config, validated and resolved (paths, ranges, unknown keys).
 //! - [`ingest`]: price history, asset metadata and holdings; as-of cut; data-quality report and fill policy.

@@ -82,7 +82,7 @@ pub struct Final {
 #[derive(Debug, Clone, Serialize, Deserialize, Default, schemars::JsonSchema)]
 #[serde(deny_unknown_fields)]
 pub struct Record {
-    /// One entry per role signature, in signing order; each statement is a [`Statement`] as compact JSON
+    /// One entry per role signature, in signing order; each statement is a role statement as compact JSON
     /// (`pack_id`, `manifest_sha256`, `role`, `name`, `signed_at`, `public_key`).
     pub signatures: Vec<Entry>,
     /// The finalisation; null until `finalize`.
