@@ -93,6 +93,16 @@ fn weight_map(assets: &[String], w: &[f64]) -> results::PerAsset {
     assets.iter().cloned().zip(w.iter().copied()).collect()
 }
 
+/// A figure that may have no value (NaN): `None` then, which JSON writes as null as it would the NaN.
+fn finite(x: f64) -> Option<f64> {
+    x.is_finite().then_some(x)
+}
+
+/// [p5, p50, p95] of a band, each `None` where no resample solved.
+fn band(b: &[f64; 3]) -> [Option<f64>; 3] {
+    b.map(finite)
+}
+
 /// Per asset its currency (the base currency's code, or null without one) and hedge ratio; the rate
 /// differentials; every portfolio's exposure per foreign currency before and after hedging and its CVaR
 /// with and without currency moves (`analysis::currency`).
@@ -204,8 +214,8 @@ fn constraints_part(r: &RunResult) -> results::Constraints {
         groups,
         turnover_max: fs.turnover_max,
         current: fs.current.as_ref().map(|c| weight_map(a, c)),
-        cvar_cap: r.cvar_cap,
-        return_floor: r.return_floor,
+        cvar_cap: finite(r.cvar_cap),
+        return_floor: finite(r.return_floor),
         excluded: r.config.exclude.clone(),
     }
 }
@@ -340,11 +350,13 @@ fn bands_part(r: &RunResult) -> Option<results::Bands> {
                 weights: assets
                     .iter()
                     .cloned()
-                    .zip(m.weights.iter().copied())
+                    .zip(m.weights.iter().map(band))
                     .collect(),
-                expected_return: m.expected_return,
-                cvar: m.cvar,
-                held_share: weight_map(assets, &m.held_share),
+                expected_return: band(&m.expected_return),
+                cvar: band(&m.cvar),
+                held_share: (assets.iter().cloned())
+                    .zip(m.held_share.iter().map(|&x| finite(x)))
+                    .collect(),
                 held_above: crate::analysis::bands::HELD_ABOVE,
                 mean_turnover_from_point: m.mean_turnover,
             };

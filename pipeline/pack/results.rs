@@ -66,7 +66,7 @@ pub struct Results {
     pub scenarios: Scenarios,
     /// The data-quality report of the price history.
     pub data_quality: QualityReport,
-    /// Per asset valued less often than daily or unsmoothed: valuation facts (may be empty).
+    /// Per kept asset: how often it is valued, the autocorrelation of its returns and any unsmoothing.
     pub valuation: Vec<AssetValuation>,
     /// The price history read.
     pub history: History,
@@ -259,10 +259,11 @@ pub struct Constraints {
     pub turnover_max: Option<f64>,
     /// Asset code → current weight, a fraction of the fund's value; null without holdings.
     pub current: Option<PerAsset>,
-    /// The CVaR cap the cap model used, a loss as a fraction of value per horizon.
-    pub cvar_cap: f64,
-    /// The return floor the floor model used, a fraction of value per horizon.
-    pub return_floor: f64,
+    /// The CVaR cap the cap model used, a loss as a fraction of value per horizon; null when its rule
+    /// could not be evaluated (the figure it is relative to has no value).
+    pub cvar_cap: Option<f64>,
+    /// The return floor the floor model used, a fraction of value per horizon; null as `cvar_cap`.
+    pub return_floor: Option<f64>,
     /// Asset codes excluded by the config.
     pub excluded: Vec<String>,
 }
@@ -476,13 +477,13 @@ pub struct Track {
     pub kupiec: Option<crate::analysis::vartest::LrTest>,
     /// Christoffersen's independence test; null when it cannot be computed.
     pub christoffersen: Option<crate::analysis::vartest::LrTest>,
-    /// Mean of predicted minus realised return, a fraction of value per month; null without months.
+    /// Mean of predicted minus realised return, a fraction of value; null without months.
     pub mean_prediction_error: Option<f64>,
     /// Wealth at the end, starting from 1 (a multiple of the starting value).
     pub final_wealth: f64,
     /// The daily 99% VaR backtest with its Basel zone; null when not run.
     pub daily_var_99: Option<crate::analysis::backtest::DailyCheck>,
-    /// Sum of the transaction costs charged, a fraction of (running) value.
+    /// Sum of the transaction costs charged, each a fraction of the wealth at its date.
     pub total_cost: f64,
     /// Realised active risk against the policy benchmark; null without a policy.
     pub ex_post_active: Option<crate::analysis::backtest::ExPost>,
@@ -499,27 +500,30 @@ pub struct TrackMonth {
     pub next: String,
     /// The model's status at this date.
     pub status: String,
-    /// Predicted expected return, a fraction of value per month; null without a portfolio.
+    /// The portfolio's expected return on the scenarios of this date, a fraction of value per horizon;
+    /// null without a portfolio.
     pub predicted_return: Option<f64>,
-    /// Realised return to the next date, a fraction of value; null without a portfolio.
+    /// Realised return from this date to the next (a month), a fraction of value; null without a
+    /// portfolio.
     pub realised_return: Option<f64>,
     /// Predicted minus realised return (surplus return on the surplus basis), a fraction of value.
     pub predicted_minus_realised: Option<f64>,
-    /// Predicted VaR, a loss as a fraction of value per month.
+    /// Predicted VaR at the backtest's confidence, a loss as a fraction of value per horizon.
     pub predicted_var: Option<f64>,
-    /// Predicted CVaR, a loss as a fraction of value per month.
+    /// Predicted CVaR at the backtest's confidence, a loss as a fraction of value per horizon.
     pub predicted_cvar: Option<f64>,
-    /// Σ|x − previous x|, a fraction of value.
+    /// Σ|w − drifted previous w| (the first month from the current holdings), a fraction of value.
     pub turnover: Option<f64>,
-    /// Transaction cost charged, a fraction of value.
+    /// Transaction cost charged at this date, a fraction of the wealth then.
     pub cost: Option<f64>,
-    /// Realised return net of that cost, a fraction of value.
+    /// Realised return net of that cost, (1 − cost)(1 + realised) − 1, a fraction of value.
     pub realised_return_net: Option<f64>,
     /// Wealth after the month, starting from 1.
     pub wealth: f64,
     /// Whether the realised loss exceeded the predicted VaR; null without a prediction.
     pub exception: Option<bool>,
-    /// Realised return less the policy benchmark's, a fraction of value; null without a policy.
+    /// Realised return net of costs less the policy benchmark's, a fraction of value; null without a
+    /// policy.
     pub active_return: Option<f64>,
     /// Asset code → weight held, a fraction of value; null without a portfolio.
     pub weights: Option<PerAsset>,
@@ -616,15 +620,17 @@ pub struct Bands {
 pub struct ModelBands {
     /// Resamples with an optimal solution (the percentiles are over these).
     pub solved: usize,
-    /// Asset code → its weight's [p5, p50, p95], fractions of value.
-    pub weights: BTreeMap<String, [f64; 3]>,
-    /// Expected return on the original scenarios, [p5, p50, p95], fractions of value per horizon.
-    pub expected_return: [f64; 3],
+    /// Asset code → its weight's [p5, p50, p95], fractions of value (null when no resample solved).
+    pub weights: BTreeMap<String, [Option<f64>; 3]>,
+    /// Expected return on the original scenarios, [p5, p50, p95], fractions of value per horizon (null
+    /// when no resample solved).
+    pub expected_return: [Option<f64>; 3],
     /// CVaR at the model confidence on the original scenarios, [p5, p50, p95], fractions of value per
-    /// horizon.
-    pub cvar: [f64; 3],
-    /// Asset code → share of solved resamples holding it above `held_above`, a fraction.
-    pub held_share: PerAsset,
+    /// horizon (null when no resample solved).
+    pub cvar: [Option<f64>; 3],
+    /// Asset code → share of solved resamples holding it above `held_above`, a fraction (null when no
+    /// resample solved).
+    pub held_share: BTreeMap<String, Option<f64>>,
     /// The weight above which an asset counts as held, a fraction of value.
     pub held_above: f64,
     /// Mean Σ|w* − w| between each resample's weights and the point solution, a fraction of value; null

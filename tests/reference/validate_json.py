@@ -17,6 +17,7 @@ import sys
 
 try:
     from jsonschema import Draft202012Validator
+    from jsonschema.exceptions import best_match
 except ImportError:
     print("python package jsonschema is not installed", file=sys.stderr)
     sys.exit(3)
@@ -30,6 +31,13 @@ def kind_of(path):
         if name == f"{kind}.json" or name.endswith(f"-{kind}.json"):
             return kind
     return None
+
+
+def deepest(error):
+    """The error inside an anyOf/oneOf that explains it best (else the error itself)."""
+    while error.context:
+        error = best_match(error.context)
+    return error
 
 
 def place(error):
@@ -60,6 +68,7 @@ def main(argv):
             bad += 1
             print(f"invalid {path}")
             for e in errors[:20]:
+                e = deepest(e)
                 print(f"  at {place(e)}: {e.message[:300]}")
         else:
             print(f"ok {path}")
