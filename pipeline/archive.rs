@@ -31,11 +31,15 @@ pub const LOCK_TIMEOUT: Duration = Duration::from_secs(600);
 pub const GIT_COMMIT: &str = env!("TAILPACK_GIT_COMMIT");
 
 /// An input file with its digest, as listed in results.json and the manifest.
-#[derive(Debug, Clone, serde::Serialize)]
+#[derive(Debug, Clone, serde::Serialize, schemars::JsonSchema)]
 pub struct InputFile {
+    /// What the file is (`config`, `prices`, `assets`, `holdings`, `template`, …).
     pub role: &'static str,
+    /// Its path in the pack (`inputs/…`).
     pub path: String,
+    /// SHA-256 of its bytes, hex.
     pub sha256: String,
+    /// Its size in bytes.
     pub bytes: u64,
 }
 

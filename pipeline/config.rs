@@ -118,24 +118,36 @@ pub struct TypesetBudget {
 }
 
 /// A group limit with its members resolved later against the asset list.
-#[derive(Debug, Clone, serde::Serialize)]
+#[derive(Debug, Clone, serde::Serialize, schemars::JsonSchema)]
 pub struct GroupSpec {
+    /// The group's name.
     pub name: String,
+    /// How its members are chosen.
     pub selector: GroupSelector,
+    /// Lower limit on the members' summed weight, a fraction of the fund's value.
     pub min: f64,
+    /// Upper limit on the members' summed weight, a fraction of the fund's value.
     pub max: f64,
 }
 
 /// How a group's members are chosen.
-#[derive(Debug, Clone, serde::Serialize)]
+#[derive(Debug, Clone, serde::Serialize, schemars::JsonSchema)]
 pub enum GroupSelector {
-    Tag { column: String, value: String },
+    /// The assets whose metadata column `column` holds `value`.
+    Tag {
+        /// A column of the asset metadata.
+        column: String,
+        /// The value that selects an asset.
+        value: String,
+    },
+    /// The assets listed by code.
     Assets(Vec<String>),
 }
 
 /// The policy portfolio (`policy`): its lines and whether the models keep to its ranges.
-#[derive(Debug, Clone, serde::Serialize)]
+#[derive(Debug, Clone, serde::Serialize, schemars::JsonSchema)]
 pub struct Policy {
+    /// The policy lines, in config order.
     pub lines: Vec<PolicyLine>,
     /// `policy.ranges_as_limits`: each line's range is a group limit of every model.
     pub ranges_as_limits: bool,
@@ -145,12 +157,17 @@ pub struct Policy {
 }
 
 /// One policy line, its members resolved later against the asset list (as a group's are).
-#[derive(Debug, Clone, serde::Serialize)]
+#[derive(Debug, Clone, serde::Serialize, schemars::JsonSchema)]
 pub struct PolicyLine {
+    /// The line's name.
     pub name: String,
+    /// How its members are chosen.
     pub selector: GroupSelector,
+    /// Target weight, a fraction of the fund's value.
     pub target: f64,
+    /// Range's lower end, a fraction of the fund's value.
     pub min: f64,
+    /// Range's upper end, a fraction of the fund's value.
     pub max: f64,
     /// The price-file series that measures the line in the policy benchmark.
     pub benchmark: String,
@@ -187,17 +204,22 @@ impl Policy {
 }
 
 /// A resolved CVaR cap rule.
-#[derive(Debug, Clone, Copy, serde::Serialize)]
+#[derive(Debug, Clone, Copy, serde::Serialize, schemars::JsonSchema)]
 pub enum CapRule {
+    /// A CVaR cap, a loss as a fraction of value per horizon.
     Value(f64),
+    /// A multiple of the current holdings' CVaR.
     TimesCurrent(f64),
+    /// A multiple of the least CVaR over the feasible set.
     TimesMin(f64),
 }
 
 /// A resolved return floor rule.
-#[derive(Debug, Clone, Copy, serde::Serialize)]
+#[derive(Debug, Clone, Copy, serde::Serialize, schemars::JsonSchema)]
 pub enum FloorRule {
+    /// A return floor, a fraction of value per horizon.
     Value(f64),
+    /// The current holdings' expected return plus this margin, a fraction of value per horizon.
     PlusCurrent(f64),
 }
 

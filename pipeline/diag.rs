@@ -6,7 +6,7 @@
 use serde::Serialize;
 
 /// Outcome of one check.
-#[derive(Debug, Clone, Copy, PartialEq, Eq, PartialOrd, Ord, Serialize)]
+#[derive(Debug, Clone, Copy, PartialEq, Eq, PartialOrd, Ord, Serialize, schemars::JsonSchema)]
 #[serde(rename_all = "snake_case")]
 pub enum Level {
     Pass,
@@ -26,10 +26,11 @@ impl Level {
 }
 
 /// One check with its outcome and the evidence behind it.
-#[derive(Debug, Clone, Serialize)]
+#[derive(Debug, Clone, Serialize, schemars::JsonSchema)]
 pub struct Check {
     /// Stable identifier, e.g. `quality.stale_run` or `max_ratio.precondition.cvar_positive`.
     pub id: String,
+    /// `pass`, `warn` or `fail`.
     pub level: Level,
     /// What was checked and what was found, with the numbers.
     pub message: String,

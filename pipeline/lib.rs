@@ -1,6 +1,6 @@
 //! tailpack: month-end prices in, a committee-ready CVaR risk and allocation pack out.
 //!
-//! Data flows one way through one module per stage (numbered 0–9 in their module docs, in this order; `run`
+//! Data flows one way through one module per stage (numbered 0–10 in their module docs, in this order; `run`
 //! and `commands` wire them); a stage only reads the outputs of earlier stages:
 //! - [`config`]: the YAML config, validated and resolved (paths, ranges, unknown keys).
 //! - [`ingest`]: price history, asset metadata and holdings; as-of cut; data-quality report and fill policy.
@@ -15,6 +15,8 @@
 //! - [`pack`]: writes the pack folder (scenarios, results, weights, summary, PDF) into the archive.
 //! - [`signoff`]: above the archive: Ed25519 keys, signed statements and the signed finalisation, every
 //!   check `verify` makes, and the index with each pack's sign-off.
+//! - [`schema`]: JSON Schemas (draft 2020-12) of results.json, manifest.json, signoff.json and index.json,
+//!   generated from the types that write or describe them.
 //! - [`bench`]: synthetic LP benchmarks of the models, beside a reference solver, and the demo end to end.
 //! - [`commands`]: one function per CLI subcommand; the binary is a thin layer over these.
 //!
@@ -41,5 +43,6 @@ pub mod report;
 pub mod risk;
 pub mod run;
 pub mod scenarios;
+pub mod schema;
 pub mod signoff;
 pub mod timings;

@@ -12,7 +12,10 @@ use crate::error::{Result, fs};
 use crate::models::{Family, Status};
 use crate::run::{ModelReport, RunResult};
 use crate::timings;
-use serde_json::{Map, Value, json};
+
+pub mod results;
+use serde_json::Value;
+use std::collections::BTreeMap;
 use std::fmt::Write as _;
 use std::path::{Path, PathBuf};
 
@@ -86,192 +89,247 @@ pub fn weights_csv(r: &RunResult) -> String {
     out
 }
 
-fn weight_map(assets: &[String], w: &[f64]) -> Value {
-    Value::Object(
-        assets
-            .iter()
-            .zip(w)
-            .map(|(a, x)| (a.clone(), json!(x)))
-            .collect(),
-    )
+fn weight_map(assets: &[String], w: &[f64]) -> results::PerAsset {
+    assets.iter().cloned().zip(w.iter().copied()).collect()
+}
+
+/// A figure that may have no value (NaN): `None` then, which JSON writes as null as it would the NaN.
+fn finite(x: f64) -> Option<f64> {
+    x.is_finite().then_some(x)
+}
+
+/// [p5, p50, p95] of a band, each `None` where no resample solved.
+fn band(b: &[f64; 3]) -> [Option<f64>; 3] {
+    b.map(finite)
 }
 
 /// Per asset its currency (the base currency's code, or null without one) and hedge ratio; the rate
 /// differentials; every portfolio's exposure per foreign currency before and after hedging and its CVaR
 /// with and without currency moves (`analysis::currency`).
-fn currency_json(r: &RunResult) -> Value {
+fn currency_part(r: &RunResult) -> results::Currency {
     let cur = &r.data.currency;
-    let base = r.config.currency.base.as_deref();
-    let per_asset: Vec<Value> = r
-        .data
-        .assets
-        .iter()
-        .enumerate()
-        .map(|(i, a)| {
-            let code = cur.of_asset.get(i).cloned().flatten();
-            json!({"asset": a, "currency": code.as_deref().or(base),
-                   "hedge_ratio": cur.hedge.get(i).copied().unwrap_or(0.0)})
+    let base = r.config.currency.base.clone();
+    let per_asset = (r.data.assets.iter().enumerate())
+        .map(|(i, a)| results::AssetCurrency {
+            asset: a.clone(),
+            currency: cur.of_asset.get(i).cloned().flatten().or(base.clone()),
+            hedge_ratio: cur.hedge.get(i).copied().unwrap_or(0.0),
         })
         .collect();
-    let (mut exposure, mut cvar) = (Map::new(), Map::new());
+    let (mut exposure, mut cvar) = (BTreeMap::new(), BTreeMap::new());
     for p in r.analysis.currency.iter().flatten() {
-        let per: Map<String, Value> = p
-            .exposure
-            .iter()
-            .map(|(c, g, n)| (c.clone(), json!({"before_hedging": g, "after_hedging": n})))
+        let per = (p.exposure.iter())
+            .map(|(c, g, n)| {
+                let e = results::CurrencyExposure {
+                    before_hedging: *g,
+                    after_hedging: *n,
+                };
+                (c.clone(), e)
+            })
             .collect();
-        exposure.insert(p.portfolio.clone(), Value::Object(per));
-        cvar.insert(
-            p.portfolio.clone(),
-            json!({"cvar": p.cvar, "cvar_without_currency_moves": p.cvar_local, "currency_share": p.share}),
-        );
+        exposure.insert(p.portfolio.clone(), per);
+        let c = results::CurrencyCvar {
+            cvar: p.cvar,
+            cvar_without_currency_moves: p.cvar_local,
+            currency_share: p.share,
+        };
+        cvar.insert(p.portfolio.clone(), c);
     }
-    json!({"base": base, "per_asset": per_asset,
-           "rate_differential": r.config.currency.rate_differential,
-           "exposure": exposure, "cvar": cvar})
+    results::Currency {
+        base,
+        per_asset,
+        rate_differential: r.config.currency.rate_differential.clone(),
+        exposure,
+        cvar,
+    }
 }
 
-fn model_json(r: &RunResult, m: &ModelReport) -> Value {
-    let c = r.config.confidence;
-    let mut o = Map::new();
-    o.insert("status".into(), json!(m.outcome.status.word()));
-    if let Some(msg) = &m.outcome.message {
-        o.insert("message".into(), json!(msg));
+fn model_part(r: &RunResult, m: &ModelReport) -> results::Model {
+    let solved = (m.outcome.weights.as_ref())
+        .zip(m.profile.as_ref())
+        .map(|(w, pr)| solved_part(r, m, w, pr));
+    results::Model {
+        status: m.outcome.status.word().to_string(),
+        message: m.outcome.message.clone(),
+        solved,
     }
-    if let (Some(w), Some(pr)) = (&m.outcome.weights, &m.profile) {
-        let t = pr.at(c);
-        o.insert("weights".into(), weight_map(&r.data.assets, w));
-        o.insert("expected_return".into(), json!(pr.expected_return));
-        o.insert("var".into(), json!(t.var));
-        o.insert("cvar".into(), json!(t.cvar));
-        if m.family == Family::MaxRatio {
-            o.insert("ratio".into(), json!(m.outcome.objective));
-            o.insert("scale_t".into(), json!(m.outcome.scale));
-        }
-        o.insert("objective".into(), json!(m.outcome.objective));
-        o.insert("turnover".into(), json!(m.turnover));
-        o.insert("cost".into(), json!(m.cost));
-        o.insert("expected_return_net".into(), json!(m.expected_return_net));
-        o.insert("at_upper_bound".into(), json!(m.at_upper));
-        o.insert("at_lower_bound".into(), json!(m.at_lower));
-        o.insert("max_violation".into(), json!(m.outcome.max_violation));
-        o.insert("risk".into(), risk_json(r, pr));
-    }
-    Value::Object(o)
 }
 
-fn risk_json(r: &RunResult, pr: &crate::risk::RiskProfile) -> Value {
+/// A solved model's figures; `ratio` and `scale_t` for the max-ratio family only.
+fn solved_part(
+    r: &RunResult,
+    m: &ModelReport,
+    w: &[f64],
+    pr: &crate::risk::RiskProfile,
+) -> results::Solved {
+    let t = pr.at(r.config.confidence);
+    let ratio = m.family == Family::MaxRatio;
+    results::Solved {
+        weights: weight_map(&r.data.assets, w),
+        expected_return: pr.expected_return,
+        var: t.var,
+        cvar: t.cvar,
+        ratio: ratio.then_some(m.outcome.objective),
+        scale_t: ratio.then_some(m.outcome.scale),
+        objective: m.outcome.objective,
+        turnover: m.turnover,
+        cost: m.cost,
+        expected_return_net: m.expected_return_net,
+        at_upper_bound: m.at_upper.clone(),
+        at_lower_bound: m.at_lower.clone(),
+        max_violation: m.outcome.max_violation,
+        risk: risk_part(r, pr),
+    }
+}
+
+fn risk_part(r: &RunResult, pr: &crate::risk::RiskProfile) -> results::Risk {
     let classes: Vec<String> = r.data.meta.iter().map(|m| m.class.clone()).collect();
     let by_class = crate::risk::by_group(&pr.component_cvar, &classes);
-    json!({
-        "expected_return": pr.expected_return,
-        "volatility": pr.volatility,
-        "levels": pr.tails,
-        "component_cvar": weight_map(&r.data.assets, &pr.component_cvar),
-        "component_cvar_by_class": Value::Object(by_class.into_iter().map(|(k, v)| (k, json!(v))).collect()),
-        "worst_loss": pr.worst_loss,
-        "worst_scenario": pr.worst_scenario,
-        "effective_holdings": pr.effective_holdings,
-    })
+    results::Risk {
+        expected_return: pr.expected_return,
+        volatility: pr.volatility,
+        levels: pr.tails.clone(),
+        component_cvar: weight_map(&r.data.assets, &pr.component_cvar),
+        component_cvar_by_class: by_class.into_iter().collect(),
+        worst_loss: pr.worst_loss,
+        worst_scenario: pr.worst_scenario.clone(),
+        effective_holdings: pr.effective_holdings,
+    }
 }
 
-fn constraints_json(r: &RunResult) -> Value {
+fn constraints_part(r: &RunResult) -> results::Constraints {
     let a = &r.data.assets;
     let fs = &r.feasible;
-    let groups: Vec<Value> = fs.groups.iter().map(|g| json!({
-        "name": g.name, "members": g.members.iter().map(|&i| &a[i]).collect::<Vec<_>>(), "min": g.min, "max": g.max,
-    })).collect();
-    json!({
-        "lower": weight_map(a, &fs.lower),
-        "upper": weight_map(a, &fs.upper),
-        "groups": groups,
-        "turnover_max": fs.turnover_max,
-        "current": fs.current.as_ref().map(|c| weight_map(a, c)),
-        "cvar_cap": r.cvar_cap,
-        "return_floor": r.return_floor,
-        "excluded": r.config.exclude,
-    })
+    let groups = (fs.groups.iter())
+        .map(|g| results::Group {
+            name: g.name.clone(),
+            members: g.members.iter().map(|&i| a[i].clone()).collect(),
+            min: g.min,
+            max: g.max,
+        })
+        .collect();
+    results::Constraints {
+        lower: weight_map(a, &fs.lower),
+        upper: weight_map(a, &fs.upper),
+        groups,
+        turnover_max: fs.turnover_max,
+        current: fs.current.as_ref().map(|c| weight_map(a, c)),
+        cvar_cap: finite(r.cvar_cap),
+        return_floor: finite(r.return_floor),
+        excluded: r.config.exclude.clone(),
+    }
 }
 
 /// `costs`: each asset's one-way cost rate as a fraction of the amount traded.
-fn costs_json(r: &RunResult) -> Value {
+fn costs_part(r: &RunResult) -> results::Costs {
     let rates: Vec<f64> = (0..r.data.assets.len())
         .map(|i| r.feasible.cost_rates.get(i).copied().unwrap_or(0.0))
         .collect();
-    json!({"rates": weight_map(&r.data.assets, &rates)})
+    results::Costs {
+        rates: weight_map(&r.data.assets, &rates),
+    }
 }
 
 /// `trades`: per model with a portfolio, the amount bought (positive) or sold (negative) of each asset
 /// traded, in the base currency: value × (weight − current weight), as the run sized them
 /// ([`crate::run::Trade`]). Null without a fund value or current holdings (no money figures, or nothing to
 /// trade from).
-fn trades_json(r: &RunResult) -> Value {
+fn trades_part(r: &RunResult) -> Option<BTreeMap<String, results::PerAsset>> {
     if r.config.fund.money.is_none() || r.data.holdings.is_none() {
-        return Value::Null;
+        return None;
     }
-    let trades: Map<String, Value> = r
-        .models
-        .iter()
+    let trades = (r.models.iter())
         .filter_map(|m| m.trades.as_ref().map(|t| (m.name, t)))
         .map(|(name, list)| {
-            let list: Map<String, Value> = list
-                .iter()
-                .filter_map(|t| t.amount.map(|a| (r.data.assets[t.asset].clone(), json!(a))))
+            let list = (list.iter())
+                .filter_map(|t| t.amount.map(|a| (r.data.assets[t.asset].clone(), a)))
                 .collect();
-            (name.to_string(), Value::Object(list))
+            (name.to_string(), list)
         })
         .collect();
-    Value::Object(trades)
+    Some(trades)
 }
 
-/// The full `results.json` document.
+/// The full `results.json` document, as its types ([`results::Results`]) serialise it (object keys
+/// sorted).
 pub fn results_json(r: &RunResult, inputs: &[crate::archive::InputFile], pack_id: &str) -> Value {
-    let models: Map<String, Value> = r
-        .models
-        .iter()
-        .map(|m| (m.name.to_string(), model_json(r, m)))
-        .collect();
+    let mut doc = results(r, inputs, pack_id);
+    let v = serde_json::to_value(&doc).expect("results serialise");
+    doc.change = change_json(r, &v);
+    serde_json::to_value(&doc).expect("results serialise")
+}
+
+/// `results.json` as its types, `change` still null (it compares the rest with the previous pack).
+fn results(r: &RunResult, inputs: &[crate::archive::InputFile], pack_id: &str) -> results::Results {
+    let fund = &r.config.fund;
+    results::Results {
+        tool: results::Tool {
+            name: "tailpack".into(),
+            version: env!("CARGO_PKG_VERSION").into(),
+        },
+        pack_id: pack_id.to_string(),
+        fund: results::Fund {
+            name: fund.name.clone(),
+            short_name: r.config.short_name.clone(),
+            prepared_for: fund.prepared_for.clone(),
+            prepared_by: fund.prepared_by.clone(),
+        },
+        fund_value: fund.money.as_ref().map(|m| m.value),
+        base_currency: r.config.currency.base.clone(),
+        costs: costs_part(r),
+        trades: trades_part(r),
+        as_of: r.data.as_of.to_string(),
+        confidence: r.config.confidence,
+        tail_fraction: 1.0 - r.config.confidence,
+        levels: r.config.levels.clone(),
+        assets: r.data.assets.clone(),
+        classes: r.data.meta.iter().map(|m| m.class.clone()).collect(),
+        currency: currency_part(r),
+        constraints: constraints_part(r),
+        preconditions: r.preconditions.clone(),
+        models: (r.models.iter())
+            .map(|m| (m.name.to_string(), model_part(r, m)))
+            .collect(),
+        current: r.current.as_ref().map(|pr| risk_part(r, pr)),
+        scenarios: scenarios_part(r),
+        data_quality: r.data.quality.clone(),
+        valuation: r.data.valuation.clone(),
+        history: results::History {
+            first: r.data.history.0.to_string(),
+            last: r.data.history.1.to_string(),
+            layout: r.data.layout,
+        },
+        checks: r.checks.clone(),
+        solver: results::Solver {
+            backend: r.backend.name().to_string(),
+            description: crate::models::lp::backend_description(r.backend).to_string(),
+        },
+        inputs: inputs.to_vec(),
+        signoff: signoff_part(r),
+        frontier: frontier_part(r),
+        stress: stress_part(r),
+        backtest: backtest_part(r),
+        policy: policy_part(r),
+        bands: bands_part(r),
+        liabilities: liabilities_part(r),
+        change: Value::Null,
+    }
+}
+
+fn scenarios_part(r: &RunResult) -> results::Scenarios {
     let s = &r.scenarios;
-    let mut v = json!({
-        "tool": {"name": "tailpack", "version": env!("CARGO_PKG_VERSION")},
-        "pack_id": pack_id,
-        "fund": {"name": r.config.fund.name, "short_name": r.config.short_name,
-                 "prepared_for": r.config.fund.prepared_for, "prepared_by": r.config.fund.prepared_by},
-        "fund_value": r.config.fund.money.as_ref().map(|m| m.value),
-        "base_currency": r.config.currency.base,
-        "costs": costs_json(r),
-        "trades": trades_json(r),
-        "as_of": r.data.as_of.to_string(),
-        "confidence": r.config.confidence,
-        "tail_fraction": 1.0 - r.config.confidence,
-        "levels": r.config.levels,
-        "assets": r.data.assets,
-        "classes": r.data.meta.iter().map(|m| &m.class).collect::<Vec<_>>(),
-        "currency": currency_json(r),
-        "constraints": constraints_json(r),
-        "preconditions": r.preconditions,
-        "models": models,
-        "current": r.current.as_ref().map(|pr| risk_json(r, pr)),
-        "scenarios": {"count": s.len(), "horizon": s.horizon, "step": s.step, "first_start": s.starts.first().map(|d| d.to_string()),
-                      "last_end": s.ends.last().map(|d| d.to_string()), "equal_probabilities": s.equal_probabilities,
-                      "half_life": r.config.scenarios.half_life, "lookback_years": r.config.scenarios.lookback_years,
-                      "frequency": r.data.frequency},
-        "data_quality": r.data.quality,
-        "valuation": r.data.valuation,
-        "history": {"first": r.data.history.0.to_string(), "last": r.data.history.1.to_string(), "layout": r.data.layout},
-        "checks": r.checks,
-        "solver": {"backend": r.backend.name(), "description": crate::models::lp::backend_description(r.backend)},
-        "inputs": inputs,
-        "signoff": signoff_json(r),
-        "frontier": frontier_json(r),
-        "stress": stress_json(r),
-        "backtest": backtest_json(r),
-        "policy": policy_json(r),
-        "bands": bands_json(r),
-        "liabilities": liabilities_json(r),
-    });
-    v["change"] = change_json(r, &v);
-    v
+    let date = |d: Option<&chrono::NaiveDate>| d.map(|d| d.to_string());
+    results::Scenarios {
+        count: s.len(),
+        horizon: s.horizon,
+        step: s.step,
+        first_start: date(s.starts.first()),
+        last_end: date(s.ends.last()),
+        equal_probabilities: s.equal_probabilities,
+        half_life: r.config.scenarios.half_life,
+        lookback_years: r.config.scenarios.lookback_years,
+        frequency: r.data.frequency,
+    }
 }
 
 /// The change since the fund's previous pack ([`crate::analysis::change::section`]), compared with this
@@ -292,176 +350,299 @@ fn change_json(r: &RunResult, results: &Value) -> Value {
 
 /// The estimation-error bands: per family, [p5, p50, p95] of every weight, of expected return and CVaR on
 /// the original scenarios, and how often each asset is held; `null` when switched off.
-fn bands_json(r: &RunResult) -> Value {
-    let Some(b) = &r.analysis.bands else {
-        return Value::Null;
-    };
+fn bands_part(r: &RunResult) -> Option<results::Bands> {
+    let b = r.analysis.bands.as_ref()?;
     let assets = &r.data.assets;
-    let models: Map<String, Value> = b.models.iter().map(|m| (m.model.to_string(), json!({
-        "solved": m.solved,
-        "weights": Value::Object(assets.iter().zip(&m.weights).map(|(a, w)| (a.clone(), json!(w))).collect()),
-        "expected_return": m.expected_return, "cvar": m.cvar,
-        "held_share": weight_map(assets, &m.held_share), "held_above": crate::analysis::bands::HELD_ABOVE,
-        "mean_turnover_from_point": m.mean_turnover,
-    }))).collect();
-    json!({"resamples": b.resamples, "block_length": b.block_length, "seed": b.seed.to_string(),
-           "percentiles": crate::analysis::bands::PERCENTILES, "models": models})
+    let models = (b.models.iter())
+        .map(|m| {
+            let bands = results::ModelBands {
+                solved: m.solved,
+                weights: assets
+                    .iter()
+                    .cloned()
+                    .zip(m.weights.iter().map(band))
+                    .collect(),
+                expected_return: band(&m.expected_return),
+                cvar: band(&m.cvar),
+                held_share: (assets.iter().cloned())
+                    .zip(m.held_share.iter().map(|&x| finite(x)))
+                    .collect(),
+                held_above: crate::analysis::bands::HELD_ABOVE,
+                mean_turnover_from_point: m.mean_turnover,
+            };
+            (m.model.to_string(), bands)
+        })
+        .collect();
+    Some(results::Bands {
+        resamples: b.resamples,
+        block_length: b.block_length,
+        seed: b.seed.to_string(),
+        percentiles: crate::analysis::bands::PERCENTILES,
+        models,
+    })
 }
 
 /// The policy block: lines, benchmark weights, each portfolio's exposure and breaches, and active risk
 /// against the policy benchmark; `null` without a policy (a `policy.not_configured` check says so).
-fn policy_json(r: &RunResult) -> Value {
-    let Some(p) = &r.policy else {
-        return Value::Null;
-    };
-    let lines: Vec<Value> = p.lines.iter().map(|l| json!({
-        "name": l.name, "members": l.members, "target": l.target, "min": l.min, "max": l.max, "benchmark": l.benchmark,
-    })).collect();
-    let portfolios: Map<String, Value> = p.positions.iter().map(|x| (x.portfolio.clone(), json!({
-        "exposure": x.exposure,
-        "distance": x.exposure.iter().zip(&p.lines).map(|(e, l)| e - l.target).collect::<Vec<_>>(),
-        "breaches": x.breaches,
-    }))).collect();
-    let active: Map<String, Value> = p
-        .positions
-        .iter()
-        .map(|x| (x.portfolio.clone(), active_json(r, &x.active)))
+fn policy_part(r: &RunResult) -> Option<results::Policy> {
+    let p = r.policy.as_ref()?;
+    let lines = (p.lines.iter())
+        .map(|l| results::PolicyLine {
+            name: l.name.clone(),
+            members: l.members.clone(),
+            target: l.target,
+            min: l.min,
+            max: l.max,
+            benchmark: l.benchmark.clone(),
+        })
         .collect();
-    json!({
-        "lines": lines,
-        "benchmark_weights": Value::Object(p.benchmark_weights.iter().map(|(s, w)| (s.clone(), json!(w))).collect()),
-        "ranges_as_limits": p.ranges_as_limits,
-        "active_cvar_budget": r.config.policy.as_ref().and_then(|p| p.active_cvar_budget),
-        "horizons_per_year": p.horizons_per_year,
-        "annualisation": "tracking_error_annualised = tracking_error × √horizons_per_year; horizons_per_year = observations a year in the scenario window ((rows − 1) over its calendar years of 365.25 days) ÷ the horizon in observations",
-        "portfolios": portfolios,
-        "active": active,
+    let portfolios = (p.positions.iter())
+        .map(|x| {
+            let distance = x.exposure.iter().zip(&p.lines).map(|(e, l)| e - l.target);
+            let one = results::PolicyPortfolio {
+                exposure: x.exposure.clone(),
+                distance: distance.collect(),
+                breaches: x.breaches.clone(),
+            };
+            (x.portfolio.clone(), one)
+        })
+        .collect();
+    let active = (p.positions.iter())
+        .map(|x| (x.portfolio.clone(), active_part(r, &x.active)))
+        .collect();
+    Some(results::Policy {
+        lines,
+        benchmark_weights: p.benchmark_weights.iter().cloned().collect(),
+        ranges_as_limits: p.ranges_as_limits,
+        active_cvar_budget: r.config.policy.as_ref().and_then(|p| p.active_cvar_budget),
+        horizons_per_year: p.horizons_per_year,
+        annualisation: "tracking_error_annualised = tracking_error × √horizons_per_year; horizons_per_year = observations a year in the scenario window ((rows − 1) over its calendar years of 365.25 days) ÷ the horizon in observations".into(),
+        portfolios,
+        active,
     })
 }
 
 /// The liabilities block: present value, funded ratio, proxy, duration, the models' basis, and per
 /// portfolio the surplus VaR and CVaR at the model confidence (every level under `levels`), the hedge ratio
 /// and the funded ratio at the discount rate ±1 pp; `null` without liabilities.
-fn liabilities_json(r: &RunResult) -> Value {
-    let Some(l) = &r.liabilities else {
-        return Value::Null;
-    };
-    let c = r.config.confidence;
-    let portfolios: Map<String, Value> = l
-        .positions
-        .iter()
-        .map(|x| {
-            (
-                x.portfolio.clone(),
-                json!({
-                    "surplus_var": x.surplus.at(c).var,
-                    "surplus_cvar": x.surplus.at(c).cvar,
-                    "surplus_expected_return": x.surplus.expected_return,
-                    "surplus_volatility": x.surplus.volatility,
-                    "levels": x.surplus.tails,
-                    "funded_ratio_tail": x.funded_ratio_tail,
-                    "hedge_ratio": x.hedge_ratio,
-                    "funded_ratio_rate_down": x.funded_ratio_rate_down,
-                    "funded_ratio_rate_up": x.funded_ratio_rate_up,
-                    "stress": x.stress.iter().zip(&r.analysis.shocks).map(|(s, k)| json!({
-                        "shock": k.name, "surplus_change": s.surplus_change, "funded_ratio": s.funded_ratio,
-                    })).collect::<Vec<_>>(),
-                }),
-            )
+fn liabilities_part(r: &RunResult) -> Option<results::Liabilities> {
+    let l = r.liabilities.as_ref()?;
+    let shocks = &r.analysis.shocks;
+    let portfolios = (l.positions.iter())
+        .map(|x| (x.portfolio.clone(), surplus_part(r, x)))
+        .collect();
+    let proxy = (shocks.iter())
+        .map(|k| results::ProxyReturn {
+            shock: k.name.clone(),
+            proxy_return: k.liabilities,
         })
         .collect();
-    json!({
-        "value": l.liabilities.value,
-        "funded_ratio": l.funded_ratio,
-        "proxy": l.liabilities.proxy,
-        "duration": l.liabilities.duration,
-        "convexity": l.liabilities.convexity,
-        "basis": l.basis.name(),
-        "rate_move": crate::analysis::liabilities::RATE_MOVE,
-        "funded_ratio_tail_share": crate::analysis::liabilities::FUNDED_TAIL,
-        "stress_proxy_returns": r.analysis.shocks.iter().map(|k| json!({"shock": k.name, "proxy_return": k.liabilities})).collect::<Vec<_>>(),
-        "portfolios": portfolios,
+    Some(results::Liabilities {
+        value: l.liabilities.value,
+        funded_ratio: l.funded_ratio,
+        proxy: l.liabilities.proxy.clone(),
+        duration: l.liabilities.duration,
+        convexity: l.liabilities.convexity,
+        basis: l.basis.name().to_string(),
+        rate_move: crate::analysis::liabilities::RATE_MOVE,
+        funded_ratio_tail_share: crate::analysis::liabilities::FUNDED_TAIL,
+        stress_proxy_returns: proxy,
+        portfolios,
     })
+}
+
+/// One portfolio's surplus figures at the model confidence, and under each shock.
+fn surplus_part(
+    r: &RunResult,
+    x: &crate::analysis::liabilities::SurplusPosition,
+) -> results::Surplus {
+    let t = x.surplus.at(r.config.confidence);
+    let stress = (x.stress.iter().zip(&r.analysis.shocks))
+        .map(|(s, k)| results::SurplusShock {
+            shock: k.name.clone(),
+            surplus_change: s.surplus_change,
+            funded_ratio: s.funded_ratio,
+        })
+        .collect();
+    results::Surplus {
+        surplus_var: t.var,
+        surplus_cvar: t.cvar,
+        surplus_expected_return: x.surplus.expected_return,
+        surplus_volatility: x.surplus.volatility,
+        levels: x.surplus.tails.clone(),
+        funded_ratio_tail: x.funded_ratio_tail,
+        hedge_ratio: x.hedge_ratio,
+        funded_ratio_rate_down: x.funded_ratio_rate_down,
+        funded_ratio_rate_up: x.funded_ratio_rate_up,
+        stress,
+    }
 }
 
 /// One portfolio's active risk: horizon figures, active VaR/CVaR per level, Euler contributions to
 /// active CVaR at the model confidence by class and the benchmark's side.
-fn active_json(r: &RunResult, a: &crate::risk::ActiveRisk) -> Value {
+fn active_part(r: &RunResult, a: &crate::risk::ActiveRisk) -> results::Active {
     let classes: Vec<String> = r.data.meta.iter().map(|m| m.class.clone()).collect();
     let by_class = crate::risk::by_group(&a.component, &classes);
-    json!({
-        "active_return": a.active_return,
-        "tracking_error": a.tracking_error,
-        "tracking_error_annualised": a.tracking_error_annualised,
-        "active_cvar": a.at(r.config.confidence).cvar,
-        "levels": a.tails,
-        "active_cvar_by_class": Value::Object(by_class.into_iter().map(|(k, v)| (k, json!(v))).collect()),
-        "active_cvar_benchmark": a.benchmark_component,
-    })
+    results::Active {
+        active_return: a.active_return,
+        tracking_error: a.tracking_error,
+        tracking_error_annualised: a.tracking_error_annualised,
+        active_cvar: a.at(r.config.confidence).cvar,
+        levels: a.tails.clone(),
+        active_cvar_by_class: by_class.into_iter().collect(),
+        active_cvar_benchmark: a.benchmark_component,
+    }
 }
 
 /// The draft's sign-off block: the configured roles, unsigned (`finalize` renders the signed version).
-fn signoff_json(r: &RunResult) -> Value {
+fn signoff_part(r: &RunResult) -> Option<results::Signoff> {
     if r.config.signoff.is_empty() {
-        return Value::Null;
+        return None;
     }
-    let roles: Vec<Value> = r.config.signoff.iter().map(|s| json!({
-        "role": s.role, "title": s.title.clone().unwrap_or_else(|| s.role.clone()), "name": null, "signed_at": null, "fingerprint": null,
-    })).collect();
-    json!({"status": "DRAFT", "roles": roles})
+    let roles = (r.config.signoff.iter())
+        .map(|s| results::SignoffRole {
+            role: s.role.clone(),
+            title: s.title.clone().unwrap_or_else(|| s.role.clone()),
+            name: None,
+            signed_at: None,
+            fingerprint: None,
+        })
+        .collect();
+    Some(results::Signoff {
+        status: "DRAFT".into(),
+        roles,
+    })
 }
 
-fn frontier_json(r: &RunResult) -> Value {
-    let Some(f) = &r.analysis.frontier else {
-        return Value::Null;
-    };
-    let points: Vec<Value> = f.points.iter().map(|p| json!({
-        "cvar_cap": p.cvar_cap, "status": p.status, "expected_return": p.expected_return, "cvar": p.cvar, "var": p.var,
-        "weights": p.weights.as_ref().map(|w| weight_map(&r.data.assets, w)),
-    })).collect();
-    json!({"confidence": r.config.confidence, "min_cvar": f.min_cvar, "max_return_cvar": f.max_return_cvar, "points": points})
+fn frontier_part(r: &RunResult) -> Option<results::Frontier> {
+    let f = r.analysis.frontier.as_ref()?;
+    let points = (f.points.iter())
+        .map(|p| results::FrontierPoint {
+            cvar_cap: p.cvar_cap,
+            status: p.status.clone(),
+            expected_return: p.expected_return,
+            cvar: p.cvar,
+            var: p.var,
+            weights: p.weights.as_ref().map(|w| weight_map(&r.data.assets, w)),
+        })
+        .collect();
+    Some(results::Frontier {
+        confidence: r.config.confidence,
+        min_cvar: f.min_cvar,
+        max_return_cvar: f.max_return_cvar,
+        points,
+    })
 }
 
-fn stress_json(r: &RunResult) -> Value {
+fn stress_part(r: &RunResult) -> results::Stress {
     let a = &r.analysis;
-    let shocks: Vec<Value> = a.shocks.iter().map(|s| json!({
-        "name": s.name, "kind": s.kind, "description": s.description, "start": s.start.map(|d| d.to_string()),
-        "end": s.end.map(|d| d.to_string()), "returns": weight_map(&r.data.assets, &s.returns), "unshocked": s.unshocked,
-    })).collect();
-    let portfolios: Map<String, Value> = a.stress.iter().map(|p| (p.portfolio.clone(), json!({
-        "pnl": p.pnl,
-        "worst": {"shock": a.shocks.get(p.worst).map(|s| &s.name), "pnl": p.pnl.get(p.worst)},
-        "by_class": p.by_class.iter().map(|c| Value::Object(c.iter().map(|(k, v)| (k.clone(), json!(v))).collect())).collect::<Vec<_>>(),
-        "breaches": p.breaches.iter().map(|&k| &a.shocks[k].name).collect::<Vec<_>>(),
-    }))).collect();
-    json!({"loss_limit": r.config.stress_loss_limit, "shocks": shocks, "portfolios": portfolios})
+    let date = |d: Option<chrono::NaiveDate>| d.map(|d| d.to_string());
+    let shocks = (a.shocks.iter())
+        .map(|s| results::Shock {
+            name: s.name.clone(),
+            kind: s.kind.to_string(),
+            description: s.description.clone(),
+            start: date(s.start),
+            end: date(s.end),
+            returns: weight_map(&r.data.assets, &s.returns),
+            unshocked: s.unshocked.clone(),
+        })
+        .collect();
+    let name = |k: usize| a.shocks[k].name.clone();
+    let portfolios = (a.stress.iter())
+        .map(|p| {
+            let one = results::StressPortfolio {
+                pnl: p.pnl.clone(),
+                worst: results::WorstShock {
+                    shock: a.shocks.get(p.worst).map(|s| s.name.clone()),
+                    pnl: p.pnl.get(p.worst).copied(),
+                },
+                by_class: p
+                    .by_class
+                    .iter()
+                    .map(|c| c.iter().cloned().collect())
+                    .collect(),
+                breaches: p.breaches.iter().map(|&k| name(k)).collect(),
+            };
+            (p.portfolio.clone(), one)
+        })
+        .collect();
+    results::Stress {
+        loss_limit: r.config.stress_loss_limit,
+        shocks,
+        portfolios,
+    }
 }
 
-fn backtest_json(r: &RunResult) -> Value {
-    let Some(b) = &r.analysis.backtest else {
-        return Value::Null;
-    };
+fn backtest_part(r: &RunResult) -> Option<results::Backtest> {
+    let b = r.analysis.backtest.as_ref()?;
+    let date = |d: Option<&chrono::NaiveDate>| d.map(|d| d.to_string());
+    let models = (b.tracks.iter())
+        .map(|t| (t.model.to_string(), track_part(r, t)))
+        .collect();
+    let skipped = (b.skipped.iter())
+        .map(|(d, why)| results::Skipped {
+            date: d.to_string(),
+            reason: why.clone(),
+        })
+        .collect();
+    Some(results::Backtest {
+        confidence: b.confidence,
+        rebalances: b.rebalances.len(),
+        first: date(b.rebalances.first()),
+        last: date(b.rebalances.last()),
+        skipped,
+        benchmark_returns: b.benchmark.clone(),
+        models,
+        liability_proxy_returns: b.liabilities.clone(),
+        basis: r.config.basis.name().to_string(),
+    })
+}
+
+/// One model's backtest track; on the surplus basis the prediction error is against the realised
+/// surplus return.
+fn track_part(r: &RunResult, t: &crate::analysis::backtest::Track) -> results::Track {
     let surplus = r.config.basis == crate::config::Basis::Surplus;
-    let models: Map<String, Value> = b.tracks.iter().map(|t| (t.model.to_string(), json!({
-        "observations": t.observations, "exceptions": t.exceptions, "expected_exceptions": t.expected_exceptions,
-        "kupiec": t.kupiec, "christoffersen": t.christoffersen, "mean_prediction_error": t.mean_prediction_error,
-        "final_wealth": t.final_wealth, "daily_var_99": t.daily, "total_cost": t.total_cost, "ex_post_active": t.ex_post,
-        "months": t.rows.iter().map(|row| json!({
-            "date": row.date.to_string(), "next": row.next.to_string(), "status": row.status,
-            "predicted_return": row.predicted_return, "realised_return": row.realised_return,
-            "predicted_minus_realised": row.predicted_return.zip(if surplus { row.realised_surplus_return } else { row.realised_return }).map(|(p, q)| p - q),
-            "predicted_var": row.predicted_var, "predicted_cvar": row.predicted_cvar, "turnover": row.turnover,
-            "cost": row.cost, "realised_return_net": row.realised_return_net,
-            "wealth": row.wealth, "exception": row.exception, "active_return": row.active_return,
-            "weights": row.weights.as_ref().map(|w| weight_map(&r.data.assets, w)),
-            "realised_surplus_return": row.realised_surplus_return,
-        })).collect::<Vec<_>>(),
-    }))).collect();
-    json!({"confidence": b.confidence, "rebalances": b.rebalances.len(), "first": b.rebalances.first().map(|d| d.to_string()),
-           "last": b.rebalances.last().map(|d| d.to_string()),
-           "skipped": b.skipped.iter().map(|(d, why)| json!({"date": d.to_string(), "reason": why})).collect::<Vec<_>>(),
-           "benchmark_returns": b.benchmark, "models": models,
-           "liability_proxy_returns": b.liabilities, "basis": r.config.basis.name()})
+    let months = (t.rows.iter())
+        .map(|row| {
+            let realised = if surplus {
+                row.realised_surplus_return
+            } else {
+                row.realised_return
+            };
+            results::TrackMonth {
+                date: row.date.to_string(),
+                next: row.next.to_string(),
+                status: row.status.clone(),
+                predicted_return: row.predicted_return,
+                realised_return: row.realised_return,
+                predicted_minus_realised: row.predicted_return.zip(realised).map(|(p, q)| p - q),
+                predicted_var: row.predicted_var,
+                predicted_cvar: row.predicted_cvar,
+                turnover: row.turnover,
+                cost: row.cost,
+                realised_return_net: row.realised_return_net,
+                wealth: row.wealth,
+                exception: row.exception,
+                active_return: row.active_return,
+                weights: row.weights.as_ref().map(|w| weight_map(&r.data.assets, w)),
+                realised_surplus_return: row.realised_surplus_return,
+            }
+        })
+        .collect();
+    results::Track {
+        observations: t.observations,
+        exceptions: t.exceptions,
+        expected_exceptions: t.expected_exceptions,
+        kupiec: t.kupiec,
+        christoffersen: t.christoffersen,
+        mean_prediction_error: t.mean_prediction_error,
+        final_wealth: t.final_wealth,
+        daily_var_99: t.daily.clone(),
+        total_cost: t.total_cost,
+        ex_post_active: t.ex_post.clone(),
+        months,
+    }
 }
 
 /// A return with its sign, e.g. `+0.31%`.

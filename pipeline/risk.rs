@@ -14,10 +14,13 @@ use serde::Serialize;
 const QUANTILE_TOL: f64 = 1e-12;
 
 /// VaR and CVaR of one loss distribution at one level.
-#[derive(Debug, Clone, Copy, Serialize)]
+#[derive(Debug, Clone, Copy, Serialize, schemars::JsonSchema)]
 pub struct Tail {
+    /// The confidence level c, a fraction (0.95 = 95%).
     pub level: f64,
+    /// VaR_c: the lower c-quantile of the loss, a fraction of value per horizon (negative: a gain).
     pub var: f64,
+    /// CVaR_c: the mean loss in the tail beyond VaR_c, a fraction of value per horizon.
     pub cvar: f64,
 }
 

@@ -55,7 +55,7 @@ pub struct FinalStatement {
 }
 
 /// One entry of the sign-off record.
-#[derive(Debug, Clone, Serialize, Deserialize)]
+#[derive(Debug, Clone, Serialize, Deserialize, schemars::JsonSchema)]
 #[serde(deny_unknown_fields)]
 pub struct Entry {
     /// The statement exactly as signed (compact JSON).
@@ -65,10 +65,12 @@ pub struct Entry {
 }
 
 /// The final PDF of a finalised pack and the signed finalisation statement that covers it.
-#[derive(Debug, Clone, Serialize, Deserialize)]
+#[derive(Debug, Clone, Serialize, Deserialize, schemars::JsonSchema)]
 #[serde(deny_unknown_fields)]
 pub struct Final {
+    /// The final PDF's file name in the pack folder (`pack-final.pdf`).
     pub pdf: String,
+    /// The final PDF's SHA-256, hex.
     pub sha256: String,
     /// The [`FinalStatement`] exactly as signed (compact JSON).
     pub statement: String,
@@ -76,11 +78,14 @@ pub struct Final {
     pub signature: String,
 }
 
-/// `signoff.json`.
-#[derive(Debug, Clone, Serialize, Deserialize, Default)]
+/// `signoff.json`: the role signatures of a pack, in signing order, and its finalisation once sealed.
+#[derive(Debug, Clone, Serialize, Deserialize, Default, schemars::JsonSchema)]
 #[serde(deny_unknown_fields)]
 pub struct Record {
+    /// One entry per role signature, in signing order; each statement is a role statement as compact JSON
+    /// (`pack_id`, `manifest_sha256`, `role`, `name`, `signed_at`, `public_key`).
     pub signatures: Vec<Entry>,
+    /// The finalisation; null until `finalize`.
     pub finalised: Option<Final>,
 }
 

@@ -78,26 +78,32 @@ impl TrackRow {
 }
 
 /// A model's realised (ex-post) active risk against the policy benchmark over the backtest.
-#[derive(Debug, Clone, Serialize)]
+#[derive(Debug, Clone, Serialize, schemars::JsonSchema)]
 pub struct ExPost {
     /// Months with both a realised return and a benchmark return.
     pub months: usize,
-    /// Mean monthly active return.
+    /// Mean monthly active return, a fraction of value per month.
     pub mean_active_return: f64,
-    /// Sample standard deviation (n − 1) of the monthly active returns.
+    /// Sample standard deviation (n − 1) of the monthly active returns, a fraction of value per month.
     pub tracking_error: f64,
-    /// `tracking_error` × √12 (monthly observations, twelve a year).
+    /// `tracking_error` × √12 (monthly observations, twelve a year), a fraction of value, annualised.
     pub tracking_error_annualised: f64,
 }
 
 /// The daily 99% VaR traffic-light test of one model.
-#[derive(Debug, Clone, Serialize)]
+#[derive(Debug, Clone, Serialize, schemars::JsonSchema)]
 pub struct DailyCheck {
+    /// Trading days tested (a count).
     pub observations: usize,
+    /// Days whose loss exceeded the predicted daily 99% VaR (a count).
     pub exceptions: usize,
+    /// Binomial probability of at most that many exceptions at a 1% rate, a fraction.
     pub cumulative_probability: f64,
+    /// The Basel traffic-light zone of the exception count.
     pub zone: Zone,
+    /// First day tested (YYYY-MM-DD).
     pub start: NaiveDate,
+    /// Last day tested (YYYY-MM-DD).
     pub end: NaiveDate,
 }
 

@@ -20,9 +20,11 @@ fn xlny(x: f64, y: f64) -> f64 {
 }
 
 /// A likelihood-ratio statistic with its χ²(1) p-value.
-#[derive(Debug, Clone, Copy, Serialize)]
+#[derive(Debug, Clone, Copy, Serialize, schemars::JsonSchema)]
 pub struct LrTest {
+    /// The likelihood-ratio statistic (a pure number, ≥ 0).
     pub statistic: f64,
+    /// Its p-value under χ²(1), a probability.
     pub p_value: f64,
 }
 
@@ -70,7 +72,7 @@ pub fn christoffersen(hits: &[bool]) -> Option<LrTest> {
 }
 
 /// Basel traffic-light zone.
-#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, schemars::JsonSchema)]
 #[serde(rename_all = "snake_case")]
 pub enum Zone {
     Green,

@@ -67,7 +67,7 @@ pub struct SignRole {
 }
 
 /// Frontier and walk-forward backtest settings.
-#[derive(Debug, Deserialize, Clone, serde::Serialize)]
+#[derive(Debug, Deserialize, Clone, serde::Serialize, schemars::JsonSchema)]
 #[serde(deny_unknown_fields, default)]
 pub struct AnalysisOptions {
     /// Points on the efficient frontier, from the min-CVaR to the max-return portfolio.
@@ -169,7 +169,9 @@ pub struct RawHedge {
 }
 
 /// Shape of the price file.
-#[derive(Debug, Deserialize, Default, Clone, Copy, PartialEq, Eq, serde::Serialize)]
+#[derive(
+    Debug, Deserialize, Default, Clone, Copy, PartialEq, Eq, serde::Serialize, schemars::JsonSchema,
+)]
 #[serde(rename_all = "snake_case")]
 pub enum Layout {
     /// Detect: `date, asset, price` columns mean long, anything else with a `date` column means wide.
@@ -193,7 +195,7 @@ impl Layout {
 }
 
 /// Data-quality thresholds and the fill policy.
-#[derive(Debug, Deserialize, Clone, serde::Serialize)]
+#[derive(Debug, Deserialize, Clone, serde::Serialize, schemars::JsonSchema)]
 #[serde(deny_unknown_fields, default)]
 pub struct QualityOptions {
     /// Forward-fill a missing price from the last observation for at most this many consecutive
@@ -223,7 +225,7 @@ impl Default for QualityOptions {
 }
 
 /// How scenarios are cut from the price history.
-#[derive(Debug, Deserialize, Clone, serde::Serialize)]
+#[derive(Debug, Deserialize, Clone, serde::Serialize, schemars::JsonSchema)]
 #[serde(deny_unknown_fields, default)]
 pub struct ScenarioOptions {
     /// Horizon h in observations (21 business days ≈ one month).
@@ -250,7 +252,17 @@ pub const MAX_GELTNER_RHO: f64 = 0.9;
 /// How often a series is observed: the scenario frequency (`scenarios.frequency`) and an asset's
 /// valuation frequency (the asset metadata's `valuation` column), from most to least frequent.
 #[derive(
-    Debug, Deserialize, Clone, Copy, PartialEq, Eq, PartialOrd, Ord, Default, serde::Serialize,
+    Debug,
+    Deserialize,
+    Clone,
+    Copy,
+    PartialEq,
+    Eq,
+    PartialOrd,
+    Ord,
+    Default,
+    serde::Serialize,
+    schemars::JsonSchema,
 )]
 #[serde(rename_all = "lowercase")]
 pub enum Frequency {

@@ -13,8 +13,9 @@ use chrono::NaiveDate;
 use serde::Serialize;
 
 /// Per-asset counts for the data-quality report.
-#[derive(Debug, Clone, Serialize)]
+#[derive(Debug, Clone, Serialize, schemars::JsonSchema)]
 pub struct AssetQuality {
+    /// Asset code.
     pub asset: String,
     /// Missing prices inside the scenario window.
     pub missing: usize,
@@ -26,20 +27,27 @@ pub struct AssetQuality {
     pub longest_stale_run: usize,
     /// Single-period moves above the extreme-move threshold.
     pub extreme_moves: usize,
+    /// Whether the asset was dropped for too few observations.
     pub dropped: bool,
 }
 
 /// The data-quality report of one run.
-#[derive(Debug, Clone, Serialize)]
+#[derive(Debug, Clone, Serialize, schemars::JsonSchema)]
 pub struct QualityReport {
+    /// The fill policy applied to missing prices, in words.
     pub fill_policy: String,
+    /// First date of the scenario window (YYYY-MM-DD).
     pub window_start: NaiveDate,
+    /// Last date of the scenario window (YYYY-MM-DD).
     pub window_end: NaiveDate,
+    /// Price observations in the window (a count).
     pub observations: usize,
+    /// Per asset, its counts (prices, runs and moves are counts of observations).
     pub assets: Vec<AssetQuality>,
     /// The policy's non-investable benchmark series, counted by the same rules (never dropped: a gap the
     /// fill policy cannot fill is an error).
     pub reference_series: Vec<AssetQuality>,
+    /// The data-quality findings, as checks.
     pub findings: Vec<Check>,
 }
 

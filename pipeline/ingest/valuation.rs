@@ -20,8 +20,9 @@ use serde::Serialize;
 
 /// One kept asset's valuation facts: how often it is valued, the first-order autocorrelation of its
 /// observed returns over the scenario window and, when it is unsmoothed, the ρ used and both volatilities.
-#[derive(Debug, Clone, Serialize)]
+#[derive(Debug, Clone, Serialize, schemars::JsonSchema)]
 pub struct AssetValuation {
+    /// Asset code.
     pub asset: String,
     /// The metadata's `valuation` column.
     pub valuation: Frequency,
@@ -37,7 +38,7 @@ pub struct AssetValuation {
 }
 
 /// Geltner unsmoothing of one asset.
-#[derive(Debug, Clone, Serialize)]
+#[derive(Debug, Clone, Serialize, schemars::JsonSchema)]
 pub struct Unsmoothed {
     /// The ρ used.
     pub rho: f64,

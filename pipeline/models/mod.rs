@@ -529,16 +529,18 @@ impl Session {
 }
 
 /// The max_ratio preconditions, from the two auxiliary LPs.
-#[derive(Debug, Clone, Serialize)]
+#[derive(Debug, Clone, Serialize, schemars::JsonSchema)]
 pub struct Preconditions {
-    /// min CVaR_c over X (must be > 0).
+    /// min CVaR_c over X (must be > 0), a fraction of value per horizon.
     pub min_cvar: Option<f64>,
-    /// max μ·x over X (must be > 0).
+    /// max μ·x over X (must be > 0), a fraction of value per horizon.
     pub max_return: Option<f64>,
+    /// Whether both are positive, so the max-ratio model applies.
     pub holds: bool,
     /// Whether both auxiliary LPs reached an optimum, so that `holds` is a finding rather than a gap:
     /// when not, the ratio model is a solver error, not "not applicable".
     pub established: bool,
+    /// Why the preconditions do not hold or were not established, in words.
     pub reason: Option<String>,
     /// Whether `max_return` (and the ratio's numerator) is net of transaction costs.
     pub net: bool,

@@ -42,11 +42,13 @@ impl Fixture {
             .current_dir(self.dir.path())
             .output()
             .expect("binary runs");
-        Ran {
+        let ran = Ran {
             code: out.status.code().unwrap_or(-1),
             stdout: String::from_utf8_lossy(&out.stdout).into(),
             stderr: String::from_utf8_lossy(&out.stderr).into(),
-        }
+        };
+        super::schema::check_written(self.dir.path(), args, &ran);
+        ran
     }
 
     /// Runs the tailpack binary with `args` in the fixture folder, killing it and failing the test if it
@@ -111,11 +113,13 @@ pub fn run_in(dir: &Path, args: &[&str], limit: std::time::Duration) -> Ran {
         }
         std::thread::sleep(std::time::Duration::from_millis(10));
     };
-    Ran {
+    let ran = Ran {
         code: status.code().unwrap_or(-1),
         stdout: out.join().expect("stdout"),
         stderr: err.join().expect("stderr"),
-    }
+    };
+    super::schema::check_written(dir, args, &ran);
+    ran
 }
 
 /// A minimal config for [`Market`] fixtures; `tail` is appended verbatim.

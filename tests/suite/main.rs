@@ -25,6 +25,7 @@ mod policy;
 mod properties;
 mod report;
 mod risk;
+mod schema;
 mod signoff;
 mod templates;
 mod trades;
