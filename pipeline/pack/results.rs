@@ -727,6 +727,9 @@ mod change {
         pub note: Option<String>,
         /// How the previous pack is chosen and the CVaR change split, in words.
         pub rule: String,
+        /// What each pack's VaR and CVaR measure (`risk.basis`): `assets` or `surplus`; absent when
+        /// the previous pack is not used.
+        pub basis: Option<Pair>,
         /// The current portfolio's CVaR change split into holdings and market effects; null when the
         /// previous pack is not used.
         pub current_cvar: Option<CurrentCvar>,
@@ -778,6 +781,9 @@ mod change {
         pub holdings_on_previous_scenarios: Option<f64>,
         /// The confidence level of these CVaRs, a fraction.
         pub confidence: Option<f64>,
+        /// `assets`, or `surplus`: then every CVaR here is a surplus CVaR, a fraction of the assets'
+        /// value per horizon.
+        pub basis: Option<String>,
     }
 
     /// A figure before and after, and the change (after − before), in the figure's unit; a side is
