@@ -33,6 +33,7 @@
 mod family;
 mod feasible;
 pub mod lp;
+mod ratio;
 mod solve;
 
 pub use family::Family;
@@ -302,6 +303,7 @@ impl Problem<'_> {
                 solved.timing.build += built;
                 Ok(solved)
             }
+            Method::Cuts if matches!(kind, Kind::Ratio(_)) => self.dinkelbach(),
             Method::Cuts => self.cutting_plane(kind),
         }
     }
@@ -517,6 +519,13 @@ impl Session {
                 timing.absorb(s.timing);
                 Ok(s)
             }
+        }
+    }
+
+    /// Replaces the objective (the rebuilt LP takes it at each solve).
+    fn objective(&mut self, objective: &Lin) {
+        if let Session::Highs(h) = self {
+            h.objective(objective);
         }
     }
 
