@@ -185,7 +185,8 @@ pub struct Measured {
     pub build: Duration,
     pub solve: Duration,
     pub runs: usize,
-    /// Solver runs per solve (1 for the direct LP; cut rounds, plus the auxiliary LP's, for cuts).
+    /// Solver runs per solve (1 for the direct LP; cut rounds for cuts, for the ratio Dinkelbach's LP
+    /// solves, each a cut round or a change of λ).
     pub rounds: usize,
     pub objective: Option<f64>,
     pub status: String,
@@ -466,16 +467,22 @@ fn reset_peak_memory() -> bool {
 
 /// The peak-memory line of one size: the bench process's `VmHWM` after the method used (matrix, LPs,
 /// cuts) and after the other method too; the reference runs in its own process and is not counted.
-fn peak_line((n, s): (usize, usize), used: Option<u64>, other: Option<u64>, direct_too: bool) -> String {
+fn peak_line(
+    (n, s): (usize, usize),
+    used: Option<u64>,
+    other: Option<u64>,
+    direct_too: bool,
+) -> String {
     let mb = |b: Option<u64>| b.map_or("-".into(), |b| format!("{:.0} MB", b as f64 / 1e6));
     let other = if direct_too {
         format!("with the other method too {}", mb(other))
     } else {
-        format!(
-            "the direct LP and the reference not run (N·S above {DIRECT_UP_TO_CELLS})"
-        )
+        format!("the direct LP and the reference not run (N·S above {DIRECT_UP_TO_CELLS})")
     };
-    format!("peak memory (VmHWM) at {n} × {s}: the method used {}; {other}", mb(used))
+    format!(
+        "peak memory (VmHWM) at {n} × {s}: the method used {}; {other}",
+        mb(used)
+    )
 }
 
 fn method_name(m: Method) -> &'static str {
