@@ -6,7 +6,9 @@
 //!   variables t = 1/CVaR, z = t·x applied to the Rockafellar & Uryasev (2000) linearisation: maximise μ·z
 //!   subject to ℓ + 1/(1−c) Σ p_k u_k ≤ 1, u_k ≥ −r_k·z − ℓ, u ≥ 0, and X's rows multiplied through by t.
 //!   Valid only when CVaR > 0 on all of X and some x ∈ X has μ·x > 0 (then the optimal ratio is positive
-//!   and the denominator row binds); both are checked by auxiliary LPs every run.
+//!   and the denominator row binds); both are checked by auxiliary LPs every run. With cutting planes the
+//!   same optimum is reached by Dinkelbach's parametric LPs max μ·x − λ·CVaR(x) on one cut model
+//!   (`ratio.rs`).
 //!
 //! With transaction cost rates and current holdings h, "return" is net of the cost of getting there:
 //! μ·x − Σ_i rate_i·|x_i − h_i| ([`net_return`]), linear through the turnover columns d_i ≥ |x_i − h_i|
