@@ -115,7 +115,8 @@ impl Problem<'_> {
     fn ratio_of(&self, x: &[f64]) -> Result<(f64, f64), Failure> {
         let cvar = risk::cvar_of(self.set, x, self.confidence);
         let ret = super::net_return(self, x);
-        if !(cvar > 0.0) || !(ret > 0.0) {
+        let positive = |v: f64| v > 0.0; // false for NaN too
+        if !positive(cvar) || !positive(ret) {
             return Err(Failure::Solver(format!(
                 "return {ret:.3e} and CVaR {cvar:.3e} of an iterate: the ratio LP does not apply (both must be > 0)"
             )));
