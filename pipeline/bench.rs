@@ -24,14 +24,21 @@ use std::process::Command;
 use std::time::{Duration, Instant};
 
 /// The default sizes (assets N, scenarios S).
-pub const DEFAULT_SIZES: [(usize, usize); 6] = [
+pub const DEFAULT_SIZES: [(usize, usize); 7] = [
     (40, 200),
     (440, 200),
     (100, 2_500),
     (500, 5_000),
     (500, 20_000),
     (1_000, 50_000),
+    (2_000, 100_000),
 ];
+
+/// Above this many cells N·S the bench neither times the direct LP (as the other method) nor runs the
+/// reference, which also solves it: at 2,000 × 100,000 its rows alone hold 2·10^8 nonzeros (about 2.4 GB
+/// in tailpack's row store, copied again by the highs crate and by HiGHS, the reference's in numpy/scipy
+/// likewise), and at 1,000 × 50,000 neither finished within 300 s (README, "Performance").
+pub const DIRECT_UP_TO_CELLS: usize = 50_000_000;
 
 /// After a run this long, further runs of the same LP are skipped (the median is then of fewer runs).
 const LONG_RUN: Duration = Duration::from_secs(20);
@@ -178,7 +185,8 @@ pub struct Measured {
     pub build: Duration,
     pub solve: Duration,
     pub runs: usize,
-    /// Solver runs per solve (1 for the direct LP; cut rounds, plus the auxiliary LP's, for cuts).
+    /// Solver runs per solve (1 for the direct LP; cut rounds for cuts, for the ratio Dinkelbach's LP
+    /// solves, each a cut round or a change of λ).
     pub rounds: usize,
     pub objective: Option<f64>,
     pub status: String,
@@ -388,8 +396,13 @@ pub fn run(opts: &BenchOptions, out: &mut dyn Write) -> Result<()> {
     );
     w(out, "");
     w(out, HEADER);
+    let mut peaks = Vec::new();
     for &(n, s) in &opts.sizes {
-        bench_size(opts, n, s, out)?;
+        peaks.push(bench_size(opts, n, s, out)?);
+    }
+    w(out, "");
+    for line in peaks {
+        w(out, &line);
     }
     if let Some(config) = &opts.demo {
         w(out, "");
@@ -398,22 +411,27 @@ pub fn run(opts: &BenchOptions, out: &mut dyn Write) -> Result<()> {
     Ok(())
 }
 
-fn bench_size(opts: &BenchOptions, n: usize, s: usize, out: &mut dyn Write) -> Result<()> {
+/// Benches one size and returns its line on peak memory.
+fn bench_size(opts: &BenchOptions, n: usize, s: usize, out: &mut dyn Write) -> Result<String> {
+    let fresh = reset_peak_memory();
+    let peak = || crate::timings::peak_memory().filter(|_| fresh);
     let sy = synthetic(n, s, 20_261_130);
     let method = sy.problem().method();
+    let direct_too = n * s <= DIRECT_UP_TO_CELLS;
     let reference = match &opts.reference {
-        Some(r) => {
+        Some(r) if direct_too => {
             let file = write_problem(&sy, &opts.work, opts.runs, opts.time_limit)?;
             run_reference(r, &file)?
         }
-        None => vec![],
+        _ => vec![],
     };
     let other_method = match method {
         Method::Direct => Method::Cuts,
         Method::Cuts => Method::Direct,
     };
     let used = measure(&sy, method, opts.runs);
-    let other = opts.other_too.then(|| {
+    let used_peak = peak();
+    let other = (opts.other_too && direct_too).then(|| {
         lp::set_time_limit(Some(opts.time_limit));
         let d = measure(&sy, other_method, opts.runs);
         lp::set_time_limit(None);
@@ -432,7 +450,39 @@ fn bench_size(opts: &BenchOptions, n: usize, s: usize, out: &mut dyn Write) -> R
         let _ = writeln!(out, "{line}");
         let _ = out.flush();
     }
-    Ok(())
+    Ok(peak_line(
+        (n, s),
+        used_peak,
+        other.as_ref().and(peak()),
+        direct_too,
+    ))
+}
+
+/// Resets this process's peak resident memory (`VmHWM`) to its current size (Linux: writing 5 to
+/// /proc/self/clear_refs), so that each size's peak is its own. Elsewhere the peak stays cumulative,
+/// which the line says by showing none.
+fn reset_peak_memory() -> bool {
+    crate::error::fs::write(Path::new("/proc/self/clear_refs"), "5").is_ok()
+}
+
+/// The peak-memory line of one size: the bench process's `VmHWM` after the method used (matrix, LPs,
+/// cuts) and after the other method too; the reference runs in its own process and is not counted.
+fn peak_line(
+    (n, s): (usize, usize),
+    used: Option<u64>,
+    other: Option<u64>,
+    direct_too: bool,
+) -> String {
+    let mb = |b: Option<u64>| b.map_or("-".into(), |b| format!("{:.0} MB", b as f64 / 1e6));
+    let other = if direct_too {
+        format!("with the other method too {}", mb(other))
+    } else {
+        format!("the direct LP and the reference not run (N·S above {DIRECT_UP_TO_CELLS})")
+    };
+    format!(
+        "peak memory (VmHWM) at {n} × {s}: the method used {}; {other}",
+        mb(used)
+    )
 }
 
 fn method_name(m: Method) -> &'static str {

@@ -80,7 +80,7 @@ impl RunArgs {
 /// What `bench` takes; the defaults are `BenchOptions::default()`'s.
 #[derive(clap::Args)]
 struct BenchArgs {
-    /// Sizes as ASSETSxSCENARIOS, comma-separated (default: 40x200,440x200,100x2500,500x5000,500x20000,1000x50000).
+    /// Sizes as ASSETSxSCENARIOS, comma-separated (default: 40x200,440x200,100x2500,500x5000,500x20000,1000x50000,2000x100000).
     #[arg(long, value_delimiter = ',', value_parser = tailpack::bench::parse_size)]
     sizes: Vec<(usize, usize)>,
     /// Runs per LP; the median is printed.

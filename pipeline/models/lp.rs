@@ -636,6 +636,22 @@ impl HighsLp {
         result
     }
 
+    /// Replaces the objective of the loaded model (same sense); the last basis stays, so the next solve
+    /// starts from it.
+    pub fn objective(&mut self, objective: &Lin) {
+        let start = Instant::now();
+        let mut cost = vec![0.0; self.cols.len()];
+        for &(c, a) in &objective.0 {
+            cost[c.0] += a;
+        }
+        let model = self.model.as_mut().expect("a loaded model");
+        for (&col, c) in self.cols.iter().zip(cost) {
+            model.change_column_cost(col, c);
+        }
+        self.objective = objective.clone();
+        self.timing.build += start.elapsed();
+    }
+
     /// Adds the row lo ≤ Σ a_j·col_j ≤ hi to the loaded model.
     pub fn row(&mut self, lo: f64, hi: f64, terms: &[(Col, f64)]) {
         let start = Instant::now();

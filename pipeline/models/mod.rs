@@ -6,7 +6,9 @@
 //!   variables t = 1/CVaR, z = t·x applied to the Rockafellar & Uryasev (2000) linearisation: maximise μ·z
 //!   subject to ℓ + 1/(1−c) Σ p_k u_k ≤ 1, u_k ≥ −r_k·z − ℓ, u ≥ 0, and X's rows multiplied through by t.
 //!   Valid only when CVaR > 0 on all of X and some x ∈ X has μ·x > 0 (then the optimal ratio is positive
-//!   and the denominator row binds); both are checked by auxiliary LPs every run.
+//!   and the denominator row binds); both are checked by auxiliary LPs every run. With cutting planes the
+//!   same optimum is reached by Dinkelbach's parametric LPs max μ·x − λ·CVaR(x) on one cut model
+//!   (`ratio.rs`).
 //!
 //! With transaction cost rates and current holdings h, "return" is net of the cost of getting there:
 //! μ·x − Σ_i rate_i·|x_i − h_i| ([`net_return`]), linear through the turnover columns d_i ≥ |x_i − h_i|
@@ -33,6 +35,7 @@
 mod family;
 mod feasible;
 pub mod lp;
+mod ratio;
 mod solve;
 
 pub use family::Family;
@@ -210,8 +213,8 @@ pub const MAX_CUT_ROUNDS: usize = 400;
 enum Kind {
     MaxReturn(Option<f64>),
     MinCvar(Option<f64>),
-    /// With the minimum CVaR over X when the caller already knows it (the cutting-plane method needs it).
-    Ratio(Option<f64>),
+    /// The Charnes–Cooper LP directly; with cuts, Dinkelbach's parametric LPs (`ratio.rs`).
+    Ratio,
     /// Minimise the active CVaR over X (without its budget).
     MinActive,
 }
@@ -247,17 +250,6 @@ impl Problem<'_> {
         self.solve(Kind::MinCvar(floor), method)
     }
 
-    /// [`Problem::max_ratio`] when the minimum CVaR over X is already known (as from the precondition
-    /// check), which spares the cutting-plane method its auxiliary LP.
-    pub fn max_ratio_knowing(&self, min_cvar: f64) -> Result<Solved, Failure> {
-        self.max_ratio_knowing_by(min_cvar, self.method())
-    }
-
-    /// [`Problem::max_ratio_knowing`] with an explicit method.
-    pub fn max_ratio_knowing_by(&self, min_cvar: f64, method: Method) -> Result<Solved, Failure> {
-        self.max_ratio_of(Kind::Ratio(Some(min_cvar)), method)
-    }
-
     /// Minimise the active CVaR over X, the budget left out: whether the budget leaves any portfolio.
     /// Without an active budget there is no benchmark, and this is a solver failure saying so.
     pub fn min_active_cvar_by(&self, method: Method) -> Result<Solved, Failure> {
@@ -269,7 +261,7 @@ impl Problem<'_> {
 
     /// [`Problem::max_ratio`] with an explicit method.
     pub fn max_ratio_by(&self, method: Method) -> Result<Solved, Failure> {
-        self.max_ratio_of(Kind::Ratio(None), method)
+        self.max_ratio_of(Kind::Ratio, method)
     }
 
     fn max_ratio_of(&self, kind: Kind, method: Method) -> Result<Solved, Failure> {
@@ -288,7 +280,7 @@ impl Problem<'_> {
         match method {
             Method::Direct => {
                 let start = Instant::now();
-                let mut lp = Lp::new(self.feasible, matches!(kind, Kind::Ratio(_)));
+                let mut lp = Lp::new(self.feasible, matches!(kind, Kind::Ratio));
                 let block = match kind {
                     Kind::MaxReturn(None) | Kind::MinActive => Lin::default(),
                     _ => lp.cvar(self.set, self.confidence),
@@ -302,6 +294,7 @@ impl Problem<'_> {
                 solved.timing.build += built;
                 Ok(solved)
             }
+            Method::Cuts if matches!(kind, Kind::Ratio) => self.dinkelbach(),
             Method::Cuts => self.cutting_plane(kind),
         }
     }
@@ -330,7 +323,7 @@ impl Problem<'_> {
                 }
                 (block, false)
             }
-            Kind::Ratio(_) => {
+            Kind::Ratio => {
                 lp.at_most(block, 1.0);
                 (lp.net_return(&self.mu, &self.feasible.cost_rates), true)
             }
@@ -341,25 +334,19 @@ impl Problem<'_> {
     /// Künzi-Bay & Mayer (2006): start from the cut K = all scenarios; after each solve add the cut of the
     /// scenarios whose loss exceeds ℓ — the most violated one — until the true tail term
     /// Σ_k p_k (L_k − ℓ)+ exceeds w by at most the tolerance. The last LP's solution is then feasible for,
-    /// and optimal in, the direct LP. Losses are homogeneous in the portfolio columns, so the same cuts
-    /// serve the Charnes–Cooper scaled LP. With HiGHS the model stays loaded and each cut is one added
+    /// and optimal in, the direct LP. With HiGHS the model stays loaded and each cut is one added
     /// row, so every round after the first is a warm-started dual simplex. An active-CVaR budget is a
-    /// second block with its own ℓ and w and its own cuts (the active loss b_k·t − r_k·z), checked and cut
-    /// in the same rounds.
+    /// second block with its own ℓ and w and its own cuts (the active loss b_k − r_k·x), checked and cut
+    /// in the same rounds. The ratio model's cuts go through Dinkelbach's parametric LPs instead
+    /// (`ratio.rs`), on the same blocks and cuts.
     fn cutting_plane(&self, kind: Kind) -> Result<Solved, Failure> {
         let total = !matches!(kind, Kind::MaxReturn(None) | Kind::MinActive);
         if !total && self.active.is_none() {
             return self.solve(kind, Method::Direct);
         }
         let start = Instant::now();
-        let mut timing = Timing::default();
-        let t_max = self.scale_bound(kind, &mut timing)?;
-        let aux = start.elapsed();
-        let mut lp = Lp::new(self.feasible, matches!(kind, Kind::Ratio(_)));
+        let mut lp = Lp::new(self.feasible, false);
         let (block, active, blocks) = self.cut_blocks(&mut lp, total);
-        if let (Some(t), Some(bound)) = (lp.scale, t_max) {
-            lp.at_most(Lin(vec![(t, 1.0)]), bound);
-        }
         let (objective, maximise) = self.shape(&mut lp, kind, block, active);
         let all: Vec<usize> = (0..self.set.len()).collect();
         let mut session = Session::new(&lp, &objective, maximise, self.backend)?;
@@ -384,10 +371,9 @@ impl Problem<'_> {
                 cut = true;
             }
             if !cut {
-                let own = session.timing();
-                timing.absorb(own);
+                let mut timing = session.timing();
                 // Everything outside the solver (setup, loss evaluation, cut sums) counts as building.
-                timing.build += (start.elapsed() - aux).saturating_sub(own.build + own.solve);
+                timing.build += start.elapsed().saturating_sub(timing.build + timing.solve);
                 solved.timing = timing;
                 return Ok(solved);
             }
@@ -437,29 +423,6 @@ struct CutBlock<'b> {
 }
 
 impl Problem<'_> {
-    /// The bound on the Charnes–Cooper scale t in the ratio's cutting-plane loop (`None` for the other
-    /// families): the relaxed ratio LP is unbounded until enough cuts exist, and t = 1/CVaR(x) ≤ 1/min CVaR
-    /// over X is a valid bound that keeps every relaxation bounded without cutting off the optimum. Solves
-    /// the minimum-CVaR LP when the caller does not know it, adding its timing to `timing`.
-    fn scale_bound(&self, kind: Kind, timing: &mut Timing) -> Result<Option<f64>, Failure> {
-        let min_cvar = match kind {
-            Kind::Ratio(Some(m)) => m,
-            Kind::Ratio(None) => {
-                let m = self.min_cvar_by(None, Method::Cuts)?;
-                timing.absorb(m.timing);
-                m.objective
-            }
-            _ => return Ok(None),
-        };
-        if min_cvar > 0.0 {
-            Ok(Some((1.0 + 1e-6) / min_cvar))
-        } else {
-            Err(Failure::Solver(format!(
-                "minimum CVaR {min_cvar:.3e} ≤ 0: the ratio LP does not apply"
-            )))
-        }
-    }
-
     /// The scenarios whose loss under weights `x` exceeds ℓ, and the true tail term Σ_k p_k (L_k − ℓ)+.
     /// The loss is −r_k·x, or with a benchmark the active loss b_k·t − r_k·x (t the Charnes–Cooper scale,
     /// 1 outside the ratio LP).
@@ -520,6 +483,13 @@ impl Session {
         }
     }
 
+    /// Replaces the objective (the rebuilt LP takes it at each solve).
+    fn objective(&mut self, objective: &Lin) {
+        if let Session::Highs(h) = self {
+            h.objective(objective);
+        }
+    }
+
     fn timing(&self) -> Timing {
         match self {
             Session::Highs(h) => h.timing,
@@ -557,7 +527,7 @@ pub fn return_words(net: bool) -> &'static str {
 
 impl Preconditions {
     /// The preconditions taken as holding without an auxiliary LP ([`Premises::Given`]): nothing was
-    /// solved, so nothing is established and the ratio LP finds the minimum CVaR itself where it needs it.
+    /// solved, so nothing is established (the ratio LP itself needs neither auxiliary optimum).
     pub fn given() -> Preconditions {
         Preconditions {
             min_cvar: None,

@@ -7,10 +7,10 @@
 //! reference portfolio, then each family of [`Family::ALL`] in turn. Every outcome claims only what was
 //! established: X called empty only when it was shown empty, a cap or floor called out of reach only
 //! against a solved auxiliary LP, and a solver's "infeasible" that a known portfolio contradicts reported
-//! as a solver error. The ratio family reuses the minimum CVaR of the auxiliary LP (its cutting-plane
-//! method needs it) and is solved only when its preconditions hold. The bands' resamples, which re-solve
-//! the run's X on other scenarios, skip the feasibility LP and let a family take an auxiliary optimum its
-//! own rule does not cut off ([`Premises::Shown`]); the run and the backtest establish everything.
+//! as a solver error. The ratio family is solved only when its preconditions hold. The bands'
+//! resamples, which re-solve the run's X on other scenarios, skip the feasibility LP and let a family
+//! take an auxiliary optimum its own rule does not cut off ([`Premises::Shown`]); the run and the
+//! backtest establish everything.
 
 use super::lp::{Failure, Solved, Timing};
 use super::{
@@ -402,11 +402,7 @@ fn max_ratio(p: &Problem, pre: &Preconditions, method: Method) -> Step {
             None,
         );
     }
-    let solved = match pre.min_cvar {
-        Some(m) => p.max_ratio_knowing_by(m, method),
-        None => p.max_ratio_by(method),
-    };
-    let (o, timing) = judged(p, solved, None, None, String::new);
+    let (o, timing) = judged(p, p.max_ratio_by(method), None, None, String::new);
     let o = unless_contradicted(
         o,
         Some("the feasible set is not empty and CVaR > 0 on it, so any of its portfolios scaled by t = 1/CVaR satisfies the scaled LP".into()),
