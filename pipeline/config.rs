@@ -219,6 +219,12 @@ pub struct Config {
     pub holdings: Option<PathBuf>,
     /// The exchange-rate file ([`Input::Fx`]).
     pub fx: Option<PathBuf>,
+    /// The scenario file ([`Input::Scenarios`]): when set, the models' scenarios come from it instead of
+    /// the price history.
+    pub scenario_file: Option<PathBuf>,
+    /// The scenario file's name as the config writes it (results.json and the PDF name it so: a re-run
+    /// reads the archived copy, which has another name).
+    pub scenario_name: Option<String>,
     /// The currency settings: base currency, hedge ratios, rate differentials.
     pub currency: Currency,
     pub quality: QualityOptions,
@@ -272,6 +278,7 @@ impl Config {
             Input::Assets => Some(&self.assets),
             Input::Holdings => self.holdings.as_deref(),
             Input::Fx => self.fx.as_deref(),
+            Input::Scenarios => self.scenario_file.as_deref(),
             Input::Stress => self.stress_file.as_deref(),
             Input::Templates => self.templates.as_deref(),
             Input::Run => None,

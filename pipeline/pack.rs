@@ -224,6 +224,29 @@ fn trades_json(r: &RunResult) -> Value {
     Value::Object(trades)
 }
 
+/// Where the scenarios came from: `price_history`, or the scenario file as the config names it with the
+/// archived copy's name and SHA-256.
+fn scenario_source(r: &RunResult, inputs: &[crate::archive::InputFile]) -> Value {
+    if !r.scenarios.from_file() {
+        return json!({"kind": "price_history"});
+    }
+    let role = crate::config::Input::Scenarios.role();
+    let archived = inputs.iter().find(|i| i.role == role);
+    json!({"kind": "file", "file": r.config.scenario_name,
+           "archived": archived.map(|i| &i.path), "sha256": archived.map(|i| &i.sha256),
+           "not_run": skipped_without_history(r)})
+}
+
+/// What needs the price history and is not run on a scenario file's scenarios (results.json and the
+/// checks name it).
+pub fn skipped_without_history(r: &RunResult) -> Vec<&'static str> {
+    crate::analysis::NEEDS_HISTORY
+        .iter()
+        .filter(|(_, runs_with_prices)| !runs_with_prices || r.data.full_dates.is_empty())
+        .map(|(what, _)| *what)
+        .collect()
+}
+
 /// The full `results.json` document.
 pub fn results_json(r: &RunResult, inputs: &[crate::archive::InputFile], pack_id: &str) -> Value {
     let models: Map<String, Value> = r
@@ -255,7 +278,7 @@ pub fn results_json(r: &RunResult, inputs: &[crate::archive::InputFile], pack_id
         "scenarios": {"count": s.len(), "horizon": s.horizon, "step": s.step, "first_start": s.starts.first().map(|d| d.to_string()),
                       "last_end": s.ends.last().map(|d| d.to_string()), "equal_probabilities": s.equal_probabilities,
                       "half_life": r.config.scenarios.half_life, "lookback_years": r.config.scenarios.lookback_years,
-                      "frequency": r.data.frequency},
+                      "frequency": r.data.frequency, "source": scenario_source(r, inputs)},
         "data_quality": r.data.quality,
         "valuation": r.data.valuation,
         "history": {"first": r.data.history.0.to_string(), "last": r.data.history.1.to_string(), "layout": r.data.layout},
@@ -695,13 +718,15 @@ pub fn outputs(r: &RunResult, plan: &crate::archive::Plan) -> Result<Outputs> {
     let (mut files, results) = timings::time("writing", || {
         let results = results_json(r, &inputs, id);
         let json = serde_json::to_string_pretty(&results).expect("results serialise") + "\n";
-        let files = vec![
-            ("scenarios.csv", scenarios_csv(r).into_bytes()),
-            ("weights.csv", weights_csv(r).into_bytes()),
-            ("results.json", json.into_bytes()),
-        ];
-        let mut files = files;
-        if let Some(csv) = reference_scenarios_csv(r) {
+        let mut files = vec![];
+        // Scenarios from a scenario file are in the pack as that file, archived under inputs/: not
+        // written again (200 million cells would be gigabytes of text).
+        if !r.scenarios.from_file() {
+            files.push(("scenarios.csv", scenarios_csv(r).into_bytes()));
+        }
+        files.push(("weights.csv", weights_csv(r).into_bytes()));
+        files.push(("results.json", json.into_bytes()));
+        if let Some(csv) = reference_scenarios_csv(r).filter(|_| !r.scenarios.from_file()) {
             files.push(("reference-scenarios.csv", csv.into_bytes()));
         }
         (files, results)

@@ -53,7 +53,9 @@ fn past_of(root: &Path, history: Vec<Previous>) -> Past {
     let previous = history.last().cloned().map(|mut p| {
         if p.verified {
             let path = root.join(&p.folder);
+            // A pack whose scenarios came from a scenario file has them as that archived input.
             p.scenarios = std::fs::read_to_string(path.join("scenarios.csv"))
+                .or_else(|_| std::fs::read_to_string(path.join("inputs/scenarios.csv")))
                 .ok()
                 .and_then(|t| change::parse_scenarios(&t));
         }

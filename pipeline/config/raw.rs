@@ -143,6 +143,9 @@ pub struct RawData {
     /// Exchange rates: per date, the value of one unit of each currency in the base currency (wide or
     /// long, as the price file).
     pub fx: Option<PathBuf>,
+    /// A scenario file (CSV or Parquet: `scenario,[probability,]<asset>…`, one joint scenario of returns
+    /// over the horizon per row) used instead of scenarios cut from the price history.
+    pub scenarios: Option<PathBuf>,
 }
 
 /// Currency hedging: hedge ratios (0 to 1; an asset's own beats a tag's, a tag's beats its class's; 0

@@ -254,6 +254,8 @@ fn assemble(
         assets: input(Input::Assets).expect("checked to be named"),
         holdings: input(Input::Holdings),
         fx: input(Input::Fx),
+        scenario_file: input(Input::Scenarios),
+        scenario_name: file_name(raw.data.scenarios.as_deref()),
         currency,
         quality: raw.quality,
         scenarios: raw.scenarios,

@@ -10,6 +10,7 @@ pub mod parquet_guard;
 pub mod prices;
 pub mod quality;
 pub mod reference;
+pub mod scenario_file;
 pub mod table;
 pub mod valuation;
 
@@ -51,6 +52,9 @@ pub struct MarketData {
     pub full_prices: Vec<Vec<f64>>,
     /// Metadata aligned with `assets`.
     pub meta: Vec<AssetMeta>,
+    /// Assets of the asset file the fill policy dropped (a scenario file's columns for them are passed
+    /// over).
+    pub dropped_assets: Vec<String>,
     /// Current holdings aligned with `assets`, if configured.
     pub holdings: Option<Vec<f64>>,
     pub quality: QualityReport,
@@ -297,6 +301,7 @@ fn build(
         findings,
     };
     let history = (hist.dates[0], *hist.dates.last().expect("non-empty"));
+    let dropped_assets = dropped(&quality.assets);
     Ok(MarketData {
         as_of,
         history,
@@ -309,6 +314,7 @@ fn build(
         full_dates: hist.dates,
         full_prices: filled.full,
         meta: filled.metas,
+        dropped_assets,
         holdings,
         quality,
         layout: hist.layout,
@@ -316,6 +322,15 @@ fn build(
         valuation: vec![],
         currency: currency::Currencies::default(),
     })
+}
+
+/// The assets the fill policy dropped, in price-file order.
+fn dropped(assets: &[quality::AssetQuality]) -> Vec<String> {
+    assets
+        .iter()
+        .filter(|q| q.dropped)
+        .map(|q| q.asset.clone())
+        .collect()
 }
 
 /// The first row of the scenario window (`scenarios.lookback_years` before as-of), with a warning when
@@ -395,6 +410,16 @@ fn window_findings(cfg: &Config, filled: &Kept, rows: usize) -> Vec<Check> {
         .cloned()
         .collect();
     let mut findings = quality::series_findings(&every, &cfg.quality);
+    if cfg.scenario_file.is_some() {
+        // The scenarios come from the scenario file: the window's length decides nothing.
+        if filled.assets.is_empty() {
+            findings.push(Check::fail(
+                "quality.no_assets",
+                "every asset was dropped by the fill policy; nothing to optimise",
+            ));
+        }
+        return findings;
+    }
     findings.push(window_check(
         &cfg.prices.display().to_string(),
         rows,

@@ -302,6 +302,15 @@ fn checks_point(r: &RunResult) -> String {
     )
 }
 
+/// Why a part that re-estimates scenarios from the price history is not in a pack whose scenarios come
+/// from a scenario file (`data.scenarios`).
+pub fn from_file_absent(r: &RunResult, part: &str) -> String {
+    format!(
+        "{part} was not run: the scenarios come from the scenario file {} (data.scenarios), and this part re-estimates scenarios from the price history, which is not where those scenarios come from.",
+        r.config.scenario_name.as_deref().unwrap_or("")
+    )
+}
+
 fn first_start(r: &RunResult) -> String {
     r.scenarios
         .starts
