@@ -449,7 +449,7 @@ fn check_fund(cfg: crate::config::Config) -> Result<String> {
         "fund {}: config {} is valid\nprices {} ({} layout): {} to {}; as-of {}; scenario window {} to {} ({} observations)\nfill policy: {}\n",
         cfg.short_name,
         cfg.path.display(),
-        cfg.prices.display(),
+        cfg.price_file().display(),
         data.layout.word(),
         data.history.0,
         data.history.1,

@@ -23,7 +23,7 @@ fn usable_returns(cfg: &Config, set: &ScenarioSet) -> Result<()> {
         return Ok(());
     };
     Err(Error::data(
-        &cfg.prices,
+        cfg.price_file(),
         format!(
             "column `{}`: the return over scenario {} (prices dated {} and {}) is {r:e}, beyond ±{:e}; the prices on those dates are not a usable price series: check those cells",
             set.assets[i],

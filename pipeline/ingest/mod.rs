@@ -73,8 +73,11 @@ pub struct MarketData {
 /// Reads, cuts at as-of, checks and fills. Blocking quality problems are returned as [`Error::Quality`].
 /// The as-of date is the config's (`--as-of`), else the latest month-end in the data.
 pub fn load(cfg: &Config) -> Result<MarketData> {
-    let table = table::read_table(&cfg.prices)?;
-    let mut hist = prices::from_table(&cfg.prices, &table, cfg.layout)?;
+    if cfg.prices.is_none() {
+        return without_prices(cfg);
+    }
+    let table = table::read_table(cfg.price_file())?;
+    let mut hist = prices::from_table(cfg.price_file(), &table, cfg.layout)?;
     let meta = meta::read_assets(&cfg.assets)?;
     reference::check_proxy(cfg, &hist, &meta)?;
     check_universe(cfg, &hist, &meta)?;
@@ -83,7 +86,7 @@ pub fn load(cfg: &Config) -> Result<MarketData> {
     let mut findings: Vec<Check> = quality::sort_dates(&mut hist).into_iter().collect();
     let as_of = resolve_as_of(cfg, &hist, cfg.as_of)?;
     cut_after(&mut hist, as_of);
-    let file = cfg.prices.display().to_string();
+    let file = cfg.price_file().display().to_string();
     findings.extend(quality::duplicate_dates(&file, &hist));
     findings.extend(quality::non_positive(&file, &hist));
     findings.extend(quality::overflowing_range(&file, &hist));
@@ -109,6 +112,66 @@ pub fn load(cfg: &Config) -> Result<MarketData> {
     Ok(data)
 }
 
+/// The market data of a run whose scenarios come from a scenario file and that has no price file: the
+/// asset file's assets in its order, the holdings, no dates and no prices. The as-of date is the command
+/// line's (`--as-of`): without prices nothing else dates the run. The non-investable series (policy
+/// benchmarks, liability proxy) are the names the config gives that the asset file does not list; their
+/// returns come from the scenario file too. The file's returns are taken as base-currency returns (no
+/// exchange rates are applied to them).
+fn without_prices(cfg: &Config) -> Result<MarketData> {
+    let meta = meta::read_assets(&cfg.assets)?;
+    valuation::check_meta(cfg, &meta)?;
+    let as_of = cfg.as_of.ok_or_else(|| {
+        Error::config(
+            &cfg.path,
+            "data.scenarios without data.prices: give the as-of date with --as-of (there are no price dates to take it from)",
+        )
+    })?;
+    let assets: Vec<String> = meta.iter().map(|m| m.asset.clone()).collect();
+    if let Some(x) = cfg.exclude.iter().find(|x| !assets.contains(x)) {
+        return Err(Error::config(
+            &cfg.path,
+            format!("limits.exclude: unknown asset `{x}`"),
+        ));
+    }
+    let reference = reference::named_without_prices(cfg, &meta)?;
+    let holdings = match &cfg.holdings {
+        Some(p) => Some(meta::read_holdings(p, &assets)?),
+        None => None,
+    };
+    let n = assets.len();
+    let data = MarketData {
+        as_of,
+        history: (as_of, as_of),
+        dates: vec![],
+        reference_prices: vec![vec![]; reference.len()],
+        reference_full_prices: vec![vec![]; reference.len()],
+        reference,
+        prices: vec![vec![]; n],
+        full_dates: vec![],
+        full_prices: vec![vec![]; n],
+        dropped_assets: vec![],
+        holdings,
+        quality: QualityReport {
+            fill_policy: "no price file: the scenarios come from the scenario file".to_string(),
+            window_start: as_of,
+            window_end: as_of,
+            observations: 0,
+            assets: vec![],
+            reference_series: vec![],
+            findings: vec![],
+        },
+        layout: cfg.layout,
+        frequency: cfg.scenarios.frequency,
+        valuation: vec![],
+        currency: currency::without_prices(cfg, &assets, &meta)?,
+        meta,
+        assets,
+    };
+    check_bounds(cfg, &data)?;
+    Ok(data)
+}
+
 fn fails(findings: &[Check]) -> Vec<String> {
     findings
         .iter()
@@ -128,7 +191,7 @@ fn check_universe(cfg: &Config, hist: &PriceHistory, meta: &[AssetMeta]) -> Resu
             format!(
                 "column `asset`: has no row for asset `{}`, which is in the price file {}; every priced asset needs a row with at least its class (a benchmark series the policy names needs none)",
                 truncate(a, 40),
-                cfg.prices.display()
+                cfg.price_file().display()
             ),
         ));
     }
@@ -139,7 +202,7 @@ fn check_universe(cfg: &Config, hist: &PriceHistory, meta: &[AssetMeta]) -> Resu
                 "{}: lists asset `{}`, which has no prices in the price file {}; remove the row or add its prices",
                 m.place,
                 m.asset,
-                cfg.prices.display()
+                cfg.price_file().display()
             ),
         ));
     }
@@ -222,7 +285,7 @@ fn resolve_as_of(cfg: &Config, hist: &PriceHistory, given: Option<NaiveDate>) ->
             &cfg.path,
             format!(
                 "--as-of {d} is outside the price data, which runs from {first} to {last} ({}); give a date in that range or leave --as-of out for the latest month-end",
-                cfg.prices.display()
+                cfg.price_file().display()
             ),
         )),
         Some(d) => Ok(d),
@@ -421,7 +484,7 @@ fn window_findings(cfg: &Config, filled: &Kept, rows: usize) -> Vec<Check> {
         return findings;
     }
     findings.push(window_check(
-        &cfg.prices.display().to_string(),
+        &cfg.price_file().display().to_string(),
         rows,
         cfg.scenarios.horizon,
         cfg.scenarios.step,
