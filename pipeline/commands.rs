@@ -517,3 +517,15 @@ pub fn bench(opts: &crate::bench::BenchOptions) -> Result<String> {
     crate::bench::run(opts, &mut std::io::stdout())?;
     Ok(String::new())
 }
+
+/// `demo-scenarios`: an invented simulated scenario file of `assets` × `scenarios` with its asset and
+/// holdings files ([`crate::demo_scenarios`]).
+pub fn demo_scenarios(dir: &std::path::Path, assets: usize, scenarios: usize) -> Result<String> {
+    let w = crate::demo_scenarios::write(dir, assets, scenarios)?;
+    Ok(format!(
+        "wrote an invented simulated scenario file of {} scenarios × {} assets (scenarios.csv, assets.csv, holdings.csv) to {}\n",
+        w.scenarios,
+        w.assets,
+        dir.display()
+    ))
+}
