@@ -260,7 +260,9 @@ fn normalise(path: &Path, p: &mut [f64]) -> Result<()> {
             ),
         ));
     }
-    p.iter_mut().for_each(|x| *x /= total);
+    if total != 1.0 {
+        p.iter_mut().for_each(|x| *x /= total);
+    }
     Ok(())
 }
 

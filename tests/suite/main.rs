@@ -24,6 +24,7 @@ mod policy;
 mod properties;
 mod report;
 mod risk;
+mod scenario_file;
 mod signoff;
 mod templates;
 mod trades;
