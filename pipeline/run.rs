@@ -166,9 +166,12 @@ pub fn validate(cfg: Config, data: MarketData) -> Result<Prepared> {
 fn scenario_sets(cfg: &Config, data: &MarketData) -> Result<(ScenarioSet, ScenarioSet)> {
     if let Some(path) = &cfg.scenario_file {
         let table = ingest::scenario_file::read(path, &wanted(cfg, data))?;
-        let sets = scenarios::from_file(table, &data.assets, &data.reference, &cfg.scenarios);
-        enough_scenarios(cfg, path, &sets.0)?;
-        return Ok(sets);
+        return Ok(scenarios::from_file(
+            table,
+            &data.assets,
+            &data.reference,
+            &cfg.scenarios,
+        ));
     }
     let scenarios = scenarios::build(data, &cfg.scenarios)?;
     usable_returns(cfg, &scenarios)?;
@@ -185,27 +188,23 @@ fn wanted<'a>(cfg: &'a Config, data: &'a MarketData) -> ingest::scenario_file::W
         reference: &data.reference,
         other_assets: &data.dropped_assets,
         asset_file: &cfg.assets,
+        min_scenarios: min_scenarios(cfg),
     }
 }
 
 /// A scenario file needs at least [`ingest::MIN_SCENARIOS`] scenarios, and at every reported level at
 /// least one scenario's worth of probability beyond the quantile (S·(1 − α) ≥ 1 with equal
 /// probabilities), or VaR and CVaR at that level are both the single worst scenario.
-fn enough_scenarios(cfg: &Config, path: &std::path::Path, set: &ScenarioSet) -> Result<()> {
-    let s = set.len();
+fn min_scenarios(cfg: &Config) -> (usize, String) {
     let top = cfg.levels.iter().copied().fold(cfg.confidence, f64::max);
     let needed = ((1.0 / (1.0 - top)) - 1e-9).ceil() as usize;
-    let needed = needed.max(ingest::MIN_SCENARIOS);
-    if s < needed {
-        return Err(Error::data(
-            path,
-            format!(
-                "has {s} scenarios; at least {needed} are needed ({} at least, and 1/(1 − α) for the highest level α = {top} of risk.confidence and risk.levels, so that the tail beyond VaR holds at least one scenario): give more scenarios or lower the levels",
-                ingest::MIN_SCENARIOS
-            ),
-        ));
-    }
-    Ok(())
+    (
+        needed.max(ingest::MIN_SCENARIOS),
+        format!(
+            "{} at least, and 1/(1 − α) for the highest level α = {top} of risk.confidence and risk.levels, so that the tail beyond VaR holds at least one scenario",
+            ingest::MIN_SCENARIOS
+        ),
+    )
 }
 
 /// Checks and solves everything for loaded data ([`validate`], then [`solve`]).

@@ -52,6 +52,8 @@ pub struct Wanted<'a> {
     pub other_assets: &'a [String],
     /// The asset metadata file, for messages.
     pub asset_file: &'a Path,
+    /// Fewest scenarios the run accepts, and why.
+    pub min_scenarios: (usize, String),
 }
 
 /// Where one column of the file goes.
@@ -77,11 +79,26 @@ pub fn read(path: &Path, wanted: &Wanted) -> Result<ScenarioTable> {
         read_csv(path, wanted)?
     };
     let first = table.first_line;
-    check_labels(path, &table.labels, &|r| place(r, first.map(|f| f + r)))?;
-    if table.labels.is_empty() {
+    let at = |r: usize| place(r, first.map(|f| f + r));
+    check_labels(path, &table.labels, &at)?;
+    let s = table.labels.len();
+    if s == 0 {
+        let header = first.map_or("the column list".to_string(), |f| {
+            format!("line {} (header)", f - 1)
+        });
         return Err(Error::data(
             path,
-            "has no scenario rows: a scenario file needs a header `scenario,[probability,]<asset>…` and one row per scenario",
+            format!("{header}: no scenario rows follow the header; the file needs one row per scenario"),
+        ));
+    }
+    let (needed, why) = &wanted.min_scenarios;
+    if s < *needed {
+        return Err(Error::data(
+            path,
+            format!(
+                "{}: the file ends after {s} scenarios; at least {needed} are needed ({why}): give more scenarios or lower the levels",
+                at(s - 1)
+            ),
         ));
     }
     if let Some(p) = table.probabilities.as_mut() {
@@ -255,7 +272,7 @@ fn normalise(path: &Path, p: &mut [f64]) -> Result<()> {
         return Err(Error::data(
             path,
             format!(
-                "column `probability`: the probabilities of the {} scenarios sum to {total}, not 1 (tolerance {PROBABILITY_TOLERANCE:e}); give every scenario's probability so that they sum to 1, or leave the column out for equal probabilities",
+                "column `probability`: the probabilities of the {} scenarios sum to {total:.9}, not 1 (tolerance {PROBABILITY_TOLERANCE:e}); give every scenario's probability so that they sum to 1, or leave the column out for equal probabilities",
                 p.len()
             ),
         ));
@@ -312,7 +329,7 @@ fn read_csv(path: &Path, wanted: &Wanted) -> Result<ScenarioTable> {
         if !next_line(path, &mut r, &mut buf, line)? {
             return Err(Error::data(
                 path,
-                "is empty: a scenario file needs a header `scenario,[probability,]<asset>…` and one row per scenario",
+                "line 1: the file is empty; expected a header line such as `scenario,AS01,AS02` or `scenario,probability,AS01,AS02` and one row per scenario",
             ));
         }
         let t = buf.trim_start_matches('\u{feff}');
@@ -443,7 +460,8 @@ fn parse_batch(
     for (i, p) in parsed.into_iter().enumerate() {
         let row = rows + i;
         let p = p.map_err(|why| {
-            Error::data(path, format!("{}, {why}", place(row, Some(start + i))))
+            let sep = if why.starts_with("column ") { ", " } else { ": " };
+            Error::data(path, format!("{}{sep}{why}", place(row, Some(start + i))))
         })?;
         if p.blank {
             t.blank_tail += 1;
