@@ -340,6 +340,7 @@ fn source_check(cfg: &Config, set: &ScenarioSet) -> Option<Check> {
     if !set.from_file() {
         return None;
     }
+    let prices = cfg.prices.is_some();
     let (never, with_prices): (Vec<_>, Vec<_>) = crate::analysis::NEEDS_HISTORY
         .iter()
         .partition(|(_, runs)| !runs);
@@ -347,7 +348,7 @@ fn source_check(cfg: &Config, set: &ScenarioSet) -> Option<Check> {
     Some(Check::pass(
         "scenarios.source",
         format!(
-            "{} scenarios of {} assets from the scenario file {} (data.scenarios), {}; not run on them: {}; from the price file: {}",
+            "{} scenarios of {} assets from the scenario file {} (data.scenarios), {}; not run on them: {}; {}: {}",
             set.len(),
             set.width(),
             cfg.scenario_name.as_deref().unwrap_or(""),
@@ -357,6 +358,11 @@ fn source_check(cfg: &Config, set: &ScenarioSet) -> Option<Check> {
                 "probabilities from the file"
             },
             names(&never),
+            if prices {
+                "from the price file"
+            } else {
+                "not run either without a price file (data.prices)"
+            },
             names(&with_prices)
         ),
     ))
