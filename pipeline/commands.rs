@@ -445,6 +445,19 @@ fn check_fund(cfg: crate::config::Config) -> Result<String> {
     // `run` reads the template folder when it plans the pack, before its first LP.
     crate::report::templates::custom(cfg)?;
     let q = &data.quality;
+    if cfg.prices.is_none() {
+        return Ok(format!(
+            "fund {}: config {} is valid\nno price file; as-of {}; {} scenarios of {} assets from the scenario file {}\nfeasible set: {} assets, {} group limit(s) resolved\n",
+            cfg.short_name,
+            cfg.path.display(),
+            data.as_of,
+            prepared.scenarios.len(),
+            data.assets.len(),
+            cfg.scenario_name.as_deref().unwrap_or(""),
+            data.assets.len(),
+            prepared.feasible.groups.len()
+        ));
+    }
     let mut out = format!(
         "fund {}: config {} is valid\nprices {} ({} layout): {} to {}; as-of {}; scenario window {} to {} ({} observations)\nfill policy: {}\n",
         cfg.short_name,

@@ -263,6 +263,9 @@ fn the_simulated_demo_is_the_generators_output_and_runs_end_to_end() {
         );
     }
     let cfg = repo().join("config-demo/simulated.yaml");
+    let check = fx.run(&["check", &cfg.to_string_lossy(), "--as-of", "2026-11-30"]);
+    assert_eq!(check.code, 0, "{}", check.stderr);
+    assert!(check.stdout.contains("5000 scenarios of 50 assets from the scenario file scenarios.csv"), "{}", check.stdout);
     let out = fx.path("out");
     let ran = fx.run(&[
         "run",
