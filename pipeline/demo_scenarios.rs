@@ -163,11 +163,17 @@ mod tests {
 
     #[test]
     fn five_decimals_as_the_formatter_writes_them() {
-        for v in [0.0, 0.012345, -0.012345, -0.000004, 1.5, -0.99999, 12.000001, 0.1] {
+        for v in [
+            0.0, 0.012345, -0.012345, -0.000004, 1.5, -0.99999, 12.000001, 0.1,
+        ] {
             let mut s = String::new();
             push_fixed5(&mut s, v);
             let want = format!("{v:.5}");
-            assert_eq!(s.parse::<f64>().unwrap(), want.parse::<f64>().unwrap(), "{v}: {s} vs {want}");
+            assert_eq!(
+                s.parse::<f64>().unwrap(),
+                want.parse::<f64>().unwrap(),
+                "{v}: {s} vs {want}"
+            );
         }
     }
 
@@ -193,7 +199,12 @@ mod tests {
         let cells: Vec<f64> = text
             .lines()
             .skip(2)
-            .flat_map(|l| l.split(',').skip(1).map(|c| c.parse::<f64>().unwrap()).collect::<Vec<_>>())
+            .flat_map(|l| {
+                l.split(',')
+                    .skip(1)
+                    .map(|c| c.parse::<f64>().unwrap())
+                    .collect::<Vec<_>>()
+            })
             .collect();
         assert_eq!(cells.len(), 12 * 300);
         assert!(cells.iter().all(|r| *r > -1.0));

@@ -139,8 +139,7 @@ pub fn prepare_fund(cfg: Config) -> Result<Prepared> {
 
 /// The checks after ingest: scenarios, the feasible set, the stress shocks against the data.
 pub fn validate(cfg: Config, data: MarketData) -> Result<Prepared> {
-    let (scenarios, reference) =
-        crate::timings::time("scenarios", || scenario_sets(&cfg, &data))?;
+    let (scenarios, reference) = crate::timings::time("scenarios", || scenario_sets(&cfg, &data))?;
     let policy_members = models::policy_lines(&cfg, &data)?;
     let feasible = models::feasible_set(&cfg, &data)?;
     let shocks = match (&cfg.stress_file, &cfg.stress) {

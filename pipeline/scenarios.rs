@@ -243,7 +243,12 @@ pub fn from_file(
         horizon: opts.horizon,
         step: opts.step,
     };
-    let universe = set(assets, table.returns, table.labels.clone(), probabilities.clone());
+    let universe = set(
+        assets,
+        table.returns,
+        table.labels.clone(),
+        probabilities.clone(),
+    );
     let refs = set(reference, table.reference, table.labels, probabilities);
     (universe, refs)
 }

@@ -85,7 +85,9 @@ pub fn analyse(
     // The backtest, the bands and the currency split re-estimate scenarios from prices: not for a
     // scenario file's scenarios (NEEDS_HISTORY).
     let history = !p.set.from_file();
-    let backtest = timings::time("backtest", || history.then(|| backtest::run(cfg, data, fs)).flatten());
+    let backtest = timings::time("backtest", || {
+        history.then(|| backtest::run(cfg, data, fs)).flatten()
+    });
     let points: Vec<Option<Vec<f64>>> = crate::models::Family::ALL
         .iter()
         .map(|f| {

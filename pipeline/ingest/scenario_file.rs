@@ -88,7 +88,9 @@ pub fn read(path: &Path, wanted: &Wanted) -> Result<ScenarioTable> {
         });
         return Err(Error::data(
             path,
-            format!("{header}: no scenario rows follow the header; the file needs one row per scenario"),
+            format!(
+                "{header}: no scenario rows follow the header; the file needs one row per scenario"
+            ),
         ));
     }
     let (needed, why) = &wanted.min_scenarios;
@@ -238,9 +240,7 @@ fn probability_value(text: &str) -> std::result::Result<f64, String> {
         .parse()
         .map_err(|_| format!("`{}` is not a number", truncate(t, 24)))?;
     if !v.is_finite() || v < 0.0 {
-        return Err(format!(
-            "the probability {v} is not a finite number ≥ 0"
-        ));
+        return Err(format!("the probability {v} is not a finite number ≥ 0"));
     }
     Ok(v)
 }
@@ -448,8 +448,16 @@ fn parse_batch(
     t.returns.resize((rows + lines.len()) * n, 0.0);
     t.reference.resize((rows + lines.len()) * m, 0.0);
     // Without reference series each line still gets a (scratch) reference row, so the zip stays aligned.
-    let mut scratch = if m == 0 { vec![0.0; lines.len()] } else { vec![] };
-    let refs: &mut [f64] = if m == 0 { &mut scratch } else { &mut t.reference[rows * m..] };
+    let mut scratch = if m == 0 {
+        vec![0.0; lines.len()]
+    } else {
+        vec![]
+    };
+    let refs: &mut [f64] = if m == 0 {
+        &mut scratch
+    } else {
+        &mut t.reference[rows * m..]
+    };
     let mut parsed: Vec<std::result::Result<Parsed, String>> = Vec::with_capacity(lines.len());
     lines
         .par_iter()
@@ -460,7 +468,11 @@ fn parse_batch(
     for (i, p) in parsed.into_iter().enumerate() {
         let row = rows + i;
         let p = p.map_err(|why| {
-            let sep = if why.starts_with("column ") { ", " } else { ": " };
+            let sep = if why.starts_with("column ") {
+                ", "
+            } else {
+                ": "
+            };
             Error::data(path, format!("{}{sep}{why}", place(row, Some(start + i))))
         })?;
         if p.blank {
@@ -595,8 +607,7 @@ fn floats(s: &polars::prelude::Series) -> Option<Vec<Option<f64>>> {
 /// The `scenario` column as text: strings or integers.
 fn labels_of(path: &Path, s: &polars::prelude::Series, name: &str) -> Result<Vec<String>> {
     use polars::prelude::DataType;
-    let ok = matches!(s.dtype(), DataType::String)
-        || s.dtype().is_integer();
+    let ok = matches!(s.dtype(), DataType::String) || s.dtype().is_integer();
     if !ok {
         return Err(Error::data(
             path,

@@ -464,22 +464,30 @@ fn bounds(r: &RunResult, i: usize) -> String {
 pub const MAX_ASSET_ROWS: usize = 60;
 
 /// The assets the table lists, in universe order: all of them, or the [`MAX_ASSET_ROWS`] with the largest
-/// weight in any portfolio shown (ties to the earlier asset).
+/// weight in any model's portfolio (ties by the weight in any portfolio shown, then the earlier asset).
 fn listed_assets(r: &RunResult, shown: &[Portfolio]) -> Vec<usize> {
     let n = r.data.assets.len();
     if n <= MAX_ASSET_ROWS {
         return (0..n).collect();
     }
-    let largest = |i: usize| {
+    // The models' weights first (the candidates are what the committee decides on), then any portfolio's.
+    let largest = |i: usize, models_only: bool| {
         shown
             .iter()
+            .filter(|v| !models_only || v.model.is_some())
             .filter_map(|v| v.weights)
             .map(|w| w[i])
             .fold(0.0, f64::max)
     };
-    let mut order: Vec<(usize, f64)> = (0..n).map(|i| (i, largest(i))).collect();
-    order.sort_by(|a, b| b.1.total_cmp(&a.1).then(a.0.cmp(&b.0)));
-    let mut keep: Vec<usize> = order[..MAX_ASSET_ROWS].iter().map(|(i, _)| *i).collect();
+    let mut order: Vec<(usize, f64, f64)> = (0..n)
+        .map(|i| (i, largest(i, true), largest(i, false)))
+        .collect();
+    order.sort_by(|a, b| {
+        b.1.total_cmp(&a.1)
+            .then(b.2.total_cmp(&a.2))
+            .then(a.0.cmp(&b.0))
+    });
+    let mut keep: Vec<usize> = order[..MAX_ASSET_ROWS].iter().map(|(i, ..)| *i).collect();
     keep.sort_unstable();
     keep
 }
@@ -496,7 +504,7 @@ fn assets_left_out(r: &RunResult, shown: &[Portfolio]) -> Option<String> {
         .flat_map(|i| shown.iter().filter_map(|v| v.weights).map(move |w| w[i]))
         .fold(0.0, f64::max);
     Some(format!(
-        "The table lists the {} assets with the largest weight in any portfolio shown, of {} in the universe; each of the other {} weighs at most {} in every portfolio. weights.csv in the pack lists every asset.",
+        "The table lists the {} assets with the largest weight in any candidate portfolio, of {} in the universe; each of the other {} weighs at most {} in every portfolio shown. weights.csv in the pack lists every asset.",
         format::count(MAX_ASSET_ROWS),
         format::count(n),
         format::count(n - MAX_ASSET_ROWS),

@@ -637,7 +637,8 @@ fn generate(what: &str, dir: &Path) -> Vec<String> {
                 .skip(1)
                 .map(|l| l.split(',').collect())
                 .collect();
-            let col = |c: usize| -> Vec<f64> { rows.iter().map(|r| r[c].parse().unwrap()).collect() };
+            let col =
+                |c: usize| -> Vec<f64> { rows.iter().map(|r| r[c].parse().unwrap()).collect() };
             let labels: Vec<String> = rows.iter().map(|r| r[0].to_string()).collect();
             let flags: Vec<bool> = col(2).iter().map(|r| *r > 0.0).collect();
             let mut df = DataFrame::new_infer_height(vec![

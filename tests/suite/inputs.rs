@@ -544,7 +544,10 @@ fn every_input() -> super::common::Fixture {
             )
         })
         .collect();
-    f.write("data/simulated.csv", &format!("scenario,AS01,AS02,AS03\n{rows}"));
+    f.write(
+        "data/simulated.csv",
+        &format!("scenario,AS01,AS02,AS03\n{rows}"),
+    );
     // AS02 is priced in an invented currency at a constant rate of 2 (the returns do not change with it).
     f.write(
         "data/assets.csv",

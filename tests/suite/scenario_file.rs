@@ -12,7 +12,9 @@ const LIMIT: Duration = Duration::from_secs(300);
 
 /// The pack a run printed as its last line (relative to the fixture folder, or absolute).
 fn pack(fx: &Fixture, stdout: &str) -> PathBuf {
-    fx.dir.path().join(stdout.lines().last().expect("the pack's path"))
+    fx.dir
+        .path()
+        .join(stdout.lines().last().expect("the pack's path"))
 }
 
 /// Runs `tailpack run` in the fixture and returns the pack's results.json.
@@ -41,7 +43,10 @@ fn figures(r: &Value) -> Vec<(String, f64)> {
     ));
     for l in r["current"]["levels"].as_array().unwrap() {
         for k in ["var", "cvar"] {
-            out.push((format!("current.{k}@{}", l["level"]), l[k].as_f64().unwrap()));
+            out.push((
+                format!("current.{k}@{}", l["level"]),
+                l[k].as_f64().unwrap(),
+            ));
         }
     }
     out
@@ -74,7 +79,10 @@ fn the_scenarios_a_history_run_used_give_the_same_results_from_a_file() {
     let fx = Fixture::new();
     let m = Market::new(4, "2022-01-03", "2024-06-28", 11);
     // Decaying probabilities, so the file carries a probability column.
-    let base = config("").replace("  lookback_years: 2\n", "  lookback_years: 2\n  half_life: 60\n");
+    let base = config("").replace(
+        "  lookback_years: 2\n",
+        "  lookback_years: 2\n  half_life: 60\n",
+    );
     fx.small_fund(&m, &base);
     let (history, p) = run(&fx, "fund.yaml", "out-h", &[]);
     assert_eq!(history["scenarios"]["source"]["kind"], "price_history");
@@ -86,12 +94,18 @@ fn the_scenarios_a_history_run_used_give_the_same_results_from_a_file() {
     fx.write("both.yaml", &both);
     let (from_file, p2) = run(&fx, "both.yaml", "out-f", &[]);
     assert_same(&history, &from_file, 1e-12);
-    assert_eq!(from_file["scenarios"]["count"], history["scenarios"]["count"]);
+    assert_eq!(
+        from_file["scenarios"]["count"],
+        history["scenarios"]["count"]
+    );
     assert_eq!(from_file["scenarios"]["equal_probabilities"], false);
     let source = &from_file["scenarios"]["source"];
     assert_eq!(source["kind"], "file");
     assert_eq!(source["file"], "written.csv");
-    assert_eq!(source["sha256"].as_str().unwrap(), sha256(&p.join("scenarios.csv")));
+    assert_eq!(
+        source["sha256"].as_str().unwrap(),
+        sha256(&p.join("scenarios.csv"))
+    );
     // The pack keeps the file as its archived input and does not write the scenarios again.
     assert!(!p2.join("scenarios.csv").exists());
     assert!(p2.join("inputs/scenarios.csv").is_file());
@@ -107,12 +121,16 @@ fn the_scenarios_a_history_run_used_give_the_same_results_from_a_file() {
         .map(|v| v.as_str().unwrap())
         .collect();
     assert!(not_run.contains(&"walk-forward backtest"), "{not_run:?}");
-    assert!(not_run.contains(&"historical stress windows"), "{not_run:?}");
-    assert!(alone["checks"]
-        .as_array()
-        .unwrap()
-        .iter()
-        .any(|c| c["message"].as_str().unwrap_or("").contains("from the scenario file written.csv")));
+    assert!(
+        not_run.contains(&"historical stress windows"),
+        "{not_run:?}"
+    );
+    assert!(alone["checks"].as_array().unwrap().iter().any(|c| {
+        c["message"]
+            .as_str()
+            .unwrap_or("")
+            .contains("from the scenario file written.csv")
+    }));
     // A re-run from the archived inputs (the archived scenario file) gives the same bytes.
     let pack_arg = p3.to_string_lossy().into_owned();
     let v = fx.run(&["verify", "--rerun", &pack_arg]);
@@ -213,7 +231,11 @@ fn a_probability_weighs_a_scenario_as_repeated_rows_would() {
         .unwrap();
     let got = at["cvar"].as_f64().unwrap();
     assert!((got - cvar).abs() < 1e-12, "{got} vs {cvar}");
-    assert!((at["var"].as_f64().unwrap() - var).abs() < 1e-12, "{} vs {var}", at["var"]);
+    assert!(
+        (at["var"].as_f64().unwrap() - var).abs() < 1e-12,
+        "{} vs {var}",
+        at["var"]
+    );
 }
 
 #[test]
@@ -231,7 +253,10 @@ fn csv_and_parquet_scenario_files_give_the_same_results() {
     }
     fx.write("data/s.csv", &csv);
     let mut cols = vec![
-        Column::new("scenario".into(), (0..rows.len()).map(|k| format!("S{k}")).collect::<Vec<_>>()),
+        Column::new(
+            "scenario".into(),
+            (0..rows.len()).map(|k| format!("S{k}")).collect::<Vec<_>>(),
+        ),
         Column::new("probability".into(), probs.clone()),
     ];
     for i in 0..4 {
@@ -253,19 +278,33 @@ fn csv_and_parquet_scenario_files_give_the_same_results() {
 #[test]
 fn the_simulated_demo_is_the_generators_output_and_runs_end_to_end() {
     let fx = Fixture::new();
-    let r = fx.run(&["demo-scenarios", "gen", "--assets", "50", "--scenarios", "5000"]);
+    let r = fx.run(&[
+        "demo-scenarios",
+        "gen",
+        "--assets",
+        "50",
+        "--scenarios",
+        "5000",
+    ]);
     assert_eq!(r.code, 0, "{}", r.stderr);
     let demo = repo().join("config-demo/simulated");
     for f in ["scenarios.csv", "assets.csv", "holdings.csv"] {
         assert!(
-            std::fs::read(fx.path(&format!("gen/{f}"))).unwrap() == std::fs::read(demo.join(f)).unwrap(),
+            std::fs::read(fx.path(&format!("gen/{f}"))).unwrap()
+                == std::fs::read(demo.join(f)).unwrap(),
             "config-demo/simulated/{f} is not the generator's output: run `tailpack demo-scenarios config-demo/simulated --assets 50 --scenarios 5000`"
         );
     }
     let cfg = repo().join("config-demo/simulated.yaml");
     let check = fx.run(&["check", &cfg.to_string_lossy(), "--as-of", "2026-11-30"]);
     assert_eq!(check.code, 0, "{}", check.stderr);
-    assert!(check.stdout.contains("5000 scenarios of 50 assets from the scenario file scenarios.csv"), "{}", check.stdout);
+    assert!(
+        check
+            .stdout
+            .contains("5000 scenarios of 50 assets from the scenario file scenarios.csv"),
+        "{}",
+        check.stdout
+    );
     let out = fx.path("out");
     let ran = fx.run(&[
         "run",
@@ -284,5 +323,35 @@ fn the_simulated_demo_is_the_generators_output_and_runs_end_to_end() {
         assert_eq!(r["models"][m]["status"], "optimal", "{m}");
     }
     let text = super::common::pdf_text(&p.join("pack.pdf"));
-    assert!(text.contains("scenario file"), "the PDF says where the scenarios come from");
+    assert!(
+        text.contains("scenario file"),
+        "the PDF says where the scenarios come from"
+    );
+}
+
+#[test]
+fn a_large_universe_lists_the_candidates_largest_holdings_and_says_what_it_leaves_out() {
+    let fx = Fixture::new();
+    let r = fx.run(&["demo-scenarios", "sim", "--assets", "80", "--scenarios", "600"]);
+    assert_eq!(r.code, 0, "{}", r.stderr);
+    let cfg = std::fs::read_to_string(repo().join("config-demo/simulated.yaml"))
+        .unwrap()
+        .replace("simulated/", "sim/")
+        .replace("  root: ../out", "  root: out");
+    fx.write("fund.yaml", &cfg);
+    let (results, p) = run(&fx, "fund.yaml", "out", &["--as-of", "2026-11-30"]);
+    let text = super::common::squeeze(&super::common::pdf_text(&p.join("pack.pdf")));
+    assert!(
+        text.contains("The table lists the 60 assets with the largest weight in any candidate portfolio, of 80 in the universe; each of the other 20 weighs at most"),
+        "{text}"
+    );
+    // Every asset a model holds above 1.25% (each asset's current weight) is among the 60 listed: the
+    // table's rows are read back from weights.csv's codes found in the PDF's text.
+    for (name, m) in results["models"].as_object().unwrap() {
+        for (asset, w) in m["weights"].as_object().unwrap() {
+            if w.as_f64().unwrap() > 0.0126 {
+                assert!(text.contains(asset.as_str()), "{name}: {asset} held at {w} is not listed");
+            }
+        }
+    }
 }
