@@ -57,7 +57,7 @@ fn past_of(root: &Path, history: Vec<Previous>) -> Past {
             p.scenarios = std::fs::read_to_string(path.join("scenarios.csv"))
                 .or_else(|_| std::fs::read_to_string(path.join("inputs/scenarios.csv")))
                 .ok()
-                .and_then(|t| change::parse_scenarios(&t));
+                .and_then(|t| change::parse_scenarios(without_comments(&t)));
         }
         p
     });
@@ -134,4 +134,14 @@ pub fn recorded(pack: &Path, fund: &str) -> Past {
         })
         .collect();
     past_of(root, history)
+}
+
+/// A CSV's text after its leading `#` comment lines (a scenario file may start with some; tailpack's own
+/// `scenarios.csv` has none).
+fn without_comments(text: &str) -> &str {
+    let mut rest = text;
+    while rest.starts_with('#') {
+        rest = rest.split_once('\n').map_or("", |(_, r)| r);
+    }
+    rest
 }

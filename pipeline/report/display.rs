@@ -461,7 +461,7 @@ fn bounds(r: &RunResult, i: usize) -> String {
 /// Most rows of the "Weights by asset" table: a universe of thousands of assets (a scenario file's) would
 /// fill dozens of pages, mostly with zero weights, so beyond this the table lists the assets with the
 /// largest weight in any portfolio shown and says how many it leaves out (weights.csv lists every one).
-pub const MAX_ASSET_ROWS: usize = 60;
+pub const MAX_ASSET_ROWS: usize = 250;
 
 /// The assets the table lists, in universe order: all of them, or the [`MAX_ASSET_ROWS`] with the largest
 /// weight in any model's portfolio (ties by the weight in any portfolio shown, then the earlier asset).
