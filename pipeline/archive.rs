@@ -119,6 +119,7 @@ fn archive_input(cfg: &Config, kind: Input, as_of: NaiveDate) -> Result<Vec<Arch
         | Input::Assets
         | Input::Holdings
         | Input::Fx
+        | Input::Scenarios
         | Input::Stress => {
             let Some(p) = cfg.input(kind) else {
                 return Ok(vec![]);

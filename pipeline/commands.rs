@@ -447,11 +447,24 @@ fn check_fund(cfg: crate::config::Config) -> Result<String> {
     // `run` reads the template folder when it plans the pack, before its first LP.
     crate::report::templates::custom(cfg)?;
     let q = &data.quality;
+    if cfg.prices.is_none() {
+        return Ok(format!(
+            "fund {}: config {} is valid\nno price file; as-of {}; {} scenarios of {} assets from the scenario file {}\nfeasible set: {} assets, {} group limit(s) resolved\n",
+            cfg.short_name,
+            cfg.path.display(),
+            data.as_of,
+            prepared.scenarios.len(),
+            data.assets.len(),
+            cfg.scenario_name.as_deref().unwrap_or(""),
+            data.assets.len(),
+            prepared.feasible.groups.len()
+        ));
+    }
     let mut out = format!(
         "fund {}: config {} is valid\nprices {} ({} layout): {} to {}; as-of {}; scenario window {} to {} ({} observations)\nfill policy: {}\n",
         cfg.short_name,
         cfg.path.display(),
-        cfg.prices.display(),
+        cfg.price_file().display(),
         data.layout.word(),
         data.history.0,
         data.history.1,
@@ -518,4 +531,16 @@ pub fn timings(wall: Duration) -> String {
 pub fn bench(opts: &crate::bench::BenchOptions) -> Result<String> {
     crate::bench::run(opts, &mut std::io::stdout())?;
     Ok(String::new())
+}
+
+/// `demo-scenarios`: an invented simulated scenario file of `assets` × `scenarios` with its asset and
+/// holdings files ([`crate::demo_scenarios`]).
+pub fn demo_scenarios(dir: &std::path::Path, assets: usize, scenarios: usize) -> Result<String> {
+    let w = crate::demo_scenarios::write(dir, assets, scenarios)?;
+    Ok(format!(
+        "wrote an invented simulated scenario file of {} scenarios × {} assets (scenarios.csv, assets.csv, holdings.csv) to {}\n",
+        w.scenarios,
+        w.assets,
+        dir.display()
+    ))
 }

@@ -232,8 +232,8 @@ pub struct Config {
     pub short_name: String,
     /// The as-of date asked for (`--as-of`); without one, the latest month-end in the data.
     pub as_of: Option<NaiveDate>,
-    /// The price file ([`Input::Prices`]).
-    pub prices: PathBuf,
+    /// The price file ([`Input::Prices`]); only with a scenario file may it be left out.
+    pub prices: Option<PathBuf>,
     pub layout: Layout,
     /// The asset metadata file ([`Input::Assets`]).
     pub assets: PathBuf,
@@ -243,6 +243,12 @@ pub struct Config {
     pub fx: Option<PathBuf>,
     /// Price-file columns the fund leaves out (`data.skip_columns`): removed right after the file is read.
     pub skip_columns: Vec<String>,
+    /// The scenario file ([`Input::Scenarios`]): when set, the models' scenarios come from it instead of
+    /// the price history.
+    pub scenario_file: Option<PathBuf>,
+    /// The scenario file's name as the config writes it (results.json and the PDF name it so: a re-run
+    /// reads the archived copy, which has another name).
+    pub scenario_name: Option<String>,
     /// The currency settings: base currency, hedge ratios, rate differentials.
     pub currency: Currency,
     pub quality: QualityOptions,
@@ -288,14 +294,23 @@ pub struct Config {
 }
 
 impl Config {
+    /// The price file, on the paths that read prices (every run without a scenario file has one:
+    /// resolution requires it).
+    pub fn price_file(&self) -> &Path {
+        self.prices
+            .as_deref()
+            .expect("a price file: required without data.scenarios")
+    }
+
     /// Where this config reads an input from (none for an input it does not name, or the run record).
     pub fn input(&self, kind: Input) -> Option<&Path> {
         match kind {
             Input::Config => Some(&self.path),
-            Input::Prices => Some(&self.prices),
+            Input::Prices => self.prices.as_deref(),
             Input::Assets => Some(&self.assets),
             Input::Holdings => self.holdings.as_deref(),
             Input::Fx => self.fx.as_deref(),
+            Input::Scenarios => self.scenario_file.as_deref(),
             Input::Stress => self.stress_file.as_deref(),
             Input::Templates => self.templates.as_deref(),
             Input::Run => None,

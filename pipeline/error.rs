@@ -193,6 +193,11 @@ pub mod fs {
         }
     }
 
+    /// Opens a file for reading (streamed readers).
+    pub fn open(path: &Path) -> Result<std::fs::File> {
+        std::fs::File::open(path).map_err(io("cannot read", path))
+    }
+
     /// Reads a whole file into bytes.
     pub fn read(path: &Path) -> Result<Vec<u8>> {
         std::fs::read(path).map_err(io("cannot read", path))

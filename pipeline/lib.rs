@@ -22,7 +22,7 @@
 //!
 //! Cross-cutting: [`error`] (typed errors, exit codes, path-naming file helpers), [`diag`] (findings that
 //! travel with results), [`csv_out`] (RFC 4180 quoting of every CSV written), [`demo`] (the deterministic
-//! generator of the invented demo data), [`random`] (the seeded random-number generator every random stream
+//! generator of the invented demo data), [`demo_scenarios`] (invented simulated scenario files of any size), [`random`] (the seeded random-number generator every random stream
 //! uses), [`timings`] (time per stage, peak memory). A stage imports only
 //! the stages above it and these; the suite's `layers` test holds every file to that.
 
@@ -33,6 +33,7 @@ pub mod commands;
 pub mod config;
 pub mod csv_out;
 pub mod demo;
+pub mod demo_scenarios;
 pub mod diag;
 pub mod error;
 pub mod ingest;

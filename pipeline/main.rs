@@ -170,6 +170,18 @@ enum Command {
         /// Target folder, e.g. config-demo/data.
         dir: PathBuf,
     },
+    /// Write an invented simulated scenario file (scenarios.csv, with assets.csv and holdings.csv) into a
+    /// folder: deterministic, for `data.scenarios` demos and measurements at scale.
+    DemoScenarios {
+        /// Target folder, e.g. config-demo/simulated.
+        dir: PathBuf,
+        /// Number of assets (columns).
+        #[arg(long, default_value_t = 50)]
+        assets: usize,
+        /// Number of scenarios (rows).
+        #[arg(long, default_value_t = 5000)]
+        scenarios: usize,
+    },
     /// Internal: typesets one PDF from a prepared file set on stdin, under the given limits.
     #[command(name = "typeset-child", hide = true)]
     TypesetChild {
@@ -225,6 +237,11 @@ fn main() {
         )
         .map(|t| (t, 0)),
         Command::DemoData { dir } => tailpack::commands::demo_data(dir).map(|t| (t, 0)),
+        Command::DemoScenarios {
+            dir,
+            assets,
+            scenarios,
+        } => tailpack::commands::demo_scenarios(dir, *assets, *scenarios).map(|t| (t, 0)),
         Command::TypesetChild { .. } => unreachable!("handled above"),
     };
     match result {

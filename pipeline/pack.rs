@@ -250,6 +250,44 @@ fn trades_part(r: &RunResult) -> Option<BTreeMap<String, results::PerAsset>> {
     Some(trades)
 }
 
+/// Where the scenarios came from: `price_history`, or the scenario file as the config names it with the
+/// archived copy's name and SHA-256.
+fn scenario_source(r: &RunResult, inputs: &[crate::archive::InputFile]) -> results::ScenarioSource {
+    if !r.scenarios.from_file() {
+        return results::ScenarioSource {
+            kind: "price_history".into(),
+            file: None,
+            archived: None,
+            sha256: None,
+            not_run: None,
+        };
+    }
+    let role = crate::config::Input::Scenarios.role();
+    let archived = inputs.iter().find(|i| i.role == role);
+    results::ScenarioSource {
+        kind: "file".into(),
+        file: r.config.scenario_name.clone(),
+        archived: archived.map(|i| i.path.clone()),
+        sha256: archived.map(|i| i.sha256.clone()),
+        not_run: Some(
+            skipped_without_history(r)
+                .iter()
+                .map(|w| (*w).to_string())
+                .collect(),
+        ),
+    }
+}
+
+/// What needs the price history and is not run on a scenario file's scenarios (results.json and the
+/// checks name it).
+pub fn skipped_without_history(r: &RunResult) -> Vec<&'static str> {
+    crate::analysis::NEEDS_HISTORY
+        .iter()
+        .filter(|(_, runs_with_prices)| !runs_with_prices || r.data.full_dates.is_empty())
+        .map(|(what, _)| *what)
+        .collect()
+}
+
 /// The full `results.json` document, as its types ([`results::Results`]) serialise it (object keys
 /// sorted).
 pub fn results_json(r: &RunResult, inputs: &[crate::archive::InputFile], pack_id: &str) -> Value {
@@ -291,7 +329,7 @@ fn results(r: &RunResult, inputs: &[crate::archive::InputFile], pack_id: &str) -
             .map(|m| (m.name.to_string(), model_part(r, m)))
             .collect(),
         current: r.current.as_ref().map(|pr| risk_part(r, pr)),
-        scenarios: scenarios_part(r),
+        scenarios: scenarios_part(r, inputs),
         data_quality: r.data.quality.clone(),
         valuation: r.data.valuation.clone(),
         history: results::History {
@@ -316,7 +354,7 @@ fn results(r: &RunResult, inputs: &[crate::archive::InputFile], pack_id: &str) -
     }
 }
 
-fn scenarios_part(r: &RunResult) -> results::Scenarios {
+fn scenarios_part(r: &RunResult, inputs: &[crate::archive::InputFile]) -> results::Scenarios {
     let s = &r.scenarios;
     let date = |d: Option<&chrono::NaiveDate>| d.map(|d| d.to_string());
     results::Scenarios {
@@ -329,6 +367,7 @@ fn scenarios_part(r: &RunResult) -> results::Scenarios {
         half_life: r.config.scenarios.half_life,
         lookback_years: r.config.scenarios.lookback_years,
         frequency: r.data.frequency,
+        source: scenario_source(r, inputs),
     }
 }
 
@@ -914,13 +953,15 @@ pub fn outputs(r: &RunResult, plan: &crate::archive::Plan) -> Result<Outputs> {
     let (mut files, results) = timings::time("writing", || {
         let results = results_json(r, &inputs, id);
         let json = serde_json::to_string_pretty(&results).expect("results serialise") + "\n";
-        let files = vec![
-            ("scenarios.csv", scenarios_csv(r).into_bytes()),
-            ("weights.csv", weights_csv(r).into_bytes()),
-            ("results.json", json.into_bytes()),
-        ];
-        let mut files = files;
-        if let Some(csv) = reference_scenarios_csv(r) {
+        let mut files = vec![];
+        // Scenarios from a scenario file are in the pack as that file, archived under inputs/: not
+        // written again (200 million cells would be gigabytes of text).
+        if !r.scenarios.from_file() {
+            files.push(("scenarios.csv", scenarios_csv(r).into_bytes()));
+        }
+        files.push(("weights.csv", weights_csv(r).into_bytes()));
+        files.push(("results.json", json.into_bytes()));
+        if let Some(csv) = reference_scenarios_csv(r).filter(|_| !r.scenarios.from_file()) {
             files.push(("reference-scenarios.csv", csv.into_bytes()));
         }
         (files, results)

@@ -23,7 +23,7 @@ fn usable_returns(cfg: &Config, set: &ScenarioSet) -> Result<()> {
         return Ok(());
     };
     Err(Error::data(
-        &cfg.prices,
+        cfg.price_file(),
         format!(
             "column `{}`: the return over scenario {} (prices dated {} and {}) is {r:e}, beyond ±{:e}; the prices on those dates are not a usable price series: check those cells",
             set.assets[i],
@@ -139,10 +139,7 @@ pub fn prepare_fund(cfg: Config) -> Result<Prepared> {
 
 /// The checks after ingest: scenarios, the feasible set, the stress shocks against the data.
 pub fn validate(cfg: Config, data: MarketData) -> Result<Prepared> {
-    let scenarios = crate::timings::time("scenarios", || scenarios::build(&data, &cfg.scenarios))?;
-    usable_returns(&cfg, &scenarios)?;
-    let reference = scenarios::reference(&data, &cfg.scenarios)?;
-    usable_returns(&cfg, &reference)?;
+    let (scenarios, reference) = crate::timings::time("scenarios", || scenario_sets(&cfg, &data))?;
     let policy_members = models::policy_lines(&cfg, &data)?;
     let feasible = models::feasible_set(&cfg, &data)?;
     let shocks = match (&cfg.stress_file, &cfg.stress) {
@@ -158,6 +155,52 @@ pub fn validate(cfg: Config, data: MarketData) -> Result<Prepared> {
         reference,
         policy_members,
     })
+}
+
+/// The universe's and the reference series' scenario sets: read from the scenario file when the config
+/// names one (ingest checked every cell), else cut from the price history and checked here.
+fn scenario_sets(cfg: &Config, data: &MarketData) -> Result<(ScenarioSet, ScenarioSet)> {
+    if let Some(path) = &cfg.scenario_file {
+        let table = ingest::scenario_file::read(path, &wanted(cfg, data))?;
+        return Ok(scenarios::from_file(
+            table,
+            &data.assets,
+            &data.reference,
+            &cfg.scenarios,
+        ));
+    }
+    let scenarios = scenarios::build(data, &cfg.scenarios)?;
+    usable_returns(cfg, &scenarios)?;
+    let reference = scenarios::reference(data, &cfg.scenarios)?;
+    usable_returns(cfg, &reference)?;
+    Ok((scenarios, reference))
+}
+
+/// The columns a scenario file must have: the universe, the non-investable series, and the asset file's
+/// assets the price fill policy dropped (their columns are passed over).
+fn wanted<'a>(cfg: &'a Config, data: &'a MarketData) -> ingest::scenario_file::Wanted<'a> {
+    ingest::scenario_file::Wanted {
+        assets: &data.assets,
+        reference: &data.reference,
+        other_assets: &data.dropped_assets,
+        asset_file: &cfg.assets,
+        min_scenarios: min_scenarios(cfg),
+    }
+}
+
+/// A scenario file needs at least [`ingest::MIN_SCENARIOS`] scenarios, and at every reported level at
+/// least one scenario's worth of probability beyond the quantile (S·(1 − α) ≥ 1 with equal
+/// probabilities), or VaR and CVaR at that level are both the single worst scenario.
+fn min_scenarios(cfg: &Config) -> (usize, String) {
+    let top = cfg.levels.iter().copied().fold(cfg.confidence, f64::max);
+    let needed = ((1.0 / (1.0 - top)) - 1e-9).ceil() as usize;
+    (
+        needed.max(ingest::MIN_SCENARIOS),
+        format!(
+            "{} at least, and 1/(1 − α) for the highest level α = {top} of risk.confidence and risk.levels, so that the tail beyond VaR holds at least one scenario",
+            ingest::MIN_SCENARIOS
+        ),
+    )
 }
 
 /// Checks and solves everything for loaded data ([`validate`], then [`solve`]).
@@ -236,7 +279,7 @@ pub fn solve_after(
     );
     let checks = run_checks(
         &cfg,
-        &data,
+        (&data, &set),
         &solved,
         &analysis,
         (policy.as_ref(), liabilities.as_ref()),
@@ -267,7 +310,7 @@ pub fn solve_after(
 /// active-CVaR budget, the earlier packs.
 fn run_checks(
     cfg: &Config,
-    data: &MarketData,
+    (data, set): (&MarketData, &ScenarioSet),
     solved: &Solved,
     analysis: &crate::analysis::Analysis,
     (policy, liabilities): (
@@ -277,6 +320,7 @@ fn run_checks(
     past: &crate::analysis::change::Past,
 ) -> Vec<Check> {
     let mut checks = data.quality.findings.clone();
+    checks.extend(source_check(cfg, set));
     checks.extend(model_checks(&solved.preconditions, &solved.reports, cfg));
     checks.extend(crate::analysis::checks(analysis, cfg));
     checks.extend(crate::analysis::policy::checks(policy));
@@ -284,6 +328,40 @@ fn run_checks(
     checks.extend(crate::analysis::change::checks(past));
     checks.extend(crate::analysis::liabilities::checks(liabilities, cfg));
     checks
+}
+
+/// With a scenario file, where the scenarios come from and what needs the price history (skipped, or
+/// run on the prices given beside the file).
+fn source_check(cfg: &Config, set: &ScenarioSet) -> Option<Check> {
+    if !set.from_file() {
+        return None;
+    }
+    let prices = cfg.prices.is_some();
+    let (never, with_prices): (Vec<_>, Vec<_>) = crate::analysis::NEEDS_HISTORY
+        .iter()
+        .partition(|(_, runs)| !runs);
+    let names = |v: &[&(&str, bool)]| v.iter().map(|(w, _)| *w).collect::<Vec<_>>().join(", ");
+    Some(Check::pass(
+        "scenarios.source",
+        format!(
+            "{} scenarios of {} assets from the scenario file {} (data.scenarios), {}; not run on them: {}; {}: {}",
+            set.len(),
+            set.width(),
+            cfg.scenario_name.as_deref().unwrap_or(""),
+            if set.equal_probabilities {
+                "equal probabilities"
+            } else {
+                "probabilities from the file"
+            },
+            names(&never),
+            if prices {
+                "from the price file"
+            } else {
+                "not run either without a price file (data.prices)"
+            },
+            names(&with_prices)
+        ),
+    ))
 }
 
 /// The policy benchmark's return per scenario with the active-CVaR budget, when the policy sets one

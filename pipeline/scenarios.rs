@@ -4,6 +4,9 @@
 //! (historical simulation). Windows are anchored at the last observation (as-of) and step back by `step`,
 //! so the newest scenario always ends at as-of. Probabilities are equal, or decay exponentially with age:
 //! p_k ∝ 2^(−age_k / half_life), age in observations between the window's end and as-of.
+//!
+//! With a scenario file (`data.scenarios`) the set is the file's matrix as ingest laid it out ([`from_file`]):
+//! rows are the file's scenarios with their labels and probabilities, taken over without a copy.
 
 use crate::config::ScenarioOptions;
 use crate::error::{Error, Result};
@@ -25,8 +28,11 @@ pub const MAX_ABS_RETURN: f64 = 1e6;
 #[derive(Debug, Clone)]
 pub struct ScenarioSet {
     pub assets: Vec<String>,
+    /// Window start and end of every scenario cut from prices; empty for a scenario file's set.
     pub starts: Vec<NaiveDate>,
     pub ends: Vec<NaiveDate>,
+    /// The scenario file's label of every row; empty for windows cut from prices.
+    pub labels: Vec<String>,
     pub returns: Vec<f64>,
     pub probabilities: Vec<f64>,
     pub equal_probabilities: bool,
@@ -56,9 +62,17 @@ impl ScenarioSet {
         &self.returns[k * n..(k + 1) * n]
     }
 
-    /// Label of scenario k: `start/end`.
+    /// Label of scenario k: `start/end`, or the scenario file's label.
     pub fn label(&self, k: usize) -> String {
-        format!("{}/{}", self.starts[k], self.ends[k])
+        match self.labels.get(k) {
+            Some(l) => l.clone(),
+            None => format!("{}/{}", self.starts[k], self.ends[k]),
+        }
+    }
+
+    /// Whether the scenarios come from a scenario file rather than the price history.
+    pub fn from_file(&self) -> bool {
+        !self.labels.is_empty()
     }
 
     /// The first return (scenario, asset, value) that is not finite or exceeds [`MAX_ABS_RETURN`] in
@@ -150,6 +164,7 @@ impl ScenarioSet {
             assets,
             starts: vec![day; s],
             ends: vec![day; s],
+            labels: vec![],
             returns,
             probabilities,
             equal_probabilities: equal,
@@ -194,12 +209,48 @@ pub fn from_prices(
         assets: assets.to_vec(),
         starts: ends.iter().map(|&e| dates[e - h]).collect(),
         ends: ends.iter().map(|&e| dates[e]).collect(),
+        labels: vec![],
         returns,
         probabilities,
         equal_probabilities: opts.half_life.is_none(),
         horizon: h,
         step: opts.step,
     })
+}
+
+/// The universe's and the reference series' scenario sets from a scenario file as ingest read it: the
+/// matrices are moved, not copied. Probabilities are the file's (normalised by ingest) or equal; horizon
+/// and step are the config's (`scenarios.horizon` says what horizon the file's returns are over).
+pub fn from_file(
+    table: crate::ingest::scenario_file::ScenarioTable,
+    assets: &[String],
+    reference: &[String],
+    opts: &ScenarioOptions,
+) -> (ScenarioSet, ScenarioSet) {
+    let s = table.labels.len();
+    let equal = table.probabilities.is_none();
+    let probabilities = table
+        .probabilities
+        .unwrap_or_else(|| vec![1.0 / s as f64; s]);
+    let set = |names: &[String], returns: Vec<f64>, labels: Vec<String>, p: Vec<f64>| ScenarioSet {
+        assets: names.to_vec(),
+        starts: vec![],
+        ends: vec![],
+        labels,
+        returns,
+        probabilities: p,
+        equal_probabilities: equal,
+        horizon: opts.horizon,
+        step: opts.step,
+    };
+    let universe = set(
+        assets,
+        table.returns,
+        table.labels.clone(),
+        probabilities.clone(),
+    );
+    let refs = set(reference, table.reference, table.labels, probabilities);
+    (universe, refs)
 }
 
 /// Exponentially decaying weights p_k ∝ 2^(−age_k / half_life), normalised to sum to 1: the age-weighted

@@ -37,6 +37,17 @@ pub struct Analysis {
     pub currency: Option<Vec<currency::PortfolioCurrency>>,
 }
 
+/// What needs the price history when the scenarios come from a scenario file, and whether a price file
+/// given beside it runs the part (`true`) or not even then (`false`: the part re-estimates the scenarios
+/// from prices, which are not where the file's scenarios come from).
+pub const NEEDS_HISTORY: &[(&str, bool)] = &[
+    ("walk-forward backtest", false),
+    ("estimation-error bands", false),
+    ("currency split of CVaR", false),
+    ("historical stress windows", true),
+    ("data-quality report on prices", true),
+];
+
 /// Computes frontier, stress set, backtest and bands. `portfolios` are (name, weights) of current and each
 /// model with an optimum; `defined` are the stress file's shocks, resolved against the data before any LP
 /// (`run::prepare_fund`); `seed` seeds the bands' resamples ([`bands::seed_of`] the pack id).
@@ -71,7 +82,12 @@ pub fn analyse(
         .map(|(name, w)| stress::replay(name, w, &shocks, &classes, cfg.stress_loss_limit))
         .collect();
     timings::add("stress", stress_start.elapsed());
-    let backtest = timings::time("backtest", || backtest::run(cfg, data, fs));
+    // The backtest, the bands and the currency split re-estimate scenarios from prices: not for a
+    // scenario file's scenarios (NEEDS_HISTORY).
+    let history = !p.set.from_file();
+    let backtest = timings::time("backtest", || {
+        history.then(|| backtest::run(cfg, data, fs)).flatten()
+    });
     let points: Vec<Option<Vec<f64>>> = crate::models::Family::ALL
         .iter()
         .map(|f| {
@@ -81,8 +97,14 @@ pub fn analyse(
                 .map(|(_, w)| w.clone())
         })
         .collect();
-    let bands = timings::time("bands", || bands::run(cfg, data, p.set, fs, &points, seed));
-    let currency = currency::analyse(cfg, data, p.set, portfolios);
+    let bands = timings::time("bands", || {
+        history
+            .then(|| bands::run(cfg, data, p.set, fs, &points, seed))
+            .flatten()
+    });
+    let currency = history
+        .then(|| currency::analyse(cfg, data, p.set, portfolios))
+        .flatten();
     Analysis {
         frontier,
         shocks,

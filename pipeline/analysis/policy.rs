@@ -139,10 +139,16 @@ fn breaches(lines: &[Line], exposure: &[f64]) -> Vec<String> {
 
 /// The number of scenario horizons in a year: observations a year in the scenario window — (rows − 1)
 /// over the calendar years between its first and last date (365.25 days each) — divided by the horizon
-/// in observations. Tracking error is annualised by √ of this number (square-root-of-time rule).
+/// in observations. Tracking error is annualised by √ of this number (square-root-of-time rule). Without
+/// prices (a scenario file alone) the calendar gives it at a monthly or quarterly frequency (12 or 4
+/// observations a year); at a daily one it is unknown (NaN: nothing is annualised).
 pub fn horizons_per_year(data: &MarketData, horizon: usize) -> f64 {
     let (Some(first), Some(last)) = (data.dates.first(), data.dates.last()) else {
-        return f64::NAN;
+        return match data.frequency {
+            crate::config::Frequency::Monthly => 12.0 / horizon as f64,
+            crate::config::Frequency::Quarterly => 4.0 / horizon as f64,
+            crate::config::Frequency::Daily => f64::NAN,
+        };
     };
     let years = (*last - *first).num_days() as f64 / DAYS_PER_YEAR;
     (data.dates.len() - 1) as f64 / years / horizon as f64

@@ -53,13 +53,15 @@ fn past_of(root: &Path, history: Vec<Previous>) -> Past {
     let previous = history.last().cloned().map(|mut p| {
         if p.verified {
             let path = root.join(&p.folder);
+            // A pack whose scenarios came from a scenario file has them as that archived input.
             p.scenarios = std::fs::read_to_string(path.join("scenarios.csv"))
+                .or_else(|_| std::fs::read_to_string(path.join("inputs/scenarios.csv")))
                 .ok()
-                .and_then(|t| change::parse_scenarios(&t))
+                .and_then(|t| change::parse_scenarios(without_comments(&t)))
                 .map(|mut sc| {
                     sc.offsets = std::fs::read_to_string(path.join("reference-scenarios.csv"))
                         .ok()
-                        .and_then(|t| change::surplus_offsets(&p.results, &t))
+                        .and_then(|t| change::surplus_offsets(&p.results, without_comments(&t)))
                         .filter(|c| c.len() == sc.returns.len());
                     sc
                 });
@@ -139,4 +141,14 @@ pub fn recorded(pack: &Path, fund: &str) -> Past {
         })
         .collect();
     past_of(root, history)
+}
+
+/// A CSV's text after its leading `#` comment lines (a scenario file may start with some; tailpack's own
+/// `scenarios.csv` has none).
+fn without_comments(text: &str) -> &str {
+    let mut rest = text;
+    while rest.starts_with('#') {
+        rest = rest.split_once('\n').map_or("", |(_, r)| r);
+    }
+    rest
 }

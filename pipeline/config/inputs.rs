@@ -46,6 +46,9 @@ inputs! {
     /// The custom template folder (`report.templates`), listed by `report::templates::custom`; the archive
     /// holds the effective templates (built-in ones not replaced, plus the folder's files) even without it.
     Templates,
+    /// The scenario file (`data.scenarios`): joint scenarios from outside (an economic scenario generator,
+    /// a Monte Carlo engine) used instead of the price history's; read by `ingest::scenario_file`.
+    Scenarios,
     /// The run's own record (`run.json`: as-of, backend, fund, tool), written by `archive::plan` and read
     /// back by [`super::load_archived`].
     Run,
@@ -90,6 +93,7 @@ impl Input {
             Input::Fx => "fx",
             Input::Stress => "stress",
             Input::Templates => "template",
+            Input::Scenarios => "scenarios",
             Input::Run => "run",
         }
     }
@@ -104,6 +108,7 @@ impl Input {
             Input::Fx => Some("data.fx"),
             Input::Stress => Some("stress.file"),
             Input::Templates => Some("report.templates"),
+            Input::Scenarios => Some("data.scenarios"),
         }
     }
 
@@ -117,6 +122,7 @@ impl Input {
             | Input::Fx
             | Input::Stress
             | Input::Templates
+            | Input::Scenarios
             | Input::Run => None,
         }
     }
@@ -129,7 +135,8 @@ impl Input {
             | Input::Assets
             | Input::Holdings
             | Input::Fx
-            | Input::Stress => Form::File,
+            | Input::Stress
+            | Input::Scenarios => Form::File,
             Input::Templates => Form::Folder,
             Input::Run => Form::Generated,
         }
@@ -139,7 +146,7 @@ impl Input {
     pub const fn archived(self) -> Archived {
         match self {
             Input::Config => Archived::Named(CONFIG_COPY),
-            Input::Prices | Input::Assets | Input::Holdings | Input::Fx => {
+            Input::Prices | Input::Assets | Input::Holdings | Input::Fx | Input::Scenarios => {
                 Archived::RoleAndExtension
             }
             Input::Stress => Archived::Named("stress.yaml"),
@@ -223,6 +230,7 @@ pub fn raw_slot(kind: Input, raw: &mut RawConfig) -> Option<&mut Option<PathBuf>
         Input::Fx => Some(&mut raw.data.fx),
         Input::Stress => Some(&mut raw.stress.file),
         Input::Templates => Some(&mut raw.report.templates),
+        Input::Scenarios => Some(&mut raw.data.scenarios),
     }
 }
 
@@ -237,6 +245,7 @@ pub fn mandate_slot(kind: Input, m: &mut RawMandate) -> Option<&mut Option<PathB
         | Input::Fx
         | Input::Stress
         | Input::Templates
+        | Input::Scenarios
         | Input::Run => None,
     }
 }

@@ -146,6 +146,9 @@ pub struct RawData {
     /// Price-file columns this fund leaves out: not read into the run, not checked, not archived apart
     /// (the price file is archived whole). Each must be a column of the price file.
     pub skip_columns: Vec<String>,
+    /// A scenario file (CSV or Parquet: `scenario,[probability,]<asset>…`, one joint scenario of returns
+    /// over the horizon per row) used instead of scenarios cut from the price history.
+    pub scenarios: Option<PathBuf>,
 }
 
 /// Currency hedging: hedge ratios (0 to 1; an asset's own beats a tag's, a tag's beats its class's; 0

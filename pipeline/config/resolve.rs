@@ -118,7 +118,10 @@ pub(super) fn resolve_at(cx: &Context, mut raw: RawConfig) -> Result<Config> {
 /// Every required input is named.
 fn required_inputs(cx: &Context, raw: &mut RawConfig) -> Result<()> {
     for &kind in Input::ALL {
+        // With a scenario file the prices are optional (what needs them is then not run).
+        let optional = kind == Input::Prices && raw.data.scenarios.is_some();
         if let (Some(what), Some(key)) = (kind.required(), kind.key())
+            && !optional
             && raw_slot(kind, raw).is_none_or(|p| p.is_none())
         {
             return Err(cx.bad(key, format!("is required ({what})")));
@@ -250,12 +253,14 @@ fn assemble(
         },
         short_name,
         as_of: cx.overrides.as_of,
-        prices: input(Input::Prices).expect("checked to be named"),
+        prices: input(Input::Prices),
         layout: raw.data.layout,
         assets: input(Input::Assets).expect("checked to be named"),
         holdings: input(Input::Holdings),
         fx: input(Input::Fx),
         skip_columns: raw.data.skip_columns,
+        scenario_file: input(Input::Scenarios),
+        scenario_name: file_name(raw.data.scenarios.as_deref()),
         currency,
         quality: raw.quality,
         scenarios: raw.scenarios,

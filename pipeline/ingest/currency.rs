@@ -98,6 +98,19 @@ pub fn convert(cfg: &Config, data: &mut MarketData) -> Result<()> {
 }
 
 /// Without a rate file every asset must be in the base currency: the first foreign one is an error.
+/// Each asset's currency and hedge ratio without prices (a scenario file's run): what currency stress moves
+/// and exposures use; the file's returns are already in the base currency, so nothing is converted.
+pub fn without_prices(cfg: &Config, assets: &[String], meta: &[AssetMeta]) -> Result<Currencies> {
+    let of_asset = asset_currencies(cfg, meta)?;
+    let hedge = hedge_ratios(cfg, assets, meta, &of_asset)?;
+    Ok(Currencies {
+        base: cfg.currency.base.clone(),
+        of_asset,
+        hedge,
+        local_prices: vec![],
+    })
+}
+
 fn without_rates(cfg: &Config, data: &MarketData, of_asset: &[Option<String>]) -> Result<()> {
     match first_foreign(data, of_asset) {
         Some((a, c)) => Err(Error::config(

@@ -10,6 +10,7 @@ pub mod parquet_guard;
 pub mod prices;
 pub mod quality;
 pub mod reference;
+pub mod scenario_file;
 pub mod table;
 pub mod valuation;
 
@@ -51,6 +52,9 @@ pub struct MarketData {
     pub full_prices: Vec<Vec<f64>>,
     /// Metadata aligned with `assets`.
     pub meta: Vec<AssetMeta>,
+    /// Assets of the asset file the fill policy dropped (a scenario file's columns for them are passed
+    /// over).
+    pub dropped_assets: Vec<String>,
     /// Current holdings aligned with `assets`, if configured.
     pub holdings: Option<Vec<f64>>,
     pub quality: QualityReport,
@@ -69,8 +73,11 @@ pub struct MarketData {
 /// Reads, cuts at as-of, checks and fills. Blocking quality problems are returned as [`Error::Quality`].
 /// The as-of date is the config's (`--as-of`), else the latest month-end in the data.
 pub fn load(cfg: &Config) -> Result<MarketData> {
-    let table = table::read_table(&cfg.prices)?;
-    let mut hist = prices::from_table(&cfg.prices, &table, cfg.layout)?;
+    if cfg.prices.is_none() {
+        return without_prices(cfg);
+    }
+    let table = table::read_table(cfg.price_file())?;
+    let mut hist = prices::from_table(cfg.price_file(), &table, cfg.layout)?;
     let meta = meta::read_assets(&cfg.assets)?;
     skip_columns(cfg, &mut hist, &meta)?;
     reference::check_proxy(cfg, &hist, &meta)?;
@@ -80,7 +87,7 @@ pub fn load(cfg: &Config) -> Result<MarketData> {
     let mut findings: Vec<Check> = quality::sort_dates(&mut hist).into_iter().collect();
     let as_of = resolve_as_of(cfg, &hist, cfg.as_of)?;
     cut_after(&mut hist, as_of);
-    let file = cfg.prices.display().to_string();
+    let file = cfg.price_file().display().to_string();
     findings.extend(quality::duplicate_dates(&file, &hist));
     findings.extend(quality::non_positive(&file, &hist));
     findings.extend(quality::overflowing_range(&file, &hist));
@@ -106,6 +113,66 @@ pub fn load(cfg: &Config) -> Result<MarketData> {
     Ok(data)
 }
 
+/// The market data of a run whose scenarios come from a scenario file and that has no price file: the
+/// asset file's assets in its order, the holdings, no dates and no prices. The as-of date is the command
+/// line's (`--as-of`): without prices nothing else dates the run. The non-investable series (policy
+/// benchmarks, liability proxy) are the names the config gives that the asset file does not list; their
+/// returns come from the scenario file too. The file's returns are taken as base-currency returns (no
+/// exchange rates are applied to them).
+fn without_prices(cfg: &Config) -> Result<MarketData> {
+    let meta = meta::read_assets(&cfg.assets)?;
+    valuation::check_meta(cfg, &meta)?;
+    let as_of = cfg.as_of.ok_or_else(|| {
+        Error::config(
+            &cfg.path,
+            "data.scenarios without data.prices: give the as-of date with --as-of (there are no price dates to take it from)",
+        )
+    })?;
+    let assets: Vec<String> = meta.iter().map(|m| m.asset.clone()).collect();
+    if let Some(x) = cfg.exclude.iter().find(|x| !assets.contains(x)) {
+        return Err(Error::config(
+            &cfg.path,
+            format!("limits.exclude: unknown asset `{x}`"),
+        ));
+    }
+    let reference = reference::named_without_prices(cfg, &meta)?;
+    let holdings = match &cfg.holdings {
+        Some(p) => Some(meta::read_holdings(p, &assets)?),
+        None => None,
+    };
+    let n = assets.len();
+    let data = MarketData {
+        as_of,
+        history: (as_of, as_of),
+        dates: vec![],
+        reference_prices: vec![vec![]; reference.len()],
+        reference_full_prices: vec![vec![]; reference.len()],
+        reference,
+        prices: vec![vec![]; n],
+        full_dates: vec![],
+        full_prices: vec![vec![]; n],
+        dropped_assets: vec![],
+        holdings,
+        quality: QualityReport {
+            fill_policy: "no price file: the scenarios come from the scenario file".to_string(),
+            window_start: as_of,
+            window_end: as_of,
+            observations: 0,
+            assets: vec![],
+            reference_series: vec![],
+            findings: vec![],
+        },
+        layout: cfg.layout,
+        frequency: cfg.scenarios.frequency,
+        valuation: vec![],
+        currency: currency::without_prices(cfg, &assets, &meta)?,
+        meta,
+        assets,
+    };
+    check_bounds(cfg, &data)?;
+    Ok(data)
+}
+
 fn fails(findings: &[Check]) -> Vec<String> {
     findings
         .iter()
@@ -120,7 +187,10 @@ fn fails(findings: &[Check]) -> Vec<String> {
 fn skip_columns(cfg: &Config, hist: &mut PriceHistory, meta: &[AssetMeta]) -> Result<()> {
     for (j, c) in cfg.skip_columns.iter().enumerate() {
         let why = if !hist.assets.contains(c) {
-            format!("is not a column of the price file {}", cfg.prices.display())
+            format!(
+                "is not a column of the price file {}",
+                cfg.price_file().display()
+            )
         } else if let Some(m) = meta.iter().find(|m| &m.asset == c) {
             format!(
                 "is an asset of the universe ({} of {} lists it): remove its row there, or exclude it from the models with limits.exclude",
@@ -164,7 +234,7 @@ fn check_universe(cfg: &Config, hist: &PriceHistory, meta: &[AssetMeta]) -> Resu
             format!(
                 "column `asset`: has no row for asset `{}`, which is in the price file {}; every priced asset needs a row with at least its class (a benchmark series the policy names and the liability proxy need none; a column the fund does not use is left out with data.skip_columns)",
                 truncate(a, 40),
-                cfg.prices.display()
+                cfg.price_file().display()
             ),
         ));
     }
@@ -175,7 +245,7 @@ fn check_universe(cfg: &Config, hist: &PriceHistory, meta: &[AssetMeta]) -> Resu
                 "{}: lists asset `{}`, which has no prices in the price file {}; remove the row or add its prices",
                 m.place,
                 m.asset,
-                cfg.prices.display()
+                cfg.price_file().display()
             ),
         ));
     }
@@ -258,7 +328,7 @@ fn resolve_as_of(cfg: &Config, hist: &PriceHistory, given: Option<NaiveDate>) ->
             &cfg.path,
             format!(
                 "--as-of {d} is outside the price data, which runs from {first} to {last} ({}); give a date in that range or leave --as-of out for the latest month-end",
-                cfg.prices.display()
+                cfg.price_file().display()
             ),
         )),
         Some(d) => Ok(d),
@@ -337,6 +407,7 @@ fn build(
         findings,
     };
     let history = (hist.dates[0], *hist.dates.last().expect("non-empty"));
+    let dropped_assets = dropped(&quality.assets);
     Ok(MarketData {
         as_of,
         history,
@@ -349,6 +420,7 @@ fn build(
         full_dates: hist.dates,
         full_prices: filled.full,
         meta: filled.metas,
+        dropped_assets,
         holdings,
         quality,
         layout: hist.layout,
@@ -356,6 +428,15 @@ fn build(
         valuation: vec![],
         currency: currency::Currencies::default(),
     })
+}
+
+/// The assets the fill policy dropped, in price-file order.
+fn dropped(assets: &[quality::AssetQuality]) -> Vec<String> {
+    assets
+        .iter()
+        .filter(|q| q.dropped)
+        .map(|q| q.asset.clone())
+        .collect()
 }
 
 /// The first row of the scenario window (`scenarios.lookback_years` before as-of), with a warning when
@@ -435,8 +516,18 @@ fn window_findings(cfg: &Config, filled: &Kept, rows: usize) -> Vec<Check> {
         .cloned()
         .collect();
     let mut findings = quality::series_findings(&every, &cfg.quality);
+    if cfg.scenario_file.is_some() {
+        // The scenarios come from the scenario file: the window's length decides nothing.
+        if filled.assets.is_empty() {
+            findings.push(Check::fail(
+                "quality.no_assets",
+                "every asset was dropped by the fill policy; nothing to optimise",
+            ));
+        }
+        return findings;
+    }
     findings.push(window_check(
-        &cfg.prices.display().to_string(),
+        &cfg.price_file().display().to_string(),
         rows,
         cfg.scenarios.horizon,
         cfg.scenarios.step,

@@ -52,7 +52,7 @@ pub fn check_proxy(cfg: &Config, hist: &PriceHistory, meta: &[AssetMeta]) -> Res
     } else if !hist.assets.iter().any(|a| a == p) {
         format!(
             "is not a column of the price file {}; name the column of the series whose returns track the liabilities' value",
-            cfg.prices.display()
+            cfg.price_file().display()
         )
     } else {
         return Ok(());
@@ -61,6 +61,32 @@ pub fn check_proxy(cfg: &Config, hist: &PriceHistory, meta: &[AssetMeta]) -> Res
         &cfg.path,
         format!("liabilities.proxy: series `{p}` {why}"),
     ))
+}
+
+/// Without a price file (scenarios from a scenario file): the series the policy names and the liability
+/// proxy that the asset file does not list, each once, in the config's order; the liability proxy must
+/// not be an asset.
+pub fn named_without_prices(cfg: &Config, meta: &[AssetMeta]) -> Result<Vec<String>> {
+    let is_asset = |s: &str| meta.iter().find(|m| m.asset == s);
+    if let Some(p) = proxy(cfg)
+        && let Some(m) = is_asset(p)
+    {
+        return Err(Error::config(
+            &cfg.path,
+            format!(
+                "liabilities.proxy: series `{p}` is an asset of the universe ({} of {} lists it); the proxy tracks the liabilities' value and the fund cannot buy it: name a scenario-file column without an asset metadata row",
+                m.place,
+                cfg.assets.display()
+            ),
+        ));
+    }
+    let mut out: Vec<String> = vec![];
+    for s in named(cfg).into_iter().chain(proxy(cfg)) {
+        if is_asset(s).is_none() && !out.iter().any(|o| o == s) {
+            out.push(s.to_string());
+        }
+    }
+    Ok(out)
 }
 
 /// Every benchmark series the policy names is a column of the price file.
@@ -75,7 +101,7 @@ pub fn check_named(cfg: &Config, hist: &PriceHistory) -> Result<()> {
             format!(
                 "policy.lines `{}`: benchmark series `{s}` is not in the price file {} (neither an asset nor a series of its own); name a column of the price file",
                 line_of(cfg, s),
-                cfg.prices.display()
+                cfg.price_file().display()
             ),
         )),
     }
@@ -127,7 +153,7 @@ fn unfilled(cfg: &Config, hist: &PriceHistory, a: usize, full: &[f64], start: us
         )
     };
     Err(Error::data(
-        &cfg.prices,
+        cfg.price_file(),
         format!(
             "{}: benchmark series `{series}` of policy line `{}` has no price on {} ({why}); a benchmark series is never dropped: supply its prices from the start of the scenario window on, or raise quality.max_fill",
             hist.cell(a, r),
@@ -140,7 +166,7 @@ fn unfilled(cfg: &Config, hist: &PriceHistory, a: usize, full: &[f64], start: us
 /// The liability proxy has no price on window row `r`: like a benchmark series, it is never dropped.
 fn proxy_unfilled(cfg: &Config, hist: &PriceHistory, a: usize, r: usize) -> Error {
     Error::data(
-        &cfg.prices,
+        cfg.price_file(),
         format!(
             "{}: liability proxy `{}` (liabilities.proxy) has no price on {}; the proxy is never dropped: supply its prices from the start of the scenario window on (gaps of at most quality.max_fill = {} consecutive prices are filled)",
             hist.cell(a, r),

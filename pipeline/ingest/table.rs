@@ -330,6 +330,12 @@ fn split_fields(line: &str) -> (Vec<&str>, bool) {
 }
 
 fn parse_parquet(path: &Path, bytes: &[u8]) -> Result<TextTable> {
+    frame_to_text(path, &parquet_frame(path, bytes)?)
+}
+
+/// A Parquet file's contents as polars reads them, after [`super::parquet_guard::check`]; a damaged file
+/// is a data error naming it, never a panic.
+pub fn parquet_frame(path: &Path, bytes: &[u8]) -> Result<DataFrame> {
     let n = bytes.len();
     super::parquet_guard::check(path, bytes)?;
     let read = quiet_catch(|| ParquetReader::new(std::io::Cursor::new(bytes)).finish());
@@ -350,7 +356,7 @@ fn parse_parquet(path: &Path, bytes: &[u8]) -> Result<TextTable> {
             ));
         }
     };
-    frame_to_text(path, &df)
+    Ok(df)
 }
 
 /// Readers inside [`quiet_catch`] now; while any are, a panic prints nothing.

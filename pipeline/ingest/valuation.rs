@@ -275,7 +275,7 @@ fn treat(
             "quality.unsmoothing",
             format!(
                 "{}: unsmoothing `{asset}` with ρ = {rho:.3} gives a return of −100% or below on {} (Geltner: R = (R* − ρ·R*₋₁)/(1 − ρ)), so no price index can be rebuilt; give a smaller ρ in scenarios.geltner_rho",
-                cfg.prices.display(),
+                cfg.price_file().display(),
                 data.full_dates[t]
             ),
         )
@@ -299,7 +299,7 @@ fn estimated_rho(cfg: &Config, fact: &AssetValuation) -> std::result::Result<f64
             "quality.unsmoothing",
             format!(
                 "{}: the estimated Geltner ρ of `{}` is {r1:.3} (standard error {:.3}, {} {} returns), above the {MAX_GELTNER_RHO} tailpack unsmooths with; give ρ in scenarios.geltner_rho.{} or check the series",
-                cfg.prices.display(),
+                cfg.price_file().display(),
                 fact.asset,
                 fact.standard_error.unwrap_or(0.0),
                 fact.returns,

@@ -302,6 +302,27 @@ pub struct Scenarios {
     pub lookback_years: u32,
     /// The observations scenarios are built on.
     pub frequency: crate::config::Frequency,
+    /// Where the scenarios came from.
+    pub source: ScenarioSource,
+}
+
+/// Where the scenarios came from: the price history, or a scenario file (`data.scenarios`).
+#[derive(Serialize, JsonSchema)]
+pub struct ScenarioSource {
+    /// `price_history`, or `file`.
+    pub kind: String,
+    /// The scenario file as the config names it (`file` only).
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub file: Option<String>,
+    /// The archived copy's path in the pack (`file` only).
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub archived: Option<String>,
+    /// The archived copy's SHA-256, hex (`file` only).
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub sha256: Option<String>,
+    /// What needs the price history and was not run on the file's scenarios (`file` only).
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub not_run: Option<Vec<String>>,
 }
 
 /// The price history read.

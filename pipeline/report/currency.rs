@@ -48,6 +48,12 @@ pub struct CurrencyRow {
 
 /// The currency parts, or why there are none.
 pub fn show(r: &RunResult, shown: &[Portfolio]) -> Result<CurrencyShow, String> {
+    if r.scenarios.from_file() {
+        return Err(super::text::from_file_absent(
+            r,
+            "The currency split of CVaR",
+        ));
+    }
     let (Some(rows), Some(base)) = (&r.analysis.currency, &r.config.currency.base) else {
         return Err("Every asset is priced in the fund's base currency, so there is no currency exposure to show.".into());
     };

@@ -29,6 +29,9 @@ pub struct Report {
     pub summary: Vec<String>,
     pub classes: Vec<ClassRow>,
     pub assets: Vec<AssetRow>,
+    /// With a universe larger than [`MAX_ASSET_ROWS`]: the sentence saying which assets the table leaves
+    /// out (`null` when every asset is listed).
+    pub assets_left_out: Option<String>,
     pub groups: Vec<GroupRow>,
     pub limits: Vec<Pair>,
     pub contributors: Vec<Contributor>,
@@ -100,6 +103,8 @@ pub struct Meta {
     pub basis_note: &'static str,
     /// Whether the models work on the surplus loss (`risk.basis: surplus`).
     pub surplus: bool,
+    /// The scenario file's name when the scenarios come from one (`data.scenarios`), else `null`.
+    pub scenario_file: Option<String>,
 }
 
 /// One portfolio's line in the summary and tail tables.
@@ -262,6 +267,7 @@ pub fn build(r: &RunResult, shown: &[Portfolio], results: &Value, pack_id: &str)
         ),
         classes: classes(r, shown),
         assets: assets(r, shown),
+        assets_left_out: assets_left_out(r, shown),
         groups: groups(r, shown),
         limits: limits(r),
         contributors: contributors(r, shown, 10),
@@ -329,6 +335,10 @@ fn meta(r: &RunResult, results: &Value, pack_id: &str) -> Meta {
         step: r.scenarios.step,
         assets: format::count(r.data.assets.len()),
         scenarios: format::count(r.scenarios.len()),
+        scenario_file: r
+            .scenarios
+            .from_file()
+            .then(|| r.config.scenario_name.clone().unwrap_or_default()),
         var_word: surplus_word(c.basis, "VaR", "Surplus VaR"),
         cvar_word: surplus_word(c.basis, "CVaR", "Surplus CVaR"),
         basis_note: surplus_word(c.basis, "", SURPLUS_NOTE),
@@ -474,11 +484,64 @@ fn bounds(r: &RunResult, i: usize) -> String {
     )
 }
 
+/// Most rows of the "Weights by asset" table: a universe of thousands of assets (a scenario file's) would
+/// fill dozens of pages, mostly with zero weights, so beyond this the table lists the assets with the
+/// largest weight in any portfolio shown and says how many it leaves out (weights.csv lists every one).
+pub const MAX_ASSET_ROWS: usize = 250;
+
+/// The assets the table lists, in universe order: all of them, or the [`MAX_ASSET_ROWS`] with the largest
+/// weight in any model's portfolio (ties by the weight in any portfolio shown, then the earlier asset).
+fn listed_assets(r: &RunResult, shown: &[Portfolio]) -> Vec<usize> {
+    let n = r.data.assets.len();
+    if n <= MAX_ASSET_ROWS {
+        return (0..n).collect();
+    }
+    // The models' weights first (the candidates are what the committee decides on), then any portfolio's.
+    let largest = |i: usize, models_only: bool| {
+        shown
+            .iter()
+            .filter(|v| !models_only || v.model.is_some())
+            .filter_map(|v| v.weights)
+            .map(|w| w[i])
+            .fold(0.0, f64::max)
+    };
+    let mut order: Vec<(usize, f64, f64)> = (0..n)
+        .map(|i| (i, largest(i, true), largest(i, false)))
+        .collect();
+    order.sort_by(|a, b| {
+        b.1.total_cmp(&a.1)
+            .then(b.2.total_cmp(&a.2))
+            .then(a.0.cmp(&b.0))
+    });
+    let mut keep: Vec<usize> = order[..MAX_ASSET_ROWS].iter().map(|(i, ..)| *i).collect();
+    keep.sort_unstable();
+    keep
+}
+
+/// What the "Weights by asset" table leaves out, when it leaves any out.
+fn assets_left_out(r: &RunResult, shown: &[Portfolio]) -> Option<String> {
+    let n = r.data.assets.len();
+    if n <= MAX_ASSET_ROWS {
+        return None;
+    }
+    let listed = listed_assets(r, shown);
+    let below = (0..n)
+        .filter(|i| !listed.contains(i))
+        .flat_map(|i| shown.iter().filter_map(|v| v.weights).map(move |w| w[i]))
+        .fold(0.0, f64::max);
+    Some(format!(
+        "The table lists the {} assets with the largest weight in any candidate portfolio, of {} in the universe; each of the other {} weighs at most {} in every portfolio shown. weights.csv in the pack lists every asset.",
+        format::count(MAX_ASSET_ROWS),
+        format::count(n),
+        format::count(n - MAX_ASSET_ROWS),
+        format::weight(below)
+    ))
+}
+
 fn assets(r: &RunResult, shown: &[Portfolio]) -> Vec<AssetRow> {
-    r.data
-        .assets
-        .iter()
-        .enumerate()
+    listed_assets(r, shown)
+        .into_iter()
+        .map(|i| (i, &r.data.assets[i]))
         .map(|(i, a)| AssetRow {
             asset: a.clone(),
             name: r.data.meta[i].name.clone(),
@@ -625,6 +688,27 @@ fn checks(r: &RunResult) -> Checks {
 
 fn scenarios(r: &RunResult) -> Vec<Pair> {
     let s = &r.scenarios;
+    if s.from_file() {
+        return vec![
+            pair("Scenarios", format::count(s.len())),
+            pair(
+                "Source",
+                format!(
+                    "scenario file {} (data.scenarios)",
+                    r.config.scenario_name.as_deref().unwrap_or("")
+                ),
+            ),
+            pair("Horizon", horizon_words(r)),
+            pair(
+                "Probabilities",
+                if s.equal_probabilities {
+                    "equal".to_string()
+                } else {
+                    "from the file".to_string()
+                },
+            ),
+        ];
+    }
     let probs = match r.config.scenarios.half_life {
         Some(h) if !s.equal_probabilities => {
             format!("decaying, half-life {} observations", format::number(h, 1))
@@ -652,6 +736,19 @@ fn scenarios(r: &RunResult) -> Vec<Pair> {
 }
 
 fn quality(r: &RunResult) -> Quality {
+    if r.config.prices.is_none() {
+        return Quality {
+            facts: vec![pair(
+                "Price history",
+                format!(
+                    "none (no data.prices): the scenarios come from the scenario file {}, so there is no data-quality report on prices",
+                    r.config.scenario_name.as_deref().unwrap_or("")
+                ),
+            )],
+            clean: String::new(),
+            rows: vec![],
+        };
+    }
     let q = &r.data.quality;
     let flagged: Vec<QualityRow> = q
         .assets

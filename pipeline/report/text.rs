@@ -58,12 +58,22 @@ pub fn summary(r: &RunResult, shown: &[Portfolio], no_change: Option<&str>) -> V
         crate::config::Basis::Assets => "the fraction of portfolio value lost over one horizon".to_string(),
         crate::config::Basis::Surplus => "those of the surplus (risk.basis: surplus): the fall in assets less liabilities over one horizon, as a fraction of the assets, and expected returns are expected surplus returns, the portfolio's less the liabilities' growth over the funded ratio".to_string(),
     };
-    let mut out = vec![format!(
-        "{} scenarios of {span} each, from {} to {}. VaR and CVaR at {c} are {measured}.",
-        format::count(r.scenarios.len()),
-        first_start(r),
-        last_end(r)
-    )];
+    let first = if r.scenarios.from_file() {
+        format!(
+            "{} joint scenarios of returns over {} each, from the scenario file {} (not from price history). VaR and CVaR at {c} are {measured}.",
+            format::count(r.scenarios.len()),
+            r.data.frequency.span(r.scenarios.horizon),
+            file_name(r)
+        )
+    } else {
+        format!(
+            "{} scenarios of {span} each, from {} to {}. VaR and CVaR at {c} are {measured}.",
+            format::count(r.scenarios.len()),
+            first_start(r),
+            last_end(r)
+        )
+    };
+    let mut out = vec![first];
     out.extend(money::absent_note(r));
     let current = shown
         .iter()
@@ -306,6 +316,20 @@ fn checks_point(r: &RunResult) -> String {
     )
 }
 
+/// The scenario file's name as the config writes it.
+fn file_name(r: &RunResult) -> &str {
+    r.config.scenario_name.as_deref().unwrap_or("")
+}
+
+/// Why a part that re-estimates scenarios from the price history is not in a pack whose scenarios come
+/// from a scenario file (`data.scenarios`).
+pub fn from_file_absent(r: &RunResult, part: &str) -> String {
+    format!(
+        "{part}: not run. The scenarios come from the scenario file {} (data.scenarios), and this part re-estimates scenarios from the price history, which is not where those scenarios come from.",
+        r.config.scenario_name.as_deref().unwrap_or("")
+    )
+}
+
 fn first_start(r: &RunResult) -> String {
     r.scenarios
         .starts
@@ -369,6 +393,16 @@ fn history(r: &RunResult, shown: &[Portfolio]) -> Caveat {
         .filter_map(|v| v.profile)
         .map(|p| p.worst_loss)
         .fold(f64::NAN, f64::max);
+    if r.scenarios.from_file() {
+        return caveat(
+            "Scenarios are a model's, not the future",
+            &format!(
+                "The scenarios are those of the scenario file {}, made by whatever model produced it; the pack's figures are only as good as that model. The largest loss of any portfolio in the pack over them is {}; larger losses are possible.",
+                file_name(r),
+                money::pct_and_amount(money::fund(r), worst, Style::Loss)
+            ),
+        );
+    }
     caveat(
         "History is not the future",
         &format!(
@@ -402,6 +436,15 @@ fn tail_count(r: &RunResult) -> Caveat {
     } else {
         "the probability-weighted worst"
     };
+    if s.from_file() {
+        return caveat(
+            "Few tail scenarios",
+            &format!(
+                "CVaR averages {weighting} scenarios only: {}; tail figures carry sampling error that shrinks only as the scenario file grows.",
+                levels.join(", ")
+            ),
+        );
+    }
     caveat(
         "Few tail scenarios",
         &format!(

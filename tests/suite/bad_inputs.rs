@@ -270,6 +270,21 @@ cases!(
     stress_fifty_megabyte_file,
     output_root_is_a_pack,
     output_root_inside_a_pack,
+    scenarios_missing_column,
+    scenarios_unknown_column,
+    scenarios_non_numeric,
+    scenarios_nan,
+    scenarios_infinite,
+    scenarios_total_loss,
+    scenarios_negative_probability,
+    scenarios_probabilities_not_one,
+    scenarios_duplicate_label,
+    scenarios_too_few,
+    scenarios_empty,
+    scenarios_header_only,
+    scenarios_short_row,
+    scenarios_parquet_wrong_types,
+    scenarios_without_prices_or_as_of,
 );
 
 #[test]
@@ -614,6 +629,32 @@ fn generate(what: &str, dir: &Path) -> Vec<String> {
                     ("AS03", Some(cols[2].clone()), None),
                 ],
             );
+            vec![]
+        }
+        "scenarios_parquet_wrong_types" => {
+            // The valid scenario file as Parquet, its AS02 returns replaced by true/false flags.
+            use polars::prelude::*;
+            let text = std::fs::read_to_string(corpus().join("_good/data/scenarios.csv")).unwrap();
+            let rows: Vec<Vec<&str>> = text
+                .lines()
+                .filter(|l| !l.starts_with('#'))
+                .skip(1)
+                .map(|l| l.split(',').collect())
+                .collect();
+            let col =
+                |c: usize| -> Vec<f64> { rows.iter().map(|r| r[c].parse().unwrap()).collect() };
+            let labels: Vec<String> = rows.iter().map(|r| r[0].to_string()).collect();
+            let flags: Vec<bool> = col(2).iter().map(|r| *r > 0.0).collect();
+            let mut df = DataFrame::new_infer_height(vec![
+                Column::new("scenario".into(), labels),
+                Column::new("AS01".into(), col(1)),
+                Column::new("AS02".into(), flags),
+                Column::new("AS03".into(), col(3)),
+            ])
+            .unwrap();
+            ParquetWriter::new(std::fs::File::create(dir.join("scenarios.parquet")).unwrap())
+                .finish(&mut df)
+                .unwrap();
             vec![]
         }
         "parquet_bad_date" => {

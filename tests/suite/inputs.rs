@@ -495,6 +495,7 @@ fn source_of(kind: Input) -> Option<&'static str> {
         Input::Fx => Some("data/rates.csv"),
         Input::Stress => Some("shocks/set.yaml"),
         Input::Templates => Some("tpl/summary.typ"),
+        Input::Scenarios => Some("data/simulated.csv"),
         Input::Run => None,
     }
 }
@@ -512,6 +513,7 @@ fn other_bytes(kind: Input, bytes: &[u8]) -> Vec<u8> {
         Input::Config | Input::Stress => text + "# the same, in other bytes\n",
         Input::Templates => text + "// the same, in other bytes\n",
         Input::Prices | Input::Assets | Input::Holdings | Input::Fx => quoted(&text),
+        Input::Scenarios => text.replacen("scenario", "\"scenario\"", 1),
         Input::Run => text.replace("\"highs\"", "\"clarabel\""),
     }
     .into_bytes()
@@ -528,7 +530,23 @@ fn every_input() -> super::common::Fixture {
             "analysis:\n  backtest_years: 0\n  daily_var_check: false\n  frontier_points: 3\nstress:\n  file: shocks/set.yaml\nreport:\n  templates: tpl\n",
         )
         .replace("  name: Test Fund (fictional)\n", "  name: Test Fund (fictional)\n  base_currency: XTS\n")
-        .replace("  holdings: data/holdings.csv\n", "  holdings: data/holdings.csv\n  fx: data/rates.csv\n"),
+        .replace("  holdings: data/holdings.csv\n", "  holdings: data/holdings.csv\n  fx: data/rates.csv\n  scenarios: data/simulated.csv\n"),
+    );
+    // 120 invented joint scenarios of the three assets (the models' scenarios come from them).
+    let rows: String = (0..120)
+        .map(|k| {
+            let x = k as f64;
+            format!(
+                "S{k},{:.5},{:.5},{:.5}\n",
+                0.004 + 0.03 * (x * 0.7).sin(),
+                0.002 + 0.01 * (x * 1.3).cos(),
+                0.003 + 0.02 * (x * 0.4).sin()
+            )
+        })
+        .collect();
+    f.write(
+        "data/simulated.csv",
+        &format!("scenario,AS01,AS02,AS03\n{rows}"),
     );
     // AS02 is priced in an invented currency at a constant rate of 2 (the returns do not change with it).
     f.write(

@@ -25,6 +25,7 @@ mod policy;
 mod properties;
 mod report;
 mod risk;
+mod scenario_file;
 mod schema;
 mod signoff;
 mod templates;

@@ -101,6 +101,12 @@ fn costs_phrase(r: &RunResult) -> String {
 /// The backtest's tables, or the sentence that says why there are none.
 pub fn show(r: &RunResult) -> Result<BacktestShow, String> {
     let years = r.config.analysis.backtest_years;
+    if r.scenarios.from_file() {
+        return Err(crate::report::text::from_file_absent(
+            r,
+            "The walk-forward backtest",
+        ));
+    }
     let b = r.analysis.backtest.as_ref().ok_or_else(|| if years == 0 {
         "The walk-forward backtest was not run: it is switched off in the config (analysis.backtest_years: 0). No out-of-sample evidence on the models is shown.".to_string()
     } else {

@@ -103,6 +103,12 @@ pub struct BandRow {
 
 /// The part, or the sentence saying why it is absent.
 pub fn show(r: &RunResult) -> Result<BandsShow, String> {
+    if r.scenarios.from_file() {
+        return Err(crate::report::text::from_file_absent(
+            r,
+            "The estimation-error bands",
+        ));
+    }
     let b = r.analysis.bands.as_ref().ok_or_else(|| {
         "The estimation-error bands are switched off for this run (analysis.band_resamples: 0), so the pack does not show how firm the candidate weights are.".to_string()
     })?;
