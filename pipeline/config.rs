@@ -34,7 +34,7 @@ pub use load::{load, load_all, load_archived, load_fund};
 pub use raw::*;
 pub use read::parse;
 pub use resolve::{resolve, resolve_with, slug};
-pub use stress::{MoveSpec, ShockSpec, StressFile, load_stress, parse_stress};
+pub use stress::{MoveSpec, ShockSpec, StressFile, load_stress, parse_stress, tag_holds};
 pub use yaml::{MAX_FILE_BYTES, MAX_NAME_CHARS, MAX_PARAGRAPH_CHARS, MAX_PATH_BYTES};
 
 /// Command-line settings that replace the config's own, applied while the config is resolved.

@@ -374,12 +374,7 @@ fn scenarios_part(r: &RunResult, inputs: &[crate::archive::InputFile]) -> result
 /// The change since the fund's previous pack ([`crate::analysis::change::section`]), compared with this
 /// pack's own results as written.
 fn change_json(r: &RunResult, results: &Value) -> Value {
-    let offsets = match r.config.basis {
-        crate::config::Basis::Surplus => {
-            crate::analysis::liabilities::offsets(&r.config, &r.reference)
-        }
-        crate::config::Basis::Assets => None,
-    };
+    let offsets = crate::analysis::liabilities::basis_offsets(&r.config, &r.reference);
     let now = crate::analysis::change::Now {
         set: &r.scenarios,
         offsets: offsets.as_deref(),

@@ -245,11 +245,16 @@ pub fn basis_set(
     set: &ScenarioSet,
     reference: &ScenarioSet,
 ) -> Option<(ScenarioSet, Vec<f64>)> {
-    if cfg.basis != Basis::Surplus {
-        return None;
-    }
-    let c = offsets(cfg, reference)?;
+    let c = basis_offsets(cfg, reference)?;
     Some((set.less_per_scenario(&c), c))
+}
+
+/// The offsets ℓ_k / F of [`offsets`] on the surplus basis; `None` on the assets' basis.
+pub fn basis_offsets(cfg: &Config, reference: &ScenarioSet) -> Option<Vec<f64>> {
+    match cfg.basis {
+        Basis::Surplus => offsets(cfg, reference),
+        Basis::Assets => None,
+    }
 }
 
 /// A benchmark's returns moved onto the surplus basis: b_k − c_k, so that the active loss

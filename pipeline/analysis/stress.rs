@@ -107,14 +107,8 @@ fn check_moves(
                 )));
             }
         } else if let Some(t) = &m.tag {
-            let (col, val) = t.split_once(':').expect("checked when loading");
             let proxy_has = liabilities.is_some_and(|l| l.has_tag(t));
-            if !proxy_has
-                && !data.meta.iter().any(|am| {
-                    am.tag(&col.trim().to_ascii_lowercase())
-                        .is_some_and(|v| v.eq_ignore_ascii_case(val.trim()))
-                })
-            {
+            if !proxy_has && !data.meta.iter().any(|am| am.has_tag(t)) {
                 return Err(err(format!(
                     "tag `{t}` matches no asset{}",
                     if liabilities.is_some() {
@@ -143,7 +137,7 @@ fn shock_returns(s: &ShockSpec, data: &MarketData) -> (Vec<f64>, Vec<String>) {
             s.moves.iter().find(|m| {
                 m.tag
                     .as_ref()
-                    .is_some_and(|t| currency_tag(t).is_none() && tag_matches(t, &data.meta[i]))
+                    .is_some_and(|t| currency_tag(t).is_none() && data.meta[i].has_tag(t))
             })
         };
         let local = by_asset.or_else(by_tag).map(|m| m.ret);
@@ -185,12 +179,6 @@ fn currency_move(s: &ShockSpec, data: &MarketData, i: usize) -> Option<f64> {
 /// move alone (no time passes, so no forward premium).
 pub fn with_currency(local: f64, fx: f64) -> f64 {
     (1.0 + local) * (1.0 + fx) - 1.0
-}
-
-fn tag_matches(tag: &str, meta: &crate::ingest::meta::AssetMeta) -> bool {
-    let (col, val) = tag.split_once(':').expect("checked when loading");
-    meta.tag(&col.trim().to_ascii_lowercase())
-        .is_some_and(|v| v.eq_ignore_ascii_case(val.trim()))
 }
 
 /// The `count` worst non-overlapping `h`-observation windows of the full history for the reference

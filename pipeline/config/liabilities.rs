@@ -31,11 +31,7 @@ impl Liabilities {
     /// Whether a stress move's `column:value` tag names one of the proxy's tags (any case).
     #[must_use]
     pub fn has_tag(&self, tag: &str) -> bool {
-        tag.split_once(':').is_some_and(|(col, val)| {
-            self.tags
-                .get(&col.trim().to_ascii_lowercase())
-                .is_some_and(|v| v.eq_ignore_ascii_case(val.trim()))
-        })
+        super::tag_holds(tag, |c| self.tags.get(c).map(String::as_str))
     }
 }
 
@@ -96,11 +92,11 @@ fn tags(raw: &BTreeMap<String, String>) -> Result<BTreeMap<String, String>, KeyE
             format!("`{col}: {val}`: give a column name and a value, e.g. `class: liabilities`")
         } else if key == "currency" {
             "`currency` cannot be a tag of the proxy: a `currency:XXX` stress move moves a currency; the proxy is in the base currency".into()
-        } else if out.contains_key(&key) {
-            format!("column `{key}` is given twice (column names are compared in lower case)")
-        } else {
-            out.insert(key, val.trim().to_string());
+        } else if let std::collections::btree_map::Entry::Vacant(slot) = out.entry(key.clone()) {
+            slot.insert(val.trim().to_string());
             continue;
+        } else {
+            format!("column `{key}` is given twice (column names are compared in lower case)")
         };
         return Err(("liabilities.tags", why));
     }

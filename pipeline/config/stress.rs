@@ -101,6 +101,16 @@ fn check_move(m: &MoveSpec) -> std::result::Result<(), (&'static str, String)> {
     Ok(())
 }
 
+/// Whether a `column:value` tag (stress moves, hedge ratios, the proxy's tags) holds for a row whose
+/// column values `value_of` gives, the column asked for in lower case: both parts trimmed, the value
+/// compared in any case. A text without `:` holds for no row.
+pub fn tag_holds<'a>(tag: &str, value_of: impl Fn(&str) -> Option<&'a str>) -> bool {
+    tag.split_once(':').is_some_and(|(col, val)| {
+        value_of(&col.trim().to_ascii_lowercase())
+            .is_some_and(|v| v.eq_ignore_ascii_case(val.trim()))
+    })
+}
+
 /// A `column:value` tag with neither part blank.
 pub(super) fn check_tag(t: &str) -> std::result::Result<(&str, &str), String> {
     match t.split_once(':') {

@@ -260,7 +260,7 @@ pub fn hedge_ratios(
     if let Some(t) = cur
         .hedge_tag
         .keys()
-        .find(|t| !meta.iter().any(|m| tag_matches(t, m)))
+        .find(|t| !meta.iter().any(|m| m.has_tag(t)))
     {
         return Err(bad(
             format!("currency.hedge.tag.{t}"),
@@ -281,11 +281,7 @@ fn one_ratio(cfg: &Config, m: &AssetMeta) -> Result<f64> {
     if let Some(h) = cur.hedge_asset.get(&m.asset) {
         return Ok(*h);
     }
-    let tags: Vec<(&String, &f64)> = cur
-        .hedge_tag
-        .iter()
-        .filter(|(t, _)| tag_matches(t, m))
-        .collect();
+    let tags: Vec<(&String, &f64)> = cur.hedge_tag.iter().filter(|(t, _)| m.has_tag(t)).collect();
     if let Some((t1, h1)) = tags.first() {
         if let Some((t2, h2)) = tags.iter().find(|(_, h)| h != h1) {
             return Err(Error::config(
@@ -299,13 +295,6 @@ fn one_ratio(cfg: &Config, m: &AssetMeta) -> Result<f64> {
         return Ok(**h1);
     }
     Ok(cur.hedge_class.get(&m.class).copied().unwrap_or(0.0))
-}
-
-fn tag_matches(tag: &str, m: &AssetMeta) -> bool {
-    tag.split_once(':').is_some_and(|(col, val)| {
-        m.tag(&col.trim().to_ascii_lowercase())
-            .is_some_and(|v| v.eq_ignore_ascii_case(val.trim()))
-    })
 }
 
 /// The exchange-rate file, read by the price file's reader (wide: `date` then one column per currency;

@@ -44,6 +44,11 @@ impl AssetMeta {
             other => self.tags.get(other).map(String::as_str),
         }
     }
+
+    /// Whether a `column:value` tag holds for this asset ([`crate::config::tag_holds`]).
+    pub fn has_tag(&self, tag: &str) -> bool {
+        crate::config::tag_holds(tag, |c| self.tag(c))
+    }
 }
 
 /// Reads the asset metadata file: columns `asset`, `class` required; `name`, `min_weight`, `max_weight` and

@@ -207,19 +207,7 @@ fn skip_columns(cfg: &Config, hist: &mut PriceHistory, meta: &[AssetMeta]) -> Re
             format!("data.skip_columns[{j}]: `{}` {why}", truncate(c, 40)),
         ));
     }
-    let keep: Vec<bool> = hist
-        .assets
-        .iter()
-        .map(|a| !cfg.skip_columns.contains(a))
-        .collect();
-    let mut flags = keep.iter().copied();
-    hist.assets.retain(|_| flags.next().unwrap_or(true));
-    let mut flags = keep.iter().copied();
-    hist.values.retain(|_| flags.next().unwrap_or(true));
-    if let Some(cells) = hist.cells.as_mut() {
-        let mut flags = keep.iter().copied();
-        cells.retain(|_| flags.next().unwrap_or(true));
-    }
+    hist.remove_columns(&cfg.skip_columns);
     Ok(())
 }
 

@@ -32,6 +32,21 @@ pub struct PriceHistory {
 }
 
 impl PriceHistory {
+    /// Removes the named columns with everything kept per column (`assets`, `values`, `cells`).
+    pub fn remove_columns(&mut self, names: &[String]) {
+        let keep: Vec<bool> = self.assets.iter().map(|a| !names.contains(a)).collect();
+        let mut kept = keep.iter();
+        self.assets
+            .retain(|_| *kept.next().expect("one flag per column"));
+        let mut kept = keep.iter();
+        self.values
+            .retain(|_| *kept.next().expect("one flag per column"));
+        if let Some(cells) = self.cells.as_mut() {
+            let mut kept = keep.iter();
+            cells.retain(|_| *kept.next().expect("one flag per column"));
+        }
+    }
+
     /// Where the price of asset `a` on row `r` is, for messages: "row 3 (line 5), column `AS01`" in the
     /// wide layout, "row 7 (line 9), column `price` (asset `AS01`)" in the long one.
     pub fn cell(&self, a: usize, r: usize) -> String {

@@ -348,11 +348,10 @@ fn check_reports_data_quality() {
     );
 }
 
-#[test]
-fn demo_config_builds_a_pack() {
-    let f = Fixture::new();
+/// Runs a demo config of `config-demo/` into the fixture's `packs` folder; its output and pack folder.
+fn run_demo(f: &Fixture, name: &str) -> (super::common::Ran, std::path::PathBuf) {
+    let cfg = repo().join("config-demo").join(name);
     let out = f.path("packs");
-    let cfg = repo().join("config-demo/fund.yaml");
     let ran = f.run(&[
         "run",
         cfg.to_str().unwrap(),
@@ -361,6 +360,13 @@ fn demo_config_builds_a_pack() {
         out.to_str().unwrap(),
     ]);
     let dir = pack_dir(&ran);
+    (ran, dir)
+}
+
+#[test]
+fn demo_config_builds_a_pack() {
+    let f = Fixture::new();
+    let (ran, dir) = run_demo(&f, "fund.yaml");
     let r = json(&dir.join("results.json"));
     assert_eq!(r["as_of"], "2026-11-30");
     assert_eq!(r["assets"].as_array().unwrap().len(), 50);
@@ -385,16 +391,8 @@ fn demo_config_builds_a_pack() {
 #[test]
 fn the_asset_only_demo_config_builds_a_pack_without_liabilities() {
     let f = Fixture::new();
-    let out = f.path("packs");
-    let cfg = repo().join("config-demo/foundation.yaml");
-    let ran = f.run(&[
-        "run",
-        cfg.to_str().unwrap(),
-        "--quiet",
-        "--out",
-        out.to_str().unwrap(),
-    ]);
-    let dir = pack_dir(&ran);
+    let (_, dir) = run_demo(&f, "foundation.yaml");
+    let (out, cfg) = (f.path("packs"), repo().join("config-demo/foundation.yaml"));
     let r = json(&dir.join("results.json"));
     assert!(r["liabilities"].is_null(), "{}", r["liabilities"]);
     assert_eq!(r["assets"].as_array().unwrap().len(), 50);
