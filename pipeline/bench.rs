@@ -34,11 +34,11 @@ pub const DEFAULT_SIZES: [(usize, usize); 7] = [
     (2_000, 100_000),
 ];
 
-/// Above this many cells N·S the bench neither times the direct LP (as the other method) nor runs the
-/// reference, which also solves it: at 2,000 × 100,000 its rows alone hold 2·10^8 nonzeros (about 2.4 GB
-/// in tailpack's row store, copied again by the highs crate and by HiGHS, the reference's in numpy/scipy
-/// likewise), and at 1,000 × 50,000 neither finished within 300 s (README, "Performance").
-pub const DIRECT_UP_TO_CELLS: usize = 50_000_000;
+/// Above [`DIRECT_UP_TO_CELLS`] cells N·S the bench neither times the direct LP (as the other method) nor
+/// runs the reference, which also solves it: at 2,000 × 100,000 its rows alone hold 2·10^8 nonzeros
+/// (about 2.4 GB in tailpack's row store, copied again by the highs crate and by HiGHS, the reference's
+/// in numpy/scipy likewise), and at 1,000 × 50,000 neither finished within 300 s (README, "Performance").
+pub use crate::models::DIRECT_UP_TO_CELLS;
 
 /// After a run this long, further runs of the same LP are skipped (the median is then of fewer runs).
 const LONG_RUN: Duration = Duration::from_secs(20);

@@ -198,6 +198,11 @@ pub mod fs {
         std::fs::File::open(path).map_err(io("cannot read", path))
     }
 
+    /// Creates (or truncates) a file for writing (streamed writers).
+    pub fn create(path: &Path) -> Result<std::fs::File> {
+        std::fs::File::create(path).map_err(io("cannot write", path))
+    }
+
     /// Reads a whole file into bytes.
     pub fn read(path: &Path) -> Result<Vec<u8>> {
         std::fs::read(path).map_err(io("cannot read", path))

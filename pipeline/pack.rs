@@ -1009,6 +1009,7 @@ mod tests {
             name: name.into(),
             source: source.map(PathBuf::from),
             bytes: bytes.to_vec(),
+            len: bytes.len() as u64,
             sha256: String::new(),
         }
     }

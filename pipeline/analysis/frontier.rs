@@ -2,6 +2,7 @@
 //! each the max-return LP at a CVaR cap swept evenly between the two (Rockafellar & Uryasev 2000, §3:
 //! the CVaR-constrained return maximisation traces the mean–CVaR efficient frontier).
 
+use crate::models::lp::{Failure, Solved};
 use crate::models::{Problem, Status};
 use crate::risk;
 use rayon::prelude::*;
@@ -27,11 +28,14 @@ pub struct Frontier {
 }
 
 /// Sweeps the CVaR cap over `k` evenly spaced values; `None` when either end (the minimum-CVaR or the
-/// maximum-return LP) has no optimum. Points are solved in parallel; each is an independent LP, so the
-/// result does not depend on scheduling.
+/// maximum-return LP) has no optimum. With cutting planes the LPs share one cut model and are solved in
+/// order of the cap, the cuts of each carried to the next ([`Problem::lps`]); with the direct LP the
+/// points are solved in parallel, each an independent LP. Either way the result does not depend on
+/// scheduling.
 pub fn sweep(p: &Problem, k: usize) -> Option<Frontier> {
-    let low = p.min_cvar(None).ok()?;
-    let high = p.max_return(None).ok()?;
+    let mut lps = p.lps(p.method());
+    let low = lps.min_cvar(None).ok()?;
+    let high = lps.max_return(None).ok()?;
     let (lo, hi) = (
         low.objective,
         risk::cvar_of(p.set, &high.weights, p.confidence),
@@ -42,7 +46,15 @@ pub fn sweep(p: &Problem, k: usize) -> Option<Frontier> {
     let caps: Vec<f64> = (0..k)
         .map(|j| lo + (hi - lo) * j as f64 / (k - 1) as f64 + if j == 0 { slack } else { 0.0 })
         .collect();
-    let points = caps.par_iter().map(|&cap| point(p, cap, lo)).collect();
+    let points = if lps.shared() {
+        caps.iter()
+            .map(|&cap| point(p, lps.max_return(Some(cap)), cap, lo))
+            .collect()
+    } else {
+        caps.par_iter()
+            .map(|&cap| point(p, p.max_return(Some(cap)), cap, lo))
+            .collect()
+    };
     Some(Frontier {
         min_cvar: lo,
         max_return_cvar: hi,
@@ -52,8 +64,8 @@ pub fn sweep(p: &Problem, k: usize) -> Option<Frontier> {
 
 /// One point; every cap is at least the minimum CVaR `lo`, so a solver's "infeasible" there is a numerical
 /// failure (`solver_error`), not an infeasible cap.
-fn point(p: &Problem, cap: f64, lo: f64) -> FrontierPoint {
-    let o = crate::models::outcome(p, p.max_return(Some(cap)), Some(cap), None, || {
+fn point(p: &Problem, solved: Result<Solved, Failure>, cap: f64, lo: f64) -> FrontierPoint {
+    let o = crate::models::outcome(p, solved, Some(cap), None, || {
         format!("CVaR cap {cap:.6} infeasible")
     });
     let o = crate::models::unless_contradicted(

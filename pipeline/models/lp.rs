@@ -164,6 +164,12 @@ impl Lp {
         Col(self.col_lo.len() - 1)
     }
 
+    /// Replaces the bounds of column `c`.
+    pub fn bound(&mut self, c: Col, lo: f64, hi: f64) {
+        self.col_lo[c.0] = lo;
+        self.col_hi[c.0] = hi;
+    }
+
     /// Number of columns and rows.
     pub fn size(&self) -> (usize, usize) {
         (self.col_lo.len(), self.row_lo.len())
@@ -338,15 +344,21 @@ impl Lp {
 
     /// The CVaR block of the cutting-plane method (Künzi-Bay & Mayer 2006, "Computational aspects of
     /// minimizing conditional value-at-risk", Computational Management Science 3): columns ℓ (free) and
-    /// w ≥ 0 (tracked, in that order); the cuts are added by [`Lp::cut`]. Returns ℓ + w/(1−c).
-    pub fn cvar_cuts(&mut self, c: f64) -> (Lin, CutColumns) {
+    /// one w_g ≥ 0 per group of scenarios (tracked, in that order; `groups` ≥ 1, see [`CutColumns`]); the
+    /// cuts are added by the caller ([`cut_terms`]). Returns ℓ + Σ_g w_g/(1−c).
+    pub fn cvar_cuts(&mut self, c: f64, groups: usize) -> (Lin, CutColumns) {
+        let groups = groups.max(1);
         let at = self.tracked.len();
         let ell = self.tracked(-INF, INF);
+        let mut f = Lin::with_capacity(groups + 1);
+        f.add(ell, 1.0);
         let w = self.tracked(0.0, INF);
-        (
-            Lin(vec![(ell, 1.0), (w, 1.0 / (1.0 - c))]),
-            CutColumns { ell, w, at },
-        )
+        f.add(w, 1.0 / (1.0 - c));
+        for _ in 1..groups {
+            let wg = self.tracked(0.0, INF);
+            f.add(wg, 1.0 / (1.0 - c));
+        }
+        (f, CutColumns { ell, w, groups, at })
     }
 
     /// Solves with the chosen backend.
@@ -414,6 +426,9 @@ impl Lp {
             weights: self.weights.clone(),
             scale: self.scale,
             tracked: self.tracked.clone(),
+            base_rows: self.row_lo.len(),
+            added_lo: Vec::new(),
+            activity: Vec::new(),
             timing: Timing {
                 build: start.elapsed(),
                 ..Timing::default()
@@ -514,13 +529,32 @@ fn read_solution(
     }
 }
 
-/// The columns ℓ and w of a cutting-plane CVaR block.
+/// The columns ℓ and w_1…w_G of a cutting-plane CVaR block. With G > 1 the scenarios are split into G
+/// contiguous groups and each group's tail term has its own w_g and its own cuts — the multi-cut form of
+/// the L-shaped method (Birge & Louveaux 1988, "A multicut algorithm for two-stage stochastic linear
+/// programs", European Journal of Operational Research 34): a round adds up to G cuts, which a portfolio
+/// of many assets strictly between their bounds needs, as an optimal vertex of the cut LP has at most as
+/// many such weights as it has binding rows. With G = 1 it is Künzi-Bay & Mayer's single cut.
 #[derive(Debug, Clone, Copy)]
 pub struct CutColumns {
     pub ell: Col,
+    /// w_1; w_g is the column g − 1 places after it.
     pub w: Col,
-    /// Where ℓ's value is in `Solved::extra` (w's is next).
+    pub groups: usize,
+    /// Where ℓ's value is in `Solved::extra` (w_1…w_G follow it).
     pub at: usize,
+}
+
+impl CutColumns {
+    /// The column w_g of group `g` (from 0).
+    pub fn w_of(&self, g: usize) -> Col {
+        Col(self.w.0 + g)
+    }
+
+    /// The scenarios of group `g` among `scenarios`: the g-th of G contiguous, nearly equal ranges.
+    pub fn group(&self, g: usize, scenarios: usize) -> std::ops::Range<usize> {
+        g * scenarios / self.groups..(g + 1) * scenarios / self.groups
+    }
 }
 
 /// A cut of an active-CVaR block: the cut of [`cut_terms`] for the active loss b_k − r_k·x, that is
@@ -531,11 +565,11 @@ pub fn active_cut_terms(
     set: &ScenarioSet,
     cut: &[usize],
     weights: &[Col],
-    cc: CutColumns,
+    (cc, group): (CutColumns, usize),
     benchmark: &[f64],
     scale: Option<Col>,
 ) -> (f64, Vec<(Col, f64)>) {
-    let mut terms = cut_terms(set, cut, weights, cc);
+    let mut terms = cut_terms(set, cut, weights, cc, group);
     let constant: f64 = cut
         .iter()
         .map(|&k| set.probabilities[k] * benchmark[k])
@@ -550,7 +584,8 @@ pub fn active_cut_terms(
 }
 
 /// The cut w + mass·ℓ + Σ_i a_i x_i ≥ 0 for a scenario subset K, with mass = Σ_{k∈K} p_k and
-/// a = Σ_{k∈K} p_k r_k — that is w ≥ Σ_{k∈K} p_k (−r_k·x − ℓ) (Künzi-Bay & Mayer 2006, eq. 9).
+/// a = Σ_{k∈K} p_k r_k — that is w ≥ Σ_{k∈K} p_k (−r_k·x − ℓ) (Künzi-Bay & Mayer 2006, eq. 9), where w is
+/// w_g of the group K lies in ([`CutColumns::w_of`]).
 /// The sums run over fixed blocks of K, in parallel for large sets, and the blocks are added in order,
 /// so the cut is the same whatever the number of threads.
 pub fn cut_terms(
@@ -558,6 +593,7 @@ pub fn cut_terms(
     cut: &[usize],
     weights: &[Col],
     cc: CutColumns,
+    group: usize,
 ) -> Vec<(Col, f64)> {
     let block = |ks: &[usize]| {
         let mut coef = vec![0.0; set.width()];
@@ -583,7 +619,7 @@ pub fn cut_terms(
         coef.iter_mut().zip(c).for_each(|(a, b)| *a += b);
     }
     let mut terms = Vec::with_capacity(weights.len() + 2);
-    terms.push((cc.w, 1.0));
+    terms.push((cc.w_of(group), 1.0));
     terms.push((cc.ell, mass));
     terms.extend(weights.iter().zip(coef).map(|(&x, a)| (x, a)));
     terms
@@ -598,6 +634,12 @@ pub struct HighsLp {
     weights: Vec<Col>,
     scale: Option<Col>,
     tracked: Vec<Col>,
+    /// Rows the model was loaded with; rows added later ([`HighsLp::rows_at_least`]) follow them.
+    base_rows: usize,
+    /// The lower bound of every added row, in row order.
+    added_lo: Vec<f64>,
+    /// Every row's activity at the last optimum (empty when the last solve had none).
+    activity: Vec<f64>,
     /// Build and solve time so far.
     pub timing: Timing,
 }
@@ -614,9 +656,12 @@ impl HighsLp {
         self.timing.runs += 1;
         let solved = solved?;
         let status = solved.status();
+        self.activity.clear();
         let result = match status {
             HighsModelStatus::Optimal => {
-                let x = solved.get_solution().columns().to_vec();
+                let solution = solved.get_solution();
+                let x = solution.columns().to_vec();
+                self.activity = solution.rows().to_vec();
                 Ok(read_solution(
                     &x,
                     &self.objective,
@@ -650,6 +695,107 @@ impl HighsLp {
         }
         self.objective = objective.clone();
         self.timing.build += start.elapsed();
+    }
+
+    /// Replaces the bounds of column `c` of the loaded model; the last basis stays.
+    pub fn bound(&mut self, c: Col, lo: f64, hi: f64) {
+        let model = self.model.as_mut().expect("a loaded model");
+        model.change_column_bounds(self.cols[c.0], lo..=hi);
+    }
+
+    /// Adds the rows lo ≤ Σ a_j·col_j (no upper bound) to the loaded model in one call: HiGHS brings its
+    /// copies of the matrix up to date once per call, so a round of many cuts added row by row cost a
+    /// pass over the whole matrix per row.
+    pub fn rows_at_least(&mut self, rows: &[(f64, Vec<(Col, f64)>)]) {
+        if rows.is_empty() {
+            return;
+        }
+        let start = Instant::now();
+        let lower: Vec<f64> = rows.iter().map(|r| r.0).collect();
+        let upper = vec![INF; rows.len()];
+        let nnz: usize = rows.iter().map(|r| r.1.len()).sum();
+        let mut starts = Vec::with_capacity(rows.len());
+        let mut index = Vec::with_capacity(nnz);
+        let mut value = Vec::with_capacity(nnz);
+        for (_, terms) in rows {
+            starts.push(index.len() as highs_sys::HighsInt);
+            for &(c, a) in terms {
+                index.push(self.cols[c.0].index() as highs_sys::HighsInt);
+                value.push(a);
+            }
+        }
+        let model = self.model.as_mut().expect("a loaded model");
+        // SAFETY: the pointer is the loaded model's own HiGHS instance, alive for the call; `lower` and
+        // `upper` hold one entry per row, `starts` one per row, `index` and `value` `nnz` entries each, as
+        // Highs_addRows reads them (highs_c_api.h), and HiGHS copies them before returning.
+        let status = unsafe {
+            highs_sys::Highs_addRows(
+                model.as_mut_ptr(),
+                rows.len() as highs_sys::HighsInt,
+                lower.as_ptr(),
+                upper.as_ptr(),
+                nnz as highs_sys::HighsInt,
+                starts.as_ptr(),
+                index.as_ptr(),
+                value.as_ptr(),
+            )
+        };
+        assert!(
+            status != highs_sys::kHighsStatusError,
+            "HiGHS refused {} cut rows",
+            rows.len()
+        );
+        self.added_lo.extend(lower);
+        self.timing.build += start.elapsed();
+    }
+
+    /// Makes every row added so far permanent: [`HighsLp::drop_slack_rows`] keeps them.
+    pub fn keep_rows(&mut self) {
+        self.base_rows += self.added_lo.len();
+        self.added_lo.clear();
+        self.activity.clear();
+    }
+
+    /// Deletes the added rows that are slack at the last optimum (activity above the lower bound by more
+    /// than a relative 1e-9): such a row's slack is basic, so the basis stays valid and the next solve
+    /// still starts from it. Returns how many were deleted; none without a last optimum.
+    pub fn drop_slack_rows(&mut self) -> usize {
+        let rows = self.base_rows + self.added_lo.len();
+        if self.activity.len() != rows {
+            return 0;
+        }
+        let mut mask: Vec<highs_sys::HighsInt> = (0..rows)
+            .map(|i| {
+                let slack = i >= self.base_rows && {
+                    let lo = self.added_lo[i - self.base_rows];
+                    self.activity[i] > lo + 1e-9 * (1.0 + lo.abs())
+                };
+                slack as highs_sys::HighsInt
+            })
+            .collect();
+        let dropped = mask.iter().filter(|&&m| m == 1).count();
+        if dropped == 0 {
+            return 0;
+        }
+        let start = Instant::now();
+        let keep: Vec<bool> = mask.iter().map(|&m| m == 0).collect();
+        let model = self.model.as_mut().expect("a loaded model");
+        // SAFETY: the pointer is the loaded model's own HiGHS instance; `mask` has one entry per row of
+        // the model, as Highs_deleteRowsByMask reads and rewrites it (highs_c_api.h).
+        let status = unsafe { highs_sys::Highs_deleteRowsByMask(model.as_mut_ptr(), mask.as_mut_ptr()) };
+        assert!(
+            status != highs_sys::kHighsStatusError,
+            "HiGHS refused to delete {dropped} slack cut rows"
+        );
+        let base = self.base_rows;
+        let mut k = 0;
+        self.added_lo.retain(|_| {
+            k += 1;
+            keep[base + k - 1]
+        });
+        self.activity.clear();
+        self.timing.build += start.elapsed();
+        dropped
     }
 
     /// Adds the row lo ≤ Σ a_j·col_j ≤ hi to the loaded model.

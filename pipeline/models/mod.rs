@@ -36,10 +36,12 @@ mod family;
 mod feasible;
 pub mod lp;
 mod ratio;
+mod shared;
 mod solve;
 
 pub use family::Family;
 pub use feasible::{feasible_set, policy_lines};
+pub use shared::Lps;
 pub use solve::{Auxiliary, FamilyOutcome, Premises, Solution, Targets, solve_all, solve_all_by};
 
 use crate::config::{Backend, CapRule, FloorRule};
@@ -48,6 +50,7 @@ use crate::risk;
 use crate::scenarios::ScenarioSet;
 use lp::{Failure, Lin, Lp, Solved, Timing};
 use serde::Serialize;
+use rayon::prelude::*;
 use std::time::Instant;
 
 /// Tolerance of the post-solve feasibility check on reported portfolios.
@@ -206,8 +209,13 @@ pub fn method_description(method: Method) -> &'static str {
 }
 /// The cutting-plane loop stops when the true tail term exceeds the LP's w by at most this (relative).
 pub const CUT_TOLERANCE: f64 = 1e-10;
-/// Rounds after which the cutting-plane loop gives up and the direct LP is solved instead.
+/// Rounds after which the cutting-plane loop gives up and the direct LP is solved instead, up to
+/// [`DIRECT_UP_TO_CELLS`].
 pub const MAX_CUT_ROUNDS: usize = 400;
+/// The largest scenario set (assets × scenarios) whose direct LP a loop that did not settle falls back
+/// to: the direct LP has one row per scenario holding every asset, 2·10^8 nonzeros at 2,000 × 100,000,
+/// more than HiGHS can presolve in this machine's memory (README, "Performance").
+pub const DIRECT_UP_TO_CELLS: usize = 50_000_000;
 
 #[derive(Clone, Copy)]
 enum Kind {
@@ -242,30 +250,28 @@ impl Problem<'_> {
 
     /// [`Problem::max_return`] with an explicit method.
     pub fn max_return_by(&self, cap: Option<f64>, method: Method) -> Result<Solved, Failure> {
-        self.solve(Kind::MaxReturn(cap), method)
+        self.lps(method).max_return(cap)
     }
 
     /// [`Problem::min_cvar`] with an explicit method.
     pub fn min_cvar_by(&self, floor: Option<f64>, method: Method) -> Result<Solved, Failure> {
-        self.solve(Kind::MinCvar(floor), method)
+        self.lps(method).min_cvar(floor)
     }
 
     /// Minimise the active CVaR over X, the budget left out: whether the budget leaves any portfolio.
     /// Without an active budget there is no benchmark, and this is a solver failure saying so.
     pub fn min_active_cvar_by(&self, method: Method) -> Result<Solved, Failure> {
-        if self.active.is_none() {
-            return Err(Failure::Solver("no benchmark to be active against".into()));
-        }
-        self.solve(Kind::MinActive, method)
+        self.lps(method).min_active_cvar()
     }
 
     /// [`Problem::max_ratio`] with an explicit method.
     pub fn max_ratio_by(&self, method: Method) -> Result<Solved, Failure> {
-        self.max_ratio_of(Kind::Ratio, method)
+        self.lps(method).max_ratio()
     }
 
-    fn max_ratio_of(&self, kind: Kind, method: Method) -> Result<Solved, Failure> {
-        let mut solved = self.solve(kind, method)?;
+    /// The Charnes–Cooper LP's solution (z, t) as the portfolio x = z/t, with t kept as the scale.
+    fn from_charnes_cooper(&self, solved: Result<Solved, Failure>) -> Result<Solved, Failure> {
+        let mut solved = solved?;
         let t = solved.scale.unwrap_or(0.0);
         if t <= MIN_SCALE {
             return Err(Failure::Solver(format!(
@@ -276,27 +282,36 @@ impl Problem<'_> {
         Ok(solved)
     }
 
-    fn solve(&self, kind: Kind, method: Method) -> Result<Solved, Failure> {
-        match method {
-            Method::Direct => {
-                let start = Instant::now();
-                let mut lp = Lp::new(self.feasible, matches!(kind, Kind::Ratio));
-                let block = match kind {
-                    Kind::MaxReturn(None) | Kind::MinActive => Lin::default(),
-                    _ => lp.cvar(self.set, self.confidence),
-                };
-                let active = self
-                    .active
-                    .map(|a| lp.active_cvar(self.set, a.benchmark, self.confidence));
-                let (objective, maximise) = self.shape(&mut lp, kind, block, active);
-                let built = start.elapsed();
-                let mut solved = lp.solve(&objective, maximise, self.backend)?;
-                solved.timing.build += built;
-                Ok(solved)
-            }
-            Method::Cuts if matches!(kind, Kind::Ratio) => self.dinkelbach(),
-            Method::Cuts => self.cutting_plane(kind),
+    /// The direct LP of `kind` when the set is small enough for it ([`DIRECT_UP_TO_CELLS`]), else a
+    /// solver failure saying the cutting-plane loop did not settle: the fallback of a loop that did not.
+    fn direct_if_small(&self, kind: Kind) -> Result<Solved, Failure> {
+        if self.set.returns.len() <= DIRECT_UP_TO_CELLS {
+            return self.direct(kind);
         }
+        Err(Failure::Solver(format!(
+            "the cutting-plane loop did not settle within {MAX_CUT_ROUNDS} rounds, and at {} assets × {} scenarios the direct LP is too large to solve instead",
+            self.set.width(),
+            self.set.len()
+        )))
+    }
+
+    /// The direct LP of `kind`: the Rockafellar–Uryasev rows, one per scenario (for the ratio, the
+    /// Charnes–Cooper LP, whose solution is z and t).
+    fn direct(&self, kind: Kind) -> Result<Solved, Failure> {
+        let start = Instant::now();
+        let mut lp = Lp::new(self.feasible, matches!(kind, Kind::Ratio));
+        let block = match kind {
+            Kind::MaxReturn(None) | Kind::MinActive => Lin::default(),
+            _ => lp.cvar(self.set, self.confidence),
+        };
+        let active = self
+            .active
+            .map(|a| lp.active_cvar(self.set, a.benchmark, self.confidence));
+        let (objective, maximise) = self.shape(&mut lp, kind, block, active);
+        let built = start.elapsed();
+        let mut solved = lp.solve(&objective, maximise, self.backend)?;
+        solved.timing.build += built;
+        Ok(solved)
     }
 
     /// Adds the model's own row (cap, floor or the Charnes–Cooper normalisation) and the active-CVaR
@@ -331,62 +346,13 @@ impl Problem<'_> {
         }
     }
 
-    /// Künzi-Bay & Mayer (2006): start from the cut K = all scenarios; after each solve add the cut of the
-    /// scenarios whose loss exceeds ℓ — the most violated one — until the true tail term
-    /// Σ_k p_k (L_k − ℓ)+ exceeds w by at most the tolerance. The last LP's solution is then feasible for,
-    /// and optimal in, the direct LP. With HiGHS the model stays loaded and each cut is one added
-    /// row, so every round after the first is a warm-started dual simplex. An active-CVaR budget is a
-    /// second block with its own ℓ and w and its own cuts (the active loss b_k − r_k·x), checked and cut
-    /// in the same rounds. The ratio model's cuts go through Dinkelbach's parametric LPs instead
-    /// (`ratio.rs`), on the same blocks and cuts.
-    fn cutting_plane(&self, kind: Kind) -> Result<Solved, Failure> {
-        let total = !matches!(kind, Kind::MaxReturn(None) | Kind::MinActive);
-        if !total && self.active.is_none() {
-            return self.solve(kind, Method::Direct);
-        }
-        let start = Instant::now();
-        let mut lp = Lp::new(self.feasible, false);
-        let (block, active, blocks) = self.cut_blocks(&mut lp, total);
-        let (objective, maximise) = self.shape(&mut lp, kind, block, active);
-        let all: Vec<usize> = (0..self.set.len()).collect();
-        let mut session = Session::new(&lp, &objective, maximise, self.backend)?;
-        for b in &blocks {
-            let (lo, terms) = self.cut_row(&lp, b, &all);
-            session.cut(&mut lp, lo, &terms);
-        }
-        let mut last_cuts = vec![all; blocks.len()];
-        for _ in 0..MAX_CUT_ROUNDS {
-            let mut solved = session.solve(&lp, &objective, maximise)?;
-            let mut cut = false;
-            for (b, last_cut) in blocks.iter().zip(&mut last_cuts) {
-                let (ell, w) = (solved.extra[b.cc.at], solved.extra[b.cc.at + 1]);
-                let t = solved.scale.unwrap_or(1.0);
-                let (tail, excess) = self.tail_beyond(&solved.weights, b.benchmark, t, ell);
-                if excess <= w + CUT_TOLERANCE * (1.0 + w.abs()) || *last_cut == tail {
-                    continue;
-                }
-                let (lo, terms) = self.cut_row(&lp, b, &tail);
-                session.cut(&mut lp, lo, &terms);
-                *last_cut = tail;
-                cut = true;
-            }
-            if !cut {
-                let mut timing = session.timing();
-                // Everything outside the solver (setup, loss evaluation, cut sums) counts as building.
-                timing.build += start.elapsed().saturating_sub(timing.build + timing.solve);
-                solved.timing = timing;
-                return Ok(solved);
-            }
-        }
-        self.solve(kind, Method::Direct)
-    }
-
     /// The cutting-plane CVaR blocks of `lp`: the total loss's when `total`, and the active loss's with a
     /// budget; returns their CVaR functions (the total's empty without it) and the blocks, in that order.
     fn cut_blocks<'s>(&'s self, lp: &mut Lp, total: bool) -> (Lin, Option<Lin>, Vec<CutBlock<'s>>) {
+        let groups = cut_groups(self.set.len());
         let mut blocks = Vec::new();
         let block = if total {
-            let (f, cc) = lp.cvar_cuts(self.confidence);
+            let (f, cc) = lp.cvar_cuts(self.confidence, groups);
             blocks.push(CutBlock {
                 cc,
                 benchmark: None,
@@ -396,7 +362,7 @@ impl Problem<'_> {
             Lin::default()
         };
         let active = self.active.map(|a| {
-            let (f, cc) = lp.cvar_cuts(self.confidence);
+            let (f, cc) = lp.cvar_cuts(self.confidence, groups);
             blocks.push(CutBlock {
                 cc,
                 benchmark: Some(a.benchmark),
@@ -406,12 +372,136 @@ impl Problem<'_> {
         (block, active, blocks)
     }
 
-    /// The cut of block `b` over the scenarios `cut`: its lower bound and terms.
-    fn cut_row(&self, lp: &Lp, b: &CutBlock, cut: &[usize]) -> (f64, Vec<(lp::Col, f64)>) {
-        match b.benchmark {
-            None => (0.0, lp::cut_terms(self.set, cut, &lp.weights, b.cc)),
-            Some(bench) => lp::active_cut_terms(self.set, cut, &lp.weights, b.cc, bench, lp.scale),
+    /// Every block's first cuts, one per group over all of the group's scenarios; returns the last cut of
+    /// every block and group (what [`Problem::cut_round`] compares new cuts with).
+    fn first_cuts(
+        &self,
+        session: &mut Session,
+        lp: &mut Lp,
+        blocks: &[CutBlock],
+    ) -> Vec<Vec<Vec<usize>>> {
+        let s = self.set.len();
+        let mut rows = Vec::new();
+        let cuts = blocks
+            .iter()
+            .map(|b| {
+                (0..b.cc.groups)
+                    .map(|g| {
+                        let all: Vec<usize> = b.cc.group(g, s).collect();
+                        rows.push(self.cut_row(lp, b, g, &all));
+                        all
+                    })
+                    .collect()
+            })
+            .collect();
+        session.cuts(lp, &rows);
+        cuts
+    }
+
+    /// One round of cuts after a solve: for every block (those on the total loss only when not
+    /// `skip_total`), the portfolio's losses (t: the Charnes–Cooper scale of the benchmark's part, 1
+    /// outside that LP) against the LP's ℓ and tail columns. A block whose true tail term exceeds the LP's
+    /// Σ_g w_g by more than the tolerance gets a cut for every group whose own tail term exceeds its w_g
+    /// by more than its share of the tolerance (at least one does) and whose tail changed since its last
+    /// cut. `last` holds every block's and group's last cut.
+    #[allow(clippy::too_many_arguments)]
+    fn cut_round(
+        &self,
+        session: &mut Session,
+        lp: &mut Lp,
+        blocks: &[CutBlock],
+        last: &mut [Vec<Vec<usize>>],
+        solved: &Solved,
+        t: f64,
+        skip_total: bool,
+    ) -> Round {
+        let mut round = Round::default();
+        let s = self.set.len();
+        let mut rows = Vec::new();
+        for (b, last) in blocks.iter().zip(last.iter_mut()) {
+            if skip_total && b.benchmark.is_none() {
+                continue;
+            }
+            let ell = solved.extra[b.cc.at];
+            let w = &solved.extra[b.cc.at + 1..b.cc.at + 1 + b.cc.groups];
+            let losses = self.losses(&solved.weights, b.benchmark, t);
+            let tails: Vec<(Vec<usize>, f64)> = (0..b.cc.groups)
+                .map(|g| self.tail_beyond(&losses, b.cc.group(g, s), ell))
+                .collect();
+            let excess: f64 = tails.iter().map(|(_, e)| e).sum();
+            let w_total: f64 = w.iter().sum();
+            if b.benchmark.is_none() {
+                round.cvar_bound = Some(ell + excess / (1.0 - self.confidence));
+            }
+            let tolerance = CUT_TOLERANCE * (1.0 + w_total.abs());
+            if excess <= w_total + tolerance {
+                continue;
+            }
+            let share = tolerance / b.cc.groups as f64;
+            let wanted: Vec<usize> = (0..b.cc.groups)
+                .filter(|&g| tails[g].1 > w[g] + share && last[g] != tails[g].0)
+                .collect();
+            let built: &Lp = lp;
+            rows.par_extend(
+                wanted
+                    .par_iter()
+                    .map(|&g| self.cut_row(built, b, g, &tails[g].0)),
+            );
+            for &g in &wanted {
+                last[g] = tails[g].0.clone();
+                round.cut = true;
+                round.outside |= b.benchmark.is_some();
+            }
         }
+        session.cuts(lp, &rows);
+        round
+    }
+
+    /// The cut of block `b` and group `g` over the scenarios `cut`: its lower bound and terms.
+    fn cut_row(
+        &self,
+        lp: &Lp,
+        b: &CutBlock,
+        g: usize,
+        cut: &[usize],
+    ) -> (f64, Vec<(lp::Col, f64)>) {
+        match b.benchmark {
+            None => (0.0, lp::cut_terms(self.set, cut, &lp.weights, b.cc, g)),
+            Some(bench) => {
+                lp::active_cut_terms(self.set, cut, &lp.weights, (b.cc, g), bench, lp.scale)
+            }
+        }
+    }
+}
+
+/// What a round of cuts did.
+#[derive(Debug, Default)]
+struct Round {
+    /// Whether any cut was added.
+    cut: bool,
+    /// Whether a cut of the active budget's block was added (the portfolio was outside the budget).
+    outside: bool,
+    /// The Rockafellar–Uryasev function at the LP's ℓ for the total loss, an upper bound on the
+    /// portfolio's CVaR (`None` when the total loss's block was skipped or absent).
+    cvar_bound: Option<f64>,
+}
+
+/// From this many scenarios on, a cutting-plane CVaR block splits the scenarios into [`CUT_GROUPS`]
+/// groups, each with its own tail column and cuts ([`lp::CutColumns`]). Measured with `tailpack bench
+/// --chosen-only` and on invented scenario files of 2,000 assets (README, "Performance"): one group needed
+/// 364 rounds for the minimum CVaR at 2,000 × 5,000 and did not settle within [`MAX_CUT_ROUNDS`] at
+/// 2,000 × 20,000, where 16 to 64 groups need 13 to 48; at 500 × 20,000 32 groups took 0.4 of one
+/// group's time for min_cvar and max_ratio.
+pub const CUT_GROUPS_FROM_SCENARIOS: usize = 1_000;
+/// The number of scenario groups of a large set (see [`CUT_GROUPS_FROM_SCENARIOS`]).
+pub const CUT_GROUPS: usize = 32;
+
+/// How many scenario groups a cutting-plane CVaR block has for `scenarios` scenarios.
+pub fn cut_groups(scenarios: usize) -> usize {
+    if scenarios >= CUT_GROUPS_FROM_SCENARIOS {
+        CUT_GROUPS
+    } else {
+        1
     }
 }
 
@@ -423,22 +513,24 @@ struct CutBlock<'b> {
 }
 
 impl Problem<'_> {
-    /// The scenarios whose loss under weights `x` exceeds ℓ, and the true tail term Σ_k p_k (L_k − ℓ)+.
-    /// The loss is −r_k·x, or with a benchmark the active loss b_k·t − r_k·x (t the Charnes–Cooper scale,
-    /// 1 outside the ratio LP).
-    fn tail_beyond(
-        &self,
-        x: &[f64],
-        benchmark: Option<&[f64]>,
-        t: f64,
-        ell: f64,
-    ) -> (Vec<usize>, f64) {
+    /// The loss of weights `x` in every scenario: −r_k·x, or with a benchmark the active loss
+    /// b_k·t − r_k·x (t the Charnes–Cooper scale, 1 outside the ratio LP).
+    fn losses(&self, x: &[f64], benchmark: Option<&[f64]>, t: f64) -> Vec<f64> {
         let returns = self.set.portfolio_returns(x);
-        let losses: Vec<f64> = match benchmark {
+        match benchmark {
             None => returns.iter().map(|r| -r).collect(),
             Some(b) => returns.iter().zip(b).map(|(r, b)| b * t - r).collect(),
-        };
-        let tail: Vec<usize> = (0..losses.len()).filter(|&k| losses[k] > ell).collect();
+        }
+    }
+
+    /// The scenarios of `range` whose loss exceeds ℓ, and their tail term Σ_k p_k (L_k − ℓ)+.
+    fn tail_beyond(
+        &self,
+        losses: &[f64],
+        range: std::ops::Range<usize>,
+        ell: f64,
+    ) -> (Vec<usize>, f64) {
+        let tail: Vec<usize> = range.filter(|&k| losses[k] > ell).collect();
         let excess: f64 = tail
             .iter()
             .map(|&k| self.set.probabilities[k] * (losses[k] - ell))
@@ -465,10 +557,15 @@ impl Session {
         })
     }
 
-    fn cut(&mut self, lp: &mut Lp, lo: f64, terms: &[(lp::Col, f64)]) {
+    /// Adds cuts lo ≤ Σ a_j·col_j, in one call with HiGHS.
+    fn cuts(&mut self, lp: &mut Lp, rows: &[(f64, Vec<(lp::Col, f64)>)]) {
         match self {
-            Session::Highs(h) => h.row(lo, f64::INFINITY, terms),
-            Session::Rebuild { .. } => lp.row(lo, f64::INFINITY, terms.iter().copied()),
+            Session::Highs(h) => h.rows_at_least(rows),
+            Session::Rebuild { .. } => {
+                for (lo, terms) in rows {
+                    lp.row(*lo, f64::INFINITY, terms.iter().copied());
+                }
+            }
         }
     }
 
@@ -480,6 +577,30 @@ impl Session {
                 timing.absorb(s.timing);
                 Ok(s)
             }
+        }
+    }
+
+    /// Makes the cuts so far permanent: [`Session::drop_slack_cuts`] keeps them.
+    fn keep_cuts(&mut self) {
+        if let Session::Highs(h) = self {
+            h.keep_rows();
+        }
+    }
+
+    /// Deletes the cuts that are slack at the last optimum (HiGHS; the rebuilt LP keeps them all);
+    /// returns how many.
+    fn drop_slack_cuts(&mut self) -> usize {
+        match self {
+            Session::Highs(h) => h.drop_slack_rows(),
+            Session::Rebuild { .. } => 0,
+        }
+    }
+
+    /// Replaces the bounds of column `c`.
+    fn bound(&mut self, lp: &mut Lp, c: lp::Col, lo: f64, hi: f64) {
+        lp.bound(c, lo, hi);
+        if let Session::Highs(h) = self {
+            h.bound(c, lo, hi);
         }
     }
 

@@ -14,7 +14,7 @@
 
 use super::lp::{Failure, Solved, Timing};
 use super::{
-    Emptiness, Family, Method, Outcome, Preconditions, Problem, Status, explain_empty,
+    Emptiness, Family, Lps, Method, Outcome, Preconditions, Problem, Status, explain_empty,
     failure_words, outcome, preconditions, preconditions_without_portfolio, resolve_cap,
     resolve_floor, unless_contradicted,
 };
@@ -127,7 +127,8 @@ pub fn solve_all_by(
     premises: Premises,
     method: Method,
 ) -> Solution {
-    let (emptiness, auxiliary) = screen(p, premises, method);
+    let mut lps = p.lps(method);
+    let (emptiness, auxiliary) = screen(p, &mut lps, premises);
     let preconditions = match (premises, &emptiness) {
         (Premises::Given, _) => Preconditions::given(),
         (Premises::Establish | Premises::Shown, Emptiness::NotEmpty) => preconditions(
@@ -154,7 +155,7 @@ pub fn solve_all_by(
     };
     for family in Family::ALL {
         let start = Instant::now();
-        let (outcome, timing) = solve_family(p, family, &solution, targets, method);
+        let (outcome, timing) = solve_family(p, &mut lps, family, &solution, targets);
         solution.families.push(FamilyOutcome {
             family,
             outcome,
@@ -166,7 +167,7 @@ pub fn solve_all_by(
 }
 
 /// Whether X is empty and, when it is not, the two auxiliary LPs over it.
-fn screen(p: &Problem, premises: Premises, method: Method) -> (Emptiness, Auxiliary) {
+fn screen(p: &Problem, lps: &mut Lps, premises: Premises) -> (Emptiness, Auxiliary) {
     if premises == Premises::Given {
         return (Emptiness::NotEmpty, Auxiliary::unsolved());
     }
@@ -177,20 +178,20 @@ fn screen(p: &Problem, premises: Premises, method: Method) -> (Emptiness, Auxili
         explain_empty(p.feasible, &p.set.assets, p.backend)
     };
     let emptiness = match emptiness {
-        Emptiness::NotEmpty => within_active_budget(p, method),
+        Emptiness::NotEmpty => within_active_budget(p, lps),
         other => other,
     };
     let auxiliary = match emptiness {
-        Emptiness::NotEmpty => auxiliary(p, method, shown),
+        Emptiness::NotEmpty => auxiliary(lps, shown),
         Emptiness::Empty(_) | Emptiness::Unknown(_) => Auxiliary::unsolved(),
     };
     (emptiness, auxiliary)
 }
 
 /// The two auxiliary LPs over X, their optima kept when `keep`.
-fn auxiliary(p: &Problem, method: Method, keep: bool) -> Auxiliary {
-    let min_cvar = p.min_cvar_by(None, method);
-    let max_return = p.max_return_by(None, method);
+fn auxiliary(lps: &mut Lps, keep: bool) -> Auxiliary {
+    let min_cvar = lps.min_cvar(None);
+    let max_return = lps.max_return(None);
     let kept = |r: &Result<Solved, Failure>| r.as_ref().ok().filter(|_| keep).cloned();
     Auxiliary {
         optima: [kept(&min_cvar), kept(&max_return)],
@@ -210,11 +211,11 @@ fn reusable(s: &Solution, which: usize, meets: impl FnOnce(&[f64]) -> bool) -> O
 /// Whether the active-CVaR budget leaves any portfolio of a non-empty X: the minimum active CVaR over X
 /// against the budget. Empty only when that LP is solved and its minimum exceeds the budget by more than
 /// the post-solve tolerance; an LP without an optimum leaves it unknown.
-fn within_active_budget(p: &Problem, method: Method) -> Emptiness {
+fn within_active_budget(p: &Problem, lps: &mut Lps) -> Emptiness {
     let Some(a) = p.active else {
         return Emptiness::NotEmpty;
     };
-    match p.min_active_cvar_by(method) {
+    match lps.min_active_cvar() {
         Ok(s) if s.objective <= a.budget + super::FEASIBILITY_TOLERANCE => Emptiness::NotEmpty,
         Ok(s) => Emptiness::Empty(format!(
             "policy.active_cvar_budget: the active-CVaR budget {:.6} is below the minimum active CVaR {:.6} against the policy benchmark that the bounds, group limits and turnover limit allow (weights summing to 1); raise the budget",
@@ -245,10 +246,10 @@ type Step = (Outcome, Option<Timing>);
 
 fn solve_family(
     p: &Problem,
+    lps: &mut Lps,
     family: Family,
     s: &Solution,
     targets: &Targets,
-    method: Method,
 ) -> Step {
     match &s.emptiness {
         Emptiness::Empty(why) => (
@@ -272,15 +273,15 @@ fn solve_family(
                 let cap = s.cap;
                 let within = |x: &[f64]| risk::cvar_of(p.set, x, p.confidence) <= cap;
                 let solved = reusable(s, 1, within).map(Ok);
-                max_return(p, cap, targets.cap, &s.auxiliary.min_cvar, method, solved)
+                max_return(p, lps, cap, targets.cap, &s.auxiliary.min_cvar, solved)
             }
             Family::MinCvar => {
                 let floor = s.floor;
                 let meets = |x: &[f64]| super::net_return(p, x) >= floor;
                 let solved = reusable(s, 0, meets).map(Ok);
-                min_cvar(p, floor, &s.auxiliary.max_return, method, solved)
+                min_cvar(p, lps, floor, &s.auxiliary.max_return, solved)
             }
-            Family::MaxRatio => max_ratio(p, &s.preconditions, method),
+            Family::MaxRatio => max_ratio(p, lps, &s.preconditions),
         },
     }
 }
@@ -302,10 +303,10 @@ fn judged(
 /// rather than handed to the solver as NaN.
 fn max_return(
     p: &Problem,
+    lps: &mut Lps,
     cap: f64,
     rule: CapRule,
     min_x: &Result<f64, Failure>,
-    method: Method,
     solved: Option<Result<Solved, Failure>>,
 ) -> Step {
     if cap.is_nan() {
@@ -314,7 +315,7 @@ fn max_return(
     let set = over_set(p);
     let (o, timing) = judged(
         p,
-        solved.unwrap_or_else(|| p.max_return_by(Some(cap), method)),
+        solved.unwrap_or_else(|| lps.max_return(Some(cap))),
         Some(cap),
         None,
         || match min_x {
@@ -357,16 +358,16 @@ fn unresolved_cap(rule: CapRule, min_x: &Result<f64, Failure>) -> Outcome {
 /// `solved` is the auxiliary optimum when it already meets the floor (with [`Premises::Shown`]).
 fn min_cvar(
     p: &Problem,
+    lps: &mut Lps,
     floor: f64,
     max_x: &Result<f64, Failure>,
-    method: Method,
     solved: Option<Result<Solved, Failure>>,
 ) -> Step {
     let ret = super::return_words(p.feasible.charges_costs());
     let set = over_set(p);
     let (o, timing) = judged(
         p,
-        solved.unwrap_or_else(|| p.min_cvar_by(Some(floor), method)),
+        solved.unwrap_or_else(|| lps.min_cvar(Some(floor))),
         None,
         Some(floor),
         || match max_x {
@@ -390,7 +391,7 @@ fn min_cvar(
 
 /// max_ratio: not applicable when a precondition is shown to fail, a solver error when the preconditions
 /// could not be established, else the Charnes–Cooper LP — whose set is never empty when they hold.
-fn max_ratio(p: &Problem, pre: &Preconditions, method: Method) -> Step {
+fn max_ratio(p: &Problem, lps: &mut Lps, pre: &Preconditions) -> Step {
     if !pre.holds {
         let status = if pre.established {
             Status::NotApplicable
@@ -402,7 +403,7 @@ fn max_ratio(p: &Problem, pre: &Preconditions, method: Method) -> Step {
             None,
         );
     }
-    let (o, timing) = judged(p, p.max_ratio_by(method), None, None, String::new);
+    let (o, timing) = judged(p, lps.max_ratio(), None, None, String::new);
     let o = unless_contradicted(
         o,
         Some("the feasible set is not empty and CVaR > 0 on it, so any of its portfolios scaled by t = 1/CVaR satisfies the scaled LP".into()),
