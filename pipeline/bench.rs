@@ -35,7 +35,8 @@ pub const DEFAULT_SIZES: [(usize, usize); 7] = [
 ];
 
 /// Above [`DIRECT_UP_TO_CELLS`] cells N·S the bench neither times the direct LP (as the other method) nor
-/// runs the reference, which also solves it: at 2,000 × 100,000 its rows alone hold 2·10^8 nonzeros
+/// runs the reference, which also solves it, unless told to (`--direct-at-scale`, each stopped at the
+/// time limit): at 2,000 × 100,000 its rows alone hold 2·10^8 nonzeros
 /// (about 2.4 GB in tailpack's row store, copied again by the highs crate and by HiGHS, the reference's
 /// in numpy/scipy likewise), and at 1,000 × 50,000 neither finished within 300 s (README, "Performance").
 pub use crate::models::DIRECT_UP_TO_CELLS;
@@ -63,6 +64,8 @@ pub struct BenchOptions {
     pub other_too: bool,
     /// Wall-clock limit per LP run for the other method and the reference, in seconds.
     pub time_limit: f64,
+    /// Run the direct LP and the reference above [`DIRECT_UP_TO_CELLS`] too (with the time limit).
+    pub direct_at_scale: bool,
     /// A config to build end to end, with stage timings.
     pub demo: Option<PathBuf>,
     /// Scratch folder for problem files and the demo pack.
@@ -77,6 +80,7 @@ impl Default for BenchOptions {
             reference: None,
             other_too: true,
             time_limit: 900.0,
+            direct_at_scale: false,
             demo: None,
             work: PathBuf::from("out/bench"),
         }
@@ -389,9 +393,8 @@ pub fn run(opts: &BenchOptions, out: &mut dyn Write) -> Result<()> {
     w(
         out,
         &format!(
-            "cutting planes from {} scenarios on (from {} with at least as many assets as scenarios); build = assembling the LP and handing it to the solver (plus cut generation), solve = inside the solver",
-            models::CUTS_FROM_SCENARIOS,
-            models::CUTS_FROM_SCENARIOS_WIDE
+            "cutting planes from {} scenarios on, every LP of a problem on one cut model (the families in the order max_return, min_cvar, max_ratio, each from the cuts the ones before it left); build = assembling the LP and handing it to the solver (plus cut generation), solve = inside the solver",
+            models::CUTS_FROM_SCENARIOS
         ),
     );
     w(out, "");
@@ -417,7 +420,7 @@ fn bench_size(opts: &BenchOptions, n: usize, s: usize, out: &mut dyn Write) -> R
     let peak = || crate::timings::peak_memory().filter(|_| fresh);
     let sy = synthetic(n, s, 20_261_130);
     let method = sy.problem().method();
-    let direct_too = n * s <= DIRECT_UP_TO_CELLS;
+    let direct_too = n * s <= DIRECT_UP_TO_CELLS || opts.direct_at_scale;
     let reference = match &opts.reference {
         Some(r) if direct_too => {
             let file = write_problem(&sy, &opts.work, opts.runs, opts.time_limit)?;
@@ -477,7 +480,9 @@ fn peak_line(
     let other = if direct_too {
         format!("with the other method too {}", mb(other))
     } else {
-        format!("the direct LP and the reference not run (N·S above {DIRECT_UP_TO_CELLS})")
+        format!(
+            "the direct LP and the reference not run (N·S above {DIRECT_UP_TO_CELLS}; --direct-at-scale runs them)"
+        )
     };
     format!(
         "peak memory (VmHWM) at {n} × {s}: the method used {}; {other}",

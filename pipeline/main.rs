@@ -98,6 +98,10 @@ struct BenchArgs {
     /// Seconds allowed per LP run of the other method and of the reference.
     #[arg(long, default_value_t = BenchOptions::default().time_limit)]
     time_limit: f64,
+    /// Also run the direct LP and the reference above 5·10^7 cells N·S, each stopped at the time limit
+    /// (at 2,000 × 100,000 each side holds gigabytes: 2·10^8 nonzeros).
+    #[arg(long)]
+    direct_at_scale: bool,
     /// Build this config's pack end to end with stage timings (e.g. config-demo/fund.yaml).
     #[arg(long)]
     demo: Option<PathBuf>,
@@ -121,6 +125,7 @@ impl BenchArgs {
             }),
             other_too: !self.chosen_only,
             time_limit: self.time_limit,
+            direct_at_scale: self.direct_at_scale,
             demo: self.demo.clone(),
             work: self.work.clone(),
         }

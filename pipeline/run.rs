@@ -258,10 +258,14 @@ pub fn solve_after(
             budget: *budget,
         }),
     };
-    let solved = solve_models(&p, &cfg, &data);
+    // One set of LPs for the models and the frontier: with cutting planes the frontier starts from every
+    // cut the models needed.
+    let mut lps = p.lps(p.method());
+    let solved = solve_models(&mut lps, &cfg, &data);
     crate::timings::add("models", models_start.elapsed());
     let portfolios = named_portfolios(&data, &solved.reports);
-    let analysis = crate::analysis::analyse(&cfg, &data, &p, &fs, &portfolios, shocks, seed);
+    let analysis =
+        crate::analysis::analyse(&cfg, &data, &mut lps, &fs, &portfolios, shocks, seed);
     let policy = crate::analysis::policy::report(
         &cfg,
         &data,
@@ -427,7 +431,8 @@ struct Solved {
 
 /// The models stage: every family solved on the fund's problem ([`models::solve_all`]), the rules "times
 /// current" and "plus current" against the fund's holdings, each portfolio with its risk profile.
-fn solve_models(p: &Problem, cfg: &Config, data: &MarketData) -> Solved {
+fn solve_models(lps: &mut models::Lps, cfg: &Config, data: &MarketData) -> Solved {
+    let p = lps.problem();
     let current = data
         .holdings
         .as_ref()
@@ -437,7 +442,7 @@ fn solve_models(p: &Problem, cfg: &Config, data: &MarketData) -> Solved {
         floor: cfg.floor,
         current: current.as_ref(),
     };
-    let solution = models::solve_all(p, &targets, Premises::Establish);
+    let solution = models::solve_all_on(lps, &targets, Premises::Establish);
     let reports = solution
         .families
         .into_iter()

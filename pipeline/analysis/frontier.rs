@@ -3,7 +3,7 @@
 //! the CVaR-constrained return maximisation traces the mean–CVaR efficient frontier).
 
 use crate::models::lp::{Failure, Solved};
-use crate::models::{Problem, Status};
+use crate::models::{Lps, Problem, Status};
 use crate::risk;
 use rayon::prelude::*;
 use serde::Serialize;
@@ -28,12 +28,13 @@ pub struct Frontier {
 }
 
 /// Sweeps the CVaR cap over `k` evenly spaced values; `None` when either end (the minimum-CVaR or the
-/// maximum-return LP) has no optimum. With cutting planes the LPs share one cut model and are solved in
-/// order of the cap, the cuts of each carried to the next ([`Problem::lps`]); with the direct LP the
+/// maximum-return LP) has no optimum. With cutting planes the LPs run on the problem's one cut model
+/// (`lps`, as the models left it, [`Problem::lps`]) in order of the cap, the cuts of each carried to the
+/// next; with the direct LP the
 /// points are solved in parallel, each an independent LP. Either way the result does not depend on
 /// scheduling.
-pub fn sweep(p: &Problem, k: usize) -> Option<Frontier> {
-    let mut lps = p.lps(p.method());
+pub fn sweep(lps: &mut Lps, k: usize) -> Option<Frontier> {
+    let p = lps.problem();
     let low = lps.min_cvar(None).ok()?;
     let high = lps.max_return(None).ok()?;
     let (lo, hi) = (

@@ -20,7 +20,7 @@ pub mod vartest;
 use crate::config::Config;
 use crate::diag::Check;
 use crate::ingest::MarketData;
-use crate::models::{FeasibleSet, Problem};
+use crate::models::FeasibleSet;
 use crate::timings;
 
 /// The analysis results of one run.
@@ -50,18 +50,20 @@ pub const NEEDS_HISTORY: &[(&str, bool)] = &[
 
 /// Computes frontier, stress set, backtest and bands. `portfolios` are (name, weights) of current and each
 /// model with an optimum; `defined` are the stress file's shocks, resolved against the data before any LP
-/// (`run::prepare_fund`); `seed` seeds the bands' resamples ([`bands::seed_of`] the pack id).
+/// (`run::prepare_fund`); `seed` seeds the bands' resamples ([`bands::seed_of`] the pack id). `lps` are
+/// the problem's LPs as the models left them (the frontier goes on from their cuts).
 pub fn analyse(
     cfg: &Config,
     data: &MarketData,
-    p: &Problem,
+    lps: &mut crate::models::Lps,
     fs: &FeasibleSet,
     portfolios: &[(String, Vec<f64>)],
     defined: Vec<stress::Shock>,
     seed: u64,
 ) -> Analysis {
+    let p = lps.problem();
     let frontier = timings::time("frontier", || {
-        frontier::sweep(p, cfg.analysis.frontier_points)
+        frontier::sweep(lps, cfg.analysis.frontier_points)
     });
     let stress_start = std::time::Instant::now();
     let mut shocks = defined;

@@ -42,7 +42,9 @@ mod solve;
 pub use family::Family;
 pub use feasible::{feasible_set, policy_lines};
 pub use shared::Lps;
-pub use solve::{Auxiliary, FamilyOutcome, Premises, Solution, Targets, solve_all, solve_all_by};
+pub use solve::{
+    Auxiliary, FamilyOutcome, Premises, Solution, Targets, solve_all, solve_all_by, solve_all_on,
+};
 
 use crate::config::{Backend, CapRule, FloorRule};
 use crate::diag::{Check, Level};
@@ -172,27 +174,21 @@ pub enum Method {
 }
 
 /// From this many scenarios on, the models use the cutting-plane method with HiGHS. Measured with `tailpack
-/// bench` in a release build on this project's 2-core machine (medians of 5; README, "Performance"): with the
-/// HiGHS model kept loaded and warm-started per cut, cuts take 0.10–0.85 of the direct LP's time for every
-/// model from 300 scenarios on (40 × 300: 4.1 / 8.2 / 17 ms against 13 / 17 / 20 ms for max-return /
-/// min-CVaR / max-ratio; 440 × 400: 12 / 70 / 154 ms against 114 / 178 / 434 ms), while at 200 scenarios
-/// the direct LP still wins the ratio model when assets are fewer than scenarios (40 × 200: 15 ms against
-/// 8.6 ms; 100 × 200: 42 ms against 31 ms).
-pub const CUTS_FROM_SCENARIOS: usize = 300;
-/// With at least as many assets as scenarios, cuts win every model from this many scenarios on (200 × 200:
-/// 0.31 / 0.57 / 0.81 of the direct LP's time; 440 × 200: 0.28 / 0.67 / 0.87).
-pub const CUTS_FROM_SCENARIOS_WIDE: usize = 200;
+/// bench` in a release build on this project's 2-core machine (medians of 5; README, "Performance"): with
+/// every LP of a problem on one warm-started cut model (`shared.rs`), cuts take 0.27–0.73 of the direct LP's
+/// time for every model from 100 scenarios on (40 × 100: 1.09 / 2.31 / 1.64 ms against 2.58 / 3.18 / 3.85
+/// ms for max-return / min-CVaR / max-ratio; 50 × 143: 0.33 / 0.57 / 0.45 of it; 40 × 200: 0.36 / 0.42 /
+/// 0.53). Before the shared model the switch sat at 300 scenarios (200 with at least as many assets as
+/// scenarios).
+pub const CUTS_FROM_SCENARIOS: usize = 100;
 /// The switch for the interior-point backend, which has no warm start here (each cut round is a fresh
 /// solve): it keeps the direct LP, an independent formulation for the cross-check, up to large sets.
 pub const CUTS_FROM_SCENARIOS_REBUILT: usize = 20_000;
 
-/// The method used for `scenarios` scenarios of `assets` assets with `backend`.
-pub fn method_for(scenarios: usize, assets: usize, backend: Backend) -> Method {
+/// The method used for `scenarios` scenarios with `backend` (whatever the number of assets).
+pub fn method_for(scenarios: usize, backend: Backend) -> Method {
     let cuts = match backend {
-        Backend::Highs => {
-            scenarios >= CUTS_FROM_SCENARIOS
-                || (scenarios >= CUTS_FROM_SCENARIOS_WIDE && assets >= scenarios)
-        }
+        Backend::Highs => scenarios >= CUTS_FROM_SCENARIOS,
         Backend::Clarabel => scenarios >= CUTS_FROM_SCENARIOS_REBUILT,
     };
     if cuts { Method::Cuts } else { Method::Direct }
@@ -230,7 +226,7 @@ enum Kind {
 impl Problem<'_> {
     /// The method used for this problem's size.
     pub fn method(&self) -> Method {
-        method_for(self.set.len(), self.set.width(), self.backend)
+        method_for(self.set.len(), self.backend)
     }
 
     /// Maximise μ·x over X, with CVaR_c(x) ≤ cap when a cap is given.

@@ -188,7 +188,12 @@ impl<'p> Shared<'p> {
     }
 }
 
-impl Lps<'_> {
+impl<'p> Lps<'p> {
+    /// The problem these are the LPs of.
+    pub fn problem(&self) -> &'p Problem<'p> {
+        self.p
+    }
+
     /// Whether the LPs share one cut model (cutting planes).
     pub fn shared(&self) -> bool {
         self.method == Method::Cuts

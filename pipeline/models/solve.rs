@@ -127,8 +127,15 @@ pub fn solve_all_by(
     premises: Premises,
     method: Method,
 ) -> Solution {
-    let mut lps = p.lps(method);
-    let (emptiness, auxiliary) = screen(p, &mut lps, premises);
+    solve_all_on(&mut p.lps(method), targets, premises)
+}
+
+/// [`solve_all`] on the problem's LPs `lps` ([`Problem::lps`]): with cutting planes their cut model
+/// stays loaded afterwards with every cut the families needed, for the caller's further LPs (the run's
+/// frontier).
+pub fn solve_all_on(lps: &mut Lps, targets: &Targets, premises: Premises) -> Solution {
+    let p = lps.problem();
+    let (emptiness, auxiliary) = screen(p, lps, premises);
     let preconditions = match (premises, &emptiness) {
         (Premises::Given, _) => Preconditions::given(),
         (Premises::Establish | Premises::Shown, Emptiness::NotEmpty) => preconditions(
@@ -155,7 +162,7 @@ pub fn solve_all_by(
     };
     for family in Family::ALL {
         let start = Instant::now();
-        let (outcome, timing) = solve_family(p, &mut lps, family, &solution, targets);
+        let (outcome, timing) = solve_family(p, lps, family, &solution, targets);
         solution.families.push(FamilyOutcome {
             family,
             outcome,

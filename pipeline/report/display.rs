@@ -842,7 +842,6 @@ fn run_facts(r: &RunResult, pack_id: &str, is_final: bool) -> Vec<Pair> {
             "CVaR programs",
             crate::models::method_description(crate::models::method_for(
                 r.scenarios.len(),
-                r.scenarios.width(),
                 r.backend,
             )),
         ),

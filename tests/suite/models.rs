@@ -785,34 +785,24 @@ fn the_ratio_cut_loop_reaches_the_direct_charnes_cooper_optimum() {
     }
 }
 
-/// The method is chosen from the scenario and asset counts: with HiGHS (warm-started) cutting planes from
-/// `CUTS_FROM_SCENARIOS` scenarios, or from `CUTS_FROM_SCENARIOS_WIDE` with at least as many assets as
-/// scenarios; with Clarabel from `CUTS_FROM_SCENARIOS_REBUILT`; below, the direct LP. The thresholds are this
+/// The method is chosen from the scenario count: with HiGHS (warm-started) cutting planes from
+/// `CUTS_FROM_SCENARIOS` scenarios whatever the number of assets; with Clarabel from
+/// `CUTS_FROM_SCENARIOS_REBUILT`; below, the direct LP. The thresholds are this
 /// project's own, set from `tailpack bench` measurements (README, "Performance").
 #[test]
-fn the_cutting_plane_method_is_chosen_by_scenario_and_asset_count() {
-    use tailpack::models::{
-        CUTS_FROM_SCENARIOS, CUTS_FROM_SCENARIOS_REBUILT, CUTS_FROM_SCENARIOS_WIDE, Method,
-        method_for,
-    };
-    let (h, wide, c) = (
-        CUTS_FROM_SCENARIOS,
-        CUTS_FROM_SCENARIOS_WIDE,
-        CUTS_FROM_SCENARIOS_REBUILT,
-    );
-    assert!(wide < h && h < c);
-    assert_eq!(method_for(h - 1, 40, Backend::Highs), Method::Direct);
-    assert_eq!(method_for(h, 40, Backend::Highs), Method::Cuts);
-    assert_eq!(method_for(wide, wide - 1, Backend::Highs), Method::Direct);
-    assert_eq!(method_for(wide, wide, Backend::Highs), Method::Cuts);
-    assert_eq!(method_for(wide - 1, 1_000, Backend::Highs), Method::Direct);
-    assert_eq!(method_for(c - 1, 1_000, Backend::Clarabel), Method::Direct);
-    assert_eq!(method_for(c, 40, Backend::Clarabel), Method::Cuts);
+fn the_cutting_plane_method_is_chosen_by_scenario_count() {
+    use tailpack::models::{CUTS_FROM_SCENARIOS, CUTS_FROM_SCENARIOS_REBUILT, Method, method_for};
+    let (h, c) = (CUTS_FROM_SCENARIOS, CUTS_FROM_SCENARIOS_REBUILT);
+    assert!(h < c);
+    assert_eq!(method_for(h - 1, Backend::Highs), Method::Direct);
+    assert_eq!(method_for(h, Backend::Highs), Method::Cuts);
+    assert_eq!(method_for(c - 1, Backend::Clarabel), Method::Direct);
+    assert_eq!(method_for(c, Backend::Clarabel), Method::Cuts);
     let i = instance(2);
     let p = i.problem();
     assert_eq!(
         p.method(),
-        method_for(i.set.len(), i.set.width(), Backend::Highs)
+        method_for(i.set.len(), Backend::Highs)
     );
 }
 
