@@ -21,7 +21,10 @@
 //! portfolio of X, and its return over the Rockafellar–Uryasev function at the LP's ℓ (an upper bound on
 //! its CVaR) is a valid lower bound on λ*. That halved the rounds at 100 × 2,500 and 500 × 20,000 against
 //! moving λ only after the cuts of each λ were complete (README, "Performance"). The loop ends in a round
-//! that needs no cut and whose portfolio's exact ratio does not exceed λ, which is then F(λ) ≈ 0.
+//! that needs no cut and whose portfolio's exact ratio does not exceed λ, which is then F(λ) ≈ 0. λ starts
+//! not at 0 but at the best such lower bound the LPs solved before on the same model found (in a run the
+//! minimum-CVaR, capped maximum-return and floored minimum-CVaR portfolios), which skips the first
+//! iterations' detour through the maximum-return end.
 //! Reads what `models` reads; nothing downstream.
 
 use super::lp::{Col, Failure, Lin, Solved, Timing};
@@ -40,7 +43,8 @@ impl Shared<'_> {
     /// ratio.
     pub(super) fn max_ratio(&mut self, p: &Problem) -> Result<Solved, Failure> {
         let start = Instant::now();
-        let mut lambda = 0.0;
+        // The best ratio of a portfolio an earlier LP of the model found is a valid start (λ_0 ≤ λ*).
+        let mut lambda = self.ratio_found;
         let mut objective = parametric(self.ret, self.cvar, lambda);
         self.shape(p, &objective, f64::INFINITY, f64::NEG_INFINITY, true);
         for round in 1..=MAX_CUT_ROUNDS {
@@ -92,7 +96,7 @@ impl Shared<'_> {
 impl Problem<'_> {
     /// The (net) return of `x` over `cvar_above`, an upper bound on its CVaR: a ratio at most x's own,
     /// hence at most λ*; `None` when either is not positive.
-    fn ratio_below(&self, x: &[f64], cvar_above: f64) -> Option<f64> {
+    pub(super) fn ratio_below(&self, x: &[f64], cvar_above: f64) -> Option<f64> {
         let ret = super::net_return(self, x);
         (cvar_above > 0.0 && ret > 0.0).then(|| ret / cvar_above)
     }

@@ -45,6 +45,10 @@ pub(super) struct Shared<'p> {
     active: Option<lp::Col>,
     /// The session's timing when the last LP ended (each LP reports its own share).
     before: Timing,
+    /// The best return/CVaR ratio of a portfolio of the model's set an LP found (its CVaR bounded above
+    /// by the Rockafellar–Uryasev function at the LP's ℓ), a lower bound on the optimal ratio where
+    /// Dinkelbach's iterations start; 0 before any.
+    pub(super) ratio_found: f64,
 }
 
 impl<'p> Problem<'p> {
@@ -93,6 +97,7 @@ impl<'p> Shared<'p> {
             ret,
             active,
             before: Timing::default(),
+            ratio_found: 0.0,
         })
     }
 
@@ -151,6 +156,14 @@ impl<'p> Shared<'p> {
                 !cut_total,
             );
             if !round.cut {
+                // A portfolio of the set (the minimum active CVaR lifts the budget: not of the set).
+                if !matches!(kind, Kind::MinActive)
+                    && let Some(r) = round
+                        .cvar_bound
+                        .and_then(|c| p.ratio_below(&solved.weights, c))
+                {
+                    self.ratio_found = self.ratio_found.max(r);
+                }
                 if negate {
                     solved.objective = -solved.objective;
                 }
