@@ -102,7 +102,12 @@ fn archived(role: &'static str, name: String, source: Option<PathBuf>, bytes: Ve
 fn archived_file(role: &'static str, name: String, path: &Path) -> Result<Archived> {
     let len = std::fs::metadata(path).map_or(0, |m| m.len());
     if len <= HELD_UP_TO {
-        return Ok(archived(role, name, Some(path.to_path_buf()), fs::read(path)?));
+        return Ok(archived(
+            role,
+            name,
+            Some(path.to_path_buf()),
+            fs::read(path)?,
+        ));
     }
     let (sha256, len) = stream(path, None)?;
     Ok(Archived {
@@ -120,7 +125,10 @@ fn archived_file(role: &'static str, name: String, path: &Path) -> Result<Archiv
 fn stream(path: &Path, copy: Option<&Path>) -> Result<(String, u64)> {
     use std::io::{Read, Write};
     let mut from = fs::open(path)?;
-    let mut to = copy.map(fs::create).transpose()?.map(std::io::BufWriter::new);
+    let mut to = copy
+        .map(fs::create)
+        .transpose()?
+        .map(std::io::BufWriter::new);
     let mut hasher = Sha256::new();
     let mut buf = vec![0u8; 1 << 20];
     let mut len = 0u64;

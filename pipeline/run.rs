@@ -264,8 +264,7 @@ pub fn solve_after(
     let solved = solve_models(&mut lps, &cfg, &data);
     crate::timings::add("models", models_start.elapsed());
     let portfolios = named_portfolios(&data, &solved.reports);
-    let analysis =
-        crate::analysis::analyse(&cfg, &data, &mut lps, &fs, &portfolios, shocks, seed);
+    let analysis = crate::analysis::analyse(&cfg, &data, &mut lps, &fs, &portfolios, shocks, seed);
     let policy = crate::analysis::policy::report(
         &cfg,
         &data,

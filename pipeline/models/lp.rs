@@ -782,7 +782,8 @@ impl HighsLp {
         let model = self.model.as_mut().expect("a loaded model");
         // SAFETY: the pointer is the loaded model's own HiGHS instance; `mask` has one entry per row of
         // the model, as Highs_deleteRowsByMask reads and rewrites it (highs_c_api.h).
-        let status = unsafe { highs_sys::Highs_deleteRowsByMask(model.as_mut_ptr(), mask.as_mut_ptr()) };
+        let status =
+            unsafe { highs_sys::Highs_deleteRowsByMask(model.as_mut_ptr(), mask.as_mut_ptr()) };
         assert!(
             status != highs_sys::kHighsStatusError,
             "HiGHS refused to delete {dropped} slack cut rows"

@@ -51,9 +51,22 @@ use crate::diag::{Check, Level};
 use crate::risk;
 use crate::scenarios::ScenarioSet;
 use lp::{Failure, Lin, Lp, Solved, Timing};
-use serde::Serialize;
 use rayon::prelude::*;
+use serde::Serialize;
 use std::time::Instant;
+
+/// The Charnes–Cooper LP's solution (z, t) as the portfolio x = z/t, with t kept as the scale.
+fn charnes_cooper_portfolio(solved: Result<Solved, Failure>) -> Result<Solved, Failure> {
+    let mut solved = solved?;
+    let t = solved.scale.unwrap_or(0.0);
+    if t <= MIN_SCALE {
+        return Err(Failure::Solver(format!(
+            "Charnes–Cooper scale t = {t:e} is not bounded away from 0"
+        )));
+    }
+    solved.weights.iter_mut().for_each(|z| *z /= t);
+    Ok(solved)
+}
 
 /// Tolerance of the post-solve feasibility check on reported portfolios.
 pub const FEASIBILITY_TOLERANCE: f64 = 1e-7;
@@ -265,19 +278,6 @@ impl Problem<'_> {
         self.lps(method).max_ratio()
     }
 
-    /// The Charnes–Cooper LP's solution (z, t) as the portfolio x = z/t, with t kept as the scale.
-    fn from_charnes_cooper(&self, solved: Result<Solved, Failure>) -> Result<Solved, Failure> {
-        let mut solved = solved?;
-        let t = solved.scale.unwrap_or(0.0);
-        if t <= MIN_SCALE {
-            return Err(Failure::Solver(format!(
-                "Charnes–Cooper scale t = {t:e} is not bounded away from 0"
-            )));
-        }
-        solved.weights.iter_mut().for_each(|z| *z /= t);
-        Ok(solved)
-    }
-
     /// The direct LP of `kind` when the set is small enough for it ([`DIRECT_UP_TO_CELLS`]), else a
     /// solver failure saying the cutting-plane loop did not settle: the fallback of a loop that did not.
     fn direct_if_small(&self, kind: Kind) -> Result<Solved, Failure> {
@@ -394,33 +394,22 @@ impl Problem<'_> {
         cuts
     }
 
-    /// One round of cuts after a solve: for every block (those on the total loss only when not
-    /// `skip_total`), the portfolio's losses (t: the Charnes–Cooper scale of the benchmark's part, 1
-    /// outside that LP) against the LP's ℓ and tail columns. A block whose true tail term exceeds the LP's
-    /// Σ_g w_g by more than the tolerance gets a cut for every group whose own tail term exceeds its w_g
-    /// by more than its share of the tolerance (at least one does) and whose tail changed since its last
-    /// cut. `last` holds every block's and group's last cut.
-    #[allow(clippy::too_many_arguments)]
-    fn cut_round(
-        &self,
-        session: &mut Session,
-        lp: &mut Lp,
-        blocks: &[CutBlock],
-        last: &mut [Vec<Vec<usize>>],
-        solved: &Solved,
-        t: f64,
-        skip_total: bool,
-    ) -> Round {
+    /// One round of cuts after a solve on the cut model `sh`: for every block (those on the total loss
+    /// only when not `skip_total`), the portfolio's losses against the LP's ℓ and tail columns. A block
+    /// whose true tail term exceeds the LP's Σ_g w_g by more than the tolerance gets a cut for every group
+    /// whose own tail term exceeds its w_g by more than its share of the tolerance (at least one does) and
+    /// whose tail changed since its last cut (`sh.cuts` holds every block's and group's last cut).
+    fn cut_round(&self, sh: &mut shared::Shared, solved: &Solved, skip_total: bool) -> Round {
         let mut round = Round::default();
         let s = self.set.len();
         let mut rows = Vec::new();
-        for (b, last) in blocks.iter().zip(last.iter_mut()) {
+        for (b, last) in sh.blocks.iter().zip(sh.cuts.iter_mut()) {
             if skip_total && b.benchmark.is_none() {
                 continue;
             }
             let ell = solved.extra[b.cc.at];
             let w = &solved.extra[b.cc.at + 1..b.cc.at + 1 + b.cc.groups];
-            let losses = self.losses(&solved.weights, b.benchmark, t);
+            let losses = self.losses(&solved.weights, b.benchmark);
             let tails: Vec<(Vec<usize>, f64)> = (0..b.cc.groups)
                 .map(|g| self.tail_beyond(&losses, b.cc.group(g, s), ell))
                 .collect();
@@ -437,7 +426,7 @@ impl Problem<'_> {
             let wanted: Vec<usize> = (0..b.cc.groups)
                 .filter(|&g| tails[g].1 > w[g] + share && last[g] != tails[g].0)
                 .collect();
-            let built: &Lp = lp;
+            let built: &Lp = &sh.lp;
             rows.par_extend(
                 wanted
                     .par_iter()
@@ -449,7 +438,7 @@ impl Problem<'_> {
                 round.outside |= b.benchmark.is_some();
             }
         }
-        session.cuts(lp, &rows);
+        sh.session.cuts(&mut sh.lp, &rows);
         round
     }
 
@@ -510,12 +499,12 @@ struct CutBlock<'b> {
 
 impl Problem<'_> {
     /// The loss of weights `x` in every scenario: −r_k·x, or with a benchmark the active loss
-    /// b_k·t − r_k·x (t the Charnes–Cooper scale, 1 outside the ratio LP).
-    fn losses(&self, x: &[f64], benchmark: Option<&[f64]>, t: f64) -> Vec<f64> {
+    /// b_k − r_k·x.
+    fn losses(&self, x: &[f64], benchmark: Option<&[f64]>) -> Vec<f64> {
         let returns = self.set.portfolio_returns(x);
         match benchmark {
             None => returns.iter().map(|r| -r).collect(),
-            Some(b) => returns.iter().zip(b).map(|(r, b)| b * t - r).collect(),
+            Some(b) => returns.iter().zip(b).map(|(r, b)| b - r).collect(),
         }
     }
 

@@ -53,15 +53,7 @@ impl Shared<'_> {
             }
             let solved = self.session.solve(&self.lp, &objective, true)?;
             // While λ = 0 the objective does not see the total CVaR: only the active budget is cut.
-            let round = p.cut_round(
-                &mut self.session,
-                &mut self.lp,
-                &self.blocks,
-                &mut self.cuts,
-                &solved,
-                1.0,
-                lambda == 0.0,
-            );
+            let round = p.cut_round(self, &solved, lambda == 0.0);
             if round.cut {
                 // A round that cuts only the total CVaR still yields a portfolio of the model's set; its
                 // ratio, with the CVaR bounded above by the Rockafellar–Uryasev function at the LP's ℓ, is a

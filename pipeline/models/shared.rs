@@ -103,7 +103,14 @@ impl<'p> Shared<'p> {
 
     /// Sets the bounds of v (`cap`, infinite: none), r (`floor`, minus infinite: none) and v_a (the
     /// budget, or none when `budget` is false) and the objective to maximise.
-    pub(super) fn shape(&mut self, p: &Problem, objective: &Lin, cap: f64, floor: f64, budget: bool) {
+    pub(super) fn shape(
+        &mut self,
+        p: &Problem,
+        objective: &Lin,
+        cap: f64,
+        floor: f64,
+        budget: bool,
+    ) {
         self.drop_slack_cuts();
         self.session.objective(objective);
         self.session.bound(&mut self.lp, self.cvar, -INF, cap);
@@ -146,15 +153,7 @@ impl<'p> Shared<'p> {
                 Ok(s) => s,
                 Err(f) => return Some(Err(f)),
             };
-            let round = p.cut_round(
-                &mut self.session,
-                &mut self.lp,
-                &self.blocks,
-                &mut self.cuts,
-                &solved,
-                1.0,
-                !cut_total,
-            );
+            let round = p.cut_round(self, &solved, !cut_total);
             if !round.cut {
                 // A portfolio of the set (the minimum active CVaR lifts the budget: not of the set).
                 if !matches!(kind, Kind::MinActive)
@@ -179,10 +178,7 @@ impl<'p> Shared<'p> {
     /// so a deleted cut is never taken for one still in the model.
     pub(super) fn drop_slack_cuts(&mut self) {
         if self.session.drop_slack_cuts() > 0 {
-            self.cuts
-                .iter_mut()
-                .flatten()
-                .for_each(|last| last.clear());
+            self.cuts.iter_mut().flatten().for_each(|last| last.clear());
         }
     }
 
@@ -236,10 +232,9 @@ impl<'p> Lps<'p> {
     }
 
     fn solve(&mut self, kind: Kind) -> Result<Solved, Failure> {
-        let p = self.p;
         let solved = self.solve_raw(kind);
         match kind {
-            Kind::Ratio => p.from_charnes_cooper(solved),
+            Kind::Ratio => super::charnes_cooper_portfolio(solved),
             _ => solved,
         }
     }

@@ -156,7 +156,11 @@ fn parallel_losses_and_cuts_do_not_depend_on_the_thread_count() {
     // rounding of a different order of additions.
     for k in [0, 777, sy.set.len() - 1] {
         let row = sy.set.row(k);
-        assert_eq!(one[k], tailpack::scenarios::dot_lanes(row, &x), "scenario {k}");
+        assert_eq!(
+            one[k],
+            tailpack::scenarios::dot_lanes(row, &x),
+            "scenario {k}"
+        );
         let plain: f64 = row.iter().zip(&x).map(|(r, w)| r * w).sum();
         let size: f64 = row.iter().zip(&x).map(|(r, w)| (r * w).abs()).sum();
         assert!((one[k] - plain).abs() <= 1e-14 * size, "scenario {k}");

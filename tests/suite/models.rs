@@ -800,10 +800,7 @@ fn the_cutting_plane_method_is_chosen_by_scenario_count() {
     assert_eq!(method_for(c, Backend::Clarabel), Method::Cuts);
     let i = instance(2);
     let p = i.problem();
-    assert_eq!(
-        p.method(),
-        method_for(i.set.len(), Backend::Highs)
-    );
+    assert_eq!(p.method(), method_for(i.set.len(), Backend::Highs));
 }
 
 /// A scenario return of 1e300 — finite, but no price series — with otherwise ordinary data: the set X
@@ -1203,15 +1200,24 @@ fn one_cut_model_with_scenario_groups_reaches_every_direct_optimum_in_sequence()
         let mut lps = p.lps(Method::Cuts);
         let low = lps.min_cvar(None).unwrap().objective;
         let direct_low = p.min_cvar_by(None, Method::Direct).unwrap().objective;
-        assert!(rel(low, direct_low) <= 1e-7, "{n}x{s} min CVaR {low} vs {direct_low}");
+        assert!(
+            rel(low, direct_low) <= 1e-7,
+            "{n}x{s} min CVaR {low} vs {direct_low}"
+        );
         let high = lps.max_return(None).unwrap().objective;
         let capped = lps.max_return(Some(sy.cap)).unwrap();
         let direct_capped = p.max_return_by(Some(sy.cap), Method::Direct).unwrap();
-        assert!(rel(capped.objective, direct_capped.objective) <= 1e-7, "{n}x{s} capped");
+        assert!(
+            rel(capped.objective, direct_capped.objective) <= 1e-7,
+            "{n}x{s} capped"
+        );
         assert!(models::verify(&p, &capped.weights, Some(sy.cap), None) < 1e-7);
         let floored = lps.min_cvar(Some(sy.floor)).unwrap();
         let direct_floored = p.min_cvar_by(Some(sy.floor), Method::Direct).unwrap();
-        assert!(rel(floored.objective, direct_floored.objective) <= 1e-7, "{n}x{s} floored");
+        assert!(
+            rel(floored.objective, direct_floored.objective) <= 1e-7,
+            "{n}x{s} floored"
+        );
         assert!(models::verify(&p, &floored.weights, None, Some(sy.floor)) < 1e-7);
         let ratio = lps.max_ratio().unwrap();
         let direct_ratio = p.max_ratio_by(Method::Direct).unwrap().objective;
@@ -1222,7 +1228,10 @@ fn one_cut_model_with_scenario_groups_reaches_every_direct_optimum_in_sequence()
         for j in 1..5 {
             let cap = low + (top - low) * j as f64 / 4.0;
             let got = lps.max_return(Some(cap)).unwrap().objective;
-            let want = p.max_return_by(Some(cap), Method::Direct).unwrap().objective;
+            let want = p
+                .max_return_by(Some(cap), Method::Direct)
+                .unwrap()
+                .objective;
             assert!(rel(got, want) <= 1e-7, "{n}x{s} cap {cap}: {got} vs {want}");
         }
     }
@@ -1238,9 +1247,11 @@ fn sparse_portfolios_are_evaluated_like_dense_ones() {
         x[*i] = 0.1 + 0.05 * k as f64;
     }
     let got = sy.set.portfolio_returns(&x);
-    for k in 0..sy.set.len() {
-        let row = sy.set.row(k);
-        let want: f64 = row.iter().zip(&x).map(|(r, w)| r * w).sum();
-        assert!((got[k] - want).abs() <= 1e-15, "scenario {k}: {} vs {want}", got[k]);
+    for (k, value) in got.iter().enumerate() {
+        let want: f64 = sy.set.row(k).iter().zip(&x).map(|(r, w)| r * w).sum();
+        assert!(
+            (value - want).abs() <= 1e-15,
+            "scenario {k}: {value} vs {want}"
+        );
     }
 }
